@@ -1,0 +1,348 @@
+package panel
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sort"
+)
+
+// Vec is a point or vector in the panel plane, in metres.
+type Vec struct{ X, Y float64 }
+
+// Add returns v+w.
+func (v Vec) Add(w Vec) Vec { return Vec{v.X + w.X, v.Y + w.Y} }
+
+// Sub returns v−w.
+func (v Vec) Sub(w Vec) Vec { return Vec{v.X - w.X, v.Y - w.Y} }
+
+// Dot returns the scalar product v·w.
+func (v Vec) Dot(w Vec) float64 { return v.X*w.X + v.Y*w.Y }
+
+// Perp returns ẑ×v, v turned a quarter turn counter-clockwise.
+func (v Vec) Perp() Vec { return Vec{-v.Y, v.X} }
+
+// Dir returns the unit vector at angle a (radians, counter-clockwise from +x).
+func Dir(a float64) Vec {
+	s, c := math.Sincos(a)
+	return Vec{c, s}
+}
+
+// Rect is an axis-aligned rectangle, closed: it contains the points with
+// Min.X <= X <= Max.X and Min.Y <= Y <= Max.Y. The zero value is the point at
+// the origin.
+type Rect struct{ Min, Max Vec }
+
+// Overlaps reports whether r and s share interior points; rectangles that only
+// touch along an edge do not overlap.
+func (r Rect) Overlaps(s Rect) bool {
+	const eps = 1e-9 // 1 nm: parts butted edge to edge at a stated pitch touch, they do not overlap
+	return r.Min.X < s.Max.X-eps && s.Min.X < r.Max.X-eps &&
+		r.Min.Y < s.Max.Y-eps && s.Min.Y < r.Max.Y-eps
+}
+
+// Contains reports whether p lies in r.
+func (r Rect) Contains(p Vec) bool {
+	return p.X >= r.Min.X && p.X <= r.Max.X && p.Y >= r.Min.Y && p.Y <= r.Max.Y
+}
+
+// Size returns the width and height of r.
+func (r Rect) Size() Vec { return r.Max.Sub(r.Min) }
+
+// Panel is a production panel.
+type Panel struct {
+	Size   Vec     // outer size, x and y
+	Border float64 // width of the frame along every edge where no site may go
+	Datum  Vec     // the point that scale and rotation errors act about; zero is the centre
+}
+
+// Outline returns the panel's outer rectangle.
+func (p Panel) Outline() Rect {
+	return Rect{Vec{-p.Size.X / 2, -p.Size.Y / 2}, Vec{p.Size.X / 2, p.Size.Y / 2}}
+}
+
+// Usable returns the rectangle inside the border.
+func (p Panel) Usable() Rect {
+	o := p.Outline()
+	return Rect{Vec{o.Min.X + p.Border, o.Min.Y + p.Border}, Vec{o.Max.X - p.Border, o.Max.Y - p.Border}}
+}
+
+// Validate checks that the panel has a positive size and a border that leaves room.
+func (p Panel) Validate() error {
+	switch {
+	case !(p.Size.X > 0) || !(p.Size.Y > 0) || math.IsInf(p.Size.X, 0) || math.IsInf(p.Size.Y, 0):
+		return &FieldError{Key: "panel.size", Err: errors.New("both sizes must be positive and finite")}
+	case !(p.Border >= 0) || 2*p.Border >= math.Min(p.Size.X, p.Size.Y):
+		return &FieldError{Key: "panel.border", Err: errors.New("the border must be non-negative and leave room inside the panel")}
+	case !p.Outline().Contains(p.Datum):
+		return &FieldError{Key: "panel.datum", Err: errors.New("the datum must lie on the panel")}
+	}
+	return nil
+}
+
+// Coupler is one coupled-line site of a part, in part-local coordinates.
+type Coupler struct {
+	Name    string
+	Section string  // the cross-section at this site
+	At      Vec     // from the part's lower-left corner
+	Angle   float64 // direction of the coupled lines, radians
+}
+
+// Part is a board stepped onto the panel.
+type Part struct {
+	Name     string
+	Size     Vec
+	Couplers []Coupler
+}
+
+// Array is a step-and-repeat of one part.
+type Array struct {
+	Part  string
+	Count [2]int // columns (x) and rows (y)
+	Pitch Vec    // step between neighbouring parts, panel axes
+	// Center is the centre of the array's extent; when UseOrigin is set, Origin is
+	// instead the lower-left corner of the first part (column 0, row 0).
+	Center    Vec
+	Origin    Vec
+	UseOrigin bool
+	// Rotate turns every part counter-clockwise by 0, 90, 180 or 270 degrees.
+	Rotate int
+}
+
+// Placement is a single coupler site given directly in panel coordinates, as
+// read from a placement file.
+type Placement struct {
+	Name    string
+	Section string
+	At      Vec
+	Angle   float64
+	Row     int // the file's row, for messages
+}
+
+// Layout is everything placed on one panel.
+type Layout struct {
+	Panel      Panel
+	Parts      []Part
+	Arrays     []Array
+	Placements []Placement
+}
+
+// Instance is one placed copy of a part.
+type Instance struct {
+	Index  int // position in the slice returned by Expand
+	Array  int // index into Layout.Arrays; -1 for a placement
+	Part   string
+	I, J   int  // column and row in the array, from 0
+	Bounds Rect // the part's outline on the panel
+	Name   string
+}
+
+// Site is one coupler on the panel.
+type Site struct {
+	Index    int
+	Name     string // "a1 module(3,4) H1": array, part, 1-based column and row, coupler
+	Coupler  string
+	Section  string
+	Instance int // index of the part instance in the slice returned by Expand
+	Array    int // -1 for a placement
+	I, J     int
+	Pos      Vec
+	Angle    float64 // direction of the coupled lines, radians in [0, 2π)
+	U        Vec     // unit vector along the lines
+}
+
+// N returns the unit vector across the lines, ẑ×U, the direction in which the
+// broadside offset is measured.
+func (s Site) N() Vec { return s.U.Perp() }
+
+// FieldError is an invalid layout entry; Key names it as in the job file, for
+// example "array[1].pitch" or "part[0].couplers[1].at".
+type FieldError struct {
+	Key string
+	Err error
+}
+
+func (e *FieldError) Error() string { return e.Key + ": " + e.Err.Error() }
+func (e *FieldError) Unwrap() error { return e.Err }
+
+// Errors reported by Expand, for errors.Is.
+var (
+	ErrOverlap  = errors.New("parts overlap")
+	ErrInBorder = errors.New("site inside the panel border")
+	ErrOffPanel = errors.New("part outside the panel")
+)
+
+// rotatePartLocal maps a part-local point q of a part of size sz into the
+// coordinates of the turned part's lower-left corner, for a turn of quarter
+// quarter-turns counter-clockwise; it also returns the turned size.
+func rotatePartLocal(q, sz Vec, quarter int) (Vec, Vec) {
+	switch quarter {
+	case 1:
+		return Vec{sz.Y - q.Y, q.X}, Vec{sz.Y, sz.X}
+	case 2:
+		return Vec{sz.X - q.X, sz.Y - q.Y}, sz
+	case 3:
+		return Vec{q.Y, sz.X - q.X}, Vec{sz.Y, sz.X}
+	}
+	return q, sz
+}
+
+// Expand places every array and placement and returns the part instances and
+// the coupler sites in panel coordinates. Sites are ordered by array, row,
+// column and coupler, then placements in file order. It returns a *FieldError
+// for a malformed entry, and errors wrapping ErrOverlap, ErrInBorder or
+// ErrOffPanel that name the offending parts or sites.
+func (l *Layout) Expand() ([]Instance, []Site, error) {
+	if err := l.Panel.Validate(); err != nil {
+		return nil, nil, err
+	}
+	parts := map[string]int{}
+	for i, p := range l.Parts {
+		key := fmt.Sprintf("part[%d]", i)
+		if p.Name == "" {
+			return nil, nil, &FieldError{key + ".name", errors.New("a part needs a name")}
+		}
+		if _, dup := parts[p.Name]; dup {
+			return nil, nil, &FieldError{key + ".name", fmt.Errorf("part %q is defined twice", p.Name)}
+		}
+		parts[p.Name] = i
+		if !(p.Size.X > 0 && p.Size.Y > 0) {
+			return nil, nil, &FieldError{key + ".size", errors.New("both sizes must be positive")}
+		}
+		for k, c := range p.Couplers {
+			in := Rect{Max: p.Size}
+			if !in.Contains(c.At) {
+				return nil, nil, &FieldError{fmt.Sprintf("%s.couplers[%d].at", key, k),
+					fmt.Errorf("coupler %q lies outside its %q part", c.Name, p.Name)}
+			}
+		}
+	}
+	var inst []Instance
+	var sites []Site
+	usable := l.Panel.Usable()
+	outline := l.Panel.Outline()
+	for ai, a := range l.Arrays {
+		key := fmt.Sprintf("array[%d]", ai)
+		pi, ok := parts[a.Part]
+		if !ok {
+			return nil, nil, &FieldError{key + ".part", fmt.Errorf("no part named %q", a.Part)}
+		}
+		part := l.Parts[pi]
+		if a.Count[0] < 1 || a.Count[1] < 1 {
+			return nil, nil, &FieldError{key + ".count", errors.New("both counts must be at least 1")}
+		}
+		if a.Rotate%90 != 0 {
+			return nil, nil, &FieldError{key + ".rotate", errors.New("parts turn by 0, 90, 180 or 270 degrees")}
+		}
+		quarter := ((a.Rotate/90)%4 + 4) % 4
+		_, sz := rotatePartLocal(Vec{}, part.Size, quarter)
+		if (a.Count[0] > 1 && !(a.Pitch.X > 0)) || (a.Count[1] > 1 && !(a.Pitch.Y > 0)) {
+			return nil, nil, &FieldError{key + ".pitch", errors.New("the pitch must be positive")}
+		}
+		if (a.Count[0] > 1 && a.Pitch.X < sz.X-1e-9) || (a.Count[1] > 1 && a.Pitch.Y < sz.Y-1e-9) {
+			return nil, nil, &FieldError{key + ".pitch", fmt.Errorf("%w: the pitch is smaller than the (turned) %q part", ErrOverlap, a.Part)}
+		}
+		origin := a.Origin
+		if !a.UseOrigin {
+			ext := Vec{float64(a.Count[0]-1)*a.Pitch.X + sz.X, float64(a.Count[1]-1)*a.Pitch.Y + sz.Y}
+			origin = Vec{a.Center.X - ext.X/2, a.Center.Y - ext.Y/2}
+		}
+		for j := 0; j < a.Count[1]; j++ {
+			for i := 0; i < a.Count[0]; i++ {
+				ll := origin.Add(Vec{float64(i) * a.Pitch.X, float64(j) * a.Pitch.Y})
+				in := Instance{Index: len(inst), Array: ai, Part: part.Name, I: i, J: j,
+					Bounds: Rect{ll, ll.Add(sz)},
+					Name:   fmt.Sprintf("a%d %s(%d,%d)", ai+1, part.Name, i+1, j+1)}
+				if !outline.Contains(in.Bounds.Min) || !outline.Contains(in.Bounds.Max) {
+					return nil, nil, &FieldError{key, fmt.Errorf("%w: %s reaches beyond the panel edge", ErrOffPanel, in.Name)}
+				}
+				for _, c := range part.Couplers {
+					q, _ := rotatePartLocal(c.At, part.Size, quarter)
+					s := newSite(len(sites), in.Name+" "+c.Name, c.Name, c.Section, ll.Add(q),
+						c.Angle+float64(quarter)*math.Pi/2)
+					s.Instance, s.Array, s.I, s.J = in.Index, ai, i, j
+					if !usable.Contains(s.Pos) {
+						return nil, nil, &FieldError{key, fmt.Errorf("%w: %s at (%.3f, %.3f) in", ErrInBorder, s.Name, s.Pos.X/0.0254, s.Pos.Y/0.0254)}
+					}
+					sites = append(sites, s)
+				}
+				inst = append(inst, in)
+			}
+		}
+	}
+	for k, p := range l.Placements {
+		key := fmt.Sprintf("sites row %d", p.Row)
+		if p.Name == "" {
+			p.Name = fmt.Sprintf("site%d", k+1)
+		}
+		in := Instance{Index: len(inst), Array: -1, Part: p.Name, Bounds: Rect{p.At, p.At}, Name: p.Name}
+		s := newSite(len(sites), p.Name, p.Name, p.Section, p.At, p.Angle)
+		s.Instance, s.Array = in.Index, -1
+		if !usable.Contains(s.Pos) {
+			return nil, nil, &FieldError{key, fmt.Errorf("%w: %s at (%.3f, %.3f) in", ErrInBorder, s.Name, s.Pos.X/0.0254, s.Pos.Y/0.0254)}
+		}
+		inst = append(inst, in)
+		sites = append(sites, s)
+	}
+	if a, b, ok := firstOverlap(inst); ok {
+		return nil, nil, fmt.Errorf("%w: %s and %s", ErrOverlap, inst[a].Name, inst[b].Name)
+	}
+	return inst, sites, nil
+}
+
+func newSite(index int, name, coupler, section string, pos Vec, angle float64) Site {
+	angle = math.Mod(angle, 2*math.Pi)
+	if angle < 0 {
+		angle += 2 * math.Pi
+	}
+	u := Dir(angle)
+	// Quarter turns should give exact axis directions, not 6e-17 residues.
+	u.X, u.Y = snap(u.X), snap(u.Y)
+	return Site{Index: index, Name: name, Coupler: coupler, Section: section, Pos: pos, Angle: angle, U: u}
+}
+
+func snap(v float64) float64 {
+	switch {
+	case math.Abs(v) < 1e-15:
+		return 0
+	case math.Abs(v-1) < 1e-15:
+		return 1
+	case math.Abs(v+1) < 1e-15:
+		return -1
+	}
+	return v
+}
+
+// firstOverlap finds two part instances with overlapping outlines by a sweep
+// along x, in O(n log n + k) for k candidate pairs.
+func firstOverlap(inst []Instance) (int, int, bool) {
+	idx := make([]int, 0, len(inst))
+	for i, in := range inst {
+		if in.Array >= 0 {
+			idx = append(idx, i)
+		}
+	}
+	sort.Slice(idx, func(a, b int) bool { return inst[idx[a]].Bounds.Min.X < inst[idx[b]].Bounds.Min.X })
+	var active []int
+	for _, i := range idx {
+		r := inst[i].Bounds
+		keep := active[:0]
+		for _, j := range active {
+			if inst[j].Bounds.Max.X > r.Min.X+1e-9 {
+				keep = append(keep, j)
+			}
+		}
+		active = keep
+		for _, j := range active {
+			if inst[j].Array != inst[i].Array && r.Overlaps(inst[j].Bounds) {
+				a, b := j, i
+				if a > b {
+					a, b = b, a
+				}
+				return a, b, true
+			}
+		}
+		active = append(active, i)
+	}
+	return 0, 0, false
+}

@@ -1,0 +1,116 @@
+package panel
+
+import (
+	"errors"
+	"math"
+	"testing"
+)
+
+const in = 0.0254
+
+func testLayout(rotate int) Layout {
+	return Layout{
+		Panel: Panel{Size: Vec{18 * in, 24 * in}, Border: 0.5 * in},
+		Parts: []Part{{Name: "p", Size: Vec{1 * in, 2 * in},
+			Couplers: []Coupler{{Name: "K", Section: "s", At: Vec{0.25 * in, 0.5 * in}}}}},
+		Arrays: []Array{{Part: "p", Count: [2]int{2, 1}, Pitch: Vec{2.5 * in, 3 * in},
+			Origin: Vec{1 * in, 1 * in}, UseOrigin: true, Rotate: rotate}},
+	}
+}
+
+// TestExpandRotated checks positions and angles of a turned, offset array
+// against values worked by hand: a part of 1 x 2 in with a coupler at
+// (0.25, 0.5) in along x, turned by a quarter turn counter-clockwise about its
+// lower-left corner and moved back so that its outline starts at the origin.
+func TestExpandRotated(t *testing.T) {
+	tests := []struct {
+		rotate int
+		pos    [2]Vec // in inches
+		angle  float64
+	}{
+		{0, [2]Vec{{1.25, 1.5}, {3.75, 1.5}}, 0},
+		{90, [2]Vec{{2.5, 1.25}, {5.0, 1.25}}, math.Pi / 2},
+		{180, [2]Vec{{1.75, 2.5}, {4.25, 2.5}}, math.Pi},
+		{270, [2]Vec{{1.5, 1.75}, {4.0, 1.75}}, 3 * math.Pi / 2},
+	}
+	for _, tt := range tests {
+		l := testLayout(tt.rotate)
+		inst, sites, err := l.Expand()
+		if err != nil {
+			t.Fatalf("rotate %d: %v", tt.rotate, err)
+		}
+		if len(inst) != 2 || len(sites) != 2 {
+			t.Fatalf("rotate %d: %d instances, %d sites", tt.rotate, len(inst), len(sites))
+		}
+		for k, s := range sites {
+			want := Vec{tt.pos[k].X * in, tt.pos[k].Y * in}
+			if math.Hypot(s.Pos.X-want.X, s.Pos.Y-want.Y) > 1e-12 {
+				t.Errorf("rotate %d site %d at %v in, want %v", tt.rotate, k, Vec{s.Pos.X / in, s.Pos.Y / in}, tt.pos[k])
+			}
+			if math.Abs(s.Angle-tt.angle) > 1e-12 {
+				t.Errorf("rotate %d site %d angle %v, want %v", tt.rotate, k, s.Angle, tt.angle)
+			}
+			if s.I != k || s.J != 0 || s.Instance != k {
+				t.Errorf("rotate %d site %d indices %d,%d inst %d", tt.rotate, k, s.I, s.J, s.Instance)
+			}
+		}
+	}
+}
+
+func TestExpandCentred(t *testing.T) {
+	l := testLayout(0)
+	l.Arrays[0].UseOrigin = false
+	l.Arrays[0].Count = [2]int{3, 4}
+	inst, sites, err := l.Expand()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(inst) != 12 || len(sites) != 12 {
+		t.Fatalf("%d instances, %d sites", len(inst), len(sites))
+	}
+	// Extent: 2·2.5 + 1 = 6 in by 3·3 + 2 = 11 in, centred on the origin.
+	first := inst[0].Bounds.Min
+	if math.Abs(first.X+3*in) > 1e-12 || math.Abs(first.Y+5.5*in) > 1e-12 {
+		t.Errorf("first part at %v in", Vec{first.X / in, first.Y / in})
+	}
+	if sites[11].Name != "a1 p(3,4) K" {
+		t.Errorf("last site name %q", sites[11].Name)
+	}
+}
+
+func TestExpandErrors(t *testing.T) {
+	tests := []struct {
+		name   string
+		modify func(*Layout)
+		want   error
+		key    string
+	}{
+		{"pitch overlap", func(l *Layout) { l.Arrays[0].Pitch.X = 1.5 * in; l.Arrays[0].Rotate = 90 }, ErrOverlap, "array[0].pitch"},
+		{"in border", func(l *Layout) { l.Arrays[0].Origin = Vec{-9 * in, 0} }, ErrInBorder, "array[0]"},
+		{"off panel", func(l *Layout) { l.Arrays[0].Origin = Vec{8 * in, 0} }, ErrOffPanel, "array[0]"},
+		{"arrays overlap", func(l *Layout) {
+			a := l.Arrays[0]
+			a.Origin.X += 0.5 * in
+			l.Arrays = append(l.Arrays, a)
+		}, ErrOverlap, ""},
+		{"unknown part", func(l *Layout) { l.Arrays[0].Part = "q" }, nil, "array[0].part"},
+		{"bad rotate", func(l *Layout) { l.Arrays[0].Rotate = 45 }, nil, "array[0].rotate"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			l := testLayout(0)
+			tt.modify(&l)
+			_, _, err := l.Expand()
+			if err == nil {
+				t.Fatal("no error")
+			}
+			if tt.want != nil && !errors.Is(err, tt.want) {
+				t.Errorf("error %v, want %v", err, tt.want)
+			}
+			var fe *FieldError
+			if tt.key != "" && (!errors.As(err, &fe) || fe.Key != tt.key) {
+				t.Errorf("error %v does not name key %q", err, tt.key)
+			}
+		})
+	}
+}
