@@ -1,0 +1,202 @@
+package registration
+
+import (
+	"encoding/csv"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/unit"
+)
+
+// Grid is a measured residual displacement map on a regular rectangular grid of
+// nodes, interpolated bilinearly between them and held constant (clamped)
+// beyond its edges.
+type Grid struct {
+	X, Y   []float64   // node coordinates, strictly increasing, m
+	DX, DY [][]float64 // displacement at node (X[i], Y[j]) is (DX[j][i], DY[j][i]), m
+}
+
+// At returns the interpolated displacement at p.
+func (g *Grid) At(p panel.Vec) panel.Vec {
+	i, fx := locate(g.X, p.X)
+	j, fy := locate(g.Y, p.Y)
+	bl := func(a [][]float64) float64 {
+		if len(g.X) == 1 && len(g.Y) == 1 {
+			return a[0][0]
+		}
+		i1, j1 := min(i+1, len(g.X)-1), min(j+1, len(g.Y)-1)
+		return (1-fy)*((1-fx)*a[j][i]+fx*a[j][i1]) + fy*((1-fx)*a[j1][i]+fx*a[j1][i1])
+	}
+	return panel.Vec{X: bl(g.DX), Y: bl(g.DY)}
+}
+
+// locate returns the cell index and the fraction within it for v, clamped.
+func locate(nodes []float64, v float64) (int, float64) {
+	n := len(nodes)
+	if n == 1 || v <= nodes[0] {
+		return 0, 0
+	}
+	if v >= nodes[n-1] {
+		return n - 2, 1
+	}
+	i := sort.SearchFloat64s(nodes, v) - 1
+	return i, (v - nodes[i]) / (nodes[i+1] - nodes[i])
+}
+
+// Column is a CSV header cell of the form "name [unit]".
+type Column struct {
+	Name   string
+	Unit   string
+	Factor float64 // SI per unit
+}
+
+// ParseHeader reads the header cells "name [unit]" of a CSV file. kinds gives the
+// unit kind of each column that needs one; other columns may not carry a unit.
+// It returns the columns by name.
+func ParseHeader(header []string, kinds map[string]unit.Kind) (map[string]int, []Column, error) {
+	idx := map[string]int{}
+	cols := make([]Column, len(header))
+	for i, h := range header {
+		h = strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))
+		name, u := h, ""
+		if a := strings.IndexByte(h, '['); a >= 0 {
+			b := strings.IndexByte(h, ']')
+			if b < a {
+				return nil, nil, fmt.Errorf("column %d %q: unclosed [unit]", i+1, h)
+			}
+			name, u = strings.TrimSpace(h[:a]), strings.TrimSpace(h[a+1:b])
+		}
+		c := Column{Name: name, Unit: u, Factor: 1}
+		if k, ok := kinds[name]; ok {
+			if u == "" {
+				return nil, nil, fmt.Errorf("column %d %q: the header needs a unit, as in %q (%s)", i+1, h, name+" [mil]", unit.Accepted(k))
+			}
+			f, ok := unit.Factor(k, u)
+			if !ok {
+				return nil, nil, fmt.Errorf("column %d %q: unknown %s unit %q (want %s)", i+1, h, k, u, unit.Accepted(k))
+			}
+			c.Factor = f
+		} else if u != "" {
+			return nil, nil, fmt.Errorf("column %d %q: this column takes no unit", i+1, h)
+		}
+		if _, dup := idx[name]; dup {
+			return nil, nil, fmt.Errorf("column %d %q: duplicate column", i+1, h)
+		}
+		idx[name] = i
+		cols[i] = c
+	}
+	return idx, cols, nil
+}
+
+// CSVError is a bad cell or row of a CSV file.
+type CSVError struct {
+	File   string
+	Row    int // 1-based line of the file, header = 1
+	Column string
+	Err    error
+}
+
+func (e *CSVError) Error() string {
+	if e.Column != "" {
+		return fmt.Sprintf("%s: row %d, column %q: %v", e.File, e.Row, e.Column, e.Err)
+	}
+	if e.Row > 0 {
+		return fmt.Sprintf("%s: row %d: %v", e.File, e.Row, e.Err)
+	}
+	return fmt.Sprintf("%s: %v", e.File, e.Err)
+}
+func (e *CSVError) Unwrap() error { return e.Err }
+
+// Cell parses a numeric cell in the column's unit, returning SI.
+func Cell(file string, row int, col Column, s string) (float64, error) {
+	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return 0, &CSVError{file, row, col.Name, fmt.Errorf("%q is not a finite number", s)}
+	}
+	return v * col.Factor, nil
+}
+
+// ReadGrid reads a residual grid from CSV with the columns
+// "x [unit], y [unit], dx [unit], dy [unit]", one row per node, nodes forming a
+// complete regular grid in any order.
+func ReadGrid(r io.Reader, file string) (*Grid, error) {
+	cr := csv.NewReader(r)
+	cr.Comment = '#'
+	cr.TrimLeadingSpace = true
+	header, err := cr.Read()
+	if err != nil {
+		return nil, &CSVError{File: file, Err: fmt.Errorf("reading the header: %w", err)}
+	}
+	kinds := map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length}
+	idx, cols, err := ParseHeader(header, kinds)
+	if err != nil {
+		return nil, &CSVError{File: file, Row: 1, Err: err}
+	}
+	for _, need := range []string{"x", "y", "dx", "dy"} {
+		if _, ok := idx[need]; !ok {
+			return nil, &CSVError{File: file, Row: 1, Err: fmt.Errorf("missing column %q (want x, y, dx, dy with units, e.g. \"dx [mil]\")", need)}
+		}
+	}
+	type node struct{ x, y, dx, dy float64 }
+	var nodes []node
+	for {
+		rec, err := cr.Read()
+		if err == io.EOF {
+			break
+		}
+		line, _ := cr.FieldPos(0)
+		if err != nil {
+			return nil, &CSVError{File: file, Row: line, Err: err}
+		}
+		var v [4]float64
+		for k, name := range []string{"x", "y", "dx", "dy"} {
+			c := idx[name]
+			if v[k], err = Cell(file, line, cols[c], rec[c]); err != nil {
+				return nil, err
+			}
+		}
+		nodes = append(nodes, node{v[0], v[1], v[2], v[3]})
+	}
+	if len(nodes) == 0 {
+		return nil, &CSVError{File: file, Err: errors.New("no grid nodes")}
+	}
+	xs, ys := distinct(nodes, func(n node) float64 { return n.x }), distinct(nodes, func(n node) float64 { return n.y })
+	if len(xs)*len(ys) != len(nodes) {
+		return nil, &CSVError{File: file, Err: fmt.Errorf("%d nodes do not form a regular %d x %d grid", len(nodes), len(xs), len(ys))}
+	}
+	g := &Grid{X: xs, Y: ys, DX: make([][]float64, len(ys)), DY: make([][]float64, len(ys))}
+	seen := make([][]bool, len(ys))
+	for j := range ys {
+		g.DX[j], g.DY[j], seen[j] = make([]float64, len(xs)), make([]float64, len(xs)), make([]bool, len(xs))
+	}
+	for _, n := range nodes {
+		i, j := sort.SearchFloat64s(xs, n.x), sort.SearchFloat64s(ys, n.y)
+		if seen[j][i] {
+			return nil, &CSVError{File: file, Err: fmt.Errorf("node (%g, %g) m given twice", n.x, n.y)}
+		}
+		seen[j][i] = true
+		g.DX[j][i], g.DY[j][i] = n.dx, n.dy
+	}
+	return g, nil
+}
+
+func distinct[T any](items []T, f func(T) float64) []float64 {
+	var v []float64
+	for _, it := range items {
+		v = append(v, f(it))
+	}
+	sort.Float64s(v)
+	out := v[:0]
+	for i, x := range v {
+		if i == 0 || x != out[len(out)-1] {
+			out = append(out, x)
+		}
+	}
+	return out
+}

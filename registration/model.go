@@ -1,0 +1,166 @@
+package registration
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"github.com/regdrift/regdrift/panel"
+)
+
+// TermKind names one of the six affine terms.
+type TermKind int
+
+const (
+	OffsetX  TermKind = iota // m
+	OffsetY                  // m
+	Rotation                 // rad, counter-clockwise
+	ScaleX                   // strain
+	ScaleY                   // strain
+	Skew                     // strain: x displacement per unit y
+	NumTerms = 6
+)
+
+var termNames = [NumTerms]string{"offset_x", "offset_y", "rotation", "scale_x", "scale_y", "skew"}
+
+// String returns the job-file key of the term, e.g. "scale_x".
+func (k TermKind) String() string {
+	if k >= 0 && int(k) < NumTerms {
+		return termNames[k]
+	}
+	return fmt.Sprintf("TermKind(%d)", int(k))
+}
+
+// Dist is the distribution of a term across panels.
+type Dist int
+
+const (
+	Fixed   Dist = iota // the mean, always
+	Normal              // mean ± Spread as one standard deviation
+	Uniform             // mean ± Spread as half-width
+)
+
+// Term is one affine term of a contributor. The zero value is a fixed zero.
+type Term struct {
+	Mean   float64
+	Spread float64 // sigma for Normal, half-width for Uniform, unused for Fixed
+	Dist   Dist
+}
+
+// Variance returns the term's variance across panels.
+func (t Term) Variance() float64 {
+	switch t.Dist {
+	case Normal:
+		return t.Spread * t.Spread
+	case Uniform:
+		return t.Spread * t.Spread / 3
+	}
+	return 0
+}
+
+// SD returns the term's standard deviation.
+func (t Term) SD() float64 { return math.Sqrt(t.Variance()) }
+
+// Contributor is one source of misregistration applied to the layers it names.
+type Contributor struct {
+	Name      string
+	Layers    []string
+	Terms     [NumTerms]Term
+	SiteSigma float64 // isotropic per-site random displacement, one sigma per axis, m
+	Residual  *Grid   // measured residual displacement, added to the mean; may be nil
+}
+
+// Names reports whether c names layer.
+func (c *Contributor) Names(layer string) bool {
+	for _, l := range c.Layers {
+		if l == layer {
+			return true
+		}
+	}
+	return false
+}
+
+// Model is the registration error model of a panel.
+type Model struct {
+	Datum        panel.Vec
+	Contributors []Contributor
+}
+
+// Validate checks that sigmas are non-negative and values finite; errors name
+// the contributor and the term.
+func (m *Model) Validate() error {
+	for i, c := range m.Contributors {
+		key := fmt.Sprintf("contributor[%d]", i)
+		if len(c.Layers) == 0 {
+			return &FieldError{key + ".layers", errors.New("a contributor names at least one layer")}
+		}
+		for k, t := range c.Terms {
+			tk := key + "." + TermKind(k).String()
+			if math.IsNaN(t.Mean) || math.IsInf(t.Mean, 0) || math.IsNaN(t.Spread) || math.IsInf(t.Spread, 0) {
+				return &FieldError{tk, errors.New("values must be finite")}
+			}
+			if t.Spread < 0 {
+				return &FieldError{tk, errors.New("sigma and half_width must be non-negative")}
+			}
+		}
+		if !(c.SiteSigma >= 0) || math.IsInf(c.SiteSigma, 0) {
+			return &FieldError{key + ".site_sigma", errors.New("site_sigma must be non-negative and finite")}
+		}
+	}
+	return nil
+}
+
+// FieldError is an invalid model entry; Key names it as in the job file.
+type FieldError struct {
+	Key string
+	Err error
+}
+
+func (e *FieldError) Error() string { return e.Key + ": " + e.Err.Error() }
+func (e *FieldError) Unwrap() error { return e.Err }
+
+// Basis returns the displacement per unit of each term at p for datum p0:
+// d(p) = Σ_k term_k · Basis(p, p0)[k].
+func Basis(p, p0 panel.Vec) [NumTerms]panel.Vec {
+	r := p.Sub(p0)
+	return [NumTerms]panel.Vec{
+		OffsetX:  {X: 1},
+		OffsetY:  {Y: 1},
+		Rotation: {X: -r.Y, Y: r.X}, // θ·ẑ×r
+		ScaleX:   {X: r.X},
+		ScaleY:   {Y: r.Y},
+		Skew:     {X: r.Y},
+	}
+}
+
+// Displace returns the displacement at p of an affine field with terms v.
+func Displace(v [NumTerms]float64, p, p0 panel.Vec) panel.Vec {
+	b := Basis(p, p0)
+	var d panel.Vec
+	for k := range b {
+		d.X += v[k] * b[k].X
+		d.Y += v[k] * b[k].Y
+	}
+	return d
+}
+
+// MeanDisplacement returns the mean displacement of layer at p: the sum of the
+// mean terms and residual grids of every contributor that names it.
+func (m *Model) MeanDisplacement(layer string, p panel.Vec) panel.Vec {
+	var d panel.Vec
+	for i := range m.Contributors {
+		c := &m.Contributors[i]
+		if !c.Names(layer) {
+			continue
+		}
+		var v [NumTerms]float64
+		for k := range v {
+			v[k] = c.Terms[k].Mean
+		}
+		d = d.Add(Displace(v, p, m.Datum))
+		if c.Residual != nil {
+			d = d.Add(c.Residual.At(p))
+		}
+	}
+	return d
+}
