@@ -1,0 +1,222 @@
+package render
+
+import (
+	"image"
+	"image/color"
+	"image/draw"
+	"image/png"
+	"io"
+	"math"
+	"sync"
+
+	"github.com/fogleman/gg"
+	"github.com/golang/freetype/truetype"
+	"golang.org/x/image/font"
+	"golang.org/x/image/font/gofont/gobold"
+	"golang.org/x/image/font/gofont/goregular"
+)
+
+// Colours of the page furniture: a light neutral page, near-black ink for
+// text and outlines, and a mid grey for frames and grid lines.
+var (
+	Background = color.RGBA{250, 250, 249, 255}
+	Ink        = color.RGBA{33, 33, 36, 255}
+	Frame      = color.RGBA{120, 120, 124, 255}
+	GridLine   = color.RGBA{222, 222, 224, 255}
+	Halo       = color.RGBA{255, 255, 255, 255}
+)
+
+// Canvas is an RGBA image with a gg context drawing on the same pixels and
+// text faces scaled to the image: every finished map and plot is a Canvas.
+type Canvas struct {
+	img *image.RGBA
+	dc  *gg.Context
+	em  float64 // body text size in pixels; all layout is in multiples of it
+
+	faces map[faceKey]font.Face
+}
+
+type faceKey struct {
+	size float64
+	bold bool
+}
+
+// newCanvas returns a w x h canvas filled with Background, with body text
+// em pixels tall.
+func newCanvas(w, h int, em float64) *Canvas {
+	img := image.NewRGBA(image.Rect(0, 0, w, h))
+	draw.Draw(img, img.Bounds(), image.NewUniform(Background), image.Point{}, draw.Src)
+	return &Canvas{img: img, dc: gg.NewContextForRGBA(img), em: em, faces: map[faceKey]font.Face{}}
+}
+
+// Image returns the canvas pixels.
+func (c *Canvas) Image() *image.RGBA { return c.img }
+
+// Bounds returns the image rectangle.
+func (c *Canvas) Bounds() image.Rectangle { return c.img.Bounds() }
+
+// EncodePNG writes the canvas as PNG. It uses the fastest zlib level: the
+// maps are large and smooth, so the files stay small while encoding time
+// drops several-fold from the default level (see BenchmarkEncode).
+func (c *Canvas) EncodePNG(w io.Writer) error {
+	enc := png.Encoder{CompressionLevel: png.BestSpeed}
+	return enc.Encode(w, c.img)
+}
+
+// Fonts: the Go fonts (goregular, gobold) compiled into the binary, so
+// rendering never depends on what a machine has installed. They are parsed
+// with freetype's truetype package, which gg already depends on; x/image's
+// opentype package would pull golang.org/x/text and x/sys into go.sum.
+var (
+	regularFont = sync.OnceValue(func() *truetype.Font { return mustParse(goregular.TTF) })
+	boldFont    = sync.OnceValue(func() *truetype.Font { return mustParse(gobold.TTF) })
+)
+
+func mustParse(ttf []byte) *truetype.Font {
+	f, err := truetype.Parse(ttf)
+	if err != nil {
+		panic("render: embedded Go font does not parse: " + err.Error())
+	}
+	return f
+}
+
+// face returns a face of the given pixel size. Faces are cached per canvas
+// because a truetype face is not safe for concurrent use.
+func (c *Canvas) face(size float64, bold bool) font.Face {
+	k := faceKey{math.Round(size*4) / 4, bold}
+	if f, ok := c.faces[k]; ok {
+		return f
+	}
+	src := regularFont()
+	if bold {
+		src = boldFont()
+	}
+	f := truetype.NewFace(src, &truetype.Options{Size: k.size, DPI: 72, Hinting: font.HintingNone})
+	c.faces[k] = f
+	return f
+}
+
+// textStyle selects size (in em), weight and colour of a piece of text.
+type textStyle struct {
+	size  float64 // in em; 0 means 1
+	bold  bool
+	color color.Color // nil means Ink
+	halo  bool        // draw a white outline behind the glyphs
+}
+
+func (c *Canvas) setFont(ts textStyle) float64 {
+	size := ts.size
+	if size == 0 {
+		size = 1
+	}
+	px := size * c.em
+	c.dc.SetFontFace(c.face(px, ts.bold))
+	return px
+}
+
+// capHeight of the Go fonts is 1409/2048 em (from the fonts' OS/2 table).
+const capHeight = 1409.0 / 2048
+
+// measure returns the advance width of s in pixels.
+func (c *Canvas) measure(s string, ts textStyle) float64 {
+	c.setFont(ts)
+	w, _ := c.dc.MeasureString(s)
+	return w
+}
+
+// text draws s anchored at (x, y): ax = 0, 0.5, 1 puts x at the left, centre
+// or right of the text; ay = 0, 0.5, 1 puts y at the top, middle or base of
+// the capital letters.
+func (c *Canvas) text(s string, x, y, ax, ay float64, ts textStyle) {
+	px := c.setFont(ts)
+	w, _ := c.dc.MeasureString(s)
+	x -= ax * w
+	base := y + (1-ay)*capHeight*px
+	if ts.halo {
+		c.dc.SetColor(Halo)
+		r := math.Max(1, 0.09*px)
+		for k := range 12 {
+			a := float64(k) * math.Pi / 6
+			c.dc.DrawString(s, x+r*math.Cos(a), base+r*math.Sin(a))
+		}
+	}
+	c.dc.SetColor(orInk(ts.color))
+	c.dc.DrawString(s, x, base)
+}
+
+// textBox returns the pixel box text() would cover.
+func (c *Canvas) textBox(s string, x, y, ax, ay float64, ts textStyle) box {
+	px := c.setFont(ts)
+	w, _ := c.dc.MeasureString(s)
+	x -= ax * w
+	top := y - ay*capHeight*px
+	return box{x, top - 0.25*px, x + w, top + capHeight*px + 0.3*px}
+}
+
+// textUp draws s rotated a quarter turn anticlockwise (reading upwards),
+// centred on (x, y).
+func (c *Canvas) textUp(s string, x, y float64, ts textStyle) {
+	c.dc.Push()
+	c.dc.RotateAbout(-math.Pi/2, x, y)
+	c.text(s, x, y, 0.5, 0.5, ts)
+	c.dc.Pop()
+}
+
+func orInk(c color.Color) color.Color {
+	if c == nil {
+		return Ink
+	}
+	return c
+}
+
+// box is an axis-aligned pixel rectangle used for label placement.
+type box struct{ x0, y0, x1, y1 float64 }
+
+func (b box) overlaps(o box) bool {
+	return b.x0 < o.x1 && o.x0 < b.x1 && b.y0 < o.y1 && o.y0 < b.y1
+}
+
+func (b box) inside(r image.Rectangle) bool {
+	return b.x0 >= float64(r.Min.X) && b.y0 >= float64(r.Min.Y) &&
+		b.x1 <= float64(r.Max.X) && b.y1 <= float64(r.Max.Y)
+}
+
+func (b box) grow(d float64) box { return box{b.x0 - d, b.y0 - d, b.x1 + d, b.y1 + d} }
+
+// LineStyle sets how a line is stroked. The zero value is a thin solid
+// line in Ink.
+type LineStyle struct {
+	Color color.Color // nil means Ink
+	Width float64     // pixels; 0 means the canvas's thin line width
+	Dash  []float64   // dash and gap lengths in pixels; nil means solid
+}
+
+// thin is the default line width: about a thousandth of the image width,
+// at least one pixel.
+func (c *Canvas) thin() float64 { return math.Max(1, math.Round(c.em/12*2)/2) }
+
+func (c *Canvas) applyLine(s LineStyle) {
+	c.dc.SetColor(orInk(s.Color))
+	w := s.Width
+	if w == 0 {
+		w = c.thin()
+	}
+	c.dc.SetLineWidth(w)
+	c.dc.SetDash(s.Dash...)
+	c.dc.SetLineCapButt()
+	c.dc.SetLineJoinRound()
+}
+
+// strokeBox draws the outline of a pixel rectangle with a crisp line.
+func (c *Canvas) strokeBox(b box, s LineStyle) {
+	c.applyLine(s)
+	c.dc.DrawRectangle(b.x0, b.y0, b.x1-b.x0, b.y1-b.y0)
+	c.dc.Stroke()
+	c.dc.SetDash()
+}
+
+func (c *Canvas) fillBox(b box, col color.Color) {
+	c.dc.SetColor(col)
+	c.dc.DrawRectangle(b.x0, b.y0, b.x1-b.x0, b.y1-b.y0)
+	c.dc.Fill()
+}
