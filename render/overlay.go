@@ -1,0 +1,427 @@
+package render
+
+import (
+	"image"
+	"image/color"
+	"math"
+)
+
+// Bar is a short line segment centred on a site, such as one coupler drawn
+// along its coupled lines.
+type Bar struct {
+	At     Point      // centre, metres
+	Length float64    // metres
+	Angle  float64    // radians, anticlockwise from +x
+	Color  color.RGBA // fill colour
+}
+
+// BarStyle sets how Bars draws. The zero value gives bars a little thicker
+// than a thin line, with an Ink outline.
+type BarStyle struct {
+	// Width is the bar thickness in pixels; 0 means a third of the body text
+	// size.
+	Width float64
+	// MinLength is the shortest a bar is drawn, in pixels; 0 means twice its
+	// width, so that the bar's direction still shows.
+	MinLength float64
+	// Outline is the colour of a one-pixel edge around each bar, which keeps
+	// bars visible over a field of similar colour; nil means Ink. Set
+	// NoOutline to leave it out.
+	Outline   color.Color
+	NoOutline bool
+}
+
+// Bars draws many bars quickly: bars of one colour are stroked together in
+// batches, rather than one stroke per bar.
+func (v *View) Bars(bars []Bar, s BarStyle) {
+	c := v.c
+	dc := c.dc
+	w := s.Width
+	if w == 0 {
+		w = math.Max(2, math.Round(c.em/3))
+	}
+	minLen := s.MinLength
+	if minLen == 0 {
+		minLen = 2 * w
+	}
+	ends := make([][4]float64, len(bars))
+	for k, b := range bars {
+		x, y := v.Pixel(b.At)
+		h := math.Max(v.PixelLen(b.Length), minLen) / 2
+		dx, dy := h*math.Cos(b.Angle), -h*math.Sin(b.Angle)
+		ends[k] = [4]float64{x - dx, y - dy, x + dx, y + dy}
+	}
+	dc.SetLineCapButt()
+	dc.SetDash()
+	if !s.NoOutline {
+		ow := math.Max(1, w/4)
+		dc.SetColor(orInk(s.Outline))
+		dc.SetLineWidth(w + 2*ow)
+		for k := range bars {
+			e := ends[k]
+			l := math.Hypot(e[2]-e[0], e[3]-e[1])
+			ux, uy := ow*(e[2]-e[0])/l, ow*(e[3]-e[1])/l
+			dc.MoveTo(e[0]-ux, e[1]-uy)
+			dc.LineTo(e[2]+ux, e[3]+uy)
+			if (k+1)%barBatch == 0 {
+				dc.Stroke()
+			}
+		}
+		dc.Stroke()
+	}
+	// Group by colour, keeping the order of first appearance so the output
+	// does not depend on map iteration.
+	index := map[color.RGBA]int{}
+	var groups [][]int
+	for k, b := range bars {
+		g, ok := index[b.Color]
+		if !ok {
+			g = len(groups)
+			index[b.Color] = g
+			groups = append(groups, nil)
+		}
+		groups[g] = append(groups[g], k)
+	}
+	dc.SetLineWidth(w)
+	for _, g := range groups {
+		dc.SetColor(bars[g[0]].Color)
+		for n, k := range g {
+			e := ends[k]
+			dc.MoveTo(e[0], e[1])
+			dc.LineTo(e[2], e[3])
+			if (n+1)%barBatch == 0 {
+				dc.Stroke()
+			}
+		}
+		dc.Stroke()
+	}
+}
+
+// barBatch is how many bars go into one stroke. The freetype rasterizer
+// searches a linked list of cells along each scan line, so one path holding
+// thousands of bars costs time quadratic in the bars per line; strokes of a
+// few dozen keep that small while sharing the per-stroke setup
+// (BenchmarkMap10k: 10,000 bars in one path took about 150 ms).
+const barBatch = 32
+
+// Dots draws a filled circle of radius r pixels at each point, edged with
+// edge (pass LineStyle{Width: -1} for no edge).
+func (v *View) Dots(pts []Point, r float64, fill color.Color, edge LineStyle) {
+	dc := v.c.dc
+	for _, p := range pts {
+		x, y := v.Pixel(p)
+		dc.DrawCircle(x, y, r)
+	}
+	dc.SetColor(fill)
+	if edge.Width < 0 {
+		dc.Fill()
+		return
+	}
+	dc.FillPreserve()
+	v.c.applyLine(edge)
+	dc.Stroke()
+}
+
+// Marker is a numbered ring around a site, such as one of the worst sites.
+type Marker struct {
+	At    Point
+	Label string
+}
+
+// Markers draws a ring around each marker's site and its label beside it,
+// both with a white halo so they read over the field. Each label goes to the
+// first of eight places around its ring that stays inside the view and
+// clear of the rings and labels already placed.
+func (v *View) Markers(ms []Marker) {
+	c := v.c
+	dc := c.dc
+	em := c.em
+	r := 0.6 * em
+	lw := math.Max(2, em/8)
+	var taken []box
+	for _, m := range ms {
+		x, y := v.Pixel(m.At)
+		taken = append(taken, box{x - r, y - r, x + r, y + r})
+	}
+	for _, m := range ms {
+		x, y := v.Pixel(m.At)
+		dc.DrawCircle(x, y, r)
+	}
+	dc.SetDash()
+	dc.SetColor(Halo)
+	dc.SetLineWidth(lw + 2*math.Max(1, lw/2))
+	dc.StrokePreserve()
+	dc.SetColor(Ink)
+	dc.SetLineWidth(lw)
+	dc.Stroke()
+
+	ts := textStyle{size: 0.9, bold: true, halo: true}
+	d := r + 0.25*em
+	dirs := [8][2]float64{{1, -1}, {1, 0}, {1, 1}, {0, 1}, {-1, 1}, {-1, 0}, {-1, -1}, {0, -1}}
+	for _, m := range ms {
+		if m.Label == "" {
+			continue
+		}
+		x, y := v.Pixel(m.At)
+		var best box
+		var bx, by, bax, bay float64
+		found := false
+		for k, dir := range dirs {
+			// Anchor the label's near corner or edge at distance d.
+			ax, ay := (1-dir[0])/2, (1-dir[1])/2
+			lx, ly := x+dir[0]*d*0.75, y+dir[1]*d*0.75
+			if dir[0] == 0 || dir[1] == 0 {
+				lx, ly = x+dir[0]*d, y+dir[1]*d
+			}
+			b := c.textBox(m.Label, lx, ly, ax, ay, ts)
+			if k == 0 {
+				best, bx, by, bax, bay = b, lx, ly, ax, ay
+			}
+			ok := b.inside(v.area)
+			for _, t := range taken {
+				if ok && b.overlaps(t) {
+					ok = false
+				}
+			}
+			if ok {
+				best, bx, by, bax, bay = b, lx, ly, ax, ay
+				found = true
+				break
+			}
+		}
+		_ = found
+		taken = append(taken, best)
+		c.text(m.Label, bx, by, bax, bay, ts)
+	}
+}
+
+// Arrow is a displacement drawn from a point, such as a measured target
+// movement.
+type Arrow struct {
+	At Point // tail, metres
+	D  Point // displacement, metres (before exaggeration)
+}
+
+// ArrowStyle sets how Arrows draws.
+type ArrowStyle struct {
+	Color color.Color // nil means Ink
+	// Width is the shaft width in pixels; 0 means a thin line and a half.
+	Width float64
+	// Exaggeration multiplies each displacement before it is drawn to the
+	// panel's scale; 0 means 1. Displacements of microns on a panel of half
+	// a metre need several thousand.
+	Exaggeration float64
+}
+
+func (s ArrowStyle) norm(c *Canvas) ArrowStyle {
+	if s.Width == 0 {
+		s.Width = 1.5 * c.thin()
+	}
+	if s.Exaggeration == 0 {
+		s.Exaggeration = 1
+	}
+	s.Color = orInk(s.Color)
+	return s
+}
+
+// Arrows draws each displacement as an arrow from its tail, scaled by the
+// style's exaggeration. Arrows shorter than a pixel are left out.
+func (v *View) Arrows(as []Arrow, s ArrowStyle) {
+	s = s.norm(v.c)
+	dc := v.c.dc
+	var heads [][3][2]float64
+	for _, a := range as {
+		x, y := v.Pixel(a.At)
+		dx := v.PixelLen(a.D.X * s.Exaggeration)
+		dy := -v.PixelLen(a.D.Y * s.Exaggeration)
+		if h, ok := arrowPath(v.c, x, y, dx, dy, s.Width); ok {
+			heads = append(heads, h)
+		}
+	}
+	v.c.applyLine(LineStyle{Color: s.Color, Width: s.Width})
+	dc.Stroke()
+	for _, h := range heads {
+		dc.MoveTo(h[0][0], h[0][1])
+		dc.LineTo(h[1][0], h[1][1])
+		dc.LineTo(h[2][0], h[2][1])
+		dc.ClosePath()
+	}
+	dc.SetColor(s.Color)
+	dc.Fill()
+}
+
+// arrowPath adds the shaft of an arrow from (x, y) by (dx, dy) pixels to the
+// current path and returns its head triangle.
+func arrowPath(c *Canvas, x, y, dx, dy, w float64) ([3][2]float64, bool) {
+	l := math.Hypot(dx, dy)
+	if l < 1 {
+		return [3][2]float64{}, false
+	}
+	ux, uy := dx/l, dy/l
+	hl := math.Min(0.45*l, math.Max(4*w, 0.55*c.em))
+	hw := 0.45 * hl
+	bx, by := x+dx-ux*hl, y+dy-uy*hl
+	c.dc.MoveTo(x, y)
+	c.dc.LineTo(bx+ux*0.5, by+uy*0.5)
+	return [3][2]float64{{x + dx, y + dy}, {bx - uy*hw, by + ux*hw}, {bx + uy*hw, by - ux*hw}}, true
+}
+
+// ScaleArrow draws, in the lower left corner of the view, a horizontal
+// arrow for a displacement of length metres at the style's exaggeration,
+// with label above it (for example "25 µm, drawn ×2000").
+func (v *View) ScaleArrow(length float64, label string, s ArrowStyle) {
+	s = s.norm(v.c)
+	c := v.c
+	em := c.em
+	lp := v.PixelLen(length * s.Exaggeration)
+	ts := textStyle{size: tickTextEm}
+	tw := c.measure(label, ts)
+	x0 := float64(v.area.Min.X) + 1.0*em
+	y1 := float64(v.area.Max.Y) - 1.0*em
+	b := box{x0, y1 - 3.2*em, x0 + math.Max(lp, tw) + 1.6*em, y1}
+	c.fillBox(b, color.NRGBA{255, 255, 255, 235})
+	c.strokeBox(b, LineStyle{Color: Frame})
+	ax, ay := x0+0.8*em, y1-0.9*em
+	h, ok := arrowPath(c, ax, ay, lp, 0, s.Width)
+	c.applyLine(LineStyle{Color: s.Color, Width: s.Width})
+	c.dc.Stroke()
+	if ok {
+		c.dc.MoveTo(h[0][0], h[0][1])
+		c.dc.LineTo(h[1][0], h[1][1])
+		c.dc.LineTo(h[2][0], h[2][1])
+		c.dc.ClosePath()
+		c.dc.SetColor(s.Color)
+		c.dc.Fill()
+	}
+	c.text(label, ax, y1-2.0*em, 0, 0.5, ts)
+}
+
+// Contour draws the lines where the bilinear surface through g equals
+// level (see the function Contour), and writes label, if any, on the
+// longest of them with a white halo.
+func (v *View) Contour(g *Grid, level float64, s LineStyle, label string) {
+	lines := Contour(g, level)
+	longest, best := -1, 0.0
+	for k, l := range lines {
+		v.Polyline(l, s)
+		var n float64
+		for i := 1; i < len(l); i++ {
+			n += math.Hypot(l[i].X-l[i-1].X, l[i].Y-l[i-1].Y)
+		}
+		if n > best {
+			longest, best = k, n
+		}
+	}
+	if label != "" && longest >= 0 {
+		l := lines[longest]
+		v.Label(l[len(l)/2], label)
+	}
+}
+
+// LegendKind is the kind of sample a legend entry shows.
+type LegendKind int
+
+const (
+	LegendLine   LegendKind = iota // a stroke (series, contour)
+	LegendSwatch                   // a filled square (band, bar)
+	LegendDot                      // a filled circle (targets)
+	LegendRing                     // a ring (marked sites)
+	LegendArrow                    // an arrow (displacements)
+)
+
+// LegendItem is one entry of a legend.
+type LegendItem struct {
+	Label string
+	Kind  LegendKind
+	Color color.Color // nil means Ink
+	Dash  []float64   // for LegendLine
+	Width float64     // line width in pixels for LegendLine; 0 means 2 thin lines
+}
+
+// Corner names a corner of a plot area.
+type Corner int
+
+const (
+	TopRight Corner = iota
+	TopLeft
+	BottomLeft
+	BottomRight
+)
+
+// Legend draws a boxed legend in the given corner of the view.
+func (v *View) Legend(items []LegendItem, corner Corner) {
+	drawLegend(v.c, v.area, items, corner)
+}
+
+func legendSize(c *Canvas, items []LegendItem) (w, h float64) {
+	em := c.em
+	ts := textStyle{size: tickTextEm}
+	tw := 0.0
+	for _, it := range items {
+		tw = math.Max(tw, c.measure(it.Label, ts))
+	}
+	return 0.7*em + 2.4*em + 0.6*em + tw + 0.7*em, 0.5*em + float64(len(items))*1.5*em + 0.5*em
+}
+
+func legendBox(c *Canvas, area image.Rectangle, items []LegendItem, corner Corner) box {
+	w, h := legendSize(c, items)
+	inset := 0.8 * c.em
+	x0, y0 := float64(area.Max.X)-inset-w, float64(area.Min.Y)+inset
+	if corner == TopLeft || corner == BottomLeft {
+		x0 = float64(area.Min.X) + inset
+	}
+	if corner == BottomLeft || corner == BottomRight {
+		y0 = float64(area.Max.Y) - inset - h
+	}
+	return box{x0, y0, x0 + w, y0 + h}
+}
+
+func drawLegend(c *Canvas, area image.Rectangle, items []LegendItem, corner Corner) {
+	if len(items) == 0 {
+		return
+	}
+	em := c.em
+	b := legendBox(c, area, items, corner)
+	c.fillBox(b, color.NRGBA{255, 255, 255, 240})
+	c.strokeBox(b, LineStyle{Color: Frame})
+	dc := c.dc
+	for k, it := range items {
+		cy := b.y0 + 0.5*em + (float64(k)+0.5)*1.5*em
+		sx0, sx1 := b.x0+0.7*em, b.x0+0.7*em+2.4*em
+		col := orInk(it.Color)
+		switch it.Kind {
+		case LegendLine:
+			w := it.Width
+			if w == 0 {
+				w = 2 * c.thin()
+			}
+			c.applyLine(LineStyle{Color: col, Width: w, Dash: it.Dash})
+			dc.DrawLine(sx0, cy, sx1, cy)
+			dc.Stroke()
+			dc.SetDash()
+		case LegendSwatch:
+			c.fillBox(box{sx0, cy - 0.5*em, sx1, cy + 0.5*em}, col)
+			c.strokeBox(box{sx0, cy - 0.5*em, sx1, cy + 0.5*em}, LineStyle{Color: Frame})
+		case LegendDot:
+			dc.DrawCircle((sx0+sx1)/2, cy, 0.3*em)
+			dc.SetColor(col)
+			dc.Fill()
+		case LegendRing:
+			dc.DrawCircle((sx0+sx1)/2, cy, 0.5*em)
+			c.applyLine(LineStyle{Color: col, Width: math.Max(2, em/8)})
+			dc.Stroke()
+		case LegendArrow:
+			w := 1.5 * c.thin()
+			h, _ := arrowPath(c, sx0, cy, sx1-sx0, 0, w)
+			c.applyLine(LineStyle{Color: col, Width: w})
+			dc.Stroke()
+			dc.MoveTo(h[0][0], h[0][1])
+			dc.LineTo(h[1][0], h[1][1])
+			dc.LineTo(h[2][0], h[2][1])
+			dc.ClosePath()
+			dc.SetColor(col)
+			dc.Fill()
+		}
+		c.text(it.Label, sx1+0.6*em, cy, 0, 0.5, textStyle{size: tickTextEm})
+	}
+}
