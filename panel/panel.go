@@ -116,7 +116,8 @@ type Placement struct {
 	Section string
 	At      Vec
 	Angle   float64
-	Row     int // the file's row, for messages
+	File    string // the placement file, for messages
+	Row     int    // the file's row, for messages
 }
 
 // Layout is everything placed on one panel.
@@ -271,7 +272,7 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 		}
 	}
 	for k, p := range l.Placements {
-		key := fmt.Sprintf("sites row %d", p.Row)
+		key := fmt.Sprintf("sites[%d]", k)
 		if p.Name == "" {
 			p.Name = fmt.Sprintf("site%d", k+1)
 		}

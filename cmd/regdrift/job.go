@@ -563,8 +563,10 @@ func (l *loader) layoutErr(err error) error {
 		i, rest := splitIndex(key, "part[")
 		src = l.partSrc[i]
 		key = rest
-	case strings.HasPrefix(key, "sites row"):
-		return &ParseError{File: l.job.File, Key: "sites", Err: err}
+	case strings.HasPrefix(key, "sites["):
+		i, _ := splitIndex(key, "sites[")
+		p := l.placements[i]
+		return badInput(&registration.CSVError{File: p.File, Row: p.Row, Err: fe.Err})
 	default:
 		return &ParseError{File: l.job.File, Key: key, Err: fe.Err}
 	}
@@ -825,9 +827,9 @@ func (l *loader) buildLayout() error {
 		a.Rotate = int(q) * 90
 		j.Layout.Arrays = append(j.Layout.Arrays, a)
 	}
-	for i, p := range l.placements {
+	for _, p := range l.placements {
 		if j.Section(p.Section) == nil {
-			return &ParseError{File: l.placementSrc[i].f.name, Key: "sites", Err: fmt.Errorf("row %d: no section named %q", p.Row, p.Section)}
+			return badInput(&registration.CSVError{File: p.File, Row: p.Row, Column: "section", Err: fmt.Errorf("no section named %q", p.Section)})
 		}
 	}
 	j.Layout.Placements = l.placements
@@ -1060,7 +1062,7 @@ func readPlacements(path string) ([]panel.Placement, error) {
 			}
 		}
 		out = append(out, panel.Placement{Name: rec[idx["name"]], Section: rec[idx["section"]],
-			At: panel.Vec{X: v[0], Y: v[1]}, Angle: v[2], Row: line})
+			At: panel.Vec{X: v[0], Y: v[1]}, Angle: v[2], File: path, Row: line})
 	}
 	return out, nil
 }

@@ -2,6 +2,7 @@ package main
 
 import (
 	"errors"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -101,4 +102,58 @@ func TestInclude(t *testing.T) {
 	if len(j.Model.Contributors) != 3 {
 		t.Fatalf("%d contributors", len(j.Model.Contributors))
 	}
+}
+
+func TestPlacements(t *testing.T) {
+	dir := t.TempDir()
+	base, _ := samples.FS.ReadFile("same-core.toml")
+	s := string(base)
+	a := strings.Index(s, "[[part]]")
+	b := strings.Index(s, "[[contributor]]")
+	job := s[:a] + "[[sites]]\nfile = \"placements.csv\"\n\n" + s[b:]
+	os.WriteFile(filepath.Join(dir, "job.toml"), []byte(job), 0o644)
+	csvText := "name,x [in],y [in],angle [deg],section\nK1,1.5,-2,90,hybrid\nK2,-3,4.25,0,hybrid\n"
+	os.WriteFile(filepath.Join(dir, "placements.csv"), []byte(csvText), 0o644)
+	j, err := loadJob(filepath.Join(dir, "job.toml"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(j.Sites) != 2 || j.Sites[1].Name != "K2" || math.Abs(j.Sites[1].Pos.X+3*0.0254) > 1e-15 || j.Sites[0].U.Y != 1 {
+		t.Fatalf("sites %+v", j.Sites)
+	}
+	for _, bad := range []struct{ csv, want string }{
+		{"name,x [in],y [in],angle [deg],section\nK1,1.5,-2,90,hybrid\nK2,abc,4.25,0,hybrid\n", `row 3, column "x"`},
+		{"name,x,y [in],angle [deg],section\nK1,1.5,-2,90,hybrid\n", `"x"`},
+		{"name,x [in],y [in],angle [deg],section\nK1,8.9,-2,90,hybrid\n", "border"},
+		{"name,x [in],y [in],angle [deg],section\nK1,1,-2,90,nosuch\n", "row 2"},
+	} {
+		os.WriteFile(filepath.Join(dir, "placements.csv"), []byte(bad.csv), 0o644)
+		_, err := loadJob(filepath.Join(dir, "job.toml"), nil)
+		if err == nil || !strings.Contains(err.Error(), bad.want) || !errors.Is(err, errBadInput) {
+			t.Errorf("placements %q: error %v, want it to mention %q", bad.csv, err, bad.want)
+		}
+	}
+}
+
+func FuzzLoadJob(f *testing.F) {
+	ents, _ := samples.FS.ReadDir(".")
+	for _, e := range ents {
+		if strings.HasSuffix(e.Name(), ".toml") {
+			b, _ := samples.FS.ReadFile(e.Name())
+			f.Add(string(b))
+		}
+	}
+	f.Add("[panel]\nsize = [\"1 in\"]\n")
+	f.Fuzz(func(t *testing.T, src string) {
+		j, err := loadJobData([]byte(src), "fuzz.toml", t.TempDir())
+		if err != nil {
+			if !errors.Is(err, errBadInput) {
+				t.Fatalf("error not marked as bad input: %v", err)
+			}
+			return
+		}
+		if len(j.Sites) == 0 {
+			t.Fatal("accepted a job without sites")
+		}
+	})
 }
