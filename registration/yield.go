@@ -1,0 +1,501 @@
+package registration
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"runtime"
+	"sort"
+	"sync"
+	"sync/atomic"
+
+	"github.com/regdrift/regdrift/panel"
+)
+
+// NormalCDF returns Φ(x), the standard normal cumulative distribution,
+// through Φ(x) = ½·erfc(−x/√2) (Abramowitz & Stegun 26.2.29), which keeps full
+// relative precision in the lower tail.
+func NormalCDF(x float64) float64 { return 0.5 * math.Erfc(-x/math.Sqrt2) }
+
+// NormalQuantile returns Φ⁻¹(p), the standard normal quantile, through
+// Φ⁻¹(p) = −√2·erfcinv(2p); it is −Inf at 0 and +Inf at 1.
+func NormalQuantile(p float64) float64 { return -math.Sqrt2 * math.Erfcinv(2*p) }
+
+// normalPDF returns φ(x) = exp(−x²/2)/√(2π).
+func normalPDF(x float64) float64 { return math.Exp(-0.5*x*x) / math.Sqrt(2*math.Pi) }
+
+// Interval is the closed interval [Lo, Hi] of offsets, in metres. It is empty
+// when Lo > Hi; the zero value is the single point 0.
+type Interval struct{ Lo, Hi float64 }
+
+// EmptyInterval returns an empty interval.
+func EmptyInterval() Interval { return Interval{Lo: math.Inf(1), Hi: math.Inf(-1)} }
+
+// Empty reports whether iv contains no point.
+func (iv Interval) Empty() bool { return !(iv.Lo <= iv.Hi) }
+
+// Contains reports whether Lo ≤ x ≤ Hi.
+func (iv Interval) Contains(x float64) bool { return iv.Lo <= x && x <= iv.Hi }
+
+// Shift returns iv moved by d.
+func (iv Interval) Shift(d float64) Interval { return Interval{iv.Lo + d, iv.Hi + d} }
+
+// SpecLimits is what SpecInterval found about one end of the allowed interval.
+type SpecLimits struct {
+	// Clipped is set for an end at which the curve was still inside spec when
+	// the search range ended: the interval is then cut at the range.
+	Clipped [2]bool
+	// Limit is, for each end, the spec limit the coupling meets there:
+	// −1 for target − tol, +1 for target + tol, 0 for a clipped end.
+	Limit [2]int
+}
+
+// ErrNominalOutOfSpec is returned by SpecInterval when the curve at the
+// nominal offset is already outside target ± tol.
+var ErrNominalOutOfSpec = errors.New("the nominal design is outside its coupling spec")
+
+// specScanSteps is the number of steps the search range is scanned in before
+// each crossing is refined by bisection; a crossing pair closer than
+// (hi−lo)/specScanSteps can be missed, far below any sweep's point spacing.
+const specScanSteps = 4000
+
+// SpecInterval returns the connected interval of offsets around nominal, within
+// the search range [lo, hi], over which f(x) stays within target ± tol: the
+// allowed offsets of a coupler whose coupling curve is f (dB) and whose spec is
+// target ± tol dB. The interval may be asymmetric about nominal. Each end is
+// found by scanning outward from nominal and bisecting the first step at which
+// |f − target| exceeds tol, to a width of 1e-12 of the range. If f(nominal) is
+// out of spec, it returns an empty interval and ErrNominalOutOfSpec.
+func SpecInterval(f func(float64) float64, lo, hi, nominal, target, tol float64) (Interval, SpecLimits, error) {
+	var lim SpecLimits
+	if !(tol > 0) {
+		return EmptyInterval(), lim, fmt.Errorf("spec tolerance %g dB must be positive", tol)
+	}
+	if !(lo < hi) || !(lo <= nominal && nominal <= hi) {
+		return EmptyInterval(), lim, fmt.Errorf("nominal offset %g m is outside the search range [%g, %g] m", nominal, lo, hi)
+	}
+	g := func(x float64) float64 { return math.Abs(f(x)-target) - tol }
+	if g(nominal) > 0 {
+		return EmptyInterval(), lim, ErrNominalOutOfSpec
+	}
+	h := (hi - lo) / specScanSteps
+	end := func(dir float64, stop float64) (float64, bool, int) {
+		in := nominal
+		for {
+			x := in + dir*h
+			if dir*(x-stop) >= 0 {
+				x = stop
+			}
+			if g(x) > 0 {
+				// Bisect between in (g ≤ 0) and x (g > 0).
+				a, b := in, x
+				for range 200 {
+					if math.Abs(b-a) <= 1e-12*(hi-lo) {
+						break
+					}
+					m := 0.5 * (a + b)
+					if g(m) > 0 {
+						b = m
+					} else {
+						a = m
+					}
+				}
+				side := -1
+				if f(b) > target {
+					side = 1
+				}
+				return a, false, side
+			}
+			if x == stop {
+				return stop, true, 0
+			}
+			in = x
+		}
+	}
+	var iv Interval
+	iv.Lo, lim.Clipped[0], lim.Limit[0] = end(-1, lo)
+	iv.Hi, lim.Clipped[1], lim.Limit[1] = end(+1, hi)
+	return iv, lim, nil
+}
+
+// SiteProb is the closed-form distribution of one site's across offset, as used
+// for its yield: a normal part plus at most one uniform part treated exactly.
+type SiteProb struct {
+	Mean float64 // mean across offset, design offset included, m
+	// SD is the standard deviation of the normal part: every normal term, the
+	// per-site sigma, and the uniform terms other than the widest.
+	SD float64
+	// Uniform is the half-width of the widest uniform term's contribution
+	// (|sensitivity| × half_width), m; 0 when no uniform term reaches the site.
+	Uniform float64
+}
+
+// uniformFoldRatio: a uniform part narrower than this fraction of the normal
+// SD is folded into the normal part by its variance w²/3. The density then
+// differs from the exact convolution by O((w/σ)⁴) in its fourth cumulant, far
+// below Monte Carlo resolution, and the exact form would lose digits to
+// cancellation in its finite difference.
+const uniformFoldRatio = 1e-6
+
+// CDF returns P(offset ≤ t). With a uniform part of half-width w the CDF is
+// the normal CDF averaged over ±w:
+//
+//	F(t) = [G(t−μ+w) − G(t−μ−w)]/(2w),  G(x) = σ·(uΦ(u) + φ(u)), u = x/σ,
+//
+// G being the antiderivative of Φ(x/σ) (∫Φ = xΦ + φ, Owen 1980, "A table of
+// normal integrals", Commun. Statist. B9, integral 10,010.1); with σ = 0,
+// G(x) = max(x, 0).
+func (p SiteProb) CDF(t float64) float64 {
+	x := t - p.Mean
+	w := p.Uniform
+	if w > 0 && w < uniformFoldRatio*p.SD {
+		sd := math.Sqrt(p.SD*p.SD + w*w/3)
+		return NormalCDF(x / sd)
+	}
+	if w == 0 {
+		if p.SD == 0 {
+			if x >= 0 {
+				return 1
+			}
+			return 0
+		}
+		return NormalCDF(x / p.SD)
+	}
+	G := func(x float64) float64 {
+		if p.SD == 0 {
+			return math.Max(x, 0)
+		}
+		u := x / p.SD
+		return p.SD * (u*NormalCDF(u) + normalPDF(u))
+	}
+	return math.Min(1, math.Max(0, (G(x+w)-G(x-w))/(2*w)))
+}
+
+// Prob returns P(offset ∈ iv), the closed-form yield of the site.
+func (p SiteProb) Prob(iv Interval) float64 {
+	if iv.Empty() {
+		return 0
+	}
+	return math.Max(0, p.CDF(iv.Hi)-p.CDF(iv.Lo))
+}
+
+// YieldSite is one coupler site of a yield study.
+type YieldSite struct {
+	Pos, U       panel.Vec // position and direction of the coupled lines
+	Upper, Lower string    // trace layers of its section, upper first
+	Nominal      float64   // design offset of its section, m
+	// Allowed is the interval of across offsets (design offset included) for
+	// which the coupler meets its spec; an empty interval means never.
+	Allowed Interval
+	Part    int // index of its part instance, or −1 if it belongs to none
+}
+
+// Yield is a yield study of a panel: the sites, their sensitivity rows and the
+// relative terms of every layer pair they use.
+type Yield struct {
+	Model *Model
+	Sites []YieldSite
+	Rows  []Row
+	// Pairs holds one Relative per distinct (upper, lower) layer pair; Pair[i]
+	// indexes it for site i.
+	Pairs []*Relative
+	Pair  []int
+	Parts int // number of part instances
+}
+
+// NewYield prepares a yield study of sites under model m, with parts part
+// instances (site Part indices must lie in [0, parts) or be −1).
+func NewYield(m *Model, sites []YieldSite, parts int) *Yield {
+	y := &Yield{Model: m, Sites: sites, Rows: make([]Row, len(sites)), Pair: make([]int, len(sites)), Parts: parts}
+	idx := map[[2]string]int{}
+	for i, s := range sites {
+		if s.Part >= parts {
+			panic(fmt.Sprintf("registration: site %d names part %d of %d", i, s.Part, parts))
+		}
+		k := [2]string{s.Upper, s.Lower}
+		p, ok := idx[k]
+		if !ok {
+			p = len(y.Pairs)
+			idx[k] = p
+			y.Pairs = append(y.Pairs, m.Relative(s.Upper, s.Lower))
+		}
+		y.Pair[i] = p
+		y.Rows[i] = y.Pairs[p].Row(s.Pos, s.U)
+	}
+	return y
+}
+
+// Stats returns the closed-form offset statistics of site i (design offset excluded).
+func (y *Yield) Stats(i int) Stats { return y.Pairs[y.Pair[i]].Stats(y.Rows[i]) }
+
+// Prob returns the closed-form distribution of site i's across offset.
+func (y *Yield) Prob(i int) SiteProb {
+	return siteProb(y.Pairs[y.Pair[i]], &y.Rows[i], y.Sites[i].Nominal)
+}
+
+func siteProb(r *Relative, row *Row, nominal float64) SiteProb {
+	st := r.Stats(*row)
+	v := st.SDAcross * st.SDAcross
+	// Find the widest uniform contribution; the rest stay in the normal part.
+	var wmax float64
+	for i, c := range r.model.Contributors {
+		if r.Sign[i] == 0 {
+			continue
+		}
+		for k, t := range c.Terms {
+			if t.Dist == Uniform {
+				wmax = math.Max(wmax, math.Abs(row.Across[k])*t.Spread)
+			}
+		}
+	}
+	v -= wmax * wmax / 3
+	return SiteProb{Mean: st.MeanAcross + nominal, SD: math.Sqrt(math.Max(v, 0)), Uniform: wmax}
+}
+
+// ClosedForm returns the closed-form yield of site i: P(δ ∈ Allowed).
+func (y *Yield) ClosedForm(i int) float64 { return y.Prob(i).Prob(y.Sites[i].Allowed) }
+
+// Budget returns the across-offset variance shares of site i (see Relative.Budget).
+func (y *Yield) Budget(dst []Share, i int) []Share {
+	return y.Pairs[y.Pair[i]].Budget(dst, y.Rows[i])
+}
+
+// PanelBudget returns every contributor term's across-offset variance summed
+// over the sites, divided by the number of sites (the panel's mean variance
+// share), largest first.
+func (y *Yield) PanelBudget() []Share {
+	type key struct {
+		c int
+		t TermKind
+	}
+	sum := map[key]float64{}
+	var buf []Share
+	for i := range y.Sites {
+		buf = y.Budget(buf, i)
+		for _, s := range buf {
+			sum[key{s.Contributor, s.Term}] += s.Variance
+		}
+	}
+	out := make([]Share, 0, len(sum))
+	n := float64(len(y.Sites))
+	for k, v := range sum {
+		out = append(out, Share{k.c, k.t, v / n})
+	}
+	SortShares(out)
+	return out
+}
+
+// SortShares orders shares largest first, ties by contributor and term.
+func SortShares(s []Share) {
+	sort.Slice(s, func(a, b int) bool {
+		if s[a].Variance != s[b].Variance {
+			return s[a].Variance > s[b].Variance
+		}
+		if s[a].Contributor != s[b].Contributor {
+			return s[a].Contributor < s[b].Contributor
+		}
+		return s[a].Term < s[b].Term
+	})
+}
+
+// MCSettings controls a Monte Carlo yield run. The zero value runs nothing:
+// Trials must be positive.
+type MCSettings struct {
+	Trials int    // number of panels drawn
+	Seed   uint64 // seed of the PCG streams
+	// Workers is the number of goroutines; 0 means GOMAXPROCS. The result does
+	// not depend on it.
+	Workers int
+	// Progress, if not nil, is called after each block of trials with the
+	// number of trials done; calls are serialised.
+	Progress func(done, total int)
+}
+
+// MCBlock is the number of panels in one block of a Monte Carlo run. Block b
+// draws from its own stream rand.NewPCG(seed, b), so that the result is the
+// same whatever the number of workers and their scheduling.
+const MCBlock = 256
+
+// MCResult holds the counts of a Monte Carlo yield run. Counts are integers,
+// so merging the workers' tallies is exact and order-independent.
+type MCResult struct {
+	Trials   int
+	SiteGood []int64 // per site, panels on which the site met its spec
+	PartGood []int64 // per part instance, panels on which all its sites did
+	// GoodParts[k] is the number of panels with exactly k good parts.
+	GoodParts []int64
+}
+
+// SiteYield returns the Monte Carlo yield of site i.
+func (r *MCResult) SiteYield(i int) float64 { return float64(r.SiteGood[i]) / float64(r.Trials) }
+
+// SiteSE returns the binomial standard error of SiteYield(i), √(p(1−p)/N).
+func (r *MCResult) SiteSE(i int) float64 {
+	p := r.SiteYield(i)
+	return math.Sqrt(p * (1 - p) / float64(r.Trials))
+}
+
+// PartYield returns the Monte Carlo yield of part instance i.
+func (r *MCResult) PartYield(i int) float64 { return float64(r.PartGood[i]) / float64(r.Trials) }
+
+// MeanGoodParts returns the mean number of good parts per panel.
+func (r *MCResult) MeanGoodParts() float64 {
+	var s float64
+	for k, n := range r.GoodParts {
+		s += float64(k) * float64(n)
+	}
+	return s / float64(r.Trials)
+}
+
+// GoodPartsQuantile returns the q-quantile of the number of good parts per
+// panel: the smallest k such that at least a fraction q of panels have k or
+// fewer good parts.
+func (r *MCResult) GoodPartsQuantile(q float64) int {
+	need := q * float64(r.Trials)
+	var c float64
+	for k, n := range r.GoodParts {
+		c += float64(n)
+		if c >= need && c > 0 {
+			return k
+		}
+	}
+	return len(r.GoodParts) - 1
+}
+
+// mcSite is the hot-loop form of a site: the across offset is a·v + noise, and
+// the site is good when lo ≤ that ≤ hi (the allowed interval less the design
+// offset and residual constant).
+type mcSite struct {
+	a      [NumTerms]float64
+	lo, hi float64
+	sd     float64
+	pair   int32
+	part   int32
+}
+
+// MonteCarlo draws set.Trials panels: every contributor term once per panel
+// (Model.Sample, uniform terms honoured), the per-site sigma once per site, and
+// counts the sites and parts that meet their spec. Memory does not grow with
+// the number of trials. It returns ctx.Err() if ctx is cancelled.
+func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, error) {
+	if set.Trials <= 0 {
+		return nil, fmt.Errorf("trials %d must be positive", set.Trials)
+	}
+	sites := make([]mcSite, len(y.Sites))
+	for i, s := range y.Sites {
+		row := &y.Rows[i]
+		p := y.Pairs[y.Pair[i]]
+		base := row.ConstAcross + s.Nominal
+		ms := mcSite{a: row.Across, lo: s.Allowed.Lo - base, hi: s.Allowed.Hi - base,
+			sd: math.Sqrt(p.SiteVar), pair: int32(y.Pair[i]), part: int32(s.Part)}
+		if s.Allowed.Empty() {
+			ms.lo, ms.hi = math.Inf(1), math.Inf(-1)
+		}
+		sites[i] = ms
+	}
+	workers := set.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	blocks := (set.Trials + MCBlock - 1) / MCBlock
+	workers = min(workers, blocks)
+
+	res := &MCResult{Trials: set.Trials, SiteGood: make([]int64, len(sites)),
+		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Parts+1)}
+	var next atomic.Int64
+	var mu sync.Mutex
+	done := 0
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w := newMCWorker(y, sites)
+			for ctx.Err() == nil {
+				b := int(next.Add(1) - 1)
+				if b >= blocks {
+					break
+				}
+				n := min(MCBlock, set.Trials-b*MCBlock)
+				w.block(set.Seed, uint64(b), n)
+				if set.Progress != nil {
+					mu.Lock()
+					done += n
+					set.Progress(done, set.Trials)
+					mu.Unlock()
+				}
+			}
+			mu.Lock()
+			for i, c := range w.siteGood {
+				res.SiteGood[i] += c
+			}
+			for i, c := range w.partBad {
+				res.PartGood[i] += w.trials - c
+			}
+			for i, c := range w.goodParts {
+				res.GoodParts[i] += c
+			}
+			mu.Unlock()
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+// mcWorker holds one goroutine's tallies and scratch space.
+type mcWorker struct {
+	y         *Yield
+	sites     []mcSite
+	draw      Draw
+	v         [][NumTerms]float64
+	stamp     []int64 // per part, the last trial in which it failed, +1
+	siteGood  []int64
+	partBad   []int64
+	goodParts []int64
+	trials    int64
+	serial    int64
+}
+
+func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
+	return &mcWorker{y: y, sites: sites, draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
+		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
+		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1)}
+}
+
+// block runs n trials from stream (seed, b).
+func (w *mcWorker) block(seed, b uint64, n int) {
+	rng := rand.New(rand.NewPCG(seed, b))
+	sites := w.sites
+	good := w.siteGood[:len(sites)]
+	for range n {
+		w.serial++
+		t := w.serial
+		w.y.Model.Sample(rng, w.draw)
+		for p, r := range w.y.Pairs {
+			w.v[p] = r.Collapse(w.draw)
+		}
+		bad := 0
+		for i := range sites {
+			s := &sites[i]
+			v := &w.v[s.pair]
+			d := s.a[0]*v[0] + s.a[1]*v[1] + s.a[2]*v[2] + s.a[3]*v[3] + s.a[4]*v[4] + s.a[5]*v[5]
+			if s.sd > 0 {
+				d += s.sd * rng.NormFloat64()
+			}
+			if d >= s.lo && d <= s.hi {
+				good[i]++
+			} else if s.part >= 0 && w.stamp[s.part] != t {
+				w.stamp[s.part] = t
+				w.partBad[s.part]++
+				bad++
+			}
+		}
+		w.goodParts[w.y.Parts-bad]++
+	}
+	w.trials += int64(n)
+}
