@@ -1,0 +1,139 @@
+package section
+
+import "math"
+
+// band is one horizontal slab of the solution domain, in domain coordinates:
+// y is measured from the (lower) ground's inner face outward, through the stack.
+type band struct {
+	y0, y1 float64
+	er     float64 // permittivity of the band (resin of the neighbouring prepreg in a trace slab)
+	trace  int     // index of the trace in this slab, or -1; both traces: 2
+}
+
+// traceGeom is one trapezoidal trace in domain coordinates.
+type traceGeom struct {
+	yb, yt   float64 // lower and upper face (equal for an ideal zero-thickness strip)
+	hwb, hwt float64 // half widths at the lower and upper face
+	slab     int     // index of the copper layer in the stackup
+}
+
+// halfWidth returns the half width of the trace at height y inside its slab.
+func (t *traceGeom) halfWidth(y float64) float64 {
+	if t.yt <= t.yb {
+		return t.hwb
+	}
+	u := (y - t.yb) / (t.yt - t.yb)
+	u = math.Max(0, math.Min(1, u))
+	return t.hwb + u*(t.hwt-t.hwb)
+}
+
+// geometry is the cross-section reduced to what the field solver needs.
+type geometry struct {
+	micro  bool      // one ground, open (air) above the stack
+	bands  []band    // bottom to top, contiguous
+	stackH float64   // stripline: b, the ground-to-ground distance; microstrip: height of the stack above the ground
+	tr     [2]traceGeom
+	same   bool    // both traces in one copper slab (edge-coupled)
+	x1     float64 // centre of the lower trace (Traces[1].X); Traces[0] is placed at x1 + offset
+}
+
+// buildGeometry converts the stackup convention of DESIGN.md into domain bands.
+// s must be valid.
+func (s *Section) buildGeometry() *geometry {
+	ls := s.Stackup.Layers
+	g := &geometry{x1: s.Traces[1].X}
+	gi0, _ := s.copperIndex(s.Grounds[0])
+	ti0, _ := s.copperIndex(s.Traces[0].Layer)
+	ti1, _ := s.copperIndex(s.Traces[1].Layer)
+	g.same = ti0 == ti1
+	// order lists stackup indices from the ground outward (stripline: from the
+	// lower ground upward); up tells whether domain-up is stackup-up.
+	var order []int
+	up := true
+	if len(s.Grounds) == 2 {
+		gi1, _ := s.copperIndex(s.Grounds[1])
+		lo, hi := min(gi0, gi1), max(gi0, gi1)
+		for i := hi - 1; i > lo; i-- {
+			order = append(order, i)
+		}
+	} else {
+		g.micro = true
+		if ti0 < gi0 {
+			for i := gi0 - 1; i >= 0; i-- {
+				order = append(order, i)
+			}
+		} else {
+			up = false
+			for i := gi0 + 1; i < len(ls); i++ {
+				order = append(order, i)
+			}
+		}
+	}
+	er := func(i int) float64 { // permittivity of stackup layer i, air outside the stack
+		if i < 0 || i >= len(ls) {
+			return 1
+		}
+		return ls[i].Er
+	}
+	isCore := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric && ls[i].Core }
+	isDiel := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric }
+	y := 0.0
+	for _, i := range order {
+		l := ls[i]
+		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1}
+		if l.Kind == Copper {
+			// A copper slab: the trace stands on the face of the dielectric it was
+			// etched on, a core face if the slab touches exactly one core, else the
+			// dielectric below (DESIGN.md); the rest of the slab is resin of the
+			// dielectric on the far side (air for an outer layer).
+			footBelow := true // in stackup orientation
+			switch {
+			case isCore(i+1) && !isCore(i-1):
+				footBelow = true
+			case isCore(i-1) && !isCore(i+1):
+				footBelow = false
+			default:
+				footBelow = isDiel(i + 1)
+			}
+			resin := er(i - 1)
+			if !footBelow {
+				resin = er(i + 1)
+			}
+			b.er = resin
+			for k := range 2 {
+				if ls[i].Name != s.Traces[k].Layer {
+					continue
+				}
+				t := s.Traces[k]
+				foot, far := t.Width/2, t.Width/2-t.Etch
+				if l.Thickness == 0 {
+					far = foot
+				}
+				// footLow: the foot is at the lower face in domain coordinates.
+				footLow := footBelow == up
+				tg := traceGeom{yb: b.y0, yt: b.y1, slab: i}
+				if footLow {
+					tg.hwb, tg.hwt = foot, far
+				} else {
+					tg.hwb, tg.hwt = far, foot
+				}
+				g.tr[k] = tg
+				if b.trace == -1 {
+					b.trace = k
+				} else {
+					b.trace = 2
+				}
+			}
+		}
+		if b.y1 > b.y0 {
+			g.bands = append(g.bands, b)
+		}
+		y = b.y1
+	}
+	g.stackH = y
+	return g
+}
+
+// domainHeight returns the ground-to-ground distance (stripline) or the height
+// of the stack above the ground (microstrip).
+func (s *Section) domainHeight() float64 { return s.buildGeometry().stackH }

@@ -1,0 +1,330 @@
+package section
+
+import "math"
+
+// Mesh construction. The mesh is a structured grid of quadrilaterals: every
+// horizontal node line is at a fixed height (all band interfaces and trace faces
+// are node lines), and column j of the grid runs from bottom to top with
+// x-positions that vary from row to row. In the rows of a broadside trace's
+// slab the columns at the trace's edges follow its sloped sides exactly; the
+// rows at and above the upper trace use the upper trace's column pattern, the
+// rows at and below the lower trace the lower trace's pattern (same column
+// count), and the rows between blend the two linearly. The topology therefore
+// never changes with offset, and the node positions are smooth functions of it.
+
+// Mesh constants. They were tuned on the convergence study in doc.go.
+const (
+	gradeAlpha   = 0.9  // ln of the element size ratio toward a singular edge at level 1
+	floorFrac    = 0.02 // h0 as a fraction of the smallest feature
+	quietFrac    = 0.25 // largest element as a fraction of the ground spacing b (stripline), at level 1
+	marginSpans  = 2.5  // side walls this many b beyond the traces (stripline): exp(−2π·2.5) ≈ 1.5e−7
+	openSpans    = 80.0 // microstrip: Dirichlet box this many (stack height + widths) away
+	minSegCount  = 1
+	maxMeshNodes = 400000
+)
+
+// meshPlan fixes the topology of the mesh (element counts per segment) and the
+// row heights for one section and refinement level; it is shared by every
+// offset of a sweep.
+type meshPlan struct {
+	g       *geometry
+	bands   []band    // geometry bands plus the air band for a microstrip
+	ys      []float64 // node row heights, bottom to top
+	rowBand []int     // band of each element row
+	xc      []int     // element counts per lateral segment
+	nx, ny  int       // elements per row and per column
+	gx      grading
+	margin  float64 // distance from the outermost trace edge to a side wall
+	wmax    float64 // widest foot
+	hi, lo  int     // broadside: index of the trace in the higher / lower slab
+	jub     int     // broadside: row of the lower face of the higher trace
+	jlt     int     // broadside: row of the upper face of the lower trace
+	left    int     // edge-coupled: index of the trace on the left at the nominal offset
+}
+
+func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }
+
+// features returns the smallest feature of the cross-section that the mesh
+// must resolve: a trace thickness, a half width, the dielectric gap next to a
+// trace, the gap between edge-coupled traces.
+func (g *geometry) smallestFeature(s *Section) float64 {
+	f := math.Inf(1)
+	for k := range 2 {
+		t := g.tr[k]
+		if t.yt > t.yb {
+			f = math.Min(f, t.yt-t.yb)
+		}
+		f = math.Min(f, math.Min(t.hwb, t.hwt))
+		for _, b := range g.bands {
+			if b.y1 == t.yb || b.y0 == t.yt {
+				f = math.Min(f, b.y1-b.y0)
+			}
+		}
+	}
+	if g.same {
+		d := math.Abs(s.NominalOffset())
+		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2
+		if gap > 0 {
+			f = math.Min(f, gap)
+		}
+	}
+	return f
+}
+
+// newMeshPlan builds the plan at refinement level lev·mult: the element count
+// of every segment is mult times its count at level lev (exact doubling for
+// Richardson extrapolation), and the floor of the grading shrinks as
+// 1/(lev·mult), so the smallest elements shrink as 1/(lev·mult)².
+func newMeshPlan(s *Section, g *geometry, lev float64, mult int) *meshPlan {
+	p := &meshPlan{g: g}
+	feat := g.smallestFeature(s)
+	// The floor shrinks with the level too, so that the elements touching a
+	// singular edge shrink as 1/level²: the edge's own error (∝ h for a knife
+	// edge) then falls as fast as the bulk error and Richardson's h² holds.
+	h0base := floorFrac * feat / lev
+	h0 := h0base / float64(mult)
+	p.wmax = math.Max(s.Traces[0].Width, s.Traces[1].Width)
+	H := g.stackH
+	hmax := quietFrac * H
+	p.margin = marginSpans * H
+	p.bands = append([]band(nil), g.bands...)
+	if g.micro {
+		hmax = math.Inf(1)
+		r := openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
+		p.margin = r
+		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1})
+	}
+	p.gx = grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
+	gy := grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
+	// Counts come from the base grading (floor h0base) at level lev.
+	cx := grading{h0: h0base, alpha: gradeAlpha, hmax: hmax}
+	count := func(phi float64) int {
+		return mult * max(minSegCount, int(math.Ceil(lev*phi)))
+	}
+
+	// Rows: every trace face is a singular line.
+	var sing []float64
+	for k := range 2 {
+		sing = append(sing, g.tr[k].yb, g.tr[k].yt)
+	}
+	p.ys = []float64{p.bands[0].y0}
+	gr := grader{grading: gy}
+	for bi, b := range p.bands {
+		n := count(cx.phi(b.y0, b.y1, sing))
+		row := make([]float64, n+1)
+		gr.nodes(row, b.y0, b.y1, n, sing)
+		p.ys = append(p.ys, row[1:]...)
+		for range n {
+			p.rowBand = append(p.rowBand, bi)
+		}
+	}
+	p.ny = len(p.ys) - 1
+	rowOf := func(y float64) int {
+		for j, v := range p.ys {
+			if v == y {
+				return j
+			}
+		}
+		panic("section: trace face is not a mesh row")
+	}
+
+	// Columns: counts from the nominal offset's pattern(s).
+	var keys []float64
+	if g.same {
+		p.left = 0
+		if s.NominalOffset() > 0 {
+			p.left = 1
+		}
+		keys = p.keys(s.NominalOffset(), nil, g.tr[0].yb, -1)
+		p.xc = make([]int, len(keys)-1)
+		for i := range p.xc {
+			p.xc[i] = count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i)))
+		}
+		// Both trace interiors get the same count, whichever ends up left.
+		m := max(p.xc[1], p.xc[3])
+		p.xc[1], p.xc[3] = m, m
+	} else {
+		p.hi, p.lo = 0, 1
+		if g.tr[1].yb > g.tr[0].yb {
+			p.hi, p.lo = 1, 0
+		}
+		p.jub = rowOf(g.tr[p.hi].yb)
+		p.jlt = rowOf(g.tr[p.lo].yt)
+		p.xc = make([]int, 3)
+		for _, k := range []int{p.hi, p.lo} {
+			keys = p.keys(s.NominalOffset(), keys, g.tr[k].yb, k)
+			for i := range p.xc {
+				p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
+			}
+		}
+		// Symmetric counts about each trace so that C(+δ) = C(−δ) holds exactly
+		// for a symmetric section.
+		m := max(p.xc[0], p.xc[2])
+		p.xc[0], p.xc[2] = m, m
+	}
+	for _, c := range p.xc {
+		p.nx += c
+	}
+	return p
+}
+
+// edgeSing returns the singular ends of segment i of a key list: every key
+// except the two walls.
+func edgeSing(keys []float64, i int) []float64 {
+	var s []float64
+	if i > 0 {
+		s = append(s, keys[i])
+	}
+	if i+1 < len(keys)-1 {
+		s = append(s, keys[i+1])
+	}
+	return s
+}
+
+// walls returns the side walls at offset off. The half extent
+// wmax/2 + √((δ/2)² + (wmax/2)²) bounds both traces and is smooth in δ.
+func (p *meshPlan) walls(off float64) (lo, hi float64) {
+	x0, x1 := p.g.x1+off, p.g.x1
+	xm := (x0 + x1) / 2
+	e := p.wmax/2 + math.Hypot(off/2, p.wmax/2) + p.margin
+	return xm - e, xm + e
+}
+
+// keys returns the key x-positions (walls and trace edges) of the row at
+// height y for offset off, appended to dst[:0]. For a broadside pair k selects
+// the trace whose pattern is wanted; for an edge-coupled pair k is ignored.
+func (p *meshPlan) keys(off float64, dst []float64, y float64, k int) []float64 {
+	g := p.g
+	wl, wr := p.walls(off)
+	dst = append(dst[:0], wl)
+	centre := [2]float64{g.x1 + off, g.x1}
+	if g.same {
+		for _, t := range [2]int{p.left, 1 - p.left} {
+			hw := g.tr[t].halfWidth(y)
+			dst = append(dst, centre[t]-hw, centre[t]+hw)
+		}
+	} else {
+		hw := g.tr[k].halfWidth(y)
+		dst = append(dst, centre[k]-hw, centre[k]+hw)
+	}
+	return append(dst, wr)
+}
+
+// mesh is one realisation of a plan at one offset.
+type mesh struct {
+	p      *meshPlan
+	nx, ny int
+	x, y   []float64 // node coordinates, node (i, j) at i*(ny+1)+j
+	tag    []int8    // tagFree, tagGround, or tagTrace+k
+	er     []float64 // element permittivity, 0 inside a conductor; element (i, j) at i*ny+j
+}
+
+const (
+	tagFree   int8 = -1
+	tagGround int8 = 0
+	tagTrace  int8 = 1 // tagTrace + k for trace k
+)
+
+// realize places the nodes of plan p for offset off.
+func (p *meshPlan) realize(off float64, m *mesh) {
+	g := p.g
+	nx, ny := p.nx, p.ny
+	nn := (nx + 1) * (ny + 1)
+	m.p, m.nx, m.ny = p, nx, ny
+	m.x = resize(m.x, nn)
+	m.y = resize(m.y, nn)
+	m.er = resize(m.er, nx*ny)
+	if cap(m.tag) < nn {
+		m.tag = make([]int8, nn)
+	}
+	m.tag = m.tag[:nn]
+	gr := grader{grading: p.gx}
+	row := make([]float64, nx+1)
+	rowLo := make([]float64, nx+1)
+	rowHi := make([]float64, nx+1)
+	var keys []float64
+	fill := func(dst []float64, y float64, k int) {
+		keys = p.keys(off, keys, y, k)
+		i0 := 0
+		for s, c := range p.xc {
+			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, edgeSing(keys, s))
+			i0 += c
+		}
+	}
+	if !g.same {
+		fill(rowLo, p.ys[p.jlt], p.lo)
+		fill(rowHi, p.ys[p.jub], p.hi)
+	}
+	// Trace column ranges [iL, iR] in the pattern of each row.
+	var colL, colR [2]int
+	if g.same {
+		colL[p.left], colR[p.left] = p.xc[0], p.xc[0]+p.xc[1]
+		r := 1 - p.left
+		colL[r] = p.xc[0] + p.xc[1] + p.xc[2]
+		colR[r] = colL[r] + p.xc[3]
+	} else {
+		for k := range 2 {
+			colL[k], colR[k] = p.xc[0], p.xc[0]+p.xc[1]
+		}
+	}
+	for j, y := range p.ys {
+		switch {
+		case g.same:
+			fill(row, y, -1)
+		case j >= p.jub:
+			if j == p.jub {
+				copy(row, rowHi)
+			} else {
+				fill(row, y, p.hi)
+			}
+		case j <= p.jlt:
+			if j == p.jlt {
+				copy(row, rowLo)
+			} else {
+				fill(row, y, p.lo)
+			}
+		default:
+			t := (y - p.ys[p.jlt]) / (p.ys[p.jub] - p.ys[p.jlt])
+			for i := range row {
+				row[i] = (1-t)*rowLo[i] + t*rowHi[i]
+			}
+		}
+		for i := 0; i <= nx; i++ {
+			n := i*(ny+1) + j
+			m.x[n], m.y[n] = row[i], y
+			tag := tagFree
+			if j == 0 || (j == ny && !g.micro) || (g.micro && (j == ny || i == 0 || i == nx)) {
+				tag = tagGround
+			}
+			for k := range 2 {
+				if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j <= p.jlt) {
+					if y >= g.tr[k].yb && y <= g.tr[k].yt && i >= colL[k] && i <= colR[k] {
+						tag = tagTrace + int8(k)
+					}
+				}
+			}
+			m.tag[n] = tag
+		}
+	}
+	for i := range nx {
+		for j := range ny {
+			b := p.bands[p.rowBand[j]]
+			er := b.er
+			for k := range 2 {
+				if (b.trace == k || b.trace == 2) && g.tr[k].yt > g.tr[k].yb && i >= colL[k] && i < colR[k] {
+					if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
+						er = 0
+					}
+				}
+			}
+			m.er[i*ny+j] = er
+		}
+	}
+}
+
+func resize(s []float64, n int) []float64 {
+	if cap(s) < n {
+		return make([]float64, n)
+	}
+	return s[:n]
+}

@@ -1,0 +1,211 @@
+package section
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"slices"
+	"sync"
+
+	"gonum.org/v1/gonum/interp"
+)
+
+// Point is one solved offset of a sweep.
+type Point struct {
+	Offset float64 // upper minus lower trace centre, m
+	Lines
+	CouplingDB    float64 // 20·log10|S31| at f0 (negative)
+	DirectivityDB float64 // 20·log10(|S31|/|S41|), capped at 200 dB
+	PeakFrequency float64 // frequency of peak coupling, Hz
+	Convergence   Convergence
+}
+
+// Curve is coupling versus offset for one section, with cubic interpolants.
+type Curve struct {
+	Section   string
+	Frequency float64 // f0, Hz
+	Length    float64 // the coupled length used (resolved quarter wave), m
+	ZRef      float64 // port reference impedance, ohm
+	Points    []Point // sorted by Offset
+
+	coupling, directivity, z0, z1 interp.FritschButland
+	lo, hi                        float64
+	// end slopes for linear extrapolation outside the range
+	cSlope [2]float64
+}
+
+// Sweep solves the section at every offset (total offset, upper minus lower
+// trace centre, as in Solve) in parallel and builds the curve. The coupled
+// length is s.Length, or when that is 0 a quarter wavelength at f0 for the
+// mean εeff of the two modes at the nominal offset (solved separately if it
+// is not in offsets).
+func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*Curve, error) {
+	sv, err := newSolver(s, set)
+	if err != nil {
+		return nil, err
+	}
+	offs := slices.Clone(offsets)
+	slices.Sort(offs)
+	offs = slices.Compact(offs)
+	if len(offs) < 2 {
+		return nil, s.fieldErr("offsets", "need at least 2 distinct offsets, have %d", len(offs))
+	}
+	for _, o := range offs {
+		if err := s.checkOffset(o, "offsets"); err != nil {
+			return nil, err
+		}
+	}
+	nom := s.NominalOffset()
+	todo := offs
+	if s.Length == 0 && !slices.Contains(offs, nom) {
+		todo = append(slices.Clone(offs), nom)
+	}
+	sols := make([]*Solution, len(todo))
+	errs := make([]error, len(todo))
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for range min(set.workers(), len(todo)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w := &femWork{}
+			for i := range next {
+				sols[i], errs[i] = sv.solve(ctx, todo[i], w)
+				if errs[i] != nil {
+					cancel()
+				}
+			}
+		}()
+	}
+feed:
+	for i := range todo {
+		select {
+		case next <- i:
+		case <-ctx.Done():
+			break feed
+		}
+	}
+	close(next)
+	wg.Wait()
+	for i, e := range errs {
+		if e != nil {
+			return nil, fmt.Errorf("sweep offset %s: %w", mils(todo[i]), e)
+		}
+		if sols[i] == nil {
+			return nil, ctx.Err()
+		}
+	}
+	length := s.Length
+	if length == 0 {
+		i := slices.Index(todo, nom)
+		length = NewLines(sols[i].C, sols[i].C0).QuarterWave(s.Frequency)
+	}
+	c := &Curve{Section: s.Name, Frequency: s.Frequency, Length: length, ZRef: s.ZRef}
+	for i, o := range offs {
+		c.Points = append(c.Points, newPoint(o, sols[i], s.Frequency, length, s.ZRef))
+	}
+	if err := c.fit(); err != nil {
+		return nil, err
+	}
+	return c, nil
+}
+
+func newPoint(off float64, sol *Solution, f0, length, zref float64) Point {
+	p := Point{Offset: off, Lines: NewLines(sol.C, sol.C0), Convergence: sol.Convergence}
+	p.CouplingDB, p.DirectivityDB = p.Lines.couplingAt(f0, length, zref)
+	p.PeakFrequency = p.Lines.peakFrequency(f0, length, zref)
+	return p
+}
+
+// fit builds the interpolants: Fritsch–Butland monotone piecewise cubics
+// (Fritsch & Butland, SIAM J. Sci. Stat. Comput. 5, 300–304, 1984, through
+// gonum/interp), which keep the curve monotone where the data are and put
+// no overshoot at a symmetric curve's peak.
+func (c *Curve) fit() error {
+	n := len(c.Points)
+	xs := make([]float64, n)
+	ys := make([][4]float64, n)
+	for i, p := range c.Points {
+		xs[i] = p.Offset
+		ys[i] = [4]float64{p.CouplingDB, p.DirectivityDB, p.ZLine[0], p.ZLine[1]}
+	}
+	col := func(k int) []float64 {
+		v := make([]float64, n)
+		for i := range ys {
+			v[i] = ys[i][k]
+		}
+		return v
+	}
+	for k, f := range []*interp.FritschButland{&c.coupling, &c.directivity, &c.z0, &c.z1} {
+		if err := f.Fit(xs, col(k)); err != nil {
+			return fmt.Errorf("section %q: interpolant: %w", c.Section, err)
+		}
+	}
+	c.lo, c.hi = xs[0], xs[n-1]
+	c.cSlope[0] = c.coupling.PredictDerivative(c.lo)
+	c.cSlope[1] = c.coupling.PredictDerivative(c.hi)
+	return nil
+}
+
+// Range returns the offsets covered by the solved points.
+func (c *Curve) Range() (lo, hi float64) { return c.lo, c.hi }
+
+// Coupling returns the coupling in dB at offset (upper minus lower trace
+// centre, m), interpolated by a monotone cubic. Outside Range it extends the
+// end point along the end slope (a caller sampling far tails should widen the
+// sweep instead). It does not allocate and costs O(log n).
+func (c *Curve) Coupling(offset float64) float64 {
+	switch {
+	case offset < c.lo:
+		return c.coupling.Predict(c.lo) + c.cSlope[0]*(offset-c.lo)
+	case offset > c.hi:
+		return c.coupling.Predict(c.hi) + c.cSlope[1]*(offset-c.hi)
+	}
+	return c.coupling.Predict(offset)
+}
+
+// Directivity returns the directivity in dB at offset, clamped to Range.
+func (c *Curve) Directivity(offset float64) float64 {
+	return c.directivity.Predict(math.Max(c.lo, math.Min(c.hi, offset)))
+}
+
+// ZLine returns each line's impedance √(L_ii/C_ii) at offset, clamped to Range.
+func (c *Curve) ZLine(offset float64) [2]float64 {
+	o := math.Max(c.lo, math.Min(c.hi, offset))
+	return [2]float64{c.z0.Predict(o), c.z1.Predict(o)}
+}
+
+// Default offset grid.
+const (
+	defaultHalfSpan = 5 * mil   // at least ±5 mil about the nominal offset
+	defaultStep     = 0.5 * mil // point spacing while the span allows
+	minPoints       = 21
+	maxPoints       = 61
+)
+
+// DefaultOffsets returns an odd-sized grid centred on the nominal offset
+// (s.NominalOffset, which is DesignOffset when both traces are at x = 0)
+// covering at least ±5 mil and at least ±span: 21 points 0.5 mil apart, up to
+// 61 points for wider spans, then wider spacing. For an edge-coupled pair the
+// grid is clipped so that the traces never touch.
+func DefaultOffsets(s *Section, span float64) []float64 {
+	half := math.Max(defaultHalfSpan, math.Abs(span))
+	n := int(math.Ceil(half/defaultStep))*2 + 1
+	n = max(minPoints, min(maxPoints, n))
+	nom := s.NominalOffset()
+	if s.Traces[0].Layer == s.Traces[1].Layer {
+		// keep a tenth of the nominal gap
+		gap := math.Abs(nom) - (s.Traces[0].Width+s.Traces[1].Width)/2
+		if gap > 0 {
+			half = math.Min(half, 0.9*gap)
+		}
+	}
+	out := make([]float64, n)
+	for i := range out {
+		out[i] = nom + half*(2*float64(i)/float64(n-1)-1)
+	}
+	out[n/2] = nom
+	return out
+}
