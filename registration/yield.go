@@ -19,9 +19,25 @@ import (
 // relative precision in the lower tail.
 func NormalCDF(x float64) float64 { return 0.5 * math.Erfc(-x/math.Sqrt2) }
 
-// NormalQuantile returns Φ⁻¹(p), the standard normal quantile, through
-// Φ⁻¹(p) = −√2·erfcinv(2p); it is −Inf at 0 and +Inf at 1.
-func NormalQuantile(p float64) float64 { return -math.Sqrt2 * math.Erfcinv(2*p) }
+// NormalQuantile returns Φ⁻¹(p), the standard normal quantile; it is −Inf at
+// 0 and +Inf at 1. The start Φ⁻¹(p) = −√2·erfcinv(2p) loses digits in the
+// tails (math.Erfcinv works from 1 − 2p), so two Halley steps on Φ(x) − p,
+// with the tail-accurate NormalCDF, restore full precision: for f = Φ − p,
+// f' = φ, f'' = −xφ, the step is e/(1 + x·e/2) with e = (Φ(x) − p)/φ(x).
+func NormalQuantile(p float64) float64 {
+	if p > 0.5 {
+		return -NormalQuantile(1 - p) // 1 − p is exact for p in [0.5, 1] (Sterbenz)
+	}
+	x := -math.Sqrt2 * math.Erfcinv(2*p)
+	if math.IsInf(x, 0) || math.IsNaN(x) {
+		return x
+	}
+	for range 2 {
+		e := (NormalCDF(x) - p) / normalPDF(x)
+		x -= e / (1 + x*e/2)
+	}
+	return x
+}
 
 // normalPDF returns φ(x) = exp(−x²/2)/√(2π).
 func normalPDF(x float64) float64 { return math.Exp(-0.5*x*x) / math.Sqrt(2*math.Pi) }
