@@ -23,7 +23,7 @@ func NormalCDF(x float64) float64 { return 0.5 * math.Erfc(-x/math.Sqrt2) }
 // 0 and +Inf at 1. The start Φ⁻¹(p) = −√2·erfcinv(2p) loses digits in the
 // tails (math.Erfcinv works from 1 − 2p), so two Halley steps on Φ(x) − p,
 // with the tail-accurate NormalCDF, restore full precision: for f = Φ − p,
-// f' = φ, f'' = −xφ, the step is e/(1 + x·e/2) with e = (Φ(x) − p)/φ(x).
+// f' = φ, f” = −xφ, the step is e/(1 + x·e/2) with e = (Φ(x) − p)/φ(x).
 func NormalQuantile(p float64) float64 {
 	if p > 0.5 {
 		return -NormalQuantile(1 - p) // 1 − p is exact for p in [0.5, 1] (Sterbenz)
