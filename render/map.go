@@ -39,6 +39,9 @@ type MapSpec struct {
 	Unit LengthUnit
 	// NoColorBar leaves out the space for a colour bar below the views.
 	NoColorBar bool
+	// Legend, if given, is drawn at the right of the title block, clear of
+	// the panel.
+	Legend []LegendItem
 }
 
 // Map is a canvas laid out for one or more views of a panel, with a title
@@ -120,6 +123,12 @@ func NewMap(spec MapSpec) *Map {
 	if len(spec.Title) > 0 {
 		top += 0.7 * em
 	}
+	var legend box
+	if len(spec.Legend) > 0 {
+		lw, lh := legendSize(probe, spec.Legend)
+		legend = box{float64(w) - margin - lw, margin, float64(w) - margin, margin + lh}
+		top = math.Max(top, legend.y1+0.8*em)
+	}
 	captionTop := top
 	if len(spec.Captions) > 0 {
 		top += 1.9 * em
@@ -143,6 +152,10 @@ func NewMap(spec MapSpec) *Map {
 		}
 		c.text(line, margin, y, 0, 0, ts)
 		y += 1.45 * em * math.Max(ts.size, 1)
+	}
+
+	if len(spec.Legend) > 0 {
+		drawLegendBox(c, legend, spec.Legend)
 	}
 
 	x := left0

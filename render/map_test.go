@@ -65,6 +65,11 @@ func drawDemoMap(width, sites int) *Map {
 			fmt.Sprintf("%d sites, %d in spec", sites, sites-17),
 			"worst site: module[27,25].H2 at (8.1, 11.0) in, offset 10.9 µm",
 		},
+		Legend: []LegendItem{
+			{Label: "coupler site (coloured by offset)", Kind: LegendLine, Color: Diverging.At(0.9), Width: 8},
+			{Label: "ten worst sites", Kind: LegendRing},
+			{Label: "panel border", Kind: LegendLine, Dash: []float64{8, 6}},
+		},
 	})
 	v := m.Views[0]
 	lo, hi := -12e-6, 12e-6
@@ -78,11 +83,6 @@ func drawDemoMap(width, sites int) *Map {
 		ms = append(ms, Marker{At: bars[len(bars)-1-7*k].At, Label: fmt.Sprint(k + 1)})
 	}
 	v.Markers(ms)
-	v.Legend([]LegendItem{
-		{Label: "site (coloured by offset)", Kind: LegendLine, Color: Diverging.At(0.9), Width: 6},
-		{Label: "worst sites", Kind: LegendRing},
-		{Label: "border", Kind: LegendLine, Dash: []float64{8, 6}},
-	}, TopRight)
 	m.ColorBar(Diverging, lo*1e6, hi*1e6, "broadside offset [µm]")
 	return m
 }

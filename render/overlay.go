@@ -363,9 +363,8 @@ func legendSize(c *Canvas, items []LegendItem) (w, h float64) {
 	return 0.7*em + 2.4*em + 0.6*em + tw + 0.7*em, 0.5*em + float64(len(items))*1.5*em + 0.5*em
 }
 
-func legendBox(c *Canvas, area image.Rectangle, items []LegendItem, corner Corner) box {
+func legendBox(c *Canvas, area image.Rectangle, items []LegendItem, corner Corner, inset float64) box {
 	w, h := legendSize(c, items)
-	inset := 0.8 * c.em
 	x0, y0 := float64(area.Max.X)-inset-w, float64(area.Min.Y)+inset
 	if corner == TopLeft || corner == BottomLeft {
 		x0 = float64(area.Min.X) + inset
@@ -380,8 +379,11 @@ func drawLegend(c *Canvas, area image.Rectangle, items []LegendItem, corner Corn
 	if len(items) == 0 {
 		return
 	}
+	drawLegendBox(c, legendBox(c, area, items, corner, 0.8*c.em), items)
+}
+
+func drawLegendBox(c *Canvas, b box, items []LegendItem) {
 	em := c.em
-	b := legendBox(c, area, items, corner)
 	c.fillBox(b, color.NRGBA{255, 255, 255, 240})
 	c.strokeBox(b, LineStyle{Color: Frame})
 	dc := c.dc

@@ -141,7 +141,7 @@ var Qualitative = []color.RGBA{
 	qual(0.72, 0.16, 62),  // orange
 	qual(0.58, 0.11, 165), // teal green
 	qual(0.52, 0.17, 340), // magenta
-	qual(0.82, 0.15, 100), // yellow-olive
+	qual(0.78, 0.15, 112), // olive yellow
 	qual(0.40, 0.12, 28),  // brick
 	qual(0.74, 0.09, 225), // sky
 	qual(0.45, 0.00, 0),   // grey

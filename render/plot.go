@@ -1,0 +1,527 @@
+package render
+
+import (
+	"image"
+	"image/color"
+	"math"
+)
+
+// Plot is an XY chart of one or more panels stacked top to bottom that
+// share one x axis, such as coupling, impedance and directivity against
+// offset. Fill in the fields and call Render. Zero fields take the defaults
+// stated beside them.
+type Plot struct {
+	Title  string
+	XLabel string // quantity and unit, e.g. "offset [mil]"
+	// XMin and XMax fix the x range; when both are zero it covers the data.
+	XMin, XMax float64
+	// Panels are drawn top to bottom; only the bottom one has x labels.
+	Panels []*Axes
+}
+
+// Axes is one panel of a Plot.
+type Axes struct {
+	YLabel string // quantity and unit, e.g. "coupling [dB]"
+	// YMin and YMax fix the y range; when both are zero it covers the data
+	// (bands and horizontal lines included) with a small margin.
+	YMin, YMax float64
+	// Weight is the panel's share of the height relative to the others;
+	// 0 means 1.
+	Weight float64
+
+	Lines  []Line
+	Bands  []Band
+	HLines []HLine
+	VLines []VLine
+	Hists  []Hist
+
+	// Legend is where the legend goes; Auto (the zero value) picks the
+	// corner that covers the fewest data points. Lines, bands and
+	// histograms with a label get an entry.
+	Legend LegendPlace
+}
+
+// LegendPlace says where a plot panel's legend goes.
+type LegendPlace int
+
+const (
+	Auto        LegendPlace = iota // the corner covering the fewest data points
+	NoLegend                       // no legend
+	AtTopRight                     // fixed corners
+	AtTopLeft
+	AtBottomLeft
+	AtBottomRight
+)
+
+// MarkerShape is the symbol drawn at each point of a Line.
+type MarkerShape int
+
+const (
+	NoMarker MarkerShape = iota
+	Circle
+	Square
+	Triangle
+	Diamond
+)
+
+// Line is a data series drawn as a polyline. Points with a NaN coordinate
+// break the line.
+type Line struct {
+	Label  string
+	X, Y   []float64
+	Color  color.Color // nil means the next Qualitative colour
+	Width  float64     // pixels; 0 means about a sixth of the text size
+	Dash   []float64   // in multiples of the line width; nil means solid
+	Marker MarkerShape
+}
+
+// Band is a horizontal strip from Lo to Hi across the whole panel, such as
+// a spec window.
+type Band struct {
+	Lo, Hi float64
+	Label  string
+	Color  color.Color // nil means a pale translucent green
+}
+
+// HLine is a horizontal reference line.
+type HLine struct {
+	Y     float64
+	Label string // written at the right end, above the line
+	Color color.Color
+	Dash  []float64 // pixels; nil means solid
+}
+
+// VLine is a vertical marker line with a label at the top of the panel,
+// such as the offset at which a curve leaves its spec.
+type VLine struct {
+	X     float64
+	Label string
+	Color color.Color // nil means Ink
+	Dash  []float64   // pixels; nil means a short dash
+}
+
+// Hist is a histogram: Counts[k] is the height of the bin from Edges[k] to
+// Edges[k+1].
+type Hist struct {
+	Label  string
+	Edges  []float64
+	Counts []float64
+	Color  color.Color // nil means the next Qualitative colour
+}
+
+// IntegerHist bins whole numbers into unit-wide bins centred on each value
+// from the smallest to the largest, such as good parts per panel.
+func IntegerHist(label string, data []int) Hist {
+	if len(data) == 0 {
+		return Hist{Label: label}
+	}
+	lo, hi := data[0], data[0]
+	for _, v := range data {
+		lo, hi = min(lo, v), max(hi, v)
+	}
+	h := Hist{Label: label, Counts: make([]float64, hi-lo+1)}
+	for k := lo; k <= hi+1; k++ {
+		h.Edges = append(h.Edges, float64(k)-0.5)
+	}
+	for _, v := range data {
+		h.Counts[v-lo]++
+	}
+	return h
+}
+
+// DefaultBand is the fill of a Band without a colour.
+var DefaultBand = color.NRGBA{60, 170, 90, 46}
+
+// plotFrame maps data to pixels inside one panel's plot area.
+type plotFrame struct {
+	area           image.Rectangle
+	x0, x1, y0, y1 float64 // data range
+}
+
+func (f plotFrame) px(x float64) float64 {
+	return float64(f.area.Min.X) + (x-f.x0)/(f.x1-f.x0)*float64(f.area.Dx())
+}
+
+func (f plotFrame) py(y float64) float64 {
+	return float64(f.area.Max.Y) - (y-f.y0)/(f.y1-f.y0)*float64(f.area.Dy())
+}
+
+func finiteRange(lo, hi *float64, vs ...float64) {
+	for _, v := range vs {
+		if !math.IsNaN(v) && !math.IsInf(v, 0) {
+			*lo, *hi = math.Min(*lo, v), math.Max(*hi, v)
+		}
+	}
+}
+
+func (p *Plot) xRange() (float64, float64) {
+	if p.XMin != 0 || p.XMax != 0 {
+		return p.XMin, p.XMax
+	}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, a := range p.Panels {
+		for _, l := range a.Lines {
+			finiteRange(&lo, &hi, l.X...)
+		}
+		for _, h := range a.Hists {
+			finiteRange(&lo, &hi, h.Edges...)
+		}
+		for _, v := range a.VLines {
+			finiteRange(&lo, &hi, v.X)
+		}
+	}
+	return fixRange(lo, hi)
+}
+
+// fixRange turns an empty or degenerate range into a usable one.
+func fixRange(lo, hi float64) (float64, float64) {
+	if lo > hi {
+		return 0, 1
+	}
+	if lo == hi {
+		d := math.Max(math.Abs(lo)*0.1, 1)
+		return lo - d, hi + d
+	}
+	return lo, hi
+}
+
+func (a *Axes) yRange(x0, x1 float64) (float64, float64) {
+	if a.YMin != 0 || a.YMax != 0 {
+		return a.YMin, a.YMax
+	}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, l := range a.Lines {
+		for k := range l.Y {
+			if k < len(l.X) && l.X[k] >= x0 && l.X[k] <= x1 {
+				finiteRange(&lo, &hi, l.Y[k])
+			}
+		}
+	}
+	for _, b := range a.Bands {
+		finiteRange(&lo, &hi, b.Lo, b.Hi)
+	}
+	for _, h := range a.HLines {
+		finiteRange(&lo, &hi, h.Y)
+	}
+	for _, h := range a.Hists {
+		lo = math.Min(lo, 0)
+		finiteRange(&lo, &hi, h.Counts...)
+	}
+	lo, hi = fixRange(lo, hi)
+	pad := 0.06 * (hi - lo)
+	if len(a.Hists) > 0 && lo == 0 {
+		return 0, hi + pad // histograms stand on zero
+	}
+	return lo - pad, hi + pad
+}
+
+// Render draws the plot on a width x height canvas. Text scales with the
+// smaller of the width and 1.4 times the height.
+func (p *Plot) Render(width, height int) *Canvas {
+	em := math.Max(10, math.Min(float64(width), 1.4*float64(height))/64)
+	c := newCanvas(width, height, em)
+	margin := marginEm * em
+	ts := textStyle{size: tickTextEm}
+
+	x0, x1 := p.xRange()
+	top := margin
+	if p.Title != "" {
+		c.text(p.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		top += 2.2 * em
+	} else {
+		top += 0.5 * em
+	}
+	bottom := float64(height) - margin - 3.4*em
+	// Widest y tick label over all panels fixes the left edge.
+	type prepared struct {
+		a      *Axes
+		y0, y1 float64
+		ticks  []float64
+		step   float64
+	}
+	var preps []prepared
+	var weights float64
+	for _, a := range p.Panels {
+		weights += weightOf(a)
+	}
+	gap := 1.3 * em
+	avail := bottom - top - gap*float64(max(len(p.Panels)-1, 0))
+	labelW := 0.0
+	for _, a := range p.Panels {
+		y0, y1 := a.yRange(x0, x1)
+		h := avail * weightOf(a) / weights
+		ticks, step := Ticks(y0, y1, clampInt(int(h/(2.2*em)), 2, 10))
+		for _, t := range ticks {
+			labelW = math.Max(labelW, c.measure(TickLabel(t, step), ts))
+		}
+		preps = append(preps, prepared{a, y0, y1, ticks, step})
+	}
+	left := margin + 1.9*em + labelW + tickEm*em + 0.4*em
+	right := float64(width) - 1.6*em
+	xticks, xstep := Ticks(x0, x1, clampInt(int((right-left)/(4.5*em)), 2, 12))
+
+	y := top
+	colour := 0
+	for k, pr := range preps {
+		h := avail * weightOf(pr.a) / weights
+		f := plotFrame{image.Rect(int(left), int(y), int(right), int(y+h)), x0, x1, pr.y0, pr.y1}
+		c.drawAxesPanel(pr.a, f, pr.ticks, pr.step, xticks, xstep, k == len(preps)-1, &colour)
+		y += h + gap
+	}
+	if p.XLabel != "" {
+		c.text(p.XLabel, (left+right)/2, float64(height)-margin-1.0*em, 0.5, 0.5, textStyle{})
+	}
+	return c
+}
+
+func weightOf(a *Axes) float64 {
+	if a.Weight > 0 {
+		return a.Weight
+	}
+	return 1
+}
+
+// drawAxesPanel draws one panel: grid, bands, histograms, lines, markers,
+// vertical markers, frame, ticks, labels and legend.
+func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64, xt []float64, xstep float64, xLabels bool, colour *int) {
+	em := c.em
+	dc := c.dc
+	ar := f.area
+	fb := box{float64(ar.Min.X), float64(ar.Min.Y), float64(ar.Max.X), float64(ar.Max.Y)}
+	c.fillBox(fb, color.RGBA{255, 255, 255, 255})
+	inX := func(x float64) bool { return x >= f.x0 && x <= f.x1 }
+	inY := func(y float64) bool { return y >= f.y0 && y <= f.y1 }
+
+	// Grid.
+	c.applyLine(LineStyle{Color: GridLine, Width: c.thin()})
+	for _, t := range xt {
+		dc.DrawLine(f.px(t), fb.y0, f.px(t), fb.y1)
+	}
+	for _, t := range yt {
+		dc.DrawLine(fb.x0, f.py(t), fb.x1, f.py(t))
+	}
+	dc.Stroke()
+
+	dc.DrawRectangle(fb.x0, fb.y0, fb.x1-fb.x0, fb.y1-fb.y0)
+	dc.Clip()
+	var legend []LegendItem
+	for _, b := range a.Bands {
+		col := b.Color
+		if col == nil {
+			col = DefaultBand
+		}
+		ylo, yhi := f.py(math.Max(b.Lo, f.y0)), f.py(math.Min(b.Hi, f.y1))
+		c.fillBox(box{fb.x0, yhi, fb.x1, ylo}, col)
+		if b.Label != "" {
+			legend = append(legend, LegendItem{Label: b.Label, Kind: LegendSwatch, Color: col})
+		}
+	}
+	for _, h := range a.HLines {
+		if !inY(h.Y) {
+			continue
+		}
+		c.applyLine(LineStyle{Color: orInk(h.Color), Dash: h.Dash})
+		dc.DrawLine(fb.x0, f.py(h.Y), fb.x1, f.py(h.Y))
+		dc.Stroke()
+		dc.SetDash()
+	}
+	var histPts [][2]float64
+	for _, h := range a.Hists {
+		col := h.Color
+		if col == nil {
+			col = Series(*colour)
+			*colour++
+		}
+		for k := 0; k+1 < len(h.Edges) && k < len(h.Counts); k++ {
+			for i := 0; i <= 4; i++ {
+				x := f.px(h.Edges[k] + (h.Edges[k+1]-h.Edges[k])*float64(i)/4)
+				for j := 0; j <= 4; j++ {
+					histPts = append(histPts, [2]float64{x, f.py(h.Counts[k] * float64(j) / 4)})
+				}
+			}
+			dc.DrawRectangle(f.px(h.Edges[k]), f.py(h.Counts[k]), f.px(h.Edges[k+1])-f.px(h.Edges[k]), f.py(0)-f.py(h.Counts[k]))
+		}
+		dc.SetColor(col)
+		dc.FillPreserve()
+		c.applyLine(LineStyle{Color: Background, Width: c.thin()})
+		dc.Stroke()
+		if h.Label != "" {
+			legend = append(legend, LegendItem{Label: h.Label, Kind: LegendSwatch, Color: col})
+		}
+	}
+	pts := histPts // every drawn point, for legend placement
+	for _, l := range a.Lines {
+		col := l.Color
+		if col == nil {
+			col = Series(*colour)
+			*colour++
+		}
+		w := l.Width
+		if w == 0 {
+			w = math.Max(1.5, em/6)
+		}
+		var dash []float64
+		for _, d := range l.Dash {
+			dash = append(dash, d*w)
+		}
+		pen := false
+		for k := 0; k < len(l.X) && k < len(l.Y); k++ {
+			if math.IsNaN(l.X[k]) || math.IsNaN(l.Y[k]) {
+				pen = false
+				continue
+			}
+			x, y := f.px(l.X[k]), f.py(l.Y[k])
+			pts = append(pts, [2]float64{x, y})
+			if pen {
+				dc.LineTo(x, y)
+			} else {
+				dc.MoveTo(x, y)
+				pen = true
+			}
+		}
+		c.applyLine(LineStyle{Color: col, Width: w, Dash: dash})
+		dc.SetLineCapRound()
+		dc.Stroke()
+		dc.SetDash()
+		if l.Marker != NoMarker {
+			r := math.Max(2.5, 0.28*em)
+			for k := 0; k < len(l.X) && k < len(l.Y); k++ {
+				if inX(l.X[k]) && inY(l.Y[k]) {
+					c.marker(l.Marker, f.px(l.X[k]), f.py(l.Y[k]), r)
+				}
+			}
+			dc.SetColor(col)
+			dc.FillPreserve()
+			c.applyLine(LineStyle{Color: Background, Width: math.Max(1, em/14)})
+			dc.Stroke()
+		}
+		if l.Label != "" {
+			legend = append(legend, LegendItem{Label: l.Label, Kind: LegendLine, Color: col, Dash: dash, Width: w})
+		}
+	}
+	// Vertical markers: labels at the top, moved down a row when they would
+	// overlap a label already placed.
+	var placed []box
+	for _, v := range a.VLines {
+		if !inX(v.X) {
+			continue
+		}
+		dash := v.Dash
+		if dash == nil {
+			dash = []float64{0.5 * em, 0.3 * em}
+		}
+		x := f.px(v.X)
+		c.applyLine(LineStyle{Color: orInk(v.Color), Width: 1.5 * c.thin(), Dash: dash})
+		dc.DrawLine(x, fb.y0, x, fb.y1)
+		dc.Stroke()
+		dc.SetDash()
+		if v.Label == "" {
+			continue
+		}
+		lts := textStyle{size: 0.8, halo: true, color: orInk(v.Color)}
+		ax := 0.0
+		lx := x + 0.3*em
+		if c.measure(v.Label, lts)+lx > fb.x1-0.2*em {
+			ax, lx = 1, x-0.3*em
+		}
+		ly := fb.y0 + 0.5*em
+		b := c.textBox(v.Label, lx, ly, ax, 0, lts)
+		for again := true; again; {
+			again = false
+			for _, o := range placed {
+				if b.overlaps(o) {
+					ly += 1.3 * em
+					b = c.textBox(v.Label, lx, ly, ax, 0, lts)
+					again = true
+				}
+			}
+		}
+		placed = append(placed, b)
+		c.text(v.Label, lx, ly, ax, 0, lts)
+		// Keep the legend off the label: count its box as many points.
+		for i := 0; i <= 4; i++ {
+			for j := 0; j <= 2; j++ {
+				pts = append(pts, [2]float64{b.x0 + (b.x1-b.x0)*float64(i)/4, b.y0 + (b.y1-b.y0)*float64(j)/2})
+			}
+		}
+	}
+	for _, h := range a.HLines {
+		if h.Label != "" && inY(h.Y) {
+			c.text(h.Label, fb.x1-0.4*em, f.py(h.Y)-0.3*em, 1, 1, textStyle{size: 0.8, halo: true, color: orInk(h.Color)})
+		}
+	}
+	dc.ResetClip()
+
+	// Frame, ticks and labels.
+	c.strokeBox(fb, LineStyle{Color: Frame})
+	ts := textStyle{size: tickTextEm}
+	tl := tickEm * em
+	c.applyLine(LineStyle{Color: Frame})
+	for _, t := range xt {
+		dc.DrawLine(f.px(t), fb.y1, f.px(t), fb.y1+tl)
+	}
+	for _, t := range yt {
+		dc.DrawLine(fb.x0-tl, f.py(t), fb.x0, f.py(t))
+	}
+	dc.Stroke()
+	if xLabels {
+		for _, t := range xt {
+			c.text(TickLabel(t, xstep), f.px(t), fb.y1+tl+0.45*em, 0.5, 0, ts)
+		}
+	}
+	for _, t := range yt {
+		c.text(TickLabel(t, ystep), fb.x0-tl-0.35*em, f.py(t), 1, 0.5, ts)
+	}
+	if a.YLabel != "" {
+		c.textUp(a.YLabel, float64(marginEm*em)+0.6*em, (fb.y0+fb.y1)/2, textStyle{})
+	}
+	if len(legend) > 0 && a.Legend != NoLegend {
+		corner := TopRight
+		switch a.Legend {
+		case Auto:
+			corner = c.quietCorner(ar, legend, pts)
+		case AtTopLeft:
+			corner = TopLeft
+		case AtBottomLeft:
+			corner = BottomLeft
+		case AtBottomRight:
+			corner = BottomRight
+		}
+		drawLegend(c, ar, legend, corner)
+	}
+}
+
+// quietCorner returns the corner whose legend box covers the fewest points
+// (top right on a tie, then top left, bottom left, bottom right).
+func (c *Canvas) quietCorner(area image.Rectangle, items []LegendItem, pts [][2]float64) Corner {
+	best, bestN := TopRight, math.MaxInt
+	for _, k := range []Corner{TopRight, TopLeft, BottomLeft, BottomRight} {
+		b := legendBox(c, area, items, k, 0.8*c.em).grow(0.3 * c.em)
+		n := 0
+		for _, p := range pts {
+			if p[0] >= b.x0 && p[0] <= b.x1 && p[1] >= b.y0 && p[1] <= b.y1 {
+				n++
+			}
+		}
+		if n < bestN {
+			best, bestN = k, n
+		}
+	}
+	return best
+}
+
+// marker adds a marker shape of radius r at (x, y) to the current path.
+func (c *Canvas) marker(m MarkerShape, x, y, r float64) {
+	dc := c.dc
+	switch m {
+	case Circle:
+		dc.DrawCircle(x, y, r)
+	case Square:
+		dc.DrawRectangle(x-0.85*r, y-0.85*r, 1.7*r, 1.7*r)
+	case Triangle:
+		dc.DrawRegularPolygon(3, x, y, 1.2*r, 0)
+	case Diamond:
+		dc.DrawRegularPolygon(4, x, y, 1.15*r, 0)
+	}
+	dc.NewSubPath()
+}
