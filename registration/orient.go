@@ -52,7 +52,7 @@ func (y *Yield) orientYield(sites []int, turned bool) OrientYield {
 		if turned {
 			row = r.Row(s.Pos, s.U.Perp())
 		}
-		p := siteProb(r, &row, s.Nominal).Prob(s.Allowed)
+		p := r.Prob(&row, s.Nominal).Prob(s.Allowed)
 		sum += p
 		oy.Worst = math.Min(oy.Worst, p)
 		st := r.Stats(row)

@@ -248,10 +248,14 @@ func (y *Yield) Stats(i int) Stats { return y.Pairs[y.Pair[i]].Stats(y.Rows[i]) 
 
 // Prob returns the closed-form distribution of site i's across offset.
 func (y *Yield) Prob(i int) SiteProb {
-	return siteProb(y.Pairs[y.Pair[i]], &y.Rows[i], y.Sites[i].Nominal)
+	return y.Pairs[y.Pair[i]].Prob(&y.Rows[i], y.Sites[i].Nominal)
 }
 
-func siteProb(r *Relative, row *Row, nominal float64) SiteProb {
+// Prob returns the closed-form distribution of the across offset of row, with
+// the design offset nominal added to its mean: the normal terms, the per-site
+// sigma and all uniform terms but the widest make up the normal part, the
+// widest uniform term is kept exact.
+func (r *Relative) Prob(row *Row, nominal float64) SiteProb {
 	st := r.Stats(*row)
 	v := st.SDAcross * st.SDAcross
 	// Find the widest uniform contribution; the rest stay in the normal part.
@@ -266,7 +270,7 @@ func siteProb(r *Relative, row *Row, nominal float64) SiteProb {
 			}
 		}
 	}
-	v -= wmax * wmax / 3
+	v -= wmax * wmax / 3 // its variance is in Stats; take it out of the normal part
 	return SiteProb{Mean: st.MeanAcross + nominal, SD: math.Sqrt(math.Max(v, 0)), Uniform: wmax}
 }
 
