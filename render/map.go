@@ -216,8 +216,9 @@ func (v *View) drawAxes(xt []float64, xstep float64, yt []float64, ystep float64
 
 // ColorBar draws the colour scale below the views: the palette from lo
 // (left end) to hi (right end), ticks at round values in between, and label
-// (the quantity and its unit, e.g. "drift [dB]") beneath. It does nothing if
-// the map was made with NoColorBar.
+// (the quantity and its unit, e.g. "drift [dB]") beneath. lo may exceed hi,
+// to run a palette backwards (for a yield, where low values are the bad
+// ones). It does nothing if the map was made with NoColorBar.
 func (m *Map) ColorBar(p *Palette, lo, hi float64, label string) {
 	if m.bar.Empty() {
 		return
@@ -235,13 +236,13 @@ func (m *Map) ColorBar(p *Palette, lo, hi float64, label string) {
 	fb := box{float64(b.Min.X), float64(b.Min.Y), float64(b.Max.X), float64(b.Max.Y)}
 	c.strokeBox(fb.grow(0.5*c.thin()), LineStyle{Color: Frame})
 	em := c.em
-	ticks, step := Ticks(lo, hi, clampInt(int(float64(bw)/(5*em)), 2, 11))
+	ticks, step := Ticks(math.Min(lo, hi), math.Max(lo, hi), clampInt(int(float64(bw)/(5*em)), 2, 11))
 	tl := tickEm * em
 	ts := textStyle{size: tickTextEm}
 	c.applyLine(LineStyle{Color: Frame})
 	for _, t := range ticks {
 		x := fb.x0 + 0.5
-		if hi > lo {
+		if hi != lo {
 			x += (t - lo) / (hi - lo) * float64(bw-1)
 		}
 		c.dc.DrawLine(x, fb.y1, x, fb.y1+tl)
@@ -438,5 +439,5 @@ func (v *View) Polyline(pts []Point, s LineStyle) {
 // reads over any background.
 func (v *View) Label(at Point, text string) {
 	x, y := v.Pixel(at)
-	v.c.text(text, x, y, 0.5, 0.5, textStyle{size: tickTextEm, halo: true})
+	v.c.text(text, x, y, 0.5, 0.5, textStyle{size: 0.9, halo: true})
 }

@@ -126,6 +126,11 @@ func TestColorBarEnds(t *testing.T) {
 		if got := m.img.RGBAAt(r.Max.X-1, mid); got != p.Map(7, -3, 7) {
 			t.Errorf("%s: right end %v, want %v", p.Name, got, p.At(1))
 		}
+		// The tick for 0 sits 3/10 of the way along the bar.
+		x := r.Min.X + int(0.5+0.3*float64(r.Dx()-1))
+		if !inkNear(m.img, x, r.Max.Y+int(0.2*tickEm*m.em)+1, 1) {
+			t.Errorf("%s: no tick at value 0 (x=%d)", p.Name, x)
+		}
 	}
 }
 

@@ -155,44 +155,61 @@ func (v *View) Markers(ms []Marker) {
 	dc.SetLineWidth(lw)
 	dc.Stroke()
 
-	ts := textStyle{size: 0.9, bold: true, halo: true}
-	d := r + 0.25*em
+	ts := markerText
+	for k, p := range v.placeMarkerLabels(ms, taken) {
+		c.text(ms[k].Label, p.x, p.y, p.ax, p.ay, ts)
+	}
+}
+
+var markerText = textStyle{size: 0.9, bold: true, halo: true}
+
+// labelPlace is where a marker label goes: its anchor point and alignment,
+// and the box it covers.
+type labelPlace struct {
+	x, y, ax, ay float64
+	box          box
+}
+
+// placeMarkerLabels chooses, for each marker, the first of eight places
+// around its ring that lies inside the view and clear of taken (the rings)
+// and of the labels placed before it; failing that, the first place.
+func (v *View) placeMarkerLabels(ms []Marker, taken []box) []labelPlace {
+	c := v.c
+	em := c.em
+	d := 0.6*em + 0.25*em
 	dirs := [8][2]float64{{1, -1}, {1, 0}, {1, 1}, {0, 1}, {-1, 1}, {-1, 0}, {-1, -1}, {0, -1}}
-	for _, m := range ms {
+	places := make([]labelPlace, len(ms))
+	taken = append([]box(nil), taken...)
+	for k, m := range ms {
 		if m.Label == "" {
 			continue
 		}
 		x, y := v.Pixel(m.At)
-		var best box
-		var bx, by, bax, bay float64
-		found := false
-		for k, dir := range dirs {
+		for n, dir := range dirs {
 			// Anchor the label's near corner or edge at distance d.
 			ax, ay := (1-dir[0])/2, (1-dir[1])/2
 			lx, ly := x+dir[0]*d*0.75, y+dir[1]*d*0.75
 			if dir[0] == 0 || dir[1] == 0 {
 				lx, ly = x+dir[0]*d, y+dir[1]*d
 			}
-			b := c.textBox(m.Label, lx, ly, ax, ay, ts)
-			if k == 0 {
-				best, bx, by, bax, bay = b, lx, ly, ax, ay
+			p := labelPlace{lx, ly, ax, ay, c.textBox(m.Label, lx, ly, ax, ay, markerText)}
+			if n == 0 {
+				places[k] = p
 			}
-			ok := b.inside(v.area)
+			ok := p.box.inside(v.area)
 			for _, t := range taken {
-				if ok && b.overlaps(t) {
+				if ok && p.box.overlaps(t) {
 					ok = false
 				}
 			}
 			if ok {
-				best, bx, by, bax, bay = b, lx, ly, ax, ay
-				found = true
+				places[k] = p
 				break
 			}
 		}
-		_ = found
-		taken = append(taken, best)
-		c.text(m.Label, bx, by, bax, bay, ts)
+		taken = append(taken, places[k].box)
 	}
+	return places
 }
 
 // Arrow is a displacement drawn from a point, such as a measured target
@@ -225,16 +242,29 @@ func (s ArrowStyle) norm(c *Canvas) ArrowStyle {
 }
 
 // Arrows draws each displacement as an arrow from its tail, scaled by the
-// style's exaggeration. Arrows shorter than a pixel are left out.
+// style's exaggeration. Arrows shorter than a pixel are left out, and
+// arrows are cut at the edge of the view (losing their head if it falls
+// outside).
 func (v *View) Arrows(as []Arrow, s ArrowStyle) {
 	s = s.norm(v.c)
 	dc := v.c.dc
 	var heads [][3][2]float64
-	for _, a := range as {
-		x, y := v.Pixel(a.At)
-		dx := v.PixelLen(a.D.X * s.Exaggeration)
-		dy := -v.PixelLen(a.D.Y * s.Exaggeration)
-		if h, ok := arrowPath(v.c, x, y, dx, dy, s.Width); ok {
+	a := v.area
+	clip := box{float64(a.Min.X), float64(a.Min.Y), float64(a.Max.X), float64(a.Max.Y)}
+	for _, ar := range as {
+		x, y := v.Pixel(ar.At)
+		dx := v.PixelLen(ar.D.X * s.Exaggeration)
+		dy := -v.PixelLen(ar.D.Y * s.Exaggeration)
+		t0, t1, ok := clipSegment(clip, x, y, dx, dy)
+		if !ok {
+			continue
+		}
+		if t1 < 1 { // head outside: draw the visible part of the shaft only
+			dc.MoveTo(x+t0*dx, y+t0*dy)
+			dc.LineTo(x+t1*dx, y+t1*dy)
+			continue
+		}
+		if h, ok := arrowPath(v.c, x+t0*dx, y+t0*dy, (1-t0)*dx, (1-t0)*dy, s.Width); ok {
 			heads = append(heads, h)
 		}
 	}
@@ -248,6 +278,46 @@ func (v *View) Arrows(as []Arrow, s ArrowStyle) {
 	}
 	dc.SetColor(s.Color)
 	dc.Fill()
+}
+
+// clipSegment returns the parameter interval [t0, t1] of the segment
+// (x, y) + t·(dx, dy), 0 <= t <= 1, that lies inside b (Liang and Barsky,
+// "A new concept and method for line clipping", ACM TOG 3(1), 1984).
+func clipSegment(b box, x, y, dx, dy float64) (t0, t1 float64, ok bool) {
+	t0, t1 = 0, 1
+	for _, e := range [4][2]float64{{-dx, x - b.x0}, {dx, b.x1 - x}, {-dy, y - b.y0}, {dy, b.y1 - y}} {
+		p, q := e[0], e[1]
+		if p == 0 {
+			if q < 0 {
+				return 0, 0, false
+			}
+			continue
+		}
+		r := q / p
+		if p < 0 {
+			t0 = math.Max(t0, r)
+		} else {
+			t1 = math.Min(t1, r)
+		}
+	}
+	return t0, t1, t0 < t1
+}
+
+// ArrowExaggeration returns a round exaggeration factor (1, 2 or 5 times a
+// power of ten) at which the largest displacement maxD, in metres, is drawn
+// at most a tenth of the view's shorter side long.
+func (v *View) ArrowExaggeration(maxD float64) float64 {
+	if !(maxD > 0) {
+		return 1
+	}
+	f := math.Min(v.ext.Dx(), v.ext.Dy()) / 10 / maxD
+	mag := math.Pow(10, math.Floor(math.Log10(f)))
+	for _, m := range []float64{5, 2, 1} {
+		if m*mag <= f {
+			return m * mag
+		}
+	}
+	return mag
 }
 
 // arrowPath adds the shaft of an arrow from (x, y) by (dx, dy) pixels to the
@@ -314,7 +384,8 @@ func (v *View) Contour(g *Grid, level float64, s LineStyle, label string) {
 	}
 	if label != "" && longest >= 0 {
 		l := lines[longest]
-		v.Label(l[len(l)/2], label)
+		x, y := v.Pixel(l[len(l)/2])
+		v.c.text(label, x, y, 0.5, 0.5, textStyle{size: 0.9, bold: true, halo: true})
 	}
 }
 

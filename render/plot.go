@@ -45,9 +45,9 @@ type Axes struct {
 type LegendPlace int
 
 const (
-	Auto        LegendPlace = iota // the corner covering the fewest data points
-	NoLegend                       // no legend
-	AtTopRight                     // fixed corners
+	Auto       LegendPlace = iota // the corner covering the fewest data points
+	NoLegend                      // no legend
+	AtTopRight                    // fixed corners
 	AtTopLeft
 	AtBottomLeft
 	AtBottomRight
