@@ -187,6 +187,15 @@ type LineStyle struct {
 	Dash  []float64   // dash and gap lengths in pixels; nil means solid
 }
 
+// TextSize returns the body text size in pixels, the unit of the layout:
+// use it to size dots and markers so that they scale with the image.
+func (c *Canvas) TextSize() float64 { return c.em }
+
+// Thin returns the width in pixels of the default thin line (a LineStyle
+// with zero Width); multiples of it give heavier lines that scale with the
+// image.
+func (c *Canvas) Thin() float64 { return c.thin() }
+
 // thin is the default line width: about a thousandth of the image width,
 // at least one pixel.
 func (c *Canvas) thin() float64 { return math.Max(1, math.Round(c.em/12*2)/2) }

@@ -338,7 +338,7 @@ func (v *View) Field(r Rect, f func(x, y float64) float64, p *Palette, lo, hi fl
 		return
 	}
 	img := v.c.img
-	scale := lutScale(lo, hi)
+	scale, base := lutMap(lo, hi)
 	nan := p.NaN
 	for j := j0; j <= j1; j++ {
 		y := v.PixelCenter(i0, j).Y
@@ -348,7 +348,7 @@ func (v *View) Field(r Rect, f func(x, y float64) float64, p *Palette, lo, hi fl
 			val := f(x, y)
 			col := nan
 			if val == val {
-				col = p.lut[lutIndex((val-lo)*scale)]
+				col = p.lut[lutIndex((val-lo)*scale+base)]
 			}
 			q := pix[4*k : 4*k+4 : 4*k+4]
 			q[0], q[1], q[2], q[3] = col.R, col.G, col.B, 255
@@ -371,7 +371,7 @@ func (v *View) FieldGrid(g *Grid, p *Palette, lo, hi float64) {
 		ci[k], cf[k] = cell(x, g.Bounds.Min.X, g.Bounds.Max.X, g.NX)
 	}
 	img := v.c.img
-	scale := lutScale(lo, hi)
+	scale, base := lutMap(lo, hi)
 	for j := j0; j <= j1; j++ {
 		gj, fy := cell(v.PixelCenter(i0, j).Y, g.Bounds.Min.Y, g.Bounds.Max.Y, g.NY)
 		off := img.PixOffset(i0, j)
@@ -380,7 +380,7 @@ func (v *View) FieldGrid(g *Grid, p *Palette, lo, hi float64) {
 			val := g.bilinear(ci[k], cf[k], gj, fy)
 			col := p.NaN
 			if val == val {
-				col = p.lut[lutIndex((val-lo)*scale)]
+				col = p.lut[lutIndex((val-lo)*scale+base)]
 			}
 			q := pix[4*k : 4*k+4 : 4*k+4]
 			q[0], q[1], q[2], q[3] = col.R, col.G, col.B, 255

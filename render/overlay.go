@@ -104,22 +104,17 @@ func (v *View) Bars(bars []Bar, s BarStyle) {
 // (BenchmarkMap10k: 10,000 bars in one path took about 150 ms).
 const barBatch = 32
 
-// Dots draws a filled circle of radius r pixels at each point, edged with
-// edge (pass LineStyle{Width: -1} for no edge).
-func (v *View) Dots(pts []Point, r float64, fill color.Color, edge LineStyle) {
+// Dots draws a filled circle of radius r pixels at each point, such as
+// measured targets.
+func (v *View) Dots(pts []Point, r float64, fill color.Color) {
 	dc := v.c.dc
 	for _, p := range pts {
 		x, y := v.Pixel(p)
 		dc.DrawCircle(x, y, r)
+		dc.NewSubPath()
 	}
 	dc.SetColor(fill)
-	if edge.Width < 0 {
-		dc.Fill()
-		return
-	}
-	dc.FillPreserve()
-	v.c.applyLine(edge)
-	dc.Stroke()
+	dc.Fill()
 }
 
 // Marker is a numbered ring around a site, such as one of the worst sites.

@@ -42,7 +42,7 @@ func TestFitMap(t *testing.T) {
 				res = append(res, Arrow{At: p, D: e})
 			}
 		}
-		v.Dots(pts, 0.25*m.em, Ink, LineStyle{Width: -1})
+		v.Dots(pts, 0.25*m.TextSize(), Ink)
 		v.Arrows(meas, ArrowStyle{Color: Series(0), Exaggeration: exag})
 		v.Arrows(res, ArrowStyle{Color: Series(1), Exaggeration: exag})
 		v.Markers([]Marker{{At: pts[7], Label: "T8"}})

@@ -49,23 +49,26 @@ func (p *Palette) At(t float64) color.RGBA {
 }
 
 // Map returns the colour of v on a scale whose ends lo and hi take the
-// palette's first and last colours. Values beyond the ends are clamped;
-// NaN gives p.NaN. If hi == lo every number maps to the middle colour.
+// palette's first and last colours (hi may be below lo, reversing the
+// palette). Values beyond the ends are clamped; NaN gives p.NaN. If
+// hi == lo every number maps to the middle colour.
 func (p *Palette) Map(v, lo, hi float64) color.RGBA {
 	if v != v {
 		return p.NaN
 	}
-	return p.lut[lutIndex((v-lo)*lutScale(lo, hi))]
+	scale, base := lutMap(lo, hi)
+	return p.lut[lutIndex((v-lo)*scale+base)]
 }
 
-// lutScale is the factor from a value's distance above lo to a fractional
-// table index; the raster loops use the same expression as Map so that a
-// pixel's colour is exactly Map of its value.
-func lutScale(lo, hi float64) float64 {
+// lutMap returns the factor from a value's distance above lo to a
+// fractional table index, and the index of lo itself (the middle entry when
+// the range is empty). The raster loops use the same expression as Map, so
+// that a pixel's colour is exactly Map of its value.
+func lutMap(lo, hi float64) (scale, base float64) {
 	if hi == lo {
-		return 0
+		return 0, (lutSize - 1) / 2
 	}
-	return (lutSize - 1) / (hi - lo)
+	return (lutSize - 1) / (hi - lo), 0
 }
 
 // lutIndex rounds a fractional table index to the nearest entry, clamping.

@@ -166,6 +166,12 @@ func TestPaletteAt(t *testing.T) {
 	if p.Map(5, 5, 10) != p.At(0) || p.Map(10, 5, 10) != p.At(1) {
 		t.Error("Map ends differ from At ends")
 	}
+	if p.Map(3, 3, 3) != p.At(0.5) {
+		t.Error("empty range does not map to the middle colour")
+	}
+	if p.Map(100, 100, 90) != p.At(0) || p.Map(90, 100, 90) != p.At(1) || p.Map(95, 100, 90) != p.At(0.5) {
+		t.Error("reversed range does not reverse the palette")
+	}
 	if lo, hi := Symmetric(-2, 5); lo != -5 || hi != 5 {
 		t.Errorf("Symmetric(-2,5) = %g,%g", lo, hi)
 	}
