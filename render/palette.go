@@ -66,7 +66,7 @@ func (p *Palette) Map(v, lo, hi float64) color.RGBA {
 // that a pixel's colour is exactly Map of its value.
 func lutMap(lo, hi float64) (scale, base float64) {
 	if hi == lo {
-		return 0, (lutSize - 1) / 2
+		return 0, (lutSize - 1) / 2.0
 	}
 	return (lutSize - 1) / (hi - lo), 0
 }
