@@ -1,0 +1,118 @@
+package registration
+
+import (
+	"errors"
+	"math"
+	"strings"
+	"testing"
+
+	"github.com/regdrift/regdrift/panel"
+)
+
+func TestReadTargets(t *testing.T) {
+	const mil = 25.4e-6
+	tests := []struct {
+		name, csv string
+		want      Target // the last target read
+		n         int
+	}{
+		{"displacements", "panel,layer,target,x [in],y [in],dx [mil],dy [mil]\nP1,L3,T1,-7.5,10.5,0.25,-1.5\nP1,L3,T2,7.5,10.5,0.3,-1.4\n",
+			Target{Panel: "P1", Layer: "L3", Name: "T2", Pos: vec(7.5*in, 10.5*in), D: vec(0.3*mil, -1.4*mil), Row: 3}, 2},
+		{"measured positions, other units, comments, extra column", "# lot 42\npanel, layer, target, x [mm], y [mm], x_meas [mm], y_meas [mm], note\n2,L3-L4,A,100,-50,100.01,-50.02,ok\n",
+			Target{Panel: "2", Layer: "L3-L4", Name: "A", Pos: vec(0.1, -0.05), D: vec(0.01*mm, -0.02*mm), Row: 3}, 1},
+		{"micro sign, byte order mark", "\ufeffpanel,layer,target,x [µm],y [um],dx [µm],dy [um]\nP,L1,T,1,2,3,4\n",
+			Target{Panel: "P", Layer: "L1", Name: "T", Pos: vec(1*um, 2*um), D: vec(3*um, 4*um), Row: 2}, 1},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			ts, err := ReadTargets(strings.NewReader(tt.csv), "t.csv")
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(ts) != tt.n {
+				t.Fatalf("%d targets, want %d", len(ts), tt.n)
+			}
+			got := ts[len(ts)-1]
+			if got.Panel != tt.want.Panel || got.Layer != tt.want.Layer || got.Name != tt.want.Name || got.Row != tt.want.Row ||
+				!near(got.Pos.X, tt.want.Pos.X) || !near(got.Pos.Y, tt.want.Pos.Y) || !near(got.D.X, tt.want.D.X) || !near(got.D.Y, tt.want.D.Y) {
+				t.Errorf("got %+v\nwant %+v", got, tt.want)
+			}
+		})
+	}
+}
+
+func near(a, b float64) bool { return math.Abs(a-b) <= 1e-9*math.Max(math.Abs(b), 1e-6) }
+
+// TestReadTargetsErrors checks that each kind of bad input names its row and
+// column.
+func TestReadTargetsErrors(t *testing.T) {
+	const h = "panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n"
+	tests := []struct {
+		name, csv string
+		row       int
+		column    string
+		contains  string
+	}{
+		{"empty file", "", 1, "", "empty"},
+		{"missing column", "panel,layer,x [in],y [in],dx [mil],dy [mil]\n", 1, "target", "missing column"},
+		{"missing dy", "panel,layer,target,x [in],y [in],dx [mil]\n", 1, "dy", "missing column"},
+		{"no displacement", "panel,layer,target,x [in],y [in]\n", 1, "dx", "missing column"},
+		{"both kinds", "panel,layer,target,x [in],y [in],dx [mil],dy [mil],x_meas [in],y_meas [in]\n", 1, "", "not both"},
+		{"unit missing", "panel,layer,target,x,y [in],dx [mil],dy [mil]\n", 1, "", "needs a unit"},
+		{"unknown unit", "panel,layer,target,x [in],y [in],dx [furlong],dy [mil]\n", 1, "", "unknown length unit"},
+		{"unit on a name column", "panel [in],layer,target,x [in],y [in],dx [mil],dy [mil]\n", 1, "", "takes no unit"},
+		{"non-numeric", h + "P,L3,T1,1,2,0.1,0.2\nP,L3,T2,1,2,abc,0.2\n", 3, "dx", "not a finite number"},
+		{"NaN", h + "P,L3,T1,NaN,2,0.1,0.2\n", 2, "x", "not a finite number"},
+		{"empty panel", h + " ,L3,T1,1,2,0.1,0.2\n", 2, "panel", "empty"},
+		{"duplicate target", h + "P,L3,T1,1,2,0.1,0.2\nP,L4,T1,1,2,0.1,0.2\nP,L3,T1,3,2,0.1,0.2\n", 4, "target", "row 2"},
+		{"bad pair", h + "P,L3-,T1,1,2,0.1,0.2\n", 2, "layer", "pair"},
+		{"same pair", h + "P,L3-L3,T1,1,2,0.1,0.2\n", 2, "layer", "pair"},
+		{"short row", h + "P,L3,T1,1,2,0.1\n", 2, "", "fields"},
+		{"header only", h, 0, "", "no targets"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			_, err := ReadTargets(strings.NewReader(tt.csv), "m.csv")
+			var ce *CSVError
+			if !errors.As(err, &ce) {
+				t.Fatalf("error %v, want a *CSVError", err)
+			}
+			if ce.File != "m.csv" || ce.Row != tt.row || ce.Column != tt.column || !strings.Contains(err.Error(), tt.contains) {
+				t.Errorf("error %q (row %d, column %q), want row %d, column %q, containing %q", err, ce.Row, ce.Column, tt.row, tt.column, tt.contains)
+			}
+		})
+	}
+}
+
+// FuzzReadTargets feeds arbitrary bytes to the reader: it must not panic,
+// must return targets or a *CSVError, and every target it returns must be
+// finite with its names set.
+func FuzzReadTargets(f *testing.F) {
+	f.Add("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\nP1,L3,T1,-7.5,10.5,0.25,-1.5\n")
+	f.Add("panel,layer,target,x [mm],y [mm],x_meas [mm],y_meas [mm]\n2,L3-L4,A,100,-50,100.01,-50.02\n")
+	f.Add("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\nP,L3,T,1e308,1e308,1e308,1\n")
+	f.Add("\"panel\",layer,target,x [in],y [in],dx [mil],dy [mil]\n\"P\nQ\",L3,\"T,1\",1,2,3,4\n")
+	f.Add("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n\"0000") // found by fuzzing: FieldPos after a failed Read
+	f.Fuzz(func(t *testing.T, s string) {
+		ts, err := ReadTargets(strings.NewReader(s), "fuzz.csv")
+		if err != nil {
+			var ce *CSVError
+			if !errors.As(err, &ce) {
+				t.Fatalf("error %v is not a *CSVError", err)
+			}
+			return
+		}
+		for _, tg := range ts {
+			for _, v := range []float64{tg.Pos.X, tg.Pos.Y, tg.D.X, tg.D.Y} {
+				if math.IsNaN(v) || math.IsInf(v, 0) {
+					t.Fatalf("target %+v is not finite", tg)
+				}
+			}
+			if tg.Panel == "" || tg.Layer == "" || tg.Name == "" || tg.Row < 2 {
+				t.Fatalf("target %+v lacks a name or row", tg)
+			}
+		}
+	})
+}
+
+func vec(x, y float64) panel.Vec { return panel.Vec{X: x, Y: y} }
