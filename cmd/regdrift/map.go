@@ -1,0 +1,489 @@
+package main
+
+import (
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"strconv"
+	"text/tabwriter"
+
+	"github.com/spf13/pflag"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/render"
+)
+
+type mapFlags struct {
+	out    string
+	units  string
+	show   string
+	width  int
+	json   bool
+	strict bool
+	solver solverFlags
+}
+
+func init() {
+	register(&command{
+		name:  "map",
+		usage: "map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]",
+		short: "map the broadside offset and coupling drift of every coupler site on the panel",
+		long: `Computes, for every coupler site of the job, the mean broadside offset that the
+registration error model produces there (closed form, linear in the terms), its
+standard deviation, and the coupling it gives from the section's solved
+coupling-versus-offset curve: drift against the design offset, margin to the
+spec limits, and the coupling at mean ± 3 sigma.
+
+Writes map.png (heatmap of the panel), sites.csv (one row per site) and
+summary.json to the output directory, and a summary table to stdout.`,
+		order: 1,
+		flags: func(fs *pflag.FlagSet) any {
+			f := &mapFlags{}
+			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
+			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um (panel axes in in or mm)")
+			fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset), worst (worst drift within ±3σ), offset, sigma or margin")
+			fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
+			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
+			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when any site is out of spec")
+			f.solver.add(fs)
+			return f
+		},
+		run: runMap,
+	})
+}
+
+func runMap(ctx context.Context, std stdio, opts any, args []string) error {
+	f := opts.(*mapFlags)
+	if len(args) != 1 {
+		return usageErr("map takes one job file")
+	}
+	lu, err := parseUnits(f.units)
+	if err != nil {
+		return err
+	}
+	switch f.show {
+	case "drift", "worst", "offset", "sigma", "margin":
+	default:
+		return usageErr("--show: want drift, worst, offset, sigma or margin, not %q", f.show)
+	}
+	if f.width < 300 || f.width > 20000 {
+		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
+	}
+	j, err := loadJob(args[0], std.in)
+	if err != nil {
+		return err
+	}
+	a, err := analyse(ctx, j, &f.solver, std)
+	if err != nil {
+		return err
+	}
+	o, err := newOutputs(f.out)
+	if err != nil {
+		return err
+	}
+	defer o.abort()
+	sum := a.summary(10)
+	if err := o.file("sites.csv", func(w io.Writer) error { return a.writeSitesCSV(w, lu) }); err != nil {
+		return err
+	}
+	if err := o.file("summary.json", func(w io.Writer) error { return writeJSON(w, sum) }); err != nil {
+		return err
+	}
+	if err := o.file("map.png", func(w io.Writer) error { return a.drawMap(w, f.show, f.width, lu) }); err != nil {
+		return err
+	}
+	if err := o.commit(); err != nil {
+		return err
+	}
+	if f.json {
+		if err := writeJSON(std.out, sum); err != nil {
+			return err
+		}
+	} else {
+		a.printTable(std.out, sum, lu, o.paths())
+	}
+	if f.strict && sum.InSpec < sum.Sites {
+		return fmt.Errorf("%w: %d of %d sites outside the coupling spec", errOutOfSpec, sum.Sites-sum.InSpec, sum.Sites)
+	}
+	return nil
+}
+
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
+}
+
+// minMaxRMS is a JSON range summary.
+type minMaxRMS struct {
+	Min float64 `json:"min"`
+	Max float64 `json:"max"`
+	RMS float64 `json:"rms"`
+}
+
+func summarize(v []float64) minMaxRMS {
+	if len(v) == 0 {
+		return minMaxRMS{}
+	}
+	s := minMaxRMS{Min: math.Inf(1), Max: math.Inf(-1)}
+	var ss float64
+	for _, x := range v {
+		s.Min, s.Max = math.Min(s.Min, x), math.Max(s.Max, x)
+		ss += x * x
+	}
+	s.RMS = math.Sqrt(ss / float64(len(v)))
+	return s
+}
+
+type worstSite struct {
+	Rank        int     `json:"rank"`
+	Name        string  `json:"name"`
+	Section     string  `json:"section"`
+	XM          float64 `json:"x_m"`
+	YM          float64 `json:"y_m"`
+	AngleRad    float64 `json:"angle_rad"`
+	OffsetM     float64 `json:"offset_m"`
+	SigmaM      float64 `json:"sigma_m"`
+	CouplingDB  float64 `json:"coupling_db"`
+	DriftDB     float64 `json:"drift_db"`
+	MarginDB    float64 `json:"margin_db"`
+	InSpec      bool    `json:"in_spec"`
+	AlongM      float64 `json:"along_m"`
+	Coupling3Lo float64 `json:"coupling_minus3sigma_db"`
+	Coupling3Hi float64 `json:"coupling_plus3sigma_db"`
+}
+
+type sectionSummary struct {
+	Name             string  `json:"name"`
+	Sites            int     `json:"sites"`
+	InSpec           int     `json:"in_spec"`
+	FrequencyHz      float64 `json:"frequency_hz"`
+	LengthM          float64 `json:"length_m"`
+	SpecCouplingDB   float64 `json:"spec_coupling_db"`
+	SpecToleranceDB  float64 `json:"spec_tolerance_db"`
+	DesignOffsetM    float64 `json:"design_offset_m"`
+	NominalCoupling  float64 `json:"nominal_coupling_db"`
+	CurveFromCache   bool    `json:"curve_from_cache"`
+	CurveOffsetLowM  float64 `json:"curve_offset_low_m"`
+	CurveOffsetHighM float64 `json:"curve_offset_high_m"`
+}
+
+type mapSummary struct {
+	Title    string           `json:"title"`
+	Job      string           `json:"job"`
+	Sites    int              `json:"sites"`
+	InSpec   int              `json:"in_spec"`
+	OffsetM  minMaxRMS        `json:"offset_m"`
+	DriftDB  minMaxRMS        `json:"drift_db"`
+	Sections []sectionSummary `json:"sections"`
+	Worst    []worstSite      `json:"worst"`
+}
+
+func (a *analysis) summary(n int) *mapSummary {
+	s := &mapSummary{Title: a.job.Title, Job: a.job.File, Sites: len(a.sites), InSpec: a.inSpec()}
+	off := make([]float64, len(a.sites))
+	drift := make([]float64, len(a.sites))
+	for i := range a.sites {
+		off[i], drift[i] = a.sites[i].Offset, a.sites[i].Drift
+	}
+	s.OffsetM, s.DriftDB = summarize(off), summarize(drift)
+	for i, sec := range a.job.Sections {
+		c := a.curves[i]
+		if c == nil {
+			continue
+		}
+		ss := sectionSummary{Name: sec.Name, FrequencyHz: sec.Frequency, LengthM: c.Length,
+			SpecCouplingDB: sec.Spec.Coupling, SpecToleranceDB: sec.Spec.Tolerance,
+			DesignOffsetM: sec.NominalOffset(), NominalCoupling: a.nominal[i], CurveFromCache: a.cacheHit[i]}
+		ss.CurveOffsetLowM, ss.CurveOffsetHighM = c.Range()
+		for k := range a.sites {
+			if a.sites[k].Section == i {
+				ss.Sites++
+				if a.sites[k].InSpec {
+					ss.InSpec++
+				}
+			}
+		}
+		s.Sections = append(s.Sections, ss)
+	}
+	for rank, k := range a.worst(n) {
+		r := &a.sites[k]
+		s.Worst = append(s.Worst, worstSite{Rank: rank + 1, Name: r.Site.Name, Section: a.job.Sections[r.Section].Name,
+			XM: r.Site.Pos.X, YM: r.Site.Pos.Y, AngleRad: r.Site.Angle, OffsetM: r.Offset, SigmaM: r.Stats.SDAcross,
+			CouplingDB: r.Coupling, DriftDB: r.Drift, MarginDB: r.Margin, InSpec: r.InSpec, AlongM: r.Along,
+			Coupling3Lo: r.CouplingLo, Coupling3Hi: r.CouplingHi})
+	}
+	return s
+}
+
+func (a *analysis) writeSitesCSV(w io.Writer, lu lengthUnit) error {
+	cw := csv.NewWriter(w)
+	L := "[" + lu.name + "]"
+	P := "[" + lu.panel + "]"
+	header := []string{"site", "part", "array", "i", "j", "coupler", "section",
+		"x " + P, "y " + P, "angle [deg]",
+		"offset_across " + L, "sigma_across " + L, "offset_along " + L, "sigma_along " + L,
+		"coupling [dB]", "drift [dB]", "margin [dB]", "in_spec",
+		"coupling_minus3sigma [dB]", "coupling_plus3sigma [dB]"}
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	g := func(v float64, d int) string { return strconv.FormatFloat(v, 'f', d, 64) }
+	rec := make([]string, len(header))
+	for i := range a.sites {
+		r := &a.sites[i]
+		s := r.Site
+		part := ""
+		if s.Instance >= 0 && s.Instance < len(a.job.Instances) {
+			part = a.job.Instances[s.Instance].Name
+		}
+		rec = rec[:0]
+		rec = append(rec, s.Name, part, strconv.Itoa(s.Array+1), strconv.Itoa(s.I+1), strconv.Itoa(s.J+1), s.Coupler,
+			a.job.Sections[r.Section].Name,
+			g(s.Pos.X/lu.pfac, 4), g(s.Pos.Y/lu.pfac, 4), g(s.Angle*180/math.Pi, 2),
+			g(r.Offset/lu.factor, 4), g(r.Stats.SDAcross/lu.factor, 4), g(r.Along/lu.factor, 4), g(r.Stats.SDAlong/lu.factor, 4),
+			g(r.Coupling, 4), g(r.Drift, 4), g(r.Margin, 4), strconv.FormatBool(r.InSpec),
+			g(r.CouplingLo, 4), g(r.CouplingHi, 4))
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+func (a *analysis) printTable(w io.Writer, s *mapSummary, lu lengthUnit, paths []string) {
+	fmt.Fprintf(w, "%s\n", s.Title)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	fmt.Fprintf(tw, "section\tsites\tin spec\tnominal [dB]\tspec [dB]\tworst offset [%s]\tworst drift [dB]\n", lu.name)
+	for i, ss := range s.Sections {
+		var wo, wd float64
+		for k := range a.sites {
+			r := &a.sites[k]
+			if a.job.Sections[r.Section].Name != ss.Name {
+				continue
+			}
+			if d := math.Abs(r.Offset - ss.DesignOffsetM); d > math.Abs(wo) {
+				wo = r.Offset - ss.DesignOffsetM
+			}
+			if math.Abs(r.Drift) > math.Abs(wd) {
+				wd = r.Drift
+			}
+		}
+		_ = i
+		fmt.Fprintf(tw, "%s\t%d\t%d (%.1f %%)\t%.3f\t%.2f ± %.2f\t%+.3f\t%+.4f\n", ss.Name, ss.Sites, ss.InSpec,
+			100*float64(ss.InSpec)/float64(max(ss.Sites, 1)), ss.NominalCoupling, ss.SpecCouplingDB, ss.SpecToleranceDB,
+			wo/lu.factor, wd)
+	}
+	tw.Flush()
+	if len(s.Worst) > 0 {
+		ws := s.Worst[0]
+		fmt.Fprintf(w, "worst site: %s at (%.2f, %.2f) %s: offset %+.3f %s ± %.3f (1σ), coupling %.3f dB, drift %+.4f dB, margin %.3f dB\n",
+			ws.Name, ws.XM/lu.pfac, ws.YM/lu.pfac, lu.panel, ws.OffsetM/lu.factor, lu.name, ws.SigmaM/lu.factor, ws.CouplingDB, ws.DriftDB, ws.MarginDB)
+	}
+	for _, p := range paths {
+		fmt.Fprintf(w, "wrote %s\n", p)
+	}
+}
+
+// dominant returns the most common (section, line direction) among the sites;
+// directions that differ by a half turn count as one, since the across offset
+// only changes sign.
+func (a *analysis) dominant() (sec int, u panel.Vec) {
+	type key struct{ sec, deg int }
+	count := map[key]int{}
+	first := map[key]panel.Vec{}
+	for i := range a.sites {
+		r := &a.sites[i]
+		d := int(math.Round(r.Site.Angle*180/math.Pi)) % 360
+		k := key{r.Section, d}
+		count[k]++
+		if _, ok := first[k]; !ok {
+			first[k] = r.Site.U
+		}
+	}
+	var keys []key
+	for k := range count {
+		keys = append(keys, k)
+	}
+	sort.Slice(keys, func(p, q int) bool {
+		if count[keys[p]] != count[keys[q]] {
+			return count[keys[p]] > count[keys[q]]
+		}
+		if keys[p].sec != keys[q].sec {
+			return keys[p].sec < keys[q].sec
+		}
+		return keys[p].deg < keys[q].deg
+	})
+	return keys[0].sec, first[keys[0]]
+}
+
+// shown returns the value drawn for a site.
+func (a *analysis) shown(show string, r *siteResult, lu lengthUnit) float64 {
+	switch show {
+	case "offset":
+		return r.Offset / lu.factor
+	case "sigma":
+		return r.Stats.SDAcross / lu.factor
+	case "margin":
+		return r.Margin
+	case "worst":
+		return r.WorstDrift
+	}
+	return r.Drift
+}
+
+// reversedSequential runs the sequential palette from dark to light, for
+// quantities whose bad end is the low one (negative drift, small margin).
+var reversedSequential = render.NewPalette("sequential, reversed", func(t float64) render.LCh {
+	return render.LabOf(render.Sequential.At(1 - t)).LCh()
+})
+
+// scaleFor picks the palette and range for values in [lo, hi]: diverging and
+// symmetric about zero when they take both signs, otherwise sequential with
+// its dark end at the worse side (badLow: low values are worse).
+func scaleFor(lo, hi float64, badLow bool) (*render.Palette, float64, float64) {
+	if !(hi > lo) {
+		d := math.Max(math.Abs(hi), 1e-6) * 0.01
+		lo, hi = lo-d, hi+d
+	}
+	switch {
+	case lo < 0 && hi > 0:
+		lo, hi = render.Symmetric(lo, hi)
+		return render.Diverging, lo, hi
+	case badLow:
+		return reversedSequential, lo, hi
+	}
+	return render.Sequential, lo, hi
+}
+
+func (a *analysis) drawMap(w io.Writer, show string, width int, lu lengthUnit) error {
+	j := a.job
+	outline := j.Layout.Panel.Outline()
+	ext := render.Rect{Min: render.Point{X: outline.Min.X, Y: outline.Min.Y}, Max: render.Point{X: outline.Max.X, Y: outline.Max.Y}}
+	sec, u := a.dominant()
+	s := j.Sections[sec]
+	c := a.curves[sec]
+	rel := a.rel[sec]
+	nom := s.NominalOffset()
+	field := func(x, y float64) float64 {
+		st := rel.Stats(rel.Row(panel.Vec{X: x, Y: y}, u))
+		off := nom + st.MeanAcross
+		switch show {
+		case "offset":
+			return off / lu.factor
+		case "sigma":
+			return st.SDAcross / lu.factor
+		case "margin":
+			return specMargin(s.Spec, c.Coupling(off))
+		case "worst":
+			return worstDrift(c, a.nominal[sec], off, st.SDAcross)
+		}
+		return c.Coupling(off) - a.nominal[sec]
+	}
+	usable := j.Layout.Panel.Usable()
+	ur := render.Rect{Min: render.Point{X: usable.Min.X, Y: usable.Min.Y}, Max: render.Point{X: usable.Max.X, Y: usable.Max.Y}}
+	nx := max(width/6, 40)
+	ny := max(int(float64(nx)*ur.Dy()/ur.Dx()), 40)
+	grid := render.NewGrid(ur, nx, ny, field)
+	lo, hi := grid.Range()
+	for i := range a.sites {
+		v := a.shown(show, &a.sites[i], lu)
+		lo, hi = math.Min(lo, v), math.Max(hi, v)
+	}
+	var label string
+	badLow := true
+	switch show {
+	case "offset":
+		label = "mean broadside offset across the lines, design offset included [" + lu.name + "]"
+		badLow = false
+	case "sigma":
+		label = "standard deviation of the broadside offset [" + lu.name + "]"
+		badLow = false
+	case "margin":
+		label = "margin from the coupling at the mean offset to the nearer spec limit [dB]"
+	case "worst":
+		label = "worst coupling drift within mean ± 3σ of the offset [dB]"
+	default:
+		label = "coupling drift at the mean offset, against the design offset [dB]"
+	}
+	pal, lo, hi := scaleFor(lo, hi, badLow)
+	sum := a.summary(10)
+	ws := sum.Worst[0]
+	title := []string{
+		j.Title,
+		fmt.Sprintf("section %s: spec %.2f ± %.2f dB at %.4g GHz, design offset %.2f %s, coupling %.3f dB there",
+			s.Name, s.Spec.Coupling, s.Spec.Tolerance, s.Frequency/1e9, nom/lu.factor, lu.name, a.nominal[sec]),
+		fmt.Sprintf("%d of %d sites in spec; worst %s: offset %+.2f %s, drift %+.3f dB, margin %.3f dB",
+			sum.InSpec, sum.Sites, ws.Name, ws.OffsetM/lu.factor, lu.name, ws.DriftDB, ws.MarginDB),
+		fmt.Sprintf("field: lines at %.0f deg (%s); bars: each site along its lines; rings: the ten worst sites",
+			math.Atan2(u.Y, u.X)*180/math.Pi, s.Name),
+	}
+	ru := render.Inch
+	if lu.panel == "mm" {
+		ru = render.Millimetre
+	}
+	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Title: title, Unit: ru})
+	v := m.Views[0]
+	v.FieldGrid(grid, pal, lo, hi)
+	v.StrokeRect(ur, render.LineStyle{Color: render.Frame, Dash: []float64{6, 4}})
+	v.StrokeRect(ext, render.LineStyle{Color: render.Ink, Width: 2})
+	// Part outlines, when a part is at least 12 pixels across.
+	var parts []render.Rect
+	for _, in := range j.Instances {
+		if in.Array < 0 {
+			continue
+		}
+		sz := in.Bounds.Size()
+		if v.PixelLen(math.Min(sz.X, sz.Y)) < 12 {
+			continue
+		}
+		parts = append(parts, render.Rect{Min: render.Point{X: in.Bounds.Min.X, Y: in.Bounds.Min.Y}, Max: render.Point{X: in.Bounds.Max.X, Y: in.Bounds.Max.Y}})
+	}
+	v.StrokeRects(parts, render.LineStyle{Color: render.Frame})
+	bars := make([]render.Bar, len(a.sites))
+	barLen := a.barLength()
+	for i := range a.sites {
+		r := &a.sites[i]
+		bars[i] = render.Bar{At: render.Point{X: r.Site.Pos.X, Y: r.Site.Pos.Y}, Length: barLen, Angle: r.Site.Angle,
+			Color: pal.Map(a.shown(show, r, lu), lo, hi)}
+	}
+	v.Bars(bars, render.BarStyle{})
+	var ms []render.Marker
+	for rank, k := range a.worst(10) {
+		p := a.sites[k].Site.Pos
+		ms = append(ms, render.Marker{At: render.Point{X: p.X, Y: p.Y}, Label: strconv.Itoa(rank + 1)})
+	}
+	v.Markers(ms)
+	m.ColorBar(pal, lo, hi, label)
+	return m.EncodePNG(w)
+}
+
+// barLength returns the drawn length of a site bar: 60 % of the smallest
+// distance between two sites of one part or array step, capped by the panel size.
+func (a *analysis) barLength() float64 {
+	p := a.job.Layout.Panel.Size
+	l := math.Min(p.X, p.Y) / 40
+	for _, ar := range a.job.Layout.Arrays {
+		for _, d := range []float64{ar.Pitch.X, ar.Pitch.Y} {
+			if d > 0 {
+				l = math.Min(l, 0.6*d)
+			}
+		}
+	}
+	for _, pt := range a.job.Layout.Parts {
+		for i := range pt.Couplers {
+			for k := i + 1; k < len(pt.Couplers); k++ {
+				d := pt.Couplers[i].At.Sub(pt.Couplers[k].At)
+				if h := math.Hypot(d.X, d.Y); h > 0 {
+					l = math.Min(l, 0.6*h)
+				}
+			}
+		}
+	}
+	return l
+}
