@@ -3,7 +3,6 @@ package render
 import (
 	"image"
 	"image/color"
-	"image/draw"
 	"io"
 	"math"
 	"sync"
@@ -44,7 +43,14 @@ type faceKey struct {
 // em pixels tall.
 func newCanvas(w, h int, em float64) *Canvas {
 	img := image.NewRGBA(image.Rect(0, 0, w, h))
-	draw.Draw(img, img.Bounds(), image.NewUniform(Background), image.Point{}, draw.Src)
+	// Fill by doubling copies: several times faster than draw.Draw with a
+	// uniform source on these large images.
+	if n := len(img.Pix); n > 0 {
+		copy(img.Pix, []byte{Background.R, Background.G, Background.B, Background.A})
+		for k := 4; k < n; k *= 2 {
+			copy(img.Pix[k:], img.Pix[:k])
+		}
+	}
 	return &Canvas{img: img, dc: gg.NewContextForRGBA(img), em: em, faces: map[faceKey]font.Face{}}
 }
 

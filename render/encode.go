@@ -56,29 +56,13 @@ func encodeRGB(w io.Writer, img *image.RGBA) error {
 			zw, _ := flate.NewWriter(&p.out, flate.BestSpeed) // error only for a bad level
 			h := adler32.New()
 			row := make([]byte, rowLen)
-			prev := make([]byte, 3*width)
-			cur := make([]byte, 3*width)
-			if y0 > 0 {
-				rgbRow(prev, img, b.Min.Y+y0-1)
-			}
 			for y := y0; y < y1; y++ {
-				rgbRow(cur, img, b.Min.Y+y)
-				if y == 0 {
-					row[0] = 0 // None: there is no row above the first
-					copy(row[1:], cur)
-				} else {
-					row[0] = 2 // Up
-					r := row[1:]
-					for i := range r {
-						r[i] = cur[i] - prev[i]
-					}
-				}
+				filterRow(row, img, b.Min.Y+y)
 				h.Write(row)
 				if _, err := zw.Write(row); err != nil {
 					p.err = err
 					return
 				}
-				prev, cur = cur, prev
 			}
 			if k == bands-1 {
 				p.err = zw.Close()
@@ -123,12 +107,27 @@ func encodeRGB(w io.Writer, img *image.RGBA) error {
 	return writeChunk(w, "IEND", nil)
 }
 
-// rgbRow copies row y of img, dropping alpha.
-func rgbRow(dst []byte, img *image.RGBA, y int) {
+// filterRow writes row y of img as a filtered PNG scan line, alpha
+// dropped: the filter type byte, then each RGB byte minus the byte above it
+// (filter Up), or unchanged on the first row (filter None).
+func filterRow(dst []byte, img *image.RGBA, y int) {
+	n := 4 * img.Rect.Dx()
 	off := img.PixOffset(img.Rect.Min.X, y)
-	src := img.Pix[off : off+4*img.Rect.Dx()]
-	for i, j := 0, 0; i < len(src); i, j = i+4, j+3 {
-		dst[j], dst[j+1], dst[j+2] = src[i], src[i+1], src[i+2]
+	cur := img.Pix[off : off+n : off+n]
+	out := dst[1 : 1+3*img.Rect.Dx()]
+	if y == img.Rect.Min.Y {
+		dst[0] = 0
+		for i, j := 0, 0; i < n; i, j = i+4, j+3 {
+			out[j], out[j+1], out[j+2] = cur[i], cur[i+1], cur[i+2]
+		}
+		return
+	}
+	dst[0] = 2
+	prev := img.Pix[off-img.Stride : off-img.Stride+n : off-img.Stride+n]
+	for i, j := 0, 0; i < n; i, j = i+4, j+3 {
+		out[j] = cur[i] - prev[i]
+		out[j+1] = cur[i+1] - prev[i+1]
+		out[j+2] = cur[i+2] - prev[i+2]
 	}
 }
 

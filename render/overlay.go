@@ -31,8 +31,9 @@ type BarStyle struct {
 	NoOutline bool
 }
 
-// Bars draws many bars quickly: bars of one colour are stroked together in
-// batches, rather than one stroke per bar.
+// Bars draws many bars quickly. Bars along x or y are filled straight into
+// the pixels (opaque colours, edges on whole pixels); others are stroked by
+// gg, bars of one colour together in batches.
 func (v *View) Bars(bars []Bar, s BarStyle) {
 	c := v.c
 	dc := c.dc
@@ -44,6 +45,16 @@ func (v *View) Bars(bars []Bar, s BarStyle) {
 	if minLen == 0 {
 		minLen = 2 * w
 	}
+	// Bars along the axes (the usual case on a panel) are filled straight
+	// into the pixels, snapped to whole pixels: cheaper than the
+	// anti-aliasing rasterizer by an order of magnitude, and crisp.
+	var slanted []Bar
+	for _, b := range bars {
+		if !v.axisBar(b, w, minLen, s) {
+			slanted = append(slanted, b)
+		}
+	}
+	bars = slanted
 	ends := make([][4]float64, len(bars))
 	for k, b := range bars {
 		x, y := v.Pixel(b.At)
@@ -94,6 +105,51 @@ func (v *View) Bars(bars []Bar, s BarStyle) {
 			}
 		}
 		dc.Stroke()
+	}
+}
+
+// axisBar draws b directly into the pixels if it runs along x or y, and
+// reports whether it did.
+func (v *View) axisBar(b Bar, w, minLen float64, s BarStyle) bool {
+	q := b.Angle / (math.Pi / 2)
+	n := math.Round(q)
+	if math.Abs(q-n) > 1e-9 {
+		return false
+	}
+	x, y := v.Pixel(b.At)
+	h := math.Max(v.PixelLen(b.Length), minLen) / 2
+	hx, hy := h, w/2
+	if int(n)%2 != 0 {
+		hx, hy = w/2, h
+	}
+	img := v.c.img
+	if !s.NoOutline {
+		ow := math.Max(1, w/4)
+		fillPixels(img, x-hx-ow, y-hy-ow, x+hx+ow, y+hy+ow, rgbaOf(orInk(s.Outline)))
+	}
+	fillPixels(img, x-hx, y-hy, x+hx, y+hy, b.Color)
+	return true
+}
+
+func rgbaOf(c color.Color) color.RGBA {
+	r, g, b, a := c.RGBA()
+	return color.RGBA{uint8(r >> 8), uint8(g >> 8), uint8(b >> 8), uint8(a >> 8)}
+}
+
+// fillPixels sets the pixels covering [x0, x1) x [y0, y1), edges rounded to
+// whole pixels and clipped to the image, to the opaque colour c.
+func fillPixels(img *image.RGBA, x0, y0, x1, y1 float64, c color.RGBA) {
+	r := image.Rect(int(math.Round(x0)), int(math.Round(y0)), int(math.Round(x1)), int(math.Round(y1))).Intersect(img.Rect)
+	if r.Empty() {
+		return
+	}
+	px := [4]byte{c.R, c.G, c.B, 255}
+	for j := r.Min.Y; j < r.Max.Y; j++ {
+		o := img.PixOffset(r.Min.X, j)
+		row := img.Pix[o : o+4*r.Dx()]
+		for i := 0; i < len(row); i += 4 {
+			copy(row[i:i+4], px[:])
+		}
 	}
 }
 

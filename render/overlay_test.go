@@ -168,3 +168,25 @@ func TestClipSegment(t *testing.T) {
 		}
 	}
 }
+
+// TestBarPixels checks that a bar along an axis (drawn into the pixels) and
+// a slanted one (drawn by gg) both cover their centre with their colour and
+// have an outline beyond their ends.
+func TestBarPixels(t *testing.T) {
+	m := NewMap(MapSpec{Width: 800, Extent: Centered(0.2, 0.2), NoColorBar: true})
+	v := m.Views[0]
+	col := Series(2)
+	for _, angle := range []float64{0, math.Pi / 2, math.Pi / 4} {
+		at := Point{-0.05 + 0.04*angle, 0.02}
+		v.Bars([]Bar{{At: at, Length: 0.02, Angle: angle, Color: col}}, BarStyle{Width: 6})
+		x, y := v.Pixel(at)
+		if got := m.img.RGBAAt(int(x), int(y)); got != col {
+			t.Errorf("angle %.2f: centre %v, want %v", angle, got, col)
+		}
+		h := v.PixelLen(0.01)
+		ex, ey := x+(h+1)*math.Cos(angle), y-(h+1)*math.Sin(angle)
+		if got := m.img.RGBAAt(int(ex), int(ey)); got.R > 120 {
+			t.Errorf("angle %.2f: no outline past the end, %v", angle, got)
+		}
+	}
+}
