@@ -204,8 +204,7 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 		bnorm[0] += w.rhs[2*p] * w.rhs[2*p]
 		bnorm[1] += w.rhs[2*p+1] * w.rhs[2*p+1]
 	}
-	b := blas64.General{Rows: n, Cols: 2, Data: w.rhs, Stride: 2}
-	lapack64.Pbtrs(t, b)
+	bandSolve2(t.Data, n, kb, w.rhs)
 	// Full potentials.
 	nn := len(m.tag)
 	for k := range 2 {
@@ -272,4 +271,38 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 		}
 	}
 	return c, resid, nil
+}
+
+// bandSolve2 solves Uᵀ·U·x = b in place for the two right-hand sides
+// interleaved in b (b[2i], b[2i+1]), with U the upper band Cholesky factor
+// from dpbtrf, row-major with k+1 entries per row (U[i][i+d] at u[i*(k+1)+d]).
+// It does what dpbtrs does, in one pass per triangle for both right-hand sides
+// and with unit-stride access in both passes: gonum's dtbsv walks the
+// transposed factor with stride k and was a third of the solve time.
+func bandSolve2(u []float64, n, k int, b []float64) {
+	s := k + 1
+	// Uᵀ·y = b, column-oriented: row i of U is column i of Uᵀ.
+	for i := range n {
+		row := u[i*s : i*s+s]
+		y0, y1 := b[2*i]/row[0], b[2*i+1]/row[0]
+		b[2*i], b[2*i+1] = y0, y1
+		m := min(k, n-1-i)
+		bb := b[2*(i+1) : 2*(i+1+m)]
+		for d, v := range row[1 : m+1] {
+			bb[2*d] -= v * y0
+			bb[2*d+1] -= v * y1
+		}
+	}
+	// U·x = y, row-oriented.
+	for i := n - 1; i >= 0; i-- {
+		row := u[i*s : i*s+s]
+		m := min(k, n-1-i)
+		bb := b[2*(i+1) : 2*(i+1+m)]
+		x0, x1 := b[2*i], b[2*i+1]
+		for d, v := range row[1 : m+1] {
+			x0 -= v * bb[2*d]
+			x1 -= v * bb[2*d+1]
+		}
+		b[2*i], b[2*i+1] = x0/row[0], x1/row[0]
+	}
 }

@@ -29,9 +29,9 @@ func (t *traceGeom) halfWidth(y float64) float64 {
 
 // geometry is the cross-section reduced to what the field solver needs.
 type geometry struct {
-	micro  bool      // one ground, open (air) above the stack
-	bands  []band    // bottom to top, contiguous
-	stackH float64   // stripline: b, the ground-to-ground distance; microstrip: height of the stack above the ground
+	micro  bool    // one ground, open (air) above the stack
+	bands  []band  // bottom to top, contiguous
+	stackH float64 // stripline: b, the ground-to-ground distance; microstrip: height of the stack above the ground
 	tr     [2]traceGeom
 	same   bool    // both traces in one copper slab (edge-coupled)
 	x1     float64 // centre of the lower trace (Traces[1].X); Traces[0] is placed at x1 + offset

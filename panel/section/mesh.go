@@ -71,18 +71,14 @@ func (g *geometry) smallestFeature(s *Section) float64 {
 	return f
 }
 
-// newMeshPlan builds the plan at refinement level lev·mult: the element count
-// of every segment is mult times its count at level lev (exact doubling for
-// Richardson extrapolation), and the floor of the grading shrinks as
-// 1/(lev·mult), so the smallest elements shrink as 1/(lev·mult)².
-func newMeshPlan(s *Section, g *geometry, lev float64, mult int) *meshPlan {
+// newMeshPlan builds the plan with mult times the element counts of level
+// lev in every segment, graded toward the singular edges down to a floor
+// that shrinks as 1/floorLev.
+func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float64) *meshPlan {
 	p := &meshPlan{g: g}
 	feat := g.smallestFeature(s)
-	// The floor shrinks with the level too, so that the elements touching a
-	// singular edge shrink as 1/level²: the edge's own error (∝ h for a knife
-	// edge) then falls as fast as the bulk error and Richardson's h² holds.
-	h0base := floorFrac * feat / lev
-	h0 := h0base / float64(mult)
+	h0 := floorFrac * feat / floorLev
+	h0base := h0
 	p.wmax = math.Max(s.Traces[0].Width, s.Traces[1].Width)
 	H := g.stackH
 	hmax := quietFrac * H

@@ -262,7 +262,8 @@ func (s *Section) groundAt(i int) (string, bool) {
 
 // checkOffset reports whether the section can be solved at offset off: traces on
 // one layer must not touch, and the offset must stay within maxOffsetSpans domain
-// heights (further out the coupling is nil and the value is almost surely a unit slip).
+// heights plus the trace widths (further out the coupling is nil and the value
+// is almost surely a unit slip).
 func (s *Section) checkOffset(off float64, key string) error {
 	if !finite(off) {
 		return s.fieldErr(key, "offset %v is not a number", off)
@@ -278,8 +279,8 @@ func (s *Section) checkOffset(off float64, key string) error {
 		}
 	}
 	h := s.domainHeight()
-	if math.Abs(off) > maxOffsetSpans*h {
-		return s.fieldErr(key, "offset %s is wider than the section's domain (%d × %s)", mils(off), maxOffsetSpans, mils(h))
+	if lim := maxOffsetSpans*h + t0.Width + t1.Width; math.Abs(off) > lim {
+		return s.fieldErr(key, "offset %s is wider than the section's domain (±%s: %d domain heights of %s plus the trace widths)", mils(off), mils(lim), maxOffsetSpans, mils(h))
 	}
 	return nil
 }
@@ -287,4 +288,3 @@ func (s *Section) checkOffset(off float64, key string) error {
 // maxOffsetSpans bounds offsets to this many domain heights: beyond about 5
 // heights a stripline's coupling is below −100 dB.
 const maxOffsetSpans = 20
-

@@ -84,6 +84,13 @@ type Solution struct {
 // and Validation in Computational Science and Engineering, 1998, ch. 5).
 const richardsonOrder = 2
 
+// estimateOrder is the order assumed for the error of the extrapolated value
+// when estimating it from two extrapolations: 3, the next term once h² is
+// removed. Element counts are rounded up independently at each level, so the
+// refinement ratio is 2 only on average and the estimate is an estimate, not a
+// bound (doc.go: calibration against the published checks).
+const estimateOrder = 3
+
 // linearTol is the largest relative residual accepted from a direct solve.
 const linearTol = 1e-8
 
@@ -97,6 +104,8 @@ func startLevel(acc float64) float64 {
 
 // maxLevelSteps bounds the refinement steps (each multiplies the level by √2).
 const maxLevelSteps = 5
+
+var nestedMode = false
 
 // solver holds the state shared by the solves of one section.
 type solver struct {
@@ -160,43 +169,62 @@ func relDiff(a, b [2][2]float64) float64 {
 
 func (sv *solver) solve(ctx context.Context, off float64, w *femWork) (*Solution, error) {
 	lev := startLevel(sv.acc)
-	var conv Convergence
-	conv.Target = sv.acc
-	for step := 1; step <= maxLevelSteps; step++ {
-		var lv [3]levelResult
-		for i, l := range [3]float64{lev / 2, lev, 2 * lev} {
-			if err := ctx.Err(); err != nil {
-				return nil, err
-			}
-			r, err := sv.level(off, l, 1, w)
-			if err != nil {
-				return nil, err
-			}
-			lv[i] = r
-			conv.Residual = math.Max(conv.Residual, r.resid)
+	for step := 1; ; step++ {
+		sol, err := sv.solveLevel(ctx, off, lev, w)
+		if err != nil {
+			return nil, err
 		}
-		conv.Rough, conv.Coarse, conv.Fine = lv[0].MeshLevel, lv[1].MeshLevel, lv[2].MeshLevel
-		conv.Unknowns = lv[2].Unknowns
-		conv.BandWidth = w.kb
-		conv.Iterations = step
-		if conv.Residual > linearTol {
-			return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: step, Residual: conv.Residual, Target: linearTol, Unknowns: conv.Unknowns}
-		}
-		conv.C = richardson(lv[2].C, lv[1].C)
-		conv.C0 = richardson(lv[2].C0, lv[1].C0)
-		const nextOrder = 3 // order of the leading error term once h² is removed
-		g := 1 / (math.Pow(2, nextOrder) - 1)
-		est := g * math.Max(relDiff(conv.C, richardson(lv[1].C, lv[0].C)), relDiff(conv.C0, richardson(lv[1].C0, lv[0].C0)))
-		conv.EstimatedError = est
-		if est <= sv.acc {
-			return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
+		sol.Convergence.Iterations = step
+		if sol.Convergence.EstimatedError <= sv.acc {
+			return sol, nil
 		}
 		if step == maxLevelSteps {
-			return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: step, Residual: est, Target: sv.acc, Unknowns: conv.Unknowns}
+			return nil, sv.convErr(sol)
 		}
 		lev *= math.Sqrt2
 	}
-	panic("unreachable")
+}
+
+func (sv *solver) convErr(sol *Solution) error {
+	c := sol.Convergence
+	return &ConvergenceError{Section: sv.s.Name, Offset: sol.Offset, Iterations: c.Iterations, Residual: c.EstimatedError, Target: sv.acc, Unknowns: c.Unknowns}
+}
+
+// solveLevel solves at the level triple (lev/2, lev, 2·lev) and extrapolates.
+func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) (*Solution, error) {
+	var conv Convergence
+	conv.Target = sv.acc
+	var lv [3]levelResult
+	for i, mult := range [3]int{1, 2, 4} {
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		var r levelResult
+		var err error
+		if nestedMode {
+			r, err = sv.level(off, lev/2, mult, 2*lev, w)
+		} else {
+			l := lev / 2 * float64(mult)
+			r, err = sv.level(off, l, 1, l, w)
+		}
+		if err != nil {
+			return nil, err
+		}
+		lv[i] = r
+		conv.Residual = math.Max(conv.Residual, r.resid)
+	}
+	conv.Rough, conv.Coarse, conv.Fine = lv[0].MeshLevel, lv[1].MeshLevel, lv[2].MeshLevel
+	conv.Unknowns = lv[2].Unknowns
+	conv.BandWidth = w.kb
+	conv.Iterations = 1
+	if conv.Residual > linearTol {
+		return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Residual: conv.Residual, Target: linearTol, Unknowns: conv.Unknowns}
+	}
+	conv.C = richardson(lv[2].C, lv[1].C)
+	conv.C0 = richardson(lv[2].C0, lv[1].C0)
+	g := 1 / (math.Pow(2, estimateOrder) - 1)
+	conv.EstimatedError = g * math.Max(relDiff(conv.C, richardson(lv[1].C, lv[0].C)), relDiff(conv.C0, richardson(lv[1].C0, lv[0].C0)))
+	return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
 }
 
 type levelResult struct {
@@ -204,8 +232,8 @@ type levelResult struct {
 	resid float64
 }
 
-func (sv *solver) level(off, lev float64, mult int, w *femWork) (levelResult, error) {
-	p := newMeshPlan(sv.s, sv.g, lev, mult)
+func (sv *solver) level(off, lev float64, mult int, floorLev float64, w *femWork) (levelResult, error) {
+	p := newMeshPlan(sv.s, sv.g, lev, mult, floorLev)
 	if p.unknownsEstimate() > maxMeshNodes {
 		return levelResult{}, &ConvergenceError{Section: sv.s.Name, Offset: off, Target: sv.acc, Unknowns: p.unknownsEstimate(), Residual: math.NaN()}
 	}

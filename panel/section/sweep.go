@@ -60,19 +60,67 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 	if s.Length == 0 && !slices.Contains(offs, nom) {
 		todo = append(slices.Clone(offs), nom)
 	}
+	// Every offset is solved at one level, found at the nominal offset and
+	// raised if any offset misses the target: a level change between
+	// neighbouring offsets would put a step of the size of the discretisation
+	// error into the curve.
+	w := &femWork{}
+	first, err := sv.solve(ctx, nom, w)
+	if err != nil {
+		return nil, fmt.Errorf("sweep offset %s: %w", mils(nom), err)
+	}
+	lev := startLevel(sv.acc) * math.Pow(math.Sqrt2, float64(first.Convergence.Iterations-1))
+	var sols []*Solution
+	for step := first.Convergence.Iterations; ; step++ {
+		sols, err = sv.solveAll(ctx, todo, lev, set.workers())
+		if err != nil {
+			return nil, err
+		}
+		worst := sols[0]
+		for _, sol := range sols {
+			sol.Convergence.Iterations = step
+			if sol.Convergence.EstimatedError > worst.Convergence.EstimatedError {
+				worst = sol
+			}
+		}
+		if worst.Convergence.EstimatedError <= sv.acc {
+			break
+		}
+		if step >= maxLevelSteps {
+			return nil, sv.convErr(worst)
+		}
+		lev *= math.Sqrt2
+	}
+	length := s.Length
+	if length == 0 {
+		i := slices.Index(todo, nom)
+		length = NewLines(sols[i].C, sols[i].C0).QuarterWave(s.Frequency)
+	}
+	c := &Curve{Section: s.Name, Frequency: s.Frequency, Length: length, ZRef: s.ZRef}
+	for i, o := range offs {
+		c.Points = append(c.Points, newPoint(o, sols[i], s.Frequency, length, s.ZRef))
+	}
+	if err := c.fit(); err != nil {
+		return nil, err
+	}
+	return c, nil
+}
+
+// solveAll solves the offsets at level lev on workers goroutines.
+func (sv *solver) solveAll(ctx context.Context, todo []float64, lev float64, workers int) ([]*Solution, error) {
 	sols := make([]*Solution, len(todo))
 	errs := make([]error, len(todo))
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	next := make(chan int)
 	var wg sync.WaitGroup
-	for range min(set.workers(), len(todo)) {
+	for range min(workers, len(todo)) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
 			w := &femWork{}
 			for i := range next {
-				sols[i], errs[i] = sv.solve(ctx, todo[i], w)
+				sols[i], errs[i] = sv.solveLevel(ctx, todo[i], lev, w)
 				if errs[i] != nil {
 					cancel()
 				}
@@ -97,19 +145,7 @@ feed:
 			return nil, ctx.Err()
 		}
 	}
-	length := s.Length
-	if length == 0 {
-		i := slices.Index(todo, nom)
-		length = NewLines(sols[i].C, sols[i].C0).QuarterWave(s.Frequency)
-	}
-	c := &Curve{Section: s.Name, Frequency: s.Frequency, Length: length, ZRef: s.ZRef}
-	for i, o := range offs {
-		c.Points = append(c.Points, newPoint(o, sols[i], s.Frequency, length, s.ZRef))
-	}
-	if err := c.fit(); err != nil {
-		return nil, err
-	}
-	return c, nil
+	return sols, nil
 }
 
 func newPoint(off float64, sol *Solution, f0, length, zref float64) Point {

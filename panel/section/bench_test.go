@@ -1,0 +1,69 @@
+package section
+
+import (
+	"context"
+	"testing"
+)
+
+// BenchmarkSweep21 times a 21-offset sweep of the demo section (three
+// dielectrics, trapezoidal 1.2 mil traces) at the default accuracy and at
+// 0.05 %, on all cores.
+func BenchmarkSweep21(b *testing.B) {
+	for _, bc := range []struct {
+		name string
+		acc  float64
+	}{{"acc=0.1%", 1e-3}, {"acc=0.05%", 5e-4}} {
+		b.Run(bc.name, func(b *testing.B) {
+			s := demoSection()
+			offs := DefaultOffsets(s, 0)
+			set := &Settings{Accuracy: bc.acc}
+			b.ReportAllocs()
+			var c *Curve
+			for b.Loop() {
+				var err error
+				c, err = Sweep(context.Background(), s, offs, set)
+				if err != nil {
+					b.Fatal(err)
+				}
+			}
+			p := c.Points[len(c.Points)/2].Convergence
+			b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N)/float64(len(offs)), "ms/offset")
+			b.ReportMetric(float64(p.Unknowns), "unknowns")
+			b.ReportMetric(float64(p.Iterations), "steps")
+			b.ReportMetric(p.EstimatedError, "est-err")
+		})
+	}
+}
+
+// BenchmarkSolve times one offset of the demo section (three mesh levels,
+// each with and without dielectrics).
+func BenchmarkSolve(b *testing.B) {
+	s := demoSection()
+	b.ReportAllocs()
+	var sol *Solution
+	for b.Loop() {
+		var err error
+		if sol, err = Solve(s, 0, nil); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(sol.Convergence.Unknowns), "unknowns")
+	b.ReportMetric(float64(sol.Convergence.BandWidth), "bandwidth")
+}
+
+// BenchmarkCoupling times the interpolant that Monte Carlo calls.
+func BenchmarkCoupling(b *testing.B) {
+	c := syntheticCurve(b)
+	b.ReportAllocs()
+	x, sum := -4*testMil, 0.0
+	for b.Loop() {
+		sum += c.Coupling(x)
+		x += 1e-9
+		if x > 4*testMil {
+			x = -4 * testMil
+		}
+	}
+	sink = sum
+}
+
+var sink float64
