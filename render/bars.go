@@ -25,10 +25,12 @@ type BarChart struct {
 // about two text lines per bar.
 func (b *BarChart) Render(width, height int) *Canvas {
 	n := len(b.Values)
+	width = max(width, minSide)
 	em := math.Max(10, float64(width)/64)
 	if height <= 0 {
 		height = int(math.Ceil((marginEm*2 + 2.2 + 3.4 + 1.0 + 2.2*float64(n)) * em))
 	} else {
+		height = max(height, minSide)
 		em = math.Max(10, math.Min(float64(width), 1.4*float64(height))/64)
 	}
 	c := newCanvas(width, height, em)

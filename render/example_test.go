@@ -38,7 +38,7 @@ func Example() {
 	p := &render.Plot{
 		Title:  "Coupling against offset",
 		XLabel: "offset [mil]",
-		Panels: []*render.Axes{{
+		Axes: []*render.Axes{{
 			YLabel: "coupling [dB]",
 			Lines:  []render.Line{{Label: "coupling", X: []float64{-2, -1, 0, 1, 2}, Y: []float64{-3.4, -3.1, -3.0, -3.1, -3.4}}},
 			Bands:  []render.Band{{Lo: -3.25, Hi: -2.75, Label: "spec"}},

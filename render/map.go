@@ -21,8 +21,8 @@ var (
 // MapSpec describes the layout of a panel map. Zero fields take the
 // defaults stated beside them.
 type MapSpec struct {
-	// Width is the image width in pixels; 0 means 2400. Text, margins and
-	// line widths scale with it.
+	// Width is the image width in pixels; 0 means 2400, and widths below
+	// 200 are raised to 200. Text, margins and line widths scale with it.
 	Width int
 	// Extent is the part of the panel each view shows, in metres in panel
 	// coordinates (usually the panel outline); a small margin is added
@@ -85,6 +85,7 @@ func NewMap(spec MapSpec) *Map {
 	if w <= 0 {
 		w = 2400
 	}
+	w = max(w, minSide)
 	n := max(spec.Views, 1)
 	unit := spec.Unit
 	if unit.Metres == 0 {

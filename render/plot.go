@@ -15,8 +15,9 @@ type Plot struct {
 	XLabel string // quantity and unit, e.g. "offset [mil]"
 	// XMin and XMax fix the x range; when both are zero it covers the data.
 	XMin, XMax float64
-	// Panels are drawn top to bottom; only the bottom one has x labels.
-	Panels []*Axes
+	// Axes are the panels of the plot, drawn top to bottom; only the
+	// bottom one has x tick labels.
+	Axes []*Axes
 }
 
 // Axes is one panel of a Plot.
@@ -129,6 +130,10 @@ func IntegerHist(label string, data []int) Hist {
 	return h
 }
 
+// minSide is the smallest width or height of a plot or map, in pixels:
+// below it the fixed margins leave no room to draw.
+const minSide = 200
+
 // DefaultBand is the fill of a Band without a colour.
 var DefaultBand = color.NRGBA{60, 170, 90, 46}
 
@@ -159,7 +164,7 @@ func (p *Plot) xRange() (float64, float64) {
 		return p.XMin, p.XMax
 	}
 	lo, hi := math.Inf(1), math.Inf(-1)
-	for _, a := range p.Panels {
+	for _, a := range p.Axes {
 		for _, l := range a.Lines {
 			finiteRange(&lo, &hi, l.X...)
 		}
@@ -215,9 +220,11 @@ func (a *Axes) yRange(x0, x1 float64) (float64, float64) {
 	return lo - pad, hi + pad
 }
 
-// Render draws the plot on a width x height canvas. Text scales with the
-// smaller of the width and 1.4 times the height.
+// Render draws the plot on a width x height canvas (at least minSide on
+// each side). Text scales with the smaller of the width and 1.4 times the
+// height.
 func (p *Plot) Render(width, height int) *Canvas {
+	width, height = max(width, minSide), max(height, minSide)
 	em := math.Max(10, math.Min(float64(width), 1.4*float64(height))/64)
 	c := newCanvas(width, height, em)
 	margin := marginEm * em
@@ -241,13 +248,16 @@ func (p *Plot) Render(width, height int) *Canvas {
 	}
 	var preps []prepared
 	var weights float64
-	for _, a := range p.Panels {
+	for _, a := range p.Axes {
 		weights += weightOf(a)
 	}
+	if weights == 0 {
+		return c
+	}
 	gap := 1.3 * em
-	avail := bottom - top - gap*float64(max(len(p.Panels)-1, 0))
+	avail := bottom - top - gap*float64(max(len(p.Axes)-1, 0))
 	labelW := 0.0
-	for _, a := range p.Panels {
+	for _, a := range p.Axes {
 		y0, y1 := a.yRange(x0, x1)
 		h := avail * weightOf(a) / weights
 		ticks, step := Ticks(y0, y1, clampInt(int(h/(2.2*em)), 2, 10))

@@ -94,7 +94,7 @@ func demoSweep() *Plot {
 	return &Plot{
 		Title:  "Coupling against offset — section hybrid (demo)",
 		XLabel: "offset [mil]",
-		Panels: []*Axes{
+		Axes: []*Axes{
 			{YLabel: "coupling [dB]", Weight: 2,
 				Lines:  []Line{{Label: "coupling", X: x, Y: c}},
 				Bands:  []Band{{Lo: -3.25, Hi: -2.75, Label: "spec −3.00 ± 0.25 dB"}},
@@ -125,7 +125,7 @@ func TestPlotRender(t *testing.T) {
 		}
 		lines = append(lines, Line{Label: fmt.Sprintf("Δw = %d mil", k), X: x, Y: y})
 	}
-	tol := &Plot{Title: "Tolerance study (demo)", XLabel: "offset [mil]", Panels: []*Axes{{
+	tol := &Plot{Title: "Tolerance study (demo)", XLabel: "offset [mil]", Axes: []*Axes{{
 		YLabel: "coupling [dB]", Lines: lines, Bands: []Band{{Lo: -3.25, Hi: -2.75, Label: "spec"}}}}}
 	save(t, "tol.png", tol.Render(1600, 1000))
 
@@ -135,7 +135,7 @@ func TestPlotRender(t *testing.T) {
 		good = append(good, 700+int(math.Round(r.NormFloat64()*6)))
 	}
 	h := IntegerHist("panels", good)
-	parts := &Plot{Title: "Good parts per panel (demo)", XLabel: "good parts per panel", Panels: []*Axes{{
+	parts := &Plot{Title: "Good parts per panel (demo)", XLabel: "good parts per panel", Axes: []*Axes{{
 		YLabel: "panels", Hists: []Hist{h}, VLines: []VLine{{X: 700, Label: "mean 700.1"}, {X: 690, Label: "5 % quantile 690"}}}}}
 	save(t, "parts.png", parts.Render(1600, 1000))
 
@@ -143,4 +143,61 @@ func TestPlotRender(t *testing.T) {
 		Labels: []string{"core C2 movement: scale_y", "L3 imaging: offset_x", "lamination shift: offset_x", "L4 imaging: rotation", "site random"},
 		Values: []float64{46.2, 21.5, 17.9, 9.1, 5.3}}
 	save(t, "budget.png", bc.Render(1600, 0))
+}
+
+// TestDegenerate feeds awkward input to every drawing call; none may panic
+// and every image keeps its requested size (or the minimum).
+func TestDegenerate(t *testing.T) {
+	nan := math.NaN()
+	plots := map[string]*Plot{
+		"empty":     {},
+		"no data":   {Axes: []*Axes{{}}},
+		"one point": {Axes: []*Axes{{Lines: []Line{{X: []float64{1}, Y: []float64{2}, Marker: Square}}}}},
+		"flat":      {Axes: []*Axes{{Lines: []Line{{X: []float64{0, 1, 2}, Y: []float64{5, 5, 5}, Marker: Triangle}}}}},
+		"nan":       {Axes: []*Axes{{Lines: []Line{{X: []float64{0, nan, 2, 3}, Y: []float64{1, 2, nan, 4}, Marker: Diamond}}}}},
+		"ragged":    {Axes: []*Axes{{Lines: []Line{{X: []float64{0, 1, 2}, Y: []float64{1}}}, Hists: []Hist{{Edges: []float64{0, 1}, Counts: []float64{3, 4, 5}}}}}},
+		"hist":      {Axes: []*Axes{{Hists: []Hist{IntegerHist("x", nil), IntegerHist("y", []int{4})}}}},
+		"fixed":     {XMin: 10, XMax: 0, Axes: []*Axes{{YMin: 1, YMax: 1, VLines: []VLine{{X: 5, Label: "v"}}, HLines: []HLine{{Y: 1, Label: "h"}}}}},
+	}
+	for name, p := range plots {
+		t.Run(name, func(t *testing.T) {
+			if b := p.Render(50, 40).Bounds(); b.Dx() != minSide || b.Dy() != minSide {
+				t.Errorf("bounds %v", b)
+			}
+			p.Render(640, 480)
+		})
+	}
+	(&BarChart{}).Render(0, 0)
+	(&BarChart{Values: []float64{-1, nan, 2}, Labels: []string{"a"}}).Render(500, 300)
+
+	m := NewMap(MapSpec{Width: 10, Extent: Centered(1, 0.01), Title: []string{"t"}, Views: 3})
+	if m.Bounds().Dx() != minSide {
+		t.Errorf("map width %d", m.Bounds().Dx())
+	}
+	v := m.Views[0]
+	v.Field(Centered(2, 2), func(x, y float64) float64 { return nan }, Diverging, 0, 0)
+	g := NewGrid(Centered(1, 1), 3, 3, func(x, y float64) float64 { return nan })
+	v.FieldGrid(g, Sequential, 0, 1)
+	v.Contour(g, 0.5, LineStyle{}, "c")
+	v.Bars(nil, BarStyle{})
+	v.Bars([]Bar{{Length: 0, Angle: 1}}, BarStyle{})
+	v.Markers([]Marker{{Label: ""}, {Label: "1"}})
+	v.Arrows([]Arrow{{}}, ArrowStyle{})
+	v.ScaleArrow(0, "", ArrowStyle{})
+	v.Legend(nil, TopLeft)
+	v.Polyline(nil, LineStyle{})
+	m.ColorBar(Sequential, 1, 1, "")
+	if lo, hi := g.Range(); !math.IsNaN(lo) || !math.IsNaN(hi) {
+		t.Errorf("range of NaN grid %g %g", lo, hi)
+	}
+	for _, c := range []struct{ nx, ny int }{{1, 5}, {5, 0}} {
+		func() {
+			defer func() {
+				if recover() == nil {
+					t.Errorf("NewGrid(%d,%d) did not panic", c.nx, c.ny)
+				}
+			}()
+			NewGrid(Centered(1, 1), c.nx, c.ny, nil)
+		}()
+	}
 }
