@@ -22,14 +22,15 @@ import (
 
 // femWork holds the buffers of one solve; a worker reuses it across offsets.
 type femWork struct {
-	m     mesh
-	ke    []float64 // 16 entries per element, geometric stiffness ∫∇Na·∇Nb
-	idx   []int32   // free-node number or -1
-	nfree int
-	kb    int       // half bandwidth
-	band  []float64 // upper band, row-major, kb+1 per row
-	rhs   []float64 // nfree × 2, row-major
-	phi   [2][]float64
+	m      mesh
+	charge [2][2]float64 // charge form of the last capacitance: Q_mn = Σ_{nodes of n} (K·φ_m), F/m
+	ke     []float64     // 16 entries per element, geometric stiffness ∫∇Na·∇Nb
+	idx    []int32       // free-node number or -1
+	nfree  int
+	kb     int       // half bandwidth
+	band   []float64 // upper band, row-major, kb+1 per row
+	rhs    []float64 // nfree × 2, row-major
+	phi    [2][]float64
 }
 
 // gauss2 are the 2-point Gauss–Legendre abscissae ±1/√3 (weights 1).
@@ -220,6 +221,7 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 			}
 		}
 	}
+	var q [2][2]float64
 	// Energy form and residual (K φ restricted to free nodes must vanish).
 	// The residual reuses rhs as scratch: the solution was copied into phi.
 	clear(w.rhs)
@@ -247,9 +249,12 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 				c[0][0] += p0[a] * k0
 				c[0][1] += p0[a] * k1
 				c[1][1] += p1[a] * k1
-				if q := w.idx[na]; q >= 0 {
-					w.rhs[2*q] += k0
-					w.rhs[2*q+1] += k1
+				if f := w.idx[na]; f >= 0 {
+					w.rhs[2*f] += k0
+					w.rhs[2*f+1] += k1
+				} else if t := m.tag[na]; t >= tagTrace {
+					q[0][t-tagTrace] += k0
+					q[1][t-tagTrace] += k1
 				}
 			}
 		}
@@ -268,6 +273,7 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 	for i := range 2 {
 		for j := range 2 {
 			c[i][j] *= Eps0
+			w.charge[i][j] = q[i][j] * Eps0
 		}
 	}
 	return c, resid, nil

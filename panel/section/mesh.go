@@ -28,6 +28,7 @@ const (
 // offset of a sweep.
 type meshPlan struct {
 	g       *geometry
+	level   float64
 	bands   []band    // geometry bands plus the air band for a microstrip
 	ys      []float64 // node row heights, bottom to top
 	rowBand []int     // band of each element row

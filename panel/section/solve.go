@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"runtime"
+	"sync"
 )
 
 // Settings controls the solver. A nil *Settings means all defaults.
@@ -105,13 +106,14 @@ func startLevel(acc float64) float64 {
 // maxLevelSteps bounds the refinement steps (each multiplies the level by √2).
 const maxLevelSteps = 5
 
-var nestedMode = false
-
 // solver holds the state shared by the solves of one section.
 type solver struct {
 	s   *Section
 	g   *geometry
 	acc float64
+
+	mu    sync.Mutex
+	plans map[float64]*meshPlan // by level
 }
 
 func newSolver(s *Section, set *Settings) (*solver, error) {
@@ -194,19 +196,20 @@ func (sv *solver) convErr(sol *Solution) error {
 func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) (*Solution, error) {
 	var conv Convergence
 	conv.Target = sv.acc
+	// The three plans first: an impossible target fails before any solve.
+	var plans [3]*meshPlan
+	for i, l := range [3]float64{lev / 2, lev, 2 * lev} {
+		plans[i] = sv.plan(l)
+		if n := plans[i].unknownsEstimate(); n > maxMeshNodes {
+			return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Target: sv.acc, Unknowns: n, Residual: math.NaN()}
+		}
+	}
 	var lv [3]levelResult
-	for i, mult := range [3]int{1, 2, 4} {
+	for i, p := range plans {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		var r levelResult
-		var err error
-		if nestedMode {
-			r, err = sv.level(off, lev/2, mult, 2*lev, w)
-		} else {
-			l := lev / 2 * float64(mult)
-			r, err = sv.level(off, l, 1, l, w)
-		}
+		r, err := sv.levelPlan(off, p, w)
 		if err != nil {
 			return nil, err
 		}
@@ -232,14 +235,27 @@ type levelResult struct {
 	resid float64
 }
 
+// plan returns the mesh plan of level lev, shared by every offset.
+func (sv *solver) plan(lev float64) *meshPlan {
+	sv.mu.Lock()
+	defer sv.mu.Unlock()
+	if p, ok := sv.plans[lev]; ok {
+		return p
+	}
+	p := newMeshPlan(sv.s, sv.g, lev, 1, lev)
+	p.level = lev
+	if sv.plans == nil {
+		sv.plans = map[float64]*meshPlan{}
+	}
+	sv.plans[lev] = p
+	return p
+}
+
+// level solves one mesh level (tests and studies).
 func (sv *solver) level(off, lev float64, mult int, floorLev float64, w *femWork) (levelResult, error) {
 	p := newMeshPlan(sv.s, sv.g, lev, mult, floorLev)
-	if p.unknownsEstimate() > maxMeshNodes {
-		return levelResult{}, &ConvergenceError{Section: sv.s.Name, Offset: off, Target: sv.acc, Unknowns: p.unknownsEstimate(), Residual: math.NaN()}
-	}
-	r, err := sv.levelPlan(off, p, w)
-	r.Level = lev * float64(mult)
-	return r, err
+	p.level = lev * float64(mult)
+	return sv.levelPlan(off, p, w)
 }
 
 func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, error) {
@@ -247,7 +263,7 @@ func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, 
 	if err := w.prepare(); err != nil {
 		return levelResult{}, err
 	}
-	r := levelResult{MeshLevel: MeshLevel{Level: 0, Unknowns: w.nfree}}
+	r := levelResult{MeshLevel: MeshLevel{Level: p.level, Unknowns: w.nfree}}
 	var err error
 	var r1, r2 float64
 	if r.C, r1, err = w.capacitance(false); err != nil {
