@@ -340,7 +340,7 @@ func drawSweep(w io.Writer, s *section.Section, c *section.Curve, lu lengthUnit)
 		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus lateral offset of %s against %s",
 			s.Name, c.Frequency/1e9, c.Length/lu.factor, lu.name, s.Traces[0].Layer, s.Traces[1].Layer),
 		XLabel: "offset of the upper trace across the lines [" + lu.name + "]",
-		Panels: []*render.Axes{top, mid, bot},
+		Axes:   []*render.Axes{top, mid, bot},
 	}
 	return p.Render(1800, 1500).EncodePNG(w)
 }
