@@ -48,6 +48,6 @@ func Example() {
 	c := p.Render(800, 500)
 	fmt.Println("plot", c.Bounds())
 	// Output:
-	// map (0,0)-(600,954)
+	// map (0,0)-(600,966)
 	// plot (0,0)-(800,500)
 }

@@ -52,7 +52,9 @@ type Map struct {
 	// Views are the panel views from left to right.
 	Views []*View
 
-	bar image.Rectangle
+	bar          image.Rectangle
+	barLo, barHi float64 // range of the colour bar drawn, for marks
+	barDrawn     bool
 }
 
 // View is one drawing of the panel on a Map, mapping panel coordinates in
@@ -137,7 +139,7 @@ func NewMap(spec MapSpec) *Map {
 	xAxisH := 3.8 * em
 	barH := 0.0
 	if !spec.NoColorBar {
-		barH = 6.2 * em
+		barH = 7.4 * em
 	}
 	h := int(math.Ceil(top + ph + xAxisH + barH + margin))
 
@@ -178,7 +180,7 @@ func NewMap(spec MapSpec) *Map {
 			bw = 0.5 * span
 		}
 		bx := float64(first.Min.X) + (span-bw)/2
-		by := float64(first.Max.Y) + xAxisH + 0.6*em
+		by := float64(first.Max.Y) + xAxisH + 1.8*em // room above for marks
 		m.bar = image.Rect(int(bx), int(by), int(bx+bw), int(by+1.1*em))
 	}
 	return m
@@ -227,6 +229,7 @@ func (m *Map) ColorBar(p *Palette, lo, hi float64, label string) {
 	c := m.Canvas
 	b := m.bar
 	bw := b.Dx()
+	m.barLo, m.barHi, m.barDrawn = lo, hi, true
 	for i := range bw {
 		col := p.At(float64(i) / float64(bw-1))
 		for j := b.Min.Y; j < b.Max.Y; j++ {
@@ -252,6 +255,29 @@ func (m *Map) ColorBar(p *Palette, lo, hi float64, label string) {
 	c.applyLine(LineStyle{Color: Frame})
 	c.dc.Stroke()
 	c.text(label, (fb.x0+fb.x1)/2, fb.y1+tl+2.1*em, 0.5, 0, textStyle{})
+}
+
+// ColorBarMark marks value v on the colour bar drawn by ColorBar with a
+// line across the bar and label above it, such as a spec limit. Values
+// outside the bar's range, and calls before ColorBar, draw nothing.
+func (m *Map) ColorBarMark(v float64, label string) {
+	lo, hi := m.barLo, m.barHi
+	if !m.barDrawn || hi == lo || (v-lo)*(v-hi) > 0 {
+		return
+	}
+	c := m.Canvas
+	b := m.bar
+	x := float64(b.Min.X) + 0.5 + (v-lo)/(hi-lo)*float64(b.Dx()-1)
+	y0, y1 := float64(b.Min.Y)-0.35*c.em, float64(b.Max.Y)
+	c.applyLine(LineStyle{Color: Halo, Width: 3 * c.thin()})
+	c.dc.DrawLine(x, y0, x, y1)
+	c.dc.Stroke()
+	c.applyLine(LineStyle{Color: Ink, Width: 1.5 * c.thin()})
+	c.dc.DrawLine(x, y0, x, y1)
+	c.dc.Stroke()
+	if label != "" {
+		c.text(label, x, y0-0.3*c.em, 0.5, 1, textStyle{size: 0.8})
+	}
 }
 
 // ColorBarRect returns the pixel rectangle of the colour bar (empty with

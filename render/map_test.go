@@ -84,6 +84,8 @@ func drawDemoMap(width, sites int) *Map {
 	}
 	v.Markers(ms)
 	m.ColorBar(Diverging, lo*1e6, hi*1e6, "broadside offset [µm]")
+	m.ColorBarMark(-8.6, "spec −8.6")
+	m.ColorBarMark(9.1, "spec +9.1")
 	return m
 }
 

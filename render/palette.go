@@ -127,7 +127,11 @@ var Diverging = NewPalette("diverging", divergingCurve)
 
 func divergingCurve(t float64) LCh {
 	u := math.Abs(2*t - 1) // 0 at the centre, 1 at either end
-	c := LCh{L: divMidL + (divEndL-divMidL)*u, C: 0.17 * math.Pow(u, 0.7)}
+	// Chroma rises from neutral, peaks at 0.16 near u = 0.6 and eases to
+	// 0.094 at the ends, staying just inside the sRGB gamut of both hues
+	// all the way: a curve that ran into the gamut boundary would be cut
+	// there, and the kink shows as a band in a smooth field.
+	c := LCh{L: divMidL + (divEndL-divMidL)*u, C: 0.16 * math.Sin(0.8*math.Pi*math.Pow(u, 1.1))}
 	if t < 0.5 {
 		c.H = 262 - 12*u // blue, leaning slightly to cyan towards the centre
 	} else {

@@ -127,20 +127,25 @@ func TestPaletteEnds(t *testing.T) {
 	}
 }
 
-// TestPaletteGamut checks that the curve colours were pulled inside the
-// sRGB gamut before quantisation: re-encoding each entry's OKLab value
-// reproduces the entry, so nothing was clipped on the way out.
+// TestPaletteGamut checks that each palette stays inside the sRGB gamut
+// without bending its design: every 8-bit entry has the design lightness
+// (to rounding), and the design chroma is cut at the gamut boundary by at
+// most 0.01 anywhere, so no visible kink appears where the cut starts.
 func TestPaletteGamut(t *testing.T) {
+	const maxCut = 0.01 // OKLab chroma; a just-noticeable difference is about 0.02
 	for _, p := range []*Palette{Sequential, Diverging} {
-		clipped := 0
+		curve := paletteCurve(p)
 		for i := 0; i < lutSize; i++ {
-			lab := gamutLimited(paletteCurve(p)(float64(i) / (lutSize - 1)))
-			if !lab.InGamut() {
-				clipped++
+			c := curve(float64(i) / (lutSize - 1))
+			if got := LabOf(p.lut[i]).L; math.Abs(got-c.L) > quantStep {
+				t.Errorf("%s entry %d: L %.4f, designed %.4f", p.Name, i, got, c.L)
 			}
-		}
-		if clipped > 0 {
-			t.Errorf("%s: %d entries outside the sRGB gamut", p.Name, clipped)
+			if cut := c.C - maxChroma(c.L, c.H); cut > maxCut {
+				t.Errorf("%s entry %d: chroma cut by %.4f at the gamut boundary", p.Name, i, cut)
+			}
+			if !gamutLimited(c).InGamut() {
+				t.Errorf("%s entry %d outside the sRGB gamut", p.Name, i)
+			}
 		}
 	}
 }
