@@ -154,6 +154,9 @@ func (s *Section) Validate() error {
 				return s.fieldErr(key+".name", "copper layer %q repeats layer %d", l.Name, j)
 			}
 			names[l.Name] = i
+			if i > 0 && ls[i-1].Kind == Copper {
+				return s.fieldErr(key, "copper layer %q touches copper layer %q: a dielectric must separate them", l.Name, ls[i-1].Name)
+			}
 		default:
 			return s.fieldErr(key, "unknown layer kind %d", int(l.Kind))
 		}
