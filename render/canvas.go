@@ -103,7 +103,9 @@ type textStyle struct {
 	size  float64 // in em; 0 means 1
 	bold  bool
 	color color.Color // nil means Ink
-	halo  bool        // draw a white outline behind the glyphs
+	halo  bool        // draw an outline behind the glyphs
+	// haloColor is the colour of the outline; nil means Halo (white).
+	haloColor color.Color
 }
 
 func (c *Canvas) setFont(ts textStyle) float64 {
@@ -135,7 +137,11 @@ func (c *Canvas) text(s string, x, y, ax, ay float64, ts textStyle) {
 	x -= ax * w
 	base := y + (1-ay)*capHeight*px
 	if ts.halo {
-		c.dc.SetColor(Halo)
+		if ts.haloColor != nil {
+			c.dc.SetColor(ts.haloColor)
+		} else {
+			c.dc.SetColor(Halo)
+		}
 		r := math.Max(1, 0.09*px)
 		for k := range 12 {
 			a := float64(k) * math.Pi / 6

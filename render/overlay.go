@@ -194,22 +194,62 @@ func (v *View) Markers(ms []Marker) {
 		x, y := v.Pixel(m.At)
 		taken = append(taken, box{x - r, y - r, x + r, y + r})
 	}
-	for _, m := range ms {
+	places := v.placeMarkerLabels(ms, taken)
+	// Sample the background first: a ring over a dark field is drawn white
+	// on a dark halo, and its label likewise.
+	ringDark := make([]bool, len(ms))
+	labelDark := make([]bool, len(ms))
+	for k, m := range ms {
 		x, y := v.Pixel(m.At)
-		dc.DrawCircle(x, y, r)
+		ringDark[k] = c.darkAround(x, y, r)
+		b := places[k].box
+		labelDark[k] = c.darkAround((b.x0+b.x1)/2, (b.y0+b.y1)/2, (b.x1-b.x0)/2)
 	}
 	dc.SetDash()
-	dc.SetColor(Halo)
-	dc.SetLineWidth(lw + 2*math.Max(1, lw/2))
-	dc.StrokePreserve()
-	dc.SetColor(Ink)
-	dc.SetLineWidth(lw)
-	dc.Stroke()
-
-	ts := markerText
-	for k, p := range v.placeMarkerLabels(ms, taken) {
+	for k, m := range ms {
+		x, y := v.Pixel(m.At)
+		fg, bg := contrast(ringDark[k])
+		dc.DrawCircle(x, y, r)
+		dc.SetColor(bg)
+		dc.SetLineWidth(lw + 2*math.Max(1.5, 0.6*lw))
+		dc.StrokePreserve()
+		dc.SetColor(fg)
+		dc.SetLineWidth(lw)
+		dc.Stroke()
+	}
+	for k, p := range places {
+		if ms[k].Label == "" {
+			continue
+		}
+		ts := markerText
+		ts.color, ts.haloColor = contrast(labelDark[k])
 		c.text(ms[k].Label, p.x, p.y, p.ax, p.ay, ts)
 	}
+}
+
+// contrast returns the ink and halo colours for marks over a dark or a
+// light background.
+func contrast(dark bool) (fg, bg color.Color) {
+	if dark {
+		return Halo, Ink
+	}
+	return Ink, Halo
+}
+
+// darkAround reports whether the pixels on a circle of radius r around
+// (x, y) are dark on average (BT.709 luma below one half).
+func (c *Canvas) darkAround(x, y, r float64) bool {
+	var sum float64
+	n := 0
+	for k := range 16 {
+		a := float64(k) * math.Pi / 8
+		p := image.Pt(int(x+r*math.Cos(a)), int(y+r*math.Sin(a)))
+		if p.In(c.img.Rect) {
+			sum += Luma(c.img.RGBAAt(p.X, p.Y))
+			n++
+		}
+	}
+	return n > 0 && sum/float64(n) < 0.5
 }
 
 var markerText = textStyle{size: 0.9, bold: true, halo: true}

@@ -190,3 +190,24 @@ func TestBarPixels(t *testing.T) {
 		}
 	}
 }
+
+// TestMarkerContrast checks that a ring is dark over a light field and
+// light over a dark one.
+func TestMarkerContrast(t *testing.T) {
+	panel := Centered(0.2, 0.2)
+	for _, dark := range []bool{false, true} {
+		m := NewMap(MapSpec{Width: 600, Extent: panel, NoColorBar: true})
+		v := m.Views[0]
+		val := 0.0
+		if dark {
+			val = 1
+		}
+		v.Field(panel, func(x, y float64) float64 { return val }, Sequential, 0, 1)
+		v.Markers([]Marker{{At: Point{}, Label: "1"}})
+		x, y := v.Pixel(Point{})
+		ring := Luma(m.img.RGBAAt(int(x+0.6*m.TextSize()), int(y)))
+		if dark && ring < 0.8 || !dark && ring > 0.2 {
+			t.Errorf("dark field %v: ring luma %.2f", dark, ring)
+		}
+	}
+}

@@ -71,7 +71,7 @@ type Line struct {
 	Label  string
 	X, Y   []float64
 	Color  color.Color // nil means the next Qualitative colour
-	Width  float64     // pixels; 0 means about a sixth of the text size
+	Width  float64     // pixels; 0 means about a sixth of the text size, < 0 draws markers only
 	Dash   []float64   // in multiples of the line width; nil means solid
 	Marker MarkerShape
 }
@@ -389,10 +389,14 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 				pen = true
 			}
 		}
-		c.applyLine(LineStyle{Color: col, Width: w, Dash: dash})
-		dc.SetLineCapRound()
-		dc.Stroke()
-		dc.SetDash()
+		if l.Width < 0 {
+			dc.ClearPath()
+		} else {
+			c.applyLine(LineStyle{Color: col, Width: w, Dash: dash})
+			dc.SetLineCapRound()
+			dc.Stroke()
+			dc.SetDash()
+		}
 		if l.Marker != NoMarker {
 			r := math.Max(2.5, 0.28*em)
 			for k := 0; k < len(l.X) && k < len(l.Y); k++ {
@@ -406,7 +410,11 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			dc.Stroke()
 		}
 		if l.Label != "" {
-			legend = append(legend, LegendItem{Label: l.Label, Kind: LegendLine, Color: col, Dash: dash, Width: w})
+			item := LegendItem{Label: l.Label, Kind: LegendLine, Color: col, Dash: dash, Width: w}
+			if l.Width < 0 {
+				item.Kind = LegendDot
+			}
+			legend = append(legend, item)
 		}
 	}
 	// Vertical markers: labels at the top, moved down a row when they would
