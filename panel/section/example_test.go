@@ -69,4 +69,3 @@ func ExampleSweep() {
 	// offset 0.0 mil: coupling -4.036 dB
 	// offset 1.5 mil: coupling -4.081 dB
 }
-

@@ -175,9 +175,21 @@ func (m *monotoneCubic) Fit(xs, ys []float64) error {
 		sec[i] = (ys[i+1] - ys[i]) / (xs[i+1] - xs[i])
 	}
 	if n >= 3 {
-		var sp interp.NotAKnotCubic
-		if err := sp.Fit(xs, ys); err != nil {
-			return err
+		// gonum's not-a-knot system is singular for three points (one cubic
+		// through three points is not unique); there the natural spline serves.
+		var sp interp.DerivativePredictor
+		if n >= 4 {
+			var nak interp.NotAKnotCubic
+			if err := nak.Fit(xs, ys); err != nil {
+				return err
+			}
+			sp = &nak
+		} else {
+			var nat interp.NaturalCubic
+			if err := nat.Fit(xs, ys); err != nil {
+				return err
+			}
+			sp = &nat
 		}
 		for i, x := range xs {
 			d[i] = sp.PredictDerivative(x)
