@@ -97,13 +97,9 @@ type yieldSetup struct {
 	warnings []string
 }
 
-// setupYield solves (or reads from the cache) each used section's curve over
-// the offsets its sites can reach and inverts it against the spec.
-func setupYield(ctx context.Context, j *Job, sf *solverFlags) (*yieldSetup, error) {
-	set, err := sf.settings()
-	if err != nil {
-		return nil, err
-	}
+// newYieldSetup prepares the registration side of a yield study of j: the
+// sites, their rows and parts. The allowed intervals are left empty.
+func newYieldSetup(j *Job) *yieldSetup {
 	n := len(j.Sections)
 	ys := &yieldSetup{job: j, secIndex: map[string]int{}, curves: make([]*section.Curve, n),
 		allowed: make([]registration.Interval, n), limits: make([]registration.SpecLimits, n),
@@ -115,10 +111,29 @@ func setupYield(ctx context.Context, j *Job, sf *solverFlags) (*yieldSetup, erro
 	for k, s := range j.Sites {
 		sec := j.Sections[ys.secIndex[s.Section]]
 		sites[k] = registration.YieldSite{Pos: s.Pos, U: s.U, Upper: sec.Traces[0].Layer, Lower: sec.Traces[1].Layer,
-			Nominal: sec.NominalOffset(), Part: s.Instance}
+			Nominal: sec.NominalOffset(), Part: s.Instance, Allowed: registration.EmptyInterval()}
 		ys.used[ys.secIndex[s.Section]] = true
 	}
 	ys.y = registration.NewYield(j.Model, sites, len(j.Instances))
+	return ys
+}
+
+// setAllowed gives every site the allowed interval of its section.
+func (ys *yieldSetup) setAllowed() {
+	for k, s := range ys.job.Sites {
+		ys.y.Sites[k].Allowed = ys.allowed[ys.secIndex[s.Section]]
+	}
+}
+
+// setupYield solves (or reads from the cache) each used section's curve over
+// the offsets its sites can reach and inverts it against the spec.
+func setupYield(ctx context.Context, j *Job, sf *solverFlags) (*yieldSetup, error) {
+	set, err := sf.settings()
+	if err != nil {
+		return nil, err
+	}
+	n := len(j.Sections)
+	ys := newYieldSetup(j)
 	span := make([]float64, n)
 	for k, s := range j.Sites {
 		si := ys.secIndex[s.Section]
@@ -146,9 +161,7 @@ func setupYield(ctx context.Context, j *Job, sf *solverFlags) (*yieldSetup, erro
 		}
 		ys.allowed[i], ys.limits[i] = iv, lim
 	}
-	for k, s := range j.Sites {
-		ys.y.Sites[k].Allowed = ys.allowed[ys.secIndex[s.Section]]
-	}
+	ys.setAllowed()
 	return ys, nil
 }
 

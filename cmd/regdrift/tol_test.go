@@ -1,0 +1,183 @@
+package main
+
+import (
+	"encoding/json"
+	"math"
+	"math/cmplx"
+	"os"
+	"strings"
+	"testing"
+
+	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/panel/unit"
+)
+
+// TestTolRoundTrip: at each offset tol returns, an independent direct field
+// solve gives the spec limit within 0.001 dB; the tolerance is the smaller
+// distance from the design offset to the two limits.
+func TestTolRoundTrip(t *testing.T) {
+	job := writeJob(t, yieldJob)
+	code, out, errs := run(t, "tol", job, "--accuracy", "1%", "-o", t.TempDir(), "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var r tolJSON
+	if err := json.Unmarshal([]byte(out), &r); err != nil {
+		t.Fatal(err)
+	}
+	if len(r.Sections) != 1 {
+		t.Fatalf("%d sections", len(r.Sections))
+	}
+	st := r.Sections[0]
+	if !st.DesignInSpec || st.OffsetLowM == nil || st.OffsetHighM == nil || st.LimitLowDB == nil || st.LimitHighDB == nil {
+		t.Fatalf("section result %+v", st)
+	}
+	j, err := loadJob(job, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := j.Sections[0]
+	set := &section.Settings{Accuracy: 0.01}
+	// The coupled length is the quarter wave the command's curve used.
+	c, _, err := section.CachedSweep(t.Context(), s, section.DefaultOffsets(s, 0), set, cacheDir(t), false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for k, x := range []float64{*st.OffsetLowM, *st.OffsetHighM} {
+		limit := []float64{*st.LimitLowDB, *st.LimitHighDB}[k]
+		if want := s.Spec.Coupling - s.Spec.Tolerance; limit != want && limit != s.Spec.Coupling+s.Spec.Tolerance {
+			t.Errorf("end %d: limit %g dB is not a spec limit", k, limit)
+		}
+		sol, err := section.Solve(s, x, set)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := 20 * math.Log10(cmplx.Abs(section.NewLines(sol.C, sol.C0).SParams(c.Frequency, c.Length, c.ZRef).S31))
+		if math.Abs(got-limit) > 0.001 {
+			t.Errorf("end %d at %.4f mil: solved coupling %.5f dB, limit %.3f dB", k, x/unit.Mil, got, limit)
+		}
+	}
+	nom := st.DesignOffsetM
+	if want := math.Min(nom-*st.OffsetLowM, *st.OffsetHighM-nom); math.Abs(st.ToleranceM-want) > 1e-15 {
+		t.Errorf("tolerance %g, want %g", st.ToleranceM, want)
+	}
+	// A centred equal-width pair is mirror-symmetric: the two ends are too.
+	if d := *st.OffsetLowM + *st.OffsetHighM; math.Abs(d) > 0.01*unit.Mil {
+		t.Errorf("ends %g and %g m are not symmetric", *st.OffsetLowM, *st.OffsetHighM)
+	}
+}
+
+// TestTolWiden: widening one trace of a broadside pair keeps the narrow
+// trace over the wide one as they slide, so the offset tolerance grows (the
+// offset-tolerant broadside technique, common practice), both against the
+// job's spec and re-centred on the widened design's coupling.
+func TestTolWiden(t *testing.T) {
+	job := writeJob(t, yieldJob)
+	for _, tr := range []struct {
+		flag  string
+		index int
+	}{{"lower", 1}, {"upper", 0}} {
+		t.Run(tr.flag, func(t *testing.T) {
+			if testing.Short() && tr.flag == "upper" {
+				t.Skip("one trace is enough with -short")
+			}
+			code, out, errs := run(t, "tol", job, "--accuracy", "1%", "--widen", "0mil:4mil:2mil", "--widen-trace", tr.flag, "-o", t.TempDir(), "--json")
+			if code != 0 {
+				t.Fatalf("exit %d: %s", code, errs)
+			}
+			var r tolJSON
+			if err := json.Unmarshal([]byte(out), &r); err != nil {
+				t.Fatal(err)
+			}
+			rows := r.Sections[0].Widen
+			if len(rows) != 3 {
+				t.Fatalf("%d widen rows", len(rows))
+			}
+			for k, row := range rows {
+				if want := (14 + 2*float64(k)) * unit.Mil; math.Abs(row.WidthM-want) > 1e-12 || row.Trace != tr.flag {
+					t.Errorf("row %d: %s width %g m, want %s %g", k, row.Trace, row.WidthM, tr.flag, want)
+				}
+				if k == 0 {
+					if math.Abs(row.ToleranceM-r.Sections[0].ToleranceM) > 0.002*unit.Mil {
+						t.Errorf("Δw = 0: tolerance %g, section %g", row.ToleranceM, r.Sections[0].ToleranceM)
+					}
+					continue
+				}
+				prev := rows[k-1]
+				if !(row.ToleranceM > prev.ToleranceM) || !(row.ToleranceRetuneM > prev.ToleranceRetuneM) {
+					t.Errorf("Δw %.0f mil: tolerance %.3f (re-tuned %.3f) mil does not grow from %.3f (%.3f)",
+						row.DeltaWM/unit.Mil, row.ToleranceM/unit.Mil, row.ToleranceRetuneM/unit.Mil, prev.ToleranceM/unit.Mil, prev.ToleranceRetuneM/unit.Mil)
+				}
+				// The widened line's impedance falls (more capacitance to its plane).
+				if !(row.ZLineOhm[tr.index] < prev.ZLineOhm[tr.index]) {
+					t.Errorf("Δw %.0f mil: widened line impedance %.2f ohm, was %.2f", row.DeltaWM/unit.Mil, row.ZLineOhm[tr.index], prev.ZLineOhm[tr.index])
+				}
+			}
+		})
+	}
+}
+
+func TestTolBadInput(t *testing.T) {
+	edge := []string{
+		`{ layer = "L3", width = "14 mil", etch = "0.6 mil" },
+  { layer = "L4", width = "14 mil", etch = "0.6 mil" },`,
+		`{ layer = "L3", width = "14 mil", etch = "0.6 mil", x = "-10 mil" },
+  { layer = "L3", width = "14 mil", etch = "0.6 mil", x = "10 mil" },`,
+	}
+	tests := []struct {
+		name  string
+		repl  []string
+		args  []string
+		words []string
+	}{
+		{"negative width", nil, []string{"--widen", "-20mil:-10mil:10mil"}, []string{"--widen", "traces[1].width"}},
+		{"etch leaves no width", nil, []string{"--widen", "-13mil:-13mil:1mil", "--widen-trace", "upper"}, []string{"--widen", "traces[0]"}},
+		{"overlap", edge, []string{"--widen", "0mil:14mil:7mil"}, []string{"--widen", "traces[1].x", "overlap"}},
+		{"bad trace", nil, []string{"--widen", "0mil:1mil:1mil", "--widen-trace", "middle"}, []string{"--widen-trace"}},
+		{"bad range", nil, []string{"--widen", "0:1mil"}, []string{"--widen"}},
+		{"bare number", nil, []string{"--widen", "0:1:1"}, []string{"--widen"}},
+		{"unknown section", nil, []string{"--section", "nope"}, []string{"--section", "nope"}},
+		{"zero tolerance", []string{`tolerance = "0.12 dB"`, `tolerance = "0 dB"`}, nil, []string{"job.toml", "spec.tolerance"}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			job := writeJob(t, yieldJob, tt.repl...)
+			dir := t.TempDir()
+			code, _, errs := run(t, append([]string{"tol", job, "--accuracy", "1%", "-o", dir}, tt.args...)...)
+			if code != exitBadInput {
+				t.Fatalf("exit %d, want %d: %s", code, exitBadInput, errs)
+			}
+			for _, w := range tt.words {
+				if !strings.Contains(errs, w) {
+					t.Errorf("message %q does not name %q", errs, w)
+				}
+			}
+			if ents, _ := os.ReadDir(dir); len(ents) != 0 {
+				t.Errorf("a failed run left %d files", len(ents))
+			}
+		})
+	}
+}
+
+// TestTolDesignOutOfSpec: a design outside its spec is a warning with no
+// tolerance, not a crash; --strict makes it exit 3.
+func TestTolDesignOutOfSpec(t *testing.T) {
+	job := writeJob(t, yieldJob, `coupling = "-3.0 dB"`, `coupling = "-3.5 dB"`)
+	code, out, errs := run(t, "tol", job, "--accuracy", "1%", "-o", t.TempDir(), "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if !strings.Contains(errs, "warning") || !strings.Contains(errs, "outside its spec") {
+		t.Errorf("no clear warning: %q", errs)
+	}
+	var r tolJSON
+	if err := json.Unmarshal([]byte(out), &r); err != nil {
+		t.Fatal(err)
+	}
+	if st := r.Sections[0]; st.DesignInSpec || st.OffsetLowM != nil || st.ToleranceM != 0 {
+		t.Errorf("out-of-spec section %+v", st)
+	}
+	if code, _, _ := run(t, "tol", job, "--accuracy", "1%", "-o", t.TempDir(), "--strict"); code != exitOutOfSpec {
+		t.Errorf("--strict: exit %d, want %d", code, exitOutOfSpec)
+	}
+}
