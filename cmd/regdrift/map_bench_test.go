@@ -1,0 +1,65 @@
+package main
+
+import (
+	"bytes"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// bigJob returns the same-core demo stackup and error model with 100 x 50
+// parts of two couplers each: 10,000 sites on an 18 x 24 in panel.
+func bigJob(b *testing.B) string {
+	src, err := os.ReadFile("../../samples/same-core.toml")
+	if err != nil {
+		b.Fatal(err)
+	}
+	s := string(src)
+	i := strings.Index(s, "[[part]]")
+	k := strings.Index(s, "[[contributor]]")
+	parts := `[[part]]
+name     = "tiny"
+size     = ["0.15 in", "0.40 in"]
+couplers = [
+  { name = "A", section = "hybrid", at = ["0.04 in", "0.2 in"], angle = "90 deg" },
+  { name = "B", section = "hybrid", at = ["0.11 in", "0.2 in"], angle = "90 deg" },
+]
+
+[[array]]
+part   = "tiny"
+count  = [100, 50]
+pitch  = ["0.16 in", "0.44 in"]
+center = ["0 in", "0 in"]
+
+`
+	dir := b.TempDir()
+	path := filepath.Join(dir, "big.toml")
+	if err := os.WriteFile(path, []byte(s[:i]+parts+s[k:]), 0o644); err != nil {
+		b.Fatal(err)
+	}
+	return path
+}
+
+// BenchmarkMap10k times "regdrift map" end to end on 10,000 sites with a
+// 3000-pixel heatmap, the field solve cached: job parsing, site expansion,
+// closed-form statistics, the cached curve, sites.csv, summary.json and the
+// PNG, written to disk.
+func BenchmarkMap10k(b *testing.B) {
+	job := bigJob(b)
+	cache := b.TempDir()
+	out := b.TempDir()
+	args := []string{"map", job, "-o", out, "--width", "3000", "--cache-dir", cache}
+	var o, e bytes.Buffer
+	if code := realMain(args, nil, &o, &e); code != 0 { // solves and fills the cache
+		b.Fatalf("exit %d: %s", code, e.String())
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		o.Reset()
+		if code := realMain(args, nil, &o, &e); code != 0 {
+			b.Fatalf("exit %d: %s", code, e.String())
+		}
+	}
+	b.ReportMetric(b.Elapsed().Seconds()*1e3/float64(b.N), "ms/map")
+}
