@@ -2,6 +2,7 @@ package render
 
 import (
 	"fmt"
+	"image"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -199,5 +200,29 @@ func TestDegenerate(t *testing.T) {
 			}()
 			NewGrid(Centered(1, 1), c.nx, c.ny, nil)
 		}()
+	}
+}
+
+// TestLegendAvoidsData checks that the automatic legend goes to an empty
+// corner: with data only along the top edge, it moves to the bottom.
+func TestLegendAvoidsData(t *testing.T) {
+	var x, y []float64
+	for k := 0; k <= 100; k++ {
+		x = append(x, float64(k))
+		y = append(y, 10)
+	}
+	c := newCanvas(800, 600, 12)
+	area := image.Rect(100, 50, 750, 550)
+	items := []LegendItem{{Label: "series"}}
+	f := plotFrame{area, 0, 100, 0, 10.5}
+	var pts [][2]float64
+	for k := range x {
+		pts = append(pts, [2]float64{f.px(x[k]), f.py(y[k])})
+	}
+	if got := c.quietCorner(area, items, pts); got != BottomLeft && got != BottomRight {
+		t.Errorf("legend went to corner %d, want a bottom corner", got)
+	}
+	if got := c.quietCorner(area, items, nil); got != TopRight {
+		t.Errorf("with no data the legend went to corner %d, want top right", got)
 	}
 }
