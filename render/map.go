@@ -28,9 +28,12 @@ type MapSpec struct {
 	// coordinates (usually the panel outline); a small margin is added
 	// around it. It must have positive width and height.
 	Extent Rect
-	// Views is the number of views side by side, all showing Extent and
-	// sharing one colour bar (two for a before/after comparison); 0 means 1.
+	// Views is the number of views, all showing Extent and sharing one
+	// colour bar (two for a before/after comparison); 0 means 1.
 	Views int
+	// Columns is how many views go side by side before the next row
+	// starts (for one view per layer); 0 means all in one row.
+	Columns int
 	// Title holds the lines of the title block; the first is set in bold.
 	Title []string
 	// Captions, if given, are printed above the views, one per view.
@@ -89,6 +92,11 @@ func NewMap(spec MapSpec) *Map {
 	}
 	w = max(w, minSide)
 	n := max(spec.Views, 1)
+	cols := n
+	if spec.Columns > 0 {
+		cols = min(spec.Columns, n)
+	}
+	rows := (n + cols - 1) / cols
 	unit := spec.Unit
 	if unit.Metres == 0 {
 		unit = Inch
@@ -102,7 +110,7 @@ func NewMap(spec MapSpec) *Map {
 	// width of the y tick labels, which fixes the plot width.
 	probe := newCanvas(1, 1, em)
 	margin := marginEm * em
-	pw0 := (float64(w) - 2*margin - float64(n)*7*em) / float64(n)
+	pw0 := (float64(w) - 2*margin - float64(cols)*7*em) / float64(cols)
 	xt, xstep := Ticks(ext.Min.X/unit.Metres, ext.Max.X/unit.Metres, clampInt(int(pw0/(4.5*em)), 3, 10))
 	yt, ystep := Ticks(ext.Min.Y/unit.Metres, ext.Max.Y/unit.Metres, clampInt(int(pw0*aspect/(3.5*em)), 3, 14))
 	labelW := 0.0
@@ -112,7 +120,7 @@ func NewMap(spec MapSpec) *Map {
 	axisTitleW := 1.8 * em
 	left0 := margin + axisTitleW + labelW + tickEm*em + 0.4*em
 	leftN := labelW + tickEm*em + 0.4*em + 1.4*em
-	pw := math.Floor((float64(w) - left0 - float64(n-1)*leftN - margin) / float64(n))
+	pw := math.Floor((float64(w) - left0 - float64(cols-1)*leftN - margin) / float64(cols))
 	ph := math.Ceil(pw * aspect)
 
 	top := margin
@@ -132,16 +140,17 @@ func NewMap(spec MapSpec) *Map {
 		legend = box{float64(w) - margin - lw, margin, float64(w) - margin, margin + lh}
 		top = math.Max(top, legend.y1+0.8*em)
 	}
-	captionTop := top
+	captionH := 0.0
 	if len(spec.Captions) > 0 {
-		top += 1.9 * em
+		captionH = 1.9 * em
 	}
 	xAxisH := 3.8 * em
+	rowH := captionH + ph + xAxisH + 0.6*em
 	barH := 0.0
 	if !spec.NoColorBar {
 		barH = 7.4 * em
 	}
-	h := int(math.Ceil(top + ph + xAxisH + barH + margin))
+	h := int(math.Ceil(top + float64(rows)*rowH - 0.6*em + barH + margin))
 
 	m := &Map{Canvas: newCanvas(w, h, em)}
 	c := m.Canvas
@@ -161,26 +170,27 @@ func NewMap(spec MapSpec) *Map {
 		drawLegendBox(c, legend, spec.Legend)
 	}
 
-	x := left0
 	for i := range n {
+		row, col := i/cols, i%cols
+		x := left0 + float64(col)*(pw+leftN)
+		rowTop := top + float64(row)*rowH
 		v := &View{c: c, ext: ext, s: pw / ext.Dx(), inv: ext.Dx() / pw}
-		v.area = image.Rect(int(x), int(top), int(x+pw), int(top+ph))
+		v.area = image.Rect(int(x), int(rowTop+captionH), int(x+pw), int(rowTop+captionH+ph))
 		m.Views = append(m.Views, v)
 		if i < len(spec.Captions) {
-			c.text(spec.Captions[i], x+pw/2, captionTop, 0.5, 0, textStyle{size: 1.1, bold: true})
+			c.text(spec.Captions[i], x+pw/2, rowTop, 0.5, 0, textStyle{size: 1.1, bold: true})
 		}
-		v.drawAxes(xt, xstep, yt, ystep, unit, i == 0)
-		x += pw + leftN
+		v.drawAxes(xt, xstep, yt, ystep, unit, col == 0)
 	}
 	if !spec.NoColorBar {
-		first, last := m.Views[0].area, m.Views[n-1].area
+		first, last := m.Views[0].area, m.Views[cols-1].area
 		span := float64(last.Max.X - first.Min.X)
 		bw := 0.7 * span
-		if n > 1 {
+		if cols > 1 {
 			bw = 0.5 * span
 		}
 		bx := float64(first.Min.X) + (span-bw)/2
-		by := float64(first.Max.Y) + xAxisH + 1.8*em // room above for marks
+		by := float64(m.Views[n-1].area.Max.Y) + xAxisH + 1.8*em // room above for marks
 		m.bar = image.Rect(int(bx), int(by), int(bx+bw), int(by+1.1*em))
 	}
 	return m
@@ -189,7 +199,7 @@ func NewMap(spec MapSpec) *Map {
 func clampInt(v, lo, hi int) int { return max(lo, min(hi, v)) }
 
 // drawAxes draws the frame, ticks and tick labels of a view, and the axis
-// titles (the y title only on the first view).
+// titles (the y title only on the first view of a row).
 func (v *View) drawAxes(xt []float64, xstep float64, yt []float64, ystep float64, unit LengthUnit, yTitle bool) {
 	c := v.c
 	em := c.em

@@ -191,6 +191,34 @@ func TestCompareLayout(t *testing.T) {
 	save(t, "comp.png", m.Canvas)
 }
 
+// TestGridLayout checks five views in rows of three: equal sizes, rows
+// aligned, nothing overlapping, all inside the image.
+func TestGridLayout(t *testing.T) {
+	m := NewMap(MapSpec{Width: 2400, Extent: Centered(18*inch, 24*inch), Views: 5, Columns: 3,
+		Captions: []string{"L1", "L2", "L3", "L4", "L5"}, Title: []string{"Fit (demo)"}})
+	save(t, "grid.png", m.Canvas)
+	for i, v := range m.Views {
+		a := v.Area()
+		if !a.In(m.Bounds()) || a.Overlaps(m.ColorBarRect()) {
+			t.Errorf("view %d at %v outside the image or over the bar", i, a)
+		}
+		if a.Size() != m.Views[0].Area().Size() {
+			t.Errorf("view %d size %v", i, a.Size())
+		}
+		if a.Min.Y != m.Views[i/3*3].Area().Min.Y || a.Min.X != m.Views[i%3].Area().Min.X {
+			t.Errorf("view %d at %v is not on the grid", i, a)
+		}
+		for j := range i {
+			if a.Overlaps(m.Views[j].Area()) {
+				t.Errorf("views %d and %d overlap", i, j)
+			}
+		}
+	}
+	if m.Views[3].Area().Min.Y <= m.Views[0].Area().Max.Y {
+		t.Error("second row does not start below the first")
+	}
+}
+
 // TestEncodeRoundTrip checks that EncodePNG writes a PNG that decodes to the
 // same size.
 func TestEncodeRoundTrip(t *testing.T) {

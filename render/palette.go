@@ -121,8 +121,8 @@ func sequentialCurve(t float64) LCh {
 // negative, zero and positive values. Lightness falls linearly and
 // symmetrically from 0.96 at the centre to 0.40 at both ends, so the two
 // halves are told apart by hue (blue against orange, a pair that stays
-// distinct for red–green colour-blind readers) and the size of a value by
-// lightness.
+// distinct for red–green colour-blind readers: TestColourBlind) and the
+// size of a value by lightness.
 var Diverging = NewPalette("diverging", divergingCurve)
 
 func divergingCurve(t float64) LCh {
