@@ -24,9 +24,9 @@ type BarStyle struct {
 	// MinLength is the shortest a bar is drawn, in pixels; 0 means twice its
 	// width, so that the bar's direction still shows.
 	MinLength float64
-	// Outline is the colour of a one-pixel edge around each bar, which keeps
-	// bars visible over a field of similar colour; nil means Ink. Set
-	// NoOutline to leave it out.
+	// Outline is the colour of an edge around each bar, a quarter of its
+	// width (at least a pixel), which keeps bars visible over a field of
+	// similar colour; nil means Ink. Set NoOutline to leave it out.
 	Outline   color.Color
 	NoOutline bool
 }

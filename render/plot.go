@@ -420,6 +420,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 	// Vertical markers: labels at the top, moved down a row when they would
 	// overlap a label already placed.
 	var placed []box
+	var labels []func()
 	for _, v := range a.VLines {
 		if !inX(v.X) {
 			continue
@@ -455,7 +456,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			}
 		}
 		placed = append(placed, b)
-		c.text(v.Label, lx, ly, ax, 0, lts)
+		labels = append(labels, func() { c.text(v.Label, lx, ly, ax, 0, lts) })
 		// Keep the legend off the label: count its box as many points.
 		for i := 0; i <= 4; i++ {
 			for j := 0; j <= 2; j++ {
@@ -463,12 +464,17 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			}
 		}
 	}
+	// Text is drawn after the clip is lifted: gg draws text under a clip
+	// mask through a scratch image the size of the whole canvas.
+	dc.ResetClip()
+	for _, l := range labels {
+		l()
+	}
 	for _, h := range a.HLines {
 		if h.Label != "" && inY(h.Y) {
 			c.text(h.Label, fb.x1-0.4*em, f.py(h.Y)-0.3*em, 1, 1, textStyle{size: 0.8, halo: true, color: orInk(h.Color)})
 		}
 	}
-	dc.ResetClip()
 
 	// Frame, ticks and labels.
 	c.strokeBox(fb, LineStyle{Color: Frame})

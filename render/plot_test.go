@@ -3,6 +3,7 @@ package render
 import (
 	"fmt"
 	"image"
+	"io"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -224,5 +225,17 @@ func TestLegendAvoidsData(t *testing.T) {
 	}
 	if got := c.quietCorner(area, items, nil); got != TopRight {
 		t.Errorf("with no data the legend went to corner %d, want top right", got)
+	}
+}
+
+// BenchmarkPlot times a three-panel sweep plot at 1600 x 1500 with PNG
+// encoding.
+func BenchmarkPlot(b *testing.B) {
+	p := demoSweep()
+	b.ReportAllocs()
+	for b.Loop() {
+		if err := p.Render(1600, 1500).EncodePNG(io.Discard); err != nil {
+			b.Fatal(err)
+		}
 	}
 }
