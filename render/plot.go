@@ -275,6 +275,9 @@ func (p *Plot) Render(width, height int) *Canvas {
 	for k, pr := range preps {
 		h := avail * weightOf(pr.a) / weights
 		f := plotFrame{image.Rect(int(left), int(y), int(right), int(y+h)), x0, x1, pr.y0, pr.y1}
+		if c.makeLegendRoom(pr.a, &f) {
+			pr.ticks, pr.step = Ticks(f.y0, f.y1, clampInt(int(h/(2.2*em)), 2, 10))
+		}
 		c.drawAxesPanel(pr.a, f, pr.ticks, pr.step, xticks, xstep, k == len(preps)-1, &colour)
 		y += h + gap
 	}
@@ -282,6 +285,89 @@ func (p *Plot) Render(width, height int) *Canvas {
 		c.text(p.XLabel, (left+right)/2, float64(height)-margin-1.0*em, 0.5, 0.5, textStyle{})
 	}
 	return c
+}
+
+// makeLegendRoom raises the top of an automatic y range when every corner
+// of the panel holds data, so that the legend fits above the data instead
+// of over it. It reports whether it changed f.
+func (c *Canvas) makeLegendRoom(a *Axes, f *plotFrame) bool {
+	if a.Legend != Auto || a.YMin != 0 || a.YMax != 0 {
+		return false
+	}
+	items := legendLabels(a)
+	if len(items) == 0 {
+		return false
+	}
+	if _, n := c.quietCorner(f.area, items, dataPoints(a, *f, c.em)); n == 0 {
+		return false
+	}
+	_, lh := legendSize(c, items)
+	frac := (lh + 1.4*c.em) / float64(f.area.Dy())
+	if frac > 0.45 {
+		return false // a panel too short to give up that much
+	}
+	f.y1 = f.y0 + (f.y1-f.y0)/(1-frac)
+	return true
+}
+
+// legendLabels returns the legend entries of a panel without their
+// colours, in the order drawAxesPanel lists them, for sizing.
+func legendLabels(a *Axes) []LegendItem {
+	var items []LegendItem
+	for _, b := range a.Bands {
+		if b.Label != "" {
+			items = append(items, LegendItem{Label: b.Label})
+		}
+	}
+	for _, h := range a.Hists {
+		if h.Label != "" {
+			items = append(items, LegendItem{Label: h.Label})
+		}
+	}
+	for _, l := range a.Lines {
+		if l.Label != "" {
+			items = append(items, LegendItem{Label: l.Label})
+		}
+	}
+	return items
+}
+
+// dataPoints returns pixel positions covered by a panel's lines (their
+// vertices and points every half em along each segment) and histogram
+// bars, for keeping the legend off the data.
+func dataPoints(a *Axes, f plotFrame, em float64) [][2]float64 {
+	var pts [][2]float64
+	for _, h := range a.Hists {
+		for k := 0; k+1 < len(h.Edges) && k < len(h.Counts); k++ {
+			for i := 0; i <= 4; i++ {
+				x := f.px(h.Edges[k] + (h.Edges[k+1]-h.Edges[k])*float64(i)/4)
+				for j := 0; j <= 4; j++ {
+					pts = append(pts, [2]float64{x, f.py(h.Counts[k] * float64(j) / 4)})
+				}
+			}
+		}
+	}
+	for _, l := range a.Lines {
+		var prev [2]float64
+		have := false
+		for k := 0; k < len(l.X) && k < len(l.Y); k++ {
+			if math.IsNaN(l.X[k]) || math.IsNaN(l.Y[k]) {
+				have = false
+				continue
+			}
+			p := [2]float64{f.px(l.X[k]), f.py(l.Y[k])}
+			if have && l.Width >= 0 {
+				d := math.Hypot(p[0]-prev[0], p[1]-prev[1])
+				for n, steps := 1, int(d/(0.5*em)); n < steps && n < 1000; n++ {
+					t := float64(n) / float64(steps)
+					pts = append(pts, [2]float64{prev[0] + t*(p[0]-prev[0]), prev[1] + t*(p[1]-prev[1])})
+				}
+			}
+			pts = append(pts, p)
+			prev, have = p, true
+		}
+	}
+	return pts
 }
 
 func weightOf(a *Axes) float64 {
@@ -335,7 +421,6 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 		dc.Stroke()
 		dc.SetDash()
 	}
-	var histPts [][2]float64
 	for _, h := range a.Hists {
 		col := h.Color
 		if col == nil {
@@ -343,12 +428,6 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			*colour++
 		}
 		for k := 0; k+1 < len(h.Edges) && k < len(h.Counts); k++ {
-			for i := 0; i <= 4; i++ {
-				x := f.px(h.Edges[k] + (h.Edges[k+1]-h.Edges[k])*float64(i)/4)
-				for j := 0; j <= 4; j++ {
-					histPts = append(histPts, [2]float64{x, f.py(h.Counts[k] * float64(j) / 4)})
-				}
-			}
 			dc.DrawRectangle(f.px(h.Edges[k]), f.py(h.Counts[k]), f.px(h.Edges[k+1])-f.px(h.Edges[k]), f.py(0)-f.py(h.Counts[k]))
 		}
 		dc.SetColor(col)
@@ -359,7 +438,6 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			legend = append(legend, LegendItem{Label: h.Label, Kind: LegendSwatch, Color: col})
 		}
 	}
-	pts := histPts // every drawn point, for legend placement
 	for _, l := range a.Lines {
 		col := l.Color
 		if col == nil {
@@ -381,7 +459,6 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 				continue
 			}
 			x, y := f.px(l.X[k]), f.py(l.Y[k])
-			pts = append(pts, [2]float64{x, y})
 			if pen {
 				dc.LineTo(x, y)
 			} else {
@@ -417,9 +494,25 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			legend = append(legend, item)
 		}
 	}
-	// Vertical markers: labels at the top, moved down a row when they would
-	// overlap a label already placed.
+	// The legend goes in the emptiest corner (or where asked); the labels
+	// of vertical markers keep clear of it.
+	corner, showLegend := TopRight, len(legend) > 0 && a.Legend != NoLegend
+	switch a.Legend {
+	case Auto:
+		corner, _ = c.quietCorner(ar, legend, dataPoints(a, f, em))
+	case AtTopLeft:
+		corner = TopLeft
+	case AtBottomLeft:
+		corner = BottomLeft
+	case AtBottomRight:
+		corner = BottomRight
+	}
 	var placed []box
+	if showLegend {
+		placed = append(placed, legendBox(c, ar, legend, corner, 0.8*em))
+	}
+	// Vertical markers: labels at the top, right of the line (or left of
+	// it), moved down a row at a time until clear of the labels placed.
 	var labels []func()
 	for _, v := range a.VLines {
 		if !inX(v.X) {
@@ -438,31 +531,28 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			continue
 		}
 		lts := textStyle{size: 0.8, halo: true, color: orInk(v.Color)}
-		ax := 0.0
-		lx := x + 0.3*em
-		if c.measure(v.Label, lts)+lx > fb.x1-0.2*em {
-			ax, lx = 1, x-0.3*em
-		}
-		ly := fb.y0 + 0.5*em
-		b := c.textBox(v.Label, lx, ly, ax, 0, lts)
-		for again := true; again; {
-			again = false
-			for _, o := range placed {
-				if b.overlaps(o) {
-					ly += 1.3 * em
-					b = c.textBox(v.Label, lx, ly, ax, 0, lts)
-					again = true
+		var lx, ly, ax float64
+		var b box
+	search:
+		for row := 0; row < 40; row++ {
+			ly = fb.y0 + 0.5*em + float64(row)*1.3*em
+			for _, side := range [2]float64{1, -1} {
+				lx, ax = x+side*0.3*em, (1-side)/2
+				b = c.textBox(v.Label, lx, ly, ax, 0, lts)
+				if b.x0 < fb.x0 || b.x1 > fb.x1 {
+					continue
+				}
+				clear := true
+				for _, o := range placed {
+					clear = clear && !b.overlaps(o)
+				}
+				if clear {
+					break search
 				}
 			}
 		}
 		placed = append(placed, b)
 		labels = append(labels, func() { c.text(v.Label, lx, ly, ax, 0, lts) })
-		// Keep the legend off the label: count its box as many points.
-		for i := 0; i <= 4; i++ {
-			for j := 0; j <= 2; j++ {
-				pts = append(pts, [2]float64{b.x0 + (b.x1-b.x0)*float64(i)/4, b.y0 + (b.y1-b.y0)*float64(j)/2})
-			}
-		}
 	}
 	// Text is drawn after the clip is lifted: gg draws text under a clip
 	// mask through a scratch image the size of the whole canvas.
@@ -499,25 +589,15 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 	if a.YLabel != "" {
 		c.textUp(a.YLabel, float64(marginEm*em)+0.6*em, (fb.y0+fb.y1)/2, textStyle{})
 	}
-	if len(legend) > 0 && a.Legend != NoLegend {
-		corner := TopRight
-		switch a.Legend {
-		case Auto:
-			corner = c.quietCorner(ar, legend, pts)
-		case AtTopLeft:
-			corner = TopLeft
-		case AtBottomLeft:
-			corner = BottomLeft
-		case AtBottomRight:
-			corner = BottomRight
-		}
+	if showLegend {
 		drawLegend(c, ar, legend, corner)
 	}
 }
 
 // quietCorner returns the corner whose legend box covers the fewest points
-// (top right on a tie, then top left, bottom left, bottom right).
-func (c *Canvas) quietCorner(area image.Rectangle, items []LegendItem, pts [][2]float64) Corner {
+// (top right on a tie, then top left, bottom left, bottom right), and how
+// many it covers.
+func (c *Canvas) quietCorner(area image.Rectangle, items []LegendItem, pts [][2]float64) (Corner, int) {
 	best, bestN := TopRight, math.MaxInt
 	for _, k := range []Corner{TopRight, TopLeft, BottomLeft, BottomRight} {
 		b := legendBox(c, area, items, k, 0.8*c.em).grow(0.3 * c.em)
@@ -531,7 +611,7 @@ func (c *Canvas) quietCorner(area image.Rectangle, items []LegendItem, pts [][2]
 			best, bestN = k, n
 		}
 	}
-	return best
+	return best, bestN
 }
 
 // marker adds a marker shape of radius r at (x, y) to the current path.

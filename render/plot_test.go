@@ -220,10 +220,10 @@ func TestLegendAvoidsData(t *testing.T) {
 	for k := range x {
 		pts = append(pts, [2]float64{f.px(x[k]), f.py(y[k])})
 	}
-	if got := c.quietCorner(area, items, pts); got != BottomLeft && got != BottomRight {
+	if got, _ := c.quietCorner(area, items, pts); got != BottomLeft && got != BottomRight {
 		t.Errorf("legend went to corner %d, want a bottom corner", got)
 	}
-	if got := c.quietCorner(area, items, nil); got != TopRight {
+	if got, _ := c.quietCorner(area, items, nil); got != TopRight {
 		t.Errorf("with no data the legend went to corner %d, want top right", got)
 	}
 }
