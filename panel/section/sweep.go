@@ -60,18 +60,13 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 	if s.Length == 0 && !slices.Contains(offs, nom) {
 		todo = append(slices.Clone(offs), nom)
 	}
-	// Every offset is solved at one level, found at the nominal offset and
-	// raised if any offset misses the target: a level change between
-	// neighbouring offsets would put a step of the size of the discretisation
-	// error into the curve.
-	w := &femWork{}
-	first, err := sv.solve(ctx, nom, w)
-	if err != nil {
-		return nil, fmt.Errorf("sweep offset %s: %w", mils(nom), err)
-	}
-	lev := startLevel(sv.acc) * math.Pow(math.Sqrt2, float64(first.Convergence.Iterations-1))
+	// Every offset is solved at one level, raised for all if any offset misses
+	// the target: a level change between neighbouring offsets would put a step
+	// of the size of the discretisation error into the curve.
+	lev := startLevel(sv.acc)
 	var sols []*Solution
-	for step := first.Convergence.Iterations; ; step++ {
+	for step := 1; ; step++ {
+		var err error
 		sols, err = sv.solveAll(ctx, todo, lev, set.workers())
 		if err != nil {
 			return nil, err
