@@ -1,6 +1,10 @@
 package section
 
-import "math"
+import (
+	"cmp"
+	"math"
+	"slices"
+)
 
 // band is one horizontal slab of the solution domain, in domain coordinates:
 // y is measured from the (lower) ground's inner face outward, through the stack.
@@ -35,13 +39,72 @@ type geometry struct {
 	tr     [2]traceGeom
 	same   bool    // both traces in one copper slab (edge-coupled)
 	x1     float64 // centre of the lower trace (Traces[1].X); Traces[0] is placed at x1 + offset
+	// openSpans places a microstrip's Dirichlet box this many (stack height +
+	// 2·widest trace + nominal offset) away (openSpans; tests vary it).
+	openSpans float64
+	// combined and order: see meshPlan.combined and setOffsets.
+	combined bool
+	order    [4]edgeRef
+	countAt  float64 // offset at which the plans count elements: mid-range
+}
+
+// edgeRef names one side of one trace.
+type edgeRef struct {
+	trace int
+	right bool
+}
+
+// minEdgeSeparation is the smallest lateral distance, as a fraction of the
+// smallest feature, at which two edges of different traces may pass in a
+// combined mesh; closer, the column between them would make slivers.
+const minEdgeSeparation = 0.05
+
+// setOffsets chooses the mesh topology for solving at offsets in [lo, hi]:
+// combined (every row holds all four edges, columns vertical) when the
+// traces share a slab or when no edge of one trace comes near an edge of the
+// other anywhere in the range, so that the x order of the edges is fixed;
+// blended otherwise (the topology must not change with offset, DESIGN.md).
+// Blending shears the columns by the offset across the gap between the
+// traces, which costs accuracy at offsets beyond the gap height; the combined
+// mesh has no such cost.
+func (g *geometry) setOffsets(s *Section, lo, hi float64) {
+	type iv struct {
+		a, b float64
+		e    edgeRef
+	}
+	var ivs []iv
+	for k := range 2 {
+		t := g.tr[k]
+		hmin, hmax := math.Min(t.hwb, t.hwt), math.Max(t.hwb, t.hwt)
+		clo, chi := g.x1, g.x1
+		if k == 0 {
+			clo, chi = g.x1+lo, g.x1+hi
+		}
+		ivs = append(ivs, iv{clo - hmax, chi - hmin, edgeRef{k, false}}, iv{clo + hmin, chi + hmax, edgeRef{k, true}})
+	}
+	g.countAt = (lo + hi) / 2
+	slices.SortFunc(ivs, func(x, y iv) int { return cmp.Compare(x.a+x.b, y.a+y.b) })
+	for i, v := range ivs {
+		g.order[i] = v.e
+	}
+	if g.same {
+		g.combined = true
+		return
+	}
+	sep := minEdgeSeparation * g.smallestFeature(s)
+	g.combined = true
+	for i := 0; i+1 < len(ivs); i++ {
+		if ivs[i+1].a-ivs[i].b < sep {
+			g.combined = false
+		}
+	}
 }
 
 // buildGeometry converts the stackup convention of DESIGN.md into domain bands.
 // s must be valid.
 func (s *Section) buildGeometry() *geometry {
 	ls := s.Stackup.Layers
-	g := &geometry{x1: s.Traces[1].X}
+	g := &geometry{x1: s.Traces[1].X, openSpans: openSpans}
 	gi0, _ := s.copperIndex(s.Grounds[0])
 	ti0, _ := s.copperIndex(s.Traces[0].Layer)
 	ti1, _ := s.copperIndex(s.Traces[1].Layer)

@@ -14,12 +14,12 @@ import (
 // Electrodynamics, 3rd ed., §1.13).
 func TestReciprocity(t *testing.T) {
 	for _, s := range []*Section{demoSection(), widened(demoSection(), 4*testMil), microstripSec(10*testMil, 10*testMil, 4.5)} {
-		sv, err := newSolver(s, nil)
+		off := s.NominalOffset() + 1.3*testMil
+		sv, err := newSolver(s, nil, off, off)
 		if err != nil {
 			t.Fatal(err)
 		}
 		w := &femWork{}
-		off := s.NominalOffset() + 1.3*testMil
 		r, err := sv.level(off, 1, 1, 1, w)
 		if err != nil {
 			t.Fatal(err)

@@ -40,7 +40,10 @@ type meshPlan struct {
 	hi, lo  int     // broadside: index of the trace in the higher / lower slab
 	jub     int     // broadside: row of the lower face of the higher trace
 	jlt     int     // broadside: row of the upper face of the lower trace
-	left    int     // edge-coupled: index of the trace on the left at the nominal offset
+	// combined: every row carries all four trace edges, in the x order
+	// g.order (edge-coupled pairs, and broadside pairs whose edges do not pass
+	// each other over the offsets solved); otherwise the two patterns blend.
+	combined bool
 }
 
 func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }
@@ -63,7 +66,7 @@ func (g *geometry) smallestFeature(s *Section) float64 {
 		}
 	}
 	if g.same {
-		d := math.Abs(s.NominalOffset())
+		d := math.Abs(g.countAt)
 		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2
 		if gap > 0 {
 			f = math.Min(f, gap)
@@ -87,7 +90,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 	p.bands = append([]band(nil), g.bands...)
 	if g.micro {
 		hmax = math.Inf(1)
-		r := openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
+		r := g.openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
 		p.margin = r
 		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1})
 	}
@@ -125,21 +128,21 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		panic("section: trace face is not a mesh row")
 	}
 
-	// Columns: counts from the nominal offset's pattern(s).
+	// Columns: counts from the pattern(s) at mid-range of the offsets solved.
 	var keys []float64
-	if g.same {
-		p.left = 0
-		if s.NominalOffset() > 0 {
-			p.left = 1
-		}
-		keys = p.keys(s.NominalOffset(), nil, g.tr[0].yb, -1)
+	p.combined = g.combined
+	if g.same || g.combined {
+		keys = p.keysCombined(g.countAt, nil, [2]float64{g.tr[0].yb, g.tr[1].yb})
 		p.xc = make([]int, len(keys)-1)
 		for i := range p.xc {
 			p.xc[i] = count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i)))
 		}
-		// Both trace interiors get the same count, whichever ends up left.
-		m := max(p.xc[1], p.xc[3])
-		p.xc[1], p.xc[3] = m, m
+		// Mirror-paired counts, so that a mirror-symmetric layout meshes
+		// mirror-symmetrically.
+		for i := range 2 {
+			m := max(p.xc[i], p.xc[4-i])
+			p.xc[i], p.xc[4-i] = m, m
+		}
 	} else {
 		p.hi, p.lo = 0, 1
 		if g.tr[1].yb > g.tr[0].yb {
@@ -149,7 +152,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		p.jlt = rowOf(g.tr[p.lo].yt)
 		p.xc = make([]int, 3)
 		for _, k := range []int{p.hi, p.lo} {
-			keys = p.keys(s.NominalOffset(), keys, g.tr[k].yb, k)
+			keys = p.keys(g.countAt, keys, g.tr[k].yb, k)
 			for i := range p.xc {
 				p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
 			}
@@ -187,22 +190,32 @@ func (p *meshPlan) walls(off float64) (lo, hi float64) {
 	return xm - e, xm + e
 }
 
-// keys returns the key x-positions (walls and trace edges) of the row at
-// height y for offset off, appended to dst[:0]. For a broadside pair k selects
-// the trace whose pattern is wanted; for an edge-coupled pair k is ignored.
+// keys returns the key x-positions (walls and the edges of trace k) of the
+// row at height y for offset off in a blended plan, appended to dst[:0]. The
+// edges of a trace at y are those of its sloped sides inside its slab and of
+// the nearer face outside it.
 func (p *meshPlan) keys(off float64, dst []float64, y float64, k int) []float64 {
+	g := p.g
+	wl, wr := p.walls(off)
+	centre := [2]float64{g.x1 + off, g.x1}
+	hw := g.tr[k].halfWidth(y)
+	return append(dst[:0], wl, centre[k]-hw, centre[k]+hw, wr)
+}
+
+// keysCombined returns the walls and all four trace edges in the order
+// g.order, each trace's edges taken at height y[k].
+func (p *meshPlan) keysCombined(off float64, dst []float64, y [2]float64) []float64 {
 	g := p.g
 	wl, wr := p.walls(off)
 	dst = append(dst[:0], wl)
 	centre := [2]float64{g.x1 + off, g.x1}
-	if g.same {
-		for _, t := range [2]int{p.left, 1 - p.left} {
-			hw := g.tr[t].halfWidth(y)
-			dst = append(dst, centre[t]-hw, centre[t]+hw)
+	for _, e := range g.order {
+		hw := g.tr[e.trace].halfWidth(y[e.trace])
+		if e.right {
+			dst = append(dst, centre[e.trace]+hw)
+		} else {
+			dst = append(dst, centre[e.trace]-hw)
 		}
-	} else {
-		hw := g.tr[k].halfWidth(y)
-		dst = append(dst, centre[k]-hw, centre[k]+hw)
 	}
 	return append(dst, wr)
 }
@@ -241,24 +254,33 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	rowHi := make([]float64, nx+1)
 	var keys []float64
 	fill := func(dst []float64, y float64, k int) {
-		keys = p.keys(off, keys, y, k)
+		if p.combined {
+			keys = p.keysCombined(off, keys, [2]float64{y, y})
+		} else {
+			keys = p.keys(off, keys, y, k)
+		}
 		i0 := 0
 		for s, c := range p.xc {
 			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, edgeSing(keys, s))
 			i0 += c
 		}
 	}
-	if !g.same {
+	if !p.combined {
 		fill(rowLo, p.ys[p.jlt], p.lo)
 		fill(rowHi, p.ys[p.jub], p.hi)
 	}
 	// Trace column ranges [iL, iR] in the pattern of each row.
 	var colL, colR [2]int
-	if g.same {
-		colL[p.left], colR[p.left] = p.xc[0], p.xc[0]+p.xc[1]
-		r := 1 - p.left
-		colL[r] = p.xc[0] + p.xc[1] + p.xc[2]
-		colR[r] = colL[r] + p.xc[3]
+	if p.combined {
+		col := 0
+		for e, ed := range g.order {
+			col += p.xc[e]
+			if ed.right {
+				colR[ed.trace] = col
+			} else {
+				colL[ed.trace] = col
+			}
+		}
 	} else {
 		for k := range 2 {
 			colL[k], colR[k] = p.xc[0], p.xc[0]+p.xc[1]
@@ -266,7 +288,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	}
 	for j, y := range p.ys {
 		switch {
-		case g.same:
+		case p.combined:
 			fill(row, y, -1)
 		case j >= p.jub:
 			if j == p.jub {
@@ -281,7 +303,12 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 				fill(row, y, p.lo)
 			}
 		default:
-			t := (y - p.ys[p.jlt]) / (p.ys[p.jub] - p.ys[p.jlt])
+			// Smoothstep blend 3u² − 2u³: the columns leave both trace faces
+			// vertically, so the elements at the singular corners stay square
+			// however far the traces are offset; the shear goes to the middle
+			// of the gap, where the field is smooth.
+			u := (y - p.ys[p.jlt]) / (p.ys[p.jub] - p.ys[p.jlt])
+			t := u * u * (3 - 2*u)
 			for i := range row {
 				row[i] = (1-t)*rowLo[i] + t*rowHi[i]
 			}
@@ -294,7 +321,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 				tag = tagGround
 			}
 			for k := range 2 {
-				if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j <= p.jlt) {
+				if p.combined || (k == p.hi && j >= p.jub) || (k == p.lo && j <= p.jlt) {
 					if y >= g.tr[k].yb && y <= g.tr[k].yt && i >= colL[k] && i <= colR[k] {
 						tag = tagTrace + int8(k)
 					}
@@ -309,7 +336,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			er := b.er
 			for k := range 2 {
 				if (b.trace == k || b.trace == 2) && g.tr[k].yt > g.tr[k].yb && i >= colL[k] && i < colR[k] {
-					if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
+					if p.combined || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
 						er = 0
 					}
 				}

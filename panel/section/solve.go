@@ -118,11 +118,14 @@ type solver struct {
 	plans map[float64]*meshPlan // by level
 }
 
-func newSolver(s *Section, set *Settings) (*solver, error) {
+// newSolver prepares the solves of s at offsets within [lo, hi].
+func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 	if err := s.Validate(); err != nil {
 		return nil, err
 	}
-	return &solver{s: s, g: s.buildGeometry(), acc: set.accuracy()}, nil
+	g := s.buildGeometry()
+	g.setOffsets(s, lo, hi)
+	return &solver{s: s, g: g, acc: set.accuracy()}, nil
 }
 
 // Solve solves the cross-section with the upper trace shifted laterally so
@@ -142,11 +145,14 @@ func newSolver(s *Section, set *Settings) (*solver, error) {
 // the accuracy target, L rises by √2 until it does; a *ConvergenceError is
 // returned if it never does.
 func Solve(s *Section, offset float64, set *Settings) (*Solution, error) {
-	sv, err := newSolver(s, set)
-	if err != nil {
+	if err := s.Validate(); err != nil {
 		return nil, err
 	}
 	if err := s.checkOffset(offset, "offsets"); err != nil {
+		return nil, err
+	}
+	sv, err := newSolver(s, set, offset, offset)
+	if err != nil {
 		return nil, err
 	}
 	return sv.solve(context.Background(), offset, &femWork{})

@@ -21,7 +21,7 @@ func TestConvergenceStudy(t *testing.T) {
 	if testing.Short() {
 		t.Skip("convergence study")
 	}
-	sv, err := newSolver(demoSection(), nil)
+	sv, err := newSolver(demoSection(), nil, 0, 0)
 	if err != nil {
 		t.Fatal(err)
 	}

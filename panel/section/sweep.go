@@ -40,8 +40,7 @@ type Curve struct {
 // mean εeff of the two modes at the nominal offset (solved separately if it
 // is not in offsets).
 func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*Curve, error) {
-	sv, err := newSolver(s, set)
-	if err != nil {
+	if err := s.Validate(); err != nil {
 		return nil, err
 	}
 	offs := slices.Clone(offsets)
@@ -59,6 +58,10 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 	todo := offs
 	if s.Length == 0 && !slices.Contains(offs, nom) {
 		todo = append(slices.Clone(offs), nom)
+	}
+	sv, err := newSolver(s, set, min(offs[0], nom), max(offs[len(offs)-1], nom))
+	if err != nil {
+		return nil, err
 	}
 	// Every offset is solved at one level, raised for all if any offset misses
 	// the target: a level change between neighbouring offsets would put a step
