@@ -205,7 +205,7 @@ func (v *View) drawAxes(xt []float64, xstep float64, yt []float64, ystep float64
 	em := c.em
 	a := v.area
 	fb := box{float64(a.Min.X), float64(a.Min.Y), float64(a.Max.X), float64(a.Max.Y)}
-	c.strokeBox(fb.grow(-0.5*c.thin()), LineStyle{Color: Frame})
+	c.strokeBox(fb.grow(0.5*c.thin()), LineStyle{Color: Frame}) // just outside the area, so fields never cover it
 	ts := textStyle{size: tickTextEm}
 	c.applyLine(LineStyle{Color: Frame})
 	tl := tickEm * em
