@@ -70,7 +70,7 @@ const (
 type Line struct {
 	Label  string
 	X, Y   []float64
-	Color  color.Color // nil means the next Qualitative colour
+	Color  color.Color // nil means the next Qualitative colour, counted across the plot
 	Width  float64     // pixels; 0 means about a sixth of the text size, < 0 draws markers only
 	Dash   []float64   // in multiples of the line width; nil means solid
 	Marker MarkerShape
@@ -107,7 +107,7 @@ type Hist struct {
 	Label  string
 	Edges  []float64
 	Counts []float64
-	Color  color.Color // nil means the next Qualitative colour
+	Color  color.Color // nil means the next Qualitative colour, counted across the plot
 }
 
 // IntegerHist bins whole numbers into unit-wide bins centred on each value
