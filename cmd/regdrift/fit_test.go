@@ -1,0 +1,164 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+
+	"github.com/regdrift/regdrift/registration"
+)
+
+// runPlain runs the command line without the solver flags and returns the
+// exit status, stdout and stderr.
+func runPlain(t *testing.T, stdin string, args ...string) (int, string, string) {
+	t.Helper()
+	var out, errw bytes.Buffer
+	code := realMain(args, strings.NewReader(stdin), &out, &errw)
+	return code, out.String(), errw.String()
+}
+
+const twoCoreTargets = "../../samples/twocore-targets.csv"
+
+func TestFitCommand(t *testing.T) {
+	dir := t.TempDir()
+	contrib := filepath.Join(dir, "measured.toml")
+	code, out, errs := runPlain(t, "", "fit", twoCoreTargets, "--robust", "-o", dir, "--panel", "18in,24in", "--contributors", contrib, "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var s fitSummary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatalf("JSON: %v\n%s", err, out)
+	}
+	if len(s.Fits) != 10 || len(s.Lot) != 2 || s.Model != "affine" || s.Robust != "tukey" {
+		t.Fatalf("summary: %d fits, %d lots, model %s, robust %s", len(s.Fits), len(s.Lot), s.Model, s.Robust)
+	}
+	var flagged []string
+	for _, f := range s.Fits {
+		if f.Terms.ScaleX == nil || f.StdErr.Skew == nil || f.Sigma0M == nil || f.RMSM <= 0 || f.MaxM < f.RMSM {
+			t.Errorf("fit %s/%s incomplete: %+v", f.Panel, f.Layer, f)
+		}
+		for _, o := range f.Outliers {
+			flagged = append(flagged, f.Panel+"/"+f.Layer+"/"+o)
+		}
+	}
+	// The generator (samples.TwoCoreLot) planted exactly these misreads.
+	if want := []string{"P3/L4/T07", "P5/L3/T14"}; !slices.Equal(flagged, want) {
+		t.Errorf("outliers %v, want %v", flagged, want)
+	}
+	for _, name := range []string{"fit.csv", "residuals.csv", "fit.png", "residual-grid-L3.csv", "residual-grid-L4.csv"} {
+		if _, err := os.Stat(filepath.Join(dir, name)); err != nil {
+			t.Error(err)
+		}
+	}
+	rows := readCSV(t, filepath.Join(dir, "residuals.csv"))
+	if len(rows) != 1+160 || rows[0][5] != "dx [mil]" {
+		t.Errorf("residuals.csv: %d rows, header %v", len(rows), rows[0])
+	}
+	// The pooled residual grid reads back as a contributor's residual.
+	fh, err := os.Open(filepath.Join(dir, "residual-grid-L3.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer fh.Close()
+	if _, err := registration.ReadGrid(fh, "residual-grid-L3.csv"); err != nil {
+		t.Errorf("residual grid: %v", err)
+	}
+
+	// Round trip: a job that includes the contributors file gets the lot
+	// means and sigmas back (to the six digits written).
+	job, err := os.ReadFile("../../samples/two-core.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	jobPath := filepath.Join(dir, "job.toml")
+	if err := os.WriteFile(jobPath, append([]byte("include = [\"measured.toml\"]\n"), job...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	j, err := loadJob(jobPath, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lots := map[string]lotJSON{}
+	for _, l := range s.Lot {
+		lots[l.Layer] = l
+	}
+	found := 0
+	for _, c := range j.Model.Contributors {
+		if !strings.HasPrefix(c.Name, "measured ") {
+			continue
+		}
+		found++
+		l := lots[c.Layers[0]]
+		mean := []*float64{l.Mean.OffsetX, l.Mean.OffsetY, l.Mean.Rotation, l.Mean.ScaleX, l.Mean.ScaleY, l.Mean.Skew}
+		sd := []*float64{l.Sigma.OffsetX, l.Sigma.OffsetY, l.Sigma.Rotation, l.Sigma.ScaleX, l.Sigma.ScaleY, l.Sigma.Skew}
+		for k := range mean {
+			tm := c.Terms[k]
+			if math.Abs(tm.Mean-*mean[k]) > 1e-5*math.Abs(*mean[k]) || math.Abs(tm.Spread-*sd[k]) > 1e-5*math.Abs(*sd[k]) {
+				t.Errorf("%s %s: read back %g ± %g, fitted %g ± %g", c.Name, registration.TermKind(k), tm.Mean, tm.Spread, *mean[k], *sd[k])
+			}
+			if tm.Dist != registration.Normal {
+				t.Errorf("%s %s: distribution %v, want normal", c.Name, registration.TermKind(k), tm.Dist)
+			}
+		}
+	}
+	if found != 2 {
+		t.Errorf("%d measured contributors in the job, want 2", found)
+	}
+}
+
+func TestFitCommandTable(t *testing.T) {
+	dir := t.TempDir()
+	code, out, errs := runPlain(t, "", "fit", twoCoreTargets, "--model", "similarity", "-o", dir, "--units", "um")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	for _, want := range []string{"similarity model", "offset_x [um]", "lot (mean", "wrote " + filepath.Join(dir, "fit.csv")} {
+		if !strings.Contains(out, want) {
+			t.Errorf("table lacks %q:\n%s", want, out)
+		}
+	}
+}
+
+// TestFitBadInput checks that every kind of bad input exits with status 2,
+// names the row and column (or the panel and layer), and leaves no output.
+func TestFitBadInput(t *testing.T) {
+	const h = "panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n"
+	tests := []struct {
+		name, csv string
+		args      []string
+		want      string
+	}{
+		{"missing column", "panel,layer,target,x [in],y [in],dx [mil]\n", nil, `column "dy"`},
+		{"no unit", "panel,layer,target,x,y [in],dx [mil],dy [mil]\n", nil, "needs a unit"},
+		{"unknown unit", "panel,layer,target,x [in],y [in],dx [mils2],dy [mil]\n", nil, "unknown length unit"},
+		{"not a number", h + "P1,L3,T1,1,1,0.1,0.1\nP1,L3,T2,x1,1,0.1,0.1\n", nil, `row 3, column "x"`},
+		{"duplicate target", h + "P1,L3,T1,1,1,0.1,0.1\nP1,L3,T1,2,1,0.1,0.1\n", nil, `row 3, column "target"`},
+		{"too few for affine", h + "P1,L3,T1,1,1,0.1,0.1\nP1,L3,T2,2,1,0.1,0.1\n", nil, `panel "P1", layer "L3": too few targets`},
+		{"too few for similarity", h + "P2,L4,T1,1,1,0.1,0.1\n", []string{"--model", "similarity"}, `panel "P2", layer "L4": too few targets`},
+		{"collinear", h + "P1,L3,T1,1,1,0.1,0.1\nP1,L3,T2,2,2,0.1,0.1\nP1,L3,T3,3,3,0.1,0.1\nP1,L3,T4,4,4,0.1,0.1\n", nil, `panel "P1", layer "L3": ill-conditioned`},
+		{"bad model", h + "P1,L3,T1,1,1,0.1,0.1\n", []string{"--model", "quadratic"}, "--model"},
+		{"bad datum", h + "P1,L3,T1,1,1,0.1,0.1\n", []string{"--datum", "0,0"}, "--datum"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			dir := filepath.Join(t.TempDir(), "out")
+			args := append([]string{"fit", "-", "-o", dir, "--contributors", filepath.Join(dir, "c.toml")}, tt.args...)
+			code, _, errs := runPlain(t, tt.csv, args...)
+			if code != exitBadInput {
+				t.Fatalf("exit %d, want 2: %s", code, errs)
+			}
+			if !strings.Contains(errs, tt.want) {
+				t.Errorf("message %q lacks %q", errs, tt.want)
+			}
+			if ents, _ := os.ReadDir(dir); len(ents) != 0 {
+				t.Errorf("bad input left %d files in the output directory", len(ents))
+			}
+		})
+	}
+}
