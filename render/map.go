@@ -436,13 +436,18 @@ func (v *View) StrokeRect(r Rect, s LineStyle) {
 // than StrokeRect for hundreds of part outlines.
 func (v *View) StrokeRects(rs []Rect, s LineStyle) {
 	dc := v.c.dc
-	for _, r := range rs {
-		x0, y0 := v.Pixel(Point{r.Min.X, r.Max.Y})
-		x1, y1 := v.Pixel(Point{r.Max.X, r.Min.Y})
-		dc.DrawRectangle(x0, y0, x1-x0, y1-y0)
+	// Stroke in small batches: gg's rasterizer slows down badly (its cell search
+	// grows with the path) when thousands of rectangles share one path.
+	const batch = 4
+	for k := 0; k < len(rs); k += batch {
+		for _, r := range rs[k:min(k+batch, len(rs))] {
+			x0, y0 := v.Pixel(Point{r.Min.X, r.Max.Y})
+			x1, y1 := v.Pixel(Point{r.Max.X, r.Min.Y})
+			dc.DrawRectangle(x0, y0, x1-x0, y1-y0)
+		}
+		v.c.applyLine(s)
+		dc.Stroke()
 	}
-	v.c.applyLine(s)
-	dc.Stroke()
 	dc.SetDash()
 }
 
