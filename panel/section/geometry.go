@@ -42,10 +42,11 @@ type geometry struct {
 	// openSpans places a microstrip's Dirichlet box this many (stack height +
 	// 2·widest trace + nominal offset) away (openSpans; tests vary it).
 	openSpans float64
-	// combined and order: see meshPlan.combined and setOffsets.
-	combined bool
-	order    [4]edgeRef
-	countAt  float64 // offset at which the plans count elements: mid-range
+	// Column topology, chosen by setOffsets for the offsets to be solved.
+	blended bool       // blend two three-segment patterns (see meshPlan)
+	order   [4]edgeRef // x order of the four trace edges (ordered plans)
+	offLo   float64    // range of offsets to be solved
+	offHi   float64
 }
 
 // edgeRef names one side of one trace.
@@ -54,20 +55,23 @@ type edgeRef struct {
 	right bool
 }
 
-// minEdgeSeparation is the smallest lateral distance, as a fraction of the
-// smallest feature, at which two edges of different traces may pass in a
-// combined mesh; closer, the column between them would make slivers.
-const minEdgeSeparation = 0.05
-
-// setOffsets chooses the mesh topology for solving at offsets in [lo, hi]:
-// combined (every row holds all four edges, columns vertical) when the
-// traces share a slab or when no edge of one trace comes near an edge of the
-// other anywhere in the range, so that the x order of the edges is fixed;
-// blended otherwise (the topology must not change with offset, DESIGN.md).
-// Blending shears the columns by the offset across the gap between the
-// traces, which costs accuracy at offsets beyond the gap height; the combined
-// mesh has no such cost.
+// setOffsets chooses the column topology for solving at offsets in
+// [lo, hi] (the topology must not change with offset, DESIGN.md):
+//
+//   - ordered (the default): every row holds all four trace edges in one
+//     fixed x order. In the rows of a trace its own edges are exact; an edge of
+//     the other trace that would break the order there (where edges pass each
+//     other within the range) is held a small gap away by a smooth clamp, and
+//     the rows between the traces blend the two patterns. Where no edges pass,
+//     all rows are the same and every column is vertical.
+//   - blended: for a sweep centred on two aligned traces whose edges pass each
+//     other (a centred broadside pair), each trace's rows carry only its own
+//     edges and the rows between blend linearly. This keeps the mesh of a
+//     mirror-symmetric section exactly mirror-symmetric (C11 = C22,
+//     C(+δ) = C(−δ)); its price is shear across the gap, which grows with
+//     |δ|/gap, so it is used only for such sweeps.
 func (g *geometry) setOffsets(s *Section, lo, hi float64) {
+	g.offLo, g.offHi = lo, hi
 	type iv struct {
 		a, b float64
 		e    edgeRef
@@ -82,24 +86,28 @@ func (g *geometry) setOffsets(s *Section, lo, hi float64) {
 		}
 		ivs = append(ivs, iv{clo - hmax, chi - hmin, edgeRef{k, false}}, iv{clo + hmin, chi + hmax, edgeRef{k, true}})
 	}
-	g.countAt = (lo + hi) / 2
-	slices.SortFunc(ivs, func(x, y iv) int { return cmp.Compare(x.a+x.b, y.a+y.b) })
+	slices.SortStableFunc(ivs, func(x, y iv) int { return cmp.Compare(x.a+x.b, y.a+y.b) })
 	for i, v := range ivs {
 		g.order[i] = v.e
 	}
+	g.blended = false
 	if g.same {
-		g.combined = true
 		return
 	}
-	sep := minEdgeSeparation * g.smallestFeature(s)
-	g.combined = true
+	crossing := false
 	for i := 0; i+1 < len(ivs); i++ {
-		if ivs[i+1].a-ivs[i].b < sep {
-			g.combined = false
+		if ivs[i+1].a <= ivs[i].b {
+			crossing = true
 		}
 	}
+	feat := g.smallestFeature(s)
+	centred := math.Abs((lo+hi)/2) < centredFrac*feat
+	g.blended = crossing && centred
 }
 
+// centredFrac: a sweep is centred when its mid offset is within this fraction
+// of the smallest feature from aligned traces.
+const centredFrac = 0.01
 // buildGeometry converts the stackup convention of DESIGN.md into domain bands.
 // s must be valid.
 func (s *Section) buildGeometry() *geometry {

@@ -57,13 +57,6 @@ func TestGeometries(t *testing.T) {
 		}}, Traces: [2]Trace{{Layer: "L1", Width: 18 * testMil, Etch: 0.6 * testMil, X: 26 * testMil}, {Layer: "L1", Width: 18 * testMil, Etch: 0.6 * testMil}},
 			Grounds: []string{"L2"}, Frequency: 5e9, ZRef: 50, Spec: Spec{Coupling: -15, Tolerance: 1}}
 	}
-	offsetDesign := func() *Section { // a 10 dB style offset pair of unequal widths
-		s := demoSection()
-		s.Name = "offset"
-		s.Traces[0].Width = 12 * testMil
-		s.DesignOffset = 18 * testMil
-		return s
-	}
 	twoCores := func() *Section { // traces on different cores, prepreg between
 		return &Section{Name: "two-cores", Stackup: Stackup{Layers: []Layer{
 			{Name: "L2", Kind: Copper, Thickness: 1.4 * testMil},

@@ -40,10 +40,10 @@ type meshPlan struct {
 	hi, lo  int     // broadside: index of the trace in the higher / lower slab
 	jub     int     // broadside: row of the lower face of the higher trace
 	jlt     int     // broadside: row of the upper face of the lower trace
-	// combined: every row carries all four trace edges, in the x order
-	// g.order (edge-coupled pairs, and broadside pairs whose edges do not pass
-	// each other over the offsets solved); otherwise the two patterns blend.
-	combined bool
+	// ordered: every row carries all four trace edges in the x order g.order
+	// (see geometry.setOffsets); otherwise each trace's rows carry its own two.
+	ordered bool
+	feat    float64 // smallest feature (sets the gap of held edges)
 }
 
 func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }
@@ -66,7 +66,7 @@ func (g *geometry) smallestFeature(s *Section) float64 {
 		}
 	}
 	if g.same {
-		d := math.Abs(g.countAt)
+		d := math.Abs((g.offLo + g.offHi) / 2)
 		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2
 		if gap > 0 {
 			f = math.Min(f, gap)
@@ -128,39 +128,47 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		panic("section: trace face is not a mesh row")
 	}
 
-	// Columns: counts from the pattern(s) at mid-range of the offsets solved.
-	var keys []float64
-	p.combined = g.combined
-	if g.same || g.combined {
-		keys = p.keysCombined(g.countAt, nil, [2]float64{g.tr[0].yb, g.tr[1].yb})
-		p.xc = make([]int, len(keys)-1)
-		for i := range p.xc {
-			p.xc[i] = count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i)))
-		}
-		// Mirror-paired counts, so that a mirror-symmetric layout meshes
-		// mirror-symmetrically.
-		for i := range 2 {
-			m := max(p.xc[i], p.xc[4-i])
-			p.xc[i], p.xc[4-i] = m, m
-		}
-	} else {
+	// Columns. The counts are the largest needed at the ends and the middle of
+	// the offset range, so that a segment that grows across the range (the
+	// gap between two edges that pass each other) is resolved at its widest.
+	p.feat = feat
+	p.ordered = !g.blended
+	if !g.same {
 		p.hi, p.lo = 0, 1
 		if g.tr[1].yb > g.tr[0].yb {
 			p.hi, p.lo = 1, 0
 		}
 		p.jub = rowOf(g.tr[p.hi].yb)
 		p.jlt = rowOf(g.tr[p.lo].yt)
-		p.xc = make([]int, 3)
-		for _, k := range []int{p.hi, p.lo} {
-			keys = p.keys(g.countAt, keys, g.tr[k].yb, k)
-			for i := range p.xc {
-				p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
+	}
+	var keys []float64
+	for _, off := range []float64{g.offLo, (g.offLo + g.offHi) / 2, g.offHi} {
+		var pats [][]float64
+		if p.ordered {
+			pats = append(pats, p.keysOrdered(off, nil, [2]float64{g.tr[0].yb, g.tr[1].yb}, -1))
+		} else {
+			for _, k := range []int{p.hi, p.lo} {
+				pats = append(pats, p.keys(off, nil, g.tr[k].yb, k))
 			}
 		}
-		// Symmetric counts about each trace so that C(+δ) = C(−δ) holds exactly
-		// for a symmetric section.
-		m := max(p.xc[0], p.xc[2])
-		p.xc[0], p.xc[2] = m, m
+		for _, keys = range pats {
+			if p.xc == nil {
+				p.xc = make([]int, len(keys)-1)
+			}
+			for i := range p.xc {
+				if keys[i+1] > keys[i] {
+					p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
+				} else {
+					p.xc[i] = max(p.xc[i], minSegCount)
+				}
+			}
+		}
+	}
+	// Mirror-paired counts, so that a mirror-symmetric layout meshes
+	// mirror-symmetrically.
+	for i := range len(p.xc) / 2 {
+		m := max(p.xc[i], p.xc[len(p.xc)-1-i])
+		p.xc[i], p.xc[len(p.xc)-1-i] = m, m
 	}
 	for _, c := range p.xc {
 		p.nx += c
@@ -202,9 +210,12 @@ func (p *meshPlan) keys(off float64, dst []float64, y float64, k int) []float64 
 	return append(dst[:0], wl, centre[k]-hw, centre[k]+hw, wr)
 }
 
-// keysCombined returns the walls and all four trace edges in the order
-// g.order, each trace's edges taken at height y[k].
-func (p *meshPlan) keysCombined(off float64, dst []float64, y [2]float64) []float64 {
+// keysOrdered returns the walls and all four trace edges in the order
+// g.order, trace k's edges taken at height y[k]. With own ≥ 0 (the rows of
+// trace own in a broadside pair) the other trace's edges are held at least a
+// small gap from the order's neighbours by a smooth clamp, so that the order
+// holds even where edges pass each other; own's edges stay exact.
+func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int) []float64 {
 	g := p.g
 	wl, wr := p.walls(off)
 	dst = append(dst[:0], wl)
@@ -217,7 +228,56 @@ func (p *meshPlan) keysCombined(off float64, dst []float64, y [2]float64) []floa
 			dst = append(dst, centre[e.trace]-hw)
 		}
 	}
-	return append(dst, wr)
+	dst = append(dst, wr)
+	if own < 0 {
+		return dst
+	}
+	gap, m := heldGap*p.feat, heldSoft*p.feat
+	first, last := -1, -1
+	for i, e := range g.order {
+		if e.trace == own {
+			if first < 0 {
+				first = i
+			}
+			last = i
+		}
+	}
+	// keys index = order index + 1
+	for i := first + 1; i < 4; i++ {
+		if g.order[i].trace != own {
+			dst[i+1] = softAbove(dst[i+1], dst[i]+gap, m)
+		}
+	}
+	for i := last - 1; i >= 0; i-- {
+		if g.order[i].trace != own {
+			dst[i+1] = softBelow(dst[i+1], dst[i+2]-gap, m)
+		}
+	}
+	return dst
+}
+
+// Held edges: an edge of the other trace stays at least heldGap·feature from
+// its neighbour, and is moved only within heldSoft·feature of that limit.
+const (
+	heldGap  = 0.1
+	heldSoft = 0.5
+)
+
+// softAbove returns x, or for x < b + m a value that falls smoothly (C¹)
+// toward b: b + m·e^((x−b−m)/m). It is always above b.
+func softAbove(x, b, m float64) float64 {
+	if x >= b+m {
+		return x
+	}
+	return b + m*math.Exp((x-b-m)/m)
+}
+
+// softBelow mirrors softAbove: always below b.
+func softBelow(x, b, m float64) float64 {
+	if x <= b-m {
+		return x
+	}
+	return b - m*math.Exp((b-m-x)/m)
 }
 
 // mesh is one realisation of a plan at one offset.
@@ -254,8 +314,8 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	rowHi := make([]float64, nx+1)
 	var keys []float64
 	fill := func(dst []float64, y float64, k int) {
-		if p.combined {
-			keys = p.keysCombined(off, keys, [2]float64{y, y})
+		if p.ordered {
+			keys = p.keysOrdered(off, keys, [2]float64{y, y}, k)
 		} else {
 			keys = p.keys(off, keys, y, k)
 		}
@@ -265,13 +325,13 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			i0 += c
 		}
 	}
-	if !p.combined {
+	if !g.same {
 		fill(rowLo, p.ys[p.jlt], p.lo)
 		fill(rowHi, p.ys[p.jub], p.hi)
 	}
 	// Trace column ranges [iL, iR] in the pattern of each row.
 	var colL, colR [2]int
-	if p.combined {
+	if p.ordered {
 		col := 0
 		for e, ed := range g.order {
 			col += p.xc[e]
@@ -288,7 +348,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	}
 	for j, y := range p.ys {
 		switch {
-		case p.combined:
+		case g.same:
 			fill(row, y, -1)
 		case j >= p.jub:
 			if j == p.jub {
@@ -321,7 +381,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 				tag = tagGround
 			}
 			for k := range 2 {
-				if p.combined || (k == p.hi && j >= p.jub) || (k == p.lo && j <= p.jlt) {
+				if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j <= p.jlt) {
 					if y >= g.tr[k].yb && y <= g.tr[k].yt && i >= colL[k] && i <= colR[k] {
 						tag = tagTrace + int8(k)
 					}
@@ -336,7 +396,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			er := b.er
 			for k := range 2 {
 				if (b.trace == k || b.trace == 2) && g.tr[k].yt > g.tr[k].yb && i >= colL[k] && i < colR[k] {
-					if p.combined || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
+					if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
 						er = 0
 					}
 				}
