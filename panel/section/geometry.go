@@ -108,6 +108,7 @@ func (g *geometry) setOffsets(s *Section, lo, hi float64) {
 // centredFrac: a sweep is centred when its mid offset is within this fraction
 // of the smallest feature from aligned traces.
 const centredFrac = 0.01
+
 // buildGeometry converts the stackup convention of DESIGN.md into domain bands.
 // s must be valid.
 func (s *Section) buildGeometry() *geometry {

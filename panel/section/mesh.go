@@ -363,12 +363,10 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 				fill(row, y, p.lo)
 			}
 		default:
-			// Smoothstep blend 3u² − 2u³: the columns leave both trace faces
-			// vertically, so the elements at the singular corners stay square
-			// however far the traces are offset; the shear goes to the middle
-			// of the gap, where the field is smooth.
-			u := (y - p.ys[p.jlt]) / (p.ys[p.jub] - p.ys[p.jlt])
-			t := u * u * (3 - 2*u)
+			// Linear blend. (A smoothstep, which leaves the faces with
+			// vertical columns, converged worse: it doubles the shear in the
+			// middle of the gap.)
+			t := (y - p.ys[p.jlt]) / (p.ys[p.jub] - p.ys[p.jlt])
 			for i := range row {
 				row[i] = (1-t)*rowLo[i] + t*rowHi[i]
 			}
