@@ -139,7 +139,7 @@ func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 // one level down (the extrapolated values converge as h³ once h² is gone) and
 // (b) the change in E when the order observed over the three levels replaces
 // the assumed 2 (see orderError). On the convergence study of doc.go the
-// estimate is 2.7 to 8 times the true error. Each entry's error is taken
+// estimate is 2.7 to 9 times the true error; it is not a bound (doc.go). Each entry's error is taken
 // relative to √(C_ii·C_jj) (diagonal entries: relative error; the coupling
 // entry: the error in k_C), the largest over C and C0. If the estimate exceeds
 // the accuracy target, L rises by √2 until it does; a *ConvergenceError is
