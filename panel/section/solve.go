@@ -138,12 +138,13 @@ func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 // larger of (a) |E − E'|/7 with E' = C_L + (C_L − C_L/√2) the extrapolation
 // one level down (the extrapolated values converge as h³ once h² is gone) and
 // (b) the change in E when the order observed over the three levels replaces
-// the assumed 2 (see orderError). On the convergence study of doc.go the
-// estimate is 2.7 to 9 times the true error; it is not a bound (doc.go). Each entry's error is taken
-// relative to √(C_ii·C_jj) (diagonal entries: relative error; the coupling
-// entry: the error in k_C), the largest over C and C0. If the estimate exceeds
-// the accuracy target, L rises by √2 until it does; a *ConvergenceError is
-// returned if it never does.
+// the assumed 2 (see orderError). Each entry's error is taken relative to
+// √(C_ii·C_jj) (diagonal entries: relative error; the coupling entry: the
+// error in k_C), the largest over C and C0. On the convergence study of
+// doc.go the estimate is 2.7 to 9 times the true error; it is not a bound.
+// If the estimate exceeds the accuracy target, L rises by √2 until it does
+// (at most maxLevelSteps times); a *ConvergenceError is returned if it never
+// does, and also if a linear solve leaves a relative residual above 1e−8.
 func Solve(s *Section, offset float64, set *Settings) (*Solution, error) {
 	if err := s.Validate(); err != nil {
 		return nil, err

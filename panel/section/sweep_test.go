@@ -2,6 +2,7 @@ package section
 
 import (
 	"context"
+	"encoding/json"
 	"math"
 	"os"
 	"path/filepath"
@@ -124,5 +125,44 @@ func TestSweepCancel(t *testing.T) {
 	cancel()
 	if _, err := Sweep(ctx, demoSection(), DefaultOffsets(demoSection(), 0), nil); err == nil {
 		t.Errorf("cancelled sweep returned no error")
+	}
+}
+
+func TestReport(t *testing.T) {
+	c, err := Sweep(context.Background(), demoSection(), []float64{-testMil, 0, testMil}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := json.Marshal(c.Report())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var back map[string]any
+	if err := json.Unmarshal(b, &back); err != nil {
+		t.Fatal(err)
+	}
+	pts := back["points"].([]any)
+	mid := pts[1].(map[string]any)
+	for _, k := range []string{"offset_m", "c_f_per_m", "c0_f_per_m", "l_h_per_m", "k_c", "k_l", "coupling_db", "directivity_db", "z_even_ohm", "z_odd_ohm", "eps_eff", "convergence"} {
+		if _, ok := mid[k]; !ok {
+			t.Errorf("point lacks %q", k)
+		}
+	}
+	// (the demo pair is symmetric at every offset: a half turn about the
+	// section's centre maps it onto itself; a widened pair is not)
+	cw, err := Sweep(context.Background(), widened(demoSection(), 2*testMil), []float64{0, testMil}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if p := cw.Report().Points[0]; p.ZEvenOhm != nil {
+		t.Errorf("asymmetric pair reports z_even_ohm %g", *p.ZEvenOhm)
+	}
+	if lv := mid["convergence"].(map[string]any)["levels"].([]any); len(lv) != 3 {
+		t.Errorf("convergence report has %d levels", len(lv))
+	}
+	for _, k := range []string{"section", "frequency_hz", "length_m"} {
+		if _, ok := back[k]; !ok {
+			t.Errorf("report lacks %q", k)
+		}
 	}
 }
