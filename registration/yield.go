@@ -471,6 +471,8 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 type mcWorker struct {
 	y         *Yield
 	sites     []mcSite
+	pcg       *rand.PCG
+	rng       *rand.Rand
 	draw      Draw
 	v         [][NumTerms]float64
 	stamp     []int64 // per part, the last trial in which it failed, +1
@@ -482,14 +484,17 @@ type mcWorker struct {
 }
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
-	return &mcWorker{y: y, sites: sites, draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
+	pcg := rand.NewPCG(0, 0)
+	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
 		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
 		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1)}
 }
 
-// block runs n trials from stream (seed, b).
+// block runs n trials from stream (seed, b): the worker's generator is
+// reseeded, which is the same as rand.NewPCG(seed, b) without allocating.
 func (w *mcWorker) block(seed, b uint64, n int) {
-	rng := rand.New(rand.NewPCG(seed, b))
+	w.pcg.Seed(seed, b)
+	rng := w.rng
 	sites := w.sites
 	good := w.siteGood[:len(sites)]
 	for range n {
