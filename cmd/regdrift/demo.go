@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -102,21 +103,23 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 			o.abort()
 			return err
 		}
-		ws := sum.Worst[0]
-		fmt.Fprintf(std.out, "%-20s %s\n  %d/%d sites in spec, offset rms %.2f mil (max |%.2f| mil), worst drift %+.3f dB at %s -> %s\n",
-			name, dj.what, sum.InSpec, sum.Sites, sum.OffsetM.RMS/lu.factor,
-			maxAbs(sum.OffsetM.Min-a.job.Sections[0].NominalOffset(), sum.OffsetM.Max-a.job.Sections[0].NominalOffset())/lu.factor,
-			ws.DriftDB, ws.Name, filepath.Join(f.out, name, "map.png"))
+		var dev, worst3 float64
+		for i := range a.sites {
+			r := &a.sites[i]
+			dev = math.Max(dev, math.Abs(r.Stats.MeanAcross))
+			worst3 = math.Max(worst3, math.Abs(r.WorstDrift))
+		}
+		fmt.Fprintf(std.out, "%-15s %s\n  %d of %d sites in spec; largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB -> %s\n",
+			name, dj.what, sum.InSpec, sum.Sites, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3,
+			filepath.Join(f.out, name, "map.png"))
 	}
 	return nil
 }
 
-func maxAbs(a, b float64) float64 {
-	if a < 0 {
-		a = -a
+// signedMax returns whichever of a and b is larger in magnitude.
+func signedMax(a, b float64) float64 {
+	if math.Abs(a) > math.Abs(b) {
+		return a
 	}
-	if b < 0 {
-		b = -b
-	}
-	return max(a, b)
+	return b
 }
