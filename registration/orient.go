@@ -28,8 +28,16 @@ type Orientation struct {
 	Turned   OrientYield
 }
 
-// Better reports whether turning the parts raises the group's mean yield.
-func (o Orientation) Better() bool { return o.Turned.Mean > o.AsPlaced.Mean }
+// OrientMinGain is the rise in mean site yield below which a turn is not
+// worth it: one part per million, below any Monte Carlo resolution.
+const OrientMinGain = 1e-6
+
+// Gain returns the rise in mean site yield from turning the parts.
+func (o Orientation) Gain() float64 { return o.Turned.Mean - o.AsPlaced.Mean }
+
+// Better reports whether turning the parts raises the group's mean yield by
+// more than OrientMinGain.
+func (o Orientation) Better() bool { return o.Gain() > OrientMinGain }
 
 // Orient evaluates the group of sites as placed and turned a quarter turn.
 func (y *Yield) Orient(sites []int) Orientation {

@@ -41,6 +41,10 @@ func TestOrient(t *testing.T) {
 		return mean, worst
 	}
 	all := []int{0, 1, 2}
+	// A group whose yield is 100 % either way is not worth turning.
+	if o := build(panel.Vec{Y: 1}).Orient(nil); o.Better() {
+		t.Error("an empty group should not call for a turn")
+	}
 	for _, tt := range []struct {
 		name       string
 		u          panel.Vec

@@ -191,8 +191,17 @@ func runTol(ctx context.Context, std stdio, opts any, args []string) error {
 		}
 		ys.curves[si], ys.allowed[si], ys.outSpec[si] = c, iv, !st.DesignInSpec
 		for k, w := range widened[si] {
-			row, err := widenStudy(ctx, w, set, &f.solver)
-			if err != nil {
+			var row widenRow
+			if deltas[k] == 0 {
+				// The design itself: its confirmed roots, not the curve's.
+				row = widenRow{CouplingDB: st.CouplingDB, ZLineOhm: st.ZLineOhm, DesignInSpec: st.DesignInSpec,
+					OffsetLowM: st.OffsetLowM, OffsetHighM: st.OffsetHighM, ToleranceM: st.ToleranceM, curve: c}
+				_, riv, _, err := tolCurve(ctx, s, set, &f.solver, st.CouplingDB, s.Spec.Tolerance)
+				if err != nil {
+					return err
+				}
+				row.ToleranceRetuneM = math.Min(s.NominalOffset()-riv.Lo, riv.Hi-s.NominalOffset())
+			} else if row, err = widenStudy(ctx, w, set, &f.solver); err != nil {
 				return err
 			}
 			row.DeltaWM, row.Trace, row.WidthM = deltas[k], f.widenTrace, w.Traces[trace].Width
@@ -438,11 +447,7 @@ func printTol(w io.Writer, j *Job, r *tolJSON, lu lengthUnit, paths []string) {
 		tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 		fmt.Fprintf(tw, "  array\tpart\tas placed\tturned\t\n")
 		for _, o := range r.Orientation {
-			verdict := "keep"
-			if o.TurnHelps {
-				verdict = "turn"
-			}
-			fmt.Fprintf(tw, "  %d\t%s\t%.4f %%\t%.4f %%\t%s\n", o.Array, o.Part, 100*o.MeanYield, 100*o.MeanYieldTurned, verdict)
+			fmt.Fprintf(tw, "  %d\t%s\t%.4f %%\t%.4f %%\t%s\n", o.Array, o.Part, 100*o.MeanYield, 100*o.MeanYieldTurned, o.verdict())
 		}
 		tw.Flush()
 		fmt.Fprintln(w)

@@ -40,7 +40,9 @@ func init() {
 		long: `Estimates how many couplers and parts meet their coupling spec across
 panel-to-panel variation of the registration error model.
 
-Each section's coupling curve is inverted against its spec to give the interval
+Each section's coupling curve (solved over at least ±5 mil about the design
+offset, wider while the coupling is still in spec at its ends) is inverted
+against its spec to give the interval
 of allowed offsets (it may be asymmetric about the design offset; if the design
 itself is out of spec the interval is empty, a warning is printed and its sites
 yield 0). The closed-form site yield is P(offset in interval) for the site's
@@ -77,10 +79,10 @@ yield.json, and a summary table to stdout.`,
 	})
 }
 
-// yieldSigmas is how far the coupling curve of a yield study reaches beyond
-// the sites' mean offsets, in standard deviations: beyond 8σ a normal tail
-// holds 6e-16, below anything a yield can show, so an allowed interval cut
-// at the curve's end there changes no result.
+// yieldSigmas is how far beyond the sites' mean offsets, in standard
+// deviations, an allowed interval cut by the end of the solved offsets draws
+// a warning: beyond 8σ a normal tail holds 6e-16, below anything a yield can
+// show.
 const yieldSigmas = 8
 
 // yieldSetup is a job prepared for yield: solved curves, allowed intervals and
@@ -134,30 +136,34 @@ func setupYield(ctx context.Context, j *Job, sf *solverFlags) (*yieldSetup, erro
 	}
 	n := len(j.Sections)
 	ys := newYieldSetup(j)
-	span := make([]float64, n)
+	reach := make([][2]float64, n) // per section, the lowest and highest mean ± yieldSigmas·σ of its sites
+	for i := range reach {
+		reach[i] = [2]float64{math.Inf(1), math.Inf(-1)}
+	}
 	for k, s := range j.Sites {
 		si := ys.secIndex[s.Section]
-		st := ys.y.Stats(k)
-		span[si] = math.Max(span[si], math.Abs(st.MeanAcross)+yieldSigmas*st.SDAcross)
+		p := ys.y.Prob(k)
+		w := yieldSigmas*p.SD + p.Uniform
+		reach[si][0] = math.Min(reach[si][0], p.Mean-w)
+		reach[si][1] = math.Max(reach[si][1], p.Mean+w)
 	}
 	for i, s := range j.Sections {
 		if !ys.used[i] {
 			continue
 		}
-		c, _, err := section.CachedSweep(ctx, s, section.DefaultOffsets(s, span[i]), set, sf.cacheDir, sf.noCache)
-		if err != nil {
-			return nil, fmt.Errorf("section %q: %w", s.Name, err)
-		}
-		ys.curves[i] = c
-		lo, hi := c.Range()
-		iv, lim, err := registration.SpecInterval(c.Coupling, lo, hi, s.NominalOffset(), s.Spec.Coupling, s.Spec.Tolerance)
+		c, iv, lim, err := tolCurve(ctx, s, set, sf, s.Spec.Coupling, s.Spec.Tolerance)
 		switch {
 		case errors.Is(err, registration.ErrNominalOutOfSpec):
 			ys.outSpec[i] = true
 			ys.warnings = append(ys.warnings, fmt.Sprintf("section %q: the design is outside its spec: coupling %.3f dB at the design offset %.3f mil, spec %.2f ± %.2f dB; its sites yield 0",
 				s.Name, c.Coupling(s.NominalOffset()), s.NominalOffset()/milM, s.Spec.Coupling, s.Spec.Tolerance))
 		case err != nil:
-			return nil, badInput(fmt.Errorf("section %q: %w", s.Name, err))
+			return nil, err
+		}
+		ys.curves[i] = c
+		if (lim.Clipped[0] && reach[i][0] < iv.Lo) || (lim.Clipped[1] && reach[i][1] > iv.Hi) {
+			ys.warnings = append(ys.warnings, fmt.Sprintf("section %q: the coupling is still in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
+				s.Name, iv.Lo/milM, iv.Hi/milM, yieldSigmas))
 		}
 		ys.allowed[i], ys.limits[i] = iv, lim
 	}
@@ -467,6 +473,17 @@ func (ys *yieldSetup) orientation() []orientJSON {
 	return out
 }
 
+// verdict says what the orientation study recommends.
+func (o orientJSON) verdict() string {
+	switch {
+	case o.TurnHelps:
+		return "turn"
+	case o.MeanYieldTurned-o.MeanYield > -registration.OrientMinGain:
+		return "either"
+	}
+	return "keep"
+}
+
 func (ys *yieldSetup) writeCSV(w io.Writer, res *registration.MCResult, lu lengthUnit) error {
 	cw := csv.NewWriter(w)
 	pu, u := "["+lu.panel+"]", "["+lu.name+"]"
@@ -557,12 +574,8 @@ func (ys *yieldSetup) printTable(w io.Writer, sum *yieldJSON, lu lengthUnit, pat
 		tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 		fmt.Fprintf(tw, "  array\tpart\tsite yield\tturned\trms offset [%s]\tturned\t\n", lu.name)
 		for _, o := range sum.Orientation {
-			verdict := "keep"
-			if o.TurnHelps {
-				verdict = "turn"
-			}
 			fmt.Fprintf(tw, "  %d\t%s\t%.4f %%\t%.4f %%\t%.3f\t%.3f\t%s\n", o.Array, o.Part, 100*o.MeanYield, 100*o.MeanYieldTurned,
-				o.RMSOffsetM/lu.factor, o.RMSOffsetTurned/lu.factor, verdict)
+				o.RMSOffsetM/lu.factor, o.RMSOffsetTurned/lu.factor, o.verdict())
 		}
 		tw.Flush()
 	}
