@@ -12,8 +12,10 @@ func TestValidateErrors(t *testing.T) {
 		name, key, msg string
 		mod            func(s *Section)
 	}{
-		{"etch leaves no top width", "traces[1].etch", "leaves no top width", func(s *Section) { s.Traces[1].Etch = 7 * testMil }},
+		{"etch leaves no top width", "traces[1].etch", "leaves no top width", func(s *Section) { s.Traces[1].Etch = 7 * testMil; s.Stackup.Layers[4].Thickness = 5 * testMil }},
 		{"negative etch", "traces[0].etch", "must not be negative", func(s *Section) { s.Traces[0].Etch = -1e-6 }},
+		{"etch deeper than copper", "traces[0].etch", "etch factor below 0.5", func(s *Section) { s.Traces[0].Etch = 3 * testMil }},
+		{"etch on a zero-thickness strip", "traces[1].etch", "times the copper thickness", func(s *Section) { s.Stackup.Layers[4].Thickness = 0 }},
 		{"zero width", "traces[1].width", "must be positive", func(s *Section) { s.Traces[1].Width = 0 }},
 		{"unknown trace layer", "traces[0].layer", "not in the stackup", func(s *Section) { s.Traces[0].Layer = "L9" }},
 		{"trace on a ground", "traces[0].layer", "is a ground plane", func(s *Section) { s.Traces[0].Layer = "L2" }},

@@ -70,6 +70,22 @@ func TestGeometries(t *testing.T) {
 		}}, Traces: [2]Trace{{Layer: "L3", Width: 10 * testMil, Etch: 0.5 * testMil}, {Layer: "L4", Width: 10 * testMil, Etch: 0.5 * testMil}},
 			Grounds: []string{"L2", "L5"}, Frequency: 3e9, ZRef: 50, Spec: Spec{Coupling: -6, Tolerance: 0.5}}
 	}
+	broadMicro := func() *Section { // traces on L1 (outer) and L2 over ground L3
+		return &Section{Name: "broadside-micro", Stackup: Stackup{Layers: []Layer{
+			{Name: "L1", Kind: Copper, Thickness: 1.9 * testMil},
+			{Kind: Dielectric, Thickness: 4 * testMil, Er: 3.0, Core: true},
+			{Name: "L2", Kind: Copper, Thickness: 1.4 * testMil},
+			{Kind: Dielectric, Thickness: 10 * testMil, Er: 3.5},
+			{Name: "L3", Kind: Copper, Thickness: 1.4 * testMil},
+		}}, Traces: [2]Trace{{Layer: "L1", Width: 10 * testMil, Etch: 0.6 * testMil}, {Layer: "L2", Width: 12 * testMil, Etch: 0.4 * testMil}},
+			Grounds: []string{"L3"}, Frequency: 2e9, ZRef: 50, Spec: Spec{Coupling: -6, Tolerance: 1}}
+	}
+	unusedLayer := func() *Section { // a signal layer between the grounds that carries no trace here
+		s := twoCores()
+		s.Name = "unused-layer"
+		s.Stackup.Layers = append(s.Stackup.Layers[:4:4], append([]Layer{{Name: "LX", Kind: Copper, Thickness: 0.7 * testMil}}, s.Stackup.Layers[4:]...)...)
+		return s
+	}
 	for _, c := range []struct {
 		s           *Section
 		erLo, erHi  float64
@@ -79,6 +95,8 @@ func TestGeometries(t *testing.T) {
 		{flip(edgeMicro()), 1, 3.48, true},
 		{offsetDesign(), 3, 3.55, false},
 		{twoCores(), 3.48, 3.7, false},
+		{broadMicro(), 1, 3.5, false},
+		{unusedLayer(), 3.48, 3.7, false},
 	} {
 		t.Run(c.s.Name, func(t *testing.T) {
 			s := c.s

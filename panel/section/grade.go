@@ -90,6 +90,12 @@ type grader struct {
 
 // nodes writes n+1 nodes on [a, b] into dst (dst[0] = a, dst[n] = b).
 func (gr *grader) nodes(dst []float64, a, b float64, n int, sing []float64) {
+	if !(b > a) { // a degenerate segment; the element check reports it
+		for i := range dst[:n+1] {
+			dst[i] = a
+		}
+		return
+	}
 	gr.ps, gr.bp = gr.pieces(gr.ps[:0], a, b, sing, gr.bp)
 	total := 0.0
 	for _, p := range gr.ps {

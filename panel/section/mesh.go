@@ -232,26 +232,30 @@ func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int
 	if own < 0 {
 		return dst
 	}
-	gap, m := heldGap*p.feat, heldSoft*p.feat
-	first, last := -1, -1
-	for i, e := range g.order {
-		if e.trace == own {
-			if first < 0 {
-				first = i
+	// Each run of the other trace's edges lies between two fixed keys (own
+	// edges or walls) A < B; a smooth increasing map into (A+gap, B−gap), the
+	// identity away from the ends, keeps the run in order and inside.
+	gap := heldGap * p.feat
+	for i := 1; i <= 4; {
+		if g.order[i-1].trace == own {
+			i++
+			continue
+		}
+		j := i
+		for j <= 4 && g.order[j-1].trace != own {
+			j++
+		}
+		lo, hi := dst[i-1]+gap, dst[j]-gap // run is dst[i:j]
+		m := math.Min(heldSoft*p.feat, (hi-lo)/4)
+		mid := (lo + hi) / 2
+		for k := i; k < j; k++ {
+			if dst[k] < mid {
+				dst[k] = softAbove(dst[k], lo, m)
+			} else {
+				dst[k] = softBelow(dst[k], hi, m)
 			}
-			last = i
 		}
-	}
-	// keys index = order index + 1
-	for i := first + 1; i < 4; i++ {
-		if g.order[i].trace != own {
-			dst[i+1] = softAbove(dst[i+1], dst[i]+gap, m)
-		}
-	}
-	for i := last - 1; i >= 0; i-- {
-		if g.order[i].trace != own {
-			dst[i+1] = softBelow(dst[i+1], dst[i+2]-gap, m)
-		}
+		i = j
 	}
 	return dst
 }
@@ -263,13 +267,14 @@ const (
 	heldSoft = 0.5
 )
 
-// softAbove returns x, or for x < b + m a value that falls smoothly (C¹)
-// toward b: b + m·e^((x−b−m)/m). It is always above b.
+// softAbove returns x, or for x < b + m a value that approaches b smoothly
+// (C¹) and only algebraically, b + m/(1 + (b + m − x)/m), so that points far
+// below the limit keep distinct, ordered images. It is always above b.
 func softAbove(x, b, m float64) float64 {
 	if x >= b+m {
 		return x
 	}
-	return b + m*math.Exp((x-b-m)/m)
+	return b + m/(1+(b+m-x)/m)
 }
 
 // softBelow mirrors softAbove: always below b.
@@ -277,7 +282,7 @@ func softBelow(x, b, m float64) float64 {
 	if x <= b-m {
 		return x
 	}
-	return b - m*math.Exp((b-m-x)/m)
+	return b - m/(1+(x-b+m)/m)
 }
 
 // mesh is one realisation of a plan at one offset.

@@ -203,8 +203,14 @@ func (s *Section) Validate() error {
 		if !finite(t.Etch) || t.Etch < 0 {
 			return s.fieldErr(key+".etch", "etch %s must not be negative", mils(t.Etch))
 		}
-		if t.Width-2*t.Etch <= 0 && ls[i].Thickness > 0 {
+		if t.Width-2*t.Etch <= 0 {
 			return s.fieldErr(key+".etch", "etch %s per side leaves no top width", mils(t.Etch))
+		}
+		// Even isotropic etching undercuts no more than it etches deep (etch
+		// factor ≥ 1; 2 to 4 is typical, FACTS.md [cp]); an undercut of more
+		// than twice the copper thickness is almost surely a unit slip.
+		if th := ls[i].Thickness; t.Etch > maxUndercut*th {
+			return s.fieldErr(key+".etch", "etch %s per side is more than %g times the copper thickness %s (etch factor below %g)", mils(t.Etch), maxUndercut, mils(th), 1/maxUndercut)
 		}
 		if !finite(t.X) || math.Abs(t.X) > 1 {
 			return s.fieldErr(key+".x", "position %s is not a lateral position in a cross-section", mils(t.X))
@@ -287,6 +293,9 @@ func (s *Section) checkOffset(off float64, key string) error {
 	}
 	return nil
 }
+
+// maxUndercut is the largest undercut per side, in copper thicknesses.
+const maxUndercut = 2.0
 
 // maxOffsetSpans bounds offsets to this many domain heights: beyond about 5
 // heights a stripline's coupling is below −100 dB.
