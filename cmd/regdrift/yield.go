@@ -55,7 +55,8 @@ for a seed does not depend on --workers.
 
 The error budget gives each contributor term's share of the across-offset
 variance (squared sensitivity times variance) at the worst site and averaged
-over the panel.
+over the panel; its sd column is the standard deviation the term alone causes
+(over the panel, the rms over the sites).
 
 Writes yield.png (closed-form site yield over the panel for the most common
 section and line direction, contours at 99 % and 95 %, part outlines, each
@@ -620,49 +621,63 @@ func toRect(r panel.Rect) render.Rect {
 	return render.Rect{Min: render.Point{X: r.Min.X, Y: r.Min.Y}, Max: render.Point{X: r.Max.X, Y: r.Max.Y}}
 }
 
-// fieldZone is a region of the yield map drawn for one section and line
-// direction: an array's extent, or the whole panel.
-type fieldZone struct {
-	r   panel.Rect
+// fieldKind is one section and line direction drawn in the yield field.
+type fieldKind struct {
 	sec *section.Section
 	iv  registration.Interval
 	rel *registration.Relative
 	u   panel.Vec
 }
 
-// zones returns a zone per array (its most common section and direction over
-// the extent of its parts), then the job's dominant one for the rest.
+// fieldZone is a region of the yield map: an array's extent, or the whole
+// panel, with the coupler kinds whose lowest yield it shows.
+type fieldZone struct {
+	r     panel.Rect
+	kinds []fieldKind
+}
+
+// zones returns a zone per array over the extent of its parts, holding every
+// distinct (section, line direction) of its couplers (half turns count as
+// one), then a zone for the rest of the panel with the job's most common kind.
 func (ys *yieldSetup) zones() []fieldZone {
 	j := ys.job
-	zone := func(site int, r panel.Rect) fieldZone {
+	kindOf := func(site int) fieldKind {
 		st := j.Sites[site]
 		si := ys.secIndex[st.Section]
 		s := j.Sections[si]
-		return fieldZone{r: r, sec: s, iv: ys.allowed[si], rel: j.Model.Relative(s.Traces[0].Layer, s.Traces[1].Layer), u: st.U}
+		return fieldKind{sec: s, iv: ys.allowed[si], rel: j.Model.Relative(s.Traces[0].Layer, s.Traces[1].Layer), u: st.U}
+	}
+	type key struct {
+		sec string
+		deg int
 	}
 	var out []fieldZone
 	for ai := range j.Layout.Arrays {
-		var sites []int
-		r := panel.Rect{Min: panel.Vec{X: math.Inf(1), Y: math.Inf(1)}, Max: panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}}
+		z := fieldZone{r: panel.Rect{Min: panel.Vec{X: math.Inf(1), Y: math.Inf(1)}, Max: panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}}}
+		seen := map[key]bool{}
 		for i, st := range j.Sites {
 			if st.Array != ai {
 				continue
 			}
-			sites = append(sites, i)
 			b := j.Instances[st.Instance].Bounds
-			r.Min.X, r.Min.Y = math.Min(r.Min.X, b.Min.X), math.Min(r.Min.Y, b.Min.Y)
-			r.Max.X, r.Max.Y = math.Max(r.Max.X, b.Max.X), math.Max(r.Max.Y, b.Max.Y)
+			z.r.Min.X, z.r.Min.Y = math.Min(z.r.Min.X, b.Min.X), math.Min(z.r.Min.Y, b.Min.Y)
+			z.r.Max.X, z.r.Max.Y = math.Max(z.r.Max.X, b.Max.X), math.Max(z.r.Max.Y, b.Max.Y)
+			k := key{st.Section, int(math.Round(st.Angle*180/math.Pi)) % 180}
+			if !seen[k] {
+				seen[k] = true
+				z.kinds = append(z.kinds, kindOf(i))
+			}
 		}
-		if len(sites) > 0 {
-			out = append(out, zone(ys.dominantSite(sites), r))
+		if len(z.kinds) > 0 {
+			out = append(out, z)
 		}
 	}
-	return append(out, zone(ys.dominantSite(nil), j.Layout.Panel.Outline()))
+	return append(out, fieldZone{r: j.Layout.Panel.Outline(), kinds: []fieldKind{kindOf(ys.dominantSite(nil))}})
 }
 
 // drawYield draws the closed-form site yield field over the panel (over each
-// array for its own section and line direction), with 99 % and 95 %
-// contours, part outlines and each site's Monte Carlo yield.
+// array the lowest of its couplers' section and line direction), with 99 %
+// and 95 % contours, part outlines and each site's Monte Carlo yield.
 func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yieldJSON, lu lengthUnit) error {
 	j := ys.job
 	zones := ys.zones()
@@ -675,8 +690,12 @@ func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yi
 				break
 			}
 		}
-		row := z.rel.Row(p, z.u)
-		return 100 * z.rel.Prob(&row, z.sec.NominalOffset()).Prob(z.iv)
+		v := 1.0
+		for _, f := range z.kinds {
+			row := f.rel.Row(p, f.u)
+			v = math.Min(v, f.rel.Prob(&row, f.sec.NominalOffset()).Prob(f.iv))
+		}
+		return 100 * v
 	}
 	ur := toRect(j.Layout.Panel.Usable())
 	ext := toRect(j.Layout.Panel.Outline())
@@ -701,7 +720,7 @@ func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yi
 		j.Title,
 		fmt.Sprintf("site yield: %d panels, seed %d; site yield %.3f %%, part yield %.3f %%, good parts per panel %.1f of %d (5th percentile %d)",
 			sum.Trials, sum.Seed, 100*sum.SiteYieldMean, 100*sum.PartYieldMean, gp.Mean, sum.Parts, gp.P05),
-		"field: closed-form yield over each array for its section and line direction; contours at 99 % and 95 %; bars: each site's Monte Carlo yield",
+		"field: closed-form site yield, over each array the lowest of its couplers' line directions; contours at 99 % and 95 %; bars: each site's Monte Carlo yield",
 	}
 	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Title: title, Unit: ru})
 	v := m.Views[0]
