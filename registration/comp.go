@@ -359,24 +359,45 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 			return out
 		}
 		if budget > 0 {
-			res.Common = "the drill budget: the common part minimises the worst registration of the trace layers to the drilled holes"
-			// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
-			var reach float64
-			for j := range x {
-				reach += x[j]*x[j] + bounds.caps[j]*bounds.caps[j]
-			}
-			zbox := make([]float64, nn)
-			for k := range zbox {
-				zbox[k] = 2 * math.Sqrt(reach)
-			}
-			z, _, err := minimax(nn, inZ(&drill), inZ(&bounds), budget, zbox)
-			if err != nil {
-				return nil, err
-			}
-			for k := range null {
-				for j := range x {
-					x[j] += null[k][j] * z[k]
+			// First choice: centre every trace layer on the drilled holes in
+			// the least-squares sense (for a layer whose own movement is a
+			// pure scale this cancels it exactly). If that breaks the budget
+			// or a bound, minimise the worst registration instead.
+			zd := inZ(&drill)
+			apply := func(z []float64) []float64 {
+				y := slices.Clone(x)
+				for k := range null {
+					for j := range y {
+						y[j] += null[k][j] * z[k]
+					}
 				}
+				return y
+			}
+			res.Common = "the drill budget: the common part centres the trace layers on the drilled holes (least squares over the sites), within the budget"
+			z, ok := leastSquares(zd, nn)
+			if y := apply(z); ok {
+				if _, bad := violated(&caps, y); !bad {
+					x = y
+				} else {
+					ok = false
+				}
+			}
+			if !ok {
+				res.Common = "the drill budget: the common part minimises the worst registration of the trace layers to the drilled holes"
+				// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
+				var reach float64
+				for j := range x {
+					reach += x[j]*x[j] + bounds.caps[j]*bounds.caps[j]
+				}
+				zbox := make([]float64, nn)
+				for k := range zbox {
+					zbox[k] = 2 * math.Sqrt(reach)
+				}
+				z, _, err := minimax(nn, zd, inZ(&bounds), budget, zbox)
+				if err != nil {
+					return nil, err
+				}
+				x = apply(z)
 			}
 		} else {
 			res.Common = "the smallest compensation: the common part minimises the sum of squares of the layers' scale changes"
@@ -489,13 +510,38 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 		}
 	}
 	if len(freeAxes) > 0 {
-		res.Notes = append(res.Notes, fmt.Sprintf("no coupled lines run across %s: %s compensation moves no offset and is set by %s",
-			strings.Join(freeAxes, " or "), strings.Join(freeAxes, " and "), commonRule(budget > 0)))
+		res.Notes = append(res.Notes, fmt.Sprintf("no site's offset has a %s component (every coupled line runs along %s): %s compensation moves no offset and is set by %s",
+			strings.Join(freeAxes, " or "), strings.Join(freeAxes, " or "), strings.Join(freeAxes, " and "), commonRule(budget > 0)))
 	}
 	if res.Free > 0 {
 		res.Notes = append(res.Notes, fmt.Sprintf("%d of the %d values are free (the common part) and were set by %s", res.Free, nv, commonRule(budget > 0)))
 	}
 	return res, nil
+}
+
+// leastSquares returns the z minimising Σ (b_i + a_i·z)², by Cholesky on
+// the normal equations (n is at most the number of layers times two); ok is
+// false when they are singular.
+func leastSquares(r *linRows, n int) ([]float64, bool) {
+	nm := mat.NewSymDense(n, nil)
+	rhs := mat.NewVecDense(n, nil)
+	for i := range r.b {
+		for a := 0; a < n; a++ {
+			rhs.SetVec(a, rhs.AtVec(a)-r.a[i][a]*r.b[i])
+			for b := a; b < n; b++ {
+				nm.SetSym(a, b, nm.At(a, b)+r.a[i][a]*r.a[i][b])
+			}
+		}
+	}
+	var ch mat.Cholesky
+	if !ch.Factorize(nm) || ch.Cond() > 1e12 {
+		return make([]float64, n), false
+	}
+	var z mat.VecDense
+	if err := ch.SolveVecTo(&z, rhs); err != nil {
+		return make([]float64, n), false
+	}
+	return mat.Col(nil, 0, &z), true
 }
 
 func commonRule(budget bool) string {

@@ -88,7 +88,7 @@ func TestCompensateAnalytic(t *testing.T) {
 				t.Errorf("free %d, common %q", r.Free, r.Common)
 			}
 			notes := strings.Join(r.Notes, "; ")
-			if !strings.Contains(notes, "across X") || !strings.Contains(notes, "difference") {
+			if !strings.Contains(notes, "X compensation moves no offset") || !strings.Contains(notes, "difference") {
 				t.Errorf("notes %q do not say that X is free and only differences matter", notes)
 			}
 			// Artwork factor: the layer's scale is (1+s)·f − 1, so cancelling
