@@ -137,56 +137,81 @@ func SpecInterval(f func(float64) float64, lo, hi, nominal, target, tol float64)
 }
 
 // SiteProb is the closed-form distribution of one site's across offset, as used
-// for its yield: a normal part plus at most one uniform part treated exactly.
+// for its yield: a normal part plus at most two uniform parts treated exactly.
 type SiteProb struct {
 	Mean float64 // mean across offset, design offset included, m
 	// SD is the standard deviation of the normal part: every normal term, the
-	// per-site sigma, and the uniform terms other than the widest.
+	// per-site sigma, and the uniform terms other than the two widest.
 	SD float64
-	// Uniform is the half-width of the widest uniform term's contribution
-	// (|sensitivity| × half_width), m; 0 when no uniform term reaches the site.
-	Uniform float64
+	// Uniform and Uniform2 are the half-widths of the widest and second widest
+	// uniform terms' contributions (|sensitivity| × half_width), m; 0 when
+	// fewer uniform terms reach the site. Uniform ≥ Uniform2.
+	Uniform, Uniform2 float64
 }
 
-// uniformFoldRatio: a uniform part narrower than this fraction of the normal
-// SD is folded into the normal part by its variance w²/3. The density then
+// Fold ratios: a uniform part narrower than this fraction of the rest of the
+// spread is folded into the normal part by its variance w²/3. The density then
 // differs from the exact convolution by O((w/σ)⁴) in its fourth cumulant, far
-// below Monte Carlo resolution, and the exact form would lose digits to
-// cancellation in its finite difference.
-const uniformFoldRatio = 1e-6
+// below Monte Carlo resolution, while the exact forms would lose digits to
+// cancellation in their finite differences (relative error about
+// ε·(x/w) for one box and ε·x²/(w1·w2) for two).
+const (
+	uniformFoldRatio  = 1e-6
+	uniform2FoldRatio = 1e-4
+)
 
-// CDF returns P(offset ≤ t). With a uniform part of half-width w the CDF is
-// the normal CDF averaged over ±w:
+// CDF returns P(offset ≤ t). A uniform part of half-width w averages the CDF
+// over ±w, which is a finite difference of its antiderivative; with two
+// boxes, a double difference of the second antiderivative:
 //
-//	F(t) = [G(t−μ+w) − G(t−μ−w)]/(2w),  G(x) = σ·(uΦ(u) + φ(u)), u = x/σ,
+//	F(t) = [G1(x+w) − G1(x−w)]/(2w),                 x = t − μ,
+//	F(t) = Σ± ±G2(x ± w1 ± w2)/(4·w1·w2),
+//	G1(x) = σ·(uΦ(u) + φ(u)),  G2(x) = σ²·((u²+1)Φ(u) + uφ(u))/2,  u = x/σ,
 //
-// G being the antiderivative of Φ(x/σ) (∫Φ = xΦ + φ, Owen 1980, "A table of
-// normal integrals", Commun. Statist. B9, integral 10,010.1); with σ = 0,
-// G(x) = max(x, 0).
+// the repeated integrals of Φ (∫Φ = uΦ + φ, Owen 1980, "A table of normal
+// integrals", Commun. Statist. B9, 389–419, integral 10,010.1; differentiating
+// G2 gives G1 back). With σ = 0, G1(x) = max(x, 0) and G2(x) = max(x, 0)²/2.
 func (p SiteProb) CDF(t float64) float64 {
 	x := t - p.Mean
-	w := p.Uniform
-	if w > 0 && w < uniformFoldRatio*p.SD {
-		sd := math.Sqrt(p.SD*p.SD + w*w/3)
-		return NormalCDF(x / sd)
+	sd, w1, w2 := p.SD, p.Uniform, p.Uniform2
+	if w2 > 0 && w2 < uniform2FoldRatio*(sd+w1) {
+		sd, w2 = math.Sqrt(sd*sd+w2*w2/3), 0
 	}
-	if w == 0 {
-		if p.SD == 0 {
+	if w1 > 0 && w1 < uniformFoldRatio*sd {
+		sd, w1 = math.Sqrt(sd*sd+w1*w1/3), 0
+	}
+	if w1 == 0 && w2 > 0 {
+		w1, w2 = w2, 0
+	}
+	switch {
+	case w1 == 0:
+		if sd == 0 {
 			if x >= 0 {
 				return 1
 			}
 			return 0
 		}
-		return NormalCDF(x / p.SD)
-	}
-	G := func(x float64) float64 {
-		if p.SD == 0 {
-			return math.Max(x, 0)
+		return NormalCDF(x / sd)
+	case w2 == 0:
+		G1 := func(x float64) float64 {
+			if sd == 0 {
+				return math.Max(x, 0)
+			}
+			u := x / sd
+			return sd * (u*NormalCDF(u) + normalPDF(u))
 		}
-		u := x / p.SD
-		return p.SD * (u*NormalCDF(u) + normalPDF(u))
+		return math.Min(1, math.Max(0, (G1(x+w1)-G1(x-w1))/(2*w1)))
 	}
-	return math.Min(1, math.Max(0, (G(x+w)-G(x-w))/(2*w)))
+	G2 := func(x float64) float64 {
+		if sd == 0 {
+			m := math.Max(x, 0)
+			return m * m / 2
+		}
+		u := x / sd
+		return sd * sd * ((u*u+1)*NormalCDF(u) + u*normalPDF(u)) / 2
+	}
+	f := (G2(x+w1+w2) - G2(x+w1-w2) - G2(x-w1+w2) + G2(x-w1-w2)) / (4 * w1 * w2)
+	return math.Min(1, math.Max(0, f))
 }
 
 // Prob returns P(offset ∈ iv), the closed-form yield of the site.
@@ -253,25 +278,31 @@ func (y *Yield) Prob(i int) SiteProb {
 
 // Prob returns the closed-form distribution of the across offset of row, with
 // the design offset nominal added to its mean: the normal terms, the per-site
-// sigma and all uniform terms but the widest make up the normal part, the
-// widest uniform term is kept exact.
+// sigma and all uniform terms but the two widest make up the normal part, the
+// two widest uniform terms are kept exact.
 func (r *Relative) Prob(row *Row, nominal float64) SiteProb {
 	st := r.Stats(*row)
 	v := st.SDAcross * st.SDAcross
-	// Find the widest uniform contribution; the rest stay in the normal part.
-	var wmax float64
+	var w1, w2 float64 // the two widest uniform contributions, w1 ≥ w2
 	for i, c := range r.model.Contributors {
 		if r.Sign[i] == 0 {
 			continue
 		}
 		for k, t := range c.Terms {
-			if t.Dist == Uniform {
-				wmax = math.Max(wmax, math.Abs(row.Across[k])*t.Spread)
+			if t.Dist != Uniform {
+				continue
+			}
+			w := math.Abs(row.Across[k]) * t.Spread
+			switch {
+			case w > w1:
+				w1, w2 = w, w1
+			case w > w2:
+				w2 = w
 			}
 		}
 	}
-	v -= wmax * wmax / 3 // its variance is in Stats; take it out of the normal part
-	return SiteProb{Mean: st.MeanAcross + nominal, SD: math.Sqrt(math.Max(v, 0)), Uniform: wmax}
+	v -= (w1*w1 + w2*w2) / 3 // their variance is in Stats; take it out of the normal part
+	return SiteProb{Mean: st.MeanAcross + nominal, SD: math.Sqrt(math.Max(v, 0)), Uniform: w1, Uniform2: w2}
 }
 
 // ClosedForm returns the closed-form yield of site i: P(δ ∈ Allowed).

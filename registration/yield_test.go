@@ -130,6 +130,40 @@ func TestSiteProbUniform(t *testing.T) {
 			}
 		}
 	}
+	// Two uniform parts: the exact double difference against nested
+	// quadrature of the one-box form over the second box.
+	for _, p := range []SiteProb{
+		{Mean: 0.3, SD: 1, Uniform: 2, Uniform2: 1},
+		{Mean: -0.5, SD: 0.3, Uniform: 1.5, Uniform2: 1.5},
+		{Mean: 0, SD: 0.5, Uniform: 1, Uniform2: 0.05},
+		{Mean: 0.2, SD: 0, Uniform: 1, Uniform2: 0.4},  // no normal part: a trapezoid
+		{Mean: 0, SD: 1, Uniform: 1, Uniform2: 1e-9},   // folded into the normal part
+		{Mean: 0, SD: 0.2, Uniform: 1e-9, Uniform2: 0}, // folded into the normal part
+		{Mean: 0, SD: 0.2, Uniform: 0, Uniform2: 0.5},  // only the second set: still exact
+	} {
+		one := SiteProb{Mean: p.Mean, SD: p.SD, Uniform: p.Uniform}
+		if p.Uniform == 0 {
+			one.Uniform = p.Uniform2
+		}
+		w2 := p.Uniform2
+		if p.Uniform == 0 {
+			w2 = 0
+		}
+		n, tol := 200, 1e-10
+		if p.SD == 0 {
+			n, tol = 4000, 1e-7 // the one-box CDF has kinks there
+		}
+		for _, x := range []float64{-4, -2, -1.1, -0.3, 0, 0.4, 1.2, 2.5, 5} {
+			want := one.CDF(x)
+			if w2 > 0 {
+				f := func(s float64) float64 { return one.CDF(x - s) }
+				want = (quad.Fixed(f, -w2, 0, n, nil, 0) + quad.Fixed(f, 0, w2, n, nil, 0)) / (2 * w2)
+			}
+			if got := p.CDF(x); math.Abs(got-want) > tol {
+				t.Errorf("%+v: CDF(%g) = %.15g, quadrature %.15g", p, x, got, want)
+			}
+		}
+	}
 	u := SiteProb{Mean: 1, Uniform: 2}
 	for _, x := range []float64{-2, -1, 0, 1, 2.5, 3, 4} {
 		want := math.Min(1, math.Max(0, (x-(1-2))/4))
@@ -146,13 +180,14 @@ func TestSiteProbUniform(t *testing.T) {
 }
 
 // testYield is an invented two-layer model on an 18 x 24 in panel: normal
-// scale, rotation and offset terms, one uniform offset term on the lower
-// layer, a per-site sigma, and a contributor naming both layers (which must
+// scale, rotation and offset terms, a uniform offset_y term on each layer
+// (two uniform parts across lines along x), a per-site sigma, and a contributor naming both layers (which must
 // cancel).
 func testYield(t testing.TB) *Yield {
 	m := &Model{Contributors: []Contributor{
 		{Name: "upper imaging", Layers: []string{"A"}, Terms: [NumTerms]Term{
 			OffsetX:  {Spread: 0.3 * mil, Dist: Normal},
+			OffsetY:  {Spread: 0.5 * mil, Dist: Uniform},
 			Rotation: {Spread: 20 * urad, Dist: Normal},
 			ScaleX:   {Mean: 20 * ppm, Spread: 40 * ppm, Dist: Normal},
 			ScaleY:   {Spread: 30 * ppm, Dist: Normal},
@@ -201,7 +236,7 @@ func TestClosedFormVsMonteCarlo(t *testing.T) {
 		pc := y.ClosedForm(i)
 		pm := r.SiteYield(i)
 		se := math.Sqrt(pc * (1 - pc) / float64(trials))
-		t.Logf("site %d: closed %.5f  mc %.5f  se %.5f  uniform %.3g mil", i, pc, pm, se, y.Prob(i).Uniform/mil)
+		t.Logf("site %d: closed %.5f  mc %.5f  se %.5f  uniform %.3g, %.3g mil", i, pc, pm, se, y.Prob(i).Uniform/mil, y.Prob(i).Uniform2/mil)
 		if math.Abs(pc-pm) > 3*se+1e-12 {
 			t.Errorf("site %d: closed form %.5f, Monte Carlo %.5f: differ by %.1f SE", i, pc, pm, math.Abs(pc-pm)/se)
 		}
@@ -211,8 +246,8 @@ func TestClosedFormVsMonteCarlo(t *testing.T) {
 	}
 	// Lines along x are offset across in y, where the uniform offset_y term
 	// acts; lines along y are not.
-	if y.Prob(1).Uniform == 0 || y.Prob(2).Uniform != 0 {
-		t.Errorf("uniform term should reach site 1 (lines along x) and not site 2 (lines along y)")
+	if y.Prob(1).Uniform2 == 0 || y.Prob(2).Uniform != 0 {
+		t.Errorf("both uniform terms should reach site 1 (lines along x) and none site 2 (lines along y)")
 	}
 	// Invariants of the tallies: the histogram counts every panel, and by
 	// linearity of expectation the mean number of good parts is the sum of

@@ -46,8 +46,8 @@ against its spec to give the interval
 of allowed offsets (it may be asymmetric about the design offset; if the design
 itself is out of spec the interval is empty, a warning is printed and its sites
 yield 0). The closed-form site yield is P(offset in interval) for the site's
-offset distribution (normal terms and site_sigma exactly; the widest uniform
-term exactly, further uniform terms by their variance). The Monte Carlo draws
+offset distribution (normal terms and site_sigma exactly; the two widest
+uniform terms exactly, any further ones by their variance). The Monte Carlo draws
 every term once per panel and site_sigma once per site, and counts good sites,
 good parts (every coupler of the part good) and good parts per panel. Runs are
 split into fixed blocks of panels, each with its own PCG stream, so the result
