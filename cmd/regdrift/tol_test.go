@@ -181,3 +181,43 @@ func TestTolDesignOutOfSpec(t *testing.T) {
 		t.Errorf("--strict: exit %d, want %d", code, exitOutOfSpec)
 	}
 }
+
+// TestTolOrientation runs the orientation study on an analytic job: the only
+// error is the upper layer's scale, 300 ppm sigma in x and 10 ppm in y, so
+// lines along y (offset across in x) do far worse than lines along x, and the
+// study must turn an array whose lines run along y and keep one along x.
+func TestTolOrientation(t *testing.T) {
+	model := []string{
+		`offset_x = { sigma = "1.5 mil" }
+offset_y = { mean = "0.5 mil", half_width = "2 mil", dist = "uniform" }
+scale_x = { mean = "100 ppm", sigma = "150 ppm" }
+scale_y = { sigma = "60 ppm" }
+site_sigma = "0.3 mil"`,
+		`scale_x = { sigma = "300 ppm" }
+scale_y = { sigma = "10 ppm" }`,
+	}
+	for _, tt := range []struct {
+		angle string
+		turn  bool
+	}{{"90 deg", true}, {"0 deg", false}} {
+		t.Run(tt.angle, func(t *testing.T) {
+			job := writeJob(t, yieldJob, model[0], model[1],
+				`angle = "90 deg" }`, `angle = "`+tt.angle+`" }`, `angle = "0 deg" }`, `angle = "`+tt.angle+`" }`)
+			code, out, errs := run(t, "tol", job, "--accuracy", "1%", "-o", t.TempDir(), "--json")
+			if code != 0 {
+				t.Fatalf("exit %d: %s", code, errs)
+			}
+			var r tolJSON
+			if err := json.Unmarshal([]byte(out), &r); err != nil {
+				t.Fatal(err)
+			}
+			if len(r.Orientation) != 1 {
+				t.Fatalf("orientation %+v", r.Orientation)
+			}
+			o := r.Orientation[0]
+			if o.TurnHelps != tt.turn || (o.MeanYieldTurned > o.MeanYield) != tt.turn || (o.RMSOffsetTurned < o.RMSOffsetM) != tt.turn {
+				t.Errorf("lines at %s: %+v, want turn = %v", tt.angle, o, tt.turn)
+			}
+		})
+	}
+}
