@@ -270,3 +270,31 @@ func BenchmarkCompensate10k(b *testing.B) {
 		}
 	}
 }
+
+// ExampleCompensate recommends compensation for two cores that shrink
+// differently in y under lines that run along x: only the Y difference
+// matters, and the drill budget sets the common part so that each core's own
+// shrink is cancelled (artwork factor 1/(1+ε), FACTS item 9).
+func ExampleCompensate() {
+	m := &Model{Contributors: []Contributor{
+		{Name: "core A", Layers: []string{"L3"}, Terms: [NumTerms]Term{ScaleY: {Mean: -180e-6}}},
+		{Name: "core B", Layers: []string{"L4"}, Terms: [NumTerms]Term{ScaleY: {Mean: -300e-6}}},
+	}}
+	var sites []CompSite
+	for _, y := range []float64{-0.25, 0, 0.25} {
+		sites = append(sites, CompSite{Pos: panel.Vec{Y: y}, U: panel.Vec{X: 1}, Upper: "L3", Lower: "L4"})
+	}
+	r, err := Compensate(m, sites, &CompSettings{DrillBudget: 50e-6, Step: 1e-6})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	for _, l := range r.Layers {
+		fmt.Printf("%s: Y %+.0f ppm (factor %.6f), X free: %v\n", l.Layer, l.Y.Scale*1e6, l.Y.Factor, l.X.Free)
+	}
+	fmt.Printf("worst offset %.1f µm -> %.1f µm\n", r.WorstBefore*1e6, r.WorstAfter*1e6)
+	// Output:
+	// L3: Y +180 ppm (factor 1.000180), X free: true
+	// L4: Y +300 ppm (factor 1.000300), X free: true
+	// worst offset 30.0 µm -> 0.0 µm
+}

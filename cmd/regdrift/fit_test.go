@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -10,6 +11,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/registration"
 )
 
@@ -160,5 +162,44 @@ func TestFitBadInput(t *testing.T) {
 				t.Errorf("bad input left %d files in the output directory", len(ents))
 			}
 		})
+	}
+}
+
+// TestFitRelativeLayer fits a layer measured against another ("L3-L4") and
+// checks that its contributor moves the upper layer and says so.
+func TestFitRelativeLayer(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("panel,layer,target,x [in],y [in],dx [um],dy [um]\n")
+	v := [registration.NumTerms]float64{registration.ScaleX: -120e-6, registration.OffsetY: 5e-6}
+	for p := 1; p <= 3; p++ {
+		n := 0
+		for _, y := range []float64{-10, 0, 10} {
+			for _, x := range []float64{-7, 0, 7} {
+				n++
+				pos := panel.Vec{X: x * 0.0254, Y: y * 0.0254}
+				d := registration.Displace(v, pos, panel.Vec{})
+				fmt.Fprintf(&b, "P%d,L3-L4,T%d,%g,%g,%.6f,%.6f\n", p, n, x, y, d.X/1e-6, d.Y/1e-6)
+			}
+		}
+	}
+	dir := t.TempDir()
+	contrib := filepath.Join(dir, "rel.toml")
+	code, out, errs := runPlain(t, b.String(), "fit", "-", "-o", dir, "--contributors", contrib, "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var s fitSummary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Lot) != 1 || s.Lot[0].Layer != "L3-L4" || math.Abs(*s.Lot[0].Mean.ScaleX+120e-6) > 1e-10 || *s.Lot[0].Sigma.ScaleX > 1e-10 {
+		t.Fatalf("lot %+v", s.Lot)
+	}
+	toml, err := os.ReadFile(contrib)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(toml), "measured relative to L4") || !strings.Contains(string(toml), `layers = ["L3"]`) {
+		t.Errorf("contributors file:\n%s", toml)
 	}
 }
