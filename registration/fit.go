@@ -63,6 +63,16 @@ func (m FitModel) Estimates(k TermKind) bool {
 }
 
 // Robust chooses the weight function of an iteratively reweighted fit.
+//
+// A robust fit runs in two stages. Iteratively reweighted least squares with
+// the chosen weights, on each target's radial residual u = |r|/σ̂ in units of
+// a robust scale σ̂ (see robustScale), finds the mis-measured targets without
+// letting them pull the fit. Then the targets beyond OutlierLimit·σ are
+// rejected and the rest refitted by ordinary least squares, re-testing every
+// target against the new σ0 until the rejected set is stable (reweighted
+// least squares, Rousseeuw & Leroy 1987). The reported terms, σ0 and standard
+// errors are those of the final ordinary fit, and the rejected targets are
+// the outliers.
 type Robust int
 
 const (
@@ -129,7 +139,8 @@ type FitSettings struct {
 	// zero means DefaultHuberC or DefaultTukeyC.
 	Tuning float64
 	// OutlierLimit: with Robust set, targets whose radial residual exceeds
-	// OutlierLimit·σ̂ are reported as outliers. Zero means DefaultOutlierLimit.
+	// OutlierLimit·σ are rejected and reported as outliers, σ being the
+	// residual scale of the targets kept. Zero means DefaultOutlierLimit.
 	OutlierLimit float64
 	// MaxIter bounds the reweighting iterations of each phase; zero means 50.
 	MaxIter int
