@@ -430,8 +430,9 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 	for j := range x {
 		art[j] = x[j] / (1 + meanScale[j])
 	}
+	roundedOK := true
 	if set.Step > 0 {
-		art = roundToStep(art, set.Step*toPPM, maxScale*toPPM, func(a []float64) (float64, float64, bool) {
+		art, roundedOK = roundToStep(art, set.Step*toPPM, maxScale*toPPM, func(a []float64) (float64, float64, bool) {
 			xx := make([]float64, nv)
 			for j := range a {
 				xx[j] = a[j] * (1 + meanScale[j])
@@ -503,6 +504,9 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 	res.DrillBefore = worstAbs(&drill, make([]float64, nv)) / toUM
 	res.DrillAfter = worstAbs(&drill, x) / toUM
 	res.Notes = append(res.Notes, "only the difference of two layers' scale compensation across the coupled lines moves a broadside offset")
+	if !roundedOK {
+		res.Notes = append(res.Notes, "no rounding of the compensation to the step keeps every layer within the drill budget; the nearest multiples are shown")
+	}
 	var freeAxes []string
 	for a, name := range []string{"X", "Y"} {
 		if !ax[a] {
@@ -781,18 +785,19 @@ func solveLP(nv int, obj, caps *linRows, keys [][2]int, tmax float64, box []floa
 // roundToStep rounds the artwork values a (ppm) to multiples of step within
 // ±max. With up to 8 values it tries every combination of the neighbouring
 // multiples and keeps the feasible one with the smallest objective, ties
-// broken by the second criterion; beyond that it rounds to the nearest.
-func roundToStep(a []float64, step, max float64, eval func([]float64) (obj, second float64, ok bool)) []float64 {
+// broken by the second criterion; beyond that it rounds to the nearest. ok is
+// false when no candidate tried is feasible (the nearest is returned).
+func roundToStep(a []float64, step, max float64, eval func([]float64) (obj, second float64, ok bool)) ([]float64, bool) {
 	n := len(a)
 	near := make([]float64, n)
 	for j, v := range a {
 		near[j] = math.Max(-max, math.Min(max, step*math.Round(v/step)))
 	}
+	bo, bs, bok := eval(near)
 	if n > 8 {
-		return near
+		return near, bok
 	}
 	best := near
-	bo, bs, bok := eval(near)
 	cand := make([]float64, n)
 	for mask := 0; mask < 1<<n; mask++ {
 		for j, v := range a {
@@ -813,5 +818,5 @@ func roundToStep(a []float64, step, max float64, eval func([]float64) (obj, seco
 			best, bo, bs, bok = slices.Clone(cand), o, s, true
 		}
 	}
-	return best
+	return best, bok
 }
