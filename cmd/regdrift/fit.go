@@ -449,6 +449,22 @@ func (r *fitRun) writeContributors(w io.Writer, lu lengthUnit) error {
 			u, kind := termUnit(k, lu)
 			fmt.Fprintf(&b, "%-8s = { mean = %s, sigma = %s }\n", k, tomlValue(l.Mean[k], kind, u), tomlValue(l.SD[k], kind, u))
 		}
+		// The pooled residual scale, σ0² = Σ dof·σ0_i² / Σ dof over the
+		// layer's fits, is what the affine model leaves per target and axis;
+		// it includes the measurement noise, so it is offered, not applied.
+		var ss, dof float64
+		for _, f := range r.fits {
+			if f.Layer == l.Layer && f.DOF > 0 {
+				ss += float64(f.DOF) * f.Sigma0 * f.Sigma0
+				dof += float64(f.DOF)
+			}
+		}
+		if dof > 0 {
+			fmt.Fprintf(&b, "# site_sigma = %s   # pooled fit residual per axis; includes measurement noise\n",
+				tomlValue(math.Sqrt(ss/dof), unit.Length, lu.name))
+		}
+		fmt.Fprintf(&b, "# residual = %s   # pooled non-affine residual map written by regdrift fit\n",
+			strconv.Quote("residual-grid-"+l.Layer+".csv"))
 	}
 	_, err := io.WriteString(w, b.String())
 	return err
