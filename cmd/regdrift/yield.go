@@ -5,6 +5,7 @@ import (
 	"encoding/csv"
 	"errors"
 	"fmt"
+	"image/color"
 	"io"
 	"math"
 	"sort"
@@ -59,7 +60,7 @@ over the panel; its sd column is the standard deviation the term alone causes
 (over the panel, the rms over the sites).
 
 Writes yield.png (closed-form site yield over the panel for the most common
-section and line direction, contours at 99 % and 95 %, part outlines, each
+section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
 site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
 (per site p_closed, p_mc and its standard error), budget.csv, budget.png and
 yield.json, and a summary table to stdout.`,
@@ -720,7 +721,7 @@ func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yi
 		j.Title,
 		fmt.Sprintf("site yield: %d panels, seed %d; site yield %.3f %%, part yield %.3f %%, good parts per panel %.1f of %d (5th percentile %d)",
 			sum.Trials, sum.Seed, 100*sum.SiteYieldMean, 100*sum.PartYieldMean, gp.Mean, sum.Parts, gp.P05),
-		"field: closed-form site yield, over each array the lowest of its couplers' line directions; contours at 99 % and 95 %; bars: each site's Monte Carlo yield",
+		"field: closed-form site yield, over each array the lowest of its couplers' line directions; contours at 99.9, 99 and 95 %; bars: each site's Monte Carlo yield",
 	}
 	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Title: title, Unit: ru})
 	v := m.Views[0]
@@ -735,8 +736,18 @@ func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yi
 		}
 	}
 	v.StrokeRects(parts, render.LineStyle{Color: render.Frame})
-	v.Contour(grid, 99, render.LineStyle{Color: render.Ink, Width: 2}, "99 %")
-	v.Contour(grid, 95, render.LineStyle{Color: render.Ink, Width: 2, Dash: []float64{8, 5}}, "95 %")
+	// Contours in ink or white, whichever stands out on the field at that
+	// level; 99.9 % shows where a high-yield panel loses its last tenth.
+	for _, c := range []struct {
+		level float64
+		dash  []float64
+	}{{99.9, []float64{3, 3}}, {99, nil}, {95, []float64{8, 5}}} {
+		var col color.Color = render.Ink
+		if render.Luma(pal.Map(c.level, lo, hi)) < 0.45 {
+			col = color.White
+		}
+		v.Contour(grid, c.level, render.LineStyle{Color: col, Width: 2.5, Dash: c.dash}, strconv.FormatFloat(c.level, 'f', -1, 64)+" %")
+	}
 	bars := make([]render.Bar, len(j.Sites))
 	bl := barLen(j)
 	for i, st := range j.Sites {
