@@ -74,6 +74,11 @@ the offset across the coupled lines counts).`,
 // come to the spec limit; the tests hold the round trip to 0.001 dB.
 const tolConfirmDB = 2e-4
 
+// maxWidthStacks bounds a widened trace to this many stackup thicknesses:
+// far beyond any coupler (whose width is a fraction of the ground spacing),
+// and short of a width that would make the field solve meaningless.
+const maxWidthStacks = 20
+
 // tolDoublings bounds how often the sweep range is doubled while the curve is
 // still in spec at its end.
 const tolDoublings = 4
@@ -256,6 +261,14 @@ func widen(s *section.Section, k int, d float64) (*section.Section, error) {
 	w := *s
 	w.Grounds = append([]string(nil), s.Grounds...)
 	w.Traces[k].Width += d
+	var stack float64
+	for _, l := range s.Stackup.Layers {
+		stack += l.Thickness
+	}
+	if w.Traces[k].Width > maxWidthStacks*stack {
+		return nil, usageErr("--widen %+.4g mil: section %q: traces[%d].width: %.4g mil is wider than %d times the whole stackup (%.4g mil): a unit slip?",
+			d/unit.Mil, s.Name, k, w.Traces[k].Width/unit.Mil, maxWidthStacks, stack/unit.Mil)
+	}
 	if err := w.Validate(); err != nil {
 		var fe *section.FieldError
 		if errors.As(err, &fe) {

@@ -133,6 +133,7 @@ func TestTolBadInput(t *testing.T) {
 		{"negative width", nil, []string{"--widen", "-20mil:-10mil:10mil"}, []string{"--widen", "traces[1].width"}},
 		{"etch leaves no width", nil, []string{"--widen", "-13mil:-13mil:1mil", "--widen-trace", "upper"}, []string{"--widen", "traces[0]"}},
 		{"overlap", edge, []string{"--widen", "0mil:14mil:7mil"}, []string{"--widen", "traces[1].x", "overlap"}},
+		{"leaves the stack", nil, []string{"--widen", "0in:4in:4in"}, []string{"--widen", "traces[1].width", "stackup"}},
 		{"bad trace", nil, []string{"--widen", "0mil:1mil:1mil", "--widen-trace", "middle"}, []string{"--widen-trace"}},
 		{"bad range", nil, []string{"--widen", "0:1mil"}, []string{"--widen"}},
 		{"bare number", nil, []string{"--widen", "0:1:1"}, []string{"--widen"}},
