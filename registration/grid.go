@@ -150,10 +150,12 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 		if err == io.EOF {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
-			return nil, &CSVError{File: file, Row: line, Err: err}
+			// A *csv.ParseError carries its own line; FieldPos is only valid
+			// after a successful read.
+			return nil, &CSVError{File: file, Err: err}
 		}
+		line, _ := cr.FieldPos(0)
 		var v [4]float64
 		for k, name := range []string{"x", "y", "dx", "dy"} {
 			c := idx[name]

@@ -197,3 +197,18 @@ func BenchmarkSiteEval(b *testing.B) {
 	b.ReportMetric(float64(b.N*len(rows))/b.Elapsed().Seconds(), "sites/s")
 	_ = sink
 }
+
+func FuzzReadGrid(f *testing.F) {
+	f.Add("x [in],y [in],dx [mil],dy [um]\n-1,-1,0,0\n1,-1,2,0\n-1,1,0,10\n1,1,2,10\n")
+	f.Add("x [in],y [in],dx [mil],dy [mil]\n\"0,0,0,0\n")
+	f.Fuzz(func(t *testing.T, src string) {
+		g, err := ReadGrid(strings.NewReader(src), "fuzz.csv")
+		if err != nil {
+			return
+		}
+		d := g.At(panel.Vec{X: 0.1, Y: -0.2})
+		if math.IsNaN(d.X) || math.IsNaN(d.Y) {
+			t.Fatalf("NaN displacement from %q", src)
+		}
+	})
+}

@@ -8,5 +8,5 @@ import "embed"
 // FS holds the sample files: *.toml jobs and *.csv measurement, placement and
 // residual files.
 //
-//go:embed *.toml
+//go:embed *.toml *.csv
 var FS embed.FS

@@ -1050,10 +1050,12 @@ func readPlacements(path string) ([]panel.Placement, error) {
 		if err == io.EOF {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
-			return nil, badInput(&registration.CSVError{File: path, Row: line, Err: err})
+			// A *csv.ParseError carries its own line; FieldPos is only valid
+			// after a successful read.
+			return nil, badInput(&registration.CSVError{File: path, Err: err})
 		}
+		line, _ := cr.FieldPos(0)
 		var v [3]float64
 		for k, name := range []string{"x", "y", "angle"} {
 			c := idx[name]
