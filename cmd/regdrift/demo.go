@@ -1,7 +1,9 @@
 package main
 
 import (
+	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"io"
 	"io/fs"
@@ -22,10 +24,10 @@ type demoFlags struct {
 }
 
 // demoJobs are the embedded demo jobs in the order the demo runs them.
-var demoJobs = []struct{ file, what string }{
-	{"same-core.toml", "3 dB hybrids, traces on the two faces of one core"},
-	{"two-core.toml", "the same hybrids, traces on two cores"},
-	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg"},
+var demoJobs = []struct{ file, what, targets string }{
+	{"same-core.toml", "3 dB hybrids, traces on the two faces of one core", ""},
+	{"two-core.toml", "the same hybrids, traces on two cores (more drift toward the corners)", "twocore-targets.csv"},
+	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg", ""},
 }
 
 func init() {
@@ -73,9 +75,15 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 		return fmt.Errorf("copying the samples: %w", err)
 	}
 	fmt.Fprintf(std.out, "regdrift demo: invented scenarios, copied to %s\n", dir)
+	common := []string{"--accuracy", f.solver.accuracy, "--cache-dir", f.solver.cacheDir}
+	if f.solver.noCache {
+		common = append(common, "--no-cache")
+	}
 	for _, dj := range demoJobs {
 		name := strings.TrimSuffix(dj.file, ".toml")
-		j, err := loadJob(filepath.Join(dir, dj.file), nil)
+		job := filepath.Join(dir, dj.file)
+		out := filepath.Join(f.out, name)
+		j, err := loadJob(job, nil)
 		if err != nil {
 			return err
 		}
@@ -84,7 +92,7 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 		lu, _ := parseUnits("mil")
-		o, err := newOutputs(filepath.Join(f.out, name))
+		o, err := newOutputs(out)
 		if err != nil {
 			return err
 		}
@@ -109,11 +117,93 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 			dev = math.Max(dev, math.Abs(r.Stats.MeanAcross))
 			worst3 = math.Max(worst3, math.Abs(r.WorstDrift))
 		}
-		fmt.Fprintf(std.out, "%-15s %s\n  %d of %d sites in spec; largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB -> %s\n",
-			name, dj.what, sum.InSpec, sum.Sites, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3,
-			filepath.Join(f.out, name, "map.png"))
+		fmt.Fprintf(std.out, "\n%s: %s\n  map    %d of %d sites in spec; largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
+			name, dj.what, sum.InSpec, sum.Sites, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
+		// The curve is cached now: the sweep plot costs no solve.
+		if _, err := runQuiet(ctx, "sweep", append([]string{job, "-o", out}, common...)); err != nil {
+			return err
+		}
+		var y struct {
+			SiteYield float64 `json:"site_yield_mean"`
+			PartYield float64 `json:"part_yield_mean"`
+			Good      struct {
+				Mean float64 `json:"mean"`
+				P05  float64 `json:"p05"`
+			} `json:"good_parts_per_panel"`
+			Parts int `json:"parts"`
+		}
+		if err := runJSON(ctx, "yield", append([]string{job, "-o", out, "--trials", "4000"}, common...), &y); err != nil {
+			return err
+		}
+		fmt.Fprintf(std.out, "  yield  %.3f %% of sites and %.3f %% of parts in spec over 4000 panels; good parts per panel %.1f of %d (5th percentile %.0f)\n",
+			100*y.SiteYield, 100*y.PartYield, y.Good.Mean, y.Parts, y.Good.P05)
+		if dj.targets != "" {
+			targets := filepath.Join(dir, dj.targets)
+			var fit struct {
+				Fits []struct {
+					Outliers []string `json:"outliers"`
+				} `json:"fits"`
+			}
+			fitOut := filepath.Join(out, "fit")
+			if err := runJSON(ctx, "fit", []string{targets, "--robust", "--panel", "18in,24in", "-o", fitOut,
+				"--contributors", filepath.Join(fitOut, "measured.toml")}, &fit); err != nil {
+				return err
+			}
+			outliers := 0
+			for _, ft := range fit.Fits {
+				outliers += len(ft.Outliers)
+			}
+			fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
+				len(fit.Fits), dj.targets, outliers, filepath.Join(fitOut, "fit.png"))
+			var comp struct {
+				Before, After struct {
+					WorstOffsetM float64 `json:"worst_offset_m"`
+					InSpec       int     `json:"in_spec"`
+					SiteYield    float64 `json:"site_yield"`
+				}
+			}
+			compOut := filepath.Join(out, "comp")
+			if err := runJSON(ctx, "comp", append([]string{job, "--targets", targets, "--drill-budget", "3mil", "--step", "5ppm", "-o", compOut}, common...), &comp); err != nil {
+				return err
+			}
+			fmt.Fprintf(std.out, "  comp   artwork scale compensation: worst offset %.2f -> %.2f mil, predicted site yield %.2f -> %.2f %% -> %s\n",
+				comp.Before.WorstOffsetM/lu.factor, comp.After.WorstOffsetM/lu.factor, 100*comp.Before.SiteYield, 100*comp.After.SiteYield,
+				filepath.Join(compOut, "comp.png"))
+		}
+		fmt.Fprintf(std.out, "  images %s\n", strings.Join(pngs(out), ", "))
 	}
 	return nil
+}
+
+// runQuiet runs another command with its stdout captured and returns it.
+func runQuiet(ctx context.Context, name string, args []string) ([]byte, error) {
+	var out, errw bytes.Buffer
+	err := invoke(ctx, commands[name], stdio{out: &out, err: &errw}, args)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	return out.Bytes(), nil
+}
+
+// runJSON runs another command with --json and decodes its summary into v.
+func runJSON(ctx context.Context, name string, args []string, v any) error {
+	b, err := runQuiet(ctx, name, append(args, "--json"))
+	if err != nil {
+		return err
+	}
+	return json.Unmarshal(b, v)
+}
+
+// pngs lists the PNG files in dir and its subdirectories.
+func pngs(dir string) []string {
+	var out []string
+	filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err == nil && !d.IsDir() && strings.HasSuffix(p, ".png") {
+			out = append(out, p)
+		}
+		return nil
+	})
+	return out
 }
 
 // signedMax returns whichever of a and b is larger in magnitude.

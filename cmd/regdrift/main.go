@@ -128,22 +128,16 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) int {
 		printUsage(errw)
 		return exitBadInput
 	}
-	fs := pflag.NewFlagSet(c.name, pflag.ContinueOnError)
-	fs.SetOutput(io.Discard)
-	var opts any
-	if c.flags != nil {
-		opts = c.flags(fs)
+	err := invoke(ctx, c, std, args[1:])
+	if errors.Is(err, pflag.ErrHelp) {
+		fmt.Fprint(out, helpText(c, newFlagSet(c)))
+		return exitOK
 	}
-	fs.SortFlags = false
-	if err := fs.Parse(args[1:]); err != nil {
-		if errors.Is(err, pflag.ErrHelp) {
-			fmt.Fprint(out, helpText(c, fs))
-			return exitOK
-		}
-		fmt.Fprintf(errw, "regdrift %s: %v\nusage: regdrift %s\nrun 'regdrift %s -h' for help\n", c.name, err, c.usage, c.name)
+	var fe *flagError
+	if errors.As(err, &fe) {
+		fmt.Fprintf(errw, "regdrift %s: %v\nusage: regdrift %s\nrun 'regdrift %s -h' for help\n", c.name, fe.err, c.usage, c.name)
 		return exitBadInput
 	}
-	err := c.run(ctx, std, opts, fs.Args())
 	switch {
 	case err == nil:
 		return exitOK
@@ -157,6 +151,31 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) int {
 		fmt.Fprintf(errw, "regdrift %s: %v\n", c.name, err)
 		return exitFailure
 	}
+}
+
+// flagError is a command line that pflag could not parse.
+type flagError struct{ err error }
+
+func (e *flagError) Error() string        { return e.err.Error() }
+func (e *flagError) Unwrap() error        { return e.err }
+func (e *flagError) Is(target error) bool { return target == errBadInput }
+
+// invoke parses args with c's flags and runs c. A -h returns pflag.ErrHelp.
+func invoke(ctx context.Context, c *command, std stdio, args []string) error {
+	fs := pflag.NewFlagSet(c.name, pflag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	fs.SortFlags = false
+	var opts any
+	if c.flags != nil {
+		opts = c.flags(fs)
+	}
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, pflag.ErrHelp) {
+			return err
+		}
+		return &flagError{err}
+	}
+	return c.run(ctx, std, opts, fs.Args())
 }
 
 func newFlagSet(c *command) *pflag.FlagSet {

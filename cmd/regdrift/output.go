@@ -34,6 +34,11 @@ func (o *outputs) file(name string, write func(w io.Writer) error) error {
 	if err != nil {
 		return err
 	}
+	if err := f.Chmod(0o644); err != nil {
+		f.Close()
+		os.Remove(f.Name())
+		return err
+	}
 	o.temps = append(o.temps, f.Name())
 	o.names = append(o.names, filepath.Join(o.dir, name))
 	bw := bufio.NewWriterSize(f, 1<<16)
