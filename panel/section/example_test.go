@@ -63,9 +63,9 @@ func ExampleSweep() {
 		log.Fatal(err)
 	}
 	for _, o := range []float64{0, 1.5 * mil} {
-		fmt.Printf("offset %.1f mil: coupling %.3f dB\n", o/mil, c.Coupling(o))
+		fmt.Printf("offset %.1f mil: coupling %.2f dB\n", o/mil, c.Coupling(o))
 	}
 	// Output:
-	// offset 0.0 mil: coupling -4.036 dB
-	// offset 1.5 mil: coupling -4.081 dB
+	// offset 0.0 mil: coupling -4.04 dB
+	// offset 1.5 mil: coupling -4.08 dB
 }

@@ -1,10 +1,6 @@
 package section
 
-import (
-	"cmp"
-	"math"
-	"slices"
-)
+import "math"
 
 // band is one horizontal slab of the solution domain, in domain coordinates:
 // y is measured from the (lower) ground's inner face outward, through the stack.
@@ -42,11 +38,11 @@ type geometry struct {
 	// openSpans places a microstrip's Dirichlet box this many (stack height +
 	// 2·widest trace + nominal offset) away (openSpans; tests vary it).
 	openSpans float64
-	// Column topology, chosen by setOffsets for the offsets to be solved.
-	blended bool       // blend two three-segment patterns (see meshPlan)
-	order   [4]edgeRef // x order of the four trace edges (ordered plans)
-	offLo   float64    // range of offsets to be solved
-	offHi   float64
+	// Column topology (see topology.go): the x order of the four trace edges
+	// and the offsets over which plans of this topology count elements.
+	order [4]edgeRef
+	offLo float64
+	offHi float64
 }
 
 // edgeRef names one side of one trace.
@@ -54,60 +50,6 @@ type edgeRef struct {
 	trace int
 	right bool
 }
-
-// setOffsets chooses the column topology for solving at offsets in
-// [lo, hi] (the topology must not change with offset, DESIGN.md):
-//
-//   - ordered (the default): every row holds all four trace edges in one
-//     fixed x order. In the rows of a trace its own edges are exact; an edge of
-//     the other trace that would break the order there (where edges pass each
-//     other within the range) is held a small gap away by a smooth clamp, and
-//     the rows between the traces blend the two patterns. Where no edges pass,
-//     all rows are the same and every column is vertical.
-//   - blended: for a sweep centred on two aligned traces whose edges pass each
-//     other (a centred broadside pair), each trace's rows carry only its own
-//     edges and the rows between blend linearly. This keeps the mesh of a
-//     mirror-symmetric section exactly mirror-symmetric (C11 = C22,
-//     C(+δ) = C(−δ)); its price is shear across the gap, which grows with
-//     |δ|/gap, so it is used only for such sweeps.
-func (g *geometry) setOffsets(s *Section, lo, hi float64) {
-	g.offLo, g.offHi = lo, hi
-	type iv struct {
-		a, b float64
-		e    edgeRef
-	}
-	var ivs []iv
-	for k := range 2 {
-		t := g.tr[k]
-		hmin, hmax := math.Min(t.hwb, t.hwt), math.Max(t.hwb, t.hwt)
-		clo, chi := g.x1, g.x1
-		if k == 0 {
-			clo, chi = g.x1+lo, g.x1+hi
-		}
-		ivs = append(ivs, iv{clo - hmax, chi - hmin, edgeRef{k, false}}, iv{clo + hmin, chi + hmax, edgeRef{k, true}})
-	}
-	slices.SortStableFunc(ivs, func(x, y iv) int { return cmp.Compare(x.a+x.b, y.a+y.b) })
-	for i, v := range ivs {
-		g.order[i] = v.e
-	}
-	g.blended = false
-	if g.same {
-		return
-	}
-	crossing := false
-	for i := 0; i+1 < len(ivs); i++ {
-		if ivs[i+1].a <= ivs[i].b {
-			crossing = true
-		}
-	}
-	feat := g.smallestFeature(s)
-	centred := math.Abs((lo+hi)/2) < centredFrac*feat
-	g.blended = crossing && centred
-}
-
-// centredFrac: a sweep is centred when its mid offset is within this fraction
-// of the smallest feature from aligned traces.
-const centredFrac = 0.01
 
 // buildGeometry converts the stackup convention of DESIGN.md into domain bands.
 // s must be valid.

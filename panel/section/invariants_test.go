@@ -20,7 +20,8 @@ func TestReciprocity(t *testing.T) {
 			t.Fatal(err)
 		}
 		w := &femWork{}
-		r, err := sv.level(off, 1, 1, 1, w)
+		k, _ := sv.locate(off)
+		r, err := sv.levelPlan(off, sv.plan(k, 1), w)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -40,10 +40,7 @@ type meshPlan struct {
 	hi, lo  int     // broadside: index of the trace in the higher / lower slab
 	jub     int     // broadside: row of the lower face of the higher trace
 	jlt     int     // broadside: row of the upper face of the lower trace
-	// ordered: every row carries all four trace edges in the x order g.order
-	// (see geometry.setOffsets); otherwise each trace's rows carry its own two.
-	ordered bool
-	feat    float64 // smallest feature (sets the gap of held edges)
+	feat float64 // smallest feature (sets the gap of held edges)
 }
 
 func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }
@@ -132,7 +129,6 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 	// the offset range, so that a segment that grows across the range (the
 	// gap between two edges that pass each other) is resolved at its widest.
 	p.feat = feat
-	p.ordered = !g.blended
 	if !g.same {
 		p.hi, p.lo = 0, 1
 		if g.tr[1].yb > g.tr[0].yb {
@@ -143,13 +139,14 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 	}
 	var keys []float64
 	for _, off := range []float64{g.offLo, (g.offLo + g.offHi) / 2, g.offHi} {
+		// The patterns as realised: each trace's own rows with the other's
+		// edges held (keysOrdered), at the trace's face next to the other.
 		var pats [][]float64
-		if p.ordered {
+		if g.same {
 			pats = append(pats, p.keysOrdered(off, nil, [2]float64{g.tr[0].yb, g.tr[1].yb}, -1))
 		} else {
-			for _, k := range []int{p.hi, p.lo} {
-				pats = append(pats, p.keys(off, nil, g.tr[k].yb, k))
-			}
+			yh, yl := g.tr[p.hi].yb, g.tr[p.lo].yt
+			pats = append(pats, p.keysOrdered(off, nil, [2]float64{yh, yh}, p.hi), p.keysOrdered(off, nil, [2]float64{yl, yl}, p.lo))
 		}
 		for _, keys = range pats {
 			if p.xc == nil {
@@ -196,18 +193,6 @@ func (p *meshPlan) walls(off float64) (lo, hi float64) {
 	xm := (x0 + x1) / 2
 	e := p.wmax/2 + math.Hypot(off/2, p.wmax/2) + p.margin
 	return xm - e, xm + e
-}
-
-// keys returns the key x-positions (walls and the edges of trace k) of the
-// row at height y for offset off in a blended plan, appended to dst[:0]. The
-// edges of a trace at y are those of its sloped sides inside its slab and of
-// the nearer face outside it.
-func (p *meshPlan) keys(off float64, dst []float64, y float64, k int) []float64 {
-	g := p.g
-	wl, wr := p.walls(off)
-	centre := [2]float64{g.x1 + off, g.x1}
-	hw := g.tr[k].halfWidth(y)
-	return append(dst[:0], wl, centre[k]-hw, centre[k]+hw, wr)
 }
 
 // keysOrdered returns the walls and all four trace edges in the order
@@ -319,11 +304,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	rowHi := make([]float64, nx+1)
 	var keys []float64
 	fill := func(dst []float64, y float64, k int) {
-		if p.ordered {
-			keys = p.keysOrdered(off, keys, [2]float64{y, y}, k)
-		} else {
-			keys = p.keys(off, keys, y, k)
-		}
+		keys = p.keysOrdered(off, keys, [2]float64{y, y}, k)
 		i0 := 0
 		for s, c := range p.xc {
 			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, edgeSing(keys, s))
@@ -336,19 +317,13 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	}
 	// Trace column ranges [iL, iR] in the pattern of each row.
 	var colL, colR [2]int
-	if p.ordered {
-		col := 0
-		for e, ed := range g.order {
-			col += p.xc[e]
-			if ed.right {
-				colR[ed.trace] = col
-			} else {
-				colL[ed.trace] = col
-			}
-		}
-	} else {
-		for k := range 2 {
-			colL[k], colR[k] = p.xc[0], p.xc[0]+p.xc[1]
+	col := 0
+	for e, ed := range g.order {
+		col += p.xc[e]
+		if ed.right {
+			colR[ed.trace] = col
+		} else {
+			colL[ed.trace] = col
 		}
 	}
 	for j, y := range p.ys {

@@ -97,11 +97,11 @@ const estimateOrder = 3
 const linearTol = 1e-8
 
 // startLevel maps an accuracy target to the first refinement level. On the
-// convergence study of doc.go level 0.7 estimates 7e−4 and level 1.0 2e−4;
-// the level ∝ acc^(−1/2) rule puts 0.1 % at 0.7 and 0.05 % at 1.0, so that a
-// sweep rarely needs a second step.
+// benchmark section level 0.8 estimates at most 5.5e−4 over offsets 0 to
+// 5 mil (doc.go); the level ∝ acc^(−1/2) rule puts 0.1 % at 0.8 and 0.05 % at
+// 1.13, so that a sweep rarely needs a second step.
 func startLevel(acc float64) float64 {
-	l := 0.7 * math.Sqrt(DefaultAccuracy/acc)
+	l := 0.8 * math.Sqrt(DefaultAccuracy/acc)
 	return math.Max(0.5, math.Min(l, 8))
 }
 
@@ -114,8 +114,16 @@ type solver struct {
 	g   *geometry
 	acc float64
 
+	topos   []*geometry // column topologies along the offset axis (topology.go)
+	windows []window    // windows[i] lies between topos[i] and topos[i+1]
+
 	mu    sync.Mutex
-	plans map[float64]*meshPlan // by level
+	plans map[planKey]*meshPlan
+}
+
+type planKey struct {
+	topo  int
+	level float64
 }
 
 // newSolver prepares the solves of s at offsets within [lo, hi].
@@ -123,9 +131,10 @@ func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 	if err := s.Validate(); err != nil {
 		return nil, err
 	}
-	g := s.buildGeometry()
-	g.setOffsets(s, lo, hi)
-	return &solver{s: s, g: g, acc: set.accuracy()}, nil
+	sv := &solver{s: s, g: s.buildGeometry(), acc: set.accuracy()}
+	sv.setOffsets(lo, hi)
+	sv.g = sv.topos[0]
+	return sv, nil
 }
 
 // Solve solves the cross-section with the upper trace shifted laterally so
@@ -259,20 +268,22 @@ func (sv *solver) convErr(sol *Solution) error {
 func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) (*Solution, error) {
 	var conv Convergence
 	conv.Target = sv.acc
-	// The three plans first: an impossible target fails before any solve.
-	var plans [3]*meshPlan
-	for i, l := range [3]float64{lev / roughRatio, lev, 2 * lev} {
-		plans[i] = sv.plan(l)
-		if n := plans[i].unknownsEstimate(); n > maxMeshNodes {
-			return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Target: sv.acc, Unknowns: n, Residual: math.NaN()}
+	// The plans first: an impossible target fails before any solve.
+	levels := [3]float64{lev / roughRatio, lev, 2 * lev}
+	k, t := sv.locate(off)
+	for _, l := range levels {
+		for _, tk := range []int{k, k + 1}[:1+b2i(t > 0)] {
+			if n := sv.plan(tk, l).unknownsEstimate(); n > maxMeshNodes {
+				return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Target: sv.acc, Unknowns: n, Residual: math.NaN()}
+			}
 		}
 	}
 	var lv [3]levelResult
-	for i, p := range plans {
+	for i, l := range levels {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		r, err := sv.levelPlan(off, p, w)
+		r, err := sv.levelAt(off, l, w)
 		if err != nil {
 			return nil, err
 		}
@@ -300,27 +311,52 @@ type levelResult struct {
 	resid float64
 }
 
-// plan returns the mesh plan of level lev, shared by every offset.
-func (sv *solver) plan(lev float64) *meshPlan {
+// plan returns the mesh plan of topology k at level lev, shared by every
+// offset.
+func (sv *solver) plan(k int, lev float64) *meshPlan {
 	sv.mu.Lock()
 	defer sv.mu.Unlock()
-	if p, ok := sv.plans[lev]; ok {
+	key := planKey{k, lev}
+	if p, ok := sv.plans[key]; ok {
 		return p
 	}
-	p := newMeshPlan(sv.s, sv.g, lev, 1, lev)
+	p := newMeshPlan(sv.s, sv.topos[k], lev, 1, lev)
 	p.level = lev
 	if sv.plans == nil {
-		sv.plans = map[float64]*meshPlan{}
+		sv.plans = map[planKey]*meshPlan{}
 	}
-	sv.plans[lev] = p
+	sv.plans[key] = p
 	return p
 }
 
-// level solves one mesh level (tests and studies).
-func (sv *solver) level(off, lev float64, mult int, floorLev float64, w *femWork) (levelResult, error) {
-	p := newMeshPlan(sv.s, sv.g, lev, mult, floorLev)
-	p.level = lev * float64(mult)
-	return sv.levelPlan(off, p, w)
+// levelAt solves one level at offset off: on one topology, or inside a
+// transition window on both neighbours, weighted (topology.go).
+func (sv *solver) levelAt(off, lev float64, w *femWork) (levelResult, error) {
+	k, t := sv.locate(off)
+	a, err := sv.levelPlan(off, sv.plan(k, lev), w)
+	if err != nil || t == 0 {
+		return a, err
+	}
+	b, err := sv.levelPlan(off, sv.plan(k+1, lev), w)
+	if err != nil {
+		return b, err
+	}
+	for i := range 2 {
+		for j := range 2 {
+			a.C[i][j] = (1-t)*a.C[i][j] + t*b.C[i][j]
+			a.C0[i][j] = (1-t)*a.C0[i][j] + t*b.C0[i][j]
+		}
+	}
+	a.Unknowns = max(a.Unknowns, b.Unknowns)
+	a.resid = math.Max(a.resid, b.resid)
+	return a, nil
+}
+
+func b2i(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
 }
 
 func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, error) {

@@ -32,7 +32,7 @@ func TestConvergenceStudy(t *testing.T) {
 	worstRatio := 0.0
 	for _, lev := range []float64{0.35, 0.5, 0.7, 1.0, 1.4, 2.0} {
 		t0 := time.Now()
-		r, err := sv.levelPlan(0, newMeshPlan(sv.s, sv.g, lev, 1, lev), w)
+		r, err := sv.levelAt(0, lev, w)
 		if err != nil {
 			t.Fatal(err)
 		}
