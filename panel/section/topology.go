@@ -33,8 +33,8 @@ type window struct{ lo, hi float64 }
 // other.
 const minEdgeSeparation = 0.05
 
-// windowFrac is the least half-width of a transition window beyond its
-// crossing zone, as a fraction of the smallest feature.
+// windowFrac is the least half-width of a transition window, as a fraction
+// of the smallest feature.
 const windowFrac = 0.5
 
 // setOffsets builds the topologies for solving offsets in [lo, hi].
@@ -111,11 +111,15 @@ func (sv *solver) setOffsets(lo, hi float64) {
 		}
 		merged = append(merged, z)
 	}
-	// Windows reach windowFrac·feature (or half the zone) beyond each zone,
-	// but never past the midpoint to the next zone.
+	// Windows are centred on each zone, windowFrac·feature or half the zone's
+	// half-width wide each side, whichever is more, and never reach past the
+	// midpoint to the next zone. (Outside a window but inside its zone the
+	// one topology holds the passing edges; the displacement is at most half
+	// the zone.)
 	for i, z := range merged {
-		w := math.Max(windowFrac*feat, (z.hi-z.lo)/2)
-		win := window{z.lo - w, z.hi + w}
+		c, h := (z.lo+z.hi)/2, (z.hi-z.lo)/2
+		w := math.Max(windowFrac*feat, h/2)
+		win := window{c - w, c + w}
 		if i > 0 {
 			win.lo = math.Max(win.lo, (merged[i-1].hi+z.lo)/2)
 		}
