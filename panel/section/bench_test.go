@@ -51,20 +51,29 @@ func BenchmarkSweep21(b *testing.B) {
 	}
 }
 
-// BenchmarkSolve times one offset of the demo section (three mesh levels,
-// each with and without dielectrics).
+// BenchmarkSolve times one offset of the demo section at the default
+// accuracy (three mesh levels, each with and without dielectrics): at zero
+// offset, inside a transition window (two topologies), and at 2 mil (one).
 func BenchmarkSolve(b *testing.B) {
-	s := demoSection()
-	b.ReportAllocs()
-	var sol *Solution
-	for b.Loop() {
-		var err error
-		if sol, err = Solve(s, 0, nil); err != nil {
-			b.Fatal(err)
-		}
+	for _, bc := range []struct {
+		name string
+		off  float64
+	}{{"offset=0", 0}, {"offset=2mil", 2 * testMil}} {
+		b.Run(bc.name, func(b *testing.B) {
+			s := demoSection()
+			b.ReportAllocs()
+			var sol *Solution
+			for b.Loop() {
+				var err error
+				if sol, err = Solve(s, bc.off, nil); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric(float64(sol.Convergence.Unknowns), "unknowns")
+			b.ReportMetric(float64(sol.Convergence.BandWidth), "bandwidth")
+			b.ReportMetric(float64(sol.Convergence.Iterations), "steps")
+		})
 	}
-	b.ReportMetric(float64(sol.Convergence.Unknowns), "unknowns")
-	b.ReportMetric(float64(sol.Convergence.BandWidth), "bandwidth")
 }
 
 // BenchmarkCoupling times the interpolant that Monte Carlo calls.

@@ -32,10 +32,10 @@
 // reach Cohn's thin-strip formulas exactly rather than by extrapolating
 // thinner and thinner rectangles (a t/b = 1e−3 rectangle is still 0.26 %
 // high, DESIGN.md). Stripline domains end at the grounds' inner faces;
-// microstrip domains are closed by a grounded box 80 × (stack height + two
-// trace widths + nominal offset) away, where the truncation changes C by
-// about 1e−4 (TestOpenBoundary: doubling the distance changes C by 1.2e−4,
-// C0 by 2.2e−4).
+// microstrip domains are closed by a grounded box 160 × (stack height + two
+// trace widths + nominal offset) away (TestOpenBoundary: doubling that
+// distance changes C by 7e−5 and C0 by 1.3e−4, mesh change included; the
+// geometric grading makes the far box cost a few elements).
 //
 // # Method, and why
 //
@@ -56,18 +56,26 @@
 //     the elements touching an edge shrink as 1/L² and the corner errors fall
 //     as fast as the bulk error (without that the observed order was 1.6, not
 //     2).
-//   - The topology never changes with offset and every node moves smoothly
-//     with it, so the coupling curve carries no mesh noise (TestSmoothness:
-//     the second difference over 0.1 mil steps is 4e−4 dB, which is the
-//     curve's physical curvature, and it jitters by less than 2e−5 dB, also
-//     where edges of the two traces pass each other). Where the four edges
-//     keep their x order over the offsets solved, every row carries all four
-//     and the columns are vertical. Where edges pass each other, the rows of
-//     each trace keep their own edges exact and hold the other trace's edges a
-//     small gap away by a smooth (C¹) clamp, and the rows between the traces
-//     blend the two patterns. A sweep centred on aligned traces blends the two
-//     traces' own patterns instead, which keeps a mirror-symmetric section's
-//     mesh exactly mirror-symmetric (C11 = C22 and C(+δ) = C(−δ) to 1e−9).
+//   - Every row carries the walls and all four trace edges in one fixed x
+//     order, so the columns are vertical: no shear, whatever the offset (an
+//     18 mil offset design converges like a centred one). Where an edge of one
+//     trace passes an edge of the other (zero offset for equal widths; where
+//     the narrow trace's edge crosses the wide one's), the order changes, so
+//     the offset axis is covered by several topologies that overlap in
+//     transition windows: inside a window each of the two keeps its order by
+//     holding the passing edges of the other trace a small gap away (a smooth
+//     clamp, in the rows of each trace; the rows between blend), and the
+//     capacitances are their smoothstep-weighted mean (topology.go). The
+//     topology never changes within one, nodes move smoothly with the offset,
+//     and the weights are C¹, so the coupling curve carries no mesh noise
+//     (TestSmoothness: the second difference over 0.1 mil steps is 4e−4 dB,
+//     which is the curve's physical curvature, and it jitters by at most
+//     6e−5 dB, also inside the windows). For a mirror-symmetric section the
+//     two topologies of the central window are mirror images, so C11 = C22
+//     and C(+δ) = C(−δ) hold to 1e−9. (A first version blended each trace's
+//     own two-edge pattern across the gap to keep one topology; its shear
+//     grows with offset/gap, and at a 12 mil offset over a 5 mil core it did
+//     not converge at all.)
 //   - Capacitance from the energy form C_mn = ε0·φ_mᵀ·K·φ_n, whose error is
 //     the square of the energy-norm error (second order in h).
 //   - Three meshes at levels L/√2, L and 2L and Richardson extrapolation of
@@ -94,9 +102,9 @@
 // microstrip boundary naturally but needs the layered-media Green's function
 // for five dielectrics; an adaptive solver (DESIGN.md: about 5,000 unknowns
 // and 0.3 s per solve to reach 0.05 %) spends its time discovering the
-// corners. Here the benchmark section reaches an extrapolated error below
-// 1e−4 at 3,532 unknowns on the fine mesh, in 14 ms per offset (both media,
-// all three levels).
+// corners. Here the benchmark section reaches an extrapolated error of about
+// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 30 to 50 ms per
+// offset (both media, all three levels).
 //
 // # Convergence study
 //
@@ -109,37 +117,45 @@
 // -run ConvergenceStudy):
 //
 //	level  unknowns  band     C11 pF/m    err C11    err C12  err C0_11        est  ms
-//	0.35        174    13    162.18039  +5.99e-02  +5.90e-02  +5.88e-02              0.2
-//	0.50        358    19    158.30318  +3.46e-02  +3.49e-02  +3.37e-02              0.4
-//	0.70        764    27    155.60327  +1.69e-02  +1.61e-02  +1.63e-02              1.0
-//	1.00       1764    43    154.23613  +7.98e-03  +7.43e-03  +7.69e-03              4.1
-//	1.40       3532    60    153.66547  +4.25e-03  +3.89e-03  +4.09e-03             18.8
-//	2.00       8105    94    153.32835  +2.05e-03  +1.86e-03  +1.97e-03             76.8
+//	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02              0.4
+//	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02              0.9
+//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              2.2
+//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03             10.9
+//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             38.1
+//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03            121.2
 //	Richardson triples (L/√2, L, 2L), extrapolated from L and 2L (unknowns of 2L):
-//	0.50       1764    43    152.88044  -8.78e-04  -1.73e-03  -9.90e-04   9.41e-03   4.0
-//	0.70       3532    60    153.01953  +3.09e-05  -1.77e-04  +2.02e-05   7.02e-04  12.8
-//	1.00       8105    94    153.02576  +7.16e-05  -1.29e-06  +6.02e-05   1.95e-04  40.2
-//	1.40      17126   137    153.00973  -3.31e-05  -4.80e-05  -3.35e-05   2.57e-04 310.6
+//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   9.7
+//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  33.3
+//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04 106.4
+//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 490.8
 //
-// Single meshes converge as L⁻² (h²); the extrapolation gains two orders of
-// magnitude at once. The default accuracy (0.1 %) starts at level 0.7, 0.05 %
-// at level 1.0. On this study the estimate is 2.7 to 9 times the true error
-// (C12's error taken relative to √(C11·C22), as the estimate is). It is an
-// estimate, not a bound: on the published checks at accuracy 2e−4
-// (published_test.go) every result is within 1.1e−4 of the formula, but one
-// case (Cohn 1954, w/b = 0.5) had an estimate of 1.5e−6 for a true error of
-// 1.1e−4, because the element counts, rounded up per segment at each level,
-// make the refinement ratio 2 only on average.
+// (Zero offset lies in a transition window: each level is the weighted mean
+// of two topologies, and the time covers both.) Single meshes converge as
+// L⁻² (h²); the extrapolation gains two orders of magnitude at once. On this
+// table the estimate is 2.9 to 10 times the true error (C12's error taken
+// relative to √(C11·C22), as the estimate is). Over a wider calibration set
+// (the demo section at 0, 2 and 5 mil, two edge-coupled pairs, the offset
+// design at 13 and 18 mil; levels 0.6 to 1.2; reference at level 3) the true
+// errors at levels 0.7 to 1.2 were 1e−5 to 7e−4, not monotone in the level
+// (the element counts, rounded up per segment at each level, make the
+// refinement ratio 2 only on average), and the estimate was 0.6 to 48 times
+// the true error — mostly conservative, sometimes very, and in the worst case
+// 0.5 times (an edge-coupled pair at level 0.6, true error 1.5e−3). It is an
+// estimate, not a bound. The default accuracy (0.1 %) starts at level 0.8,
+// 0.05 % at level 1.13.
 //
 // # Published checks
 //
-// Cohn 1954 centred thin stripline (10 cases, w/b 0.25 to 3): |error| ≤
-// 1.1e−4. Cohn 1955 edge-coupled (5 cases): ≤ 6.8e−5. Cohn 1960 broadside:
-// ≤ 4.5e−5 for w/s ≥ 2; the formula's own documented deviation reproduced
-// (−0.2 % at w/s = 1, −1.3 % at w/s = 0.5 for Z0e). Hammerstad & Jensen 1980
-// microstrip (15 cases, w/h 0.2 to 5, εr 2.2 to 10): Z0 within 1e−3, εeff
-// within 2.2e−3. Parallel plate plus Cohn's edge fringing for w/b = 20: 5e−6.
-// Pozar §7.6 coupled-line relations on synthetic and solved sections.
+// At accuracy 2e−4 (published_test.go): Cohn 1954 centred thin stripline
+// (10 cases, w/b 0.25 to 3): |error| ≤ 3.9e−5. Cohn 1955 edge-coupled (5
+// cases): ≤ 5.8e−5. Cohn 1960 broadside: ≤ 8.9e−5 for w/s ≥ 2; below that
+// the formula's own deviation: Z0e reads 0.20 % low at w/s = 1 and 1.35 % low
+// at w/s = 0.5 (FACTS.md lists 0.3 % and 1.7 % from another solve; the test
+// accepts ±0.15 % and ±0.4 % around those), Z0o within 0.17 %. Hammerstad &
+// Jensen 1980 microstrip (15 cases, w/h 0.2 to 5, εr 2.2 to 10): Z0 within
+// 9.4e−4, εeff within 2.1e−3. Parallel plate plus Cohn's edge fringing for
+// w/b = 20: 2e−6. Pozar §7.6 coupled-line relations on synthetic and solved
+// sections.
 //
 // # Line parameters and the 4-port
 //
@@ -157,14 +173,18 @@
 // # Speed
 //
 // go test -bench . ./panel/section/ on the shared 2-core machine (others'
-// jobs running; CPU time is the load-independent figure):
+// jobs running, load 2 to 6; CPU time is the load-independent figure):
 //
-//	BenchmarkSweep21/acc=0.1%   286 ms CPU per 21-offset sweep (13.6 ms/offset, 3,532 unknowns)
-//	BenchmarkSweep21/acc=0.05%  944 ms CPU (45 ms/offset, 7,965 unknowns)
-//	BenchmarkSolve              15 ms per offset, 3 MB and 855 allocations per solve
-//	BenchmarkCoupling           25 ns per call, 0 allocations
+//	BenchmarkSweep21/acc=0.1%    0.31 s wall, 0.60 s CPU per 21-offset sweep (6,787 unknowns)
+//	BenchmarkSweep21/acc=0.05%   1.2 s wall, 2.4 s CPU (14,910 unknowns)
+//	BenchmarkSolve/offset=0      50 ms per offset (two topologies), 5.6 MB, 3,100 allocations
+//	BenchmarkSolve/offset=2mil   29 ms per offset, 6.0 MB, 1,550 allocations
+//	BenchmarkCoupling            13 to 25 ns per call, 0 allocations
 //
-// With both cores free the wall time is about half the CPU time.
+// Peak resident memory of the sweep benchmarks: 34 MB. The 0.05 % sweep
+// misses the 1 s target by about 2×: the true error is already about 1e−4 at
+// the default level, but the error estimate, which decides the level, is
+// conservative by a factor of several there.
 //
 // BUG(section): the error estimate is not a bound (see above). The microstrip
 // box is grounded, not an exact open boundary (error about 1e−4). Losses,

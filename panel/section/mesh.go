@@ -14,11 +14,11 @@ import "math"
 
 // Mesh constants. They were tuned on the convergence study in doc.go.
 const (
-	gradeAlpha   = 0.9  // ln of the element size ratio toward a singular edge at level 1
-	floorFrac    = 0.02 // h0 as a fraction of the smallest feature
-	quietFrac    = 0.25 // largest element as a fraction of the ground spacing b (stripline), at level 1
-	marginSpans  = 2.5  // side walls this many b beyond the traces (stripline): exp(−2π·2.5) ≈ 1.5e−7
-	openSpans    = 80.0 // microstrip: Dirichlet box this many (stack height + widths) away
+	gradeAlpha   = 0.9   // ln of the element size ratio toward a singular edge at level 1
+	floorFrac    = 0.02  // h0 as a fraction of the smallest feature
+	quietFrac    = 0.25  // largest element as a fraction of the ground spacing b (stripline), at level 1
+	marginSpans  = 2.5   // side walls this many b beyond the traces (stripline): exp(−2π·2.5) ≈ 1.5e−7
+	openSpans    = 160.0 // microstrip: Dirichlet box this many (stack height + widths) away
 	minSegCount  = 1
 	maxMeshNodes = 400000
 )
@@ -40,7 +40,7 @@ type meshPlan struct {
 	hi, lo  int     // broadside: index of the trace in the higher / lower slab
 	jub     int     // broadside: row of the lower face of the higher trace
 	jlt     int     // broadside: row of the upper face of the lower trace
-	feat float64 // smallest feature (sets the gap of held edges)
+	feat    float64 // smallest feature (sets the gap of held edges)
 }
 
 func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }
