@@ -142,64 +142,21 @@ func runSweep(ctx context.Context, std stdio, opts any, args []string) error {
 	return nil
 }
 
-type sweepPoint struct {
-	OffsetM       float64       `json:"offset_m"`
-	CFPerM        [2][2]float64 `json:"c_f_per_m"`
-	C0FPerM       [2][2]float64 `json:"c0_f_per_m"`
-	LHPerM        [2][2]float64 `json:"l_h_per_m"`
-	KC            float64       `json:"k_c"`
-	KL            float64       `json:"k_l"`
-	CouplingDB    float64       `json:"coupling_db"`
-	DirectivityDB float64       `json:"directivity_db"`
-	PeakHz        float64       `json:"peak_coupling_hz"`
-	ZLineOhm      [2]float64    `json:"z_line_ohm"`
-	ZEvenOhm      *float64      `json:"z_even_ohm,omitempty"`
-	ZOddOhm       *float64      `json:"z_odd_ohm,omitempty"`
-	EpsEff        [2]float64    `json:"eps_eff"`
-	Convergence   convergenceJS `json:"convergence"`
-}
-
-type convergenceJS struct {
-	CoarseCFPerM       [2][2]float64 `json:"coarse_c_f_per_m"`
-	FineCFPerM         [2][2]float64 `json:"fine_c_f_per_m"`
-	ExtrapolatedCFPerM [2][2]float64 `json:"extrapolated_c_f_per_m"`
-	CoarseUnknowns     int           `json:"coarse_unknowns"`
-	FineUnknowns       int           `json:"fine_unknowns"`
-	EstimatedError     float64       `json:"estimated_error"`
-	Target             float64       `json:"target"`
-}
-
+// sweepJSON is the sweep --json object: the solver's report of the curve
+// (INTERFACE.md's fields and a convergence report per point) and the spec.
 type sweepJSON struct {
-	Section        string       `json:"section"`
-	FrequencyHz    float64      `json:"frequency_hz"`
-	LengthM        float64      `json:"length_m"`
-	ZRefOhm        float64      `json:"z_ref_ohm"`
-	DesignOffsetM  float64      `json:"design_offset_m"`
-	SpecCouplingDB float64      `json:"spec_coupling_db"`
-	SpecTolDB      float64      `json:"spec_tolerance_db"`
-	LeavesSpecAtM  []float64    `json:"leaves_spec_at_m"`
-	FromCache      bool         `json:"from_cache"`
-	Points         []sweepPoint `json:"points"`
+	section.Report
+	DesignOffsetM  float64   `json:"design_offset_m"`
+	SpecCouplingDB float64   `json:"spec_coupling_db"`
+	SpecTolDB      float64   `json:"spec_tolerance_db"`
+	LeavesSpecAtM  []float64 `json:"leaves_spec_at_m"`
+	FromCache      bool      `json:"from_cache"`
 }
 
 func sweepResult(s *section.Section, c *section.Curve, hit bool) *sweepJSON {
-	r := &sweepJSON{Section: s.Name, FrequencyHz: c.Frequency, LengthM: c.Length, ZRefOhm: s.ZRef,
-		DesignOffsetM: s.NominalOffset(), SpecCouplingDB: s.Spec.Coupling, SpecTolDB: s.Spec.Tolerance,
+	return &sweepJSON{Report: c.Report(), DesignOffsetM: s.NominalOffset(),
+		SpecCouplingDB: s.Spec.Coupling, SpecTolDB: s.Spec.Tolerance,
 		LeavesSpecAtM: specCrossings(c, s.Spec), FromCache: hit}
-	for _, p := range c.Points {
-		sp := sweepPoint{OffsetM: p.Offset, CFPerM: p.C, C0FPerM: p.C0, LHPerM: p.L, KC: p.KC, KL: p.KL,
-			CouplingDB: p.CouplingDB, DirectivityDB: p.DirectivityDB, PeakHz: p.PeakFrequency,
-			ZLineOhm: p.ZLine, EpsEff: p.EpsEff}
-		if p.Symmetric {
-			ze, zo := p.ZEven, p.ZOdd
-			sp.ZEvenOhm, sp.ZOddOhm = &ze, &zo
-		}
-		cv := p.Convergence
-		sp.Convergence = convergenceJS{CoarseCFPerM: cv.Coarse.C, FineCFPerM: cv.Fine.C, ExtrapolatedCFPerM: cv.C,
-			CoarseUnknowns: cv.Coarse.Unknowns, FineUnknowns: cv.Fine.Unknowns, EstimatedError: cv.EstimatedError, Target: cv.Target}
-		r.Points = append(r.Points, sp)
-	}
-	return r
 }
 
 // specCrossings returns the offsets within the curve's range at which its
