@@ -329,24 +329,12 @@ func runComp(ctx context.Context, std stdio, opts any, args []string) error {
 	cs.ysBefore, cs.ysAfter = yss[0], yss[1]
 	cs.notes = append(cs.notes, warns...)
 	sum := cs.summary()
-	o, err := newOutputs(f.out)
+	paths, err := writeAll(f.out,
+		outFile{"comp.csv", func(w io.Writer) error { return cs.writeCSV(w, lu) }},
+		outFile{"comp.json", func(w io.Writer) error { return writeJSON(w, sum) }},
+		outFile{"compensation.toml", func(w io.Writer) error { return cs.writeTOML(w) }},
+		outFile{"comp.png", func(w io.Writer) error { return cs.draw(w, sum, f.width, lu) }})
 	if err != nil {
-		return err
-	}
-	defer o.abort()
-	if err := o.file("comp.csv", func(w io.Writer) error { return cs.writeCSV(w, lu) }); err != nil {
-		return err
-	}
-	if err := o.file("comp.json", func(w io.Writer) error { return writeJSON(w, sum) }); err != nil {
-		return err
-	}
-	if err := o.file("compensation.toml", func(w io.Writer) error { return cs.writeTOML(w) }); err != nil {
-		return err
-	}
-	if err := o.file("comp.png", func(w io.Writer) error { return cs.draw(w, sum, f.width, lu) }); err != nil {
-		return err
-	}
-	if err := o.commit(); err != nil {
 		return err
 	}
 	for _, n := range cs.notes {
@@ -357,7 +345,7 @@ func runComp(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 	} else {
-		cs.printTable(std.out, sum, lu, o.paths())
+		cs.printTable(std.out, sum, lu, paths)
 	}
 	if f.strict && sum.After.InSpec < sum.After.Sites {
 		return fmt.Errorf("%w: %d of %d sites outside the coupling spec after compensation", errOutOfSpec, sum.After.Sites-sum.After.InSpec, sum.After.Sites)

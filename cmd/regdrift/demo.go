@@ -5,7 +5,6 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
-	"io"
 	"io/fs"
 	"math"
 	"os"
@@ -92,23 +91,8 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 		lu, _ := parseUnits("mil")
-		o, err := newOutputs(out)
+		sum, _, err := a.writeMap(out, "drift", f.width, lu)
 		if err != nil {
-			return err
-		}
-		sum := a.summary(10)
-		err = o.file("sites.csv", func(w io.Writer) error { return a.writeSitesCSV(w, lu) })
-		if err == nil {
-			err = o.file("summary.json", func(w io.Writer) error { return writeJSON(w, sum) })
-		}
-		if err == nil {
-			err = o.file("map.png", func(w io.Writer) error { return a.drawMap(w, "drift", f.width, lu) })
-		}
-		if err == nil {
-			err = o.commit()
-		}
-		if err != nil {
-			o.abort()
 			return err
 		}
 		var dev, worst3 float64

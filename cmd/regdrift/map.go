@@ -81,22 +81,8 @@ func runMap(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	o, err := newOutputs(f.out)
+	sum, paths, err := a.writeMap(f.out, f.show, f.width, lu)
 	if err != nil {
-		return err
-	}
-	defer o.abort()
-	sum := a.summary(10)
-	if err := o.file("sites.csv", func(w io.Writer) error { return a.writeSitesCSV(w, lu) }); err != nil {
-		return err
-	}
-	if err := o.file("summary.json", func(w io.Writer) error { return writeJSON(w, sum) }); err != nil {
-		return err
-	}
-	if err := o.file("map.png", func(w io.Writer) error { return a.drawMap(w, f.show, f.width, lu) }); err != nil {
-		return err
-	}
-	if err := o.commit(); err != nil {
 		return err
 	}
 	if f.json {
@@ -104,12 +90,22 @@ func runMap(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 	} else {
-		a.printTable(std.out, sum, lu, o.paths())
+		a.printTable(std.out, sum, lu, paths)
 	}
 	if f.strict && sum.InSpec < sum.Sites {
 		return fmt.Errorf("%w: %d of %d sites outside the coupling spec", errOutOfSpec, sum.Sites-sum.InSpec, sum.Sites)
 	}
 	return nil
+}
+
+// writeMap writes the map's files (sites.csv, summary.json, map.png) into dir.
+func (a *analysis) writeMap(dir, show string, width int, lu lengthUnit) (*mapSummary, []string, error) {
+	sum := a.summary(10)
+	paths, err := writeAll(dir,
+		outFile{"sites.csv", func(w io.Writer) error { return a.writeSitesCSV(w, lu) }},
+		outFile{"summary.json", func(w io.Writer) error { return writeJSON(w, sum) }},
+		outFile{"map.png", func(w io.Writer) error { return a.drawMap(w, show, width, lu) }})
+	return sum, paths, err
 }
 
 func writeJSON(w io.Writer, v any) error {

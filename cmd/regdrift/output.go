@@ -78,3 +78,28 @@ func (o *outputs) abort() {
 
 // paths returns the final paths of the files written.
 func (o *outputs) paths() []string { return o.names }
+
+// outFile is one file of a run's output and the function that writes it.
+type outFile struct {
+	name  string
+	write func(io.Writer) error
+}
+
+// writeAll writes files into dir together: every file appears, or none does.
+// It returns their paths.
+func writeAll(dir string, files ...outFile) ([]string, error) {
+	o, err := newOutputs(dir)
+	if err != nil {
+		return nil, err
+	}
+	defer o.abort()
+	for _, f := range files {
+		if err := o.file(f.name, f.write); err != nil {
+			return nil, err
+		}
+	}
+	if err := o.commit(); err != nil {
+		return nil, err
+	}
+	return o.paths(), nil
+}

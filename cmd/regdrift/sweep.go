@@ -121,24 +121,16 @@ func runSweep(ctx context.Context, std stdio, opts any, args []string) error {
 		return err
 	}
 	res := sweepResult(s, c, hit)
-	o, err := newOutputs(f.out)
+	paths, err := writeAll(f.out,
+		outFile{"sweep.csv", func(w io.Writer) error { return writeSweepCSV(w, c, lu) }},
+		outFile{"sweep.png", func(w io.Writer) error { return drawSweep(w, s, c, lu) }})
 	if err != nil {
-		return err
-	}
-	defer o.abort()
-	if err := o.file("sweep.csv", func(w io.Writer) error { return writeSweepCSV(w, c, lu) }); err != nil {
-		return err
-	}
-	if err := o.file("sweep.png", func(w io.Writer) error { return drawSweep(w, s, c, lu) }); err != nil {
-		return err
-	}
-	if err := o.commit(); err != nil {
 		return err
 	}
 	if f.json {
 		return writeJSON(std.out, res)
 	}
-	printSweep(std.out, s, c, res, lu, o.paths())
+	printSweep(std.out, s, c, res, lu, paths)
 	return nil
 }
 

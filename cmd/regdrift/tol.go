@@ -228,18 +228,10 @@ func runTol(ctx context.Context, std stdio, opts any, args []string) error {
 		ys.setAllowed()
 		res.Orientation = ys.orientation()
 	}
-	o, err := newOutputs(f.out)
+	paths, err := writeAll(f.out,
+		outFile{"tol.json", func(w io.Writer) error { return writeJSON(w, res) }},
+		outFile{"tol.png", func(w io.Writer) error { return drawTol(w, j, secs, ys.curves, res, lu) }})
 	if err != nil {
-		return err
-	}
-	defer o.abort()
-	if err := o.file("tol.json", func(w io.Writer) error { return writeJSON(w, res) }); err != nil {
-		return err
-	}
-	if err := o.file("tol.png", func(w io.Writer) error { return drawTol(w, j, secs, ys.curves, res, lu) }); err != nil {
-		return err
-	}
-	if err := o.commit(); err != nil {
 		return err
 	}
 	if f.json {
@@ -247,7 +239,7 @@ func runTol(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 	} else {
-		printTol(std.out, j, res, lu, o.paths())
+		printTol(std.out, j, res, lu, paths)
 	}
 	if f.strict && len(res.Warnings) > 0 {
 		return fmt.Errorf("%w: %s", errOutOfSpec, res.Warnings[0])

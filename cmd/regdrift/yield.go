@@ -295,27 +295,14 @@ func runYield(ctx context.Context, std stdio, opts any, args []string) error {
 		return err
 	}
 	sum := ys.summary(res, f.seed)
-	o, err := newOutputs(f.out)
+	paths, err := writeAll(f.out,
+		outFile{"yield.csv", func(w io.Writer) error { return ys.writeCSV(w, res, lu) }},
+		outFile{"budget.csv", func(w io.Writer) error { return ys.writeBudgetCSV(w, sum, lu) }},
+		outFile{"yield.json", func(w io.Writer) error { return writeJSON(w, sum) }},
+		outFile{"yield.png", func(w io.Writer) error { return ys.drawYield(w, res, sum, lu) }},
+		outFile{"parts.png", func(w io.Writer) error { return drawParts(w, res, sum, j) }},
+		outFile{"budget.png", func(w io.Writer) error { return drawBudget(w, sum, lu) }})
 	if err != nil {
-		return err
-	}
-	defer o.abort()
-	for _, out := range []struct {
-		name  string
-		write func(io.Writer) error
-	}{
-		{"yield.csv", func(w io.Writer) error { return ys.writeCSV(w, res, lu) }},
-		{"budget.csv", func(w io.Writer) error { return ys.writeBudgetCSV(w, sum, lu) }},
-		{"yield.json", func(w io.Writer) error { return writeJSON(w, sum) }},
-		{"yield.png", func(w io.Writer) error { return ys.drawYield(w, res, sum, lu) }},
-		{"parts.png", func(w io.Writer) error { return drawParts(w, res, sum, j) }},
-		{"budget.png", func(w io.Writer) error { return drawBudget(w, sum, lu) }},
-	} {
-		if err := o.file(out.name, out.write); err != nil {
-			return err
-		}
-	}
-	if err := o.commit(); err != nil {
 		return err
 	}
 	if f.json {
@@ -323,7 +310,7 @@ func runYield(ctx context.Context, std stdio, opts any, args []string) error {
 			return err
 		}
 	} else {
-		ys.printTable(std.out, sum, lu, o.paths())
+		ys.printTable(std.out, sum, lu, paths)
 	}
 	if f.strict && sum.PartYieldMean < 1 {
 		return fmt.Errorf("%w: expected part yield %.4f %%", errOutOfSpec, 100*sum.PartYieldMean)
