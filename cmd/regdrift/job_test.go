@@ -2,6 +2,7 @@ package main
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -83,6 +84,19 @@ func TestBadInput(t *testing.T) {
 			}
 			if !errors.Is(err, errBadInput) {
 				t.Errorf("error %v does not exit 2", err)
+			}
+			// The same file through the command line: exit 2, the place named,
+			// and nothing written.
+			dir := t.TempDir()
+			job := filepath.Join(dir, "bad.toml")
+			os.WriteFile(job, []byte(bad), 0o644)
+			out := filepath.Join(dir, "out")
+			code, _, stderr := run(t, "map", job, "-o", out)
+			if want := fmt.Sprintf("bad.toml:%d: %s", tt.line, tt.key); code != 2 || !strings.Contains(stderr, want) {
+				t.Errorf("map: exit %d, stderr %q, want 2 and %q", code, stderr, want)
+			}
+			if ents, _ := os.ReadDir(out); len(ents) != 0 {
+				t.Errorf("map left output behind: %v", ents)
 			}
 		})
 	}
