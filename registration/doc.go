@@ -33,4 +33,30 @@
 // holds the geometric sensitivities of δ to those six terms at one site. Mean
 // and variance at every site then follow in closed form; Sample draws the same
 // terms for Monte Carlo.
+//
+// # Yield
+//
+// Yield inverts a section's coupling curve against its spec to the interval of
+// allowed offsets (SpecInterval; it may be asymmetric about the design offset,
+// or empty when the design itself is out of spec) and gives each site's
+// probability of landing inside it in closed form (SiteProb: normal terms and
+// site_sigma exactly, the two widest uniform terms exactly, further ones by
+// their variance). MonteCarlo draws every term once per panel and site_sigma
+// once per site, in fixed blocks of panels with one PCG stream per block, so
+// that a seed gives the same counts whatever the number of workers, in memory
+// that does not grow with the number of trials. Budget splits each site's
+// offset variance among the contributor terms.
+//
+// # Fitting and compensation
+//
+// ReadTargets reads measured registration targets; Fit estimates each panel's
+// and layer's affine (or similarity, or translation) terms by least squares
+// with standard errors from the residual variance and the normal matrix, and
+// optionally down-weights mis-measured targets (iteratively reweighted Huber or
+// Tukey). LotStats turns the fits into a lot's mean and spread per term, ready
+// to be written as contributors. Compensate chooses per-layer artwork scale
+// compensation that minimises the worst (a linear programme) or RMS broadside
+// offset over the sites; only the scale difference across the coupled lines
+// moves a broadside offset, so the common part comes from a drill-registration
+// budget or is the smallest compensation.
 package registration
