@@ -97,6 +97,9 @@ type analysis struct {
 	cacheHit []bool
 	span     []float64 // per section: largest |mean| + 3σ of the across offset over its sites
 	used     []bool    // per section: whether any site uses it
+	// scale, when set, fixes the colour range of map.png, so that maps of
+	// several jobs compare on one scale.
+	scale *[2]float64
 }
 
 // newAnalysis evaluates the registration part of every site: sensitivity

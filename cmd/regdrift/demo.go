@@ -23,10 +23,11 @@ type demoFlags struct {
 }
 
 // demoJobs are the embedded demo jobs in the order the demo runs them.
-var demoJobs = []struct{ file, what, targets string }{
-	{"same-core.toml", "3 dB hybrids, traces on the two faces of one core", ""},
-	{"two-core.toml", "the same hybrids, traces on two cores (more drift toward the corners)", "twocore-targets.csv"},
-	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg", ""},
+// Jobs of one design share the colour scale of their maps.
+var demoJobs = []struct{ file, what, targets, design string }{
+	{"same-core.toml", "3 dB hybrids, traces on the two faces of one core", "", "hybrid"},
+	{"two-core.toml", "the same hybrids, traces on two cores (more drift toward the corners)", "twocore-targets.csv", "hybrid"},
+	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg", "", "dc10"},
 }
 
 func init() {
@@ -78,19 +79,33 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 	if f.solver.noCache {
 		common = append(common, "--no-cache")
 	}
-	for _, dj := range demoJobs {
+	// Analyse every job first, so that the maps of one design (the hybrid on
+	// one core and on two) share a colour scale and show which drifts more.
+	analyses := make([]*analysis, len(demoJobs))
+	lu, _ := parseUnits("mil")
+	ranges := map[string]*[2]float64{}
+	for k, dj := range demoJobs {
+		j, err := loadJob(filepath.Join(dir, dj.file), nil)
+		if err != nil {
+			return err
+		}
+		if analyses[k], err = analyse(ctx, j, &f.solver, std); err != nil {
+			return err
+		}
+		lo, hi := analyses[k].shownRange("drift", lu)
+		r, ok := ranges[dj.design]
+		if !ok {
+			r = &[2]float64{lo, hi}
+			ranges[dj.design] = r
+		}
+		r[0], r[1] = math.Min(r[0], lo), math.Max(r[1], hi)
+		analyses[k].scale = r
+	}
+	for k, dj := range demoJobs {
 		name := strings.TrimSuffix(dj.file, ".toml")
 		job := filepath.Join(dir, dj.file)
 		out := filepath.Join(f.out, name)
-		j, err := loadJob(job, nil)
-		if err != nil {
-			return err
-		}
-		a, err := analyse(ctx, j, &f.solver, std)
-		if err != nil {
-			return err
-		}
-		lu, _ := parseUnits("mil")
+		a := analyses[k]
 		sum, _, err := a.writeMap(out, "drift", f.width, lu)
 		if err != nil {
 			return err

@@ -333,6 +333,16 @@ func (a *analysis) shown(show string, r *siteResult, lu lengthUnit) float64 {
 	return r.Drift
 }
 
+// shownRange returns the smallest and largest value drawn for the sites.
+func (a *analysis) shownRange(show string, lu lengthUnit) (lo, hi float64) {
+	lo, hi = math.Inf(1), math.Inf(-1)
+	for i := range a.sites {
+		v := a.shown(show, &a.sites[i], lu)
+		lo, hi = math.Min(lo, v), math.Max(hi, v)
+	}
+	return lo, hi
+}
+
 // reversedSequential runs the sequential palette from dark to light, for
 // quantities whose bad end is the low one (negative drift, small margin).
 var reversedSequential = render.NewPalette("sequential, reversed", func(t float64) render.LCh {
@@ -386,10 +396,11 @@ func (a *analysis) drawMap(w io.Writer, show string, width int, lu lengthUnit) e
 	nx := max(width/6, 40)
 	ny := max(int(float64(nx)*ur.Dy()/ur.Dx()), 40)
 	grid := render.NewGrid(ur, nx, ny, field)
-	lo, hi := grid.Range()
-	for i := range a.sites {
-		v := a.shown(show, &a.sites[i], lu)
-		lo, hi = math.Min(lo, v), math.Max(hi, v)
+	lo, hi := a.shownRange(show, lu)
+	glo, ghi := grid.Range()
+	lo, hi = math.Min(lo, glo), math.Max(hi, ghi)
+	if a.scale != nil {
+		lo, hi = a.scale[0], a.scale[1]
 	}
 	var label string
 	badLow := true
