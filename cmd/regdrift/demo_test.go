@@ -1,0 +1,55 @@
+package main
+
+import (
+	"encoding/json"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestDemo runs the embedded demo end to end and checks what it is there to
+// show: every output is written, and the hybrids on two cores drift more than
+// the same hybrids on the two faces of one core (common practice: a shared
+// core's movement cancels between its faces).
+func TestDemo(t *testing.T) {
+	if testing.Short() {
+		t.Skip("runs every command on three jobs")
+	}
+	dir := t.TempDir()
+	code, stdout, stderr := run(t, "demo", "-o", dir, "--width", "600")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	for _, f := range []string{
+		"same-core/map.png", "same-core/sweep.png", "same-core/yield.png", "same-core/sites.csv",
+		"two-core/map.png", "two-core/fit/fit.png", "two-core/fit/measured.toml", "two-core/comp/comp.png",
+		"offset-coupler/map.png", "offset-coupler/parts.png", "offset-coupler/budget.png",
+		"samples/same-core.toml", "samples/twocore-targets.csv",
+	} {
+		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
+			t.Errorf("demo did not write %s", f)
+		}
+	}
+	if n := strings.Count(stdout, "  map "); n != 3 {
+		t.Errorf("%d map lines in\n%s", n, stdout)
+	}
+	worst := func(name string) float64 {
+		b, err := os.ReadFile(filepath.Join(dir, name, "summary.json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		var s struct {
+			Drift struct{ Min, Max float64 } `json:"drift_db"`
+			Off   struct{ Min, Max float64 } `json:"offset_m"`
+		}
+		if err := json.Unmarshal(b, &s); err != nil {
+			t.Fatal(err)
+		}
+		return math.Max(math.Abs(s.Off.Min), math.Abs(s.Off.Max))
+	}
+	if a, b := worst("same-core"), worst("two-core"); !(b > 2*a) {
+		t.Errorf("largest offset: same core %.3g m, two cores %.3g m; want the two-core build well above", a, b)
+	}
+}
