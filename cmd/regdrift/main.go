@@ -3,11 +3,11 @@
 //
 // Usage:
 //
-//	regdrift map    JOB  [-o DIR] [--units mil|um] [--show drift|offset|margin] [--width PX] [--json]
+//	regdrift map    JOB  [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]
 //	regdrift sweep  JOB  [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [-o DIR] [--json]
-//	regdrift tol    JOB  [--section NAME] [--widen FROM:TO:STEP] [--json]
-//	regdrift fit    TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--json]
-//	regdrift comp   JOB  [--targets TARGETS.csv] [--objective worst|rms] [-o DIR] [--json]
+//	regdrift tol    JOB  [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [--json]
+//	regdrift fit    TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]
+//	regdrift comp   JOB  [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
 //	regdrift yield  JOB  [--trials N] [--seed S] [-o DIR] [--json]
 //	regdrift demo   [-o DIR]
 //	regdrift version
