@@ -104,7 +104,7 @@ func (a *analysis) writeMap(dir, show string, width int, lu lengthUnit) (*mapSum
 	paths, err := writeAll(dir,
 		outFile{"sites.csv", func(w io.Writer) error { return a.writeSitesCSV(w, lu) }},
 		outFile{"summary.json", func(w io.Writer) error { return writeJSON(w, sum) }},
-		outFile{"map.png", func(w io.Writer) error { return a.drawMap(w, show, width, lu) }})
+		outFile{"map.png", func(w io.Writer) error { return a.drawMap(w, sum, show, width, lu) }})
 	return sum, paths, err
 }
 
@@ -367,7 +367,7 @@ func scaleFor(lo, hi float64, badLow bool) (*render.Palette, float64, float64) {
 	return render.Sequential, lo, hi
 }
 
-func (a *analysis) drawMap(w io.Writer, show string, width int, lu lengthUnit) error {
+func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int, lu lengthUnit) error {
 	j := a.job
 	outline := j.Layout.Panel.Outline()
 	ext := render.Rect{Min: render.Point{X: outline.Min.X, Y: outline.Min.Y}, Max: render.Point{X: outline.Max.X, Y: outline.Max.Y}}
@@ -419,7 +419,6 @@ func (a *analysis) drawMap(w io.Writer, show string, width int, lu lengthUnit) e
 		label = "coupling drift at the mean offset, against the design offset [dB]"
 	}
 	pal, lo, hi := scaleFor(lo, hi, badLow)
-	sum := a.summary(10)
 	ws := sum.Worst[0]
 	title := []string{
 		j.Title,
@@ -461,9 +460,8 @@ func (a *analysis) drawMap(w io.Writer, show string, width int, lu lengthUnit) e
 	}
 	v.Bars(bars, render.BarStyle{})
 	var ms []render.Marker
-	for rank, k := range a.worst(10) {
-		p := a.sites[k].Site.Pos
-		ms = append(ms, render.Marker{At: render.Point{X: p.X, Y: p.Y}, Label: strconv.Itoa(rank + 1)})
+	for _, ws := range sum.Worst {
+		ms = append(ms, render.Marker{At: render.Point{X: ws.XM, Y: ws.YM}, Label: strconv.Itoa(ws.Rank)})
 	}
 	v.Markers(ms)
 	m.ColorBar(pal, lo, hi, label)
