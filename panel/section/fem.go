@@ -3,10 +3,6 @@ package section
 import (
 	"fmt"
 	"math"
-
-	"gonum.org/v1/gonum/blas"
-	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // Finite elements: bilinear (Q1) isoparametric quadrilaterals, 2×2 Gauss
@@ -30,6 +26,7 @@ type femWork struct {
 	kb     int       // half bandwidth
 	band   []float64 // upper band, row-major, kb+1 per row
 	rhs    []float64 // nfree × 2, row-major
+	nd     ndFactor
 	phi    [2][]float64
 }
 
@@ -152,13 +149,10 @@ func (w *femWork) prepare() error {
 func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err error) {
 	m := &w.m
 	nx, ny := m.nx, m.ny
-	n, kb := w.nfree, w.kb
+	n := w.nfree
 	if n == 0 {
 		return c, 0, fmt.Errorf("section: mesh has no free nodes")
 	}
-	stride := kb + 1
-	w.band = resize(w.band, n*stride)
-	clear(w.band)
 	w.rhs = resize(w.rhs, 2*n)
 	clear(w.rhs)
 	epsOf := func(e int) float64 {
@@ -167,6 +161,7 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 		}
 		return m.er[e]
 	}
+	// Right-hand sides: the couplings of free nodes to the conductors.
 	for i := range nx {
 		for j := range ny {
 			e := i*ny + j
@@ -182,30 +177,23 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 					continue
 				}
 				for b, nb := range ns {
-					q := w.idx[nb]
-					v := s * ke[a*4+b]
-					if q >= p {
-						w.band[int(p)*stride+int(q-p)] += v
-					} else if q < 0 {
-						if t := m.tag[nb]; t >= tagTrace {
-							w.rhs[2*int(p)+int(t-tagTrace)] -= v
-						}
+					if t := m.tag[nb]; t >= tagTrace {
+						w.rhs[2*int(p)+int(t-tagTrace)] -= s * ke[a*4+b]
 					}
 				}
 			}
 		}
 	}
-	a := blas64.SymmetricBand{Uplo: blas.Upper, N: n, K: kb, Data: w.band, Stride: stride}
-	t, ok := lapack64.Pbtrf(a)
-	if !ok {
-		return c, 0, fmt.Errorf("section: stiffness matrix is not positive definite (%d unknowns)", n)
+	sym := m.p.dissection(m, w.idx, n)
+	if !w.nd.factor(sym, w.ke, epsOf, n) {
+		return c, 0, errNotPD(n)
 	}
 	bnorm := [2]float64{}
 	for p := range n {
 		bnorm[0] += w.rhs[2*p] * w.rhs[2*p]
 		bnorm[1] += w.rhs[2*p+1] * w.rhs[2*p+1]
 	}
-	bandSolve2(t.Data, n, kb, w.rhs)
+	w.nd.solve2(w.rhs)
 	// Full potentials.
 	nn := len(m.tag)
 	for k := range 2 {
@@ -277,38 +265,4 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 		}
 	}
 	return c, resid, nil
-}
-
-// bandSolve2 solves Uᵀ·U·x = b in place for the two right-hand sides
-// interleaved in b (b[2i], b[2i+1]), with U the upper band Cholesky factor
-// from dpbtrf, row-major with k+1 entries per row (U[i][i+d] at u[i*(k+1)+d]).
-// It does what dpbtrs does, in one pass per triangle for both right-hand sides
-// and with unit-stride access in both passes: gonum's dtbsv walks the
-// transposed factor with stride k and was a third of the solve time.
-func bandSolve2(u []float64, n, k int, b []float64) {
-	s := k + 1
-	// Uᵀ·y = b, column-oriented: row i of U is column i of Uᵀ.
-	for i := range n {
-		row := u[i*s : i*s+s]
-		y0, y1 := b[2*i]/row[0], b[2*i+1]/row[0]
-		b[2*i], b[2*i+1] = y0, y1
-		m := min(k, n-1-i)
-		bb := b[2*(i+1) : 2*(i+1+m)]
-		for d, v := range row[1 : m+1] {
-			bb[2*d] -= v * y0
-			bb[2*d+1] -= v * y1
-		}
-	}
-	// U·x = y, row-oriented.
-	for i := n - 1; i >= 0; i-- {
-		row := u[i*s : i*s+s]
-		m := min(k, n-1-i)
-		bb := b[2*(i+1) : 2*(i+1+m)]
-		x0, x1 := b[2*i], b[2*i+1]
-		for d, v := range row[1 : m+1] {
-			x0 -= v * bb[2*d]
-			x1 -= v * bb[2*d+1]
-		}
-		b[2*i], b[2*i+1] = x0/row[0], x1/row[0]
-	}
 }

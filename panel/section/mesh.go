@@ -1,6 +1,9 @@
 package section
 
-import "math"
+import (
+	"math"
+	"sync"
+)
 
 // Mesh construction. The mesh is a structured grid of quadrilaterals: every
 // horizontal node line is at a fixed height (all band interfaces and trace faces
@@ -41,6 +44,17 @@ type meshPlan struct {
 	jub     int     // broadside: row of the lower face of the higher trace
 	jlt     int     // broadside: row of the upper face of the lower trace
 	feat    float64 // smallest feature (sets the gap of held edges)
+
+	ndOnce sync.Once
+	nd     *ndSymbolic // nested dissection of the grid (nd.go), built on first use
+}
+
+// dissection returns the plan's nested dissection, building it from m (a
+// realisation of p, whose free and fixed nodes do not depend on the offset)
+// on first use.
+func (p *meshPlan) dissection(m *mesh, idx []int32, nfree int) *ndSymbolic {
+	p.ndOnce.Do(func() { p.nd = newNDSymbolic(m, idx, nfree) })
+	return p.nd
 }
 
 func (p *meshPlan) unknownsEstimate() int { return (p.nx + 1) * (p.ny + 1) }

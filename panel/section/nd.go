@@ -1,0 +1,300 @@
+package section
+
+import (
+	"fmt"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
+)
+
+// Nested-dissection Cholesky. The stiffness matrix lives on a structured
+// (nx+1)×(ny+1) node grid with the 9-point coupling of Q1 elements, so a
+// separator is one node line: the grid is cut recursively along its longer
+// side by a column or row of nodes, down to small rectangles (George, Nested
+// dissection of a regular finite element mesh, SIAM J. Numer. Anal. 10,
+// 345–363, 1973). The factorisation is multifrontal (Duff & Reid, ACM TOMS 9,
+// 302–325, 1983; Liu, SIAM Review 34, 82–109, 1992): each node of the
+// dissection tree owns a dense front over the nodes it eliminates (its
+// separator, or the whole rectangle at a leaf) and the ring of nodes just
+// outside its rectangle, which lie on ancestor separators. On the fine meshes
+// here (15,000 unknowns, half bandwidth 105) it does about a third of the
+// arithmetic of the band factorisation, in dense blocks (gonum Potrf, Trsm,
+// Syrk). The dissection depends only on the mesh plan (free and fixed nodes),
+// so it is built once per plan and reused for C and C0 and for every offset.
+
+// ndLeafNodes is the largest rectangle (in grid nodes) that is not cut further.
+const ndLeafNodes = 40
+
+// ndFront is one node of the dissection tree, in post order.
+type ndFront struct {
+	vars   []int32 // free-node numbers: p eliminated, then the ring
+	p      int     // eliminated count
+	off    int     // start of the front's dense m×m block in ndSymbolic.arena
+	kids   []int   // child fronts
+	elems  []int32 // elements assembled into this front
+	locals []int32 // per element, the 4 local positions (−1: fixed node)
+	ext    []int32 // per child, its ring's local positions here, children in order
+}
+
+// ndSymbolic is the dissection of one mesh plan.
+type ndSymbolic struct {
+	fronts []ndFront
+	size   int // arena length
+}
+
+// newNDSymbolic dissects the grid of m (its free nodes numbered by idx).
+func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
+	nx, ny := m.nx, m.ny
+	sym := &ndSymbolic{}
+	node := func(i, j int) int { return i*(ny+1) + j }
+	// owner[q] is the front that eliminates free node q.
+	owner := make([]int32, nfree)
+	var build func(i0, i1, j0, j1 int) int
+	build = func(i0, i1, j0, j1 int) int {
+		var f ndFront
+		w, h := i1-i0+1, j1-j0+1
+		addFree := func(i, j int) {
+			if i < 0 || j < 0 || i > nx || j > ny {
+				return
+			}
+			if q := idx[node(i, j)]; q >= 0 {
+				f.vars = append(f.vars, q)
+			}
+		}
+		if w*h <= ndLeafNodes || (w < 3 && h < 3) {
+			for i := i0; i <= i1; i++ {
+				for j := j0; j <= j1; j++ {
+					addFree(i, j)
+				}
+			}
+		} else if w >= h {
+			im := (i0 + i1) / 2
+			f.kids = append(f.kids, build(i0, im-1, j0, j1), build(im+1, i1, j0, j1))
+			for j := j0; j <= j1; j++ {
+				addFree(im, j)
+			}
+		} else {
+			jm := (j0 + j1) / 2
+			f.kids = append(f.kids, build(i0, i1, j0, jm-1), build(i0, i1, jm+1, j1))
+			for i := i0; i <= i1; i++ {
+				addFree(i, jm)
+			}
+		}
+		f.p = len(f.vars)
+		// The ring just outside the rectangle.
+		for i := i0 - 1; i <= i1+1; i++ {
+			addFree(i, j0-1)
+			addFree(i, j1+1)
+		}
+		for j := j0; j <= j1; j++ {
+			addFree(i0-1, j)
+			addFree(i1+1, j)
+		}
+		k := len(sym.fronts)
+		for _, q := range f.vars[:f.p] {
+			owner[q] = int32(k)
+		}
+		sym.fronts = append(sym.fronts, f)
+		return k
+	}
+	build(0, nx, 0, ny)
+	// Each element goes to the front that eliminates the first of its free
+	// nodes; its other free nodes are in that front (same separator or ring).
+	for i := range nx {
+		for j := range ny {
+			e := i*ny + j
+			if m.er[e] == 0 {
+				continue
+			}
+			k := int32(-1)
+			for _, n := range elementNodes(i, j, ny) {
+				if q := idx[n]; q >= 0 && (k < 0 || owner[q] < k) {
+					k = owner[q]
+				}
+			}
+			if k >= 0 {
+				sym.fronts[k].elems = append(sym.fronts[k].elems, int32(e))
+			}
+		}
+	}
+	local := make([]int32, nfree)
+	for k := range sym.fronts {
+		f := &sym.fronts[k]
+		f.off = sym.size
+		sym.size += len(f.vars) * len(f.vars)
+		for l, q := range f.vars {
+			local[q] = int32(l)
+		}
+		for _, ck := range f.kids {
+			c := &sym.fronts[ck]
+			for _, q := range c.vars[c.p:] {
+				f.ext = append(f.ext, local[q])
+			}
+		}
+		f.locals = make([]int32, 4*len(f.elems))
+		for t, e := range f.elems {
+			i, j := int(e)/ny, int(e)%ny
+			for a, n := range elementNodes(i, j, ny) {
+				f.locals[4*t+a] = -1
+				if q := idx[n]; q >= 0 {
+					f.locals[4*t+a] = local[q]
+				}
+			}
+		}
+	}
+	return sym
+}
+
+// ndFactor is a numeric factorisation over an ndSymbolic.
+type ndFactor struct {
+	sym   *ndSymbolic
+	arena []float64
+	y     []float64
+}
+
+// factor assembles s·ke per element (s from eps) and factors. It reports
+// false if the matrix is not positive definite.
+func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float64, nfree int) bool {
+	nf.sym = sym
+	nf.arena = resize(nf.arena, sym.size)
+	for k := range sym.fronts {
+		f := &sym.fronts[k]
+		m := len(f.vars)
+		if m == 0 {
+			continue
+		}
+		F := nf.arena[f.off : f.off+m*m]
+		clear(F)
+		// Elements, into the upper triangle.
+		for t, e := range f.elems {
+			s := eps(int(e))
+			el := ke[16*int(e) : 16*int(e)+16]
+			loc := f.locals[4*t : 4*t+4]
+			for a := range 4 {
+				la := loc[a]
+				if la < 0 {
+					continue
+				}
+				F[int(la)*m+int(la)] += s * el[a*4+a]
+				for b := a + 1; b < 4; b++ {
+					lb := loc[b]
+					if lb < 0 {
+						continue
+					}
+					r, c := min(la, lb), max(la, lb)
+					F[int(r)*m+int(c)] += s * el[a*4+b]
+				}
+			}
+		}
+		// Children's update matrices (extend-add).
+		ext := f.ext
+		for _, ck := range f.kids {
+			c := &sym.fronts[ck]
+			cm, cp := len(c.vars), c.p
+			cb := cm - cp
+			to := ext[:cb]
+			ext = ext[cb:]
+			U := nf.arena[c.off : c.off+cm*cm]
+			for r, lr := range to {
+				row := U[(cp+r)*cm+cp+r : (cp+r+1)*cm]
+				for cc, lc := range to[r:] {
+					if lr <= lc {
+						F[int(lr)*m+int(lc)] += row[cc]
+					} else {
+						F[int(lc)*m+int(lr)] += row[cc]
+					}
+				}
+			}
+		}
+		p, b := f.p, m-f.p
+		if p == 0 {
+			continue
+		}
+		if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Data: F, Stride: m}); !ok {
+			return false
+		}
+		if b == 0 {
+			continue
+		}
+		u11 := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: p, Data: F, Stride: m}
+		u12 := blas64.General{Rows: p, Cols: b, Data: F[p:], Stride: m}
+		blas64.Trsm(blas.Left, blas.Trans, 1, u11, u12)
+		blas64.Syrk(blas.Trans, -1, u12, 1, blas64.Symmetric{Uplo: blas.Upper, N: b, Data: F[p*m+p:], Stride: m})
+	}
+	return true
+}
+
+// solve2 solves K·x = rhs in place for the two right-hand sides interleaved
+// in rhs (rhs[2q], rhs[2q+1]).
+func (nf *ndFactor) solve2(rhs []float64) {
+	sym := nf.sym
+	// Forward: Uᵀ·y = b, fronts in post order.
+	for k := range sym.fronts {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.arena[f.off : f.off+m*m]
+		y := nf.gather(f.vars[:p], rhs)
+		for i := range p {
+			row := F[i*m : i*m+m]
+			y0, y1 := y[2*i]/row[i], y[2*i+1]/row[i]
+			y[2*i], y[2*i+1] = y0, y1
+			for c := i + 1; c < p; c++ {
+				y[2*c] -= row[c] * y0
+				y[2*c+1] -= row[c] * y1
+			}
+			for c, q := range f.vars[p:] {
+				v := row[p+c]
+				rhs[2*q] -= v * y0
+				rhs[2*q+1] -= v * y1
+			}
+		}
+		nf.scatter(f.vars[:p], rhs, y)
+	}
+	// Backward: U·x = y, fronts in reverse post order.
+	for k := len(sym.fronts) - 1; k >= 0; k-- {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.arena[f.off : f.off+m*m]
+		y := nf.gather(f.vars[:p], rhs)
+		for i := p - 1; i >= 0; i-- {
+			row := F[i*m : i*m+m]
+			x0, x1 := y[2*i], y[2*i+1]
+			for c := i + 1; c < p; c++ {
+				x0 -= row[c] * y[2*c]
+				x1 -= row[c] * y[2*c+1]
+			}
+			for c, q := range f.vars[p:] {
+				x0 -= row[p+c] * rhs[2*q]
+				x1 -= row[p+c] * rhs[2*q+1]
+			}
+			y[2*i], y[2*i+1] = x0/row[i], x1/row[i]
+		}
+		nf.scatter(f.vars[:p], rhs, y)
+	}
+}
+
+func (nf *ndFactor) gather(vars []int32, rhs []float64) []float64 {
+	nf.y = resize(nf.y, 2*len(vars))
+	for i, q := range vars {
+		nf.y[2*i], nf.y[2*i+1] = rhs[2*q], rhs[2*q+1]
+	}
+	return nf.y
+}
+
+func (nf *ndFactor) scatter(vars []int32, rhs, y []float64) {
+	for i, q := range vars {
+		rhs[2*q], rhs[2*q+1] = y[2*i], y[2*i+1]
+	}
+}
+
+// errNotPD is the message of a failed factorisation.
+func errNotPD(n int) error {
+	return fmt.Errorf("section: stiffness matrix is not positive definite (%d unknowns)", n)
+}
