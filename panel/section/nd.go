@@ -165,7 +165,9 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 			continue
 		}
 		F := nf.arena[f.off : f.off+m*m]
-		clear(F)
+		for r := range m { // the upper triangle only: the lower one is never read
+			clear(F[r*m+r : r*m+m])
+		}
 		// Elements, into the upper triangle.
 		for t, e := range f.elems {
 			s := eps(int(e))
@@ -226,7 +228,8 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 }
 
 // solve2 solves K·x = rhs in place for the two right-hand sides interleaved
-// in rhs (rhs[2q], rhs[2q+1]).
+// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into a
+// contiguous buffer, works on it, and scatters back.
 func (nf *ndFactor) solve2(rhs []float64) {
 	sym := nf.sym
 	// Forward: Uᵀ·y = b, fronts in post order.
@@ -237,22 +240,18 @@ func (nf *ndFactor) solve2(rhs []float64) {
 			continue
 		}
 		F := nf.arena[f.off : f.off+m*m]
-		y := nf.gather(f.vars[:p], rhs)
+		y := nf.gather(f.vars, rhs)
 		for i := range p {
 			row := F[i*m : i*m+m]
 			y0, y1 := y[2*i]/row[i], y[2*i+1]/row[i]
 			y[2*i], y[2*i+1] = y0, y1
-			for c := i + 1; c < p; c++ {
-				y[2*c] -= row[c] * y0
-				y[2*c+1] -= row[c] * y1
-			}
-			for c, q := range f.vars[p:] {
-				v := row[p+c]
-				rhs[2*q] -= v * y0
-				rhs[2*q+1] -= v * y1
+			yy := y[2*(i+1) : 2*m]
+			for c, v := range row[i+1 : m] {
+				yy[2*c] -= v * y0
+				yy[2*c+1] -= v * y1
 			}
 		}
-		nf.scatter(f.vars[:p], rhs, y)
+		nf.scatter(f.vars, rhs, y)
 	}
 	// Backward: U·x = y, fronts in reverse post order.
 	for k := len(sym.fronts) - 1; k >= 0; k-- {
@@ -262,17 +261,14 @@ func (nf *ndFactor) solve2(rhs []float64) {
 			continue
 		}
 		F := nf.arena[f.off : f.off+m*m]
-		y := nf.gather(f.vars[:p], rhs)
+		y := nf.gather(f.vars, rhs)
 		for i := p - 1; i >= 0; i-- {
 			row := F[i*m : i*m+m]
 			x0, x1 := y[2*i], y[2*i+1]
-			for c := i + 1; c < p; c++ {
-				x0 -= row[c] * y[2*c]
-				x1 -= row[c] * y[2*c+1]
-			}
-			for c, q := range f.vars[p:] {
-				x0 -= row[p+c] * rhs[2*q]
-				x1 -= row[p+c] * rhs[2*q+1]
+			yy := y[2*(i+1) : 2*m]
+			for c, v := range row[i+1 : m] {
+				x0 -= v * yy[2*c]
+				x1 -= v * yy[2*c+1]
 			}
 			y[2*i], y[2*i+1] = x0/row[i], x1/row[i]
 		}

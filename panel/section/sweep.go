@@ -125,8 +125,19 @@ func (sv *solver) solveAll(ctx context.Context, todo []float64, lev float64, wor
 			}
 		}()
 	}
+	// Offsets inside a transition window solve two topologies: they go
+	// first, so that the last offsets to finish are the cheap ones and the
+	// workers end together.
+	order := make([]int, 0, len(todo))
+	for pass := range 2 {
+		for i, o := range todo {
+			if _, t := sv.locate(o); (t > 0) == (pass == 0) {
+				order = append(order, i)
+			}
+		}
+	}
 feed:
-	for i := range todo {
+	for _, i := range order {
 		select {
 		case next <- i:
 		case <-ctx.Done():
