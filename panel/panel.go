@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"sort"
 )
 
 // Vec is a point or vector in the panel plane, in metres.
@@ -128,6 +127,11 @@ type Layout struct {
 	Placements []Placement
 }
 
+// MaxInstances bounds the parts and placements of one layout, so that a typing
+// slip in a count cannot exhaust memory: a million parts is far beyond any
+// production panel.
+const MaxInstances = 1_000_000
+
 // Instance is one placed copy of a part.
 type Instance struct {
 	Index  int // position in the slice returned by Expand
@@ -220,6 +224,7 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 	}
 	var inst []Instance
 	var sites []Site
+	var blocks []arrayBlock
 	usable := l.Panel.Usable()
 	outline := l.Panel.Outline()
 	for ai, a := range l.Arrays {
@@ -243,11 +248,17 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 		if (a.Count[0] > 1 && a.Pitch.X < sz.X-1e-9) || (a.Count[1] > 1 && a.Pitch.Y < sz.Y-1e-9) {
 			return nil, nil, &FieldError{key + ".pitch", fmt.Errorf("%w: the pitch is smaller than the (turned) %q part", ErrOverlap, a.Part)}
 		}
+		if a.Count[0] > MaxInstances || a.Count[1] > MaxInstances || len(inst)+a.Count[0]*a.Count[1] > MaxInstances {
+			return nil, nil, &FieldError{key + ".count", fmt.Errorf("more than %d parts on one panel", MaxInstances)}
+		}
 		origin := a.Origin
 		if !a.UseOrigin {
 			ext := Vec{float64(a.Count[0]-1)*a.Pitch.X + sz.X, float64(a.Count[1]-1)*a.Pitch.Y + sz.Y}
 			origin = Vec{a.Center.X - ext.X/2, a.Center.Y - ext.Y/2}
 		}
+		blk := arrayBlock{first: len(inst), nx: a.Count[0], ny: a.Count[1]}
+		blk.extent = Rect{origin, origin.Add(Vec{float64(a.Count[0]-1)*a.Pitch.X + sz.X, float64(a.Count[1]-1)*a.Pitch.Y + sz.Y})}
+		blocks = append(blocks, blk)
 		for j := 0; j < a.Count[1]; j++ {
 			for i := 0; i < a.Count[0]; i++ {
 				ll := origin.Add(Vec{float64(i) * a.Pitch.X, float64(j) * a.Pitch.Y})
@@ -285,7 +296,7 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 		inst = append(inst, in)
 		sites = append(sites, s)
 	}
-	if a, b, ok := firstOverlap(inst); ok {
+	if a, b, ok := firstOverlap(inst, blocks); ok {
 		return nil, nil, fmt.Errorf("%w: %s and %s", ErrOverlap, inst[a].Name, inst[b].Name)
 	}
 	return inst, sites, nil
@@ -314,36 +325,56 @@ func snap(v float64) float64 {
 	return v
 }
 
-// firstOverlap finds two part instances with overlapping outlines by a sweep
-// along x, in O(n log n + k) for k candidate pairs.
-func firstOverlap(inst []Instance) (int, int, bool) {
-	idx := make([]int, 0, len(inst))
-	for i, in := range inst {
-		if in.Array >= 0 {
-			idx = append(idx, i)
-		}
-	}
-	sort.Slice(idx, func(a, b int) bool { return inst[idx[a]].Bounds.Min.X < inst[idx[b]].Bounds.Min.X })
-	var active []int
-	for _, i := range idx {
-		r := inst[i].Bounds
-		keep := active[:0]
-		for _, j := range active {
-			if inst[j].Bounds.Max.X > r.Min.X+1e-9 {
-				keep = append(keep, j)
+// arrayBlock is the run of instances of one array in the slice Expand builds:
+// instance (i, j) is at first + j·nx + i.
+type arrayBlock struct {
+	first, nx, ny int
+	extent        Rect
+}
+
+// firstOverlap finds two part instances of different arrays with overlapping
+// outlines. Parts of one array cannot overlap (the pitch is checked), so only
+// pairs of arrays whose extents overlap are compared, and for each instance of
+// one array the instances of the other that could touch it follow from the
+// other's regular grid in O(1): the whole check is linear in the number of
+// instances of overlapping arrays.
+func firstOverlap(inst []Instance, blocks []arrayBlock) (int, int, bool) {
+	for p := range blocks {
+		for q := p + 1; q < len(blocks); q++ {
+			a, b := blocks[p], blocks[q]
+			if !a.extent.Overlaps(b.extent) {
+				continue
 			}
-		}
-		active = keep
-		for _, j := range active {
-			if inst[j].Array != inst[i].Array && r.Overlaps(inst[j].Bounds) {
-				a, b := j, i
-				if a > b {
-					a, b = b, a
+			first := inst[a.first].Bounds
+			step := Vec{}
+			if a.nx > 1 {
+				step.X = inst[a.first+1].Bounds.Min.X - first.Min.X
+			}
+			if a.ny > 1 {
+				step.Y = inst[a.first+a.nx].Bounds.Min.Y - first.Min.Y
+			}
+			span := func(lo, hi, origin, size, step float64, n int) (int, int) {
+				if n == 1 || step <= 0 {
+					return 0, n - 1
 				}
-				return a, b, true
+				i0 := int(math.Floor((lo - origin - size) / step))
+				i1 := int(math.Ceil((hi - origin) / step))
+				return max(i0, 0), min(i1, n-1)
+			}
+			sz := first.Size()
+			for k := b.first; k < b.first+b.nx*b.ny; k++ {
+				r := inst[k].Bounds
+				i0, i1 := span(r.Min.X, r.Max.X, first.Min.X, sz.X, step.X, a.nx)
+				j0, j1 := span(r.Min.Y, r.Max.Y, first.Min.Y, sz.Y, step.Y, a.ny)
+				for j := j0; j <= j1; j++ {
+					for i := i0; i <= i1; i++ {
+						if m := a.first + j*a.nx + i; r.Overlaps(inst[m].Bounds) {
+							return m, k, true
+						}
+					}
+				}
 			}
 		}
-		active = append(active, i)
 	}
 	return 0, 0, false
 }

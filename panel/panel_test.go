@@ -114,3 +114,24 @@ func TestExpandErrors(t *testing.T) {
 		})
 	}
 }
+
+// TestOverlapManyParts checks that overlap detection stays fast for a long
+// single column and still finds a second array laid over the first.
+func TestOverlapManyParts(t *testing.T) {
+	l := Layout{
+		Panel:  Panel{Size: Vec{18 * in, 24 * in}},
+		Parts:  []Part{{Name: "p", Size: Vec{1e-6, 1e-6}}},
+		Arrays: []Array{{Part: "p", Count: [2]int{1, 500000}, Pitch: Vec{1e-6, 1.1e-6}, Center: Vec{}}},
+	}
+	if _, _, err := l.Expand(); err != nil {
+		t.Fatal(err)
+	}
+	l.Arrays = append(l.Arrays, Array{Part: "p", Count: [2]int{3, 3}, Pitch: Vec{1.1e-6, 1.1e-6}, Center: Vec{}})
+	if _, _, err := l.Expand(); !errors.Is(err, ErrOverlap) {
+		t.Fatalf("error %v, want an overlap", err)
+	}
+	l.Arrays[0].Count = [2]int{2000, 2000}
+	if _, _, err := l.Expand(); err == nil {
+		t.Fatal("four million parts accepted")
+	}
+}

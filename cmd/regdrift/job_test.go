@@ -159,7 +159,7 @@ func FuzzLoadJob(f *testing.F) {
 	}
 	f.Add("[panel]\nsize = [\"1 in\"]\n")
 	f.Fuzz(func(t *testing.T, src string) {
-		j, err := loadJobData([]byte(src), "fuzz.toml", t.TempDir())
+		j, err := loadJobData([]byte(src), "fuzz.toml", "testdata/fuzz-no-files")
 		if err != nil {
 			if !errors.Is(err, errBadInput) {
 				t.Fatalf("error not marked as bad input: %v", err)
