@@ -30,7 +30,7 @@ const ndLeafNodes = 40
 type ndFront struct {
 	vars   []int32 // free-node numbers: p eliminated, then the ring
 	p      int     // eliminated count
-	off    int     // start of the front's dense m×m block in ndSymbolic.arena
+	off    int     // start of the front's p rows (m wide) in ndFactor.rows
 	kids   []int   // child fronts
 	elems  []int32 // elements assembled into this front
 	locals []int32 // per element, the 4 local positions (−1: fixed node)
@@ -40,7 +40,9 @@ type ndFront struct {
 // ndSymbolic is the dissection of one mesh plan.
 type ndSymbolic struct {
 	fronts []ndFront
-	size   int // arena length
+	size   int // length of the stored rows, Σ p·m
+	maxM   int // largest front
+	stack  int // largest total size of the update matrices waiting for their parent
 }
 
 // newNDSymbolic dissects the grid of m (its free nodes numbered by idx).
@@ -122,7 +124,8 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
 		f.off = sym.size
-		sym.size += len(f.vars) * len(f.vars)
+		sym.size += f.p * len(f.vars)
+		sym.maxM = max(sym.maxM, len(f.vars))
 		for l, q := range f.vars {
 			local[q] = int32(l)
 		}
@@ -143,13 +146,31 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 			}
 		}
 	}
+	// The update matrices wait on a stack: a front pops its children's and
+	// pushes its own (post order).
+	var depth []int
+	used := 0
+	for _, f := range sym.fronts {
+		for range f.kids {
+			used -= depth[len(depth)-1]
+			depth = depth[:len(depth)-1]
+		}
+		b := len(f.vars) - f.p
+		depth = append(depth, b*b)
+		used += b * b
+		sym.stack = max(sym.stack, used)
+	}
 	return sym
 }
 
-// ndFactor is a numeric factorisation over an ndSymbolic.
+// ndFactor is a numeric factorisation over an ndSymbolic: the rows of U
+// that each front eliminates. Fronts are assembled in one reused buffer and
+// the update matrices wait on a stack, so the working set stays small.
 type ndFactor struct {
 	sym   *ndSymbolic
-	arena []float64
+	rows  []float64 // per front, its p rows of U, m wide (the upper part is used)
+	work  []float64 // the current front, m×m, upper triangle
+	stack []float64 // update matrices waiting for their parent, b×b each
 	y     []float64
 }
 
@@ -157,14 +178,14 @@ type ndFactor struct {
 // false if the matrix is not positive definite.
 func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float64, nfree int) bool {
 	nf.sym = sym
-	nf.arena = resize(nf.arena, sym.size)
+	nf.rows = resize(nf.rows, sym.size)
+	nf.work = resize(nf.work, sym.maxM*sym.maxM)
+	nf.stack = resize(nf.stack, sym.stack)
+	top := 0 // stack length
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
 		m := len(f.vars)
-		if m == 0 {
-			continue
-		}
-		F := nf.arena[f.off : f.off+m*m]
+		F := nf.work[:m*m]
 		for r := range m { // the upper triangle only: the lower one is never read
 			clear(F[r*m+r : r*m+m])
 		}
@@ -189,17 +210,24 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 				}
 			}
 		}
-		// Children's update matrices (extend-add).
-		ext := f.ext
+		// Children's update matrices (extend-add), from the top of the
+		// stack: the last child's is on top.
+		base := top
 		for _, ck := range f.kids {
 			c := &sym.fronts[ck]
-			cm, cp := len(c.vars), c.p
-			cb := cm - cp
+			cb := len(c.vars) - c.p
+			base -= cb * cb
+		}
+		ext, at := f.ext, base
+		for _, ck := range f.kids {
+			c := &sym.fronts[ck]
+			cb := len(c.vars) - c.p
 			to := ext[:cb]
 			ext = ext[cb:]
-			U := nf.arena[c.off : c.off+cm*cm]
+			U := nf.stack[at : at+cb*cb]
+			at += cb * cb
 			for r, lr := range to {
-				row := U[(cp+r)*cm+cp+r : (cp+r+1)*cm]
+				row := U[r*cb+r : r*cb+cb]
 				for cc, lc := range to[r:] {
 					if lr <= lc {
 						F[int(lr)*m+int(lc)] += row[cc]
@@ -209,20 +237,29 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 				}
 			}
 		}
+		top = base
 		p, b := f.p, m-f.p
-		if p == 0 {
-			continue
+		if p > 0 {
+			if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Data: F, Stride: m}); !ok {
+				return false
+			}
+			if b > 0 {
+				u11 := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: p, Data: F, Stride: m}
+				u12 := blas64.General{Rows: p, Cols: b, Data: F[p:], Stride: m}
+				blas64.Trsm(blas.Left, blas.Trans, 1, u11, u12)
+				blas64.Syrk(blas.Trans, -1, u12, 1, blas64.Symmetric{Uplo: blas.Upper, N: b, Data: F[p*m+p:], Stride: m})
+			}
+			dst := nf.rows[f.off : f.off+p*m]
+			for r := range p {
+				copy(dst[r*m+r:r*m+m], F[r*m+r:r*m+m])
+			}
 		}
-		if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Data: F, Stride: m}); !ok {
-			return false
+		// Push the update matrix.
+		U := nf.stack[top : top+b*b]
+		for r := range b {
+			copy(U[r*b+r:r*b+b], F[(p+r)*m+p+r:(p+r)*m+m])
 		}
-		if b == 0 {
-			continue
-		}
-		u11 := blas64.Triangular{Uplo: blas.Upper, Diag: blas.NonUnit, N: p, Data: F, Stride: m}
-		u12 := blas64.General{Rows: p, Cols: b, Data: F[p:], Stride: m}
-		blas64.Trsm(blas.Left, blas.Trans, 1, u11, u12)
-		blas64.Syrk(blas.Trans, -1, u12, 1, blas64.Symmetric{Uplo: blas.Upper, N: b, Data: F[p*m+p:], Stride: m})
+		top += b * b
 	}
 	return true
 }
@@ -239,7 +276,7 @@ func (nf *ndFactor) solve2(rhs []float64) {
 		if p == 0 {
 			continue
 		}
-		F := nf.arena[f.off : f.off+m*m]
+		F := nf.rows[f.off : f.off+p*m]
 		y := nf.gather(f.vars, rhs)
 		for i := range p {
 			row := F[i*m : i*m+m]
@@ -260,7 +297,7 @@ func (nf *ndFactor) solve2(rhs []float64) {
 		if p == 0 {
 			continue
 		}
-		F := nf.arena[f.off : f.off+m*m]
+		F := nf.rows[f.off : f.off+p*m]
 		y := nf.gather(f.vars, rhs)
 		for i := p - 1; i >= 0; i-- {
 			row := F[i*m : i*m+m]
