@@ -112,3 +112,31 @@ func TestNestedDissectionMatchesBand(t *testing.T) {
 		})
 	}
 }
+
+// TestRectStiffness checks the closed-form rectangle stiffness against the
+// 2 × 2 Gauss quadrature of the general element, which is exact on a
+// rectangle (Zienkiewicz & Taylor 2000, §8.5), and that its rows sum to zero
+// (a constant potential carries no energy).
+func TestRectStiffness(t *testing.T) {
+	for _, d := range [][2]float64{{1, 1}, {3e-5, 2e-7}, {1e-7, 4e-4}} {
+		a, b := d[0], d[1]
+		x, y := [4]float64{0, a, a, 0}, [4]float64{0, 0, b, b}
+		var kr, kq [16]float64
+		rectStiffness(kr[:], a, b)
+		if err := quadStiffness(kq[:], x, y); err != nil {
+			t.Fatal(err)
+		}
+		scale := b/a + a/b
+		for i := range kr {
+			if math.Abs(kr[i]-kq[i]) > 1e-14*scale {
+				t.Errorf("%g × %g: entry %d: closed form %g, quadrature %g", a, b, i, kr[i], kq[i])
+			}
+		}
+		for r := range 4 {
+			sum := kr[4*r] + kr[4*r+1] + kr[4*r+2] + kr[4*r+3]
+			if math.Abs(sum) > 1e-14*scale {
+				t.Errorf("%g × %g: row %d sums to %g", a, b, r, sum)
+			}
+		}
+	}
+}
