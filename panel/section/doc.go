@@ -51,7 +51,7 @@
 //     follow its sloped sides exactly. Element sizes follow
 //     h = min(hmax, h0 + α·distance to the nearest edge or face) — geometric
 //     grading toward every singular line, coarse where the field is quiet —
-//     and nodes are placed at equal steps of ∫dx/h (grading.go). The level
+//     and nodes are placed at equal steps of ∫dx/h (grade.go). The level
 //     parameter L scales the element counts; the floor h0 shrinks as 1/L, so
 //     the elements touching an edge shrink as 1/L² and the corner errors fall
 //     as fast as the bulk error (without that the observed order was 1.6, not
@@ -83,11 +83,19 @@
 //     successive extrapolations with a check of the observed order (see
 //     [Solve]). The accuracy setting picks L; if the estimate misses the
 //     target, L rises by √2 (at most five steps, then a [ConvergenceError]).
-//   - Nodes are numbered column by column along the short direction, and the
-//     system is factored by banded Cholesky (LAPACK dpbtrf through gonum's
-//     lapack64), with a fused two-right-hand-side band solve: at 2,000 to
-//     20,000 unknowns and a half bandwidth of 40 to 140 a direct solve takes
-//     milliseconds, has no iteration count to tune, and its residual
+//   - The system is factored by a nested-dissection multifrontal Cholesky
+//     (nd.go): the structured grid is cut recursively by node lines along its
+//     longer side (George 1973), and each cut is eliminated as a dense front
+//     (gonum Potrf, Trsm, Syrk) once its two halves are done (Duff & Reid
+//     1983), with a fused two-right-hand-side solve. On the 0.05 % fine mesh
+//     (14,900 unknowns) that is 2.0e7 multiply-adds per factorisation against
+//     8.2e7 for the band Cholesky of the column-by-column numbering (half
+//     bandwidth 105, LAPACK dpbtrf through gonum's lapack64, which the first
+//     version used and TestNestedDissectionMatchesBand still checks against:
+//     potentials agree to 1e−13); the sweep takes a third of the CPU time it
+//     took with the band solver. The dissection depends only on the mesh plan
+//     and is built once per plan. At 2,000 to 20,000 unknowns a direct solve
+//     takes milliseconds, has no iteration count to tune, and its residual
 //     (‖K·u − b‖/‖b‖ ≈ 1e−15, checked on every solve; above 1e−8 the solve
 //     fails with a [ConvergenceError]) makes a non-converged linear solve
 //     impossible rather than merely detected. A preconditioned CG warm-started
@@ -95,7 +103,7 @@
 //     whatever the starting vector, so the warm start has nothing to save, and
 //     CG on these graded meshes (element size ratios of 10⁵) would need a
 //     strong preconditioner to compete. The sweep runs offsets in parallel on
-//     all cores instead.
+//     all cores instead, the offsets that solve two topologies first.
 //
 // Finite differences on such a graded, sloped grid lose the symmetry and the
 // variational error bound; a boundary-element method handles the open
@@ -103,7 +111,7 @@
 // for five dielectrics; an adaptive solver (DESIGN.md: about 5,000 unknowns
 // and 0.3 s per solve to reach 0.05 %) spends its time discovering the
 // corners. Here the benchmark section reaches an extrapolated error of about
-// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 30 to 50 ms per
+// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 18 to 31 ms per
 // offset (both media, all three levels).
 //
 // # Convergence study
@@ -113,21 +121,22 @@
 // ground; traces 14 mil, 0.6 mil etch) at zero offset, against a solve at
 // accuracy 2e−5 (282,392 unknowns, estimated error 2e−7). Single meshes, then
 // Richardson triples; errors relative (C12 relative to itself). Times on the
-// shared 2-core machine under load, from TestConvergenceStudy (go test -v
-// -run ConvergenceStudy):
+// shared 2-core machine (load about 1; the first solve of each level includes
+// building its dissection; "band" is the half bandwidth of the column-by-column
+// numbering), from TestConvergenceStudy (go test -v -run ConvergenceStudy):
 //
 //	level  unknowns  band     C11 pF/m    err C11    err C12  err C0_11        est  ms
-//	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02              0.4
-//	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02              0.9
-//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              2.2
-//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03             10.9
-//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             38.1
-//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03            121.2
+//	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02              0.7
+//	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02              1.4
+//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              3.3
+//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03              8.5
+//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             18.0
+//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03             43.9
 //	Richardson triples (L/√2, L, 2L), extrapolated from L and 2L (unknowns of 2L):
-//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   9.7
-//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  33.3
-//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04 106.4
-//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 490.8
+//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   7.9
+//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  16.7
+//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04  51.0
+//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 152.9
 //
 // (Zero offset lies in a transition window: each level is the weighted mean
 // of two topologies, and the time covers both.) Single meshes converge as
@@ -172,19 +181,25 @@
 //
 // # Speed
 //
-// go test -bench . ./panel/section/ on the shared 2-core machine (others'
-// jobs running, load 2 to 6; CPU time is the load-independent figure):
+// go test -run XXX -bench Sweep21 -benchtime 3x ./panel/section/ on the
+// shared 2-core machine at load about 1 (three runs of 3 sweeps each; CPU
+// time is the load-independent figure):
 //
-//	BenchmarkSweep21/acc=0.1%    0.31 s wall, 0.60 s CPU per 21-offset sweep (6,787 unknowns)
-//	BenchmarkSweep21/acc=0.05%   1.2 s wall, 2.4 s CPU (14,910 unknowns)
-//	BenchmarkSolve/offset=0      50 ms per offset (two topologies), 5.6 MB, 3,100 allocations
-//	BenchmarkSolve/offset=2mil   29 ms per offset, 6.0 MB, 1,550 allocations
+//	BenchmarkSweep21/acc=0.1%    0.16 to 0.17 s wall, 0.32 s CPU per 21-offset sweep (6,787 unknowns)
+//	BenchmarkSweep21/acc=0.05%   0.40 to 0.41 s wall, 0.78 to 0.81 s CPU (14,910 unknowns)
+//
+// With the band Cholesky they were 0.30 s wall, 0.60 s CPU and 1.35 s wall,
+// 2.45 s CPU. go test -bench . ./panel/section/:
+//
+//	BenchmarkSolve/offset=0      31 ms per offset (two topologies), 9.9 MB, 13,400 allocations
+//	BenchmarkSolve/offset=2mil   18 ms per offset, 6.5 MB, 8,200 allocations
 //	BenchmarkCoupling            13 to 25 ns per call, 0 allocations
 //
-// Peak resident memory of the whole benchmark run: 58 MB. The 0.05 % sweep
-// misses the 1 s target by about 2×: the true error is already about 1e−4 at
-// the default level, but the error estimate, which decides the level, is
-// conservative by a factor of several there.
+// (A single Solve builds the dissections of its meshes; a sweep builds them
+// once for all offsets.) Peak resident memory of the whole benchmark run:
+// 71 MB. The 0.05 % sweep now meets its 1 s target with the unchanged error
+// estimate, which is still conservative by a factor of several there (the
+// true error is about 1e−4 at the default level).
 //
 // BUG(section): the error estimate is not a bound (see above). The microstrip
 // box is grounded, not an exact open boundary (error about 1e−4). Losses,

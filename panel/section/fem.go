@@ -12,9 +12,10 @@ import (
 // is the square of the energy-norm error of the potential (second order in h
 // for Q1 on a mesh graded to the singularities).
 //
-// The system is solved by a banded Cholesky factorisation (LAPACK dpbtrf /
-// dpbtrs through gonum's lapack64). Nodes are numbered column by column along
-// the short (vertical) direction, so the half bandwidth is about ny+1.
+// The system is solved by a nested-dissection multifrontal Cholesky (nd.go).
+// Nodes are numbered column by column along the short (vertical) direction;
+// kb, the half bandwidth of that numbering (about ny+1), is reported but no
+// longer shapes the solve.
 
 // femWork holds the buffers of one solve; a worker reuses it across offsets.
 type femWork struct {
@@ -23,8 +24,7 @@ type femWork struct {
 	ke     []float64     // 16 entries per element, geometric stiffness ∫∇Na·∇Nb
 	idx    []int32       // free-node number or -1
 	nfree  int
-	kb     int       // half bandwidth
-	band   []float64 // upper band, row-major, kb+1 per row
+	kb     int       // half bandwidth of the column-by-column numbering
 	rhs    []float64 // nfree × 2, row-major
 	nd     ndFactor
 	phi    [2][]float64
@@ -60,8 +60,9 @@ func stiffness(k []float64, x, y [4]float64) error {
 
 // Closed-form Q1 stiffness of an a × b rectangle, corners counter-clockwise
 // from the lower left: (b/6a)·kx + (a/6b)·ky, the x- and y-derivative parts
-// (Zienkiewicz & Taylor, The Finite Element Method, vol. 1, 5th ed., 2000,
-// §8.5; 2 × 2 Gauss quadrature is exact here and gives the same matrix).
+// (the standard bilinear rectangle, as in Zienkiewicz & Taylor, The Finite
+// Element Method, vol. 1, 5th ed., 2000, from memory; TestRectStiffness
+// checks it against the 2 × 2 Gauss quadrature, which is exact here).
 var (
 	rectKx = [16]float64{2, -2, -1, 1, -2, 2, 1, -1, -1, 1, 2, -2, 1, -1, -2, 2}
 	rectKy = [16]float64{2, 1, -1, -2, 1, 2, -2, -1, -1, -2, 2, 1, -2, -1, 1, 2}

@@ -18,7 +18,7 @@ import (
 // dissection tree owns a dense front over the nodes it eliminates (its
 // separator, or the whole rectangle at a leaf) and the ring of nodes just
 // outside its rectangle, which lie on ancestor separators. On the fine meshes
-// here (15,000 unknowns, half bandwidth 105) it does about a third of the
+// here (15,000 unknowns, half bandwidth 105) it does about a quarter of the
 // arithmetic of the band factorisation, in dense blocks (gonum Potrf, Trsm,
 // Syrk). The dissection depends only on the mesh plan (free and fixed nodes),
 // so it is built once per plan and reused for C and C0 and for every offset.

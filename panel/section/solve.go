@@ -51,7 +51,7 @@ type Convergence struct {
 	Unknowns            int           // of the fine mesh
 	Iterations          int           // refinement steps taken (1 = the first level sufficed)
 	Residual            float64       // largest ‖K u − b‖/‖b‖ of the direct solves
-	BandWidth           int           // half bandwidth of the fine system
+	BandWidth           int           // half bandwidth of the fine system in column-by-column numbering
 	Target              float64       // the accuracy asked for
 }
 
