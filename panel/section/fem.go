@@ -214,7 +214,7 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 		}
 	}
 	sym := m.p.dissection(m, w.idx, n)
-	if !w.nd.factor(sym, w.ke, epsOf, n) {
+	if !w.nd.factor(sym, w.ke, epsOf, vacuum) {
 		return c, 0, errNotPD(n)
 	}
 	bnorm := [2]float64{}

@@ -2,6 +2,7 @@ package section
 
 import (
 	"fmt"
+	"math"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
@@ -43,6 +44,16 @@ type ndSymbolic struct {
 	size   int // length of the stored rows, Σ p·m
 	maxM   int // largest front
 	stack  int // largest total size of the update matrices waiting for their parent
+
+	// Subtrees whose elements all have one permittivity ε: with dielectrics
+	// their fronts are ε times the vacuum ones, so U = √ε·U0 and the update
+	// matrix is ε times the vacuum one. uni[k] is that ε, 0 for a subtree
+	// without elements (its update is zero), −1 for a mixed one; a uniform
+	// front whose parent is mixed keeps its vacuum update at saved[k] (−1
+	// otherwise).
+	uni       []float64
+	saved     []int
+	savedSize int
 }
 
 // newNDSymbolic dissects the grid of m (its free nodes numbered by idx).
@@ -120,6 +131,45 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 			}
 		}
 	}
+	sym.uni = make([]float64, len(sym.fronts))
+	sym.saved = make([]int, len(sym.fronts))
+	mixed := make([]bool, len(sym.fronts))
+	for k, f := range sym.fronts { // post order: children first
+		u := 0.0
+		merge := func(v float64, mix bool) {
+			switch {
+			case mix:
+				mixed[k] = true
+			case v == 0:
+			case u == 0:
+				u = v
+			case u != v:
+				mixed[k] = true
+			}
+		}
+		for _, c := range f.kids {
+			merge(sym.uni[c], mixed[c])
+		}
+		for _, e := range f.elems {
+			merge(m.er[e], false)
+		}
+		sym.uni[k] = u
+		if mixed[k] {
+			sym.uni[k] = -1
+		}
+	}
+	for k := range sym.fronts {
+		sym.saved[k] = -1
+	}
+	for k, f := range sym.fronts {
+		for _, c := range f.kids {
+			if sym.uni[c] >= 0 && sym.uni[k] < 0 {
+				b := len(sym.fronts[c].vars) - sym.fronts[c].p
+				sym.saved[c] = sym.savedSize
+				sym.savedSize += b * b
+			}
+		}
+	}
 	local := make([]int32, nfree)
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
@@ -168,23 +218,50 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 // the update matrices wait on a stack, so the working set stays small.
 type ndFactor struct {
 	sym   *ndSymbolic
-	rows  []float64 // per front, its p rows of U, m wide (the upper part is used)
-	work  []float64 // the current front, m×m, upper triangle
-	stack []float64 // update matrices waiting for their parent, b×b each
+	rows  []float64   // per front, its p rows of U, m wide (the upper part is used)
+	work  []float64   // the current front, m×m, upper triangle
+	stack []float64   // update matrices waiting for their parent, b×b each
+	saved []float64   // vacuum updates of the uniform subtrees (ndSymbolic.saved)
+	vacOf *ndSymbolic // rows hold the vacuum factorisation of this dissection
 	y     []float64
 }
 
-// factor assembles s·ke per element (s from eps) and factors. It reports
-// false if the matrix is not positive definite.
-func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float64, nfree int) bool {
+// factor assembles s·ke per element (s from eps, 1 everywhere when vacuum)
+// and factors. Right after the vacuum factorisation of the same dissection,
+// the fronts of uniform subtrees are scaled from it rather than recomputed.
+// It reports false if the matrix is not positive definite.
+func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float64, vacuum bool) bool {
+	reuse := !vacuum && nf.vacOf == sym
+	nf.vacOf = nil
 	nf.sym = sym
 	nf.rows = resize(nf.rows, sym.size)
 	nf.work = resize(nf.work, sym.maxM*sym.maxM)
 	nf.stack = resize(nf.stack, sym.stack)
+	if vacuum {
+		nf.saved = resize(nf.saved, sym.savedSize)
+	}
 	top := 0 // stack length
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
 		m := len(f.vars)
+		p, b := f.p, m-f.p
+		if e := sym.uni[k]; reuse && e >= 0 {
+			se := math.Sqrt(e)
+			rows := nf.rows[f.off : f.off+p*m]
+			for r := range p {
+				for c := r; c < m; c++ {
+					rows[r*m+c] *= se
+				}
+			}
+			if o := sym.saved[k]; o >= 0 { // the subtree's update, for a mixed parent
+				U := nf.stack[top : top+b*b]
+				for i, v := range nf.saved[o : o+b*b] {
+					U[i] = e * v
+				}
+				top += b * b
+			}
+			continue
+		}
 		F := nf.work[:m*m]
 		for r := range m { // the upper triangle only: the lower one is never read
 			clear(F[r*m+r : r*m+m])
@@ -238,7 +315,6 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 			}
 		}
 		top = base
-		p, b := f.p, m-f.p
 		if p > 0 {
 			if _, ok := lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Data: F, Stride: m}); !ok {
 				return false
@@ -259,7 +335,13 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 		for r := range b {
 			copy(U[r*b+r:r*b+b], F[(p+r)*m+p+r:(p+r)*m+m])
 		}
+		if o := sym.saved[k]; vacuum && o >= 0 {
+			copy(nf.saved[o:o+b*b], U)
+		}
 		top += b * b
+	}
+	if vacuum {
+		nf.vacOf = sym
 	}
 	return true
 }

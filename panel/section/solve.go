@@ -367,10 +367,11 @@ func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, 
 	r := levelResult{MeshLevel: MeshLevel{Level: p.level, Unknowns: w.nfree}}
 	var err error
 	var r1, r2 float64
-	if r.C, r1, err = w.capacitance(false); err != nil {
+	// Vacuum first: the dielectric factorisation reuses its uniform parts (nd.go).
+	if r.C0, r2, err = w.capacitance(true); err != nil {
 		return r, err
 	}
-	if r.C0, r2, err = w.capacitance(true); err != nil {
+	if r.C, r1, err = w.capacitance(false); err != nil {
 		return r, err
 	}
 	r.resid = math.Max(r1, r2)
