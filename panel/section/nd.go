@@ -6,6 +6,7 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/blas/gonum"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -347,10 +348,12 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 }
 
 // solve2 solves K·x = rhs in place for the two right-hand sides interleaved
-// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into a
-// contiguous buffer, works on it, and scatters back.
+// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into two
+// contiguous vectors and works on them row by row of U (gonum's assembly
+// axpy and dot), then scatters back.
 func (nf *ndFactor) solve2(rhs []float64) {
 	sym := nf.sym
+	var impl gonum.Implementation
 	// Forward: Uᵀ·y = b, fronts in post order.
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
@@ -359,18 +362,17 @@ func (nf *ndFactor) solve2(rhs []float64) {
 			continue
 		}
 		F := nf.rows[f.off : f.off+p*m]
-		y := nf.gather(f.vars, rhs)
+		y0, y1 := nf.gather(f.vars, rhs)
 		for i := range p {
-			row := F[i*m : i*m+m]
-			y0, y1 := y[2*i]/row[i], y[2*i+1]/row[i]
-			y[2*i], y[2*i+1] = y0, y1
-			yy := y[2*(i+1) : 2*m]
-			for c, v := range row[i+1 : m] {
-				yy[2*c] -= v * y0
-				yy[2*c+1] -= v * y1
+			row := F[i*m+i : i*m+m]
+			y0[i] /= row[0]
+			y1[i] /= row[0]
+			if n := m - i - 1; n > 0 {
+				impl.Daxpy(n, -y0[i], row[1:], 1, y0[i+1:], 1)
+				impl.Daxpy(n, -y1[i], row[1:], 1, y1[i+1:], 1)
 			}
 		}
-		nf.scatter(f.vars, rhs, y)
+		nf.scatter(f.vars, rhs)
 	}
 	// Backward: U·x = y, fronts in reverse post order.
 	for k := len(sym.fronts) - 1; k >= 0; k-- {
@@ -380,32 +382,37 @@ func (nf *ndFactor) solve2(rhs []float64) {
 			continue
 		}
 		F := nf.rows[f.off : f.off+p*m]
-		y := nf.gather(f.vars, rhs)
+		y0, y1 := nf.gather(f.vars, rhs)
 		for i := p - 1; i >= 0; i-- {
-			row := F[i*m : i*m+m]
-			x0, x1 := y[2*i], y[2*i+1]
-			yy := y[2*(i+1) : 2*m]
-			for c, v := range row[i+1 : m] {
-				x0 -= v * yy[2*c]
-				x1 -= v * yy[2*c+1]
+			row := F[i*m+i : i*m+m]
+			if n := m - i - 1; n > 0 {
+				y0[i] -= impl.Ddot(n, row[1:], 1, y0[i+1:], 1)
+				y1[i] -= impl.Ddot(n, row[1:], 1, y1[i+1:], 1)
 			}
-			y[2*i], y[2*i+1] = x0/row[i], x1/row[i]
+			y0[i] /= row[0]
+			y1[i] /= row[0]
 		}
-		nf.scatter(f.vars[:p], rhs, y)
+		nf.scatter(f.vars[:p], rhs)
 	}
 }
 
-func (nf *ndFactor) gather(vars []int32, rhs []float64) []float64 {
-	nf.y = resize(nf.y, 2*len(vars))
+// gather copies the two right-hand sides of vars into nf.y, as two vectors.
+func (nf *ndFactor) gather(vars []int32, rhs []float64) (y0, y1 []float64) {
+	n := len(vars)
+	nf.y = resize(nf.y, 2*n)
+	y0, y1 = nf.y[:n], nf.y[n:2*n]
 	for i, q := range vars {
-		nf.y[2*i], nf.y[2*i+1] = rhs[2*q], rhs[2*q+1]
+		y0[i], y1[i] = rhs[2*q], rhs[2*q+1]
 	}
-	return nf.y
+	return y0, y1
 }
 
-func (nf *ndFactor) scatter(vars []int32, rhs, y []float64) {
+// scatter copies the first len(vars) entries of the two vectors in nf.y back.
+func (nf *ndFactor) scatter(vars []int32, rhs []float64) {
+	n := len(nf.y) / 2
+	y0, y1 := nf.y[:n], nf.y[n:]
 	for i, q := range vars {
-		rhs[2*q], rhs[2*q+1] = y[2*i], y[2*i+1]
+		rhs[2*q], rhs[2*q+1] = y0[i], y1[i]
 	}
 }
 
