@@ -96,8 +96,9 @@
 //     one dielectric, its fronts with dielectrics are εr times the vacuum
 //     ones, so the vacuum system is factored first and those parts are
 //     scaled (U = √εr·U0), not refactored: 46 % of the fine-mesh arithmetic
-//     of C on the demo section. The sweep takes 29 % of the CPU time it took
-//     with the band solver. The dissection depends only on the mesh plan and
+//     of C on the demo section. The front solves run row by row on gonum's
+//     assembly axpy and dot. The sweep takes a quarter of the CPU time it
+//     took with the band solver. The dissection depends only on the mesh plan and
 //     is built once per plan. At 2,000 to 20,000 unknowns a direct solve
 //     takes milliseconds, has no iteration count to tune, and its residual
 //     (‖K·u − b‖/‖b‖ ≈ 1e−15, checked on every solve; above 1e−8 the solve
@@ -115,7 +116,7 @@
 // for five dielectrics; an adaptive solver (DESIGN.md: about 5,000 unknowns
 // and 0.3 s per solve to reach 0.05 %) spends its time discovering the
 // corners. Here the benchmark section reaches an extrapolated error of about
-// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 15 to 31 ms per
+// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 12 to 24 ms per
 // offset (both media, all three levels).
 //
 // # Convergence study
@@ -132,15 +133,15 @@
 //	level  unknowns  band     C11 pF/m    err C11    err C12  err C0_11        est  ms
 //	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02              0.7
 //	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02              1.2
-//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              2.8
-//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03              7.8
-//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             18.5
-//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03             37.7
+//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              2.4
+//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03              7.4
+//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             16.7
+//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03             34.7
 //	Richardson triples (L/√2, L, 2L), extrapolated from L and 2L (unknowns of 2L):
-//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   6.3
-//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  13.9
-//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04  37.7
-//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 126.5
+//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   5.9
+//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  13.4
+//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04  34.3
+//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 116.3
 //
 // (Zero offset lies in a transition window: each level is the weighted mean
 // of two topologies, and the time covers both.) Single meshes converge as
@@ -189,19 +190,19 @@
 // shared 2-core machine at load about 1 (three runs of 3 sweeps each; CPU
 // time is the load-independent figure):
 //
-//	BenchmarkSweep21/acc=0.1%    0.14 to 0.15 s wall, 0.27 to 0.28 s CPU per 21-offset sweep (6,787 unknowns)
-//	BenchmarkSweep21/acc=0.05%   0.33 to 0.36 s wall, 0.68 to 0.71 s CPU (14,910 unknowns)
+//	BenchmarkSweep21/acc=0.1%    0.12 to 0.13 s wall, 0.23 to 0.25 s CPU per 21-offset sweep (6,787 unknowns)
+//	BenchmarkSweep21/acc=0.05%   0.29 to 0.31 s wall, 0.56 to 0.60 s CPU (14,910 unknowns)
 //
 // With the band Cholesky they were 0.30 s wall, 0.60 s CPU and 1.35 s wall,
 // 2.45 s CPU. go test -bench . ./panel/section/:
 //
-//	BenchmarkSolve/offset=0      31 ms per offset (two topologies), 10 MB, 13,400 allocations
-//	BenchmarkSolve/offset=2mil   15 ms per offset, 7.0 MB, 8,200 allocations
+//	BenchmarkSolve/offset=0      24 ms per offset (two topologies), 10 MB, 13,400 allocations
+//	BenchmarkSolve/offset=2mil   12 ms per offset, 7.0 MB, 8,200 allocations
 //	BenchmarkCoupling            13 to 25 ns per call, 0 allocations
 //
 // (A single Solve builds the dissections of its meshes; a sweep builds them
 // once for all offsets.) Peak resident memory of the whole benchmark run:
-// 68 MB. The 0.05 % sweep now meets its 1 s target with the unchanged error
+// 53 to 71 MB (it depends on when the collector runs). The 0.05 % sweep now meets its 1 s target with the unchanged error
 // estimate, which is still conservative by a factor of several there (the
 // true error is about 1e−4 at the default level).
 //
