@@ -237,6 +237,13 @@ func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *sweepJSON,
 			fmt.Fprintf(w, " %+.3f", x/lu.factor)
 		}
 		fmt.Fprintf(w, " %s\n", lu.name)
+		step := 0.0
+		for k := 1; k < len(c.Points); k++ {
+			step = math.Max(step, c.Points[k].Offset-c.Points[k-1].Offset)
+		}
+		if step > 1.01*unit.Mil {
+			fmt.Fprintf(w, "note: crossings are interpolated between solved offsets up to %.3g %s apart; 'regdrift tol' finds them by direct solves\n", step/lu.factor, lu.name)
+		}
 	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
