@@ -503,18 +503,29 @@ func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, path
 func (cs *compState) draw(w io.Writer, s *compSummary, width int, lu lengthUnit) error {
 	j := cs.job
 	aB, aA := newAnalysis(cs.job), newAnalysis(cs.after)
-	sec, u := aB.dominant()
+	zones := aB.zones()
+	global := zones[len(zones)-1]
+	sec, u := global.sec, global.u
 	outline := j.Layout.Panel.Outline()
 	ext := toRect(outline)
 	ur := toRect(j.Layout.Panel.Usable())
 	nx := max(width/12, 40)
 	ny := max(int(float64(nx)*ur.Dy()/ur.Dx()), 40)
-	field := func(rel *registration.Relative) func(x, y float64) float64 {
+	field := func(a *analysis) func(x, y float64) float64 {
 		return func(x, y float64) float64 {
-			return rel.Stats(rel.Row(panel.Vec{X: x, Y: y}, u)).MeanAcross / lu.factor
+			p := panel.Vec{X: x, Y: y}
+			z := &global
+			for k := range zones {
+				if zones[k].r.Contains(p) {
+					z = &zones[k]
+					break
+				}
+			}
+			rel := a.rel[z.sec]
+			return rel.Stats(rel.Row(p, z.u)).MeanAcross / lu.factor
 		}
 	}
-	grids := []*render.Grid{render.NewGrid(ur, nx, ny, field(aB.rel[sec])), render.NewGrid(ur, nx, ny, field(aA.rel[sec]))}
+	grids := []*render.Grid{render.NewGrid(ur, nx, ny, field(aB)), render.NewGrid(ur, nx, ny, field(aA))}
 	var lim float64
 	for _, g := range grids {
 		lo, hi := g.Range()
@@ -539,7 +550,7 @@ func (cs *compState) draw(w io.Writer, s *compSummary, width int, lu lengthUnit)
 	title := []string{
 		j.Title,
 		fmt.Sprintf("artwork scale compensation (%s objective): %s", s.Objective, strings.Join(comp, "; ")),
-		fmt.Sprintf("field: section %s, lines at %.0f deg; bars: each site along its lines; common part: %s",
+		fmt.Sprintf("field: over each array its most common coupler (elsewhere %s, lines at %.0f deg); bars: each site; common part: %s",
 			j.Sections[sec].Name, math.Atan2(u.Y, u.X)*180/math.Pi, strings.SplitN(s.Common, ":", 2)[0]),
 	}
 	caption := func(name string, v compStateJSON) string {

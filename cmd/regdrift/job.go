@@ -49,6 +49,25 @@ func (j *Job) Section(name string) *section.Section {
 	return nil
 }
 
+// arrayExtents returns, per array of the layout, the rectangle its parts cover.
+func (j *Job) arrayExtents() []panel.Rect {
+	ext := make([]panel.Rect, len(j.Layout.Arrays))
+	seen := make([]bool, len(ext))
+	for _, in := range j.Instances {
+		if in.Array < 0 {
+			continue
+		}
+		b, e := in.Bounds, &ext[in.Array]
+		if !seen[in.Array] {
+			*e, seen[in.Array] = b, true
+			continue
+		}
+		e.Min = panel.Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
+		e.Max = panel.Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
+	}
+	return ext
+}
+
 // ParseError is bad input at a place in a file.
 type ParseError struct {
 	File string // "<stdin>" when read from "-"

@@ -286,21 +286,27 @@ func (a *analysis) printTable(w io.Writer, s *mapSummary, lu lengthUnit, paths [
 	}
 }
 
-// dominant returns the most common (section, line direction) among the sites;
-// directions that differ by a half turn count as one, since the across offset
-// only changes sign.
-func (a *analysis) dominant() (sec int, u panel.Vec) {
+// dominant returns the most common (section, line direction) among the sites
+// that keep accepts (all sites when keep is nil). Directions a half turn apart
+// are told apart: the across offset changes sign between them.
+func (a *analysis) dominant(keep func(*siteResult) bool) (sec int, u panel.Vec, ok bool) {
 	type key struct{ sec, deg int }
 	count := map[key]int{}
 	first := map[key]panel.Vec{}
 	for i := range a.sites {
 		r := &a.sites[i]
+		if keep != nil && !keep(r) {
+			continue
+		}
 		d := int(math.Round(r.Site.Angle*180/math.Pi)) % 360
 		k := key{r.Section, d}
 		count[k]++
 		if _, ok := first[k]; !ok {
 			first[k] = r.Site.U
 		}
+	}
+	if len(count) == 0 {
+		return 0, panel.Vec{}, false
 	}
 	var keys []key
 	for k := range count {
@@ -315,7 +321,28 @@ func (a *analysis) dominant() (sec int, u panel.Vec) {
 		}
 		return keys[p].deg < keys[q].deg
 	})
-	return keys[0].sec, first[keys[0]]
+	return keys[0].sec, first[keys[0]], true
+}
+
+// mapZone is a region of the map whose field is drawn for one section and
+// line direction: an array's extent and its most common coupler, or the whole
+// panel and the most common coupler of the job.
+type mapZone struct {
+	r   panel.Rect
+	sec int
+	u   panel.Vec
+}
+
+// zones returns one zone per array, then the whole usable area.
+func (a *analysis) zones() []mapZone {
+	var zs []mapZone
+	for ai, ext := range a.job.arrayExtents() {
+		if sec, u, ok := a.dominant(func(r *siteResult) bool { return r.Site.Array == ai }); ok {
+			zs = append(zs, mapZone{ext, sec, u})
+		}
+	}
+	sec, u, _ := a.dominant(nil)
+	return append(zs, mapZone{a.job.Layout.Panel.Usable(), sec, u})
 }
 
 // shown returns the value drawn for a site.
@@ -371,14 +398,19 @@ func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int,
 	j := a.job
 	outline := j.Layout.Panel.Outline()
 	ext := render.Rect{Min: render.Point{X: outline.Min.X, Y: outline.Min.Y}, Max: render.Point{X: outline.Max.X, Y: outline.Max.Y}}
-	sec, u := a.dominant()
-	s := j.Sections[sec]
-	c := a.curves[sec]
-	rel := a.rel[sec]
-	nom := s.NominalOffset()
+	zones := a.zones()
 	field := func(x, y float64) float64 {
-		st := rel.Stats(rel.Row(panel.Vec{X: x, Y: y}, u))
-		off := nom + st.MeanAcross
+		p := panel.Vec{X: x, Y: y}
+		z := &zones[len(zones)-1]
+		for k := range zones {
+			if zones[k].r.Contains(p) {
+				z = &zones[k]
+				break
+			}
+		}
+		s, c, rel := j.Sections[z.sec], a.curves[z.sec], a.rel[z.sec]
+		st := rel.Stats(rel.Row(p, z.u))
+		off := s.NominalOffset() + st.MeanAcross
 		switch show {
 		case "offset":
 			return off / lu.factor
@@ -387,10 +419,14 @@ func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int,
 		case "margin":
 			return specMargin(s.Spec, c.Coupling(off))
 		case "worst":
-			return worstDrift(c, a.nominal[sec], off, st.SDAcross)
+			return worstDrift(c, a.nominal[z.sec], off, st.SDAcross)
 		}
-		return c.Coupling(off) - a.nominal[sec]
+		return c.Coupling(off) - a.nominal[z.sec]
 	}
+	global := zones[len(zones)-1]
+	sec, u := global.sec, global.u
+	s := j.Sections[sec]
+	nom := s.NominalOffset()
 	usable := j.Layout.Panel.Usable()
 	ur := render.Rect{Min: render.Point{X: usable.Min.X, Y: usable.Min.Y}, Max: render.Point{X: usable.Max.X, Y: usable.Max.Y}}
 	nx := max(width/6, 40)
@@ -426,7 +462,7 @@ func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int,
 			s.Name, s.Spec.Coupling, s.Spec.Tolerance, s.Frequency/1e9, nom/lu.factor, lu.name, a.nominal[sec]),
 		fmt.Sprintf("%d of %d sites in spec; worst %s: offset %+.2f %s, drift %+.3f dB, margin %.3f dB",
 			sum.InSpec, sum.Sites, ws.Name, ws.OffsetM/lu.factor, lu.name, ws.DriftDB, ws.MarginDB),
-		fmt.Sprintf("field: lines at %.0f deg (%s); bars: each site along its lines; rings: the ten worst sites",
+		fmt.Sprintf("field: over each array its most common coupler's line direction (elsewhere lines at %.0f deg, %s); bars: each site along its lines; rings: the ten worst sites",
 			math.Atan2(u.Y, u.X)*180/math.Pi, s.Name),
 	}
 	ru := render.Inch

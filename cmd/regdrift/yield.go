@@ -640,16 +640,13 @@ func (ys *yieldSetup) zones() []fieldZone {
 		deg int
 	}
 	var out []fieldZone
-	for ai := range j.Layout.Arrays {
-		z := fieldZone{r: panel.Rect{Min: panel.Vec{X: math.Inf(1), Y: math.Inf(1)}, Max: panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}}}
+	for ai, ext := range j.arrayExtents() {
+		z := fieldZone{r: ext}
 		seen := map[key]bool{}
 		for i, st := range j.Sites {
 			if st.Array != ai {
 				continue
 			}
-			b := j.Instances[st.Instance].Bounds
-			z.r.Min.X, z.r.Min.Y = math.Min(z.r.Min.X, b.Min.X), math.Min(z.r.Min.Y, b.Min.Y)
-			z.r.Max.X, z.r.Max.Y = math.Max(z.r.Max.X, b.Max.X), math.Max(z.r.Max.Y, b.Max.Y)
 			k := key{st.Section, int(math.Round(st.Angle*180/math.Pi)) % 180}
 			if !seen[k] {
 				seen[k] = true
