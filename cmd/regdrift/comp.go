@@ -340,12 +340,8 @@ func runComp(ctx context.Context, std stdio, opts any, args []string) error {
 	for _, n := range cs.notes {
 		fmt.Fprintf(std.err, "regdrift comp: %s\n", n)
 	}
-	if f.json {
-		if err := writeJSON(std.out, sum); err != nil {
-			return err
-		}
-	} else {
-		cs.printTable(std.out, sum, lu, paths)
+	if err := report(std, f.json, sum, func() { cs.printTable(std.out, sum, lu, paths) }); err != nil {
+		return err
 	}
 	if f.strict && sum.After.InSpec < sum.After.Sites {
 		return fmt.Errorf("%w: %d of %d sites outside the coupling spec after compensation", errOutOfSpec, sum.After.Sites-sum.After.InSpec, sum.After.Sites)

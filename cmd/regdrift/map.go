@@ -85,12 +85,8 @@ func runMap(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	if f.json {
-		if err := writeJSON(std.out, sum); err != nil {
-			return err
-		}
-	} else {
-		a.printTable(std.out, sum, lu, paths)
+	if err := report(std, f.json, sum, func() { a.printTable(std.out, sum, lu, paths) }); err != nil {
+		return err
 	}
 	if f.strict && sum.InSpec < sum.Sites {
 		return fmt.Errorf("%w: %d of %d sites outside the coupling spec", errOutOfSpec, sum.Sites-sum.InSpec, sum.Sites)

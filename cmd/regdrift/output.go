@@ -103,3 +103,13 @@ func writeAll(dir string, files ...outFile) ([]string, error) {
 	}
 	return o.paths(), nil
 }
+
+// report prints a run's summary on stdout: v as JSON when asJSON is set,
+// otherwise the table that table prints.
+func report(std stdio, asJSON bool, v any, table func()) error {
+	if asJSON {
+		return writeJSON(std.out, v)
+	}
+	table()
+	return nil
+}

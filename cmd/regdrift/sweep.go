@@ -127,11 +127,7 @@ func runSweep(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	if f.json {
-		return writeJSON(std.out, res)
-	}
-	printSweep(std.out, s, c, res, lu, paths)
-	return nil
+	return report(std, f.json, res, func() { printSweep(std.out, s, c, res, lu, paths) })
 }
 
 // sweepJSON is the sweep --json object: the solver's report of the curve

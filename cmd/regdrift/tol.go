@@ -234,12 +234,8 @@ func runTol(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	if f.json {
-		if err := writeJSON(std.out, res); err != nil {
-			return err
-		}
-	} else {
-		printTol(std.out, j, res, lu, paths)
+	if err := report(std, f.json, res, func() { printTol(std.out, j, res, lu, paths) }); err != nil {
+		return err
 	}
 	if f.strict && len(res.Warnings) > 0 {
 		return fmt.Errorf("%w: %s", errOutOfSpec, res.Warnings[0])

@@ -305,12 +305,8 @@ func runYield(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	if f.json {
-		if err := writeJSON(std.out, sum); err != nil {
-			return err
-		}
-	} else {
-		ys.printTable(std.out, sum, lu, paths)
+	if err := report(std, f.json, sum, func() { ys.printTable(std.out, sum, lu, paths) }); err != nil {
+		return err
 	}
 	if f.strict && sum.PartYieldMean < 1 {
 		return fmt.Errorf("%w: expected part yield %.4f %%", errOutOfSpec, 100*sum.PartYieldMean)
