@@ -26,7 +26,7 @@ type demoFlags struct {
 // Jobs of one design share the colour scale of their maps.
 var demoJobs = []struct{ file, what, targets, design string }{
 	{"same-core.toml", "3 dB hybrids, traces on the two faces of one core", "", "hybrid"},
-	{"two-core.toml", "the same hybrids, traces on two cores (more drift toward the corners)", "twocore-targets.csv", "hybrid"},
+	{"two-core.toml", "the same hybrids, traces on two cores (more drift toward the panel edges)", "twocore-targets.csv", "hybrid"},
 	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg", "", "dc10"},
 }
 
