@@ -59,8 +59,6 @@ func TestRelativeAnalytic(t *testing.T) {
 		// The lower layer enters with the opposite sign.
 		{"lower layer offset", []Contributor{{Layers: []string{"B"}, Terms: [NumTerms]Term{OffsetY: fixed(20 * um)}}},
 			panel.Vec{X: 1}, -20 * um, 0},
-		// FACTS.md item 6: layer A as in TestDisplaceFacts against B at a uniform
-		// 250 ppm, at (304.8, 228.6) mm: relative (13.81, −1.19) µm.
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -75,9 +73,10 @@ func TestRelativeAnalytic(t *testing.T) {
 }
 
 func TestRelativeFacts(t *testing.T) {
-	// FACTS.md item 6 (derived by hand from the model): lines along x see −1.19 µm
-	// across, lines along y 13.81 µm... measured as n·Δd with n = ẑ×u: along y,
-	// n = −x̂, so δ = −13.81 µm; along x, n = ŷ, δ = −1.19 µm.
+	// FACTS.md item 6 (worked by hand from the model): layer A as in
+	// TestDisplaceFacts against B at a uniform 250 ppm moves (13.81, −1.19) µm
+	// at (304.8, 228.6) mm. The across offset is n·Δd with n = ẑ×u: lines along
+	// x (n = ŷ) see −1.19 µm, lines along y (n = −x̂) see −13.81 µm.
 	m := &Model{Contributors: []Contributor{
 		{Layers: []string{"A"}, Terms: [NumTerms]Term{OffsetX: fixed(10 * um), OffsetY: fixed(-5 * um), Rotation: fixed(50e-6), ScaleX: fixed(300e-6), ScaleY: fixed(200e-6)}},
 		{Layers: []string{"B"}, Terms: [NumTerms]Term{ScaleX: fixed(250e-6), ScaleY: fixed(250e-6)}},

@@ -12,6 +12,7 @@ import (
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/render"
 )
 
 // solverFlags are the cross-section solver options every job command takes.
@@ -137,7 +138,7 @@ func (a *analysis) offsets(i int) []float64 {
 
 // analyse evaluates every site of the job; the curves are solved (or read from
 // the cache) over the range the sites need.
-func analyse(ctx context.Context, j *Job, sf *solverFlags, std stdio) (*analysis, error) {
+func analyse(ctx context.Context, j *Job, sf *solverFlags) (*analysis, error) {
 	set, err := sf.settings()
 	if err != nil {
 		return nil, err
@@ -221,4 +222,23 @@ func worstDrift(c *section.Curve, nom, mean, sd float64) float64 {
 		}
 	}
 	return worst
+}
+
+// toRect converts a panel rectangle for drawing.
+func toRect(r panel.Rect) render.Rect {
+	return render.Rect{Min: render.Point{X: r.Min.X, Y: r.Min.Y}, Max: render.Point{X: r.Max.X, Y: r.Max.Y}}
+}
+
+// zone is a region of a panel map drawn for its own couplers.
+type zone interface{ bounds() panel.Rect }
+
+// zoneAt returns the first zone that contains p; the last zone is the
+// default for points in none of them.
+func zoneAt[Z zone](zones []Z, p panel.Vec) *Z {
+	for k := range zones {
+		if zones[k].bounds().Contains(p) {
+			return &zones[k]
+		}
+	}
+	return &zones[len(zones)-1]
 }

@@ -510,13 +510,7 @@ func (cs *compState) draw(w io.Writer, s *compSummary, width int, lu lengthUnit)
 	field := func(a *analysis) func(x, y float64) float64 {
 		return func(x, y float64) float64 {
 			p := panel.Vec{X: x, Y: y}
-			z := &global
-			for k := range zones {
-				if zones[k].r.Contains(p) {
-					z = &zones[k]
-					break
-				}
-			}
+			z := zoneAt(zones, p)
 			rel := a.rel[z.sec]
 			return rel.Stats(rel.Row(p, z.u)).MeanAcross / lu.factor
 		}

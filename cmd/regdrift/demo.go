@@ -89,7 +89,7 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 		if err != nil {
 			return err
 		}
-		if analyses[k], err = analyse(ctx, j, &f.solver, std); err != nil {
+		if analyses[k], err = analyse(ctx, j, &f.solver); err != nil {
 			return err
 		}
 		lo, hi := analyses[k].shownRange("drift", lu)

@@ -32,11 +32,9 @@ type Job struct {
 	Stackup   section.Stackup
 	Sections  []*section.Section // in file order
 	Model     *registration.Model
-	// Contributors' sources, parallel to Model.Contributors, for messages.
-	contribSrc []source
-	// sectionSrc is the source of each section, parallel to Sections.
+	// sectionSrc is the source of each section, parallel to Sections, so that
+	// a solver error can name its file line.
 	sectionSrc []source
-	files      map[string]*tomlFile
 }
 
 // Section returns the section named name, or nil.
@@ -344,7 +342,7 @@ func loadJob(path string, stdin io.Reader) (*Job, error) {
 }
 
 func loadJobData(data []byte, name, dir string) (*Job, error) {
-	j := &Job{File: name, files: map[string]*tomlFile{}}
+	j := &Job{File: name}
 	l := &loader{job: j, seen: map[string]bool{}}
 	if err := l.file(data, name, dir, 0); err != nil {
 		return nil, err
@@ -359,23 +357,22 @@ func loadJobData(data []byte, name, dir string) (*Job, error) {
 // main file's arrays of tables follow theirs; a single table ([panel],
 // [stackup]) may be defined in one file only.
 type loader struct {
-	job          *Job
-	seen         map[string]bool
-	title        string
-	panel        *rawPanel
-	panelSrc     source
-	stackup      *rawStackup
-	stackupSrc   source
-	sections     []rawSection
-	sectionSrc   []source
-	parts        []rawPart
-	partSrc      []source
-	arrays       []rawArray
-	arraySrc     []source
-	contribs     []map[string]any
-	contribSrc   []source
-	placements   []panel.Placement
-	placementSrc []source
+	job        *Job
+	seen       map[string]bool
+	title      string
+	panel      *rawPanel
+	panelSrc   source
+	stackup    *rawStackup
+	stackupSrc source
+	sections   []rawSection
+	sectionSrc []source
+	parts      []rawPart
+	partSrc    []source
+	arrays     []rawArray
+	arraySrc   []source
+	contribs   []map[string]any
+	contribSrc []source
+	placements []panel.Placement
 }
 
 func (l *loader) file(data []byte, name, dir string, depth int) error {
@@ -387,7 +384,6 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 		return err
 	}
 	f.dir = dir
-	l.job.files[name] = f
 	for i, inc := range raw.Include {
 		src := source{f, fmt.Sprintf("include[%d]", i)}
 		p := inc
@@ -406,7 +402,6 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 			return err
 		}
 	}
-	top := source{f, ""}
 	if raw.Title != "" {
 		l.title = raw.Title
 	}
@@ -452,11 +447,7 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 			return err
 		}
 		l.placements = append(l.placements, pl...)
-		for range pl {
-			l.placementSrc = append(l.placementSrc, src)
-		}
 	}
-	_ = top
 	return nil
 }
 
@@ -966,7 +957,6 @@ func (l *loader) buildModel() error {
 			c.Name = fmt.Sprintf("contributor %d", i+1)
 		}
 		m.Contributors = append(m.Contributors, c)
-		j.contribSrc = append(j.contribSrc, src)
 	}
 	if err := m.Validate(); err != nil {
 		var fe *registration.FieldError

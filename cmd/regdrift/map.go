@@ -77,7 +77,7 @@ func runMap(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		return err
 	}
-	a, err := analyse(ctx, j, &f.solver, std)
+	a, err := analyse(ctx, j, &f.solver)
 	if err != nil {
 		return err
 	}
@@ -329,6 +329,8 @@ type mapZone struct {
 	u   panel.Vec
 }
 
+func (z mapZone) bounds() panel.Rect { return z.r }
+
 // zones returns one zone per array, then the whole usable area.
 func (a *analysis) zones() []mapZone {
 	var zs []mapZone
@@ -393,17 +395,11 @@ func scaleFor(lo, hi float64, badLow bool) (*render.Palette, float64, float64) {
 func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int, lu lengthUnit) error {
 	j := a.job
 	outline := j.Layout.Panel.Outline()
-	ext := render.Rect{Min: render.Point{X: outline.Min.X, Y: outline.Min.Y}, Max: render.Point{X: outline.Max.X, Y: outline.Max.Y}}
+	ext := toRect(outline)
 	zones := a.zones()
 	field := func(x, y float64) float64 {
 		p := panel.Vec{X: x, Y: y}
-		z := &zones[len(zones)-1]
-		for k := range zones {
-			if zones[k].r.Contains(p) {
-				z = &zones[k]
-				break
-			}
-		}
+		z := zoneAt(zones, p)
 		s, c, rel := j.Sections[z.sec], a.curves[z.sec], a.rel[z.sec]
 		st := rel.Stats(rel.Row(p, z.u))
 		off := s.NominalOffset() + st.MeanAcross
@@ -424,7 +420,7 @@ func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int,
 	s := j.Sections[sec]
 	nom := s.NominalOffset()
 	usable := j.Layout.Panel.Usable()
-	ur := render.Rect{Min: render.Point{X: usable.Min.X, Y: usable.Min.Y}, Max: render.Point{X: usable.Max.X, Y: usable.Max.Y}}
+	ur := toRect(usable)
 	nx := max(width/6, 40)
 	ny := max(int(float64(nx)*ur.Dy()/ur.Dx()), 40)
 	grid := render.NewGrid(ur, nx, ny, field)
@@ -480,7 +476,7 @@ func (a *analysis) drawMap(w io.Writer, sum *mapSummary, show string, width int,
 		if v.PixelLen(math.Min(sz.X, sz.Y)) < 12 {
 			continue
 		}
-		parts = append(parts, render.Rect{Min: render.Point{X: in.Bounds.Min.X, Y: in.Bounds.Min.Y}, Max: render.Point{X: in.Bounds.Max.X, Y: in.Bounds.Max.Y}})
+		parts = append(parts, toRect(in.Bounds))
 	}
 	v.StrokeRects(parts, render.LineStyle{Color: render.Frame})
 	bars := make([]render.Bar, len(a.sites))

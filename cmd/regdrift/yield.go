@@ -601,10 +601,6 @@ func (ys *yieldSetup) dominantSite(sites []int) int {
 	return best
 }
 
-func toRect(r panel.Rect) render.Rect {
-	return render.Rect{Min: render.Point{X: r.Min.X, Y: r.Min.Y}, Max: render.Point{X: r.Max.X, Y: r.Max.Y}}
-}
-
 // fieldKind is one section and line direction drawn in the yield field.
 type fieldKind struct {
 	sec *section.Section
@@ -619,6 +615,8 @@ type fieldZone struct {
 	r     panel.Rect
 	kinds []fieldKind
 }
+
+func (z fieldZone) bounds() panel.Rect { return z.r }
 
 // zones returns a zone per array over the extent of its parts, holding every
 // distinct (section, line direction) of its couplers (half turns count as
@@ -664,13 +662,7 @@ func (ys *yieldSetup) drawYield(w io.Writer, res *registration.MCResult, sum *yi
 	zones := ys.zones()
 	field := func(x, y float64) float64 {
 		p := panel.Vec{X: x, Y: y}
-		z := &zones[len(zones)-1]
-		for k := range zones {
-			if zones[k].r.Contains(p) {
-				z = &zones[k]
-				break
-			}
-		}
+		z := zoneAt(zones, p)
 		v := 1.0
 		for _, f := range z.kinds {
 			row := f.rel.Row(p, f.u)
