@@ -118,3 +118,23 @@ func worstDrift(c *Curve, mean, sd float64) float64 {
 	}
 	return worst
 }
+
+// Value returns quantity q of the evaluated site (the same value
+// Evaluator.Value computes for a point).
+func (r *Eval) Value(q Quantity) float64 {
+	switch q {
+	case WorstDrift:
+		return r.WorstDrift
+	case Offset:
+		return r.Offset
+	case Sigma:
+		return r.Stats.SDAcross
+	case Margin:
+		return r.Margin
+	case PInSpec:
+		return r.PInSpec
+	case Misregistration:
+		return r.Stats.MeanAcross
+	}
+	return r.Drift
+}
