@@ -2,6 +2,7 @@ package drift
 
 import (
 	"math"
+	"os"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel"
@@ -42,13 +43,22 @@ func pair(name string, off float64, sp section.Spec) *section.Section {
 // testSettings solve at 1 % in a cache private to the test binary.
 func testSettings(t *testing.T) *Settings {
 	t.Helper()
-	if cacheDir == "" {
-		cacheDir = t.TempDir()
-	}
 	return &Settings{Accuracy: 0.01, CacheDir: cacheDir}
 }
 
+// cacheDir is one solve cache for the whole test binary.
 var cacheDir string
+
+func TestMain(m *testing.M) {
+	d, err := os.MkdirTemp("", "drift-test-cache")
+	if err != nil {
+		panic(err)
+	}
+	cacheDir = d
+	code := m.Run()
+	os.RemoveAll(d)
+	os.Exit(code)
+}
 
 // layout returns a 12 x 18 in panel with one part of one coupler at its
 // centre (section sec, lines at angleDeg) stepped by the arrays.

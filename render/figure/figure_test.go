@@ -5,6 +5,7 @@ import (
 	"image"
 	"image/png"
 	"math"
+	"os"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel"
@@ -56,14 +57,21 @@ func testInput(t *testing.T) *drift.Input {
 		Sections: []*section.Section{sec}, Model: m}
 }
 
+// cache is one solve cache for the whole test binary.
 var cache string
 
-func settings(t *testing.T) *drift.Settings {
-	if cache == "" {
-		cache = t.TempDir()
+func TestMain(m *testing.M) {
+	d, err := os.MkdirTemp("", "figure-test-cache")
+	if err != nil {
+		panic(err)
 	}
-	return &drift.Settings{Accuracy: 0.01, CacheDir: cache}
+	cache = d
+	code := m.Run()
+	os.RemoveAll(d)
+	os.Exit(code)
 }
+
+func settings(*testing.T) *drift.Settings { return &drift.Settings{Accuracy: 0.01, CacheDir: cache} }
 
 // decode checks that b is a PNG of the given width with more than a few
 // colours (a drawn figure, not a blank canvas).
