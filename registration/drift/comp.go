@@ -68,7 +68,8 @@ type Comparison struct {
 
 // Compensate recommends the artwork scale compensation of in's trace layers
 // under model (in.Model when nil) with settings cs, and evaluates the panel
-// before and after it on one set of curves covering both.
+// before and after it on one set of curves covering both. An error of the
+// recommendation itself is a *CompError.
 func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *registration.CompSettings, set *Settings) (*Comparison, error) {
 	if model == nil {
 		model = in.Model
@@ -82,7 +83,7 @@ func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *r
 	}
 	res, err := registration.Compensate(model, sites, cs)
 	if err != nil {
-		return nil, err
+		return nil, &CompError{err}
 	}
 	am := &registration.Model{Datum: model.Datum, Contributors: append(slices.Clone(model.Contributors), res.Contributors()...)}
 	after := New(in, am)
@@ -102,6 +103,14 @@ func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *r
 	}
 	return cmp, nil
 }
+
+// CompError is a compensation that the model and the settings do not allow
+// (registration.ErrInfeasible, or no site whose traces are on two layers):
+// the input's fault, not the solver's.
+type CompError struct{ Err error }
+
+func (e *CompError) Error() string { return e.Err.Error() }
+func (e *CompError) Unwrap() error { return e.Err }
 
 // CompLayer is one layer's recommended compensation.
 type CompLayer struct {
