@@ -128,3 +128,11 @@ func SolveSection(ctx context.Context, s *section.Section, reach float64, set *S
 		span = 2 * math.Max(hi-nom, nom-lo)
 	}
 }
+
+// SolveAt solves (or reads from the cache) the curve of s at the given
+// offsets (design offset included), for a sweep over offsets of the caller's
+// choosing; hit reports a cache hit.
+func SolveAt(ctx context.Context, s *section.Section, offsets []float64, set *Settings) (c *section.Curve, hit bool, err error) {
+	dir, noCache := set.cache()
+	return section.CachedSweep(ctx, s, offsets, set.Solver(), dir, noCache)
+}
