@@ -2,6 +2,7 @@ package figure
 
 import (
 	"bytes"
+	"fmt"
 	"image"
 	"image/png"
 	"math"
@@ -177,4 +178,42 @@ func TestShownRange(t *testing.T) {
 	if math.Abs(lo-9) > 1e-9 || math.Abs(hi-11) > 1e-9 {
 		t.Errorf("offset range %.9f to %.9f mil, want 9 to 11", lo, hi)
 	}
+}
+
+// TestNiceLength: scale arrows are 1, 2 or 5 times a power of ten, the
+// largest not above the length asked for.
+func TestNiceLength(t *testing.T) {
+	for _, tt := range []struct{ d, want float64 }{
+		{1, 1}, {1.9, 1}, {2, 2}, {4.99, 2}, {5, 5}, {9.99, 5}, {0.03, 0.02}, {7e-6, 5e-6}, {0, 1}, {-3, 1},
+	} {
+		if got := niceLength(tt.d); math.Abs(got-tt.want) > 1e-12*tt.want {
+			t.Errorf("niceLength(%g) = %g, want %g", tt.d, got, tt.want)
+		}
+	}
+}
+
+// TestFit draws fit.png of two panels of one layer fitted from targets
+// moved by a known offset and scale, one of them mis-measured.
+func TestFit(t *testing.T) {
+	var ts []registration.Target
+	for p, panelName := range []string{"P1", "P2"} {
+		for i := range 9 {
+			pos := panel.Vec{X: float64(i%3-1) * 4 * inch, Y: float64(i/3-1) * 5 * inch}
+			d := panel.Vec{X: 0.5*mil + 100e-6*pos.X, Y: -0.3 * mil}
+			if p == 1 && i == 4 {
+				d.X += 5 * mil // the mis-measured target
+			}
+			ts = append(ts, registration.Target{Panel: panelName, Layer: "L3", Name: fmt.Sprintf("T%d", i+1), Pos: pos, D: d})
+		}
+	}
+	set := registration.FitSettings{Robust: registration.Tukey}
+	fits, err := registration.FitAll(ts, &set)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var b bytes.Buffer
+	if err := Fit(&b, "targets.csv", set, fits, registration.LotStats(fits), panel.Vec{X: 12 * inch, Y: 18 * inch}, 900, drift.Micrometres); err != nil {
+		t.Fatal(err)
+	}
+	decode(t, "fit", b.Bytes(), 900)
 }
