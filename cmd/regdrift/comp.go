@@ -22,7 +22,7 @@ import (
 )
 
 type compFlags struct {
-	out       string
+	outputFlags
 	targets   string
 	objective string
 	drill     string
@@ -32,66 +32,26 @@ type compFlags struct {
 	robust    bool
 	weight    string
 	keep      bool
-	units     string
 	width     int
-	json      bool
 	strict    bool
 	solver    solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "comp",
-		usage: "comp JOB [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]",
-		short: "recommend per-layer artwork scale compensation that minimises the broadside offsets",
-		long: `Recommends the artwork scale compensation of each trace layer, X and Y, in ppm
-and as a factor, from the job's registration model: the compensation that
-minimises the worst broadside offset over all sites (--objective worst, a
-linear programme) or its root mean square (--objective rms, least squares).
-
-With --targets, the measurement file is fitted first (as regdrift fit does,
-about the job's datum) and each measured layer's lot mean and sigma replace
-what the job's contributors say about that layer: the measurement already
-holds every source that moves it. Contributors keep acting on the layers that
-were not measured (--keep-job-terms adds the measurement instead). A layer in
-the targets that the job does not have is skipped with a warning.
-
-Only the difference of two layers' compensation across the coupled lines moves
-a broadside offset, so the offsets fix the differences and leave a common part
-free. With --drill-budget the common part keeps every trace layer's mean
-registration to the drilled holes within the budget (per axis, at every site)
-and as small as possible; without it the common part is the smallest
-compensation. The output says which. The compensation is what the artwork is
-scaled by before the material moves: a layer whose material shrinks by ε is
-compensated fully by the factor 1/(1+ε).
-
-Writes comp.csv (per site, before and after), comp.png (the mean offset maps
-before and after, side by side on one colour scale), compensation.toml (the
-recommendation as [[contributor]] blocks, to include in the job and map again)
-and comp.json. Sites in spec and the predicted site yield use the section's
-solved coupling curve, as map and yield do.`,
-		order: 5,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &compFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.targets, "targets", "", "measurement file (CSV) whose fitted lot joins the model")
-			fs.StringVar(&f.objective, "objective", "worst", "minimise the worst offset (worst, linear programme) or the rms offset (rms)")
-			fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil)")
-			fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
-			fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
-			fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
-			fs.BoolVar(&f.robust, "robust", true, "fit --targets robustly (reject mis-measured targets)")
-			fs.StringVar(&f.weight, "weight", "tukey", "robust weight function for --targets: tukey or huber")
-			fs.BoolVar(&f.keep, "keep-job-terms", false, "add the measured movement to the job's contributors instead of replacing them for the measured layers")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.IntVar(&f.width, "width", 2400, "width of comp.png in pixels")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when a site is out of spec after compensation")
-			f.solver.add(fs)
-			return f
-		},
-		run: runComp,
-	})
+// flags declares the command's flags on fs.
+func (f *compFlags) flags(fs *pflag.FlagSet) {
+	f.outputFlags.add(fs)
+	fs.StringVar(&f.targets, "targets", "", "measurement file (CSV) whose fitted lot joins the model")
+	fs.StringVar(&f.objective, "objective", "worst", "minimise the worst offset (worst, linear programme) or the rms offset (rms)")
+	fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil)")
+	fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
+	fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
+	fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
+	fs.BoolVar(&f.robust, "robust", true, "fit --targets robustly (reject mis-measured targets)")
+	fs.StringVar(&f.weight, "weight", "tukey", "robust weight function for --targets: tukey or huber")
+	fs.BoolVar(&f.keep, "keep-job-terms", false, "add the measured movement to the job's contributors instead of replacing them for the measured layers")
+	fs.IntVar(&f.width, "width", 2400, "width of comp.png in pixels")
+	addStrict(fs, &f.strict, "a site is out of spec after compensation")
+	f.solver.add(fs)
 }
 
 // measuredModel returns a copy of m with the fitted lots joined: each lot
@@ -222,8 +182,7 @@ func (cs *compState) tally(ys *yieldSetup) (inSpec int, yield float64) {
 	return inSpec, yield
 }
 
-func runComp(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*compFlags)
+func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("comp takes one job file")
 	}

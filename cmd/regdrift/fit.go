@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -20,70 +21,28 @@ import (
 )
 
 type fitFlags struct {
-	out          string
+	outputFlags
 	model        string
 	robust       bool
 	weight       string
 	datum        string
 	panelSize    string
-	units        string
 	contributors string
 	grid         int
 	width        int
-	json         bool
 }
 
-func init() {
-	register(&command{
-		name:  "fit",
-		usage: "fit TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]",
-		short: "fit each layer's movement (offset, rotation, scale, skew) to measured registration targets",
-		long: `Reads a measurement file (CSV, units in the header):
-
-    panel,layer,target,x [in],y [in],dx [mil],dy [mil]
-
-with the nominal target positions in the panel frame (origin at the panel
-centre, y up, as in the job file) and the measured displacements, or x_meas and
-y_meas columns with the measured positions instead of dx and dy. A layer is
-measured against the drilled tooling ("L3") or against another layer ("L3-L4",
-L3 relative to L4). "-" reads standard input.
-
-For each panel and layer it fits the first-order affine field about the datum
-by least squares: six terms (affine), four (similarity: offsets, rotation and
-one scale) or two (translation), with standard errors from the residual
-variance and the normal matrix. --robust reweights iteratively to find
-mis-measured targets: Huber weights, then Tukey's biweight, on each target's
-radial residual in units of a robust scale (from the median residual); the
-targets beyond 4 sigma are then rejected and the rest refitted by ordinary
-least squares, repeated until the set of rejected targets is stable. The
-rejected targets are reported as outliers.
-
-Then the lot: the mean and standard deviation of each term over the panels,
-per layer, and the pooled residual field (what the affine model leaves) on a
-grid. Writes fit.csv (one row per panel and layer), residuals.csv (one row per
-target), residual-grid-LAYER.csv (the pooled field, in the format a
-contributor's residual = "..." reads) and fit.png (for each layer the targets
-on the panel with the measured displacement and the residual after the fit as
-exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
-TOML [[contributor]] blocks for a job's include = [...].`,
-		order: 4,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &fitFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.model, "model", "affine", "terms fitted: affine (6), similarity (4) or translation (2)")
-			fs.BoolVar(&f.robust, "robust", false, "reweight iteratively and reject mis-measured targets")
-			fs.StringVar(&f.weight, "weight", "tukey", "robust weight function: tukey (after huber) or huber")
-			fs.StringVar(&f.datum, "datum", "0in,0in", "point that rotation and scale act about, panel frame (use the job's datum)")
-			fs.StringVar(&f.panelSize, "panel", "", "panel size for fit.png, e.g. 18in,24in (default: the targets' extent)")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.StringVar(&f.contributors, "contributors", "", "write the lot as TOML [[contributor]] blocks to FILE")
-			fs.IntVar(&f.grid, "grid", 5, "nodes per axis of the pooled residual grid")
-			fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			return f
-		},
-		run: runFit,
-	})
+// flags declares the command's flags on fs.
+func (f *fitFlags) flags(fs *pflag.FlagSet) {
+	f.outputFlags.add(fs)
+	fs.StringVar(&f.model, "model", "affine", "terms fitted: affine (6), similarity (4) or translation (2)")
+	fs.BoolVar(&f.robust, "robust", false, "reweight iteratively and reject mis-measured targets")
+	fs.StringVar(&f.weight, "weight", "tukey", "robust weight function: tukey (after huber) or huber")
+	fs.StringVar(&f.datum, "datum", "0in,0in", "point that rotation and scale act about, panel frame (use the job's datum)")
+	fs.StringVar(&f.panelSize, "panel", "", "panel size for fit.png, e.g. 18in,24in (default: the targets' extent)")
+	fs.StringVar(&f.contributors, "contributors", "", "write the lot as TOML [[contributor]] blocks to FILE")
+	fs.IntVar(&f.grid, "grid", 5, "nodes per axis of the pooled residual grid")
+	fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
 }
 
 // parseVecFlag reads "X,Y" with a length unit on each value.
@@ -138,14 +97,33 @@ func runFitFile(path string, stdin io.Reader, set registration.FitSettings, grid
 	return r, nil
 }
 
-func runFit(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*fitFlags)
+// isFitOutput reports whether path names one of the files fit writes into dir.
+func isFitOutput(path, dir string) bool {
+	pd, _ := filepath.Abs(filepath.Dir(path))
+	od, _ := filepath.Abs(dir)
+	if pd != od {
+		return false
+	}
+	name := filepath.Base(path)
+	switch {
+	case name == "fit.csv", name == "residuals.csv", name == "fit.png":
+		return true
+	case strings.HasPrefix(name, "residual-grid-") && strings.HasSuffix(name, ".csv"):
+		return true
+	}
+	return false
+}
+
+func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("fit takes one measurement file (CSV)")
 	}
 	lu, err := parseUnits(f.units)
 	if err != nil {
 		return err
+	}
+	if f.contributors != "" && isFitOutput(f.contributors, f.out) {
+		return usageErr("--contributors: %s is one of fit's own outputs in -o %s", f.contributors, f.out)
 	}
 	m, err := registration.ParseFitModel(f.model)
 	if err != nil {
@@ -184,13 +162,11 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 		return err
 	}
 	defer o.abort()
-	var co *outputs
 	if f.contributors != "" {
-		if co, err = newOutputs(filepath.Dir(f.contributors)); err != nil {
+		if err := os.MkdirAll(filepath.Dir(f.contributors), 0o755); err != nil {
 			return err
 		}
-		defer co.abort()
-		if err := co.file(filepath.Base(f.contributors), func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
+		if err := o.fileAt(f.contributors, func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
 			return err
 		}
 	}
@@ -212,11 +188,6 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 	if err := o.file("fit.png", func(w io.Writer) error { return r.drawFit(w, size, f.width, lu) }); err != nil {
 		return err
 	}
-	if co != nil {
-		if err := co.commit(); err != nil {
-			return err
-		}
-	}
 	if err := o.commit(); err != nil {
 		return err
 	}
@@ -224,9 +195,6 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 		return writeJSON(std.out, r.summary())
 	}
 	r.printTable(std.out, lu)
-	if co != nil {
-		fmt.Fprintf(std.out, "wrote %s\n", f.contributors)
-	}
 	for _, p := range o.paths() {
 		fmt.Fprintf(std.out, "wrote %s\n", p)
 	}
