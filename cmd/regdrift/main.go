@@ -69,6 +69,10 @@ const (
 	exitFailure   = 1
 	exitBadInput  = 2
 	exitOutOfSpec = 3
+	// exitCrash is a panic caught in the command: a defect of regdrift, never
+	// bad input, so that scripts can tell the two apart (70 is EX_SOFTWARE of
+	// BSD sysexits.h; an uncaught Go panic would exit 2, like bad input).
+	exitCrash = 70
 )
 
 // errBadInput marks errors caused by the user's input: exit status 2.
@@ -100,7 +104,13 @@ func main() {
 	os.Exit(realMain(os.Args[1:], os.Stdin, os.Stdout, os.Stderr))
 }
 
-func realMain(args []string, in io.Reader, out, errw io.Writer) int {
+func realMain(args []string, in io.Reader, out, errw io.Writer) (code int) {
+	defer func() {
+		if r := recover(); r != nil {
+			fmt.Fprintf(errw, "regdrift: internal error (please report it with the input that caused it): %v\n%s", r, debug.Stack())
+			code = exitCrash
+		}
+	}()
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
 	std := stdio{in: in, out: out, err: errw, tty: isTerminal(errw)}

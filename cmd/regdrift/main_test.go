@@ -2,9 +2,12 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"os"
 	"strings"
 	"testing"
+
+	"github.com/spf13/pflag"
 )
 
 // TestDocCoversCommands checks that every command of the table has its
@@ -78,5 +81,29 @@ func TestVersion(t *testing.T) {
 	}
 	if !strings.HasPrefix(out.String(), "regdrift "+version) {
 		t.Errorf("version printed %q", out.String())
+	}
+}
+
+// panicFlags is a command that panics, for TestPanicExitStatus.
+type panicFlags struct{}
+
+func (*panicFlags) flags(*pflag.FlagSet) {}
+func (*panicFlags) run(context.Context, stdio, []string) error {
+	var m map[string]int
+	m["x"]++ // a nil-map write: a defect, not bad input
+	return nil
+}
+
+// TestPanicExitStatus: a panic exits with its own status, not bad input's.
+func TestPanicExitStatus(t *testing.T) {
+	commands = append(commands, command{"panic-test", func() options { return new(panicFlags) }})
+	defer func() { commands = commands[:len(commands)-1] }()
+	var out, errw bytes.Buffer
+	code := realMain([]string{"panic-test"}, nil, &out, &errw)
+	if code != exitCrash || code == exitBadInput {
+		t.Errorf("exit %d, want %d", code, exitCrash)
+	}
+	if !strings.Contains(errw.String(), "internal error") {
+		t.Errorf("stderr: %s", errw.String())
 	}
 }
