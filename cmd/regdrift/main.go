@@ -7,9 +7,9 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
 	"runtime/debug"
 	"strings"
+	"syscall"
 
 	"github.com/spf13/pflag"
 )
@@ -111,8 +111,15 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) (code int) {
 			code = exitCrash
 		}
 	}()
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
-	defer stop()
+	ctx, stop := withSignals(context.Background())
+	defer func() {
+		if s := stop(); s != nil && code != exitOK && code != exitCrash {
+			// The run was cut short by a signal: whatever it returned, say
+			// so and exit as a shell reports a signalled command (128 + n).
+			fmt.Fprintf(errw, "regdrift: interrupted (%v); no output written\n", s)
+			code = 128 + int(s.(syscall.Signal))
+		}
+	}()
 	std := stdio{in: in, out: out, err: errw, tty: isTerminal(errw)}
 	if len(args) == 0 {
 		printUsage(errw)
@@ -142,6 +149,9 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) (code int) {
 	if errors.Is(err, pflag.ErrHelp) {
 		fmt.Fprint(out, helpText(c))
 		return exitOK
+	}
+	if err != nil && interrupted.Load() {
+		return exitFailure // the deferred signal report gives the status
 	}
 	var fe *flagError
 	if errors.As(err, &fe) {

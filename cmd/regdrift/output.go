@@ -8,6 +8,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"sort"
 	"strings"
 	"syscall"
 	"time"
@@ -46,6 +47,10 @@ const staleAge = time.Hour
 // commitHook, when set (by tests), is called before the i-th rename of a
 // commit; an error from it is treated as that rename failing.
 var commitHook func(i int) error
+
+// fileHook, when set (by tests), is called after each file is written to
+// its temporary name.
+var fileHook func(name string)
 
 // newOutputs prepares dir (creating it if needed) and removes stale
 // temporary files that an earlier, crashed run left there.
@@ -86,6 +91,9 @@ func (o *outputs) file(name string, write func(w io.Writer) error) error {
 // directory (its directory must exist). Two outputs of one run may not share
 // a path.
 func (o *outputs) fileAt(path string, write func(w io.Writer) error) error {
+	if interrupted.Load() {
+		return errInterrupted
+	}
 	abs, err := filepath.Abs(path)
 	if err != nil {
 		return err
@@ -106,6 +114,9 @@ func (o *outputs) fileAt(path string, write func(w io.Writer) error) error {
 	o.files = append(o.files, outputFile{temp: f.Name(), final: path})
 	if err := writeTemp(f, write); err != nil {
 		return fmt.Errorf("writing %s: %w", name, err)
+	}
+	if fileHook != nil {
+		fileHook(name)
 	}
 	return nil
 }
@@ -129,6 +140,16 @@ func writeTemp(f *os.File, write func(w io.Writer) error) error {
 
 // commit moves every written file into place, all or none (see outputs).
 func (o *outputs) commit() error {
+	if interrupted.Load() {
+		o.abort()
+		return errInterrupted
+	}
+	unlock, err := lockDirs(o.files)
+	if err != nil {
+		o.abort()
+		return err
+	}
+	defer unlock()
 	// Move the previous files aside first, so that a failure can put them back.
 	for i := range o.files {
 		f := &o.files[i]
@@ -267,4 +288,46 @@ func report(std stdio, asJSON bool, v any, table func()) error {
 	}
 	table()
 	return nil
+}
+
+// lockDirs takes an exclusive lock on every directory the files go into (in
+// sorted order, so two runs cannot deadlock), so that two runs committing into
+// one directory at once do not interleave their renames: each run's set
+// appears whole. The lock is an flock(2) on the directory itself, so it leaves
+// no file behind and dies with the process.
+func lockDirs(files []outputFile) (unlock func(), err error) {
+	seen := map[string]bool{}
+	var dirs []string
+	for _, f := range files {
+		d, err := filepath.Abs(filepath.Dir(f.final))
+		if err != nil {
+			return nil, err
+		}
+		if !seen[d] {
+			seen[d] = true
+			dirs = append(dirs, d)
+		}
+	}
+	sort.Strings(dirs)
+	var held []*os.File
+	unlock = func() {
+		for _, h := range held {
+			syscall.Flock(int(h.Fd()), syscall.LOCK_UN)
+			h.Close()
+		}
+	}
+	for _, d := range dirs {
+		h, err := os.Open(d)
+		if err != nil {
+			unlock()
+			return nil, err
+		}
+		if err := syscall.Flock(int(h.Fd()), syscall.LOCK_EX); err != nil {
+			h.Close()
+			unlock()
+			return nil, fmt.Errorf("locking %s: %w", d, err)
+		}
+		held = append(held, h)
+	}
+	return unlock, nil
 }

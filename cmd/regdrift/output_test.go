@@ -170,3 +170,38 @@ func equalMaps(a, b map[string]string) bool {
 	}
 	return true
 }
+
+// TestOutputsConcurrentCommits: two runs committing into one directory at
+// once end with one run's complete set, never a mix (the directory lock).
+func TestOutputsConcurrentCommits(t *testing.T) {
+	dir := t.TempDir()
+	commitHook = func(int) error { time.Sleep(20 * time.Millisecond); return nil }
+	defer func() { commitHook = nil }()
+	names := []string{"a.csv", "b.png", "c.json", "d.csv"}
+	done := make(chan error, 2)
+	for _, id := range []string{"one", "two"} {
+		go func() {
+			var files []outFile
+			for _, n := range names {
+				files = append(files, outFile{n, writeString(id)})
+			}
+			_, err := writeAll(dir, files...)
+			done <- err
+		}()
+	}
+	for range 2 {
+		if err := <-done; err != nil {
+			t.Fatal(err)
+		}
+	}
+	got := listDir(t, dir)
+	if len(got) != len(names) {
+		t.Fatalf("files %v", got)
+	}
+	for _, n := range names {
+		if got[n] != got[names[0]] {
+			t.Errorf("mixed set: %v", got)
+			break
+		}
+	}
+}
