@@ -71,6 +71,8 @@ func (p Panel) Validate() error {
 	switch {
 	case !(p.Size.X > 0) || !(p.Size.Y > 0) || math.IsInf(p.Size.X, 0) || math.IsInf(p.Size.Y, 0):
 		return &FieldError{Key: "panel.size", Err: errors.New("both sizes must be positive and finite")}
+	case p.Size.X > MaxPanelSize || p.Size.Y > MaxPanelSize:
+		return &FieldError{Key: "panel.size", Err: fmt.Errorf("a panel side of %.4g m is not plausible: at most %g m (%.0f in)", math.Max(p.Size.X, p.Size.Y), MaxPanelSize, MaxPanelSize/0.0254)}
 	case !(p.Border >= 0) || 2*p.Border >= math.Min(p.Size.X, p.Size.Y):
 		return &FieldError{Key: "panel.border", Err: errors.New("the border must be non-negative and leave room inside the panel")}
 	case !p.Outline().Contains(p.Datum):
@@ -131,6 +133,11 @@ type Layout struct {
 // slip in a count cannot exhaust memory: a million parts is far beyond any
 // production panel.
 const MaxInstances = 1_000_000
+
+// MaxPanelSize is the longest panel side accepted, a plausibility bound:
+// production panels are 12 x 18 in to 24 x 30 in, the largest backplanes
+// about 1.5 m, so a side beyond 3 m is a typing slip in a unit.
+const MaxPanelSize = 3.0 // m
 
 // MaxSites bounds the coupler sites of one layout, from arrays and placements
 // together. The analysis holds about a kilobyte per site (the sensitivity

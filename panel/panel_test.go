@@ -112,6 +112,7 @@ func TestExpandErrors(t *testing.T) {
 			}
 			l.Arrays[0] = Array{Part: "p", Count: [2]int{500, 400}, Pitch: Vec{1e-4, 1e-4}}
 		}, nil, "array[0].count"},
+		{"huge panel", func(l *Layout) { l.Panel.Size.Y = 1e250 * in }, nil, "panel.size"},
 		{"too many placements", func(l *Layout) {
 			l.Placements = make([]Placement, MaxSites)
 		}, nil, "sites"},
