@@ -1044,7 +1044,7 @@ func readPlacements(path string) ([]panel.Placement, error) {
 	if err != nil {
 		return nil, badInput(&registration.CSVError{File: path, Row: 1, Err: err})
 	}
-	idx, cols, err := registration.ParseHeader(header, map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "angle": unit.Angle})
+	idx, cols, err := unit.ParseHeader(header, map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "angle": unit.Angle})
 	if err != nil {
 		return nil, badInput(&registration.CSVError{File: path, Row: 1, Err: err})
 	}
