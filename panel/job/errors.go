@@ -6,12 +6,13 @@ import (
 	"strings"
 )
 
-// ParseError is bad input at a place in a file.
+// ParseError is bad input at a place in a job file. Its message reads
+// "FILE:LINE: KEY: ERR", leaving out a line or key that is not known.
 type ParseError struct {
-	File string // "<stdin>" when read from "-"
+	File string // as named to Load or Parse; "<stdin>" when read from "-"
 	Line int    // 1-based; 0 when unknown
 	Key  string // the key path, e.g. "section[0].traces[1].width"
-	Err  error
+	Err  error  // ErrUnknownKey, ErrMissing, ErrValue (wrapped), a *unit.Error, ...
 }
 
 func (e *ParseError) Error() string {
@@ -28,7 +29,8 @@ func (e *ParseError) Error() string {
 }
 func (e *ParseError) Unwrap() error { return e.Err }
 
-// Error kinds of the job loader, for errors.Is.
+// Error kinds of the job loader, for errors.Is: a key the format does not
+// have, a value that is needed and missing, and a value that is wrong.
 var (
 	ErrUnknownKey = errors.New("unknown key")
 	ErrMissing    = errors.New("missing value")
