@@ -6,8 +6,6 @@ import (
 	"math"
 	"sort"
 
-	"github.com/spf13/pflag"
-
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
@@ -15,43 +13,10 @@ import (
 	"github.com/regdrift/regdrift/render"
 )
 
-// solverFlags are the cross-section solver options every job command takes.
-type solverFlags struct {
-	accuracy string
-	noCache  bool
-	cacheDir string
-}
-
-func (f *solverFlags) add(fs *pflag.FlagSet) {
-	fs.StringVar(&f.accuracy, "accuracy", "0.1%", "convergence target of the field solve in C, as a percentage")
-	fs.BoolVar(&f.noCache, "no-cache", false, "solve the cross-sections again instead of reading the cache")
-	fs.StringVar(&f.cacheDir, "cache-dir", "", "directory of the solve cache (default: the user cache directory)")
-}
-
-// settings returns the solver settings; bad values are usage errors.
-func (f *solverFlags) settings() (*section.Settings, error) {
-	acc, err := parsePercent(f.accuracy)
-	if err != nil {
-		return nil, usageErr("--accuracy: %v", err)
-	}
-	return &section.Settings{Accuracy: acc}, nil
-}
-
-func parsePercent(s string) (float64, error) {
-	var v float64
-	var pct string
-	n, _ := fmt.Sscanf(s, "%g%s", &v, &pct)
-	if n < 1 || (n == 2 && pct != "%") || n == 1 {
-		return 0, fmt.Errorf("%q: want a percentage such as 0.1%%", s)
-	}
-	if !(v > 0 && v < 10) {
-		return 0, fmt.Errorf("%q: want a value between 0 and 10%%", s)
-	}
-	return v / 100, nil
-}
-
-// lengthUnit is the output length unit chosen with --units.
+// lengthUnit is the output unit choice of --units (unit.Output), with its
+// names and sizes at hand.
 type lengthUnit struct {
+	unit.Output
 	name   string  // "mil" or "um"
 	factor float64 // metres per unit
 	panel  string  // unit of panel coordinates: "in" or "mm"
@@ -59,13 +24,11 @@ type lengthUnit struct {
 }
 
 func parseUnits(s string) (lengthUnit, error) {
-	switch s {
-	case "mil", "":
-		return lengthUnit{"mil", unit.Mil, "in", unit.Inch}, nil
-	case "um", "µm":
-		return lengthUnit{"um", unit.Micrometre, "mm", unit.Millimetre}, nil
+	o, err := unit.ParseOutput(s)
+	if err != nil {
+		return lengthUnit{}, usageErr("--units: %v", err)
 	}
-	return lengthUnit{}, usageErr("--units: want mil or um, not %q", s)
+	return lengthUnit{o, o.Length(), o.LengthSI(), o.Panel(), o.PanelSI()}, nil
 }
 
 // siteResult is the drift analysis of one site.

@@ -15,6 +15,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
@@ -22,7 +23,7 @@ import (
 )
 
 type compFlags struct {
-	out       string
+	outputFlags
 	targets   string
 	objective string
 	drill     string
@@ -32,66 +33,26 @@ type compFlags struct {
 	robust    bool
 	weight    string
 	keep      bool
-	units     string
 	width     int
-	json      bool
 	strict    bool
 	solver    solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "comp",
-		usage: "comp JOB [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]",
-		short: "recommend per-layer artwork scale compensation that minimises the broadside offsets",
-		long: `Recommends the artwork scale compensation of each trace layer, X and Y, in ppm
-and as a factor, from the job's registration model: the compensation that
-minimises the worst broadside offset over all sites (--objective worst, a
-linear programme) or its root mean square (--objective rms, least squares).
-
-With --targets, the measurement file is fitted first (as regdrift fit does,
-about the job's datum) and each measured layer's lot mean and sigma replace
-what the job's contributors say about that layer: the measurement already
-holds every source that moves it. Contributors keep acting on the layers that
-were not measured (--keep-job-terms adds the measurement instead). A layer in
-the targets that the job does not have is skipped with a warning.
-
-Only the difference of two layers' compensation across the coupled lines moves
-a broadside offset, so the offsets fix the differences and leave a common part
-free. With --drill-budget the common part keeps every trace layer's mean
-registration to the drilled holes within the budget (per axis, at every site)
-and as small as possible; without it the common part is the smallest
-compensation. The output says which. The compensation is what the artwork is
-scaled by before the material moves: a layer whose material shrinks by ε is
-compensated fully by the factor 1/(1+ε).
-
-Writes comp.csv (per site, before and after), comp.png (the mean offset maps
-before and after, side by side on one colour scale), compensation.toml (the
-recommendation as [[contributor]] blocks, to include in the job and map again)
-and comp.json. Sites in spec and the predicted site yield use the section's
-solved coupling curve, as map and yield do.`,
-		order: 5,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &compFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.targets, "targets", "", "measurement file (CSV) whose fitted lot joins the model")
-			fs.StringVar(&f.objective, "objective", "worst", "minimise the worst offset (worst, linear programme) or the rms offset (rms)")
-			fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil)")
-			fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
-			fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
-			fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
-			fs.BoolVar(&f.robust, "robust", true, "fit --targets robustly (reject mis-measured targets)")
-			fs.StringVar(&f.weight, "weight", "tukey", "robust weight function for --targets: tukey or huber")
-			fs.BoolVar(&f.keep, "keep-job-terms", false, "add the measured movement to the job's contributors instead of replacing them for the measured layers")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.IntVar(&f.width, "width", 2400, "width of comp.png in pixels")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when a site is out of spec after compensation")
-			f.solver.add(fs)
-			return f
-		},
-		run: runComp,
-	})
+// flags declares the command's flags on fs.
+func (f *compFlags) flags(fs *pflag.FlagSet) {
+	f.outputFlags.add(fs)
+	fs.StringVar(&f.targets, "targets", "", "measurement file (CSV) whose fitted lot joins the model")
+	fs.StringVar(&f.objective, "objective", "worst", "minimise the worst offset (worst, linear programme) or the rms offset (rms)")
+	fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil)")
+	fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
+	fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
+	fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
+	fs.BoolVar(&f.robust, "robust", true, "fit --targets robustly (reject mis-measured targets)")
+	fs.StringVar(&f.weight, "weight", "tukey", "robust weight function for --targets: tukey or huber")
+	fs.BoolVar(&f.keep, "keep-job-terms", false, "add the measured movement to the job's contributors instead of replacing them for the measured layers")
+	fs.IntVar(&f.width, "width", 2400, "width of comp.png in pixels")
+	addStrict(fs, &f.strict, "a site is out of spec after compensation")
+	f.solver.add(fs)
 }
 
 // measuredModel returns a copy of m with the fitted lots joined: each lot
@@ -222,8 +183,7 @@ func (cs *compState) tally(ys *yieldSetup) (inSpec int, yield float64) {
 	return inSpec, yield
 }
 
-func runComp(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*compFlags)
+func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("comp takes one job file")
 	}
@@ -447,19 +407,7 @@ func (cs *compState) writeCSV(w io.Writer, lu lengthUnit) error {
 // change of each layer, which is what the job's model needs to map the
 // compensated build.
 func (cs *compState) writeTOML(w io.Writer) error {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# Artwork scale compensation recommended by regdrift comp for %s\n", cs.job.File)
-	fmt.Fprintf(&b, "# (objective %s; common part: %s).\n", cs.res.Objective, cs.res.Common)
-	b.WriteString("# Each block is the net change of the layer's scale term, (f − 1)(1 + s) for the\n" +
-		"# artwork factor f and the layer's mean movement s; the factor itself is in the\n" +
-		"# comment. Include this file in the job to map the compensated build.\n")
-	for _, l := range cs.res.Layers {
-		fmt.Fprintf(&b, "\n# %s: artwork factor X %.9f (%+.2f ppm), Y %.9f (%+.2f ppm)\n", l.Layer, l.X.Factor, l.X.Scale/1e-6, l.Y.Factor, l.Y.Scale/1e-6)
-		fmt.Fprintf(&b, "[[contributor]]\nname    = %s\nlayers  = [%s]\n", strconv.Quote("artwork compensation "+l.Layer), strconv.Quote(l.Layer))
-		fmt.Fprintf(&b, "scale_x = %s\nscale_y = %s\n", tomlValue(l.X.Net, unit.Strain, "ppm"), tomlValue(l.Y.Net, unit.Strain, "ppm"))
-	}
-	_, err := io.WriteString(w, b.String())
-	return err
+	return job.WriteCompensation(w, cs.job.File, cs.res)
 }
 
 func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, paths []string) {

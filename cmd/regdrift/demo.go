@@ -30,30 +30,14 @@ var demoJobs = []struct{ file, what, targets, design string }{
 	{"offset-coupler.toml", "10 dB offset-broadside couplers, 12 x 18 in, one array turned 90 deg", "", "dc10"},
 }
 
-func init() {
-	register(&command{
-		name:  "demo",
-		usage: "demo [-o DIR]",
-		short: "run the embedded demo jobs end to end",
-		long: `Copies the embedded demo jobs into DIR/samples (so that you can edit and rerun
-them) and maps each one into DIR/<job>/: a same-core 3 dB hybrid build, the same
-hybrids on two cores (which drift more toward the corners), and a panel of
-10 dB offset-broadside couplers whose coupling moves linearly with offset.
-All demo data are invented.`,
-		order: 0,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &demoFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.IntVar(&f.width, "width", 2400, "width of the maps in pixels")
-			f.solver.add(fs)
-			return f
-		},
-		run: runDemo,
-	})
+// flags declares the command's flags on fs.
+func (f *demoFlags) flags(fs *pflag.FlagSet) {
+	addOutDir(fs, &f.out)
+	fs.IntVar(&f.width, "width", 2400, "width of the maps in pixels")
+	f.solver.add(fs)
 }
 
-func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*demoFlags)
+func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 0 {
 		return usageErr("demo takes no arguments")
 	}
@@ -177,7 +161,8 @@ func runDemo(ctx context.Context, std stdio, opts any, args []string) error {
 // runQuiet runs another command with its stdout captured and returns it.
 func runQuiet(ctx context.Context, name string, args []string) ([]byte, error) {
 	var out, errw bytes.Buffer
-	err := invoke(ctx, commands[name], stdio{out: &out, err: &errw}, args)
+	c, _ := lookup(name)
+	err := invoke(ctx, c, stdio{out: &out, err: &errw}, args)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}

@@ -3,9 +3,11 @@ package main
 import (
 	"context"
 	"encoding/csv"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
@@ -14,76 +16,35 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/render"
 )
 
 type fitFlags struct {
-	out          string
+	outputFlags
 	model        string
 	robust       bool
 	weight       string
 	datum        string
 	panelSize    string
-	units        string
 	contributors string
 	grid         int
 	width        int
-	json         bool
 }
 
-func init() {
-	register(&command{
-		name:  "fit",
-		usage: "fit TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]",
-		short: "fit each layer's movement (offset, rotation, scale, skew) to measured registration targets",
-		long: `Reads a measurement file (CSV, units in the header):
-
-    panel,layer,target,x [in],y [in],dx [mil],dy [mil]
-
-with the nominal target positions in the panel frame (origin at the panel
-centre, y up, as in the job file) and the measured displacements, or x_meas and
-y_meas columns with the measured positions instead of dx and dy. A layer is
-measured against the drilled tooling ("L3") or against another layer ("L3-L4",
-L3 relative to L4). "-" reads standard input.
-
-For each panel and layer it fits the first-order affine field about the datum
-by least squares: six terms (affine), four (similarity: offsets, rotation and
-one scale) or two (translation), with standard errors from the residual
-variance and the normal matrix. --robust reweights iteratively to find
-mis-measured targets: Huber weights, then Tukey's biweight, on each target's
-radial residual in units of a robust scale (from the median residual); the
-targets beyond 4 sigma are then rejected and the rest refitted by ordinary
-least squares, repeated until the set of rejected targets is stable. The
-rejected targets are reported as outliers.
-
-Then the lot: the mean and standard deviation of each term over the panels,
-per layer, and the pooled residual field (what the affine model leaves) on a
-grid. Writes fit.csv (one row per panel and layer), residuals.csv (one row per
-target), residual-grid-LAYER.csv (the pooled field, in the format a
-contributor's residual = "..." reads) and fit.png (for each layer the targets
-on the panel with the measured displacement and the residual after the fit as
-exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
-TOML [[contributor]] blocks for a job's include = [...].`,
-		order: 4,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &fitFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.model, "model", "affine", "terms fitted: affine (6), similarity (4) or translation (2)")
-			fs.BoolVar(&f.robust, "robust", false, "reweight iteratively and reject mis-measured targets")
-			fs.StringVar(&f.weight, "weight", "tukey", "robust weight function: tukey (after huber) or huber")
-			fs.StringVar(&f.datum, "datum", "0in,0in", "point that rotation and scale act about, panel frame (use the job's datum)")
-			fs.StringVar(&f.panelSize, "panel", "", "panel size for fit.png, e.g. 18in,24in (default: the targets' extent)")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.StringVar(&f.contributors, "contributors", "", "write the lot as TOML [[contributor]] blocks to FILE")
-			fs.IntVar(&f.grid, "grid", 5, "nodes per axis of the pooled residual grid")
-			fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			return f
-		},
-		run: runFit,
-	})
+// flags declares the command's flags on fs.
+func (f *fitFlags) flags(fs *pflag.FlagSet) {
+	f.outputFlags.add(fs)
+	fs.StringVar(&f.model, "model", "affine", "terms fitted: affine (6), similarity (4) or translation (2)")
+	fs.BoolVar(&f.robust, "robust", false, "reweight iteratively and reject mis-measured targets")
+	fs.StringVar(&f.weight, "weight", "tukey", "robust weight function: tukey (after huber) or huber")
+	fs.StringVar(&f.datum, "datum", "0in,0in", "point that rotation and scale act about, panel frame (use the job's datum)")
+	fs.StringVar(&f.panelSize, "panel", "", "panel size for fit.png, e.g. 18in,24in (default: the targets' extent)")
+	fs.StringVar(&f.contributors, "contributors", "", "write the lot as TOML [[contributor]] blocks to FILE")
+	fs.IntVar(&f.grid, "grid", 5, "nodes per axis of the pooled residual grid")
+	fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
 }
 
 // parseVecFlag reads "X,Y" with a length unit on each value.
@@ -138,14 +99,33 @@ func runFitFile(path string, stdin io.Reader, set registration.FitSettings, grid
 	return r, nil
 }
 
-func runFit(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*fitFlags)
+// isFitOutput reports whether path names one of the files fit writes into dir.
+func isFitOutput(path, dir string) bool {
+	pd, _ := filepath.Abs(filepath.Dir(path))
+	od, _ := filepath.Abs(dir)
+	if pd != od {
+		return false
+	}
+	name := filepath.Base(path)
+	switch {
+	case name == "fit.csv", name == "residuals.csv", name == "fit.png":
+		return true
+	case strings.HasPrefix(name, "residual-grid-") && strings.HasSuffix(name, ".csv"):
+		return true
+	}
+	return false
+}
+
+func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("fit takes one measurement file (CSV)")
 	}
 	lu, err := parseUnits(f.units)
 	if err != nil {
 		return err
+	}
+	if f.contributors != "" && isFitOutput(f.contributors, f.out) {
+		return usageErr("--contributors: %s is one of fit's own outputs in -o %s", f.contributors, f.out)
 	}
 	m, err := registration.ParseFitModel(f.model)
 	if err != nil {
@@ -184,13 +164,11 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 		return err
 	}
 	defer o.abort()
-	var co *outputs
 	if f.contributors != "" {
-		if co, err = newOutputs(filepath.Dir(f.contributors)); err != nil {
+		if err := os.MkdirAll(filepath.Dir(f.contributors), 0o755); err != nil {
 			return err
 		}
-		defer co.abort()
-		if err := co.file(filepath.Base(f.contributors), func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
+		if err := o.fileAt(f.contributors, func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
 			return err
 		}
 	}
@@ -212,11 +190,6 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 	if err := o.file("fit.png", func(w io.Writer) error { return r.drawFit(w, size, f.width, lu) }); err != nil {
 		return err
 	}
-	if co != nil {
-		if err := co.commit(); err != nil {
-			return err
-		}
-	}
 	if err := o.commit(); err != nil {
 		return err
 	}
@@ -224,24 +197,42 @@ func runFit(ctx context.Context, std stdio, opts any, args []string) error {
 		return writeJSON(std.out, r.summary())
 	}
 	r.printTable(std.out, lu)
-	if co != nil {
-		fmt.Fprintf(std.out, "wrote %s\n", f.contributors)
-	}
 	for _, p := range o.paths() {
 		fmt.Fprintf(std.out, "wrote %s\n", p)
 	}
 	return nil
 }
 
-// termsJSON holds the six terms with SI units in the keys; nil is a term
-// that was not estimated (or a standard error without redundancy).
-type termsJSON struct {
-	OffsetX  *float64 `json:"offset_x_m"`
-	OffsetY  *float64 `json:"offset_y_m"`
-	Rotation *float64 `json:"rotation_rad"`
-	ScaleX   *float64 `json:"scale_x"`
-	ScaleY   *float64 `json:"scale_y"`
-	Skew     *float64 `json:"skew"`
+// termsJSON holds the terms, keyed in JSON by the term table with their SI
+// unit ("offset_x_m", "rotation_rad", "scale_x"), in term order; nil is a
+// term that was not estimated (or a standard error without redundancy).
+type termsJSON [registration.NumTerms]*float64
+
+func (t termsJSON) MarshalJSON() ([]byte, error) {
+	b := []byte{'{'}
+	for k, v := range t {
+		if k > 0 {
+			b = append(b, ',')
+		}
+		key, _ := json.Marshal(registration.TermKind(k).JSONKey())
+		val, err := json.Marshal(v)
+		if err != nil {
+			return nil, err
+		}
+		b = append(append(append(b, key...), ':'), val...)
+	}
+	return append(b, '}'), nil
+}
+
+func (t *termsJSON) UnmarshalJSON(data []byte) error {
+	var m map[string]*float64
+	if err := json.Unmarshal(data, &m); err != nil {
+		return err
+	}
+	for k := range t {
+		t[k] = m[registration.TermKind(k).JSONKey()]
+	}
+	return nil
 }
 
 func newTermsJSON(v [registration.NumTerms]float64, m registration.FitModel, zeroUnfitted bool) termsJSON {
@@ -259,7 +250,7 @@ func newTermsJSON(v [registration.NumTerms]float64, m registration.FitModel, zer
 		}
 		p[k] = &x
 	}
-	return termsJSON{p[0], p[1], p[2], p[3], p[4], p[5]}
+	return termsJSON(p)
 }
 
 type fitJSON struct {
@@ -314,15 +305,20 @@ func (r *fitRun) summary() *fitSummary {
 	return s
 }
 
-// termUnit returns the output unit name and kind of term k.
+// termUnit returns the output unit name and kind of term k (the term table of
+// package registration).
 func termUnit(k registration.TermKind, lu lengthUnit) (string, unit.Kind) {
-	switch k {
-	case registration.OffsetX, registration.OffsetY:
-		return lu.name, unit.Length
-	case registration.Rotation:
-		return "urad", unit.Angle
+	return k.Unit(lu.Output), k.Info().Kind
+}
+
+// termHeader returns the table header cells of the terms, "offset_x [mil]\t...".
+func termHeader(lu lengthUnit) string {
+	var b strings.Builder
+	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+		u, _ := termUnit(k, lu)
+		fmt.Fprintf(&b, "%s [%s]\t", k, u)
 	}
-	return "ppm", unit.Strain
+	return b.String()
 }
 
 func fmtG(v float64, digits int) string {
@@ -416,58 +412,10 @@ func writeGridCSV(w io.Writer, g *registration.Grid, lu lengthUnit) error {
 	return cw.Error()
 }
 
-// tomlValue formats v (SI) in unit u with six significant digits, as the job
-// loader reads it back.
-func tomlValue(v float64, kind unit.Kind, u string) string {
-	return strconv.Quote(strconv.FormatFloat(unit.In(v, kind, u), 'g', 6, 64) + " " + u)
-}
-
 // writeContributors writes the lot as [[contributor]] blocks with units on
-// every value.
+// every value (job.WriteContributors).
 func (r *fitRun) writeContributors(w io.Writer, lu lengthUnit) error {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# Measured lot movement, fitted by regdrift fit from %s\n", r.file)
-	fmt.Fprintf(&b, "# (%s model about the datum (%s, %s), robust: %s).\n", r.set.Model,
-		unit.Format(r.set.Datum.X, unit.Length, lu.panel, 3), unit.Format(r.set.Datum.Y, unit.Length, lu.panel, 3), r.set.Robust)
-	b.WriteString("# Each term is the lot mean and the panel-to-panel standard deviation of the\n" +
-		"# fitted terms (which includes each fit's own estimation error). Include this\n" +
-		"# file from a job (include = [\"FILE\"]) and leave out the job's own\n" +
-		"# contributors for these layers, or they count twice. The job's datum must be\n" +
-		"# the fit's datum.\n")
-	for _, l := range r.lots {
-		upper, lower, rel := registration.SplitLayer(l.Layer)
-		b.WriteString("\n[[contributor]]\n")
-		if rel {
-			fmt.Fprintf(&b, "# measured relative to %s: this moves %s against %s (and against the drilled holes)\n", lower, upper, lower)
-		}
-		fmt.Fprintf(&b, "name   = %s\n", strconv.Quote(fmt.Sprintf("measured %s (lot of %d panels)", l.Layer, l.Panels)))
-		fmt.Fprintf(&b, "layers = [%s]\n", strconv.Quote(upper))
-		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-			if !l.Model.Estimates(k) {
-				continue
-			}
-			u, kind := termUnit(k, lu)
-			fmt.Fprintf(&b, "%-8s = { mean = %s, sigma = %s }\n", k, tomlValue(l.Mean[k], kind, u), tomlValue(l.SD[k], kind, u))
-		}
-		// The pooled residual scale, σ0² = Σ dof·σ0_i² / Σ dof over the
-		// layer's fits, is what the affine model leaves per target and axis;
-		// it includes the measurement noise, so it is offered, not applied.
-		var ss, dof float64
-		for _, f := range r.fits {
-			if f.Layer == l.Layer && f.DOF > 0 {
-				ss += float64(f.DOF) * f.Sigma0 * f.Sigma0
-				dof += float64(f.DOF)
-			}
-		}
-		if dof > 0 {
-			fmt.Fprintf(&b, "# site_sigma = %s   # pooled fit residual per axis; includes measurement noise\n",
-				tomlValue(math.Sqrt(ss/dof), unit.Length, lu.name))
-		}
-		fmt.Fprintf(&b, "# residual = %s   # pooled non-affine residual map written by regdrift fit\n",
-			strconv.Quote("residual-grid-"+l.Layer+".csv"))
-	}
-	_, err := io.WriteString(w, b.String())
-	return err
+	return job.WriteContributors(w, r.file, &r.set, r.fits, r.lots, lu.Output)
 }
 
 func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
@@ -477,7 +425,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	}
 	fmt.Fprintf(w, ")\n")
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "panel\tlayer\tn\toffset_x [%s]\toffset_y [%s]\trotation [urad]\tscale_x [ppm]\tscale_y [ppm]\tskew [ppm]\trms [%s]\tmax [%s]\toutliers\t\n", lu.name, lu.name, lu.name, lu.name)
+	fmt.Fprintf(tw, "panel\tlayer\tn\t%srms [%s]\tmax [%s]\toutliers\t\n", termHeader(lu), lu.name, lu.name)
 	for _, f := range r.fits {
 		fmt.Fprintf(tw, "%s\t%s\t%d\t", f.Panel, f.Layer, f.N)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
@@ -498,7 +446,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	tw.Flush()
 	fmt.Fprintf(w, "\nlot (mean ± panel-to-panel sigma):\n")
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "layer\tpanels\toffset_x [%s]\toffset_y [%s]\trotation [urad]\tscale_x [ppm]\tscale_y [ppm]\tskew [ppm]\t\n", lu.name, lu.name)
+	fmt.Fprintf(tw, "layer\tpanels\t%s\n", termHeader(lu))
 	for _, l := range r.lots {
 		fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {

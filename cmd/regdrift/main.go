@@ -1,35 +1,21 @@
-// Command regdrift maps layer-to-layer misregistration across a PCB production
-// panel onto the coupling of broadside-coupled stripline couplers.
-//
-// Usage:
-//
-//	regdrift map    JOB  [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]
-//	regdrift sweep  JOB  [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [-o DIR] [--json]
-//	regdrift tol    JOB  [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [--json]
-//	regdrift fit    TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]
-//	regdrift comp   JOB  [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
-//	regdrift yield  JOB  [--trials N] [--seed S] [-o DIR] [--json]
-//	regdrift demo   [-o DIR]
-//	regdrift version
-//
-// Exit status: 0 success (also for -h), 1 a failure while running, 2 bad input
-// or usage, 3 out of spec (only with --strict).
 package main
 
 import (
 	"context"
+	_ "embed"
 	"errors"
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
-	"sort"
+	"runtime/debug"
 	"strings"
+	"syscall"
 
 	"github.com/spf13/pflag"
 )
 
-// version is the program version, printed by "regdrift version".
+// version is the program version, printed by "regdrift version" beside the
+// module version and VCS revision the binary was built from.
 const version = "0.1.0"
 
 // stdio holds the streams a command uses, so that tests can replace them.
@@ -40,26 +26,41 @@ type stdio struct {
 	tty bool
 }
 
-// command is one subcommand.
-type command struct {
-	name  string // "map"
-	usage string // "map JOB [flags]"
-	short string // one line for the command list
-	long  string // paragraphs for -h
-	order int    // position in the command list
-	// flags is built fresh for each run, so that tests may run a command twice.
-	flags func(fs *pflag.FlagSet) any
-	run   func(ctx context.Context, std stdio, opts any, args []string) error
+// options is one command's typed flag set: flags declares the flags on a
+// fresh pflag.FlagSet, and run does the work with them parsed.
+type options interface {
+	flags(fs *pflag.FlagSet)
+	run(ctx context.Context, std stdio, args []string) error
 }
 
-var commands = map[string]*command{}
+// command is one subcommand. Its usage line, summary and description come
+// from the command's section of doc.go, so that -h, godoc and the README
+// read the same text.
+type command struct {
+	name string
+	// options returns a fresh option set, so that a command may run twice in one process (tests).
+	options func() options
+}
 
-// register adds c to the command table; each command's file calls it from init.
-func register(c *command) {
-	if _, dup := commands[c.name]; dup {
-		panic("regdrift: command registered twice: " + c.name)
+// commands is the command table, in the order the command list shows it.
+var commands = []command{
+	{"demo", func() options { return new(demoFlags) }},
+	{"map", func() options { return new(mapFlags) }},
+	{"sweep", func() options { return new(sweepFlags) }},
+	{"tol", func() options { return new(tolFlags) }},
+	{"fit", func() options { return new(fitFlags) }},
+	{"comp", func() options { return new(compFlags) }},
+	{"yield", func() options { return new(yieldFlags) }},
+	{"version", func() options { return new(versionFlags) }},
+}
+
+func lookup(name string) (*command, bool) {
+	for i := range commands {
+		if commands[i].name == name {
+			return &commands[i], true
+		}
 	}
-	commands[c.name] = c
+	return nil, false
 }
 
 // Exit statuses.
@@ -68,6 +69,10 @@ const (
 	exitFailure   = 1
 	exitBadInput  = 2
 	exitOutOfSpec = 3
+	// exitCrash is a panic caught in the command: a defect of regdrift, never
+	// bad input, so that scripts can tell the two apart (70 is EX_SOFTWARE of
+	// BSD sysexits.h; an uncaught Go panic would exit 2, like bad input).
+	exitCrash = 70
 )
 
 // errBadInput marks errors caused by the user's input: exit status 2.
@@ -99,9 +104,22 @@ func main() {
 	os.Exit(realMain(os.Args[1:], os.Stdin, os.Stdout, os.Stderr))
 }
 
-func realMain(args []string, in io.Reader, out, errw io.Writer) int {
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
-	defer stop()
+func realMain(args []string, in io.Reader, out, errw io.Writer) (code int) {
+	defer func() {
+		if r := recover(); r != nil {
+			fmt.Fprintf(errw, "regdrift: internal error (please report it with the input that caused it): %v\n%s", r, debug.Stack())
+			code = exitCrash
+		}
+	}()
+	ctx, stop := withSignals(context.Background())
+	defer func() {
+		if s := stop(); s != nil && code != exitOK && code != exitCrash {
+			// The run was cut short by a signal: whatever it returned, say
+			// so and exit as a shell reports a signalled command (128 + n).
+			fmt.Fprintf(errw, "regdrift: interrupted (%v); no output written\n", s)
+			code = 128 + int(s.(syscall.Signal))
+		}
+	}()
 	std := stdio{in: in, out: out, err: errw, tty: isTerminal(errw)}
 	if len(args) == 0 {
 		printUsage(errw)
@@ -111,9 +129,8 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) int {
 	switch name {
 	case "-h", "--help", "help":
 		if len(args) > 1 {
-			if c, ok := commands[args[1]]; ok {
-				fs := newFlagSet(c)
-				fmt.Fprint(out, helpText(c, fs))
+			if c, ok := lookup(args[1]); ok {
+				fmt.Fprint(out, helpText(c))
 				return exitOK
 			}
 		}
@@ -122,7 +139,7 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) int {
 	case "-v", "--version":
 		name = "version"
 	}
-	c, ok := commands[name]
+	c, ok := lookup(name)
 	if !ok {
 		fmt.Fprintf(errw, "regdrift: unknown command %q\n\n", name)
 		printUsage(errw)
@@ -130,12 +147,15 @@ func realMain(args []string, in io.Reader, out, errw io.Writer) int {
 	}
 	err := invoke(ctx, c, std, args[1:])
 	if errors.Is(err, pflag.ErrHelp) {
-		fmt.Fprint(out, helpText(c, newFlagSet(c)))
+		fmt.Fprint(out, helpText(c))
 		return exitOK
+	}
+	if err != nil && interrupted.Load() {
+		return exitFailure // the deferred signal report gives the status
 	}
 	var fe *flagError
 	if errors.As(err, &fe) {
-		fmt.Fprintf(errw, "regdrift %s: %v\nusage: regdrift %s\nrun 'regdrift %s -h' for help\n", c.name, fe.err, c.usage, c.name)
+		fmt.Fprintf(errw, "regdrift %s: %v\nusage: regdrift %s\nrun 'regdrift %s -h' for help\n", c.name, fe.err, docFor(c.name).usage, c.name)
 		return exitBadInput
 	}
 	switch {
@@ -161,60 +181,50 @@ func (e *flagError) Unwrap() error        { return e.err }
 func (e *flagError) Is(target error) bool { return target == errBadInput }
 
 // invoke parses args with c's flags and runs c. A -h returns pflag.ErrHelp.
+// An output directory that cannot be written is bad input before any work starts.
 func invoke(ctx context.Context, c *command, std stdio, args []string) error {
-	fs := pflag.NewFlagSet(c.name, pflag.ContinueOnError)
+	opts := c.options()
+	fs := newFlagSet(c.name, opts)
 	fs.SetOutput(io.Discard)
-	fs.SortFlags = false
-	var opts any
-	if c.flags != nil {
-		opts = c.flags(fs)
-	}
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, pflag.ErrHelp) {
 			return err
 		}
 		return &flagError{err}
 	}
-	return c.run(ctx, std, opts, fs.Args())
+	if f := fs.Lookup("out"); f != nil {
+		if err := checkOutDir(f.Value.String()); err != nil {
+			return badInput(fmt.Errorf("-o: %w", err))
+		}
+	}
+	return opts.run(ctx, std, fs.Args())
 }
 
-func newFlagSet(c *command) *pflag.FlagSet {
-	fs := pflag.NewFlagSet(c.name, pflag.ContinueOnError)
+func newFlagSet(name string, opts options) *pflag.FlagSet {
+	fs := pflag.NewFlagSet(name, pflag.ContinueOnError)
 	fs.SortFlags = false
-	if c.flags != nil {
-		c.flags(fs)
-	}
+	opts.flags(fs)
 	return fs
 }
 
-func helpText(c *command, fs *pflag.FlagSet) string {
+// helpText is the -h text of c: its section of doc.go and its flags.
+func helpText(c *command) string {
+	d := docFor(c.name)
 	var b strings.Builder
-	fmt.Fprintf(&b, "usage: regdrift %s\n\n%s\n", c.usage, c.short)
-	if c.long != "" {
-		fmt.Fprintf(&b, "\n%s\n", strings.TrimSpace(c.long))
+	fmt.Fprintf(&b, "usage: regdrift %s\n\n%s\n", d.usage, d.short)
+	if d.long != "" {
+		fmt.Fprintf(&b, "\n%s\n", d.long)
 	}
-	if u := fs.FlagUsages(); u != "" {
+	if u := newFlagSet(c.name, c.options()).FlagUsages(); u != "" {
 		fmt.Fprintf(&b, "\nflags:\n%s", u)
 	}
 	return b.String()
 }
 
+// printUsage prints the overview of doc.go: what the program does, the
+// command list, exit statuses and the caution.
 func printUsage(w io.Writer) {
-	fmt.Fprintf(w, "regdrift maps layer-to-layer misregistration across a PCB panel onto the\ncoupling of broadside-coupled stripline couplers.\n\nusage: regdrift COMMAND [flags]\n\ncommands:\n")
-	var list []*command
-	for _, c := range commands {
-		list = append(list, c)
-	}
-	sort.Slice(list, func(i, j int) bool {
-		if list[i].order != list[j].order {
-			return list[i].order < list[j].order
-		}
-		return list[i].name < list[j].name
-	})
-	for _, c := range list {
-		fmt.Fprintf(w, "  %-8s %s\n", c.name, c.short)
-	}
-	fmt.Fprintf(w, "\nrun 'regdrift COMMAND -h' for a command's flags.\nResults are engineering estimates: check them against coupon measurements and\nthe fabricator's qualified process data.\n")
+	fmt.Fprint(w, docOverview())
 }
 
 func isTerminal(w io.Writer) bool {
@@ -226,15 +236,46 @@ func isTerminal(w io.Writer) bool {
 	return err == nil && st.Mode()&os.ModeCharDevice != 0
 }
 
-func init() {
-	register(&command{
-		name: "version", usage: "version", short: "print the version", order: 100,
-		run: func(ctx context.Context, std stdio, _ any, args []string) error {
-			if len(args) > 0 {
-				return usageErr("version takes no arguments")
+// versionFlags is the version command, which takes no flags.
+type versionFlags struct{}
+
+func (*versionFlags) flags(*pflag.FlagSet) {}
+
+func (*versionFlags) run(ctx context.Context, std stdio, args []string) error {
+	if len(args) > 0 {
+		return usageErr("version takes no arguments")
+	}
+	fmt.Fprintf(std.out, "regdrift %s\n", versionString())
+	return nil
+}
+
+// versionString is the program version with the module version and the VCS
+// revision recorded in the build information, when the binary has them.
+func versionString() string {
+	s := version
+	bi, ok := debug.ReadBuildInfo()
+	if !ok {
+		return s
+	}
+	if v := bi.Main.Version; v != "" && v != "(devel)" {
+		s += " (module " + v + ")"
+	}
+	var rev, modified string
+	for _, kv := range bi.Settings {
+		switch kv.Key {
+		case "vcs.revision":
+			rev = kv.Value
+		case "vcs.modified":
+			if kv.Value == "true" {
+				modified = ", modified"
 			}
-			fmt.Fprintf(std.out, "regdrift %s\n", version)
-			return nil
-		},
-	})
+		}
+	}
+	if rev != "" {
+		if len(rev) > 12 {
+			rev = rev[:12]
+		}
+		s += " (revision " + rev + modified + ")"
+	}
+	return s
 }

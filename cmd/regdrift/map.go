@@ -18,46 +18,23 @@ import (
 )
 
 type mapFlags struct {
-	out    string
-	units  string
+	outputFlags
 	show   string
 	width  int
-	json   bool
 	strict bool
 	solver solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "map",
-		usage: "map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]",
-		short: "map the broadside offset and coupling drift of every coupler site on the panel",
-		long: `Computes, for every coupler site of the job, the mean broadside offset that the
-registration error model produces there (closed form, linear in the terms), its
-standard deviation, and the coupling it gives from the section's solved
-coupling-versus-offset curve: drift against the design offset, margin to the
-spec limits, and the coupling at mean ± 3 sigma.
-
-Writes map.png (heatmap of the panel), sites.csv (one row per site) and
-summary.json to the output directory, and a summary table to stdout.`,
-		order: 1,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &mapFlags{}
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um (panel axes in in or mm)")
-			fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset), worst (worst drift within ±3σ), offset, sigma or margin")
-			fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when any site is out of spec")
-			f.solver.add(fs)
-			return f
-		},
-		run: runMap,
-	})
+// flags declares the command's flags on fs.
+func (f *mapFlags) flags(fs *pflag.FlagSet) {
+	f.outputFlags.add(fs)
+	fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset), worst (worst drift within ±3σ), offset, sigma or margin")
+	fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
+	addStrict(fs, &f.strict, "any site is out of spec")
+	f.solver.add(fs)
 }
 
-func runMap(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*mapFlags)
+func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("map takes one job file")
 	}
@@ -334,7 +311,7 @@ func (z mapZone) bounds() panel.Rect { return z.r }
 // zones returns one zone per array, then the whole usable area.
 func (a *analysis) zones() []mapZone {
 	var zs []mapZone
-	for ai, ext := range a.job.arrayExtents() {
+	for ai, ext := range a.job.ArrayExtents() {
 		if sec, u, ok := a.dominant(func(r *siteResult) bool { return r.Site.Array == ai }); ok {
 			zs = append(zs, mapZone{ext, sec, u})
 		}

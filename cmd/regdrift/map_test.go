@@ -44,6 +44,9 @@ func cacheDir(t *testing.T) string {
 }
 
 func TestMain(m *testing.M) {
+	if args := os.Getenv("REGDRIFT_TEST_CHILD"); args != "" {
+		childMain(args)
+	}
 	flag.Parse()
 	code := m.Run()
 	if sharedCache != "" {

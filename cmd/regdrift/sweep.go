@@ -19,42 +19,18 @@ import (
 )
 
 type sweepFlags struct {
-	out     string
+	outputFlags
 	section string
 	offsets string
-	units   string
-	json    bool
 	solver  solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "sweep",
-		usage: "sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [-o DIR] [--json]",
-		short: "solve a section's cross-section over a range of lateral offsets",
-		long: `Solves the cross-section of one section of the job (the first by default) at
-each lateral offset of the upper trace relative to the lower (design offset
-included) and reports the capacitance and inductance matrices, kC and kL,
-coupling and directivity at the centre frequency, each line's impedance, the
-even and odd impedances of a symmetric pair, and both modes' effective
-permittivity. The default offsets cover ±3 sigma of the job's worst site and at
-least ±5 mil about the design offset.
-
-Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
-where it leaves the spec; impedances; directivity).`,
-		order: 2,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &sweepFlags{}
-			fs.StringVar(&f.section, "section", "", "section to sweep (default: the first)")
-			fs.StringVar(&f.offsets, "offsets", "", "offsets FROM:TO:STEP, each with a unit, e.g. -5mil:5mil:0.5mil")
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.BoolVar(&f.json, "json", false, "print the JSON result to stdout instead of the table")
-			f.solver.add(fs)
-			return f
-		},
-		run: runSweep,
-	})
+// flags declares the command's flags on fs.
+func (f *sweepFlags) flags(fs *pflag.FlagSet) {
+	fs.StringVar(&f.section, "section", "", "section to sweep (default: the first)")
+	fs.StringVar(&f.offsets, "offsets", "", "offsets FROM:TO:STEP, each with a unit, e.g. -5mil:5mil:0.5mil")
+	f.outputFlags.add(fs)
+	f.solver.add(fs)
 }
 
 // pickSection returns the index of the named section, or of the first.
@@ -74,8 +50,7 @@ func pickSection(j *Job, name string) (int, error) {
 	return 0, usageErr("--section: no section named %q in %s (have %v)", name, j.File, names)
 }
 
-func runSweep(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*sweepFlags)
+func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("sweep takes one job file")
 	}
@@ -112,11 +87,10 @@ func runSweep(ctx context.Context, std stdio, opts any, args []string) error {
 	if err != nil {
 		var fe *section.FieldError
 		if errors.As(err, &fe) {
-			src := j.sectionSrc[si]
 			if fe.Key == "offsets" {
 				return usageErr("--offsets: %v", fe.Err)
 			}
-			return src.err(fe.Key, fe.Err)
+			return badInput(j.SectionError(si, fe.Key, fe.Err))
 		}
 		return err
 	}

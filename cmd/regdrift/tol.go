@@ -19,55 +19,22 @@ import (
 )
 
 type tolFlags struct {
-	out        string
+	outputFlags
 	section    string
 	widen      string
 	widenTrace string
-	units      string
-	json       bool
 	strict     bool
 	solver     solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "tol",
-		usage: "tol JOB [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [-o DIR] [--json]",
-		short: "layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study",
-		long: `For each section (or the one named), finds the lateral offsets at which the
-coupling meets the lower and upper spec limits, by root-finding on the solved
-coupling curve, and confirms each by a direct field solve at the root (refined
-by the secant method on direct solves until the coupling is within 0.0002 dB of
-the limit). The symmetric tolerance for the drawing is the smaller distance
-from the design offset to the two limits. If the curve is still in spec at the
-end of its range, the range is doubled (up to four times).
-
---widen FROM:TO:STEP studies making one trace (the lower by default, see
---widen-trace) wider by each width difference: the tolerance against the
-job's spec, the tolerance against the spec window re-centred on the widened
-design's own coupling (widening moves the nominal coupling, so the design
-would be re-tuned), the coupling at the design offset and each line's
-impedance, as a table and tol.png (the family of coupling curves with the spec
-band).
-
-Also an orientation study per array: the closed-form mean site yield with
-the parts as placed and turned a quarter turn (couplers kept in place; only
-the offset across the coupled lines counts).`,
-		order: 3,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &tolFlags{}
-			fs.StringVar(&f.section, "section", "", "section to study (default: all)")
-			fs.StringVar(&f.widen, "widen", "", "width differences FROM:TO:STEP, each with a unit, e.g. 0mil:4mil:1mil")
-			fs.StringVar(&f.widenTrace, "widen-trace", "lower", "trace the width study widens: upper or lower")
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um")
-			fs.BoolVar(&f.json, "json", false, "print the JSON result to stdout instead of the table")
-			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when a design is outside its spec")
-			f.solver.add(fs)
-			return f
-		},
-		run: runTol,
-	})
+// flags declares the command's flags on fs.
+func (f *tolFlags) flags(fs *pflag.FlagSet) {
+	fs.StringVar(&f.section, "section", "", "section to study (default: all)")
+	fs.StringVar(&f.widen, "widen", "", "width differences FROM:TO:STEP, each with a unit, e.g. 0mil:4mil:1mil")
+	fs.StringVar(&f.widenTrace, "widen-trace", "lower", "trace the width study widens: upper or lower")
+	f.outputFlags.add(fs)
+	addStrict(fs, &f.strict, "a design is outside its spec")
+	f.solver.add(fs)
 }
 
 // tolConfirmDB is how close a confirmed root's directly solved coupling must
@@ -125,8 +92,7 @@ type widenRow struct {
 	curve *section.Curve
 }
 
-func runTol(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*tolFlags)
+func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("tol takes one job file")
 	}

@@ -23,62 +23,22 @@ import (
 )
 
 type yieldFlags struct {
-	out     string
+	outputFlags
 	trials  int
 	seed    uint64
 	workers int
-	units   string
-	json    bool
 	strict  bool
 	solver  solverFlags
 }
 
-func init() {
-	register(&command{
-		name:  "yield",
-		usage: "yield JOB [--trials N] [--seed S] [-o DIR] [--json]",
-		short: "coupler and part yield across panels, and the error budget",
-		long: `Estimates how many couplers and parts meet their coupling spec across
-panel-to-panel variation of the registration error model.
-
-Each section's coupling curve (solved over at least ±5 mil about the design
-offset, wider while the coupling is still in spec at its ends) is inverted
-against its spec to give the interval
-of allowed offsets (it may be asymmetric about the design offset; if the design
-itself is out of spec the interval is empty, a warning is printed and its sites
-yield 0). The closed-form site yield is P(offset in interval) for the site's
-offset distribution (normal terms and site_sigma exactly; the two widest
-uniform terms exactly, any further ones by their variance). The Monte Carlo draws
-every term once per panel and site_sigma once per site, and counts good sites,
-good parts (every coupler of the part good) and good parts per panel. Runs are
-split into fixed blocks of panels, each with its own PCG stream, so the result
-for a seed does not depend on --workers.
-
-The error budget gives each contributor term's share of the across-offset
-variance (squared sensitivity times variance) at the worst site and averaged
-over the panel; its sd column is the standard deviation the term alone causes
-(over the panel, the rms over the sites).
-
-Writes yield.png (closed-form site yield over the panel for the most common
-section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
-site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
-(per site p_closed, p_mc and its standard error), budget.csv, budget.png and
-yield.json, and a summary table to stdout.`,
-		order: 6,
-		flags: func(fs *pflag.FlagSet) any {
-			f := &yieldFlags{}
-			fs.IntVar(&f.trials, "trials", 10000, "number of panels drawn in the Monte Carlo")
-			fs.Uint64Var(&f.seed, "seed", 1, "seed of the random streams")
-			fs.IntVar(&f.workers, "workers", 0, "parallel workers (0: one per CPU); results do not depend on it")
-			fs.StringVarP(&f.out, "out", "o", "regdrift-out", "output directory")
-			fs.StringVar(&f.units, "units", "mil", "output length unit: mil or um (panel axes in in or mm)")
-			fs.BoolVar(&f.json, "json", false, "print the JSON summary to stdout instead of the table")
-			fs.BoolVar(&f.strict, "strict", false, "exit with status 3 when the expected part yield is below 100 %")
-			f.solver.add(fs)
-			return f
-		},
-		run: runYield,
-	})
+// flags declares the command's flags on fs.
+func (f *yieldFlags) flags(fs *pflag.FlagSet) {
+	fs.IntVar(&f.trials, "trials", 10000, "number of panels drawn in the Monte Carlo")
+	fs.Uint64Var(&f.seed, "seed", 1, "seed of the random streams")
+	fs.IntVar(&f.workers, "workers", 0, "parallel workers (0: one per CPU); results do not depend on it")
+	f.outputFlags.add(fs)
+	addStrict(fs, &f.strict, "the expected part yield is below 100 %")
+	f.solver.add(fs)
 }
 
 // yieldSigmas is how far beyond the sites' mean offsets, in standard
@@ -262,8 +222,7 @@ type orientJSON struct {
 	TurnHelps       bool    `json:"turn_helps"`
 }
 
-func runYield(ctx context.Context, std stdio, opts any, args []string) error {
-	f := opts.(*yieldFlags)
+func (f *yieldFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("yield takes one job file")
 	}
@@ -634,7 +593,7 @@ func (ys *yieldSetup) zones() []fieldZone {
 		deg int
 	}
 	var out []fieldZone
-	for ai, ext := range j.arrayExtents() {
+	for ai, ext := range j.ArrayExtents() {
 		z := fieldZone{r: ext}
 		seen := map[key]bool{}
 		for i, st := range j.Sites {

@@ -1,0 +1,224 @@
+/*
+Regdrift maps layer-to-layer misregistration across a PCB production panel onto
+the coupling of broadside-coupled stripline couplers: the broadside offset at
+every coupler site, the coupling drift it causes, yield, error budget, the
+offset tolerance for the fabrication drawing, and artwork scale compensation
+from measured registration targets.
+
+Usage:
+
+	regdrift COMMAND [flags] [arguments]
+
+The commands are:
+
+	demo     run the embedded demo jobs end to end
+	map      map the broadside offset and coupling drift of every coupler site on the panel
+	sweep    solve a section's cross-section over a range of lateral offsets
+	tol      layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study
+	fit      fit each layer's movement (offset, rotation, scale, skew) to measured registration targets
+	comp     recommend per-layer artwork scale compensation that minimises the broadside offsets
+	yield    coupler and part yield across panels, and the error budget
+	version  print the version, module version and VCS revision
+
+Run 'regdrift COMMAND -h' for a command's flags.
+
+Exit status: 0 success (also for -h), 1 a failure while running, 2 bad input
+or usage, 3 out of spec (only with --strict).
+
+Results are engineering estimates: check them against coupon measurements and
+the fabricator's qualified process data.
+
+# demo
+
+Usage:
+
+	regdrift demo [-o DIR]
+
+Run the embedded demo jobs end to end.
+
+Copies the embedded demo jobs into DIR/samples (so that you can edit and rerun
+them) and maps each one into DIR/<job>/: a same-core 3 dB hybrid build, the same
+hybrids on two cores (which drift more toward the corners), and a panel of
+10 dB offset-broadside couplers whose coupling moves linearly with offset.
+All demo data are invented.
+
+# map
+
+Usage:
+
+	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]
+
+Map the broadside offset and coupling drift of every coupler site on the panel.
+
+Computes, for every coupler site of the job, the mean broadside offset that the
+registration error model produces there (closed form, linear in the terms), its
+standard deviation, and the coupling it gives from the section's solved
+coupling-versus-offset curve: drift against the design offset, margin to the
+spec limits, and the coupling at mean ± 3 sigma.
+
+Writes map.png (heatmap of the panel), sites.csv (one row per site) and
+summary.json to the output directory, and a summary table to stdout.
+
+# sweep
+
+Usage:
+
+	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [-o DIR] [--json]
+
+Solve a section's cross-section over a range of lateral offsets.
+
+Solves the cross-section of one section of the job (the first by default) at
+each lateral offset of the upper trace relative to the lower (design offset
+included) and reports the capacitance and inductance matrices, kC and kL,
+coupling and directivity at the centre frequency, each line's impedance, the
+even and odd impedances of a symmetric pair, and both modes' effective
+permittivity. The default offsets cover ±3 sigma of the job's worst site and at
+least ±5 mil about the design offset.
+
+Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
+where it leaves the spec; impedances; directivity).
+
+# tol
+
+Usage:
+
+	regdrift tol JOB [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [-o DIR] [--json]
+
+Layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study.
+
+For each section (or the one named), finds the lateral offsets at which the
+coupling meets the lower and upper spec limits, by root-finding on the solved
+coupling curve, and confirms each by a direct field solve at the root (refined
+by the secant method on direct solves until the coupling is within 0.0002 dB of
+the limit). The symmetric tolerance for the drawing is the smaller distance
+from the design offset to the two limits. If the curve is still in spec at the
+end of its range, the range is doubled (up to four times).
+
+--widen FROM:TO:STEP studies making one trace (the lower by default, see
+--widen-trace) wider by each width difference: the tolerance against the
+job's spec, the tolerance against the spec window re-centred on the widened
+design's own coupling (widening moves the nominal coupling, so the design
+would be re-tuned), the coupling at the design offset and each line's
+impedance, as a table and tol.png (the family of coupling curves with the spec
+band).
+
+Also an orientation study per array: the closed-form mean site yield with
+the parts as placed and turned a quarter turn (couplers kept in place; only
+the offset across the coupled lines counts).
+
+# fit
+
+Usage:
+
+	regdrift fit TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]
+
+Fit each layer's movement (offset, rotation, scale, skew) to measured registration targets.
+
+Reads a measurement file (CSV, units in the header):
+
+	panel,layer,target,x [in],y [in],dx [mil],dy [mil]
+
+with the nominal target positions in the panel frame (origin at the panel
+centre, y up, as in the job file) and the measured displacements, or x_meas and
+y_meas columns with the measured positions instead of dx and dy. A layer is
+measured against the drilled tooling ("L3") or against another layer ("L3-L4",
+L3 relative to L4). "-" reads standard input.
+
+For each panel and layer it fits the first-order affine field about the datum
+by least squares: six terms (affine), four (similarity: offsets, rotation and
+one scale) or two (translation), with standard errors from the residual
+variance and the normal matrix. --robust reweights iteratively to find
+mis-measured targets: Huber weights, then Tukey's biweight, on each target's
+radial residual in units of a robust scale (from the median residual); the
+targets beyond 4 sigma are then rejected and the rest refitted by ordinary
+least squares, repeated until the set of rejected targets is stable. The
+rejected targets are reported as outliers.
+
+Then the lot: the mean and standard deviation of each term over the panels,
+per layer, and the pooled residual field (what the affine model leaves) on a
+grid. Writes fit.csv (one row per panel and layer), residuals.csv (one row per
+target), residual-grid-LAYER.csv (the pooled field, in the format a
+contributor's residual = "..." reads) and fit.png (for each layer the targets
+on the panel with the measured displacement and the residual after the fit as
+exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
+TOML [[contributor]] blocks for a job's include = [...].
+
+# comp
+
+Usage:
+
+	regdrift comp JOB [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
+
+Recommend per-layer artwork scale compensation that minimises the broadside offsets.
+
+Recommends the artwork scale compensation of each trace layer, X and Y, in ppm
+and as a factor, from the job's registration model: the compensation that
+minimises the worst broadside offset over all sites (--objective worst, a
+linear programme) or its root mean square (--objective rms, least squares).
+
+With --targets, the measurement file is fitted first (as regdrift fit does,
+about the job's datum) and each measured layer's lot mean and sigma replace
+what the job's contributors say about that layer: the measurement already
+holds every source that moves it. Contributors keep acting on the layers that
+were not measured (--keep-job-terms adds the measurement instead). A layer in
+the targets that the job does not have is skipped with a warning.
+
+Only the difference of two layers' compensation across the coupled lines moves
+a broadside offset, so the offsets fix the differences and leave a common part
+free. With --drill-budget the common part keeps every trace layer's mean
+registration to the drilled holes within the budget (per axis, at every site)
+and as small as possible; without it the common part is the smallest
+compensation. The output says which. The compensation is what the artwork is
+scaled by before the material moves: a layer whose material shrinks by ε is
+compensated fully by the factor 1/(1+ε).
+
+Writes comp.csv (per site, before and after), comp.png (the mean offset maps
+before and after, side by side on one colour scale), compensation.toml (the
+recommendation as [[contributor]] blocks, to include in the job and map again)
+and comp.json. Sites in spec and the predicted site yield use the section's
+solved coupling curve, as map and yield do.
+
+# yield
+
+Usage:
+
+	regdrift yield JOB [--trials N] [--seed S] [-o DIR] [--json]
+
+Coupler and part yield across panels, and the error budget.
+
+Estimates how many couplers and parts meet their coupling spec across
+panel-to-panel variation of the registration error model.
+
+Each section's coupling curve (solved over at least ±5 mil about the design
+offset, wider while the coupling is still in spec at its ends) is inverted
+against its spec to give the interval
+of allowed offsets (it may be asymmetric about the design offset; if the design
+itself is out of spec the interval is empty, a warning is printed and its sites
+yield 0). The closed-form site yield is P(offset in interval) for the site's
+offset distribution (normal terms and site_sigma exactly; the two widest
+uniform terms exactly, any further ones by their variance). The Monte Carlo draws
+every term once per panel and site_sigma once per site, and counts good sites,
+good parts (every coupler of the part good) and good parts per panel. Runs are
+split into fixed blocks of panels, each with its own PCG stream, so the result
+for a seed does not depend on --workers.
+
+The error budget gives each contributor term's share of the across-offset
+variance (squared sensitivity times variance) at the worst site and averaged
+over the panel; its sd column is the standard deviation the term alone causes
+(over the panel, the rms over the sites).
+
+Writes yield.png (closed-form site yield over the panel for the most common
+section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
+site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
+(per site p_closed, p_mc and its standard error), budget.csv, budget.png and
+yield.json, and a summary table to stdout.
+
+# version
+
+Usage:
+
+	regdrift version
+
+Print the version, module version and VCS revision.
+*/
+package main
