@@ -4,6 +4,7 @@ import (
 	"context"
 	"encoding/csv"
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
 	"slices"
@@ -187,10 +188,9 @@ func (c *Comparison) Summary(measured, notes []string) *CompSummary {
 }
 
 // WriteCSV writes one row per site before and after (comp.csv).
-func (c *Comparison) WriteCSV(w io.Writer, u Units) error {
-	u = u.orDefault()
+func (c *Comparison) WriteCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	L, P := "["+u.Length+"]", "["+u.Panel+"]"
+	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
 	header := []string{"site", "section", "x " + P, "y " + P, "angle [deg]",
 		"offset_before " + L, "offset_after " + L, "sigma " + L, "in_spec_before", "in_spec_after", "p_before", "p_after"}
 	if err := cw.Write(header); err != nil {
@@ -199,8 +199,8 @@ func (c *Comparison) WriteCSV(w io.Writer, u Units) error {
 	for k := range c.Before.Sites {
 		b, a := &c.Before.Sites[k], &c.After.Sites[k]
 		s := b.Site
-		rec := []string{s.Name, s.Section, fixed(s.Pos.X/u.PanelM, 4), fixed(s.Pos.Y/u.PanelM, 4), fixed(s.Angle*180/math.Pi, 2),
-			fixed(b.Offset/u.LengthM, 4), fixed(a.Offset/u.LengthM, 4), fixed(a.Stats.SDAcross/u.LengthM, 4),
+		rec := []string{s.Name, s.Section, fixed(s.Pos.X/u.PanelSI(), 4), fixed(s.Pos.Y/u.PanelSI(), 4), fixed(s.Angle*180/math.Pi, 2),
+			fixed(b.Offset/u.LengthSI(), 4), fixed(a.Offset/u.LengthSI(), 4), fixed(a.Stats.SDAcross/u.LengthSI(), 4),
 			strconv.FormatBool(b.InSpec), strconv.FormatBool(a.InSpec),
 			fixed(b.PInSpec, 6), fixed(a.PInSpec, 6)}
 		if err := cw.Write(rec); err != nil {

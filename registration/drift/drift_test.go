@@ -3,6 +3,7 @@ package drift
 import (
 	"bytes"
 	"encoding/csv"
+	"github.com/regdrift/regdrift/panel/unit"
 	"math"
 	"testing"
 
@@ -114,10 +115,10 @@ func TestOneEvaluator(t *testing.T) {
 	}
 	// The CSV files say the same: sites.csv in_spec and comp.csv in_spec_before.
 	var sb, cb bytes.Buffer
-	if err := a.WriteSitesCSV(&sb, Mils); err != nil {
+	if err := a.WriteSitesCSV(&sb, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
-	if err := cmp.WriteCSV(&cb, Mils); err != nil {
+	if err := cmp.WriteCSV(&cb, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
 	sr, _ := csv.NewReader(&sb).ReadAll()

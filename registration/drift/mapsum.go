@@ -2,6 +2,7 @@ package drift
 
 import (
 	"encoding/csv"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
 	"strconv"
@@ -116,11 +117,10 @@ func (a *Analysis) Summary(n int) *MapSummary {
 
 // WriteSitesCSV writes one row per site (sites.csv): position, offsets,
 // coupling, drift, margin, in spec and the coupling at ±3σ.
-func (a *Analysis) WriteSitesCSV(w io.Writer, u Units) error {
-	u = u.orDefault()
+func (a *Analysis) WriteSitesCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	L := "[" + u.Length + "]"
-	P := "[" + u.Panel + "]"
+	L := "[" + u.Length() + "]"
+	P := "[" + u.Panel() + "]"
 	header := []string{"site", "part", "array", "i", "j", "coupler", "section",
 		"x " + P, "y " + P, "angle [deg]",
 		"offset_across " + L, "sigma_across " + L, "offset_along " + L, "sigma_along " + L,
@@ -136,8 +136,8 @@ func (a *Analysis) WriteSitesCSV(w io.Writer, u Units) error {
 		rec = rec[:0]
 		rec = append(rec, s.Name, a.In.PartName(s), strconv.Itoa(s.Array+1), strconv.Itoa(s.I+1), strconv.Itoa(s.J+1), s.Coupler,
 			a.In.Sections[r.Section].Name,
-			fixed(s.Pos.X/u.PanelM, 4), fixed(s.Pos.Y/u.PanelM, 4), fixed(s.Angle*180/math.Pi, 2),
-			fixed(r.Offset/u.LengthM, 4), fixed(r.Stats.SDAcross/u.LengthM, 4), fixed(r.Along/u.LengthM, 4), fixed(r.Stats.SDAlong/u.LengthM, 4),
+			fixed(s.Pos.X/u.PanelSI(), 4), fixed(s.Pos.Y/u.PanelSI(), 4), fixed(s.Angle*180/math.Pi, 2),
+			fixed(r.Offset/u.LengthSI(), 4), fixed(r.Stats.SDAcross/u.LengthSI(), 4), fixed(r.Along/u.LengthSI(), 4), fixed(r.Stats.SDAlong/u.LengthSI(), 4),
 			fixed(r.Coupling, 4), fixed(r.Drift, 4), fixed(r.Margin, 4), strconv.FormatBool(r.InSpec),
 			fixed(r.CouplingLo, 4), fixed(r.CouplingHi, 4))
 		if err := cw.Write(rec); err != nil {

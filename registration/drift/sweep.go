@@ -2,6 +2,7 @@ package drift
 
 import (
 	"encoding/csv"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"sort"
 	"strconv"
@@ -69,10 +70,9 @@ func SpecCrossings(c *section.Curve, sp section.Spec) []float64 {
 // WriteSweepCSV writes one row per solved offset of c (sweep.csv): the
 // capacitance and inductance matrices, kC and kL, coupling and directivity,
 // impedances, the modes' effective permittivities and the estimated error.
-func WriteSweepCSV(w io.Writer, c *section.Curve, u Units) error {
-	u = u.orDefault()
+func WriteSweepCSV(w io.Writer, c *section.Curve, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	header := []string{"offset [" + u.Length + "]",
+	header := []string{"offset [" + u.Length() + "]",
 		"c11 [pF/m]", "c12 [pF/m]", "c22 [pF/m]", "c0_11 [pF/m]", "c0_12 [pF/m]", "c0_22 [pF/m]",
 		"l11 [nH/m]", "l12 [nH/m]", "l22 [nH/m]", "k_c", "k_l",
 		"coupling [dB]", "directivity [dB]", "z_line1 [ohm]", "z_line2 [ohm]", "z_even [ohm]", "z_odd [ohm]",
@@ -85,7 +85,7 @@ func WriteSweepCSV(w io.Writer, c *section.Curve, u Units) error {
 		if p.Symmetric {
 			ze, zo = fixed(p.ZEven, 4), fixed(p.ZOdd, 4)
 		}
-		rec := []string{fixed(p.Offset/u.LengthM, 4),
+		rec := []string{fixed(p.Offset/u.LengthSI(), 4),
 			fixed(p.C[0][0]*1e12, 4), fixed(p.C[0][1]*1e12, 4), fixed(p.C[1][1]*1e12, 4),
 			fixed(p.C0[0][0]*1e12, 4), fixed(p.C0[0][1]*1e12, 4), fixed(p.C0[1][1]*1e12, 4),
 			fixed(p.L[0][0]*1e9, 4), fixed(p.L[0][1]*1e9, 4), fixed(p.L[1][1]*1e9, 4), fixed(p.KC, 6), fixed(p.KL, 6),

@@ -2,6 +2,7 @@ package drift
 
 import (
 	"encoding/csv"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
 	"sort"
@@ -260,10 +261,9 @@ func (a *Analysis) Orientation() []Orient {
 
 // WriteYieldCSV writes one row per site (yield.csv): offset statistics, the
 // allowed interval, the closed-form and Monte Carlo yields.
-func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u Units) error {
-	u = u.orDefault()
+func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	pu, lu := "["+u.Panel+"]", "["+u.Length+"]"
+	pu, lu := "["+u.Panel()+"]", "["+u.Length()+"]"
 	if err := cw.Write([]string{"site", "name", "section", "part", "x " + pu, "y " + pu, "angle [deg]",
 		"offset_mean " + lu, "offset_sd " + lu, "allowed_low " + lu, "allowed_high " + lu,
 		"p_closed", "p_mc", "p_mc_se"}); err != nil {
@@ -275,11 +275,11 @@ func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u Unit
 		iv := a.Yield.Sites[i].Allowed
 		lo, hi := "", ""
 		if !iv.Empty() {
-			lo, hi = fixed(iv.Lo/u.LengthM, 4), fixed(iv.Hi/u.LengthM, 4)
+			lo, hi = fixed(iv.Lo/u.LengthSI(), 4), fixed(iv.Hi/u.LengthSI(), 4)
 		}
 		if err := cw.Write([]string{strconv.Itoa(i + 1), s.Name, s.Section, a.In.PartName(s),
-			fixed(s.Pos.X/u.PanelM, 4), fixed(s.Pos.Y/u.PanelM, 4), fixed(s.Angle*180/math.Pi, 2),
-			fixed(r.Offset/u.LengthM, 4), fixed(r.Stats.SDAcross/u.LengthM, 4), lo, hi,
+			fixed(s.Pos.X/u.PanelSI(), 4), fixed(s.Pos.Y/u.PanelSI(), 4), fixed(s.Angle*180/math.Pi, 2),
+			fixed(r.Offset/u.LengthSI(), 4), fixed(r.Stats.SDAcross/u.LengthSI(), 4), lo, hi,
 			fixed(r.PInSpec, 6), fixed(res.SiteYield(i), 6), fixed(res.SiteSE(i), 6)}); err != nil {
 			return err
 		}
@@ -289,10 +289,9 @@ func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u Unit
 }
 
 // WriteBudgetCSV writes the error budget rows of sum (budget.csv).
-func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u Units) error {
-	u = u.orDefault()
+func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"scope", "rank", "contributor", "term", "share", "sd [" + u.Length + "]"}); err != nil {
+	if err := cw.Write([]string{"scope", "rank", "contributor", "term", "share", "sd [" + u.Length() + "]"}); err != nil {
 		return err
 	}
 	for _, part := range []struct {
@@ -301,7 +300,7 @@ func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u Units) error {
 	}{{"worst site: " + sum.Budget.WorstSite, sum.Budget.AtWorst}, {"panel", sum.Budget.Panel}} {
 		for k, r := range part.rows {
 			if err := cw.Write([]string{part.scope, strconv.Itoa(k + 1), r.Contributor, r.Term,
-				fixed(r.Share, 5), fixed(r.SDM/u.LengthM, 4)}); err != nil {
+				fixed(r.Share, 5), fixed(r.SDM/u.LengthSI(), 4)}); err != nil {
 				return err
 			}
 		}

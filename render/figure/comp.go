@@ -2,6 +2,7 @@ package figure
 
 import (
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"image/color"
 	"io"
 	"math"
@@ -14,10 +15,7 @@ import (
 // Comp draws the mean misregistration across the lines (design offset
 // excluded) before and after compensation side by side on one diverging
 // colour scale (comp.png); width is in pixels, 0 meaning 2400.
-func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u drift.Units) error {
-	if u.LengthM == 0 {
-		u = drift.Mils
-	}
+func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u unit.Output) error {
 	if width == 0 {
 		width = 2400
 	}
@@ -28,11 +26,11 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 	var grids []*render.Grid
 	var lim float64
 	for _, a := range states {
-		g := fieldGrid(in, width/12, zoneField(a, zones, drift.Misregistration, 1/u.LengthM))
+		g := fieldGrid(in, width/12, zoneField(a, zones, drift.Misregistration, 1/u.LengthSI()))
 		lo, hi := g.Range()
 		lim = math.Max(lim, math.Max(-lo, hi))
 		for i := range a.Sites {
-			lim = math.Max(lim, math.Abs(a.Sites[i].Stats.MeanAcross/u.LengthM))
+			lim = math.Max(lim, math.Abs(a.Sites[i].Stats.MeanAcross/u.LengthSI()))
 		}
 		grids = append(grids, g)
 	}
@@ -51,7 +49,7 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 	}
 	caption := func(name string, v drift.CompState) string {
 		return fmt.Sprintf("%s: worst %.2f %s, rms %.2f %s, %d/%d in spec, site yield %.3f %%",
-			name, v.WorstOffsetM/u.LengthM, u.Length, v.RMSOffsetM/u.LengthM, u.Length, v.InSpec, v.Sites, 100*v.SiteYield)
+			name, v.WorstOffsetM/u.LengthSI(), u.Length(), v.RMSOffsetM/u.LengthSI(), u.Length(), v.InSpec, v.Sites, 100*v.SiteYield)
 	}
 	m := newPanelMap(in, u, render.MapSpec{Width: width, Views: 2, Title: title,
 		Captions: []string{caption("before", sum.Before), caption("after", sum.After)}})
@@ -59,9 +57,9 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 		v := m.Views[vi]
 		drawPanel(v, in, grids[vi], render.Diverging, -lim, lim, false)
 		v.Bars(siteBars(a, func(_ int, r *drift.Site) color.RGBA {
-			return render.Diverging.Map(r.Stats.MeanAcross/u.LengthM, -lim, lim)
+			return render.Diverging.Map(r.Stats.MeanAcross/u.LengthSI(), -lim, lim)
 		}), render.BarStyle{})
 	}
-	m.ColorBar(render.Diverging, -lim, lim, "mean broadside offset across the lines, design offset excluded ["+u.Length+"]")
+	m.ColorBar(render.Diverging, -lim, lim, "mean broadside offset across the lines, design offset excluded ["+u.Length()+"]")
 	return m.EncodePNG(w)
 }

@@ -2,6 +2,7 @@ package figure
 
 import (
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
 	"strings"
@@ -18,17 +19,14 @@ func specBand(s *section.Section) render.Band {
 }
 
 // offsetLabel is the x axis title of every plot against offset.
-func offsetLabel(u drift.Units) string {
-	return "offset of the upper trace across the lines [" + u.Length + "]"
+func offsetLabel(u unit.Output) string {
+	return "offset of the upper trace across the lines [" + u.Length() + "]"
 }
 
 // Tol plots coupling against offset for each studied section of r (one panel
 // each) with the spec band, the offsets where the design meets the limits,
 // and the widened designs' curves (tol.png).
-func Tol(w io.Writer, r *drift.TolSummary, u drift.Units) error {
-	if u.LengthM == 0 {
-		u = drift.Mils
-	}
+func Tol(w io.Writer, r *drift.TolSummary, u unit.Output) error {
 	p := &render.Plot{XLabel: offsetLabel(u)}
 	var titles []string
 	xlo, xhi := math.Inf(1), math.Inf(-1)
@@ -43,7 +41,7 @@ func Tol(w io.Writer, r *drift.TolSummary, u drift.Units) error {
 			xs, ys := make([]float64, n+1), make([]float64, n+1)
 			for q := range xs {
 				x := lo + (hi-lo)*float64(q)/n
-				xs[q], ys[q] = x/u.LengthM, c.Coupling(x)
+				xs[q], ys[q] = x/u.LengthSI(), c.Coupling(x)
 			}
 			line := render.Line{Label: label, X: xs, Y: ys, Color: render.Series(i)}
 			if i > 0 {
@@ -56,20 +54,20 @@ func Tol(w io.Writer, r *drift.TolSummary, u drift.Units) error {
 			if row.DeltaWM == 0 {
 				continue
 			}
-			add(row.Curve.Curve, fmt.Sprintf("%s %+.2f %s", row.Trace, row.DeltaWM/u.LengthM, u.Length), q+1)
+			add(row.Curve.Curve, fmt.Sprintf("%s %+.2f %s", row.Trace, row.DeltaWM/u.LengthSI(), u.Length()), q+1)
 		}
-		a.VLines = append(a.VLines, render.VLine{X: s.NominalOffset() / u.LengthM, Label: "design", Color: render.Frame})
+		a.VLines = append(a.VLines, render.VLine{X: s.NominalOffset() / u.LengthSI(), Label: "design", Color: render.Frame})
 		if st.DesignInSpec {
 			for _, x := range []*float64{st.OffsetLowM, st.OffsetHighM} {
-				a.VLines = append(a.VLines, render.VLine{X: *x / u.LengthM, Label: fmt.Sprintf("%+.2f %s", *x/u.LengthM, u.Length), Color: render.Series(0)})
+				a.VLines = append(a.VLines, render.VLine{X: *x / u.LengthSI(), Label: fmt.Sprintf("%+.2f %s", *x/u.LengthSI(), u.Length()), Color: render.Series(0)})
 			}
-			titles = append(titles, fmt.Sprintf("%s ± %.2f %s", s.Name, st.ToleranceM/u.LengthM, u.Length))
+			titles = append(titles, fmt.Sprintf("%s ± %.2f %s", s.Name, st.ToleranceM/u.LengthSI(), u.Length()))
 		} else {
 			titles = append(titles, s.Name+" out of spec")
 		}
 		p.Axes = append(p.Axes, a)
 	}
-	p.XMin, p.XMax = xlo/u.LengthM, xhi/u.LengthM
+	p.XMin, p.XMax = xlo/u.LengthSI(), xhi/u.LengthSI()
 	p.Title = "Offset tolerance: coupling against lateral offset, spec band; " + strings.Join(titles, ", ")
 	return p.Render(1800, 700+400*len(p.Axes)).EncodePNG(w)
 }
@@ -77,10 +75,7 @@ func Tol(w io.Writer, r *drift.TolSummary, u drift.Units) error {
 // Sweep plots the curve c of section s (sweep.png): coupling with the spec
 // band and the offsets where it crosses a limit, each line's impedance and
 // the directivity, against offset.
-func Sweep(w io.Writer, s *section.Section, c *section.Curve, u drift.Units) error {
-	if u.LengthM == 0 {
-		u = drift.Mils
-	}
+func Sweep(w io.Writer, s *section.Section, c *section.Curve, u unit.Output) error {
 	lo, hi := c.Range()
 	const n = 400
 	xs := make([]float64, n+1)
@@ -90,7 +85,7 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u drift.Units) err
 	z2 := make([]float64, n+1)
 	for k := range xs {
 		x := lo + (hi-lo)*float64(k)/n
-		xs[k] = x / u.LengthM
+		xs[k] = x / u.LengthSI()
 		cp[k] = c.Coupling(x)
 		dir[k] = c.Directivity(x)
 		z := c.ZLine(x)
@@ -98,7 +93,7 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u drift.Units) err
 	}
 	var px, pc []float64
 	for _, p := range c.Points {
-		px = append(px, p.Offset/u.LengthM)
+		px = append(px, p.Offset/u.LengthSI())
 		pc = append(pc, p.CouplingDB)
 	}
 	top := &render.Axes{YLabel: "coupling |S31| [dB]", Weight: 2,
@@ -107,10 +102,10 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u drift.Units) err
 			{Label: "interpolated", X: xs, Y: cp, Color: render.Series(0)},
 			{Label: "solved", X: px, Y: pc, Color: render.Series(0), Marker: render.Circle, Width: -1},
 		},
-		VLines: []render.VLine{{X: s.NominalOffset() / u.LengthM, Label: "design", Color: render.Frame}},
+		VLines: []render.VLine{{X: s.NominalOffset() / u.LengthSI(), Label: "design", Color: render.Frame}},
 	}
 	for _, x := range drift.SpecCrossings(c, s.Spec) {
-		top.VLines = append(top.VLines, render.VLine{X: x / u.LengthM, Label: fmt.Sprintf("%+.2f %s", x/u.LengthM, u.Length), Color: render.Series(3)})
+		top.VLines = append(top.VLines, render.VLine{X: x / u.LengthSI(), Label: fmt.Sprintf("%+.2f %s", x/u.LengthSI(), u.Length()), Color: render.Series(3)})
 	}
 	mid := &render.Axes{YLabel: "line impedance [ohm]",
 		Lines: []render.Line{
@@ -123,7 +118,7 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u drift.Units) err
 		Lines: []render.Line{{Label: "directivity", X: xs, Y: dir, Color: render.Series(4)}}}
 	p := &render.Plot{
 		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus lateral offset of %s against %s",
-			s.Name, c.Frequency/1e9, c.Length/u.LengthM, u.Length, s.Traces[0].Layer, s.Traces[1].Layer),
+			s.Name, c.Frequency/1e9, c.Length/u.LengthSI(), u.Length(), s.Traces[0].Layer, s.Traces[1].Layer),
 		XLabel: offsetLabel(u),
 		Axes:   []*render.Axes{top, mid, bot},
 	}

@@ -6,8 +6,8 @@
 //
 // Every panel map starts from one preamble (newPanelMap, drawPanel): the
 // panel outline, the border of the usable area, the part outlines where they
-// are large enough to see, and axes in inches or millimetres as the Units
-// say (axisUnit; fit.png uses the same axes). Every per-pixel field is computed by drift.Evaluator.Value
+// are large enough to see, and axes in inches or millimetres as the unit.Output
+// says (axisUnit; fit.png uses the same axes). Every per-pixel field is computed by drift.Evaluator.Value
 // over the analysis's zones (drift.Analysis.Zones): over each array its own
 // coupler kinds, elsewhere the most common kind of the panel; the bar drawn
 // for each site takes the same quantity from the site's own evaluation.

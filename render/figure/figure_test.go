@@ -109,7 +109,7 @@ func TestFigures(t *testing.T) {
 	sum := a.Summary(10)
 	for _, show := range Shows {
 		var b bytes.Buffer
-		if err := Map(&b, a, sum, MapOptions{Show: show, Width: 600, Units: drift.Micrometres}); err != nil {
+		if err := Map(&b, a, sum, MapOptions{Show: show, Width: 600, Units: unit.MicronMM}); err != nil {
 			t.Fatalf("map %s: %v", show, err)
 		}
 		decode(t, "map "+show, b.Bytes(), 600)
@@ -123,7 +123,7 @@ func TestFigures(t *testing.T) {
 	}
 	ys := a.YieldSummary(res, 1)
 	var b bytes.Buffer
-	if err := Yield(&b, a, res, ys, drift.Mils); err != nil {
+	if err := Yield(&b, a, res, ys, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
 	decode(t, "yield", b.Bytes(), yieldWidth)
@@ -138,7 +138,7 @@ func TestFigures(t *testing.T) {
 	}
 	decode(t, "budget", b.Bytes(), 2000)
 	b.Reset()
-	if err := Sweep(&b, in.Sections[0], a.Curves[0].Curve, drift.Mils); err != nil {
+	if err := Sweep(&b, in.Sections[0], a.Curves[0].Curve, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
 	decode(t, "sweep", b.Bytes(), 1800)
@@ -147,7 +147,7 @@ func TestFigures(t *testing.T) {
 		t.Fatal(err)
 	}
 	b.Reset()
-	if err := Tol(&b, tol, drift.Mils); err != nil {
+	if err := Tol(&b, tol, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
 	decode(t, "tol", b.Bytes(), 1800)
@@ -156,7 +156,7 @@ func TestFigures(t *testing.T) {
 		t.Fatal(err)
 	}
 	b.Reset()
-	if err := Comp(&b, cmp, cmp.Summary(nil, nil), 800, drift.Mils); err != nil {
+	if err := Comp(&b, cmp, cmp.Summary(nil, nil), 800, unit.MilInch); err != nil {
 		t.Fatal(err)
 	}
 	decode(t, "comp", b.Bytes(), 800)
@@ -169,7 +169,7 @@ func TestShownRange(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	lo, hi, err := ShownRange(a, MapOptions{Show: "offset", Units: drift.Mils})
+	lo, hi, err := ShownRange(a, MapOptions{Show: "offset", Units: unit.MilInch})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -212,7 +212,7 @@ func TestFit(t *testing.T) {
 		t.Fatal(err)
 	}
 	var b bytes.Buffer
-	if err := Fit(&b, "targets.csv", set, fits, registration.LotStats(fits), panel.Vec{X: 12 * inch, Y: 18 * inch}, 900, drift.Micrometres); err != nil {
+	if err := Fit(&b, "targets.csv", set, fits, registration.LotStats(fits), panel.Vec{X: 12 * inch, Y: 18 * inch}, 900, unit.MicronMM); err != nil {
 		t.Fatal(err)
 	}
 	decode(t, "fit", b.Bytes(), 900)

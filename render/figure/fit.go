@@ -2,6 +2,7 @@ package figure
 
 import (
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
 	"path/filepath"
@@ -9,7 +10,6 @@ import (
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/registration"
-	"github.com/regdrift/regdrift/registration/drift"
 	"github.com/regdrift/regdrift/render"
 )
 
@@ -18,10 +18,7 @@ import (
 // (coloured), each exaggerated by one stated factor, outliers ringed. file
 // names the measurement file, set the fit; size is the panel size, or zero to
 // frame the targets' extent; width is in pixels, 0 meaning 2400.
-func Fit(w io.Writer, file string, set registration.FitSettings, fits []registration.Fit, lots []registration.Lot, size panel.Vec, width int, u drift.Units) error {
-	if u.LengthM == 0 {
-		u = drift.Mils
-	}
+func Fit(w io.Writer, file string, set registration.FitSettings, fits []registration.Fit, lots []registration.Lot, size panel.Vec, width int, u unit.Output) error {
 	if width == 0 {
 		width = 2400
 	}
@@ -63,7 +60,7 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	title := []string{
 		"Registration targets of " + filepath.Base(file),
 		fmt.Sprintf("%s fit per panel and layer about the datum (%.2f, %.2f) %s; robust: %s; all panels overlaid",
-			set.Model, set.Datum.X/u.PanelM, set.Datum.Y/u.PanelM, u.Panel, set.Robust),
+			set.Model, set.Datum.X/u.PanelSI(), set.Datum.Y/u.PanelSI(), u.Panel(), set.Robust),
 	}
 	legend := []render.LegendItem{
 		{Label: "measured displacement, × " + strconv.FormatFloat(exg, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Frame},
@@ -100,10 +97,10 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		v.Arrows(res, render.ArrowStyle{Color: render.Series(0), Exaggeration: exr, Width: 2 * m.Thin()})
 		v.Dots(pts, 0.25*m.TextSize(), render.Ink)
 		v.Markers(ms)
-		bar := niceLength(maxD/2/u.LengthM) * u.LengthM
+		bar := niceLength(maxD/2/u.LengthSI()) * u.LengthSI()
 		v.ScaleArrow(bar, fmt.Sprintf("measured: %s %s (× %s); residual: %s %s",
-			strconv.FormatFloat(bar/u.LengthM, 'g', 3, 64), u.Length, strconv.FormatFloat(exg, 'g', 6, 64),
-			strconv.FormatFloat(bar*exg/exr/u.LengthM, 'g', 3, 64), u.Length),
+			strconv.FormatFloat(bar/u.LengthSI(), 'g', 3, 64), u.Length(), strconv.FormatFloat(exg, 'g', 6, 64),
+			strconv.FormatFloat(bar*exg/exr/u.LengthSI(), 'g', 3, 64), u.Length()),
 			render.ArrowStyle{Color: render.Ink, Exaggeration: exg})
 	}
 	return m.EncodePNG(w)

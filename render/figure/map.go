@@ -2,6 +2,7 @@ package figure
 
 import (
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"image/color"
 	"io"
 	"math"
@@ -18,13 +19,13 @@ var Shows = []string{"drift", "worst", "offset", "sigma", "margin"}
 // show is one quantity a drift map draws.
 type show struct {
 	q      drift.Quantity
-	length bool // a length, drawn in the Units' length unit
+	length bool // a length, drawn in the output's length unit
 	badLow bool // low values are the bad end
 	label  string
 }
 
-func showOf(name string, u drift.Units) (show, bool) {
-	L := " [" + u.Length + "]"
+func showOf(name string, u unit.Output) (show, bool) {
+	L := " [" + u.Length() + "]"
 	switch name {
 	case "drift", "":
 		return show{drift.Drift, false, true, "coupling drift at the mean offset, against the design offset [dB]"}, true
@@ -40,9 +41,9 @@ func showOf(name string, u drift.Units) (show, bool) {
 	return show{}, false
 }
 
-func (s show) scale(u drift.Units) float64 {
+func (s show) scale(u unit.Output) float64 {
 	if s.length {
-		return 1 / u.LengthM
+		return 1 / u.LengthSI()
 	}
 	return 1
 }
@@ -51,16 +52,13 @@ func (s show) scale(u drift.Units) float64 {
 type MapOptions struct {
 	Show  string      // one of Shows; "" means "drift"
 	Width int         // pixels; 0 means 2400
-	Units drift.Units // zero means drift.Mils
+	Units unit.Output // zero means unit.MilInch
 	// Scale, when set, fixes the colour range, so that maps of several
 	// panels compare on one scale.
 	Scale *[2]float64
 }
 
 func (o MapOptions) norm() (MapOptions, show, error) {
-	if o.Units.LengthM == 0 {
-		o.Units = drift.Mils
-	}
 	if o.Width == 0 {
 		o.Width = 2400
 	}
@@ -136,12 +134,12 @@ func Map(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions) er
 	title := []string{
 		in.Title,
 		fmt.Sprintf("section %s: spec %.2f ± %.2f dB at %.4g GHz, design offset %.2f %s, coupling %.3f dB there",
-			sec.Name, sec.Spec.Coupling, sec.Spec.Tolerance, sec.Frequency/1e9, sec.NominalOffset()/u.LengthM, u.Length, c.Nominal),
+			sec.Name, sec.Spec.Coupling, sec.Spec.Tolerance, sec.Frequency/1e9, sec.NominalOffset()/u.LengthSI(), u.Length(), c.Nominal),
 	}
 	if len(sum.Worst) > 0 {
 		ws := sum.Worst[0]
 		title = append(title, fmt.Sprintf("%d of %d sites in spec; worst %s: offset %+.2f %s, drift %+.3f dB, margin %.3f dB",
-			sum.InSpec, sum.Sites, ws.Name, ws.OffsetM/u.LengthM, u.Length, ws.DriftDB, ws.MarginDB))
+			sum.InSpec, sum.Sites, ws.Name, ws.OffsetM/u.LengthSI(), u.Length(), ws.DriftDB, ws.MarginDB))
 	}
 	title = append(title, fmt.Sprintf("field: over each array its most common coupler's line direction (elsewhere lines at %.0f deg, %s); bars: each site along its lines; rings: the ten worst sites",
 		math.Atan2(global.U.Y, global.U.X)*180/math.Pi, sec.Name))

@@ -1,6 +1,7 @@
 package figure
 
 import (
+	"github.com/regdrift/regdrift/panel/unit"
 	"image/color"
 	"math"
 
@@ -11,8 +12,8 @@ import (
 
 // axisUnit returns the unit of the panel axes for u: millimetres when panel
 // coordinates are in mm, inches otherwise.
-func axisUnit(u drift.Units) render.LengthUnit {
-	if u.Panel == "mm" {
+func axisUnit(u unit.Output) render.LengthUnit {
+	if u.Panel() == "mm" {
 		return render.Millimetre
 	}
 	return render.Inch
@@ -25,7 +26,7 @@ func toRect(r panel.Rect) render.Rect {
 
 // newPanelMap lays out a map of in's panel outline with axes in u's panel
 // unit; spec gives the width, views, title and captions.
-func newPanelMap(in *drift.Input, u drift.Units, spec render.MapSpec) *render.Map {
+func newPanelMap(in *drift.Input, u unit.Output, spec render.MapSpec) *render.Map {
 	spec.Extent = toRect(in.Layout.Panel.Outline())
 	spec.Unit = axisUnit(u)
 	return render.NewMap(spec)

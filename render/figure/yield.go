@@ -2,6 +2,7 @@ package figure
 
 import (
 	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
 	"image/color"
 	"io"
 	"math"
@@ -18,7 +19,7 @@ const yieldWidth = 2400
 // Yield draws the closed-form site yield over the panel (yield.png): over
 // each array the lowest of its coupler kinds, contours at 99.9, 99 and 95 %,
 // part outlines and each site's Monte Carlo yield res as a bar.
-func Yield(w io.Writer, a *drift.Analysis, res *registration.MCResult, sum *drift.YieldSummary, u drift.Units) error {
+func Yield(w io.Writer, a *drift.Analysis, res *registration.MCResult, sum *drift.YieldSummary, u unit.Output) error {
 	in := a.In
 	grid := fieldGrid(in, yieldWidth/6, lowestField(a, a.Zones(), drift.PInSpec, 100))
 	lo, _ := grid.Range()
