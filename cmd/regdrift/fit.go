@@ -19,7 +19,7 @@ import (
 	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
-	"github.com/regdrift/regdrift/render"
+	"github.com/regdrift/regdrift/render/figure"
 )
 
 type fitFlags struct {
@@ -159,24 +159,42 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	o, err := newOutputs(f.out)
+	paths, err := r.writeFiles(f.out, f.contributors, size, f.width, lu)
 	if err != nil {
 		return err
 	}
+	if f.json {
+		return writeJSON(std.out, r.summary())
+	}
+	r.printTable(std.out, lu)
+	for _, p := range paths {
+		fmt.Fprintf(std.out, "wrote %s\n", p)
+	}
+	return nil
+}
+
+// writeFiles writes the fit's files into out and, when contributors is not
+// "", the lot as contributors to that file, all or none; it returns their
+// paths.
+func (r *fitRun) writeFiles(out, contributors string, size panel.Vec, width int, lu lengthUnit) ([]string, error) {
+	o, err := newOutputs(out)
+	if err != nil {
+		return nil, err
+	}
 	defer o.abort()
-	if f.contributors != "" {
-		if err := os.MkdirAll(filepath.Dir(f.contributors), 0o755); err != nil {
-			return err
+	if contributors != "" {
+		if err := os.MkdirAll(filepath.Dir(contributors), 0o755); err != nil {
+			return nil, err
 		}
-		if err := o.fileAt(f.contributors, func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
-			return err
+		if err := o.fileAt(contributors, func(w io.Writer) error { return r.writeContributors(w, lu) }); err != nil {
+			return nil, err
 		}
 	}
 	if err := o.file("fit.csv", func(w io.Writer) error { return r.writeFitCSV(w, lu) }); err != nil {
-		return err
+		return nil, err
 	}
 	if err := o.file("residuals.csv", func(w io.Writer) error { return r.writeResidualsCSV(w, lu) }); err != nil {
-		return err
+		return nil, err
 	}
 	for _, l := range r.lots {
 		g := r.grids[l.Layer]
@@ -184,23 +202,16 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 			continue
 		}
 		if err := o.file("residual-grid-"+l.Layer+".csv", func(w io.Writer) error { return writeGridCSV(w, g, lu) }); err != nil {
-			return err
+			return nil, err
 		}
 	}
-	if err := o.file("fit.png", func(w io.Writer) error { return r.drawFit(w, size, f.width, lu) }); err != nil {
-		return err
+	if err := o.file("fit.png", func(w io.Writer) error { return figure.Fit(w, r.file, r.set, r.fits, r.lots, size, width, lu.units()) }); err != nil {
+		return nil, err
 	}
 	if err := o.commit(); err != nil {
-		return err
+		return nil, err
 	}
-	if f.json {
-		return writeJSON(std.out, r.summary())
-	}
-	r.printTable(std.out, lu)
-	for _, p := range o.paths() {
-		fmt.Fprintf(std.out, "wrote %s\n", p)
-	}
-	return nil
+	return o.paths(), nil
 }
 
 // termsJSON holds the terms, keyed in JSON by the term table with their SI
@@ -467,111 +478,4 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	if n > 0 {
 		fmt.Fprintf(w, "%d target(s) rejected as mis-measured (beyond %.0f sigma of a robust fit); see residuals.csv\n", n, registration.DefaultOutlierLimit)
 	}
-}
-
-// drawFit draws one view per layer: every panel's targets with the measured
-// displacement (grey) and the residual after the fit (coloured), exaggerated
-// by one stated factor, outliers ringed.
-func (r *fitRun) drawFit(w io.Writer, size panel.Vec, width int, lu lengthUnit) error {
-	var ext render.Rect
-	if size.X > 0 {
-		ext = render.Centered(size.X, size.Y)
-	} else {
-		lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
-		hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
-		for _, f := range r.fits {
-			for _, t := range f.Targets {
-				lo = panel.Vec{X: math.Min(lo.X, t.Pos.X), Y: math.Min(lo.Y, t.Pos.Y)}
-				hi = panel.Vec{X: math.Max(hi.X, t.Pos.X), Y: math.Max(hi.Y, t.Pos.Y)}
-			}
-		}
-		pad := 0.1*math.Max(hi.X-lo.X, hi.Y-lo.Y) + 0.01
-		ext = render.Rect{Min: render.Point{X: lo.X - pad, Y: lo.Y - pad}, Max: render.Point{X: hi.X + pad, Y: hi.Y + pad}}
-	}
-	// Two exaggerations: the measured displacements are mils, the residuals
-	// a tenth of that; each gets the round factor that draws its largest
-	// arrow (outliers aside) a tenth of the panel's shorter side long.
-	var maxD, maxR float64
-	for _, f := range r.fits {
-		for i, t := range f.Targets {
-			if f.Weights[i] == 0 && len(f.Outliers) > 0 {
-				continue // an outlier must not shrink every other arrow
-			}
-			maxD = math.Max(maxD, math.Hypot(t.D.X, t.D.Y))
-			maxR = math.Max(maxR, math.Hypot(f.Residuals[i].X, f.Residuals[i].Y))
-		}
-	}
-	side := math.Min(ext.Dx(), ext.Dy())
-	exg := niceLength(side / 10 / math.Max(maxD, 1e-9))
-	exr := niceLength(side / 10 / math.Max(maxR, 1e-9))
-	ru := render.Inch
-	if lu.panel == "mm" {
-		ru = render.Millimetre
-	}
-	var captions []string
-	for _, l := range r.lots {
-		captions = append(captions, fmt.Sprintf("layer %s, %d panels", l.Layer, l.Panels))
-	}
-	title := []string{
-		"Registration targets of " + filepath.Base(r.file),
-		fmt.Sprintf("%s fit per panel and layer about the datum (%.2f, %.2f) %s; robust: %s; all panels overlaid",
-			r.set.Model, r.set.Datum.X/lu.pfac, r.set.Datum.Y/lu.pfac, lu.panel, r.set.Robust),
-	}
-	legend := []render.LegendItem{
-		{Label: "measured displacement, × " + strconv.FormatFloat(exg, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Frame},
-		{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
-		{Label: "target rejected as mis-measured", Kind: render.LegendRing},
-	}
-	cols := min(len(r.lots), 4)
-	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Views: len(r.lots), Columns: cols, Title: title,
-		Captions: captions, Unit: ru, NoColorBar: true, Legend: legend})
-	for li, l := range r.lots {
-		v := m.Views[li]
-		if size.X > 0 {
-			v.StrokeRect(ext, render.LineStyle{Color: render.Ink, Width: 2})
-		}
-		var meas, res []render.Arrow
-		var pts []render.Point
-		var ms []render.Marker
-		for _, f := range r.fits {
-			if f.Layer != l.Layer {
-				continue
-			}
-			for i, t := range f.Targets {
-				at := render.Point{X: t.Pos.X, Y: t.Pos.Y}
-				pts = append(pts, at)
-				meas = append(meas, render.Arrow{At: at, D: render.Point{X: t.D.X, Y: t.D.Y}})
-				if f.Weights[i] == 0 && len(f.Outliers) > 0 {
-					ms = append(ms, render.Marker{At: at, Label: f.Panel + " " + t.Name})
-					continue
-				}
-				res = append(res, render.Arrow{At: at, D: render.Point{X: f.Residuals[i].X, Y: f.Residuals[i].Y}})
-			}
-		}
-		v.Arrows(meas, render.ArrowStyle{Color: render.Frame, Exaggeration: exg})
-		v.Arrows(res, render.ArrowStyle{Color: render.Series(0), Exaggeration: exr, Width: 2 * m.Thin()})
-		v.Dots(pts, 0.25*m.TextSize(), render.Ink)
-		v.Markers(ms)
-		bar := niceLength(maxD/2/lu.factor) * lu.factor
-		v.ScaleArrow(bar, fmt.Sprintf("measured: %s %s (× %s); residual: %s %s",
-			strconv.FormatFloat(bar/lu.factor, 'g', 3, 64), lu.name, strconv.FormatFloat(exg, 'g', 6, 64),
-			strconv.FormatFloat(bar*exg/exr/lu.factor, 'g', 3, 64), lu.name),
-			render.ArrowStyle{Color: render.Ink, Exaggeration: exg})
-	}
-	return m.EncodePNG(w)
-}
-
-// niceLength returns 1, 2 or 5 times a power of ten not above d, for a
-// scale arrow.
-func niceLength(d float64) float64 {
-	if !(d > 0) {
-		return 1
-	}
-	mag := math.Pow(10, math.Floor(math.Log10(d)))
-	for _, m := range []float64{5, 2, 1} {
-		if m*mag <= d {
-			return m * mag
-		}
-	}
-	return mag
 }
