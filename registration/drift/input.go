@@ -1,8 +1,6 @@
 package drift
 
 import (
-	"math"
-
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/registration"
@@ -32,23 +30,9 @@ func (in *Input) SectionIndex(name string) int {
 }
 
 // ArrayExtents returns, per array of the layout, the rectangle its parts
-// cover (the zero Rect for an array with no parts).
+// cover (panel.ArrayExtents).
 func (in *Input) ArrayExtents() []panel.Rect {
-	ext := make([]panel.Rect, len(in.Layout.Arrays))
-	seen := make([]bool, len(ext))
-	for _, pi := range in.Instances {
-		if pi.Array < 0 {
-			continue
-		}
-		b, e := pi.Bounds, &ext[pi.Array]
-		if !seen[pi.Array] {
-			*e, seen[pi.Array] = b, true
-			continue
-		}
-		e.Min = panel.Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
-		e.Max = panel.Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
-	}
-	return ext
+	return panel.ArrayExtents(len(in.Layout.Arrays), in.Instances)
 }
 
 // PartName returns the name of the part instance of site s, or "".
