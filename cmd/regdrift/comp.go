@@ -124,16 +124,16 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 			}
 		}
 		var lots []registration.Lot
-		for _, l := range fr.lots {
+		for _, l := range fr.Lots {
 			u, lo, rel := registration.SplitLayer(l.Layer)
 			if !copper[u] || (rel && !copper[lo]) {
-				fmt.Fprintf(std.err, "regdrift comp: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", fr.file, l.Layer, j.File)
+				fmt.Fprintf(std.err, "regdrift comp: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", fr.File, l.Layer, j.File)
 				continue
 			}
 			lots = append(lots, l)
 			fitted = append(fitted, l.Layer)
 		}
-		model, notes = drift.MeasuredModel(j.Model, lots, fr.file, f.keep)
+		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
 	}
 	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
 	var ce *drift.CompError

@@ -156,18 +156,18 @@ func demoMeasured(ctx context.Context, std stdio, in *drift.Input, targets, name
 		return err
 	}
 	outliers := 0
-	for _, ft := range fr.fits {
+	for _, ft := range fr.Fits {
 		outliers += len(ft.Outliers)
 	}
 	fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
-		len(fr.fits), name, outliers, filepath.Join(fitOut, "fit.png"))
-	model, notes := drift.MeasuredModel(in.Model, fr.lots, fr.file, false)
+		len(fr.Fits), name, outliers, filepath.Join(fitOut, "fit.png"))
+	model, notes := drift.MeasuredModel(in.Model, fr.Lots, fr.File, false)
 	cmp, err := drift.Compensate(ctx, in, model, &registration.CompSettings{DrillBudget: 3 * unit.Mil, Max: 1000e-6, Step: 5e-6}, set)
 	if err != nil {
 		return err
 	}
 	var layers []string
-	for _, l := range fr.lots {
+	for _, l := range fr.Lots {
 		layers = append(layers, l.Layer)
 	}
 	compOut := filepath.Join(out, "comp")

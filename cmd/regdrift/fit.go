@@ -2,14 +2,12 @@ package main
 
 import (
 	"context"
-	"encoding/csv"
-	"encoding/json"
 	"fmt"
+	"github.com/regdrift/regdrift/registration/fitreport"
 	"io"
 	"math"
 	"os"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -65,13 +63,7 @@ func parseVecFlag(name, s string) (panel.Vec, error) {
 }
 
 // fitRun is a finished fit of a measurement file.
-type fitRun struct {
-	file  string
-	set   registration.FitSettings
-	fits  []registration.Fit
-	lots  []registration.Lot
-	grids map[string]*registration.Grid
-}
+type fitRun struct{ *fitreport.Report }
 
 // runFitFile reads and fits a measurement file; bad input is marked.
 func runFitFile(path string, stdin io.Reader, set registration.FitSettings, grid int) (*fitRun, error) {
@@ -88,15 +80,11 @@ func runFitFile(path string, stdin io.Reader, set registration.FitSettings, grid
 			return nil, badInput(&registration.CSVError{File: name, Row: t.Row, Column: "layer", Err: fmt.Errorf("%q: bad layer pair", t.Layer)})
 		}
 	}
-	fits, err := registration.FitAll(ts, &set)
+	r, err := fitreport.New(name, ts, set, grid)
 	if err != nil {
 		return nil, badInput(fmt.Errorf("%s: %w", name, err))
 	}
-	r := &fitRun{file: name, set: set, fits: fits, lots: registration.LotStats(fits), grids: map[string]*registration.Grid{}}
-	for _, l := range r.lots {
-		r.grids[l.Layer] = registration.PooledResiduals(fits, l.Layer, grid, grid)
-	}
-	return r, nil
+	return &fitRun{r}, nil
 }
 
 // isFitOutput reports whether path names one of the files fit writes into dir.
@@ -164,7 +152,7 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	if f.json {
-		return writeJSON(std.out, r.summary())
+		return writeJSON(std.out, r.Summary())
 	}
 	r.printTable(std.out, lu)
 	for _, p := range paths {
@@ -190,22 +178,24 @@ func (r *fitRun) writeFiles(out, contributors string, size panel.Vec, width int,
 			return nil, err
 		}
 	}
-	if err := o.file("fit.csv", func(w io.Writer) error { return r.writeFitCSV(w, lu) }); err != nil {
+	if err := o.file("fit.csv", func(w io.Writer) error { return r.WriteFitCSV(w, lu.Output) }); err != nil {
 		return nil, err
 	}
-	if err := o.file("residuals.csv", func(w io.Writer) error { return r.writeResidualsCSV(w, lu) }); err != nil {
+	if err := o.file("residuals.csv", func(w io.Writer) error { return r.WriteResidualsCSV(w, lu.Output) }); err != nil {
 		return nil, err
 	}
-	for _, l := range r.lots {
-		g := r.grids[l.Layer]
+	for _, l := range r.Lots {
+		g := r.Grids[l.Layer]
 		if g == nil {
 			continue
 		}
-		if err := o.file("residual-grid-"+l.Layer+".csv", func(w io.Writer) error { return writeGridCSV(w, g, lu) }); err != nil {
+		if err := o.file("residual-grid-"+l.Layer+".csv", func(w io.Writer) error { return fitreport.WriteGridCSV(w, g, lu.Output) }); err != nil {
 			return nil, err
 		}
 	}
-	if err := o.file("fit.png", func(w io.Writer) error { return figure.Fit(w, r.file, r.set, r.fits, r.lots, size, width, lu.units()) }); err != nil {
+	if err := o.file("fit.png", func(w io.Writer) error {
+		return figure.Fit(w, r.File, r.Settings, r.Fits, r.Lots, size, width, lu.units())
+	}); err != nil {
 		return nil, err
 	}
 	if err := o.commit(); err != nil {
@@ -214,106 +204,13 @@ func (r *fitRun) writeFiles(out, contributors string, size panel.Vec, width int,
 	return o.paths(), nil
 }
 
-// termsJSON holds the terms, keyed in JSON by the term table with their SI
-// unit ("offset_x_m", "rotation_rad", "scale_x"), in term order; nil is a
-// term that was not estimated (or a standard error without redundancy).
-type termsJSON [registration.NumTerms]*float64
-
-func (t termsJSON) MarshalJSON() ([]byte, error) {
-	b := []byte{'{'}
-	for k, v := range t {
-		if k > 0 {
-			b = append(b, ',')
-		}
-		key, _ := json.Marshal(registration.TermKind(k).JSONKey())
-		val, err := json.Marshal(v)
-		if err != nil {
-			return nil, err
-		}
-		b = append(append(append(b, key...), ':'), val...)
+// termHeader returns the table header cells of the terms, "offset_x [mil]\t...".
+func termHeader(lu lengthUnit) string {
+	var b strings.Builder
+	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+		fmt.Fprintf(&b, "%s [%s]\t", k, k.Unit(lu.Output))
 	}
-	return append(b, '}'), nil
-}
-
-func (t *termsJSON) UnmarshalJSON(data []byte) error {
-	var m map[string]*float64
-	if err := json.Unmarshal(data, &m); err != nil {
-		return err
-	}
-	for k := range t {
-		t[k] = m[registration.TermKind(k).JSONKey()]
-	}
-	return nil
-}
-
-func newTermsJSON(v [registration.NumTerms]float64, m registration.FitModel, zeroUnfitted bool) termsJSON {
-	var p [registration.NumTerms]*float64
-	for k := range v {
-		x := v[k]
-		if !m.Estimates(registration.TermKind(k)) {
-			if !zeroUnfitted {
-				continue
-			}
-			x = 0
-		}
-		if math.IsNaN(x) || math.IsInf(x, 0) {
-			continue
-		}
-		p[k] = &x
-	}
-	return termsJSON(p)
-}
-
-type fitJSON struct {
-	Panel    string    `json:"panel"`
-	Layer    string    `json:"layer"`
-	Targets  int       `json:"targets"`
-	DOF      int       `json:"dof"`
-	Terms    termsJSON `json:"terms"`
-	StdErr   termsJSON `json:"stderr"`
-	Sigma0M  *float64  `json:"sigma0_m"`
-	RMSM     float64   `json:"rms_m"`
-	MaxM     float64   `json:"max_m"`
-	Outliers []string  `json:"outliers"`
-}
-
-type lotJSON struct {
-	Layer  string    `json:"layer"`
-	Panels int       `json:"panels"`
-	Mean   termsJSON `json:"mean"`
-	Sigma  termsJSON `json:"sigma"`
-}
-
-type fitSummary struct {
-	File   string     `json:"file"`
-	Model  string     `json:"model"`
-	Robust string     `json:"robust"`
-	DatumM [2]float64 `json:"datum_m"`
-	Fits   []fitJSON  `json:"fits"`
-	Lot    []lotJSON  `json:"lot"`
-}
-
-func (r *fitRun) summary() *fitSummary {
-	s := &fitSummary{File: r.file, Model: r.set.Model.String(), Robust: r.set.Robust.String(),
-		DatumM: [2]float64{r.set.Datum.X, r.set.Datum.Y}}
-	for _, f := range r.fits {
-		fj := fitJSON{Panel: f.Panel, Layer: f.Layer, Targets: f.N, DOF: f.DOF,
-			Terms: newTermsJSON(f.Terms, f.Model, true), StdErr: newTermsJSON(f.StdErr, f.Model, false),
-			RMSM: f.RMS, MaxM: f.Max, Outliers: f.Outliers}
-		if f.Outliers == nil {
-			fj.Outliers = []string{}
-		}
-		if f.DOF > 0 {
-			s0 := f.Sigma0
-			fj.Sigma0M = &s0
-		}
-		s.Fits = append(s.Fits, fj)
-	}
-	for _, l := range r.lots {
-		s.Lot = append(s.Lot, lotJSON{Layer: l.Layer, Panels: l.Panels,
-			Mean: newTermsJSON(l.Mean, l.Model, true), Sigma: newTermsJSON(l.SD, l.Model, false)})
-	}
-	return s
+	return b.String()
 }
 
 // termUnit returns the output unit name and kind of term k (the term table of
@@ -322,122 +219,21 @@ func termUnit(k registration.TermKind, lu lengthUnit) (string, unit.Kind) {
 	return k.Unit(lu.Output), k.Info().Kind
 }
 
-// termHeader returns the table header cells of the terms, "offset_x [mil]\t...".
-func termHeader(lu lengthUnit) string {
-	var b strings.Builder
-	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-		u, _ := termUnit(k, lu)
-		fmt.Fprintf(&b, "%s [%s]\t", k, u)
-	}
-	return b.String()
-}
-
-func fmtG(v float64, digits int) string {
-	if math.IsNaN(v) {
-		return ""
-	}
-	return strconv.FormatFloat(v, 'f', digits, 64)
-}
-
-func (r *fitRun) writeFitCSV(w io.Writer, lu lengthUnit) error {
-	cw := csv.NewWriter(w)
-	header := []string{"panel", "layer", "model", "targets", "dof"}
-	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-		u, _ := termUnit(k, lu)
-		header = append(header, fmt.Sprintf("%s [%s]", k, u))
-	}
-	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-		u, _ := termUnit(k, lu)
-		header = append(header, fmt.Sprintf("%s_se [%s]", k, u))
-	}
-	header = append(header, "sigma0 ["+lu.name+"]", "rms ["+lu.name+"]", "max ["+lu.name+"]", "outliers")
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	for _, f := range r.fits {
-		rec := []string{f.Panel, f.Layer, f.Model.String(), strconv.Itoa(f.N), strconv.Itoa(f.DOF)}
-		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-			u, kind := termUnit(k, lu)
-			rec = append(rec, fmtG(unit.In(f.Terms[k], kind, u), 4))
-		}
-		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-			u, kind := termUnit(k, lu)
-			v := unit.In(f.StdErr[k], kind, u)
-			if !f.Model.Estimates(k) {
-				v = math.NaN()
-			}
-			rec = append(rec, fmtG(v, 4))
-		}
-		s0 := f.Sigma0
-		if f.DOF <= 0 {
-			s0 = math.NaN()
-		}
-		rec = append(rec, fmtG(s0/lu.factor, 4), fmtG(f.RMS/lu.factor, 4), fmtG(f.Max/lu.factor, 4), strings.Join(f.Outliers, ";"))
-		if err := cw.Write(rec); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
-}
-
-func (r *fitRun) writeResidualsCSV(w io.Writer, lu lengthUnit) error {
-	cw := csv.NewWriter(w)
-	L, P := "["+lu.name+"]", "["+lu.panel+"]"
-	header := []string{"panel", "layer", "target", "x " + P, "y " + P, "dx " + L, "dy " + L,
-		"fit_dx " + L, "fit_dy " + L, "res_dx " + L, "res_dy " + L, "outlier"}
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	for _, f := range r.fits {
-		for i, t := range f.Targets {
-			out := f.Weights[i] == 0 && len(f.Outliers) > 0
-			rec := []string{f.Panel, f.Layer, t.Name, fmtG(t.Pos.X/lu.pfac, 4), fmtG(t.Pos.Y/lu.pfac, 4),
-				fmtG(t.D.X/lu.factor, 4), fmtG(t.D.Y/lu.factor, 4),
-				fmtG(f.Fitted[i].X/lu.factor, 4), fmtG(f.Fitted[i].Y/lu.factor, 4),
-				fmtG(f.Residuals[i].X/lu.factor, 4), fmtG(f.Residuals[i].Y/lu.factor, 4), strconv.FormatBool(out)}
-			if err := cw.Write(rec); err != nil {
-				return err
-			}
-		}
-	}
-	cw.Flush()
-	return cw.Error()
-}
-
-// writeGridCSV writes a residual grid in the format registration.ReadGrid reads.
-func writeGridCSV(w io.Writer, g *registration.Grid, lu lengthUnit) error {
-	cw := csv.NewWriter(w)
-	L, P := "["+lu.name+"]", "["+lu.panel+"]"
-	if err := cw.Write([]string{"x " + P, "y " + P, "dx " + L, "dy " + L}); err != nil {
-		return err
-	}
-	for j, y := range g.Y {
-		for i, x := range g.X {
-			if err := cw.Write([]string{fmtG(x/lu.pfac, 6), fmtG(y/lu.pfac, 6), fmtG(g.DX[j][i]/lu.factor, 5), fmtG(g.DY[j][i]/lu.factor, 5)}); err != nil {
-				return err
-			}
-		}
-	}
-	cw.Flush()
-	return cw.Error()
-}
-
 // writeContributors writes the lot as [[contributor]] blocks with units on
 // every value (job.WriteContributors).
 func (r *fitRun) writeContributors(w io.Writer, lu lengthUnit) error {
-	return job.WriteContributors(w, r.file, &r.set, r.fits, r.lots, lu.Output)
+	return job.WriteContributors(w, r.File, &r.Settings, r.Fits, r.Lots, lu.Output)
 }
 
 func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
-	fmt.Fprintf(w, "%s: %d fits (%s model", r.file, len(r.fits), r.set.Model)
-	if r.set.Robust != registration.NoRobust {
-		fmt.Fprintf(w, ", robust %s", r.set.Robust)
+	fmt.Fprintf(w, "%s: %d fits (%s model", r.File, len(r.Fits), r.Settings.Model)
+	if r.Settings.Robust != registration.NoRobust {
+		fmt.Fprintf(w, ", robust %s", r.Settings.Robust)
 	}
 	fmt.Fprintf(w, ")\n")
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "panel\tlayer\tn\t%srms [%s]\tmax [%s]\toutliers\t\n", termHeader(lu), lu.name, lu.name)
-	for _, f := range r.fits {
+	for _, f := range r.Fits {
 		fmt.Fprintf(tw, "%s\t%s\t%d\t", f.Panel, f.Layer, f.N)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
 			u, kind := termUnit(k, lu)
@@ -458,7 +254,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	fmt.Fprintf(w, "\nlot (mean ± panel-to-panel sigma):\n")
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "layer\tpanels\t%s\n", termHeader(lu))
-	for _, l := range r.lots {
+	for _, l := range r.Lots {
 		fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
 			u, kind := termUnit(k, lu)
@@ -472,7 +268,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	}
 	tw.Flush()
 	n := 0
-	for _, f := range r.fits {
+	for _, f := range r.Fits {
 		n += len(f.Outliers)
 	}
 	if n > 0 {
