@@ -74,8 +74,9 @@ coupling and directivity at the centre frequency, each line's impedance, the
 even and odd impedances of a symmetric pair, and both modes' effective
 permittivity. The default offsets are those every command solves the section
 over, so that this is the curve map, yield, tol and comp read: at least ±5 mil
-about the design offset and as far as any site reaches (its mean offset ± 8
-sigma), doubled while the coupling is still in spec at an end.
+about the design offset and as far as any site reaches (its mean offset ± 3
+sigma, with a tenth to spare), doubled while the coupling is still in spec at
+an end.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
 where it leaves the spec; impedances; directivity).
@@ -193,7 +194,7 @@ Estimates how many couplers and parts meet their coupling spec across
 panel-to-panel variation of the registration error model.
 
 Each section's coupling curve (the one map reads: solved over at least ±5 mil
-about the design offset and the sites' mean offsets ± 8 sigma, wider while the
+about the design offset and the sites' mean offsets ± 3 sigma, wider while the
 coupling is still in spec at its ends) is inverted
 against its spec to give the interval
 of allowed offsets (it may be asymmetric about the design offset; if the design

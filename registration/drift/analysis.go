@@ -98,7 +98,7 @@ func Reach(as ...*Analysis) []float64 {
 	for _, a := range as {
 		for k := range a.Sites {
 			si := a.Sites[k].Section
-			out[si] = math.Max(out[si], SiteReach(a.Yield.Prob(k), a.Yield.Sites[k].Nominal))
+			out[si] = math.Max(out[si], SiteReach(a.Sites[k].Stats))
 		}
 	}
 	return out
@@ -208,7 +208,7 @@ func (a *Analysis) Warnings() []string {
 	}
 	for k := range a.Sites {
 		p := a.Yield.Prob(k)
-		w := ReachSigmas*p.SD + p.Uniform + p.Uniform2
+		w := YieldSigmas*p.SD + p.Uniform + p.Uniform2
 		si := a.Sites[k].Section
 		lo[si], hi[si] = math.Min(lo[si], p.Mean-w), math.Max(hi[si], p.Mean+w)
 	}
@@ -226,7 +226,7 @@ func (a *Analysis) Warnings() []string {
 		iv, lim := c.Allowed, c.Limits
 		if (lim.Clipped[0] && lo[i] < iv.Lo) || (lim.Clipped[1] && hi[i] > iv.Hi) {
 			out = append(out, fmt.Sprintf("section %q: the coupling is still in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
-				s.Name, iv.Lo/unit.Mil, iv.Hi/unit.Mil, ReachSigmas))
+				s.Name, iv.Lo/unit.Mil, iv.Hi/unit.Mil, YieldSigmas))
 		}
 	}
 	return out

@@ -11,11 +11,25 @@ import (
 	"github.com/regdrift/regdrift/registration"
 )
 
-// ReachSigmas is how many standard deviations of a site's normal part the
-// solved curve reaches beyond its mean offset: a normal tail beyond 8σ holds
-// Φ(−8) = ½·erfc(8/√2) = 6.2e-16 (Abramowitz & Stegun 26.2.29), below anything a
-// yield can show, and it covers the ±3σ the map reads with room to spare.
-const ReachSigmas = 8
+// ReachSigmas and ReachMargin say how far the solved curve reaches beyond
+// a site's mean offset: ReachMargin × (|mean| + ReachSigmas·σ), σ the full
+// standard deviation of the across offset. The map reads the coupling at
+// mean ± 3σ and the worst drift within it; the yield needs only the allowed
+// interval, whose ends the span doubling brings inside the range wherever the
+// sites reach (offsets beyond an end are out of spec whatever the coupling
+// does there). The tenth to spare keeps ±3σ off the end points of the
+// monotone cubic.
+const (
+	ReachSigmas = 3
+	ReachMargin = 1.1
+)
+
+// YieldSigmas is how far beyond a site's mean, in standard deviations of its
+// normal part (plus its uniform parts' half-widths), an allowed interval cut
+// at the end of the solved offsets draws a warning: a normal tail beyond 8σ
+// holds Φ(−8) = ½·erfc(8/√2) = 6.2e-16 (Abramowitz & Stegun 26.2.29), below
+// anything a yield can show.
+const YieldSigmas = 8
 
 // SpanStep is the step the half-span of a curve is rounded up to: the point
 // spacing of section.DefaultOffsets, so that every span up to 15 mil solves a
@@ -26,12 +40,11 @@ const SpanStep = 0.5 * unit.Mil
 // still inside a spec window at an end of the range.
 const MaxDoublings = 4
 
-// SiteReach returns how far from the design offset nominal the across offset
-// of a site with distribution p reaches: its mean's distance from the design
-// plus ReachSigmas standard deviations of the normal part plus the half-widths
-// of the two uniform parts (the support of a uniform part ends there).
-func SiteReach(p registration.SiteProb, nominal float64) float64 {
-	return math.Abs(p.Mean-nominal) + ReachSigmas*p.SD + p.Uniform + p.Uniform2
+// SiteReach returns how far from the design offset the across offset of a
+// site with statistics st (design offset excluded) reaches:
+// ReachMargin × (|mean| + ReachSigmas·σ).
+func SiteReach(st registration.Stats) float64 {
+	return ReachMargin * (math.Abs(st.MeanAcross) + ReachSigmas*st.SDAcross)
 }
 
 // Curve is the solved coupling curve of one section and what its spec makes

@@ -12,15 +12,18 @@
 // # One rule for each concept
 //
 // How far to solve. Each section's curve is solved once, over the offsets
-// that DefaultSpan and SolveSection choose: at least the reach of every site
-// that uses it (its mean offset from the design ± ReachSigmas standard
-// deviations of the normal part plus the half-widths of its uniform parts,
-// where a normal tail holds 6e-16, below anything a yield can show), rounded up
-// to SpanStep so that near-equal models share one cached curve; the span is
-// then doubled, at most MaxDoublings times, while the coupling is still
-// inside the spec window at an end of the range, for the spec and for the
-// spec re-centred on the design's own coupling. Map, yield, tolerance,
-// comparison and sweep read the same curve (the same cache key).
+// that SolveSection chooses: at least the reach of every site that uses it
+// (SiteReach: its mean offset from the design ± 3σ, with a tenth to spare,
+// which the map reads), and never less than the ±5 mil of
+// section.DefaultOffsets, rounded up to SpanStep so that near-equal models
+// share one cached curve; the span is then doubled, at most MaxDoublings
+// times, while the coupling is still inside the spec window at an end of the
+// range, for the spec and for the spec re-centred on the design's own
+// coupling. The doubling brings the ends of the allowed interval inside the
+// range, so the yield integral over it is exact however far the tails reach;
+// Warnings says when an end stays cut within YieldSigmas of a site. Map,
+// yield, tolerance, comparison and sweep read the same curve (the same cache
+// key).
 //
 // One evaluator. Evaluator turns a site's sensitivity row into every
 // quantity (Eval); Evaluator.Value computes one quantity by the same steps,

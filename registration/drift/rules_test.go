@@ -10,23 +10,21 @@ import (
 )
 
 // TestSiteReach checks the range rule's reach against hand-worked cases:
-// |mean − design| + 8·σ + w1 + w2, rounded up to 0.5 mil.
+// 1.1·(|mean| + 3σ), rounded up to 0.5 mil.
 func TestSiteReach(t *testing.T) {
 	for _, tt := range []struct {
 		name       string
-		p          registration.SiteProb
-		nominal    float64
+		st         registration.Stats
 		reach, pad float64 // mil
 	}{
-		{"normal only", registration.SiteProb{Mean: 1 * mil, SD: 0.5 * mil}, 0, 5, 5},
-		{"below the design", registration.SiteProb{Mean: 7 * mil, SD: 0.25 * mil}, 10 * mil, 5, 5},
-		{"two boxes", registration.SiteProb{Mean: 1 * mil, SD: 0.5 * mil, Uniform: 0.3 * mil, Uniform2: 0.1 * mil}, 0, 5.4, 5.5},
-		{"fixed", registration.SiteProb{Mean: -2.2 * mil}, 0, 2.2, 2.5},
-		{"exact step", registration.SiteProb{Mean: 3 * mil, SD: 0.5 * mil}, 0, 7, 7},
+		{"centred", registration.Stats{MeanAcross: 0, SDAcross: 1 * mil}, 3.3, 3.5},
+		{"below the design", registration.Stats{MeanAcross: -3 * mil, SDAcross: 0.5 * mil}, 4.95, 5},
+		{"fixed", registration.Stats{MeanAcross: 2 * mil}, 2.2, 2.5},
+		{"wide", registration.Stats{MeanAcross: 4 * mil, SDAcross: 2 * mil}, 11, 11},
 	} {
 		t.Run(tt.name, func(t *testing.T) {
-			r := SiteReach(tt.p, tt.nominal)
-			// Sums of a few binary fractions of a mil: a few ulps.
+			r := SiteReach(tt.st)
+			// Products and sums of a few decimal fractions of a mil: a few ulps.
 			if math.Abs(r/mil-tt.reach) > 1e-9 {
 				t.Errorf("reach %.12g mil, want %g", r/mil, tt.reach)
 			}
