@@ -71,7 +71,7 @@ type AxisComp struct {
 	// Net is the resulting change of the layer's scale term: the artwork
 	// factor f acts before the material moves by its mean scale s, so the
 	// layer ends at (1+s)·f − 1 and Net = (f − 1)(1 + s). Compensating s fully
-	// takes f = 1/(1+s) (FACTS item 9).
+	// takes f = 1/(1+s) [calculated here: (1+s)·f = 1].
 	Net float64
 	// Free is set when this axis moves no broadside offset at any site (no
 	// coupled lines run across it), so that its value comes from the drill
