@@ -277,6 +277,7 @@ func BenchmarkCompensate10k(b *testing.B) {
 	for _, o := range []Objective{Worst, RMS} {
 		for _, budget := range []float64{0, 3 * 25.4 * um} {
 			b.Run(fmt.Sprintf("%s/budget=%v", o, budget > 0), func(b *testing.B) {
+				b.ReportAllocs()
 				for b.Loop() {
 					if _, err := Compensate(m, sites, &CompSettings{Objective: o, DrillBudget: budget, Step: 5e-6}); err != nil {
 						b.Fatal(err)

@@ -401,6 +401,7 @@ func BenchmarkFitLot(b *testing.B) {
 	}
 	for _, rb := range []Robust{NoRobust, Tukey} {
 		b.Run(rb.String(), func(b *testing.B) {
+			b.ReportAllocs()
 			for b.Loop() {
 				fits, err := FitAll(ts, &FitSettings{Robust: rb})
 				if err != nil {
