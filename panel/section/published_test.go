@@ -255,7 +255,13 @@ func TestParallelPlate(t *testing.T) {
 	got := sol.C[1][1] / (Eps0 * 2)
 	want := 4*wb + 8*math.Ln2/math.Pi
 	t.Logf("C/ε %.6f, parallel plate + fringing %.6f (%+.1e)", got, want, relErr(got, want))
-	if e := relErr(got, want); math.Abs(e) > 1e-4 {
+	// Measured: −2.2e−6 at testSettings (39,917 unknowns); the same case at
+	// accuracy 1e−3, where the estimate picks a mesh 6 times smaller, is
+	// −3.2e−5. The tolerance is 1.5 times that coarser error (23 times this
+	// one), so the check does not depend on which level the estimate picks
+	// while a solver 25 times worse fails.
+	const tolPlate = 1.5 * 3.2e-5
+	if e := relErr(got, want); math.Abs(e) > tolPlate {
 		t.Errorf("C/ε = %.5f, parallel plate + fringing %.5f (error %.2e)", got, want, e)
 	}
 }
