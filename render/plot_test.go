@@ -230,6 +230,8 @@ func TestPlotPixels(t *testing.T) {
 	}
 }
 
+// TestPlotRender draws the demo sweep plot (three panels) and checks where
+// its data lands.
 func TestPlotRender(t *testing.T) {
 	p := demoSweep()
 	c := p.Render(1600, 1500)
@@ -297,8 +299,11 @@ func TestPlotRender(t *testing.T) {
 	if len(bandRows) < 1000 || span(bandRows).Max.Y > span(series[1]).Min.Y {
 		t.Errorf("spec band: %d pixels over %v, want many, above the impedance panel (from row %d)", len(bandRows), span(bandRows), span(series[1]).Min.Y)
 	}
+}
 
-	// A family of curves with a legend, and a histogram.
+// TestPlotRenderFamily draws a family of curves with a legend and checks
+// their order and spacing.
+func TestPlotRenderFamily(t *testing.T) {
 	var lines []Line
 	for k := range 5 {
 		var x, y []float64
@@ -336,7 +341,11 @@ func TestPlotRender(t *testing.T) {
 	if r := (tolRows[0] - tolRows[1]) / (tolRows[0] - tolRows[4]); math.Abs(r-0.625) > 0.03 {
 		t.Errorf("tolerance study: gap ratio %.3f, want 0.625", r)
 	}
+}
 
+// TestPlotRenderHistogram draws a histogram of good parts per panel and
+// checks that its bars are proportional to the counts.
+func TestPlotRenderHistogram(t *testing.T) {
 	r := rand.New(rand.NewPCG(1, 2))
 	var good []int
 	for range 2000 {
@@ -381,7 +390,11 @@ func TestPlotRender(t *testing.T) {
 	if checked < 10 || ref*h.Counts[mode] < 300 {
 		t.Errorf("histogram: %d bins checked, tallest bar %g px", checked, ref*h.Counts[mode])
 	}
+}
 
+// TestBarChartRender draws an error-budget bar chart and checks the bars'
+// order, common zero and lengths.
+func TestBarChartRender(t *testing.T) {
 	bc := &BarChart{Title: "Offset variance budget at the worst site (demo)", XLabel: "share of variance [%]",
 		Labels: []string{"core C2 movement: scale_y", "L3 imaging: offset_x", "lamination shift: offset_x", "L4 imaging: rotation", "site random"},
 		Values: []float64{46.2, 21.5, 17.9, 9.1, 5.3}}
