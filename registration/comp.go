@@ -149,6 +149,8 @@ type linRows struct {
 	caps []float64
 }
 
+// add appends the form b + a·x with cap (0: none); caps is filled with
+// zeros for the earlier rows once any row has a cap.
 func (r *linRows) add(a []float64, b, cap float64) {
 	r.a = append(r.a, a)
 	r.b = append(r.b, b)
@@ -160,6 +162,7 @@ func (r *linRows) add(a []float64, b, cap float64) {
 	}
 }
 
+// value returns row i at x, b_i + a_i·x.
 func (r *linRows) value(i int, x []float64) float64 {
 	v := r.b[i]
 	for j, a := range r.a[i] {
@@ -267,6 +270,8 @@ func newCompProblem(m *Model, sites []CompSite, set *CompSettings) (*compProblem
 	return p, nil
 }
 
+// addLayer appends trace layer l to the problem's layers unless it is
+// there already.
 func (p *compProblem) addLayer(l string) {
 	if _, ok := p.li[l]; !ok {
 		p.li[l] = len(p.layers)
@@ -670,6 +675,7 @@ func leastSquares(r *linRows, n int) ([]float64, bool) {
 	return mat.Col(nil, 0, &z), true
 }
 
+// commonRule names how the common part is set, for the notes.
 func commonRule(budget bool) string {
 	if budget {
 		return "the drill budget (best registration to the drilled holes)"
@@ -677,6 +683,7 @@ func commonRule(budget bool) string {
 	return "the smallest compensation"
 }
 
+// stats returns the largest |e_i| and the root mean square of e (0 for none).
 func stats(e []float64) (worst, rms float64) {
 	if len(e) == 0 {
 		return 0, 0
@@ -689,6 +696,8 @@ func stats(e []float64) (worst, rms float64) {
 	return worst, math.Sqrt(ss / float64(len(e)))
 }
 
+// objective returns the value of o over the rows r at x: the largest |row|
+// or their root mean square.
 func objective(o Objective, r *linRows, x []float64) float64 {
 	if o == Worst {
 		return worstAbs(r, x)
@@ -701,6 +710,7 @@ func objective(o Objective, r *linRows, x []float64) float64 {
 	return math.Sqrt(ss / math.Max(1, float64(len(r.b))))
 }
 
+// worstAbs returns the largest |row| of r at x.
 func worstAbs(r *linRows, x []float64) float64 {
 	var w float64
 	for i := range r.b {
