@@ -25,10 +25,10 @@ func compGrid(nx, ny int, w, h float64, u panel.Vec, upper, lower string) []Comp
 	return s
 }
 
-// twoCores is an analytic case worked by hand [calculated here]: the core under L3 grows by
-// +250 ppm in y, the core under L4 shrinks by 50 ppm, and the lines run along
-// x, so the offset at height y is (250 − (−50)) ppm · y. Compensation must
-// make the Y difference −300 ppm; X moves no offset.
+// twoCores is an analytic case worked by hand [calculated here]: the core
+// under L3 grows by +250 ppm in y, the core under L4 shrinks by 50 ppm, and
+// the lines run along x, so the offset at height y is (250 − (−50)) ppm · y.
+// Compensation must make the Y difference −300 ppm; X moves no offset.
 func twoCores() *Model {
 	return &Model{Contributors: []Contributor{
 		{Name: "core A", Layers: []string{"L3", "L2"}, Terms: [NumTerms]Term{ScaleY: {Mean: 250e-6}}},

@@ -32,9 +32,9 @@
 // reach Cohn's thin-strip formulas exactly rather than by extrapolating
 // thinner and thinner rectangles (a t/b = 1e−3 rectangle of w/b = 1 still
 // has 0.26 % more capacitance than the zero-thickness strip; calculated here
-// with this solver at accuracy 1e−4). Stripline domains end at the grounds' inner faces;
-// microstrip domains are closed by a grounded box 160 × (stack height + two
-// trace widths + nominal offset) away (TestOpenBoundary: doubling that
+// with this solver at accuracy 1e−4). Stripline domains end at the grounds'
+// inner faces; microstrip domains are closed by a grounded box
+// 160 × (stack height + two trace widths + nominal offset) away (TestOpenBoundary: doubling that
 // distance changes C by 7e−5 and C0 by 1.3e−4, mesh change included; the
 // geometric grading makes the far box cost a few elements).
 //

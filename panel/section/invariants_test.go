@@ -115,11 +115,12 @@ func TestHomogeneous(t *testing.T) {
 }
 
 // TestPozarSynthetic: a homogeneous symmetric pair built from the even and
-// odd impedances of a 20 dB, 50 Ω coupler (Pozar, Microwave Engineering, 4th
-// ed., §7.6, eq. 7.37 and Example 7.7: Z0e 55.28, Z0o 45.23 Ω [published,
-// from memory]; the 10 and 3 dB rows are calculated here from the same
-// relations, Z0e,o = Z0·√((1 ± c)/(1 ∓ c)), c = 10^(−C/20)) is matched, isolated and couples
-// (Z0e − Z0o)/(Z0e + Z0o) at its quarter-wave frequency.
+// odd impedances of a 50 Ω coupler is matched, isolated and couples
+// (Z0e − Z0o)/(Z0e + Z0o) at its quarter-wave frequency. The 20 dB row is
+// Pozar's worked example (Microwave Engineering, 4th ed., §7.6, eq. 7.37 and
+// Example 7.7: Z0e 55.28, Z0o 45.23 Ω) [published, from memory]; the 10 and
+// 3 dB rows are calculated here from the same relations,
+// Z0e,o = Z0·√((1 ± c)/(1 ∓ c)), c = 10^(−C/20).
 func TestPozarSynthetic(t *testing.T) {
 	for _, c := range []struct{ db, ze, zo float64 }{
 		{20, 55.28, 45.23}, {10, 69.37, 36.04}, {3, 120.91, 20.68}, // Pozar §7.6 [published; 10 and 3 dB calculated here]
@@ -232,8 +233,8 @@ func TestCouplingFallsWithOffset(t *testing.T) {
 }
 
 // offsetDesign is the demo section with a 12 mil upper trace offset 18 mil
-// (the usual way to reach 10–20 dB [common practice]); its upper left edge passes the
-// lower right edge near 13 mil.
+// (the usual way to reach 10–20 dB [common practice]); its upper left edge
+// passes the lower right edge near 13 mil.
 func offsetDesign() *Section {
 	s := demoSection()
 	s.Name = "offset"
@@ -243,8 +244,8 @@ func offsetDesign() *Section {
 }
 
 // TestSmoothness: the second difference of coupling over 0.1 mil steps stays
-// under 0.002 dB (the project's smoothness target), including where the edges of the two traces pass
-// each other (0 and ±2·etch for the demo section, 12.4 to 13 mil for the
+// under 0.002 dB (the project's smoothness target), including where the
+// edges of the two traces pass each other (0 and ±2·etch for the demo section, 12.4 to 13 mil for the
 // offset design).
 func TestSmoothness(t *testing.T) {
 	cases := []struct {
