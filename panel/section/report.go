@@ -1,7 +1,7 @@
 package section
 
 // Report is the machine-readable form of a curve for `regdrift sweep
-// --json` (INTERFACE.md): SI values with the unit in the key.
+// --json`: SI values with the unit in the key.
 type Report struct {
 	Section     string        `json:"section"`
 	FrequencyHz float64       `json:"frequency_hz"`
@@ -48,7 +48,7 @@ type LevelReport struct {
 	C0FPerM  [2][2]float64 `json:"c0_f_per_m"`
 }
 
-// Report returns the curve's points in the INTERFACE.md shape.
+// Report returns the curve's points in that JSON shape.
 func (c *Curve) Report() Report {
 	r := Report{Section: c.Section, FrequencyHz: c.Frequency, LengthM: c.Length, ZRefOhm: c.ZRef}
 	for _, p := range c.Points {

@@ -207,7 +207,7 @@ func (s *Section) Validate() error {
 			return s.fieldErr(key+".etch", "etch %s per side leaves no top width", mils(t.Etch))
 		}
 		// Even isotropic etching undercuts no more than it etches deep (etch
-		// factor ≥ 1; 2 to 4 is typical, FACTS.md [cp]); an undercut of more
+		// factor ≥ 1; 2 to 4 is typical [common practice]); an undercut of more
 		// than twice the copper thickness is almost surely a unit slip.
 		if th := ls[i].Thickness; t.Etch > maxUndercut*th {
 			return s.fieldErr(key+".etch", "etch %s per side is more than %g times the copper thickness %s (etch factor below %g)", mils(t.Etch), maxUndercut, mils(th), 1/maxUndercut)
