@@ -16,7 +16,7 @@ type Point struct {
 	Lines
 	CouplingDB    float64 // 20·log10|S31| at f0 (negative)
 	DirectivityDB float64 // 20·log10(|S31|/|S41|), capped at 200 dB
-	PeakFrequency float64 // frequency of peak coupling, Hz
+	PeakFrequency float64 // first maximum of the coupling over frequency, Hz; 0 if none below twice the higher quarter-wave frequency
 	Convergence   Convergence
 }
 
