@@ -2,6 +2,7 @@ package section
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -27,6 +28,9 @@ type Curve struct {
 	Length    float64 // the coupled length used (resolved quarter wave), m
 	ZRef      float64 // port reference impedance, ohm
 	Points    []Point // sorted by Offset
+	// CacheWarnings are *CacheWarning values from CachedSweep: a damaged
+	// entry recomputed, an entry that could not be stored (cache.go).
+	CacheWarnings []error
 
 	coupling, directivity, z0, z1 monotoneCubic
 	lo, hi                        float64
@@ -108,6 +112,7 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 func (sv *solver) solveAll(ctx context.Context, todo []float64, lev float64, workers int) ([]*Solution, error) {
 	sols := make([]*Solution, len(todo))
 	errs := make([]error, len(todo))
+	parent := ctx
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	next := make(chan int)
@@ -146,12 +151,20 @@ feed:
 	}
 	close(next)
 	wg.Wait()
+	// The first failure cancels the others, which then report the
+	// cancellation: report the failure, not what it caused (or the caller's
+	// own cancellation, if that came first).
+	if err := parent.Err(); err != nil {
+		return nil, err
+	}
 	for i, e := range errs {
-		if e != nil {
+		if e != nil && !errors.Is(e, context.Canceled) {
 			return nil, fmt.Errorf("sweep offset %s: %w", mils(todo[i]), e)
 		}
+	}
+	for i := range sols {
 		if sols[i] == nil {
-			return nil, ctx.Err()
+			return nil, context.Canceled
 		}
 	}
 	return sols, nil
