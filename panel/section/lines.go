@@ -46,6 +46,9 @@ const degenerateTol = 1e-9
 // NewLines derives the line parameters from the Maxwell capacitance matrices
 // with (C) and without (C0) the dielectrics: L = μ0·ε0·C0⁻¹ (Paul 2008, §3.2.4:
 // the inductance of a lossless line does not depend on the dielectric).
+// C and C0 must be Maxwell capacitance matrices, symmetric and positive
+// definite, as Solve returns them; NewLines panics on others (a caller's
+// mistake, like a shape mismatch in gonum, not a property of the data).
 func NewLines(C, C0 [2][2]float64) Lines {
 	l := Lines{C: C, C0: C0}
 	det0 := C0[0][0]*C0[1][1] - C0[0][1]*C0[1][0]
@@ -163,7 +166,7 @@ func inv2(a [2][2]float64) [2][2]float64 {
 }
 
 // SParams returns the scattering parameters at frequency freq (Hz) of a
-// section of length length (m) with every port terminated in zref (ohm), by
+// section of length length (m) with every port terminated in zref > 0 (ohm), by
 // lossless multiconductor transmission-line theory, valid for an
 // inhomogeneous, asymmetric pair and exact at every length.
 //
@@ -233,17 +236,23 @@ func (l Lines) QuarterWave(freq float64) float64 {
 }
 
 // maxDirectivityDB caps the directivity of an ideal (homogeneous) section,
-// where |S41| is rounding noise.
+// where |S41| is rounding noise, both ways: ±200 dB.
 const maxDirectivityDB = 200
+
+// minCouplingDB floors the coupling: below −400 dB (|S31| = 1e−20, against
+// the 1e−16 rounding of |S| entries of order 1) the figure is rounding noise,
+// and an exact zero (a homogeneous pair at a half wave, or no coupling at
+// all) would otherwise be −Inf, which no JSON can carry.
+const minCouplingDB = -400
 
 // couplingAt returns coupling and directivity in dB at freq.
 func (l Lines) couplingAt(freq, length, zref float64) (c, d float64) {
 	s := l.SParams(freq, length, zref)
 	a31, a41 := cmplx.Abs(s.S31), cmplx.Abs(s.S41)
-	c = 20 * math.Log10(a31)
+	c = math.Max(minCouplingDB, 20*math.Log10(a31))
 	d = maxDirectivityDB
 	if a41 > 0 {
-		d = math.Min(d, 20*math.Log10(a31/a41))
+		d = math.Max(-maxDirectivityDB, math.Min(d, 20*math.Log10(a31/a41)))
 	}
 	return c, d
 }

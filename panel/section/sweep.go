@@ -15,8 +15,8 @@ import (
 type Point struct {
 	Offset float64 // upper minus lower trace centre, m
 	Lines
-	CouplingDB    float64 // 20·log10|S31| at f0 (negative)
-	DirectivityDB float64 // 20·log10(|S31|/|S41|), capped at 200 dB
+	CouplingDB    float64 // 20·log10|S31| at f0 (negative, at least −400 dB)
+	DirectivityDB float64 // 20·log10(|S31|/|S41|), within ±200 dB
 	PeakFrequency float64 // first maximum of the coupling over frequency, Hz; 0 if none below twice the higher quarter-wave frequency
 	Convergence   Convergence
 }
