@@ -12,7 +12,9 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"syscall"
+	"time"
 )
 
 // SolverVersion changes whenever a change to the solver changes its numbers;
@@ -97,8 +99,9 @@ func (w *CacheWarning) Unwrap() error { return w.Err }
 // CachedSweep returns the curve of Sweep from the cache directory dir
 // (os.UserCacheDir()/regdrift when dir is ""), keyed by CacheKey; on a miss it
 // runs Sweep and stores the result (written to a temporary file, then renamed,
-// so that a failed run leaves no half-written entry). noCache bypasses the
-// cache in both directions.
+// so that a failed run leaves no half-written entry; temporary files of that
+// naming over an hour old, left by a run killed while writing, are removed).
+// noCache bypasses the cache in both directions.
 //
 // A damaged entry (unparseable, altered, not a regular file, too large,
 // points out of order) is ignored and recomputed, and rewritten where the
@@ -281,6 +284,7 @@ func writeCache(dir, path, key string, c *Curve) error {
 	if err != nil {
 		return err
 	}
+	removeStaleTemps(dir)
 	tmp, err := os.CreateTemp(dir, key+".*.tmp")
 	if err != nil {
 		return err
@@ -299,4 +303,20 @@ func writeCache(dir, path, key string, c *Curve) error {
 		return err
 	}
 	return nil
+}
+
+// staleTempAge is the age after which a temporary file of the cache's own
+// naming is taken as left behind by a run that was killed while writing: a
+// write takes milliseconds.
+const staleTempAge = time.Hour
+
+// removeStaleTemps removes temporary files of the cache's naming (a 64-digit
+// key, a random part, ".tmp") older than staleTempAge from dir.
+func removeStaleTemps(dir string) {
+	m, _ := filepath.Glob(filepath.Join(dir, strings.Repeat("[0-9a-f]", 64)+".*.tmp"))
+	for _, p := range m {
+		if fi, err := os.Lstat(p); err == nil && fi.Mode().IsRegular() && time.Since(fi.ModTime()) > staleTempAge {
+			os.Remove(p)
+		}
+	}
 }

@@ -244,3 +244,32 @@ func TestCacheUnwritable(t *testing.T) {
 		})
 	}
 }
+
+// TestCacheStaleTemps: a temporary file of the cache's naming older than
+// staleTempAge (left by a run killed while writing) is removed by the next
+// write; a fresh one (another run writing now) and other files are kept.
+func TestCacheStaleTemps(t *testing.T) {
+	s, offs, set, _ := faultSetup(t)
+	dir := t.TempDir()
+	key := CacheKey(s, offs, set)
+	other := CacheKey(s, offs[1:], set)
+	old := filepath.Join(dir, other+".123.tmp")
+	fresh := filepath.Join(dir, other+".456.tmp")
+	foreign := filepath.Join(dir, "notes.123.tmp")
+	for _, p := range []string{old, fresh, foreign} {
+		if err := os.WriteFile(p, []byte("{"), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	long := time.Now().Add(-2 * staleTempAge)
+	os.Chtimes(old, long, long)
+	os.Chtimes(foreign, long, long)
+	if _, _, err := CachedSweep(context.Background(), s, offs, set, dir, false); err != nil {
+		t.Fatal(err)
+	}
+	for p, keep := range map[string]bool{old: false, fresh: true, foreign: true, filepath.Join(dir, key+".json"): true} {
+		if _, err := os.Lstat(p); (err == nil) != keep {
+			t.Errorf("%s: kept %v, want %v", filepath.Base(p), err == nil, keep)
+		}
+	}
+}

@@ -189,6 +189,20 @@
 // of the two modes. Ports: 1 input (line 1 at z = 0), 2 through (line 1 at z = ℓ),
 // 3 coupled (line 2 at z = 0), 4 isolated (line 2 at z = ℓ).
 //
+// # Limits and faults
+//
+// [Section.Validate] rejects, as a [FieldError] naming the key, values no
+// printed board has: εr above [MaxEr] (100), f0 above [MaxFrequency]
+// (1 THz), a thickness, width, etch or coupled length above [MaxDimension]
+// (1 m), a reference impedance above 1 kΩ. An accuracy target whose meshes
+// exceed the node limit fails at once with a [ConvergenceError] matching
+// [ErrMeshLimit]; [FinestAccuracy] gives the finest target a section can
+// start at, [MinAccuracy] the finest worth parsing at all. A cache entry is
+// checked (format, solver version, key, SHA-256 of the payload, points in
+// order, regular file, size) and recomputed when damaged; a cache that
+// cannot be written leaves a [CacheWarning] on the curve, never a failed
+// solve.
+//
 // # Speed
 //
 // go test -run XXX -bench Sweep21 -benchtime 3x ./panel/section/ on the
