@@ -1,6 +1,7 @@
 package section
 
 import (
+	"errors"
 	"fmt"
 	"math"
 )
@@ -158,6 +159,40 @@ func (set *Settings) check(s *Section) error {
 	}
 	if a := set.Accuracy; math.IsNaN(a) || a >= 1 {
 		return s.fieldErr("accuracy", "accuracy target %g is not a relative error below 1", a)
+	}
+	return nil
+}
+
+// ErrNotMaxwell is wrapped by the error of a solve whose capacitance matrices
+// are not Maxwell matrices (finite, symmetric, positive definite, C ≥ C0 on
+// the diagonal): a numerical failure inside the plausibility bounds, which
+// must stop the solve before NewLines (whose precondition they are) or any
+// figure derived from them.
+var ErrNotMaxwell = errors.New("capacitance matrix is not a Maxwell matrix")
+
+// checkMaxwell checks the extrapolated matrices of a solve.
+func (sv *solver) checkMaxwell(off float64, conv Convergence) error {
+	for _, m := range []struct {
+		name string
+		c    [2][2]float64
+	}{{"C", conv.C}, {"C0", conv.C0}} {
+		c := m.c
+		ok := finite(c[0][0]) && finite(c[0][1]) && finite(c[1][0]) && finite(c[1][1]) &&
+			c[0][0] > 0 && c[1][1] > 0 && c[0][0]*c[1][1] > c[0][1]*c[1][0] &&
+			math.Abs(c[0][1]-c[1][0]) <= 1e-9*math.Sqrt(c[0][0]*c[1][1])
+		if !ok {
+			return fmt.Errorf("section %q: offset %s: %s = %v: %w", sv.s.Name, mils(off), m.name, c, ErrNotMaxwell)
+		}
+	}
+	// A dielectric (εr ≥ 1) can only raise the self capacitances: C_ii is
+	// the minimum of the field energy over potentials with conductor i at
+	// 1 V and the others at 0 (Jackson, Classical Electrodynamics, 3rd ed.,
+	// §1.12), and the energy of every potential grows with ε; the same holds
+	// for the discrete energy form on one mesh. Allow rounding.
+	for i := range 2 {
+		if conv.C[i][i] < conv.C0[i][i]*(1-1e-9) {
+			return fmt.Errorf("section %q: offset %s: C%d%d %g below its vacuum value %g: %w", sv.s.Name, mils(off), i+1, i+1, conv.C[i][i], conv.C0[i][i], ErrNotMaxwell)
+		}
 	}
 	return nil
 }

@@ -181,3 +181,25 @@ func TestBoundsCorners(t *testing.T) {
 		})
 	}
 }
+
+// TestCheckMaxwell: matrices that are not Maxwell matrices stop a solve with
+// ErrNotMaxwell before NewLines could panic on them.
+func TestCheckMaxwell(t *testing.T) {
+	sv := &solver{s: demoSection()}
+	good := [2][2]float64{{150e-12, -40e-12}, {-40e-12, 150e-12}}
+	good0 := scaled(good, 1/3.0)
+	if err := sv.checkMaxwell(0, Convergence{C: good, C0: good0}); err != nil {
+		t.Fatalf("good matrices: %v", err)
+	}
+	for name, c := range map[string][2][2]float64{
+		"NaN":               {{math.NaN(), 0}, {0, 1e-10}},
+		"not definite":      {{1e-10, -2e-10}, {-2e-10, 1e-10}},
+		"negative diagonal": {{-1e-10, 0}, {0, 1e-10}},
+		"not symmetric":     {{1e-10, -1e-11}, {-2e-11, 1e-10}},
+		"below vacuum":      scaled(good0, 0.9),
+	} {
+		if err := sv.checkMaxwell(0, Convergence{C: c, C0: good0}); !errors.Is(err, ErrNotMaxwell) {
+			t.Errorf("%s: %v, want ErrNotMaxwell", name, err)
+		}
+	}
+}

@@ -225,6 +225,9 @@ func (sv *solver) solve(ctx context.Context, off float64, w *femWork) (*Solution
 	for step := 1; ; step++ {
 		sol, err := sv.solveLevel(ctx, off, lev, w)
 		if err != nil {
+			if ce := (*ConvergenceError)(nil); errors.As(err, &ce) {
+				ce.Iterations = step // the mesh limit can stop a later step
+			}
 			return nil, err
 		}
 		sol.Convergence.Iterations = step
@@ -329,6 +332,9 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 	est := g * math.Max(relDiff(conv.C, richardsonRatio(lv[1].C, lv[0].C, roughRatio)), relDiff(conv.C0, richardsonRatio(lv[1].C0, lv[0].C0, roughRatio)))
 	est = math.Max(est, math.Max(orderError(lv[0].C, lv[1].C, lv[2].C), orderError(lv[0].C0, lv[1].C0, lv[2].C0)))
 	conv.EstimatedError = est
+	if err := sv.checkMaxwell(off, conv); err != nil { // limits.go
+		return nil, err
+	}
 	return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
 }
 

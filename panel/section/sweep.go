@@ -76,6 +76,9 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		var err error
 		sols, err = sv.solveAll(ctx, todo, lev, set.workers())
 		if err != nil {
+			if ce := (*ConvergenceError)(nil); errors.As(err, &ce) {
+				ce.Iterations = step // the mesh limit can stop a later step
+			}
 			return nil, err
 		}
 		worst := sols[0]
