@@ -181,13 +181,32 @@
 // L = μ0·ε0·C0⁻¹ (Paul, Analysis of Multiconductor Transmission Lines, 2nd
 // ed., Wiley 2008, §3.2.4). The modes are the eigenvectors of L·C, computed as
 // the symmetric problem R·C·Rᵀ with L = Rᵀ·R (gonum mat.EigenSym), which stays
-// well conditioned when the modes are nearly degenerate. The 4-port comes from
-// the modal decomposition (Paul 2008, §7.2): each mode is a scalar line whose
-// admittance matrix is known in closed form; the 4 × 4 admittance matrix
-// follows by the voltage and current transformations, and
-// S = (I − zref·Y)(I + zref·Y)⁻¹ (Pozar, Microwave Engineering, 4th ed., 2012,
-// §4.3). Ports: 1 input (line 1 at z = 0), 2 through (line 1 at z = ℓ),
+// well conditioned when the modes are nearly degenerate; with one εr
+// everywhere the modes are degenerate ([Lines.Degenerate]) and the basis
+// reported is C's eigenvectors, for a symmetric pair the odd then the even
+// mode. The 4-port comes from the chain-parameter matrix of the modal
+// decomposition (Paul 2008, §6.2, §7.2) with the four ports' terminations
+// written into it, one 2 × 2 system that is regular at every length (an
+// admittance matrix has poles where a mode is a multiple of a half wave);
+// the waves follow from the port voltages (Pozar, Microwave Engineering, 4th
+// ed., 2012, §4.3). The peak-coupling frequency is the first maximum of
+// |S31| above zero, searched up to twice the higher quarter-wave frequency
+// of the two modes. Ports: 1 input (line 1 at z = 0), 2 through (line 1 at z = ℓ),
 // 3 coupled (line 2 at z = 0), 4 isolated (line 2 at z = ℓ).
+//
+// # Limits and faults
+//
+// [Section.Validate] rejects, as a [FieldError] naming the key, values no
+// printed board has: εr above [MaxEr] (100), f0 above [MaxFrequency]
+// (1 THz), a thickness, width, etch or coupled length above [MaxDimension]
+// (1 m), a reference impedance above 1 kΩ. An accuracy target whose meshes
+// exceed the node limit fails at once with a [ConvergenceError] matching
+// [ErrMeshLimit]; [FinestAccuracy] gives the finest target a section can
+// start at, [MinAccuracy] the finest worth parsing at all. A cache entry is
+// checked (format, solver version, key, SHA-256 of the payload, points in
+// order, regular file, size) and recomputed when damaged; a cache that
+// cannot be written leaves a [CacheWarning] on the curve, never a failed
+// solve.
 //
 // # Speed
 //

@@ -20,12 +20,13 @@ type PointReport struct {
 	KL              float64       `json:"k_l"`
 	CouplingDB      float64       `json:"coupling_db"`
 	DirectivityDB   float64       `json:"directivity_db"`
-	PeakFrequencyHz float64       `json:"peak_frequency_hz"`
+	PeakFrequencyHz float64       `json:"peak_frequency_hz"`    // first maximum of the coupling; 0 if none below twice the higher quarter-wave frequency
 	ZEvenOhm        *float64      `json:"z_even_ohm,omitempty"` // when the section is symmetric at this offset
 	ZOddOhm         *float64      `json:"z_odd_ohm,omitempty"`
-	ZLineOhm        [2]float64    `json:"z_line_ohm"` // √(L_ii/C_ii)
-	ZModeOhm        [2]float64    `json:"z_mode_ohm"`
-	EpsEff          [2]float64    `json:"eps_eff"` // the two modes, ascending
+	ZLineOhm        [2]float64    `json:"z_line_ohm"`                 // √(L_ii/C_ii)
+	ZModeOhm        [2]float64    `json:"z_mode_ohm"`                 // mode order of eps_eff; degenerate modes: odd-like first
+	ModesDegenerate bool          `json:"modes_degenerate,omitempty"` // one εeff (one εr everywhere): any basis is a mode basis
+	EpsEff          [2]float64    `json:"eps_eff"`                    // the two modes, ascending
 	Convergence     ConvReport    `json:"convergence"`
 }
 
@@ -55,7 +56,7 @@ func (c *Curve) Report() Report {
 		q := PointReport{
 			OffsetM: p.Offset, CFPerM: p.C, C0FPerM: p.C0, LHPerM: p.L, KC: p.KC, KL: p.KL,
 			CouplingDB: p.CouplingDB, DirectivityDB: p.DirectivityDB, PeakFrequencyHz: p.PeakFrequency,
-			ZLineOhm: p.ZLine, ZModeOhm: p.ZMode, EpsEff: p.EpsEff,
+			ZLineOhm: p.ZLine, ZModeOhm: p.ZMode, EpsEff: p.EpsEff, ModesDegenerate: p.Degenerate,
 		}
 		if p.Symmetric {
 			ze, zo := p.ZEven, p.ZOdd

@@ -131,6 +131,9 @@ func (s *Section) copperIndex(name string) (int, bool) {
 // Validate checks that the section is physically meaningful. The error is a
 // *FieldError naming the section and the offending key.
 func (s *Section) Validate() error {
+	if err := s.checkPlausible(); err != nil { // limits.go
+		return err
+	}
 	ls := s.Stackup.Layers
 	if len(ls) == 0 {
 		return s.fieldErr("stackup.layers", "empty stackup")
