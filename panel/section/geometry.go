@@ -8,6 +8,22 @@ type band struct {
 	y0, y1 float64
 	er     float64 // permittivity of the band (resin of the neighbouring prepreg in a trace slab)
 	trace  int     // index of the trace in this slab, or -1; both traces: 2
+	src    int     // stackup index of the dielectric whose εr fills the band; srcAir outside the stack
+}
+
+// Permittivity sources of an element that are not a stackup layer.
+const (
+	srcAir  = -1
+	srcMask = -2
+)
+
+// maskGeom is the solder mask in domain coordinates (see Mask).
+type maskGeom struct {
+	y0     float64 // laminate face under the outer copper slab
+	top    float64 // y0 + OverLaminate
+	tc     float64 // coat over the copper
+	er     float64
+	coated [2]bool // trace k stands in the outer slab and is coated
 }
 
 // traceGeom is one trapezoidal trace in domain coordinates.
@@ -43,6 +59,7 @@ type geometry struct {
 	order [4]edgeRef
 	offLo float64
 	offHi float64
+	mask  *maskGeom // nil without a solder mask
 }
 
 // edgeRef names one side of one trace.
@@ -89,12 +106,18 @@ func (s *Section) buildGeometry() *geometry {
 		}
 		return ls[i].Er
 	}
+	src := func(i int) int {
+		if i < 0 || i >= len(ls) {
+			return srcAir
+		}
+		return i
+	}
 	isCore := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric && ls[i].Core }
 	isDiel := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric }
 	y := 0.0
 	for _, i := range order {
 		l := ls[i]
-		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1}
+		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i}
 		if l.Kind == Copper {
 			// A copper slab: the trace stands on the face of the dielectric it was
 			// etched on, a core face if the slab touches exactly one core, else the
@@ -109,11 +132,11 @@ func (s *Section) buildGeometry() *geometry {
 			default:
 				footBelow = isDiel(i + 1)
 			}
-			resin := er(i - 1)
+			resin, rs := er(i-1), src(i-1)
 			if !footBelow {
-				resin = er(i + 1)
+				resin, rs = er(i+1), src(i+1)
 			}
-			b.er = resin
+			b.er, b.src = resin, rs
 			for k := range 2 {
 				if ls[i].Name != s.Traces[k].Layer {
 					continue
@@ -145,7 +168,49 @@ func (s *Section) buildGeometry() *geometry {
 		y = b.y1
 	}
 	g.stackH = y
+	if m := s.Stackup.Mask; m != nil && g.micro {
+		mg := &maskGeom{y0: y, tc: m.OverCopper, er: m.Er}
+		if o := order[len(order)-1]; ls[o].Kind == Copper {
+			mg.y0 = y - ls[o].Thickness
+			for k := range 2 {
+				mg.coated[k] = g.tr[k].slab == o && ls[o].Name == s.Traces[k].Layer
+			}
+		}
+		mg.top = mg.y0 + m.OverLaminate
+		g.mask = mg
+	}
 	return g
+}
+
+// maskSplits returns the heights at which the mask adds node rows.
+func (g *geometry) maskSplits() []float64 {
+	m := g.mask
+	if m == nil {
+		return nil
+	}
+	out := []float64{m.top}
+	for k := range 2 {
+		if m.coated[k] {
+			out = append(out, g.tr[k].yt+m.tc)
+		}
+	}
+	return out
+}
+
+// splitBands splits bands at every height in at that lies strictly inside one.
+func splitBands(bands []band, at []float64) []band {
+	for _, y := range at {
+		for i := 0; i < len(bands); i++ {
+			b := bands[i]
+			if y > b.y0 && y < b.y1 {
+				lo, hi := b, b
+				lo.y1, hi.y0 = y, y
+				bands = append(bands[:i], append([]band{lo, hi}, bands[i+1:]...)...)
+				break
+			}
+		}
+	}
+	return bands
 }
 
 // domainHeight returns the ground-to-ground distance (stripline) or the height

@@ -76,9 +76,14 @@ func (g *geometry) smallestFeature(s *Section) float64 {
 			}
 		}
 	}
+	coat := 0.0
+	if m := g.mask; m != nil && (m.coated[0] || m.coated[1]) {
+		coat = m.tc
+		f = math.Min(f, coat)
+	}
 	if g.same {
 		d := math.Abs((g.offLo + g.offHi) / 2)
-		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2
+		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2 - 2*coat
 		if gap > 0 {
 			f = math.Min(f, gap)
 		}
@@ -103,8 +108,9 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		hmax = math.Inf(1)
 		r := g.openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
 		p.margin = r
-		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1})
+		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1, src: srcAir})
 	}
+	p.bands = splitBands(p.bands, g.maskSplits())
 	p.gx = grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
 	gy := grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
 	// Counts come from the base grading (floor h0base) at level lev.
@@ -219,11 +225,18 @@ func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int
 	wl, wr := p.walls(off)
 	dst = append(dst[:0], wl)
 	centre := [2]float64{g.x1 + off, g.x1}
+	tc, coated := g.coat()
 	for _, e := range g.order {
 		hw := g.tr[e.trace].halfWidth(y[e.trace])
 		if e.right {
 			dst = append(dst, centre[e.trace]+hw)
+			if coated[e.trace] {
+				dst = append(dst, centre[e.trace]+hw+tc)
+			}
 		} else {
+			if coated[e.trace] {
+				dst = append(dst, centre[e.trace]-hw-tc)
+			}
 			dst = append(dst, centre[e.trace]-hw)
 		}
 	}
@@ -259,6 +272,48 @@ func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int
 	return dst
 }
 
+// coat returns the side-wall coat of the mask and which traces carry it
+// (their rows get a column line at each coat's outer face; only an
+// edge-coupled pair can be coated, Section.checkMask).
+func (g *geometry) coat() (tc float64, coated [2]bool) {
+	if g.mask == nil {
+		return 0, coated
+	}
+	return g.mask.tc, g.mask.coated
+}
+
+// keyColumns returns, per trace, the column lines of its left and right edge
+// and of the outer faces of its side-wall coats (equal to the edges when it
+// is not coated), in the key order of keysOrdered.
+func (p *meshPlan) keyColumns() (colL, colR, coatL, coatR [2]int) {
+	_, coated := p.g.coat()
+	q, col := 0, 0 // key index, column of key q
+	next := func() { col += p.xc[q]; q++ }
+	for _, e := range p.g.order {
+		k := e.trace
+		if e.right {
+			next()
+			colR[k] = col
+			coatR[k] = col
+			if coated[k] {
+				next()
+				coatR[k] = col
+			}
+		} else {
+			if coated[k] {
+				next()
+				coatL[k] = col
+			}
+			next()
+			colL[k] = col
+			if !coated[k] {
+				coatL[k] = col
+			}
+		}
+	}
+	return
+}
+
 // Held edges: an edge of the other trace stays at least heldGap·feature from
 // its neighbour, and is moved only within heldSoft·feature of that limit.
 const (
@@ -291,6 +346,7 @@ type mesh struct {
 	x, y   []float64 // node coordinates, node (i, j) at i*(ny+1)+j
 	tag    []int8    // tagFree, tagGround, or tagTrace+k
 	er     []float64 // element permittivity, 0 inside a conductor; element (i, j) at i*ny+j
+	src    []int16   // where each element's permittivity comes from: a stackup index, srcAir or srcMask
 }
 
 const (
@@ -308,6 +364,10 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	m.x = resize(m.x, nn)
 	m.y = resize(m.y, nn)
 	m.er = resize(m.er, nx*ny)
+	if cap(m.src) < nx*ny {
+		m.src = make([]int16, nx*ny)
+	}
+	m.src = m.src[:nx*ny]
 	if cap(m.tag) < nn {
 		m.tag = make([]int8, nn)
 	}
@@ -330,16 +390,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 		fill(rowHi, p.ys[p.jub], p.hi)
 	}
 	// Trace column ranges [iL, iR] in the pattern of each row.
-	var colL, colR [2]int
-	col := 0
-	for e, ed := range g.order {
-		col += p.xc[e]
-		if ed.right {
-			colR[ed.trace] = col
-		} else {
-			colL[ed.trace] = col
-		}
-	}
+	colL, colR, coatL, coatR := p.keyColumns()
 	for j, y := range p.ys {
 		switch {
 		case g.same:
@@ -382,10 +433,11 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			m.tag[n] = tag
 		}
 	}
+	mg := g.mask
 	for i := range nx {
 		for j := range ny {
 			b := p.bands[p.rowBand[j]]
-			er := b.er
+			er, src := b.er, b.src
 			for k := range 2 {
 				if (b.trace == k || b.trace == 2) && g.tr[k].yt > g.tr[k].yb && i >= colL[k] && i < colR[k] {
 					if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
@@ -393,7 +445,22 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 					}
 				}
 			}
+			if er != 0 && mg != nil {
+				// Rows and columns follow the mask's faces, so the element
+				// centre decides.
+				yc := (p.ys[j] + p.ys[j+1]) / 2
+				in := yc > mg.y0 && yc < mg.top
+				for k := range 2 {
+					if mg.coated[k] && yc > mg.y0 && yc < g.tr[k].yt+mg.tc && i >= coatL[k] && i < coatR[k] {
+						in = true
+					}
+				}
+				if in {
+					er, src = mg.er, srcMask
+				}
+			}
 			m.er[i*ny+j] = er
+			m.src[i*ny+j] = int16(src)
 		}
 	}
 }
