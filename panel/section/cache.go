@@ -19,21 +19,22 @@ const SolverVersion = "section-2"
 // name), the offsets and the solver accuracy (not the worker count, which
 // does not change the numbers).
 type cacheKey struct {
-	Version      string
-	Stackup      Stackup
-	Traces       [2]Trace
-	Grounds      []string
-	Frequency    float64
-	Length       float64
-	ZRef         float64
-	DesignOffset float64
-	Offsets      []float64
-	Accuracy     float64
+	Version       string
+	Stackup       Stackup
+	Traces        [2]Trace
+	Grounds       []string
+	Frequency     float64
+	Length        float64
+	ZRef          float64
+	DesignOffset  float64
+	Offsets       []float64
+	Accuracy      float64
+	Sensitivities bool
 }
 
 // CacheKey returns the hex SHA-256 that names the cache file of a sweep.
 func CacheKey(s *Section, offsets []float64, set *Settings) string {
-	k := cacheKey{SolverVersion, s.Stackup, s.Traces, s.Grounds, s.Frequency, s.Length, s.ZRef, s.DesignOffset, offsets, set.accuracy()}
+	k := cacheKey{SolverVersion, s.Stackup, s.Traces, s.Grounds, s.Frequency, s.Length, s.ZRef, s.DesignOffset, offsets, set.accuracy(), set.sensitivities()}
 	b, err := json.Marshal(k)
 	if err != nil {
 		panic(err) // only finite floats reach here: Validate ran first

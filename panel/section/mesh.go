@@ -47,6 +47,9 @@ type meshPlan struct {
 
 	ndOnce sync.Once
 	nd     *ndSymbolic // nested dissection of the grid (nd.go), built on first use
+
+	pertMu sync.Mutex
+	pert   map[int]*meshPlan // the plan moved along each length parameter (sensitivity.go)
 }
 
 // dissection returns the plan's nested dissection, building it from m (a

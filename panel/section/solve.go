@@ -12,7 +12,12 @@ import (
 type Settings struct {
 	Accuracy float64 // target relative error in C; 0 means the default 1e-3 (0.1 %)
 	Workers  int     // parallel workers for a sweep; 0 means runtime.GOMAXPROCS(0)
+	// Sensitivities asks for the derivatives with respect to every
+	// parameter of Section.Params (Solution.DC, Point.Sens).
+	Sensitivities bool
 }
+
+func (set *Settings) sensitivities() bool { return set != nil && set.Sensitivities }
 
 // DefaultAccuracy is the accuracy used when Settings.Accuracy is zero.
 const DefaultAccuracy = 1e-3
@@ -75,6 +80,10 @@ type Solution struct {
 	Offset      float64       // upper minus lower trace centre, m
 	C, C0       [2][2]float64 // Maxwell capacitance matrices, F/m, with dielectrics / in vacuum
 	Convergence Convergence
+	// With Settings.Sensitivities: Params (Section.Params) and the
+	// derivatives of C and C0 with respect to each, extrapolated like C.
+	Params  []Param
+	DC, DC0 [][2][2]float64
 }
 
 // Richardson extrapolation: the energy-form capacitance of Q1 elements on
@@ -114,6 +123,8 @@ type solver struct {
 	g   *geometry
 	acc float64
 
+	sens []Param // parameters to differentiate by, or nil
+
 	topos   []*geometry // column topologies along the offset axis (topology.go)
 	windows []window    // windows[i] lies between topos[i] and topos[i+1]
 
@@ -132,6 +143,9 @@ func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 		return nil, err
 	}
 	sv := &solver{s: s, g: s.buildGeometry(), acc: set.accuracy()}
+	if set.sensitivities() {
+		sv.sens = s.Params()
+	}
 	sv.setOffsets(lo, hi)
 	sv.g = sv.topos[0]
 	return sv, nil
@@ -283,7 +297,7 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		r, err := sv.levelAt(off, l, w)
+		r, err := sv.levelAtSens(off, l, w, i > 0 && sv.sens != nil)
 		if err != nil {
 			return nil, err
 		}
@@ -303,12 +317,25 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 	est := g * math.Max(relDiff(conv.C, richardsonRatio(lv[1].C, lv[0].C, roughRatio)), relDiff(conv.C0, richardsonRatio(lv[1].C0, lv[0].C0, roughRatio)))
 	est = math.Max(est, math.Max(orderError(lv[0].C, lv[1].C, lv[2].C), orderError(lv[0].C0, lv[1].C0, lv[2].C0)))
 	conv.EstimatedError = est
-	return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
+	sol := &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}
+	if sv.sens != nil {
+		// The derivatives extrapolate like C: each is a linear functional
+		// of the same mesh family.
+		sol.Params = sv.sens
+		sol.DC = make([][2][2]float64, len(sv.sens))
+		sol.DC0 = make([][2][2]float64, len(sv.sens))
+		for k := range sv.sens {
+			sol.DC[k] = richardson(lv[2].dC[k], lv[1].dC[k])
+			sol.DC0[k] = richardson(lv[2].dC0[k], lv[1].dC0[k])
+		}
+	}
+	return sol, nil
 }
 
 type levelResult struct {
 	MeshLevel
-	resid float64
+	resid   float64
+	dC, dC0 [][2][2]float64 // per parameter of solver.sens, when asked
 }
 
 // plan returns the mesh plan of topology k at level lev, shared by every
@@ -332,12 +359,17 @@ func (sv *solver) plan(k int, lev float64) *meshPlan {
 // levelAt solves one level at offset off: on one topology, or inside a
 // transition window on both neighbours, weighted (topology.go).
 func (sv *solver) levelAt(off, lev float64, w *femWork) (levelResult, error) {
+	return sv.levelAtSens(off, lev, w, false)
+}
+
+// levelAtSens is levelAt, with the derivatives of C and C0 when sens is set.
+func (sv *solver) levelAtSens(off, lev float64, w *femWork, sens bool) (levelResult, error) {
 	k, t := sv.locate(off)
-	a, err := sv.levelPlan(off, sv.plan(k, lev), w)
+	a, err := sv.levelPlanSens(off, sv.plan(k, lev), w, sens)
 	if err != nil || t == 0 {
 		return a, err
 	}
-	b, err := sv.levelPlan(off, sv.plan(k+1, lev), w)
+	b, err := sv.levelPlanSens(off, sv.plan(k+1, lev), w, sens)
 	if err != nil {
 		return b, err
 	}
@@ -345,6 +377,13 @@ func (sv *solver) levelAt(off, lev float64, w *femWork) (levelResult, error) {
 		for j := range 2 {
 			a.C[i][j] = (1-t)*a.C[i][j] + t*b.C[i][j]
 			a.C0[i][j] = (1-t)*a.C0[i][j] + t*b.C0[i][j]
+			// The window's weight moves with the geometry too; its term,
+			// (C_b − C_a)·dt/dp, is of the size of the discretisation
+			// error and is left out.
+			for p := range a.dC {
+				a.dC[p][i][j] = (1-t)*a.dC[p][i][j] + t*b.dC[p][i][j]
+				a.dC0[p][i][j] = (1-t)*a.dC0[p][i][j] + t*b.dC0[p][i][j]
+			}
 		}
 	}
 	a.Unknowns = max(a.Unknowns, b.Unknowns)
@@ -360,6 +399,11 @@ func b2i(b bool) int {
 }
 
 func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, error) {
+	return sv.levelPlanSens(off, p, w, false)
+}
+
+// levelPlanSens is levelPlan, with the derivatives of C and C0 when sens is set.
+func (sv *solver) levelPlanSens(off float64, p *meshPlan, w *femWork, sens bool) (levelResult, error) {
 	p.realize(off, &w.m)
 	if err := w.prepare(); err != nil {
 		return levelResult{}, err
@@ -371,9 +415,17 @@ func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, 
 	if r.C0, r2, err = w.capacitance(true); err != nil {
 		return r, err
 	}
+	if sens {
+		w.phi, w.phi0 = w.phi0, w.phi
+	}
 	if r.C, r1, err = w.capacitance(false); err != nil {
 		return r, err
 	}
 	r.resid = math.Max(r1, r2)
+	if sens {
+		if r.dC, r.dC0, err = sv.capDerivatives(off, p, w); err != nil {
+			return r, err
+		}
+	}
 	return r, nil
 }

@@ -18,6 +18,9 @@ type Point struct {
 	DirectivityDB float64 // 20·log10(|S31|/|S41|), capped at 200 dB
 	PeakFrequency float64 // frequency of peak coupling, Hz
 	Convergence   Convergence
+	// Sens holds, with Settings.Sensitivities, the derivatives with
+	// respect to each parameter of Section.Params, in that order.
+	Sens []Sensitivity `json:",omitempty"`
 }
 
 // Curve is coupling versus offset for one section, with cubic interpolants.
@@ -161,6 +164,9 @@ func newPoint(off float64, sol *Solution, f0, length, zref float64) Point {
 	p := Point{Offset: off, Lines: NewLines(sol.C, sol.C0), Convergence: sol.Convergence}
 	p.CouplingDB, p.DirectivityDB = p.Lines.couplingAt(f0, length, zref)
 	p.PeakFrequency = p.Lines.peakFrequency(f0, length, zref)
+	for k, par := range sol.Params {
+		p.Sens = append(p.Sens, newSensitivity(par, sol.C, sol.C0, sol.DC[k], sol.DC0[k], f0, length, zref, p.Symmetric))
+	}
 	return p
 }
 
