@@ -19,17 +19,17 @@ const SolverVersion = "section-2"
 // name), the offsets and the solver accuracy (not the worker count, which
 // does not change the numbers).
 type cacheKey struct {
-	Version       string
-	Stackup       Stackup
-	Traces        [2]Trace
-	Grounds       []string
-	Frequency     float64
-	Length        float64
-	ZRef          float64
-	DesignOffset  float64
-	Offsets       []float64
-	Accuracy      float64
-	Sensitivities bool
+	Version      string
+	Stackup      Stackup
+	Traces       [2]Trace
+	Grounds      []string
+	Frequency    float64
+	Length       float64
+	ZRef         float64
+	DesignOffset float64
+	Offsets      []float64
+	Accuracy     float64
+	Sens         bool // Settings.Sensitivities
 }
 
 // CacheKey returns the hex SHA-256 that names the cache file of a sweep.
