@@ -13,7 +13,7 @@ import (
 
 // SolverVersion changes whenever a change to the solver changes its numbers;
 // it is part of every cache key.
-const SolverVersion = "section-2"
+const SolverVersion = "section-3"
 
 // cacheKey is what the cache hash covers: the section's content (not its
 // name), the offsets and the solver accuracy (not the worker count, which

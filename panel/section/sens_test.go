@@ -3,6 +3,7 @@ package section
 import (
 	"context"
 	"math"
+	"slices"
 	"testing"
 
 	"gonum.org/v1/gonum/mathext"
@@ -257,6 +258,101 @@ func TestSensHammerstadJensen(t *testing.T) {
 			if e := relErr(got, wnt); math.Abs(e) > tolSensHJ {
 				t.Errorf("w/h %g %s: dZ0 %.5g Ω/mil, H&J %.5g (error %.2e)", u, sv.Param.Key, got*testMil, wnt*testMil, e)
 			}
+		}
+	}
+}
+
+// TestSensTrends: the odd-mode capacitance of an edge-coupled pair rises
+// with the finished copper thickness (the facing side walls form a parallel
+// plate across the gap; common practice), by the sensitivity and by two
+// solves; a mask of εr = 1 is air, so moving its faces changes nothing.
+func TestSensTrends(t *testing.T) {
+	s := edgeMicro(10*testMil, 18*testMil, 6*testMil, 1.4*testMil, 3.48)
+	par := paramByKey(t, s, "T.copper")
+	sol := solveSens(t, s, s.NominalOffset(), 1e-3, []Param{par})
+	dodd := sol.DC[0][0][0] - sol.DC[0][0][1]
+	thick, err := Solve(s.Perturbed(par, 1.4*testMil), s.NominalOffset(), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	odd := func(c [2][2]float64) float64 { return c[0][0] - c[0][1] }
+	t.Logf("C_odd %.5g pF/m at 1.4 mil, %.5g at 2.8 mil; d/dt %.4g pF/m per mil", odd(sol.C)*1e12, odd(thick.C)*1e12, dodd*1e12*testMil)
+	if !(dodd > 0) || !(odd(thick.C) > odd(sol.C)) {
+		t.Errorf("odd-mode capacitance must rise with copper thickness: d/dt %.4g, %.5g → %.5g", dodd, odd(sol.C), odd(thick.C))
+	}
+	air := withMask(s, 1.0*testMil, 0.6*testMil, 1)
+	as := solveSens(t, air, air.NominalOffset(), 1e-3, nil)
+	for k, p := range as.Params {
+		if p.Kind != ParamMaskLaminate && p.Kind != ParamMaskCopper {
+			continue
+		}
+		// Relative change of C per mil of coat: mesh motion only. Measured
+		// 1e−6; the bound is the accuracy asked for per mil.
+		for i := range 2 {
+			for j := range 2 {
+				r := math.Abs(as.DC[k][i][j]) * testMil / math.Sqrt(as.C[i][i]*as.C[j][j])
+				if r > 1e-3 {
+					t.Errorf("mask εr 1: %s moves C%d%d by %.2e per mil", p.Key, i, j, r)
+				}
+			}
+		}
+	}
+}
+
+// TestSweepSensitivities: a sweep with sensitivities carries them at every
+// offset, equal at ±δ (the mirror), cached with the curve; its first-order
+// prediction of a perturbed section's coupling is good to second order.
+func TestSweepSensitivities(t *testing.T) {
+	s := demoSection()
+	offs := []float64{-2 * testMil, -testMil, 0, testMil, 2 * testMil}
+	set := &Settings{Sensitivities: true}
+	dir := t.TempDir()
+	c, hit, err := CachedSweep(context.Background(), s, offs, set, dir, false)
+	if err != nil || hit {
+		t.Fatalf("sweep: %v (hit %v)", err, hit)
+	}
+	params := c.Params()
+	if len(params) != 12 {
+		t.Fatalf("%d parameters, want 12 (3 dielectrics × 2, 2 copper layers × 3): %v", len(params), params)
+	}
+	for k := range params {
+		a, b := c.Points[0].Sens[k], c.Points[4].Sens[k]
+		if a.CouplingDB != b.CouplingDB || a.C != b.C {
+			t.Errorf("%s: sensitivity at −2 mil %v, at +2 mil %v: the mirror makes them equal", params[k].Key, a.CouplingDB, b.CouplingDB)
+		}
+		if got := c.CouplingSensitivity(k, testMil); got != c.Points[3].Sens[k].CouplingDB {
+			t.Errorf("%s: interpolant %v at a solved offset, point %v", params[k].Key, got, c.Points[3].Sens[k].CouplingDB)
+		}
+	}
+	cached, hit, err := CachedSweep(context.Background(), s, offs, set, dir, false)
+	if err != nil || !hit {
+		t.Fatalf("cached sweep: %v (hit %v)", err, hit)
+	}
+	if got, want := cached.CouplingSensitivity(3, 0.5*testMil), c.CouplingSensitivity(3, 0.5*testMil); got != want {
+		t.Errorf("cached sensitivity %v, solved %v", got, want)
+	}
+	plain, hit, err := CachedSweep(context.Background(), s, offs, nil, dir, false)
+	if err != nil || hit || plain.Params() != nil {
+		t.Errorf("a plain sweep must not reuse the sensitivity entry (hit %v, %d params, %v)", hit, len(plain.Params()), err)
+	}
+	// First order: the core 5 → 5.25 mil. The change is about 0.1 dB; the
+	// second-order remainder a few percent of it.
+	core := paramByKey(t, s, "layers[3].thickness")
+	dp := 0.25 * testMil
+	moved := s.Perturbed(core, dp)
+	moved.Length = c.Length
+	mc, err := Sweep(context.Background(), moved, offs, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	k := slices.Index(params, core)
+	for _, o := range []float64{0, 1.5 * testMil} {
+		pred := c.Coupling(o) + c.CouplingSensitivity(k, o)*dp
+		got := mc.Coupling(o)
+		change := got - c.Coupling(o)
+		t.Logf("offset %g mil: coupling %.5f → %.5f dB, first order %.5f (remainder %.1e dB)", o/testMil, c.Coupling(o), got, pred, got-pred)
+		if math.Abs(got-pred) > 0.05*math.Abs(change) {
+			t.Errorf("offset %g mil: first-order coupling %.5f, solved %.5f (change %.4f dB)", o/testMil, pred, got, change)
 		}
 	}
 }

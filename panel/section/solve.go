@@ -114,8 +114,25 @@ func startLevel(acc float64) float64 {
 	return math.Max(0.5, math.Min(l, 8))
 }
 
-// maxLevelSteps bounds the refinement steps (each multiplies the level by √2).
+// maxLevelSteps bounds the refinement steps (nextLevel).
 const maxLevelSteps = 5
+
+// nextLevel returns the level to try after level lev estimated est against
+// the target acc. The extrapolated error falls about as level^−3
+// (estimateOrder), so the level that meets the target is predicted as
+// lev·(est/acc)^(1/3); a margin of 10 % covers the scatter of the estimate
+// (doc.go), and the step is at least 10 % and at most 2×. (A fixed √2 step
+// overshot: at 0.05 % a sweep missing by 20 % went from 1.13 to 1.6, a fine
+// mesh of 34,000 unknowns, ten times more accurate than asked.)
+func nextLevel(lev, est, acc float64) float64 {
+	f := levelMargin * math.Pow(est/acc, 1/float64(estimateOrder))
+	if math.IsNaN(f) {
+		f = 2
+	}
+	return lev * math.Max(levelMargin, math.Min(2, f))
+}
+
+const levelMargin = 1.1
 
 // solver holds the state shared by the solves of one section.
 type solver struct {
@@ -222,7 +239,7 @@ func (sv *solver) solve(ctx context.Context, off float64, w *femWork) (*Solution
 		if step == maxLevelSteps {
 			return nil, sv.convErr(sol)
 		}
-		lev *= math.Sqrt2
+		lev = nextLevel(lev, sol.Convergence.EstimatedError, sv.acc)
 	}
 }
 

@@ -1,0 +1,101 @@
+// Package-documentation text on finished copper, the solder mask and the
+// sensitivities, kept apart from doc.go until it is merged there. It holds
+// only comments.
+//
+// # Finished copper
+//
+// A copper layer's Thickness is its finished thickness, the one the solver
+// uses; Layer.Foil and Layer.Plating record how it was built (base foil, then
+// each plating step: panel plate, pattern plate, cap plate), and when given
+// they must add up to it (FinishedThickness). A foil weight in ounces per
+// square foot converts at 1 oz/ft² = 28.349523125 g / 0.09290304 m² =
+// 305.1517 g/m² (exact) and the handbook density of copper, 8.96 g/cm³:
+// OzThickness = 34.057 µm = 1.3408 mil per ounce (CopperWeightThickness).
+// A variation of one plating step moves the finished thickness alike, so its
+// sensitivity is the layer's ParamCopper.
+//
+// # Solder mask
+//
+// Stackup.Mask coats the outer copper of a microstrip: a slab OverLaminate
+// thick on the bare laminate, and OverCopper thick on each trace's far face
+// and, measured horizontally, on its side walls (square outer corners; the
+// union where they overlap). The mesh follows every face of the coat at
+// every offset as it follows the traces: the coat's top faces are node rows,
+// and in every row the outer faces of the side-wall coats are column lines
+// beside the trace edges (keysOrdered), so no element straddles mask and air.
+// A mask on a stripline is a FieldError; so is a mask whose side-wall coats
+// would meet across an edge-coupled gap, and one over a broadside pair with a
+// trace on the outer layer (not modelled: its coat columns would need their
+// own crossing topologies).
+//
+// # Sensitivities
+//
+// With Settings.Sensitivities every Point carries, for each parameter of
+// Section.Params (each dielectric's thickness and εr, each copper layer's
+// finished thickness, the width and etch of the traces on each copper layer,
+// the mask's two thicknesses and εr), the derivative of C and C0 and of
+// coupling, directivity, each line's impedance, each mode's εeff and, for a
+// symmetric pair, Z0e and Z0o, per metre or per unit εr, at the curve's fixed
+// coupled length. They are cached with the curve.
+//
+// Method. The capacitance is a quadratic form at a stationary point:
+// C_mn = ε0·φ_mᵀ·K·φ_n where K·φ vanishes on the free nodes. Any change of K
+// then changes C, to first order, by ε0·φ_mᵀ·δK·φ_n alone — the change of φ
+// contributes nothing (the potentials are their own adjoints). So no
+// derivative needs a new solve:
+//
+//   - εr of a region: δK is the region's stiffness, and dC_mn/dεr is ε0 times
+//     the field energy in that region (resin in a copper slab counts to the
+//     dielectric it comes from, Section.buildGeometry). One pass over the
+//     elements gives all of them.
+//   - A length (a thickness, a width, an etch, a coat): the mesh moves with
+//     the interface — the same element counts in every segment, the nodes
+//     where the moved geometry puts them (perturbedPlan) — and dK/dp is the
+//     derivative of the element matrices under that node motion, taken as a
+//     forward difference over 1e−6 of the smallest feature (error about
+//     1e−6). Elements that only translate contribute nothing and are skipped;
+//     the cost per parameter is one mesh realisation and the element
+//     matrices of the deformed elements, no factorisation.
+//
+// This is the discrete shape derivative, exact for the mesh family; the
+// derivatives at the two finer levels are Richardson-extrapolated like C.
+// In a transition window the weight of the two topologies moves with the
+// geometry too; that term, (C_b − C_a)·dt/dp, is of the size of the
+// discretisation error and is left out. The adjoint route would give nothing
+// more: for the energy form the adjoint solutions are the potentials
+// already computed, which is what makes all parameters cost less than one
+// more solve; an adjoint for coupling itself reduces to this through the
+// chain rule on the 2 × 2 matrices.
+//
+// The outer derivatives — coupling, directivity, impedances, εeff — follow
+// from dC and dC0 by central differences of the closed-form line and 4-port
+// functions (NewLines, the S-parameters) along (dC, dC0), over a relative
+// change of 1e−5 of C: truncation about 1e−10, rounding about 1e−11, and no
+// field solve.
+//
+// Central differences of converged solves were the alternative: two more
+// sweeps per parameter (25 sweeps for the 12 parameters of the demo section),
+// and noisy, since the element counts change with the geometry and each
+// differenced solve carries its own discretisation error (at accuracy 2e−4
+// the difference quotient for the mask's coat was 1.2 % off over a 0.1 mil
+// step, while the shape derivative moved by 2.3e−4 between accuracies 2e−4
+// and 5e−5). They are the tests' reference instead.
+//
+// Agreement (sens_test.go, sensfd_test.go): a homogeneous dielectric's
+// region energies add up to C/εr to 1e−12; a w = 20b strip gives dC/dw =
+// 4ε/b within 1.8e−5 and dC/dh = −ε·w/h² within 3e−6; Cohn 1954 dZ0/dw and
+// dZ0/db within 6.5e−5 (w/b 0.3 to 2.5); Cohn 1955 dZ0e/ds and dZ0o/ds within
+// 9.9e−5; Hammerstad & Jensen dZ0/dw and dZ0/dh within 2.0e−3 (w/h 0.5 to 4);
+// against central differences of converged solves over six sections
+// (broadside at 0 and 2 mil, an offset broadside design, edge-coupled
+// stripline and microstrip, with a mask), every derivative of coupling,
+// line and even/odd impedances and εeff within 1 % plus 2e−4 dB (1.2e−3 Ω,
+// 1e−4 of εeff) per mil or per unit εr; the largest relative deviation was
+// 1.2 % on a small impedance derivative (0.18 Ω/mil) and most are below
+// 0.3 %.
+//
+// Mirror. The mirror x → −x maps the section at offset δ onto itself at −δ,
+// so a sweep solves only |δ| (a centred ±10 mil sweep solves 11 offsets, not
+// 21); the curve is exactly even in the offset.
+
+package section
