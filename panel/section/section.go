@@ -407,6 +407,12 @@ func (s *Section) outerSlab() int {
 	return len(s.Stackup.Layers) - 1
 }
 
+// layerIndex returns the stackup index of the layer named name (-1 if none).
+func (s *Section) layerIndex(name string) int {
+	i, _ := s.copperIndex(name)
+	return i
+}
+
 // maskCoats reports whether the mask coats traces on stackup layer i: a
 // mask is present and i is the outer copper layer of a microstrip.
 func (s *Section) maskCoats(i int) bool {

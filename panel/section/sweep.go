@@ -368,6 +368,9 @@ func DefaultOffsets(s *Section, span float64) []float64 {
 	if s.Traces[0].Layer == s.Traces[1].Layer {
 		// keep a tenth of the nominal gap
 		gap := math.Abs(nom) - (s.Traces[0].Width+s.Traces[1].Width)/2
+		if m := s.Stackup.Mask; m != nil && s.maskCoats(s.layerIndex(s.Traces[0].Layer)) {
+			gap -= 2 * m.OverCopper * (1 + maskGapMargin) // the coats must not meet
+		}
 		if gap > 0 {
 			half = math.Min(half, 0.9*gap)
 		}
