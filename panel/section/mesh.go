@@ -363,7 +363,12 @@ const (
 )
 
 // realize places the nodes of plan p for offset off.
-func (p *meshPlan) realize(off float64, m *mesh) {
+func (p *meshPlan) realize(off float64, m *mesh) { p.place(off, m, true) }
+
+// place places the nodes of plan p for offset off and, with full, tags them
+// and sets the element permittivities; without, only the coordinates (a
+// moved copy of a mesh whose tags and permittivities are known).
+func (p *meshPlan) place(off float64, m *mesh, full bool) {
 	g := p.g
 	nx, ny := p.nx, p.ny
 	nn := (nx + 1) * (ny + 1)
@@ -426,6 +431,9 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 		for i := 0; i <= nx; i++ {
 			n := i*(ny+1) + j
 			m.x[n], m.y[n] = row[i], y
+			if !full {
+				continue
+			}
 			tag := tagFree
 			if j == 0 || (j == ny && !g.micro) || (g.micro && (j == ny || i == 0 || i == nx)) {
 				tag = tagGround
@@ -439,6 +447,9 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			}
 			m.tag[n] = tag
 		}
+	}
+	if !full {
+		return
 	}
 	mg := g.mask
 	for i := range nx {

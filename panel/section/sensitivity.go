@@ -368,13 +368,13 @@ func (sv *solver) capDerivatives(off float64, p *meshPlan, w *femWork) (dC, dC0 
 		}
 		h := shapeStep * p.feat
 		if par.Kind == ParamOffset {
-			p.realize(off+h, &sw.m)
+			p.place(off+h, &sw.m, false)
 		} else {
 			q, err := p.perturbedPlan(sv, pi, par, h)
 			if err != nil {
 				return nil, nil, err
 			}
-			q.realize(off, &sw.m)
+			q.place(off, &sw.m, false)
 		}
 		mp := &sw.m
 		var d, d0 [3]float64
@@ -399,15 +399,20 @@ func (sv *solver) capDerivatives(off float64, p *meshPlan, w *femWork) (dC, dC0 
 				if rigid {
 					continue
 				}
-				if err := stiffness(kp[:], x, y); err != nil {
-					return nil, nil, err
-				}
 				ke := w.ke[16*e : 16*e+16]
+				if !rectDerivative(kp[:], m, ns, mp, h) {
+					if err := stiffness(kp[:], x, y); err != nil {
+						return nil, nil, err
+					}
+					for i := range kp {
+						kp[i] = (kp[i] - ke[i]) / h
+					}
+				}
 				var e00, e01, e11, v00, v01, v11 float64
 				for a, na := range ns {
 					var k0, k1, u0, u1 float64
 					for b, nb := range ns {
-						dk := (kp[a*4+b] - ke[a*4+b]) / h
+						dk := kp[a*4+b]
 						k0 += dk * phi[0][nb]
 						k1 += dk * phi[1][nb]
 						u0 += dk * phi0[0][nb]
@@ -433,6 +438,33 @@ func (sv *solver) capDerivatives(off float64, p *meshPlan, w *femWork) (dC, dC0 
 		dC0[pi] = sym2(Eps0*d0[0], Eps0*d0[1], Eps0*d0[2])
 	}
 	return dC, dC0, nil
+}
+
+// rectDerivative writes into dk the derivative of the stiffness of a
+// rectangular element of m (nodes ns) that stays rectangular under the
+// motion to mp over the step h, in closed form: with K = (b/6a)·Kx +
+// (a/6b)·Ky (rectStiffness), dK = (ḃ/b − ȧ/a)·((b/6a)·Kx − (a/6b)·Ky). It
+// reports false for any other element.
+func rectDerivative(dk []float64, m *mesh, ns [4]int, mp *mesh, h float64) bool {
+	x, y := m.x, m.y
+	if !(x[ns[0]] == x[ns[3]] && x[ns[1]] == x[ns[2]] && y[ns[0]] == y[ns[1]] && y[ns[2]] == y[ns[3]]) {
+		return false
+	}
+	var dx, dy [4]float64
+	for a, n := range ns {
+		dx[a], dy[a] = mp.x[n]-x[n], mp.y[n]-y[n]
+	}
+	a, b := x[ns[1]]-x[ns[0]], y[ns[3]]-y[ns[0]]
+	tol := rigidTol*h + 1e-15*(math.Abs(x[ns[2]])+math.Abs(y[ns[2]]))
+	if math.Abs(dx[0]-dx[3]) > tol || math.Abs(dx[1]-dx[2]) > tol || math.Abs(dy[0]-dy[1]) > tol || math.Abs(dy[2]-dy[3]) > tol {
+		return false
+	}
+	r := ((dy[3]-dy[0])/b - (dx[1]-dx[0])/a) / h
+	fx, fy := r*b/(6*a), -r*a/(6*b)
+	for i := range dk[:16] {
+		dk[i] = fx*rectKx[i] + fy*rectKy[i]
+	}
+	return true
 }
 
 // rigidTol is the relative difference of node motions (in units of the
