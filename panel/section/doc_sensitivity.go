@@ -90,9 +90,11 @@
 // (broadside at 0 and 2 mil, an offset broadside design, edge-coupled
 // stripline and microstrip, with a mask), every derivative of coupling,
 // line and even/odd impedances and εeff within 1 % plus 2e−4 dB (1.2e−3 Ω,
-// 1e−4 of εeff) per mil or per unit εr; the largest relative deviation was
-// 1.2 % on a small impedance derivative (0.18 Ω/mil) and most are below
-// 0.3 %.
+// 1e−4 of εeff) per mil or per unit εr: of 298 comparisons the median
+// relative deviation is 3.6e−4 and the 90th percentile 1.9e−3; above 1 %
+// are only two small derivatives inside their floors (a line impedance's
+// 0.18 Ω/mil, 1.2 %; the coupling's −3.0e−4 dB/mil to the etch of a centred
+// broadside pair, 5 %, 1.6e−5 dB/mil).
 //
 // Mirror. The mirror x → −x maps the section at offset δ onto itself at −δ,
 // so a sweep solves only |δ| (a centred ±10 mil sweep solves 11 offsets, not

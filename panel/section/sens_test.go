@@ -356,3 +356,26 @@ func TestSweepSensitivities(t *testing.T) {
 		}
 	}
 }
+
+func TestFindParam(t *testing.T) {
+	s := withMask(edgeMicro(10*testMil, 18*testMil, 6*testMil, 1.4*testMil, 3.48), testMil, 0.5*testMil, 3.8)
+	for _, c := range []struct {
+		layer string
+		kind  ParamKind
+		key   string
+		ok    bool
+	}{
+		{"K1", ParamThickness, "K1.thickness", true},
+		{"K1", ParamEr, "K1.er", true},
+		{"T", ParamWidth, "T.width", true},
+		{"T", ParamCopper, "T.copper", true},
+		{"", ParamMaskCopper, "mask.over_copper", true},
+		{"G", ParamCopper, "", false}, // the ground is outside the domain
+		{"K1", ParamWidth, "", false},
+	} {
+		p, ok := s.FindParam(c.layer, c.kind)
+		if ok != c.ok || p.Key != c.key {
+			t.Errorf("FindParam(%q, %v) = %q, %v; want %q, %v", c.layer, c.kind, p.Key, ok, c.key, c.ok)
+		}
+	}
+}

@@ -92,6 +92,23 @@ func (s *Section) Params() []Param {
 	return out
 }
 
+// FindParam returns the parameter of kind k on the layer named layer ("" for
+// the mask), as listed by Params. A plating step "L1/2" is addressed as its
+// layer's ParamCopper: a step moves the finished thickness alike. It reports
+// false when the section has no such parameter (a layer outside the domain,
+// an etch on a zero-thickness strip, a mask quantity without a mask).
+func (s *Section) FindParam(layer string, k ParamKind) (Param, bool) {
+	for _, p := range s.Params() {
+		if p.Kind != k {
+			continue
+		}
+		if p.Layer < 0 && layer == "" || p.Layer >= 0 && s.Stackup.Layers[p.Layer].Name == layer && layer != "" {
+			return p, true
+		}
+	}
+	return Param{}, false
+}
+
 // domainLayers marks the stackup layers inside the solution domain.
 func (s *Section) domainLayers() []bool {
 	ls := s.Stackup.Layers
