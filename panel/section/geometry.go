@@ -182,6 +182,15 @@ func (s *Section) buildGeometry() *geometry {
 	return g
 }
 
+// splitTol is the least distance, m, between a mask face and another row:
+// 1 nm (4e−5 mil), far below any coat and far above rounding. Faces closer
+// than that are one row; so is a face moved by the step of a shape
+// derivative (shapeStep·feature, 1e−11 m for a 0.4 mil feature), so that
+// the derivative keeps the band structure where a coat's top meets another
+// face (there the coat's surface has a kink and the derivative is that of
+// one side).
+const splitTol = 1e-9
+
 // maskSplits returns the heights at which the mask adds node rows.
 func (g *geometry) maskSplits() []float64 {
 	m := g.mask
@@ -197,12 +206,14 @@ func (g *geometry) maskSplits() []float64 {
 	return out
 }
 
-// splitBands splits bands at every height in at that lies strictly inside one.
+// splitBands splits bands at every height in at that lies inside one, more
+// than splitTol from its faces (a coat whose top meets another face within
+// rounding adds no row).
 func splitBands(bands []band, at []float64) []band {
 	for _, y := range at {
 		for i := 0; i < len(bands); i++ {
 			b := bands[i]
-			if y > b.y0 && y < b.y1 {
+			if y > b.y0+splitTol && y < b.y1-splitTol {
 				lo, hi := b, b
 				lo.y1, hi.y0 = y, y
 				bands = append(bands[:i], append([]band{lo, hi}, bands[i+1:]...)...)

@@ -89,3 +89,56 @@ func TestMaskErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestMaskGeometries solves the other shapes a mask can take: over
+// zero-thickness strips, over an outer copper layer without traces (traces
+// embedded below), over a dielectric outer face, and a coat over the
+// laminate thicker than the copper. Each must solve, and a coat of εr 1
+// must leave C as it is.
+func TestMaskGeometries(t *testing.T) {
+	embedded := &Section{Name: "embedded", Stackup: Stackup{Layers: []Layer{
+		{Name: "L1", Kind: Copper, Thickness: 1.4 * testMil},
+		{Name: "P1", Kind: Dielectric, Thickness: 4 * testMil, Er: 3.6},
+		{Name: "L2", Kind: Copper, Thickness: 1.2 * testMil},
+		{Name: "K1", Kind: Dielectric, Thickness: 10 * testMil, Er: 3.48, Core: true},
+		{Name: "G", Kind: Copper, Thickness: 1.4 * testMil},
+	}}, Traces: [2]Trace{{Layer: "L2", Width: 12 * testMil, Etch: 0.4 * testMil, X: 20 * testMil}, {Layer: "L2", Width: 12 * testMil, Etch: 0.4 * testMil}},
+		Grounds: []string{"G"}, Frequency: 5e9, ZRef: 50, Spec: Spec{Coupling: -10, Tolerance: 1}}
+	dielTop := &Section{Name: "diel-top", Stackup: Stackup{Layers: embedded.Stackup.Layers[1:]},
+		Traces: embedded.Traces, Grounds: embedded.Grounds, Frequency: 5e9, ZRef: 50, Spec: embedded.Spec}
+	for _, c := range []struct {
+		name   string
+		s      *Section
+		tl, tc float64
+	}{
+		{"thin strips", edgeMicro(10*testMil, 18*testMil, 6*testMil, 0, 3.48), 1.0 * testMil, 0.6 * testMil},
+		{"thick coat", edgeMicro(10*testMil, 18*testMil, 6*testMil, 1.4*testMil, 3.48), 2.0 * testMil, 0.6 * testMil},
+		{"embedded", embedded, 1.0 * testMil, 0.6 * testMil},
+		{"dielectric outer face", dielTop, 1.0 * testMil, 0.6 * testMil},
+	} {
+		bare, err := Solve(c.s, c.s.NominalOffset(), nil)
+		if err != nil {
+			t.Fatalf("%s: %v", c.name, err)
+		}
+		air, err := Solve(withMask(c.s, c.tl, c.tc, 1), c.s.NominalOffset(), nil)
+		if err != nil {
+			t.Fatalf("%s, mask εr 1: %v", c.name, err)
+		}
+		real, err := Solve(withMask(c.s, c.tl, c.tc, 4), c.s.NominalOffset(), nil)
+		if err != nil {
+			t.Fatalf("%s, mask εr 4: %v", c.name, err)
+		}
+		// Two solves at the default accuracy: within twice 1e−3.
+		if d := relDiff(air.C, bare.C); d > 2e-3 {
+			t.Errorf("%s: a mask of εr 1 moves C by %.2e", c.name, d)
+		}
+		if !(real.C[1][1] > bare.C[1][1]) {
+			t.Errorf("%s: a mask of εr 4 must raise C11 (%.6g, bare %.6g)", c.name, real.C[1][1], bare.C[1][1])
+		}
+		t.Logf("%s: C11 bare %.4f, εr-1 coat %.4f, εr-4 coat %.4f pF/m", c.name, bare.C[1][1]*1e12, air.C[1][1]*1e12, real.C[1][1]*1e12)
+		// The derivatives keep the band structure also where the coat's
+		// top meets the top of its coat over the copper ("thick coat":
+		// 2.0 = 1.4 + 0.6 mil).
+		solveSens(t, withMask(c.s, c.tl, c.tc, 4), c.s.NominalOffset(), 1e-3, nil)
+	}
+}
