@@ -2,6 +2,7 @@ package section
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"slices"
 	"testing"
@@ -176,16 +177,25 @@ func TestSensCohn1954(t *testing.T) {
 			ParamWidth:     zk * (-k * th * math.Pi / (2 * b)),
 			ParamThickness: zk * (k * th * math.Pi * w / (2 * b * b)),
 		}
-		for _, sv := range pt.Sens {
-			wnt, ok := want[sv.Param.Kind]
-			if !ok {
-				continue
-			}
-			got := sv.ZLine[1]
-			t.Logf("w/b %g %s: dZ0 %.6g Ω/mil, Cohn 1954 %.6g (%+.1e)", wb, sv.Param.Key, got*testMil, wnt*testMil, relErr(got, wnt))
-			if e := relErr(got, wnt); math.Abs(e) > tolSensCohn {
-				t.Errorf("w/b %g %s: dZ0 = %.6g Ω/mil, Cohn 1954 %.6g (error %.2e)", wb, sv.Param.Key, got*testMil, wnt*testMil, e)
-			}
+		checkZLine(t, fmt.Sprintf("w/b %g", wb), "Cohn 1954", pt, want, tolSensCohn)
+	}
+}
+
+// checkZLine compares the derivatives of line 1's impedance with respect to
+// the parameters of the kinds in want against want, within tol.
+func checkZLine(t *testing.T, label, source string, pt Point, want map[ParamKind]float64, tol float64) {
+	t.Helper()
+	for _, sv := range pt.Sens {
+		wnt, ok := want[sv.Param.Kind]
+		if !ok {
+			continue
+		}
+		got := sv.ZLine[1]
+		msg := fmt.Sprintf("%s %s: dZ0 %.6g Ω/mil, %s %.6g (%+.1e)", label, sv.Param.Key, got*testMil, source, wnt*testMil, relErr(got, wnt))
+		if math.Abs(relErr(got, wnt)) > tol {
+			t.Error(msg)
+		} else {
+			t.Log(msg)
 		}
 	}
 }
@@ -248,17 +258,7 @@ func TestSensHammerstadJensen(t *testing.T) {
 		zm, _ := hammerstadJensen(u-du, er)
 		dz := (zp - zm) / (2 * du)
 		want := map[ParamKind]float64{ParamWidth: dz / h, ParamThickness: -u * dz / h}
-		for _, sv := range pt.Sens {
-			wnt, ok := want[sv.Param.Kind]
-			if !ok {
-				continue
-			}
-			got := sv.ZLine[1]
-			t.Logf("w/h %g %s: dZ0 %.5g Ω/mil, H&J %.5g (%+.1e)", u, sv.Param.Key, got*testMil, wnt*testMil, relErr(got, wnt))
-			if e := relErr(got, wnt); math.Abs(e) > tolSensHJ {
-				t.Errorf("w/h %g %s: dZ0 %.5g Ω/mil, H&J %.5g (error %.2e)", u, sv.Param.Key, got*testMil, wnt*testMil, e)
-			}
-		}
+		checkZLine(t, fmt.Sprintf("w/h %g", u), "H&J", pt, want, tolSensHJ)
 	}
 }
 
