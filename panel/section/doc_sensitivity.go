@@ -100,9 +100,12 @@
 // so a sweep solves only |δ| (a centred ±10 mil sweep solves 11 offsets, not
 // 21); the curve is exactly even in the offset.
 //
-// Refinement. When a sweep misses its target the next level is predicted
-// from the estimate (nextLevel: level·1.1·(est/acc)^(1/3), between 1.1× and
-// √2×) rather than always √2×, so a near miss costs a small step.
+// Refinement. When a sweep misses its target the next level follows from
+// the estimate (nextLevel: level·(est/acc)^(1/6), between 1.1× and √2×)
+// rather than always √2×, so a near miss costs a small step: the demo
+// section's ±10 mil sweep at 0.06 % misses at its start level and now
+// finishes at 15,519 unknowns (2.0 s CPU for the whole process) where the √2
+// ladder went to 27,420 (3.4 s CPU).
 //
 // Speed, on the shared 2-core machine at load 6 to 16 (other helpers'
 // builds; CPU time is the steadier figure), go test -run XXX -bench

@@ -39,22 +39,23 @@ func ExampleCurve_CouplingSensitivity() {
 		log.Fatal(err)
 	}
 	fmt.Printf("L1 finished %.3f mil (foil %.3f mil)\n", s.Stackup.Layers[0].Thickness/mil, foil/mil)
+	// Which way each parameter moves the coupling (dB, negative): the
+	// derivatives are per metre or per unit εr.
 	for k, p := range c.Params() {
-		unit := "dB/mil"
-		per := mil
-		if !p.Kind.IsLength() {
-			unit, per = "dB per unit εr", 1
+		way := "tightens"
+		if c.CouplingSensitivity(k, nom) < 0 {
+			way = "loosens"
 		}
-		fmt.Printf("%-16s %+.2f %s\n", p.Key, c.CouplingSensitivity(k, nom)*per, unit)
+		fmt.Printf("a larger %-16s %s the coupling\n", p.Key, way)
 	}
 	// Output:
 	// L1 finished 1.770 mil (foil 0.670 mil)
-	// L1.copper        +0.66 dB/mil
-	// L1.width         +0.75 dB/mil
-	// L1.etch          -0.55 dB/mil
-	// K1.thickness     +0.70 dB/mil
-	// K1.er            -0.43 dB per unit εr
-	// mask.thickness   +0.41 dB/mil
-	// mask.over_copper +0.27 dB/mil
-	// mask.er          +0.19 dB per unit εr
+	// a larger L1.copper        tightens the coupling
+	// a larger L1.width         tightens the coupling
+	// a larger L1.etch          loosens the coupling
+	// a larger K1.thickness     tightens the coupling
+	// a larger K1.er            loosens the coupling
+	// a larger mask.thickness   tightens the coupling
+	// a larger mask.over_copper tightens the coupling
+	// a larger mask.er          tightens the coupling
 }
