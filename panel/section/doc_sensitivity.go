@@ -23,6 +23,11 @@
 // every offset as it follows the traces: the coat's top faces are node rows,
 // and in every row the outer faces of the side-wall coats are column lines
 // beside the trace edges (keysOrdered), so no element straddles mask and air.
+// The coat's faces are not graded toward as copper edges are (a dielectric
+// face puts a kink in the potential, not a singularity): the grading runs
+// on from the copper edge behind each face (meshPlan.segSing), and a thin
+// coat does not lower the mesh floor. Faces within 1 nm of another row share
+// it.
 // A mask on a stripline is a FieldError; so is a mask whose side-wall coats
 // would meet across an edge-coupled gap, and one over a broadside pair with a
 // trace on the outer layer (not modelled: its coat columns would need their
@@ -111,11 +116,11 @@
 // builds; CPU time is the steadier figure), go test -run XXX -bench
 // 'Sensitivities21|Mask|SweepWide' -benchtime 3x -count 3 ./panel/section/:
 //
-//	BenchmarkSensitivities21/plain   237 to 354 ms CPU, 0.32 to 1.1 s wall (11 of 21 offsets solved)
-//	BenchmarkSensitivities21/sens    455 to 633 ms CPU, 0.95 to 1.75 s wall, 12 parameters: 1.8 to 2.1× plain
-//	BenchmarkMask/bare               601 to 804 ms CPU (edge-coupled microstrip, 2 refinement steps)
-//	BenchmarkMask/mask               953 to 1056 ms CPU: 1.4 to 1.8× bare
-//	BenchmarkSweepWide (±10 mil, 0.05 %)  550 to 638 ms CPU, 15,512 unknowns, 1 step
+//	BenchmarkSensitivities21/plain   237 to 395 ms CPU, 0.28 to 1.1 s wall (11 of 21 offsets solved)
+//	BenchmarkSensitivities21/sens    455 to 736 ms CPU, 0.95 to 2.05 s wall, 12 parameters: 1.8 to 2.1× plain
+//	BenchmarkMask/bare               534 to 592 ms CPU, 6,878 unknowns (edge-coupled microstrip, 2 refinement steps)
+//	BenchmarkMask/mask               826 to 1148 ms CPU, 9,792 unknowns: 1.4 to 2.1× bare (unknowns 1.42×)
+//	BenchmarkSweepWide (±10 mil, 0.05 %)  550 to 683 ms CPU, 15,512 unknowns, 1 step
 //
 // The sensitivities cost about one more plain sweep whatever their number:
 // per parameter and mesh, one placement of the moved nodes and the matrices

@@ -30,20 +30,21 @@ const (
 // row heights for one section and refinement level; it is shared by every
 // offset of a sweep.
 type meshPlan struct {
-	g       *geometry
-	level   float64
-	bands   []band    // geometry bands plus the air band for a microstrip
-	ys      []float64 // node row heights, bottom to top
-	rowBand []int     // band of each element row
-	xc      []int     // element counts per lateral segment
-	nx, ny  int       // elements per row and per column
-	gx      grading
-	margin  float64 // distance from the outermost trace edge to a side wall
-	wmax    float64 // widest foot
-	hi, lo  int     // broadside: index of the trace in the higher / lower slab
-	jub     int     // broadside: row of the lower face of the higher trace
-	jlt     int     // broadside: row of the upper face of the lower trace
-	feat    float64 // smallest feature (sets the gap of held edges)
+	g        *geometry
+	level    float64
+	bands    []band    // geometry bands plus the air band for a microstrip
+	ys       []float64 // node row heights, bottom to top
+	rowBand  []int     // band of each element row
+	xc       []int     // element counts per lateral segment
+	nx, ny   int       // elements per row and per column
+	gx       grading
+	margin   float64 // distance from the outermost trace edge to a side wall
+	wmax     float64 // widest foot
+	hi, lo   int     // broadside: index of the trace in the higher / lower slab
+	jub      int     // broadside: row of the lower face of the higher trace
+	jlt      int     // broadside: row of the upper face of the lower trace
+	feat     float64 // smallest feature (sets the gap of held edges)
+	coatEdge []int   // per key, the copper edge of a coat face, or −1 (geometry.coatEdges)
 
 	ndOnce sync.Once
 	nd     *ndSymbolic // nested dissection of the grid (nd.go), built on first use
@@ -164,6 +165,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		p.jub = rowOf(g.tr[p.hi].yb)
 		p.jlt = rowOf(g.tr[p.lo].yt)
 	}
+	p.coatEdge = g.coatEdges()
 	var keys []float64
 	for _, off := range []float64{g.offLo, (g.offLo + g.offHi) / 2, g.offHi} {
 		// The patterns as realised: each trace's own rows with the other's
@@ -181,7 +183,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 			}
 			for i := range p.xc {
 				if keys[i+1] > keys[i] {
-					p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
+					p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], p.segSing(keys, i))))
 				} else {
 					p.xc[i] = max(p.xc[i], minSegCount)
 				}
@@ -211,6 +213,50 @@ func edgeSing(keys []float64, i int) []float64 {
 		s = append(s, keys[i+1])
 	}
 	return s
+}
+
+// segSing returns the singular points that grade segment i of the plan's
+// key list: its ends that are conductor edges, and for an end that is the
+// outer face of a mask's side-wall coat the copper edge behind it (a
+// dielectric face has a kink in the field, not a singularity, and the column
+// line resolves it; grading toward it as toward copper doubled the unknowns
+// of a coated pair, so the grading runs on from the copper across it).
+func (p *meshPlan) segSing(keys []float64, i int) []float64 {
+	if p.coatEdge == nil {
+		return edgeSing(keys, i)
+	}
+	var s []float64
+	for _, q := range []int{i, i + 1} {
+		switch {
+		case q == 0 || q == len(keys)-1: // a wall
+		case p.coatEdge[q] >= 0:
+			s = append(s, keys[p.coatEdge[q]])
+		default:
+			s = append(s, keys[q])
+		}
+	}
+	return s
+}
+
+// coatEdges returns, for each key of keysOrdered, the key of the copper edge
+// whose coat face it is, or −1 (nil without coated traces).
+func (g *geometry) coatEdges() []int {
+	_, coated := g.coat()
+	if !coated[0] && !coated[1] {
+		return nil
+	}
+	out := []int{-1}
+	for _, e := range g.order {
+		c := coated[e.trace]
+		if !e.right && c {
+			out = append(out, len(out)+1)
+		}
+		out = append(out, -1)
+		if e.right && c {
+			out = append(out, len(out)-1)
+		}
+	}
+	return append(out, -1)
 }
 
 // walls returns the side walls at offset off. The half extent
@@ -393,7 +439,7 @@ func (p *meshPlan) place(off float64, m *mesh, full bool) {
 		keys = p.keysOrdered(off, keys, [2]float64{y, y}, k)
 		i0 := 0
 		for s, c := range p.xc {
-			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, edgeSing(keys, s))
+			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, p.segSing(keys, s))
 			i0 += c
 		}
 	}

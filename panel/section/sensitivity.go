@@ -289,7 +289,7 @@ func (p *meshPlan) perturbedPlan(sv *solver, idx int, par Param, h float64) (*me
 		return nil, fmt.Errorf("section: parameter %s changes the band structure", par.Key)
 	}
 	q := &meshPlan{g: g2, level: p.level, bands: bands, rowBand: p.rowBand, xc: p.xc, nx: p.nx, ny: p.ny,
-		gx: p.gx, margin: p.margin, wmax: p.wmax, hi: p.hi, lo: p.lo, jub: p.jub, jlt: p.jlt, feat: p.feat}
+		gx: p.gx, margin: p.margin, wmax: p.wmax, hi: p.hi, lo: p.lo, jub: p.jub, jlt: p.jlt, feat: p.feat, coatEdge: p.coatEdge}
 	var sing []float64
 	for k := range 2 {
 		sing = append(sing, g2.tr[k].yb, g2.tr[k].yt)
