@@ -1,7 +1,6 @@
 package registration
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -48,16 +47,17 @@ func SplitLayer(s string) (upper, lower string, relative bool) {
 // and dy. Lines starting with '#' are comments; other columns are ignored.
 // Errors are *CSVError values naming the row and column.
 func ReadTargets(r io.Reader, file string) ([]Target, error) {
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
+	cr, err := NewCSVReader(r, file)
+	if err != nil {
+		return nil, err
+	}
 	cr.FieldsPerRecord = -1
 	header, err := cr.Read()
 	if err != nil {
 		if err == io.EOF {
-			err = errors.New("the file is empty (want a header such as \"panel,layer,target,x [in],y [in],dx [mil],dy [mil]\")")
+			return nil, &CSVError{File: file, Row: 1, Err: errors.New("the file is empty (want a header such as \"panel,layer,target,x [in],y [in],dx [mil],dy [mil]\")")}
 		}
-		return nil, &CSVError{File: file, Row: 1, Err: err}
+		return nil, ReadError(file, err)
 	}
 	kinds := map[string]unit.Kind{
 		"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length,
@@ -104,12 +104,7 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		}
 		if err != nil {
 			// FieldPos is only valid after a successful Read.
-			var pe *csv.ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line, err = pe.Line, pe.Err
-			}
-			return nil, &CSVError{File: file, Row: line, Err: err}
+			return nil, ReadError(file, err)
 		}
 		line, _ := cr.FieldPos(0)
 		if len(rec) != len(header) {
@@ -137,7 +132,9 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		var v [4]float64
 		for k, name := range numeric {
 			c := idx[name]
-			if v[k], err = Cell(file, line, cols[c], rec[c]); err != nil {
+			// Positions (nominal, and measured ones) lie on a panel; a
+			// displacement is a registration movement.
+			if v[k], err = boundedCell(file, line, cols[c], rec[c], k < 2 || !disp); err != nil {
 				return nil, err
 			}
 		}
@@ -145,6 +142,11 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		t.D = panel.Vec{X: v[2], Y: v[3]}
 		if !disp {
 			t.D = t.D.Sub(t.Pos)
+			for k, d := range []float64{t.D.X, t.D.Y} {
+				if err := CheckTerm(d, unit.Length); err != nil {
+					return nil, &CSVError{File: file, Row: line, Column: numeric[2+k], Err: fmt.Errorf("measured minus nominal: %w", err)}
+				}
+			}
 		}
 		k := key{t.Panel, t.Layer, t.Name}
 		if first, dup := seen[k]; dup {
