@@ -160,3 +160,49 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 	}
 	return out, nil
 }
+
+// Frame maps target positions from the frame a measuring machine exports
+// (an x-ray drill's or an optical inspection system's) into the panel frame
+// of the job file: origin at the panel centre, x along the first size, y
+// up. The zero value is the panel frame itself.
+type Frame struct {
+	// Origin is where the machine frame's origin lies in the panel frame:
+	// (−W/2, −H/2) for a machine that measures from the panel's lower-left
+	// corner, (−W/2, +H/2) from the upper-left with FlipY.
+	Origin panel.Vec
+	// FlipY is set for a machine whose y axis points down the panel: the
+	// y of every position and of every displacement changes sign.
+	FlipY bool
+}
+
+// Apply maps the targets' positions and displacements into the panel frame,
+// in place: p_panel = Origin + (x, ±y) and d_panel = (dx, ±dy).
+func (f Frame) Apply(ts []Target) {
+	for i := range ts {
+		t := &ts[i]
+		if f.FlipY {
+			t.Pos.Y, t.D.Y = -t.Pos.Y, -t.D.Y
+		}
+		t.Pos = f.Origin.Add(t.Pos)
+	}
+}
+
+// CheckOutline returns a *CSVError naming the row and column of the first
+// target (in the panel frame) outside outline, the panel's outer rectangle:
+// a target off the panel is a frame or unit given wrongly.
+func CheckOutline(ts []Target, outline panel.Rect, file string) error {
+	for _, t := range ts {
+		col := ""
+		switch {
+		case t.Pos.X < outline.Min.X || t.Pos.X > outline.Max.X:
+			col = "x"
+		case t.Pos.Y < outline.Min.Y || t.Pos.Y > outline.Max.Y:
+			col = "y"
+		default:
+			continue
+		}
+		return &CSVError{File: file, Row: t.Row, Column: col, Err: fmt.Errorf("target %q at (%.4g, %.4g) mm in the panel frame is off the %.4g x %.4g mm panel (centre origin, y up; see the frame options)",
+			t.Name, t.Pos.X*1e3, t.Pos.Y*1e3, (outline.Max.X-outline.Min.X)*1e3, (outline.Max.Y-outline.Min.Y)*1e3)}
+	}
+	return nil
+}

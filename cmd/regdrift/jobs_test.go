@@ -1,11 +1,14 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"unicode/utf16"
@@ -138,4 +141,141 @@ func TestLoadJobBadFiles(t *testing.T) {
 	if err == nil || !strings.HasPrefix(err.Error(), "job file: ") || !errors.Is(err, errBadInput) {
 		t.Errorf("missing job file: error %v, want bad input", err)
 	}
+}
+
+// fitMain runs regdrift with stdin and returns the exit status, stdout and
+// stderr.
+func fitMain(stdin string, args ...string) (int, string, string) {
+	var out, errw bytes.Buffer
+	code := realMain(args, strings.NewReader(stdin), &out, &errw)
+	return code, out.String(), errw.String()
+}
+
+// machineFrame rewrites the sample targets (panel frame, inches and mils)
+// into a machine's frame: x' = x + ox, y' = ±y + oy, dy' = ±dy.
+func machineFrame(t *testing.T, ox, oy float64, flip bool) string {
+	t.Helper()
+	b, err := os.ReadFile("../../samples/twocore-targets.csv")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var w strings.Builder
+	for _, line := range strings.Split(strings.TrimSpace(string(b)), "\n") {
+		f := strings.Split(line, ",")
+		if strings.HasPrefix(line, "#") || f[0] == "panel" {
+			w.WriteString(line + "\n")
+			continue
+		}
+		var v [4]float64
+		for k := range v {
+			v[k], _ = strconv.ParseFloat(f[3+k], 64)
+		}
+		s := 1.0
+		if flip {
+			s = -1
+		}
+		fmt.Fprintf(&w, "%s,%s,%s,%.4f,%.4f,%.4f,%.4f\n", f[0], f[1], f[2], v[0]+ox, s*v[1]+oy, v[2], s*v[3])
+	}
+	return w.String()
+}
+
+// TestFitFrames checks that targets exported in a machine's frame (origin
+// at a corner, y up or down, or at a given point) fit to the same terms as
+// the same targets in the panel frame: the frame is a rigid map of the
+// positions and displacements, so every fitted number agrees to within the
+// rounding of the rewritten file (4 decimals of an inch on values the sample
+// gives to 2: exact), taken as 1e-9 relative, far above float64 rounding.
+func TestFitFrames(t *testing.T) {
+	ref := map[string]any{}
+	code, out, errs := fitMain(machineFrame(t, 0, 0, false), "fit", "-", "-o", t.TempDir(), "--panel", "18in,24in", "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	json.Unmarshal([]byte(out), &ref)
+	for _, tt := range []struct {
+		name   string
+		ox, oy float64
+		flip   bool
+		args   []string
+	}{
+		{"lower-left", 9, 12, false, []string{"--origin", "lower-left"}},
+		{"upper-left, y down", 9, 12, true, []string{"--origin", "upper-left", "--flip-y"}},
+		{"a point", 2, -3, false, []string{"--origin", "-2in,3in"}},
+		{"centre, y down", 0, 0, true, []string{"--origin", "centre", "--flip-y"}},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			args := append([]string{"fit", "-", "-o", t.TempDir(), "--panel", "18in,24in", "--json"}, tt.args...)
+			code, out, errs := fitMain(machineFrame(t, tt.ox, tt.oy, tt.flip), args...)
+			if code != 0 {
+				t.Fatalf("exit %d: %s", code, errs)
+			}
+			got := map[string]any{}
+			json.Unmarshal([]byte(out), &got)
+			if path, ok := sameNumbers(ref, got, ""); !ok {
+				t.Errorf("fit in the machine frame differs at %s", path)
+			}
+		})
+	}
+	// Bad input: a frame that needs the panel's size, a target off the
+	// panel (machine-frame positions read as the panel frame), a bad origin.
+	machine := machineFrame(t, 9, 12, false)
+	for _, tt := range []struct {
+		name, stdin string
+		args        []string
+		want        string
+	}{
+		{"corner without a size", machine, []string{"--origin", "lower-left"}, "--panel"},
+		{"off the panel", machine, []string{"--panel", "18in,24in"}, `<stdin>: row 6, column "x"`},
+		{"bad origin", machine, []string{"--origin", "somewhere"}, "--origin"},
+		{"semicolons", strings.ReplaceAll(machine, ",", ";"), nil, "this file uses semicolons"},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			dir := filepath.Join(t.TempDir(), "out")
+			code, _, errs := fitMain(tt.stdin, append([]string{"fit", "-", "-o", dir}, tt.args...)...)
+			if code != 2 || !strings.Contains(errs, tt.want) {
+				t.Errorf("exit %d, stderr %q; want 2 and %q", code, errs, tt.want)
+			}
+			if ents, _ := os.ReadDir(dir); len(ents) != 0 {
+				t.Errorf("left output behind: %v", ents)
+			}
+		})
+	}
+}
+
+// sameNumbers compares two decoded JSON values, numbers within 1e-9
+// relative (see TestFitFrames), and returns the path of the first
+// difference.
+func sameNumbers(a, b any, path string) (string, bool) {
+	switch x := a.(type) {
+	case map[string]any:
+		y, ok := b.(map[string]any)
+		if !ok || len(x) != len(y) {
+			return path, false
+		}
+		for k := range x {
+			if p, ok := sameNumbers(x[k], y[k], path+"."+k); !ok {
+				return p, false
+			}
+		}
+	case []any:
+		y, ok := b.([]any)
+		if !ok || len(x) != len(y) {
+			return path, false
+		}
+		for i := range x {
+			if p, ok := sameNumbers(x[i], y[i], fmt.Sprintf("%s[%d]", path, i)); !ok {
+				return p, false
+			}
+		}
+	case float64:
+		y, ok := b.(float64)
+		if !ok || math.Abs(x-y) > 1e-9*math.Max(math.Abs(x), math.Abs(y))+1e-15 {
+			return path, false
+		}
+	default:
+		if a != b {
+			return path, false
+		}
+	}
+	return "", true
 }
