@@ -243,6 +243,16 @@ func (l *loader) file(data []byte, name, dir string, depth int, chain []chainLin
 	return nil
 }
 
+// checkTurn refuses a direction beyond a full turn either way: no layout
+// needs one, and "90 rad" typed for "90 deg" is caught (the direction of a
+// huge angle is also only as good as its rounding).
+func checkTurn(a float64) error {
+	if math.Abs(a) <= 2*math.Pi*(1+1e-12) {
+		return nil
+	}
+	return fmt.Errorf("%w: %.6g deg is more than a full turn (at most ±360 deg)", ErrValue, a/unit.Degree)
+}
+
 // chainLink is one file of a chain of includes.
 type chainLink struct{ abs, name string }
 
@@ -608,6 +618,9 @@ func (l *loader) buildLayout() error {
 			if err != nil {
 				return err
 			}
+			if err := checkTurn(a); err != nil {
+				return src.err(key+".angle", err)
+			}
 			if rc.Section == "" {
 				return src.errf(key+".section", "%w: each coupler names its section", ErrMissing)
 			}
@@ -649,6 +662,9 @@ func (l *loader) buildLayout() error {
 		rot, err := quantity(src, "rotate", ra.Rotate, unit.Angle, &zero)
 		if err != nil {
 			return err
+		}
+		if err := checkTurn(rot); err != nil {
+			return src.err("rotate", err)
 		}
 		deg := rot * 180 / math.Pi
 		q := math.Round(deg / 90)

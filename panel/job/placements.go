@@ -63,6 +63,9 @@ func ReadPlacements(r io.Reader, file string) ([]panel.Placement, error) {
 				return nil, err
 			}
 		}
+		if err := checkTurn(v[2]); err != nil {
+			return nil, &registration.CSVError{File: file, Row: line, Column: "angle", Err: err}
+		}
 		out = append(out, panel.Placement{Name: rec[idx["name"]], Section: rec[idx["section"]],
 			At: panel.Vec{X: v[0], Y: v[1]}, Angle: v[2], File: file, Row: line})
 	}
