@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"reflect"
 	"regexp"
+	"sort"
 	"strings"
 )
 
@@ -22,7 +23,7 @@ func init() {
 
 // decodeMismatch matches go-toml's message for a value of the wrong type:
 // "toml: cannot decode TOML integer into struct field job.rawArray.Count of type int".
-var decodeMismatch = regexp.MustCompile(`cannot decode TOML (\w+) into struct field \w+\.(\w+)\.(\w+) of type (.+)$`)
+var decodeMismatch = regexp.MustCompile(`cannot decode TOML ([a-z ]+?) into struct field \w+\.(\w+)\.(\w+) of type (.+)$`)
 
 // decodeError returns go-toml's decode error msg in the job file's terms:
 // what the key takes and what was found, with no Go type names. A type
@@ -81,4 +82,46 @@ func describe(t reflect.Type) string {
 		}
 	}
 	return "another type"
+}
+
+// checkKeyCase returns the first key of the file whose name matches a
+// job-file key only when case is ignored ("Panel" for "panel"): TOML keys
+// are case-sensitive (TOML v1.0.0, "Keys"), while go-toml would decode it
+// silently into the field, and messages could not find its line.
+func checkKeyCase(f *tomlFile) error {
+	keys := make([]string, 0, len(f.lines))
+	for k := range f.lines {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	for _, k := range keys {
+		t := reflect.TypeOf(rawJob{})
+		for _, part := range strings.Split(stripIndices(k), ".") {
+			for t.Kind() == reflect.Pointer || t.Kind() == reflect.Slice {
+				t = t.Elem()
+			}
+			if t.Kind() != reflect.Struct {
+				break // a map (contributor, layer, spec): the loader checks its keys exactly
+			}
+			exact, fold := -1, -1
+			for i := 0; i < t.NumField(); i++ {
+				tag := t.Field(i).Tag.Get("toml")
+				switch {
+				case tag == part:
+					exact = i
+				case strings.EqualFold(tag, part):
+					fold = i
+				}
+			}
+			if exact < 0 && fold >= 0 {
+				tag := t.Field(fold).Tag.Get("toml")
+				return &ParseError{File: f.name, Line: f.lines[k], Key: k, Err: fmt.Errorf("%w %q (keys are case-sensitive: %q)", ErrUnknownKey, part, tag)}
+			}
+			if exact < 0 {
+				break
+			}
+			t = t.Field(exact).Type
+		}
+	}
+	return nil
 }

@@ -114,6 +114,9 @@ func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
 		}
 		return nil, f, &ParseError{File: name, Err: decodeError(err.Error())}
 	}
+	if err := checkKeyCase(f); err != nil {
+		return nil, f, err
+	}
 	return &raw, f, nil
 }
 
