@@ -125,3 +125,22 @@ func checkKeyCase(f *tomlFile) error {
 	}
 	return nil
 }
+
+// tomlKind names the TOML type of a decoded value, for messages.
+func tomlKind(v any) string {
+	switch v.(type) {
+	case string:
+		return "string"
+	case int64:
+		return "integer"
+	case float64:
+		return "float"
+	case bool:
+		return "boolean"
+	case []any:
+		return "array"
+	case map[string]any:
+		return "table"
+	}
+	return "date or time"
+}

@@ -282,7 +282,7 @@ func quantity(src source, key string, v any, k unit.Kind, def *float64) (float64
 		case int64, float64:
 			return 0, src.err(key, fmt.Errorf("%w: %v needs a unit: write it as a string such as \"%v %s\" (%s)", ErrValue, v, v, firstUnit(k), unit.Accepted(k)))
 		}
-		return 0, src.err(key, fmt.Errorf("%w: want a %s such as \"1 %s\", got %T", ErrValue, k, firstUnit(k), v))
+		return 0, src.err(key, fmt.Errorf("%w: want a %s such as \"1 %s\", not a TOML %s", ErrValue, k, firstUnit(k), tomlKind(v)))
 	}
 	x, err := unit.Parse(s, k)
 	if err != nil {
@@ -329,7 +329,7 @@ func number(src source, key string, v any) (float64, bool, error) {
 		}
 		return x, true, nil
 	}
-	return 0, false, src.err(key, fmt.Errorf("%w: want a plain number, got %v", ErrValue, v))
+	return 0, false, src.err(key, fmt.Errorf("%w: want a plain number, not a TOML %s", ErrValue, tomlKind(v)))
 }
 
 func (l *loader) finish() error {
