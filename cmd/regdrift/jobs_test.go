@@ -279,3 +279,41 @@ func sameNumbers(a, b any, path string) (string, bool) {
 	}
 	return "", true
 }
+
+// TestFitBadTargets runs broken measurement files through fit: each exits 2
+// naming the row (and column) where the trouble is, and leaves nothing in
+// -o; a byte-order mark before a comment line and headers in capitals are
+// read.
+func TestFitBadTargets(t *testing.T) {
+	const h = "panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n"
+	var body strings.Builder
+	for i := 0; i < 200; i++ {
+		fmt.Fprintf(&body, "P1,L3,T%03d,%.2f,%.2f,0.1,0.2\n", i, float64(i%20)/2-5, float64(i/20)-5)
+	}
+	rows := strings.SplitAfter(body.String(), "\n")
+	quoted := h + strings.Join(rows[:4], "") + "P1,L3,\"T,1,2,0.1,0.2\n" + strings.Join(rows[5:], "")
+	for _, tt := range []struct {
+		name, csv, want string
+		code            int
+	}{
+		{"mark then comment", "\ufeff# lot 7\n" + h + body.String(), "", 0},
+		{"capitals", strings.ToUpper(h[:20]) + h[20:] + body.String(), "", 0},
+		{"utf-16", string(encodeUTF16(h+body.String(), "utf-16le")), "<stdin>: row 1: file is UTF-16; save it as UTF-8", 2},
+		{"quote opened on row 6", quoted, "<stdin>: row 6: ", 2},
+		{"semicolons", strings.ReplaceAll(h, ",", ";") + "P1;L3;T1;1,5;2;0,1;0,2\n", "<stdin>: row 1: expected comma-separated columns (this file uses semicolons)", 2},
+		{"position 1e300 in", h + "P1,L3,T1,1e300,2,0.1,0.2\n" + body.String(), `<stdin>: row 2, column "x": `, 2},
+		{"displacement 1e300 mil", h + body.String() + "P1,L3,T9,1,2,0.1,1e300\n", `<stdin>: row 202, column "dy": `, 2},
+		{"off a panel of the given size", h + body.String() + "P1,L3,T9,10,2,0.1,0.2\n", `<stdin>: row 202, column "x": `, 2},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			dir := filepath.Join(t.TempDir(), "out")
+			code, _, errs := fitMain(tt.csv, "fit", "-", "-o", dir, "--panel", "18in,24in")
+			if code != tt.code || !strings.Contains(errs, tt.want) {
+				t.Fatalf("exit %d, stderr %q; want %d and %q", code, errs, tt.code, tt.want)
+			}
+			if ents, _ := os.ReadDir(dir); tt.code != 0 && len(ents) != 0 {
+				t.Errorf("left output behind: %v", ents)
+			}
+		})
+	}
+}
