@@ -4,21 +4,12 @@ import (
 	"errors"
 	"strings"
 	"testing"
-	"unicode/utf16"
 
 	"github.com/regdrift/regdrift/panel/textfile"
 	"github.com/regdrift/regdrift/panel/unit"
 )
 
-// utf16LE writes s as UTF-16LE with its byte-order mark FF FE (Unicode
-// Standard 15.0, section 23.8, table 23-4; published).
-func utf16LE(s string) string {
-	b := []byte{0xFF, 0xFE}
-	for _, u := range utf16.Encode([]rune(s)) {
-		b = append(b, byte(u), byte(u>>8))
-	}
-	return string(b)
-}
+func utf16LE(s string) string { return string(textfile.EncodeUTF16(s, false)) }
 
 // TestCSVInputs checks the encodings, separators, header case, quotes and
 // plausibility bounds shared by the CSV readers, on targets and grids.

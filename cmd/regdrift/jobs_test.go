@@ -11,8 +11,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
-	"unicode/utf16"
 
+	"github.com/regdrift/regdrift/panel/textfile"
 	"github.com/regdrift/regdrift/samples"
 )
 
@@ -30,24 +30,13 @@ type badCase struct {
 	Contains       string
 }
 
-// encodeUTF16 writes s as UTF-16 with its byte-order mark (Unicode
-// Standard 15.0, section 23.8, table 23-4), or leaves it for "".
+// encodeUTF16 writes s as UTF-16 ("utf-16le" or "utf-16be") with its
+// byte-order mark, or leaves it for "".
 func encodeUTF16(s, enc string) []byte {
 	if enc == "" {
 		return []byte(s)
 	}
-	b := []byte{0xFE, 0xFF}
-	if enc == "utf-16le" {
-		b = []byte{0xFF, 0xFE}
-	}
-	for _, u := range utf16.Encode([]rune(s)) {
-		if enc == "utf-16le" {
-			b = append(b, byte(u), byte(u>>8))
-		} else {
-			b = append(b, byte(u>>8), byte(u))
-		}
-	}
-	return b
+	return textfile.EncodeUTF16(s, enc == "utf-16be")
 }
 
 // TestBadInput runs the job package's corpus of broken job files

@@ -9,8 +9,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
-	"unicode/utf16"
 
+	"github.com/regdrift/regdrift/panel/textfile"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/samples"
@@ -86,27 +86,17 @@ func badInputs(t testing.TB) ([]badCase, []string) {
 	return cases, files
 }
 
-// encode writes s as UTF-16 with its byte-order mark (Unicode Standard 15.0,
-// section 23.8, table 23-4), or leaves it UTF-8 for "".
+// encode writes s as UTF-16 with its byte-order mark, or leaves it UTF-8
+// for "".
 func encode(t testing.TB, s, enc string) string {
-	var b []byte
 	switch enc {
 	case "":
 		return s
-	case "utf-16le":
-		b = []byte{0xFF, 0xFE}
-		for _, u := range utf16.Encode([]rune(s)) {
-			b = append(b, byte(u), byte(u>>8))
-		}
-	case "utf-16be":
-		b = []byte{0xFE, 0xFF}
-		for _, u := range utf16.Encode([]rune(s)) {
-			b = append(b, byte(u>>8), byte(u))
-		}
-	default:
-		t.Fatalf("unknown encoding %q", enc)
+	case "utf-16le", "utf-16be":
+		return string(textfile.EncodeUTF16(s, enc == "utf-16be"))
 	}
-	return string(b)
+	t.Fatalf("unknown encoding %q", enc)
+	return ""
 }
 
 // writeCase writes bad.toml and the case's other files into dir and returns

@@ -17,6 +17,7 @@ import (
 	"bytes"
 	"errors"
 	"io"
+	"unicode/utf16"
 )
 
 // ErrUTF16 is the error for an input saved as UTF-16.
@@ -64,4 +65,22 @@ func Reader(r io.Reader) (io.Reader, error) {
 		br.Discard(len(bomUTF8))
 	}
 	return br, nil
+}
+
+// EncodeUTF16 writes s as UTF-16 with its byte-order mark (FF FE little
+// endian, FE FF big endian): a file such as this package refuses, for the
+// tests of the readers that use it.
+func EncodeUTF16(s string, bigEndian bool) []byte {
+	b := []byte{0xFF, 0xFE}
+	if bigEndian {
+		b = []byte{0xFE, 0xFF}
+	}
+	for _, u := range utf16.Encode([]rune(s)) {
+		if bigEndian {
+			b = append(b, byte(u>>8), byte(u))
+		} else {
+			b = append(b, byte(u), byte(u>>8))
+		}
+	}
+	return b
 }

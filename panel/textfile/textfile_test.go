@@ -5,29 +5,29 @@ import (
 	"io"
 	"strings"
 	"testing"
-	"unicode/utf16"
 )
 
-// utf16LE and utf16BE encode s as UTF-16 with its byte-order mark, as the
-// Unicode Standard 15.0, section 23.8, table 23-4 gives them (FF FE and
-// FE FF; published).
-func utf16LE(s string) string {
-	b := []byte{0xFF, 0xFE}
-	for _, u := range utf16.Encode([]rune(s)) {
-		b = append(b, byte(u), byte(u>>8))
+func utf16LE(s string) string { return string(EncodeUTF16(s, false)) }
+
+// utf16BE is UTF-16BE, with or without the mark FE FF.
+func utf16BE(s string, mark bool) string {
+	b := EncodeUTF16(s, true)
+	if !mark {
+		b = b[2:]
 	}
 	return string(b)
 }
 
-func utf16BE(s string, mark bool) string {
-	var b []byte
-	if mark {
-		b = []byte{0xFE, 0xFF}
+// TestEncodeUTF16 checks the marks and byte order against the Unicode
+// Standard 15.0, section 23.8, table 23-4 (FF FE little endian, FE FF big
+// endian; published): "a" is U+0061.
+func TestEncodeUTF16(t *testing.T) {
+	if got := utf16LE("a"); got != "\xFF\xFEa\x00" {
+		t.Errorf("little endian %q", got)
 	}
-	for _, u := range utf16.Encode([]rune(s)) {
-		b = append(b, byte(u>>8), byte(u))
+	if got := utf16BE("a", true); got != "\xFE\xFF\x00a" {
+		t.Errorf("big endian %q", got)
 	}
-	return string(b)
 }
 
 func TestDecode(t *testing.T) {
