@@ -494,6 +494,24 @@ func (l *loader) buildStackup() error {
 	return nil
 }
 
+// stackupKey turns the key of a section.FieldError within the stackup into
+// the job file's: a dielectric's thickness is written as its core = or
+// prepreg = value ("layers[3].thickness" is "layers[3].prepreg").
+func (l *loader) stackupKey(key string) string {
+	rest, ok := strings.CutSuffix(key, ".thickness")
+	if !ok || !strings.HasPrefix(rest, "layers[") {
+		return key
+	}
+	i, _ := splitIndex(rest, "layers[")
+	if i < 0 || i >= len(l.job.Stackup.Layers) {
+		return key
+	}
+	if ly := l.job.Stackup.Layers[i]; ly.Kind == section.Dielectric {
+		return rest + "." + map[bool]string{true: "core", false: "prepreg"}[ly.Core]
+	}
+	return key
+}
+
 func (l *loader) buildSections() error {
 	j := l.job
 	seen := map[string]bool{}
@@ -589,7 +607,7 @@ func (l *loader) buildSections() error {
 			var fe *section.FieldError
 			if errors.As(err, &fe) {
 				if strings.HasPrefix(fe.Key, "stackup.") {
-					return l.stackupSrc.err(strings.TrimPrefix(fe.Key, "stackup."), fmt.Errorf("section %q: %w", s.Name, fe.Err))
+					return l.stackupSrc.err(l.stackupKey(strings.TrimPrefix(fe.Key, "stackup.")), fmt.Errorf("section %q: %w", s.Name, fe.Err))
 				}
 				return src.err(fe.Key, fe.Err)
 			}
