@@ -133,3 +133,17 @@ func TestCacheWarning(t *testing.T) {
 		t.Errorf("no cache warning on stderr: %q", errw.String())
 	}
 }
+
+// TestCountCaps: counts that pass their syntax but would run for a quarter of
+// an hour are usage errors before any solve.
+func TestCountCaps(t *testing.T) {
+	for _, args := range [][]string{
+		{"sweep", "testdata/small.toml", "--offsets", "-5mil:5mil:0.0001mil"},
+		{"tol", "testdata/small.toml", "--widen", "0mil:4mil:0.00004mil"},
+	} {
+		code, _, errw := run(t, append(args, "-o", t.TempDir())...)
+		if code != exitBadInput || !strings.Contains(errw, "at most") {
+			t.Errorf("%v: exit %d, want 2 with the cap: %s", args, code, errw)
+		}
+	}
+}

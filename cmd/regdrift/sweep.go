@@ -48,6 +48,10 @@ func pickSection(j *Job, name string) (int, error) {
 	return 0, usageErr("--section: no section named %q in %s (have %v)", name, j.File, names)
 }
 
+// maxSweepOffsets bounds the solved offsets of one sweep: each is a field
+// solve, and a few hundred cover ±20 mil at 0.1 mil.
+const maxSweepOffsets = 401
+
 func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("sweep takes one job file")
@@ -86,6 +90,9 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		offsets := r.Values()
 		if len(offsets) < 2 {
 			return usageErr("--offsets: %q gives fewer than two offsets", f.offsets)
+		}
+		if len(offsets) > maxSweepOffsets {
+			return usageErr("--offsets: %q gives %d offsets; at most %d (the curve is interpolated between them: a step of a tenth of a mil is fine enough for any drift)", f.offsets, len(offsets), maxSweepOffsets)
 		}
 		if c, hit, err = drift.SolveAt(ctx, s, offsets, set); err != nil {
 			var fe *section.FieldError

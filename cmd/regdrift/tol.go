@@ -34,6 +34,10 @@ func (f *tolFlags) flags(fs *pflag.FlagSet) {
 	f.solver.add(fs)
 }
 
+// maxWidenSteps bounds the widths of a --widen study: each costs a curve and
+// its confirmed roots (about a second), and a design study needs a handful.
+const maxWidenSteps = 41
+
 func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 	if len(args) != 1 {
 		return usageErr("tol takes one job file")
@@ -61,6 +65,9 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 			return usageErr("--widen: %v", err)
 		}
 		deltas = r.Values()
+		if len(deltas) > maxWidenSteps {
+			return usageErr("--widen: %q gives %d widths; at most %d (each is a solved curve with its roots confirmed by direct solves)", f.widen, len(deltas), maxWidenSteps)
+		}
 	}
 	j, err := loadJob(args[0], std.in)
 	if err != nil {
