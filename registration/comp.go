@@ -223,6 +223,9 @@ type compProblem struct {
 	set      *CompSettings
 	maxScale float64 // bound on |factor − 1|, strain
 	budget   float64 // drill budget, µm; 0 means none
+	// slackBudget is a drill budget that no allowed compensation can reach,
+	// µm, dropped as if none had been given; 0 otherwise.
+	slackBudget float64
 
 	layers    []string       // trace layers in order of appearance
 	li        map[string]int // index of each layer in layers
@@ -263,6 +266,7 @@ func newCompProblem(m *Model, sites []CompSite, set *CompSettings) (*compProblem
 	}
 	p.offsetRows()
 	p.drillRows()
+	p.dropSlackBudget()
 	p.caps.a, p.caps.b, p.caps.caps = append(p.caps.a, p.bounds.a...), append(p.caps.b, p.bounds.b...), append(p.caps.caps, p.bounds.caps...)
 	if p.budget > 0 {
 		p.caps.a, p.caps.b, p.caps.caps = append(p.caps.a, p.drill.a...), append(p.caps.b, p.drill.b...), append(p.caps.caps, p.drill.caps...)
@@ -350,6 +354,29 @@ func (p *compProblem) drillRows() {
 		for i := range p.drill.caps {
 			p.drill.caps[i] = p.budget
 		}
+	}
+}
+
+// dropSlackBudget treats a drill budget that cannot bind as no budget: when
+// every drill row's reach, |b| + Σ|a_j|·bound_j over the artwork bounds, stays
+// below the budget, the constraint changes nothing the bounds allow, and the
+// huge right-hand sides it would put into the linear programme only
+// ill-condition it (a budget of 1e8 mil made the simplex method fail).
+func (p *compProblem) dropSlackBudget() {
+	if p.budget <= 0 {
+		return
+	}
+	reach := 0.0
+	for i, a := range p.drill.a {
+		r := math.Abs(p.drill.b[i])
+		for j, v := range a {
+			r += math.Abs(v) * p.bounds.caps[j]
+		}
+		reach = math.Max(reach, r)
+	}
+	if p.budget > reach {
+		p.slackBudget, p.budget = p.budget, 0
+		p.drill.caps = nil
 	}
 }
 
@@ -633,6 +660,9 @@ func (p *compProblem) notes(free int, roundedOK bool, moved [2]bool) []string {
 	notes := []string{"only the difference of two layers' scale compensation across the coupled lines moves a broadside offset"}
 	if !roundedOK {
 		notes = append(notes, "no rounding of the compensation to the step keeps every layer within the drill budget; the nearest multiples are shown")
+	}
+	if p.slackBudget > 0 {
+		notes = append(notes, fmt.Sprintf("the drill budget of %.4g µm cannot bind (no compensation within the artwork bound moves a layer that far from the drilled holes), so it is treated as none", p.slackBudget))
 	}
 	var freeAxes []string
 	for a, name := range []string{"X", "Y"} {
