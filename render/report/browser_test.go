@@ -70,6 +70,15 @@ func TestBrowser(t *testing.T) {
 		}
 	})
 
+	t.Run("job text exact", func(t *testing.T) {
+		// The browser's parser, like golang.org/x/net/html in
+		// TestVerbatimExact, gives back the bytes: CR, CR LF, markup and all.
+		got := reporttest.Eval[[]string](p, `Array.from(document.querySelectorAll("details.verbatim pre")).map(e => e.textContent)`)
+		if len(got) != 2 || got[0] != string(testJob) || got[1] != string(testInclude) {
+			t.Errorf("the page shows %q, want %q and %q", got, testJob, testInclude)
+		}
+	})
+
 	t.Run("hover and click", func(t *testing.T) {
 		if !m.Readout().Tools {
 			t.Errorf("the script did not show the look-up controls")

@@ -13,6 +13,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"unicode/utf8"
 
 	"golang.org/x/net/html"
 	"golang.org/x/net/html/atom"
@@ -229,6 +230,33 @@ func TestVerbatimExact(t *testing.T) {
 			}
 		})
 	}
+}
+
+// FuzzVerbatim checks that any UTF-8 text without NUL comes back from the
+// page's <pre> byte for byte.
+func FuzzVerbatim(f *testing.F) {
+	for _, s := range []string{"", "\n", "\r\n\r", "</pre>", "&#13;&amp;", string(testJob), string(testInclude), "\x0c\x01\t"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		v := &report.Verbatim{Name: "f", Text: []byte(s)}
+		d := &report.Document{Title: "t", Sections: []report.Section{{Title: "F", Blocks: []report.Block{v}}}}
+		var buf bytes.Buffer
+		if err := d.Write(&buf); err != nil {
+			t.Fatal(err)
+		}
+		doc, err := html.Parse(&buf)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := text(findAll(doc, atom.Pre)[0])
+		if !utf8.ValidString(s) || strings.ContainsRune(s, 0) {
+			return // shown with replacement characters; the save link is exact
+		}
+		if got != s {
+			t.Errorf("<pre> gives back %q, want %q", got, s)
+		}
+	})
 }
 
 // mapData returns the JSON embedded beside the first panel map.
