@@ -1,11 +1,9 @@
-package main
+package job
 
 import (
 	"bytes"
-	"encoding/csv"
 	"errors"
 	"fmt"
-	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -14,218 +12,12 @@ import (
 	"strings"
 
 	"github.com/pelletier/go-toml/v2"
-	"github.com/pelletier/go-toml/v2/unstable"
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
-
-// Job is a loaded, validated job file.
-type Job struct {
-	File      string // the main file as named by the user
-	Title     string
-	Layout    panel.Layout
-	Instances []panel.Instance
-	Sites     []panel.Site
-	Stackup   section.Stackup
-	Sections  []*section.Section // in file order
-	Model     *registration.Model
-	// sectionSrc is the source of each section, parallel to Sections, so that
-	// a solver error can name its file line.
-	sectionSrc []source
-}
-
-// Section returns the section named name, or nil.
-func (j *Job) Section(name string) *section.Section {
-	for _, s := range j.Sections {
-		if s.Name == name {
-			return s
-		}
-	}
-	return nil
-}
-
-// arrayExtents returns, per array of the layout, the rectangle its parts cover.
-func (j *Job) arrayExtents() []panel.Rect {
-	ext := make([]panel.Rect, len(j.Layout.Arrays))
-	seen := make([]bool, len(ext))
-	for _, in := range j.Instances {
-		if in.Array < 0 {
-			continue
-		}
-		b, e := in.Bounds, &ext[in.Array]
-		if !seen[in.Array] {
-			*e, seen[in.Array] = b, true
-			continue
-		}
-		e.Min = panel.Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
-		e.Max = panel.Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
-	}
-	return ext
-}
-
-// ParseError is bad input at a place in a file.
-type ParseError struct {
-	File string // "<stdin>" when read from "-"
-	Line int    // 1-based; 0 when unknown
-	Key  string // the key path, e.g. "section[0].traces[1].width"
-	Err  error
-}
-
-func (e *ParseError) Error() string {
-	var b strings.Builder
-	b.WriteString(e.File)
-	if e.Line > 0 {
-		fmt.Fprintf(&b, ":%d", e.Line)
-	}
-	if e.Key != "" {
-		fmt.Fprintf(&b, ": %s", e.Key)
-	}
-	fmt.Fprintf(&b, ": %v", e.Err)
-	return b.String()
-}
-func (e *ParseError) Unwrap() error        { return e.Err }
-func (e *ParseError) Is(target error) bool { return target == errBadInput }
-
-// Error kinds of the job loader, for errors.Is.
-var (
-	ErrUnknownKey = errors.New("unknown key")
-	ErrMissing    = errors.New("missing value")
-	ErrValue      = errors.New("invalid value")
-)
-
-// tomlFile is one parsed TOML file with the line of every key path in it.
-type tomlFile struct {
-	name  string
-	dir   string
-	lines map[string]int
-}
-
-// source is where a table came from: its file and key path prefix.
-type source struct {
-	f   *tomlFile
-	key string // e.g. "section[2]"
-}
-
-func (s source) err(key string, err error) error {
-	full := s.key
-	if key != "" {
-		if full != "" && !strings.HasPrefix(key, "[") {
-			full += "."
-		}
-		full += key
-	}
-	return &ParseError{File: s.f.name, Line: s.f.line(full), Key: full, Err: err}
-}
-
-func (s source) errf(key, format string, args ...any) error {
-	return s.err(key, fmt.Errorf(format, args...))
-}
-
-// line returns the line of key path, or of its nearest ancestor that has one.
-func (f *tomlFile) line(key string) int {
-	for key != "" {
-		if l, ok := f.lines[key]; ok {
-			return l
-		}
-		i := strings.LastIndexAny(key, ".[")
-		if i < 0 {
-			break
-		}
-		key = key[:i]
-	}
-	return 0
-}
-
-// indexLines walks the TOML syntax tree and records the line on which each
-// key path starts: "panel.size", "section[1].traces[0].width", "stackup.layers[3].er".
-func indexLines(data []byte) map[string]int {
-	lines := map[string]int{}
-	p := unstable.Parser{KeepComments: false}
-	p.Reset(data)
-	counts := map[string]int{}
-	prefix := ""
-	lineOf := func(n *unstable.Node) int {
-		if n.Raw.Length == 0 && n.Raw.Offset == 0 {
-			return 0
-		}
-		return p.Shape(n.Raw).Start.Line
-	}
-	var value func(path string, n *unstable.Node)
-	keyOf := func(it unstable.Iterator) (string, int) {
-		var parts []string
-		line := 0
-		for it.Next() {
-			k := it.Node()
-			parts = append(parts, string(k.Data))
-			if line == 0 {
-				line = lineOf(k)
-			}
-		}
-		return strings.Join(parts, "."), line
-	}
-	join := func(a, b string) string {
-		if a == "" {
-			return b
-		}
-		return a + "." + b
-	}
-	value = func(path string, n *unstable.Node) {
-		switch n.Kind {
-		case unstable.InlineTable:
-			it := n.Children()
-			for it.Next() {
-				kv := it.Node()
-				if kv.Kind != unstable.KeyValue {
-					continue
-				}
-				k, l := keyOf(kv.Key())
-				p := join(path, k)
-				lines[p] = l
-				value(p, kv.Value())
-			}
-		case unstable.Array:
-			it := n.Children()
-			i := 0
-			for it.Next() {
-				e := it.Node()
-				if e.Kind == unstable.Comment {
-					continue
-				}
-				p := fmt.Sprintf("%s[%d]", path, i)
-				if l := lineOf(e); l > 0 {
-					lines[p] = l
-				}
-				value(p, e)
-				i++
-			}
-		}
-	}
-	for p.NextExpression() {
-		e := p.Expression()
-		switch e.Kind {
-		case unstable.Table:
-			k, l := keyOf(e.Key())
-			prefix = k
-			lines[prefix] = l
-		case unstable.ArrayTable:
-			k, l := keyOf(e.Key())
-			i := counts[k]
-			counts[k] = i + 1
-			prefix = fmt.Sprintf("%s[%d]", k, i)
-			lines[prefix] = l
-		case unstable.KeyValue:
-			k, l := keyOf(e.Key())
-			path := join(prefix, k)
-			lines[path] = l
-			// Inline tables and arrays on one line share it; elements on later lines get their own.
-			value(path, e.Value())
-		}
-	}
-	return lines
-}
 
 // Raw job-file shapes. Dimensional values are decoded as any so that a bare
 // number is reported as a missing unit rather than a type mismatch.
@@ -295,19 +87,6 @@ type rawSites struct {
 	File string `toml:"file"`
 }
 
-// readFile returns the bytes of path, or of standard input for "-".
-func readFile(path string, stdin io.Reader) ([]byte, string, error) {
-	if path == "-" {
-		if stdin == nil {
-			return nil, "<stdin>", errors.New("no standard input")
-		}
-		b, err := io.ReadAll(stdin)
-		return b, "<stdin>", err
-	}
-	b, err := os.ReadFile(path)
-	return b, path, err
-}
-
 // parseTOML decodes one job file strictly, with line numbers in its errors.
 func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
 	f := &tomlFile{name: name, lines: indexLines(data)}
@@ -330,27 +109,6 @@ func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
 		return nil, f, &ParseError{File: name, Err: err}
 	}
 	return &raw, f, nil
-}
-
-// loadJob reads and validates a job file and everything it includes.
-func loadJob(path string, stdin io.Reader) (*Job, error) {
-	data, name, err := readFile(path, stdin)
-	if err != nil {
-		return nil, badInput(fmt.Errorf("job file: %w", err))
-	}
-	return loadJobData(data, name, filepath.Dir(path))
-}
-
-func loadJobData(data []byte, name, dir string) (*Job, error) {
-	j := &Job{File: name}
-	l := &loader{job: j, seen: map[string]bool{}}
-	if err := l.file(data, name, dir, 0); err != nil {
-		return nil, err
-	}
-	if err := l.finish(); err != nil {
-		return nil, err
-	}
-	return j, nil
 }
 
 // loader merges a job file and its includes: included files come first, so a
@@ -442,7 +200,7 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 		if !filepath.IsAbs(p) {
 			p = filepath.Join(dir, p)
 		}
-		pl, err := readPlacements(p)
+		pl, err := readPlacementFile(p)
 		if err != nil {
 			return err
 		}
@@ -576,7 +334,7 @@ func (l *loader) layoutErr(err error) error {
 	case strings.HasPrefix(key, "sites["):
 		i, _ := splitIndex(key, "sites[")
 		p := l.placements[i]
-		return badInput(&registration.CSVError{File: p.File, Row: p.Row, Err: fe.Err})
+		return &registration.CSVError{File: p.File, Row: p.Row, Err: fe.Err}
 	default:
 		return &ParseError{File: l.job.File, Key: key, Err: fe.Err}
 	}
@@ -839,7 +597,7 @@ func (l *loader) buildLayout() error {
 	}
 	for _, p := range l.placements {
 		if j.Section(p.Section) == nil {
-			return badInput(&registration.CSVError{File: p.File, Row: p.Row, Column: "section", Err: fmt.Errorf("no section named %q", p.Section)})
+			return &registration.CSVError{File: p.File, Row: p.Row, Column: "section", Err: fmt.Errorf("no section named %q", p.Section)}
 		}
 	}
 	j.Layout.Placements = l.placements
@@ -854,19 +612,13 @@ func (l *loader) buildLayout() error {
 	return nil
 }
 
-var termKeys = map[string]registration.TermKind{
-	"offset_x": registration.OffsetX, "offset_y": registration.OffsetY, "rotation": registration.Rotation,
-	"scale_x": registration.ScaleX, "scale_y": registration.ScaleY, "skew": registration.Skew,
-}
-
-func termKind(k registration.TermKind) unit.Kind {
-	switch k {
-	case registration.OffsetX, registration.OffsetY:
-		return unit.Length
-	case registration.Rotation:
-		return unit.Angle
+// termKeys lists the job-file keys of the terms, for messages.
+func termKeys() string {
+	keys := make([]string, registration.NumTerms)
+	for k := range keys {
+		keys[k] = registration.TermKind(k).String()
 	}
-	return unit.Strain
+	return strings.Join(keys, ", ")
 }
 
 func (l *loader) buildModel() error {
@@ -935,15 +687,15 @@ func (l *loader) buildModel() error {
 				g, err := registration.ReadGrid(fh, p)
 				fh.Close()
 				if err != nil {
-					return badInput(err)
+					return err
 				}
 				c.Residual = g
 			default:
-				tk, ok := termKeys[k]
+				tk, ok := registration.TermByKey(k)
 				if !ok {
-					return src.errf(k, "%w %q (terms: offset_x, offset_y, rotation, scale_x, scale_y, skew; also name, layers, site_sigma, residual)", ErrUnknownKey, k)
+					return src.errf(k, "%w %q (terms: %s; also name, layers, site_sigma, residual)", ErrUnknownKey, k, termKeys())
 				}
-				t, err := parseTerm(src, k, v, termKind(tk))
+				t, err := parseTerm(src, k, v, tk.Info().Kind)
 				if err != nil {
 					return err
 				}
@@ -964,7 +716,7 @@ func (l *loader) buildModel() error {
 			i, rest := splitIndex(fe.Key, "contributor[")
 			return l.contribSrc[i].err(rest, fe.Err)
 		}
-		return badInput(err)
+		return &ParseError{File: j.File, Err: err}
 	}
 	j.Model = m
 	return nil
@@ -1028,52 +780,4 @@ func parseTerm(src source, key string, v any, k unit.Kind) (registration.Term, e
 		return t, nil
 	}
 	return registration.Term{}, src.errf(key, "%w: want a value such as \"+150 ppm\" or { mean = ..., sigma = ... }", ErrValue)
-}
-
-// readPlacements reads a placement CSV: name, x [unit], y [unit], angle [unit], section.
-func readPlacements(path string) ([]panel.Placement, error) {
-	fh, err := os.Open(path)
-	if err != nil {
-		return nil, badInput(err)
-	}
-	defer fh.Close()
-	cr := csv.NewReader(fh)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
-	header, err := cr.Read()
-	if err != nil {
-		return nil, badInput(&registration.CSVError{File: path, Row: 1, Err: err})
-	}
-	idx, cols, err := registration.ParseHeader(header, map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "angle": unit.Angle})
-	if err != nil {
-		return nil, badInput(&registration.CSVError{File: path, Row: 1, Err: err})
-	}
-	for _, need := range []string{"name", "x", "y", "angle", "section"} {
-		if _, ok := idx[need]; !ok {
-			return nil, badInput(&registration.CSVError{File: path, Row: 1, Err: fmt.Errorf("missing column %q (want name, x [in], y [in], angle [deg], section)", need)})
-		}
-	}
-	var out []panel.Placement
-	for {
-		rec, err := cr.Read()
-		if err == io.EOF {
-			break
-		}
-		if err != nil {
-			// A *csv.ParseError carries its own line; FieldPos is only valid
-			// after a successful read.
-			return nil, badInput(&registration.CSVError{File: path, Err: err})
-		}
-		line, _ := cr.FieldPos(0)
-		var v [3]float64
-		for k, name := range []string{"x", "y", "angle"} {
-			c := idx[name]
-			if v[k], err = registration.Cell(path, line, cols[c], rec[c]); err != nil {
-				return nil, badInput(err)
-			}
-		}
-		out = append(out, panel.Placement{Name: rec[idx["name"]], Section: rec[idx["section"]],
-			At: panel.Vec{X: v[0], Y: v[1]}, Angle: v[2], File: path, Row: line})
-	}
-	return out, nil
 }
