@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"html/template"
 	"image/png"
+	"strconv"
 	"strings"
 	"unicode/utf8"
 )
@@ -46,19 +47,11 @@ func (h *Headline) block() (string, any, error) {
 }
 
 // looksNumeric reports whether s is a bare number, such as "412.7" or
-// "-3.0": a figure that needs a unit beside it.
+// "−3.0": a figure that needs a unit beside it.
 func looksNumeric(s string) bool {
-	s = strings.TrimSpace(s)
-	s = strings.TrimLeft(s, "+-−±")
-	if s == "" {
-		return false
-	}
-	for _, r := range s {
-		if !(r >= '0' && r <= '9' || r == '.' || r == ',' || r == 'e' || r == 'E' || r == '-' || r == '+') {
-			return false
-		}
-	}
-	return s[0] >= '0' && s[0] <= '9' || s[0] == '.'
+	s = strings.TrimSpace(strings.NewReplacer("−", "-", "±", "", ",", "").Replace(s))
+	_, err := strconv.ParseFloat(s, 64)
+	return err == nil
 }
 
 // Figure is a picture with alt text and a caption.
