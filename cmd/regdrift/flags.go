@@ -5,7 +5,7 @@ import (
 
 	"github.com/spf13/pflag"
 
-	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/registration/drift"
 )
 
 // The flags several commands share are declared here, once, so that their
@@ -52,12 +52,12 @@ func (f *solverFlags) add(fs *pflag.FlagSet) {
 }
 
 // settings returns the solver settings; bad values are usage errors.
-func (f *solverFlags) settings() (*section.Settings, error) {
+func (f *solverFlags) settings() (*drift.Settings, error) {
 	acc, err := parsePercent(f.accuracy)
 	if err != nil {
 		return nil, usageErr("--accuracy: %v", err)
 	}
-	return &section.Settings{Accuracy: acc}, nil
+	return &drift.Settings{Accuracy: acc, CacheDir: f.cacheDir, NoCache: f.noCache}, nil
 }
 
 func parsePercent(s string) (float64, error) {
