@@ -192,6 +192,15 @@ var (
 	ErrOffPanel = errors.New("part outside the panel")
 )
 
+// OverlapError is two parts of different arrays whose outlines overlap; B
+// belongs to the later array. It matches ErrOverlap.
+type OverlapError struct{ A, B Instance }
+
+func (e *OverlapError) Error() string {
+	return fmt.Sprintf("%v: %s and %s", ErrOverlap, e.A.Name, e.B.Name)
+}
+func (e *OverlapError) Is(target error) bool { return target == ErrOverlap }
+
 // rotatePartLocal maps a part-local point q of a part of size sz into the
 // coordinates of the turned part's lower-left corner, for a turn of quarter
 // quarter-turns counter-clockwise; it also returns the turned size.
@@ -327,7 +336,8 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 		sites = append(sites, s)
 	}
 	if a, b, ok := firstOverlap(inst, blocks); ok {
-		return nil, nil, fmt.Errorf("%w: %s and %s", ErrOverlap, inst[a].Name, inst[b].Name)
+		// Named at the later array: the one placed onto the other.
+		return nil, nil, &FieldError{fmt.Sprintf("array[%d]", inst[b].Array), &OverlapError{inst[a], inst[b]}}
 	}
 	return inst, sites, nil
 }

@@ -92,7 +92,7 @@ func TestExpandErrors(t *testing.T) {
 			a := l.Arrays[0]
 			a.Origin.X += 0.5 * in
 			l.Arrays = append(l.Arrays, a)
-		}, ErrOverlap, ""},
+		}, ErrOverlap, "array[1]"},
 		{"unknown part", func(l *Layout) { l.Arrays[0].Part = "q" }, nil, "array[0].part"},
 		{"bad rotate", func(l *Layout) { l.Arrays[0].Rotate = 45 }, nil, "array[0].rotate"},
 		// The part's outline enters the 0.5 in border although its coupler,

@@ -1,7 +1,6 @@
 package registration
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -72,22 +71,51 @@ func (e *CSVError) Unwrap() error { return e.Err }
 // returning SI.
 func Cell(file string, row int, col unit.Column, s string) (float64, error) {
 	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
-	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) || math.IsInf(v*col.Factor, 0) {
 		return 0, &CSVError{file, row, col.Name, fmt.Errorf("%q is not a finite number", s)}
 	}
 	return v * col.Factor, nil
+}
+
+// PositionCell is Cell for a coordinate on the panel: a value farther than
+// panel.MaxPanelSize from the centre is an error at the cell.
+func PositionCell(file string, row int, col unit.Column, s string) (float64, error) {
+	return boundedCell(file, row, col, s, true)
+}
+
+// boundedCell is Cell for a position on the panel (position, checked with
+// checkPosition) or a movement (CheckTerm of a length): a value beyond the
+// bound is an error at the cell.
+func boundedCell(file string, row int, col unit.Column, s string, position bool) (float64, error) {
+	v, err := Cell(file, row, col, s)
+	if err != nil {
+		return 0, err
+	}
+	if position {
+		err = checkPosition(v)
+	} else {
+		err = CheckTerm(v, unit.Length)
+	}
+	if err != nil {
+		return 0, &CSVError{file, row, col.Name, err}
+	}
+	return v, nil
 }
 
 // ReadGrid reads a residual grid from CSV with the columns
 // "x [unit], y [unit], dx [unit], dy [unit]", one row per node, nodes forming a
 // complete regular grid in any order.
 func ReadGrid(r io.Reader, file string) (*Grid, error) {
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
+	cr, err := NewCSVReader(r, file)
+	if err != nil {
+		return nil, err
+	}
 	header, err := cr.Read()
 	if err != nil {
-		return nil, &CSVError{File: file, Err: fmt.Errorf("reading the header: %w", err)}
+		if err == io.EOF {
+			return nil, &CSVError{File: file, Row: 1, Err: errors.New("the file is empty (want a header such as \"x [in],y [in],dx [mil],dy [mil]\")")}
+		}
+		return nil, ReadError(file, err)
 	}
 	kinds := map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length}
 	idx, cols, err := unit.ParseHeader(header, kinds)
@@ -107,15 +135,14 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 			break
 		}
 		if err != nil {
-			// A *csv.ParseError carries its own line; FieldPos is only valid
-			// after a successful read.
-			return nil, &CSVError{File: file, Err: err}
+			// FieldPos is only valid after a successful read.
+			return nil, ReadError(file, err)
 		}
 		line, _ := cr.FieldPos(0)
 		var v [4]float64
 		for k, name := range []string{"x", "y", "dx", "dy"} {
 			c := idx[name]
-			if v[k], err = Cell(file, line, cols[c], rec[c]); err != nil {
+			if v[k], err = boundedCell(file, line, cols[c], rec[c], k < 2); err != nil {
 				return nil, err
 			}
 		}

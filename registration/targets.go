@@ -1,7 +1,6 @@
 package registration
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -48,16 +47,17 @@ func SplitLayer(s string) (upper, lower string, relative bool) {
 // and dy. Lines starting with '#' are comments; other columns are ignored.
 // Errors are *CSVError values naming the row and column.
 func ReadTargets(r io.Reader, file string) ([]Target, error) {
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
+	cr, err := NewCSVReader(r, file)
+	if err != nil {
+		return nil, err
+	}
 	cr.FieldsPerRecord = -1
 	header, err := cr.Read()
 	if err != nil {
 		if err == io.EOF {
-			err = errors.New("the file is empty (want a header such as \"panel,layer,target,x [in],y [in],dx [mil],dy [mil]\")")
+			return nil, &CSVError{File: file, Row: 1, Err: errors.New("the file is empty (want a header such as \"panel,layer,target,x [in],y [in],dx [mil],dy [mil]\")")}
 		}
-		return nil, &CSVError{File: file, Row: 1, Err: err}
+		return nil, ReadError(file, err)
 	}
 	kinds := map[string]unit.Kind{
 		"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length,
@@ -104,12 +104,7 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		}
 		if err != nil {
 			// FieldPos is only valid after a successful Read.
-			var pe *csv.ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line, err = pe.Line, pe.Err
-			}
-			return nil, &CSVError{File: file, Row: line, Err: err}
+			return nil, ReadError(file, err)
 		}
 		line, _ := cr.FieldPos(0)
 		if len(rec) != len(header) {
@@ -137,7 +132,9 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		var v [4]float64
 		for k, name := range numeric {
 			c := idx[name]
-			if v[k], err = Cell(file, line, cols[c], rec[c]); err != nil {
+			// Positions (nominal, and measured ones) lie on a panel; a
+			// displacement is a registration movement.
+			if v[k], err = boundedCell(file, line, cols[c], rec[c], k < 2 || !disp); err != nil {
 				return nil, err
 			}
 		}
@@ -145,6 +142,11 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		t.D = panel.Vec{X: v[2], Y: v[3]}
 		if !disp {
 			t.D = t.D.Sub(t.Pos)
+			for k, d := range []float64{t.D.X, t.D.Y} {
+				if err := CheckTerm(d, unit.Length); err != nil {
+					return nil, &CSVError{File: file, Row: line, Column: numeric[2+k], Err: fmt.Errorf("measured minus nominal: %w", err)}
+				}
+			}
 		}
 		k := key{t.Panel, t.Layer, t.Name}
 		if first, dup := seen[k]; dup {
@@ -157,4 +159,50 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		return nil, &CSVError{File: file, Err: errors.New("no targets after the header")}
 	}
 	return out, nil
+}
+
+// Frame maps target positions from the frame a measuring machine exports
+// (an x-ray drill's or an optical inspection system's) into the panel frame
+// of the job file: origin at the panel centre, x along the first size, y
+// up. The zero value is the panel frame itself.
+type Frame struct {
+	// Origin is where the machine frame's origin lies in the panel frame:
+	// (−W/2, −H/2) for a machine that measures from the panel's lower-left
+	// corner, (−W/2, +H/2) from the upper-left with FlipY.
+	Origin panel.Vec
+	// FlipY is set for a machine whose y axis points down the panel: the
+	// y of every position and of every displacement changes sign.
+	FlipY bool
+}
+
+// Apply maps the targets' positions and displacements into the panel frame,
+// in place: p_panel = Origin + (x, ±y) and d_panel = (dx, ±dy).
+func (f Frame) Apply(ts []Target) {
+	for i := range ts {
+		t := &ts[i]
+		if f.FlipY {
+			t.Pos.Y, t.D.Y = -t.Pos.Y, -t.D.Y
+		}
+		t.Pos = f.Origin.Add(t.Pos)
+	}
+}
+
+// CheckOutline returns a *CSVError naming the row and column of the first
+// target (in the panel frame) outside outline, the panel's outer rectangle:
+// a target off the panel is a frame or unit given wrongly.
+func CheckOutline(ts []Target, outline panel.Rect, file string) error {
+	for _, t := range ts {
+		col := ""
+		switch {
+		case t.Pos.X < outline.Min.X || t.Pos.X > outline.Max.X:
+			col = "x"
+		case t.Pos.Y < outline.Min.Y || t.Pos.Y > outline.Max.Y:
+			col = "y"
+		default:
+			continue
+		}
+		return &CSVError{File: file, Row: t.Row, Column: col, Err: fmt.Errorf("target %q at (%.4g, %.4g) mm in the panel frame is off the %.4g x %.4g mm panel (centre origin, y up; see the frame options)",
+			t.Name, t.Pos.X*1e3, t.Pos.Y*1e3, (outline.Max.X-outline.Min.X)*1e3, (outline.Max.Y-outline.Min.Y)*1e3)}
+	}
+	return nil
 }

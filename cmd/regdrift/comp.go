@@ -105,7 +105,7 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	solver, err := f.solver.settings()
+	solver, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}

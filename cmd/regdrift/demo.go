@@ -62,7 +62,7 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 		return fmt.Errorf("copying the samples: %w", err)
 	}
 	fmt.Fprintf(std.out, "regdrift demo: invented scenarios, copied to %s\n", dir)
-	set, err := f.solver.settings()
+	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}

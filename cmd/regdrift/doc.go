@@ -124,7 +124,9 @@ Reads a measurement file (CSV, units in the header):
 	panel,layer,target,x [in],y [in],dx [mil],dy [mil]
 
 with the nominal target positions in the panel frame (origin at the panel
-centre, y up, as in the job file) and the measured displacements, or x_meas and
+centre, y up, as in the job file; --origin and --flip-y map a machine's frame
+into it, and with --panel a target off the panel is refused) and the measured
+displacements, or x_meas and
 y_meas columns with the measured positions instead of dx and dy. A layer is
 measured against the drilled tooling ("L3") or against another layer ("L3-L4",
 L3 relative to L4). "-" reads standard input.

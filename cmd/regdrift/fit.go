@@ -30,6 +30,8 @@ type fitFlags struct {
 	contributors string
 	grid         int
 	width        int
+	origin       string
+	flipY        bool
 }
 
 // flags declares the command's flags on fs.
@@ -43,6 +45,31 @@ func (f *fitFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.contributors, "contributors", "", "write the lot as TOML [[contributor]] blocks to FILE")
 	fs.IntVar(&f.grid, "grid", 5, "nodes per axis of the pooled residual grid")
 	fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
+	fs.StringVar(&f.origin, "origin", "centre", "where the targets' x,y origin lies on the panel: centre, lower-left, upper-left (these two need --panel) or X,Y in the panel frame")
+	fs.BoolVar(&f.flipY, "flip-y", false, "the targets' y axis points down the panel: y and dy change sign")
+}
+
+// frame reads --origin and --flip-y; size is --panel's (zero if not given).
+func (f *fitFlags) frame(size panel.Vec) (registration.Frame, error) {
+	fr := registration.Frame{FlipY: f.flipY}
+	switch strings.ToLower(f.origin) {
+	case "centre", "center":
+	case "lower-left", "upper-left":
+		if size.X == 0 {
+			return fr, usageErr("--origin %s: give the panel's size with --panel", f.origin)
+		}
+		fr.Origin = panel.Vec{X: -size.X / 2, Y: -size.Y / 2}
+		if strings.EqualFold(f.origin, "upper-left") {
+			fr.Origin.Y = size.Y / 2
+		}
+	default:
+		o, err := parseVecFlag("origin", f.origin)
+		if err != nil {
+			return fr, usageErr("--origin: want centre, lower-left, upper-left or X,Y with units, not %q", f.origin)
+		}
+		fr.Origin = o
+	}
+	return fr, nil
 }
 
 // parseVecFlag reads "X,Y" with a length unit on each value.
@@ -65,15 +92,18 @@ func parseVecFlag(name, s string) (panel.Vec, error) {
 // fitRun is a finished fit of a measurement file.
 type fitRun struct{ *fitreport.Report }
 
-// runFitFile reads and fits a measurement file; bad input is marked.
+// runFitFile reads and fits a measurement file in the panel frame; bad
+// input is marked.
 func runFitFile(path string, stdin io.Reader, set registration.FitSettings, grid int) (*fitRun, error) {
-	data, name, err := readFile(path, stdin)
+	return runFitFileIn(path, stdin, set, grid, registration.Frame{}, panel.Vec{})
+}
+
+// runFitFileIn is runFitFile for targets in the frame fr; a target off a
+// panel of size (when not zero) is bad input naming its row.
+func runFitFileIn(path string, stdin io.Reader, set registration.FitSettings, grid int, fr registration.Frame, size panel.Vec) (*fitRun, error) {
+	ts, name, err := readTargets(path, stdin, fr, size)
 	if err != nil {
-		return nil, badInput(fmt.Errorf("measurement file: %w", err))
-	}
-	ts, err := registration.ReadTargets(strings.NewReader(string(data)), name)
-	if err != nil {
-		return nil, badInput(err)
+		return nil, err
 	}
 	for _, t := range ts {
 		if _, lower, rel := registration.SplitLayer(t.Layer); rel && lower == "" {
@@ -143,7 +173,11 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
 	}
-	r, err := runFitFile(args[0], std.in, set, f.grid)
+	fr, err := f.frame(size)
+	if err != nil {
+		return err
+	}
+	r, err := runFitFileIn(args[0], std.in, set, f.grid, fr, size)
 	if err != nil {
 		return err
 	}

@@ -1,11 +1,14 @@
 package main
 
 import (
+	"bytes"
 	"errors"
+	"fmt"
 	"io"
 	"io/fs"
 	"os"
 
+	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -42,4 +45,26 @@ func readFile(path string, stdin io.Reader) ([]byte, string, error) {
 	}
 	b, err := os.ReadFile(path)
 	return b, path, err
+}
+
+// readTargets reads a measurement file ("-" for stdin) with
+// registration.ReadTargets, maps it into the panel frame by fr and, for a
+// panel size that is not zero, refuses a target off the panel. Its errors
+// are bad input. It returns the name messages use for the file.
+func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) ([]registration.Target, string, error) {
+	data, name, err := readFile(path, stdin)
+	if err != nil {
+		return nil, name, badInput(fmt.Errorf("measurement file: %w", err))
+	}
+	ts, err := registration.ReadTargets(bytes.NewReader(data), name)
+	if err != nil {
+		return nil, name, badInput(err)
+	}
+	fr.Apply(ts)
+	if size.X > 0 && size.Y > 0 {
+		if err := registration.CheckOutline(ts, panel.Panel{Size: size}.Outline(), name); err != nil {
+			return nil, name, badInput(err)
+		}
+	}
+	return ts, name, nil
 }

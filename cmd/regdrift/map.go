@@ -45,7 +45,7 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
 	}
-	set, err := f.solver.settings()
+	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}

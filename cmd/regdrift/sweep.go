@@ -56,7 +56,7 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	set, err := f.solver.settings()
+	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}

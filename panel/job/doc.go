@@ -13,6 +13,24 @@
 // file: a shared stackup, fitted contributors, a compensation. A single table
 // ([panel], [stackup]) may be defined in one file only; arrays of tables
 // ([[section]], [[contributor]], ...) add up, the included files' first.
+// Includes nest at most MaxIncludeDepth deep. A file that includes itself
+// through a chain is an include cycle, reported with the chain
+// ("include cycle: a.toml → b.toml → a.toml"); a file included twice
+// without a cycle (a diamond: two files include one) is an error too,
+// "included twice", because its arrays and contributors would count twice.
+// Every file may start with a UTF-8 byte-order mark; a UTF-16 file is
+// refused by name (package textfile).
+//
+// # Plausibility
+//
+// Besides the checks of packages panel and section, values that are finite
+// but absurd are bad input naming their key: registration terms beyond
+// registration.MaxMovement, MaxRotation and MaxStrain (mean, sigma and
+// half-width alike, and site_sigma), directions beyond a full turn, and in
+// placement and residual files positions over panel.MaxPanelSize from the
+// centre; so no NaN or infinity reaches the solver or an output. A
+// section's design_offset and its traces' x say the same thing (the
+// nominal offset is their sum) and may not both be given.
 //
 // # Errors
 //
@@ -20,7 +38,9 @@
 // path ("section[0].traces[1].width"); its Err is one of ErrUnknownKey,
 // ErrMissing and ErrValue, or a *unit.Error for a value that does not parse,
 // so callers sort errors with errors.As and errors.Is. The line of every key
-// is found from the TOML syntax tree, inside this package. A bad placement
+// is found from the TOML syntax tree, inside this package; a decode error
+// of the TOML library is told in the file's terms (what the key takes,
+// what was found), never in Go type names. A bad placement
 // or residual CSV file is a *registration.CSVError naming the row and column.
 // What a program does with these (its exit status, say) is the program's
 // choice; nothing here names a command or a flag.

@@ -51,6 +51,7 @@ func FuzzParse(f *testing.F) {
 			if !inputError(err) {
 				t.Fatalf("error of an unexpected kind %T: %v", err, err)
 			}
+			checkNoGoNames(t, src, err)
 			return
 		}
 		if len(j.Sites) == 0 {
@@ -105,6 +106,16 @@ func FuzzReadPlacements(f *testing.F) {
 			}
 		}
 	})
+}
+
+// checkNoGoNames fails when a message shows a Go type name that the input
+// does not hold itself (a key may be named anything).
+func checkNoGoNames(t *testing.T, src string, err error) {
+	for _, g := range []string{"job.raw", "interface {}", "struct field"} {
+		if strings.Contains(err.Error(), g) && !strings.Contains(src, g) {
+			t.Fatalf("message shows a Go name (%q): %v", g, err)
+		}
+	}
 }
 
 func finite(v float64) bool { return v-v == 0 }

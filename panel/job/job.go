@@ -86,8 +86,16 @@ func Load(path string, stdin io.Reader) (*Job, error) {
 // are relative to. Its errors are those of Load.
 func Parse(data []byte, name, dir string) (*Job, error) {
 	j := &Job{File: name}
-	l := &loader{job: j, seen: map[string]bool{}}
-	if err := l.file(data, name, dir, 0); err != nil {
+	l := &loader{job: j, seen: map[string]string{}}
+	// The main file heads the chain of includes, so that a file including
+	// it is a cycle too; standard input has no path and cannot be included.
+	var chain []chainLink
+	if name != "<stdin>" {
+		if abs, err := filepath.Abs(filepath.Join(dir, filepath.Base(name))); err == nil {
+			chain = []chainLink{{abs, name}}
+		}
+	}
+	if err := l.file(data, name, dir, 0, chain); err != nil {
 		return nil, err
 	}
 	if err := l.finish(); err != nil {

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/regdrift/regdrift/panel/textfile"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/samples"
@@ -38,17 +39,26 @@ func TestLoadSamples(t *testing.T) {
 }
 
 // badCase is one entry of testdata/bad-input.json: an edit of
-// samples/same-core.toml that breaks it, and where the error must point.
+// samples/same-core.toml that breaks it, with the other files it needs, and
+// where the error must point.
 type badCase struct {
 	Name, Old, New string
 	Line           int
 	Key            string
-	Kind           string // the sentinel the error must wrap, if any
+	Kind           string            // the sentinel the error must wrap, if any
+	Main           string            // the file loaded; "" is bad.toml (the edited sample)
+	File           string            // the file the error names (base name); "" is the loaded file
+	Files          map[string]string // further files written beside bad.toml: includes, CSV files
+	Encodings      map[string]string // file → "utf-16le" or "utf-16be": the file is written so (bad.toml too)
+	Row            int               // for an error in a CSV file: its row ...
+	Column         string            // ... and column
+	Contains       string            // a phrase the message must hold
 }
 
 var kinds = map[string]error{"": nil, "ErrValue": ErrValue, "ErrUnknownKey": ErrUnknownKey, "ErrMissing": ErrMissing}
 
-// badInputs returns the corpus applied to the sample, as file contents.
+// badInputs returns the corpus, and bad.toml of each case (the sample with
+// its edit applied, in its encoding).
 func badInputs(t testing.TB) ([]badCase, []string) {
 	t.Helper()
 	b, err := os.ReadFile("testdata/bad-input.json")
@@ -71,30 +81,89 @@ func badInputs(t testing.TB) ([]badCase, []string) {
 		if _, ok := kinds[c.Kind]; !ok {
 			t.Fatalf("%s: unknown kind %q", c.Name, c.Kind)
 		}
-		files[i] = strings.Replace(string(base), c.Old, c.New, 1)
+		files[i] = encode(t, strings.Replace(string(base), c.Old, c.New, 1), c.Encodings["bad.toml"])
 	}
 	return cases, files
 }
 
+// encode writes s as UTF-16 with its byte-order mark, or leaves it UTF-8
+// for "".
+func encode(t testing.TB, s, enc string) string {
+	switch enc {
+	case "":
+		return s
+	case "utf-16le", "utf-16be":
+		return string(textfile.EncodeUTF16(s, enc == "utf-16be"))
+	}
+	t.Fatalf("unknown encoding %q", enc)
+	return ""
+}
+
+// writeCase writes bad.toml and the case's other files into dir and returns
+// the path of the file to load.
+func writeCase(t testing.TB, dir string, c badCase, bad string) string {
+	t.Helper()
+	if err := os.WriteFile(filepath.Join(dir, "bad.toml"), []byte(bad), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for name, text := range c.Files {
+		if err := os.WriteFile(filepath.Join(dir, name), []byte(encode(t, text, c.Encodings[name])), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	main := c.Main
+	if main == "" {
+		main = "bad.toml"
+	}
+	return filepath.Join(dir, main)
+}
+
+// goNames are fragments of Go type names, which no message may show.
+var goNames = []string{"job.raw", "interface {}", "main.", "[]string", "[]int"}
+
 // TestBadInput runs a corpus of broken job files: each must fail with a
-// *ParseError naming the file, the line and the key.
+// *ParseError naming the file, the line and the key, or a
+// *registration.CSVError naming the CSV file's row and column.
 func TestBadInput(t *testing.T) {
 	cases, files := badInputs(t)
 	for i, tt := range cases {
 		t.Run(tt.Name, func(t *testing.T) {
-			_, err := Parse([]byte(files[i]), "bad.toml", ".")
+			path := writeCase(t, t.TempDir(), tt, files[i])
+			_, err := Load(path, nil)
 			if err == nil {
 				t.Fatal("accepted")
 			}
-			var pe *ParseError
-			if !errors.As(err, &pe) {
-				t.Fatalf("not a ParseError: %v", err)
+			file := tt.File
+			if file == "" {
+				file = filepath.Base(path)
 			}
-			if pe.File != "bad.toml" || pe.Line != tt.Line || pe.Key != tt.Key {
-				t.Errorf("got file %q line %d key %q, want line %d key %q: %v", pe.File, pe.Line, pe.Key, tt.Line, tt.Key, err)
+			if tt.Row > 0 || tt.Column != "" {
+				var ce *registration.CSVError
+				if !errors.As(err, &ce) {
+					t.Fatalf("not a CSVError: %v", err)
+				}
+				if filepath.Base(ce.File) != file || ce.Row != tt.Row || ce.Column != tt.Column {
+					t.Errorf("got file %q row %d column %q, want %s row %d column %q: %v", ce.File, ce.Row, ce.Column, file, tt.Row, tt.Column, err)
+				}
+			} else {
+				var pe *ParseError
+				if !errors.As(err, &pe) {
+					t.Fatalf("not a ParseError: %v", err)
+				}
+				if filepath.Base(pe.File) != file || pe.Line != tt.Line || pe.Key != tt.Key {
+					t.Errorf("got file %q line %d key %q, want %s line %d key %q: %v", pe.File, pe.Line, pe.Key, file, tt.Line, tt.Key, err)
+				}
 			}
 			if k := kinds[tt.Kind]; k != nil && !errors.Is(err, k) {
 				t.Errorf("error %v is not %v", err, k)
+			}
+			if !strings.Contains(err.Error(), tt.Contains) {
+				t.Errorf("error %q does not say %q", err, tt.Contains)
+			}
+			for _, g := range goNames {
+				if strings.Contains(err.Error(), g) {
+					t.Errorf("error %q shows a Go name (%q)", err, g)
+				}
 			}
 		})
 	}

@@ -50,6 +50,44 @@ func (f *tomlFile) line(key string) int {
 	return 0
 }
 
+// keyAt returns the key path, with the indices of arrays of tables, of the
+// key parts (as go-toml gives them in an error, without indices) on line:
+// ["array", "count"] on line 12 is "array[1].count" when the second
+// [[array]] sets count there. It falls back to the parts joined by dots.
+func (f *tomlFile) keyAt(parts []string, line int) string {
+	dotted := strings.Join(parts, ".")
+	best := ""
+	for k, l := range f.lines {
+		if l != line || stripIndices(k) != dotted {
+			continue
+		}
+		if best == "" || k < best {
+			best = k
+		}
+	}
+	if best == "" {
+		return dotted
+	}
+	return best
+}
+
+// stripIndices removes the [i] of a key path: "array[1].count" is "array.count".
+func stripIndices(key string) string {
+	var b strings.Builder
+	depth := 0
+	for _, r := range key {
+		switch {
+		case r == '[':
+			depth++
+		case r == ']':
+			depth--
+		case depth == 0:
+			b.WriteRune(r)
+		}
+	}
+	return b.String()
+}
+
 // indexLines walks the TOML syntax tree and records the line on which each
 // key path starts: "panel.size", "section[1].traces[0].width", "stackup.layers[3].er".
 func indexLines(data []byte) map[string]int {

@@ -15,6 +15,7 @@ import (
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/panel/textfile"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -89,7 +90,12 @@ type rawSites struct {
 
 // parseTOML decodes one job file strictly, with line numbers in its errors.
 func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
-	f := &tomlFile{name: name, lines: indexLines(data)}
+	f := &tomlFile{name: name}
+	data, err := textfile.Decode(data)
+	if err != nil {
+		return nil, f, &ParseError{File: name, Line: 1, Err: err}
+	}
+	f.lines = indexLines(data)
 	var raw rawJob
 	dec := toml.NewDecoder(bytes.NewReader(data))
 	dec.DisallowUnknownFields()
@@ -98,15 +104,18 @@ func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
 		if errors.As(err, &se) && len(se.Errors) > 0 {
 			e := se.Errors[0]
 			row, _ := e.Position()
-			key := strings.Join(e.Key(), ".")
+			key := f.keyAt(e.Key(), row)
 			return nil, f, &ParseError{File: name, Line: row, Key: key, Err: fmt.Errorf("%w %q", ErrUnknownKey, key)}
 		}
 		var de *toml.DecodeError
 		if errors.As(err, &de) {
 			row, _ := de.Position()
-			return nil, f, &ParseError{File: name, Line: row, Key: strings.Join(de.Key(), "."), Err: errors.New(de.Error())}
+			return nil, f, &ParseError{File: name, Line: row, Key: f.keyAt(de.Key(), row), Err: decodeError(de.Error())}
 		}
-		return nil, f, &ParseError{File: name, Err: err}
+		return nil, f, &ParseError{File: name, Err: decodeError(err.Error())}
+	}
+	if err := checkKeyCase(f); err != nil {
+		return nil, f, err
 	}
 	return &raw, f, nil
 }
@@ -116,7 +125,7 @@ func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
 // [stackup]) may be defined in one file only.
 type loader struct {
 	job        *Job
-	seen       map[string]bool
+	seen       map[string]string // included files by absolute path: where they were included
 	title      string
 	panel      *rawPanel
 	panelSrc   source
@@ -133,10 +142,15 @@ type loader struct {
 	placements []panel.Placement
 }
 
-func (l *loader) file(data []byte, name, dir string, depth int) error {
-	if depth > 8 {
-		return &ParseError{File: name, Key: "include", Err: errors.New("includes nested more than 8 deep (a cycle?)")}
-	}
+// MaxIncludeDepth bounds how deep includes nest: a job that includes a
+// variant that includes a base that includes a shared stackup is four deep,
+// so 32 leaves room for any layering a person writes, and stops a generated
+// chain that runs away.
+const MaxIncludeDepth = 32
+
+// file reads one job file; chain holds the files that include it, outermost
+// first (their absolute paths and the names messages use).
+func (l *loader) file(data []byte, name, dir string, depth int, chain []chainLink) error {
 	raw, f, err := parseTOML(data, name)
 	if err != nil {
 		return err
@@ -149,15 +163,33 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 		if !filepath.IsAbs(p) {
 			p = filepath.Join(dir, inc)
 		}
-		if l.seen[p] {
-			return src.errf("", "%q is included twice", inc)
+		abs, err := filepath.Abs(p)
+		if err != nil {
+			abs = p
 		}
-		l.seen[p] = true
+		for k, c := range chain {
+			if c.abs == abs {
+				names := []string{}
+				for _, c := range chain[k:] {
+					names = append(names, c.name)
+				}
+				return src.errf("", "%w: include cycle: %s → %s", ErrValue, strings.Join(names, " → "), p)
+			}
+		}
+		if depth >= MaxIncludeDepth {
+			return src.errf("", "%w: includes nest more than %d deep (%s → %s)", ErrValue, MaxIncludeDepth, chainNames(chain), p)
+		}
+		if first, ok := l.seen[abs]; ok {
+			// A diamond (two files include one): its contributors and
+			// arrays would count twice and its [panel] clash with itself.
+			return src.errf("", "%w: %q is included twice (also at %s); include it once, from the file that needs it first", ErrValue, inc, first)
+		}
+		l.seen[abs] = fmt.Sprintf("%s:%d", f.name, f.line(src.key))
 		b, err := os.ReadFile(p)
 		if err != nil {
 			return src.err("", err)
 		}
-		if err := l.file(b, p, filepath.Dir(p), depth+1); err != nil {
+		if err := l.file(b, p, filepath.Dir(p), depth+1, append(chain[:len(chain):len(chain)], chainLink{abs, p})); err != nil {
 			return err
 		}
 	}
@@ -203,11 +235,37 @@ func (l *loader) file(data []byte, name, dir string, depth int) error {
 		}
 		pl, err := readPlacementFile(p)
 		if err != nil {
-			return err
+			var ce *registration.CSVError
+			if errors.As(err, &ce) {
+				return err
+			}
+			// The file cannot be read: say which job line names it.
+			return src.err("file", err)
 		}
 		l.placements = append(l.placements, pl...)
 	}
 	return nil
+}
+
+// checkTurn refuses a direction beyond a full turn either way: no layout
+// needs one, and "90 rad" typed for "90 deg" is caught (the direction of a
+// huge angle is also only as good as its rounding).
+func checkTurn(a float64) error {
+	if math.Abs(a) <= 2*math.Pi*(1+1e-12) {
+		return nil
+	}
+	return fmt.Errorf("%w: %.6g deg is more than a full turn (at most ±360 deg)", ErrValue, a/unit.Degree)
+}
+
+// chainLink is one file of a chain of includes.
+type chainLink struct{ abs, name string }
+
+// chainNames writes the first and last files of a long chain of includes.
+func chainNames(chain []chainLink) string {
+	if len(chain) == 0 {
+		return "<stdin>"
+	}
+	return fmt.Sprintf("%s → ... → %s", chain[0].name, chain[len(chain)-1].name)
 }
 
 // quantity converts a job-file value of kind k; a missing value is an error
@@ -225,7 +283,7 @@ func quantity(src source, key string, v any, k unit.Kind, def *float64) (float64
 		case int64, float64:
 			return 0, src.err(key, fmt.Errorf("%w: %v needs a unit: write it as a string such as \"%v %s\" (%s)", ErrValue, v, v, firstUnit(k), unit.Accepted(k)))
 		}
-		return 0, src.err(key, fmt.Errorf("%w: want a %s such as \"1 %s\", got %T", ErrValue, k, firstUnit(k), v))
+		return 0, src.err(key, fmt.Errorf("%w: want a %s such as \"1 %s\", not a TOML %s", ErrValue, k, firstUnit(k), tomlKind(v)))
 	}
 	x, err := unit.Parse(s, k)
 	if err != nil {
@@ -272,7 +330,7 @@ func number(src source, key string, v any) (float64, bool, error) {
 		}
 		return x, true, nil
 	}
-	return 0, false, src.err(key, fmt.Errorf("%w: want a plain number, got %v", ErrValue, v))
+	return 0, false, src.err(key, fmt.Errorf("%w: want a plain number, not a TOML %s", ErrValue, tomlKind(v)))
 }
 
 func (l *loader) finish() error {
@@ -328,6 +386,11 @@ func (l *loader) layoutErr(err error) error {
 		i, rest := splitIndex(key, "array[")
 		src = l.arraySrc[i]
 		key = rest
+		var oe *panel.OverlapError
+		if errors.As(fe.Err, &oe) && oe.A.Array >= 0 && oe.A.Array < len(l.arraySrc) {
+			o := l.arraySrc[oe.A.Array]
+			return src.err(key, fmt.Errorf("%w (the [[array]] at %s:%d)", fe.Err, o.f.name, o.f.line(o.key)))
+		}
 	case strings.HasPrefix(key, "part["):
 		i, rest := splitIndex(key, "part[")
 		src = l.partSrc[i]
@@ -432,6 +495,24 @@ func (l *loader) buildStackup() error {
 	return nil
 }
 
+// stackupKey turns the key of a section.FieldError within the stackup into
+// the job file's: a dielectric's thickness is written as its core = or
+// prepreg = value ("layers[3].thickness" is "layers[3].prepreg").
+func (l *loader) stackupKey(key string) string {
+	rest, ok := strings.CutSuffix(key, ".thickness")
+	if !ok || !strings.HasPrefix(rest, "layers[") {
+		return key
+	}
+	i, _ := splitIndex(rest, "layers[")
+	if i < 0 || i >= len(l.job.Stackup.Layers) {
+		return key
+	}
+	if ly := l.job.Stackup.Layers[i]; ly.Kind == section.Dielectric {
+		return rest + "." + map[bool]string{true: "core", false: "prepreg"}[ly.Core]
+	}
+	return key
+}
+
 func (l *loader) buildSections() error {
 	j := l.job
 	seen := map[string]bool{}
@@ -493,6 +574,19 @@ func (l *loader) buildSections() error {
 		if s.ZRef, err = quantity(src, "z_ref", rs.ZRef, unit.Impedance, &fifty); err != nil {
 			return err
 		}
+		// The nominal offset is x of the upper trace minus x of the lower
+		// plus design_offset (section.NominalOffset): one quantity said two
+		// ways. Given both, one would silently move the other, so a section
+		// says it once.
+		if rs.DesignOffset != nil {
+			for k, rt := range rs.Traces {
+				if rt.X != nil {
+					xk := fmt.Sprintf("traces[%d].x", k)
+					return src.errf("design_offset", "%w: give the intended offset once, as design_offset or as the traces' x, not both (%s is set on line %d)",
+						ErrValue, src.key+"."+xk, src.f.line(src.key+"."+xk))
+				}
+			}
+		}
 		if s.DesignOffset, err = quantity(src, "design_offset", rs.DesignOffset, unit.Length, &zero); err != nil {
 			return err
 		}
@@ -514,7 +608,7 @@ func (l *loader) buildSections() error {
 			var fe *section.FieldError
 			if errors.As(err, &fe) {
 				if strings.HasPrefix(fe.Key, "stackup.") {
-					return l.stackupSrc.err(strings.TrimPrefix(fe.Key, "stackup."), fmt.Errorf("section %q: %w", s.Name, fe.Err))
+					return l.stackupSrc.err(l.stackupKey(strings.TrimPrefix(fe.Key, "stackup.")), fmt.Errorf("section %q: %w", s.Name, fe.Err))
 				}
 				return src.err(fe.Key, fe.Err)
 			}
@@ -545,6 +639,9 @@ func (l *loader) buildLayout() error {
 			a, err := quantity(src, key+".angle", rc.Angle, unit.Angle, &zero)
 			if err != nil {
 				return err
+			}
+			if err := checkTurn(a); err != nil {
+				return src.err(key+".angle", err)
 			}
 			if rc.Section == "" {
 				return src.errf(key+".section", "%w: each coupler names its section", ErrMissing)
@@ -587,6 +684,9 @@ func (l *loader) buildLayout() error {
 		rot, err := quantity(src, "rotate", ra.Rotate, unit.Angle, &zero)
 		if err != nil {
 			return err
+		}
+		if err := checkTurn(rot); err != nil {
+			return src.err("rotate", err)
 		}
 		deg := rot * 180 / math.Pi
 		q := math.Round(deg / 90)
@@ -671,6 +771,9 @@ func (l *loader) buildModel() error {
 				if x < 0 {
 					return src.errf(k, "%w: site_sigma must be non-negative", ErrValue)
 				}
+				if err := registration.CheckTerm(x, unit.Length); err != nil {
+					return src.err(k, fmt.Errorf("%w: %w", ErrValue, err))
+				}
 				c.SiteSigma = x
 			case "residual":
 				s, ok := v.(string)
@@ -729,7 +832,13 @@ func parseTerm(src source, key string, v any, k unit.Kind) (registration.Term, e
 	switch x := v.(type) {
 	case string, int64, float64:
 		mean, err := quantity(src, key, x, k, nil)
-		return registration.Term{Mean: mean}, err
+		if err != nil {
+			return registration.Term{}, err
+		}
+		if err := registration.CheckTerm(mean, k); err != nil {
+			return registration.Term{}, src.err(key, fmt.Errorf("%w: %w", ErrValue, err))
+		}
+		return registration.Term{Mean: mean}, nil
 	case map[string]any:
 		zero := 0.0
 		for kk := range x {
@@ -777,6 +886,14 @@ func parseTerm(src source, key string, v any, k unit.Kind) (registration.Term, e
 		}
 		if t.Spread < 0 {
 			return registration.Term{}, src.errf(key, "%w: sigma and half_width must be non-negative", ErrValue)
+		}
+		for _, b := range []struct {
+			key string
+			v   float64
+		}{{".mean", t.Mean}, {map[bool]string{true: ".half_width", false: ".sigma"}[dist == "uniform"], t.Spread}} {
+			if err := registration.CheckTerm(b.v, k); err != nil {
+				return registration.Term{}, src.err(key+b.key, fmt.Errorf("%w: %w", ErrValue, err))
+			}
 		}
 		return t, nil
 	}

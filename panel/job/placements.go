@@ -1,7 +1,7 @@
 package job
 
 import (
-	"encoding/csv"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -21,12 +21,16 @@ import (
 // are *registration.CSVError values naming the row and column. The sections
 // are not checked here: the job that reads the file knows them.
 func ReadPlacements(r io.Reader, file string) ([]panel.Placement, error) {
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
+	cr, err := registration.NewCSVReader(r, file)
+	if err != nil {
+		return nil, err
+	}
 	header, err := cr.Read()
 	if err != nil {
-		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
+		if err == io.EOF {
+			return nil, &registration.CSVError{File: file, Row: 1, Err: errors.New("the file is empty (want a header such as \"name,x [in],y [in],angle [deg],section\")")}
+		}
+		return nil, registration.ReadError(file, err)
 	}
 	idx, cols, err := unit.ParseHeader(header, map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "angle": unit.Angle})
 	if err != nil {
@@ -44,17 +48,23 @@ func ReadPlacements(r io.Reader, file string) ([]panel.Placement, error) {
 			break
 		}
 		if err != nil {
-			// A *csv.ParseError carries its own line; FieldPos is only valid
-			// after a successful read.
-			return nil, &registration.CSVError{File: file, Err: err}
+			// FieldPos is only valid after a successful read.
+			return nil, registration.ReadError(file, err)
 		}
 		line, _ := cr.FieldPos(0)
 		var v [3]float64
 		for k, name := range []string{"x", "y", "angle"} {
 			c := idx[name]
-			if v[k], err = registration.Cell(file, line, cols[c], rec[c]); err != nil {
+			cell := registration.PositionCell
+			if name == "angle" {
+				cell = registration.Cell
+			}
+			if v[k], err = cell(file, line, cols[c], rec[c]); err != nil {
 				return nil, err
 			}
+		}
+		if err := checkTurn(v[2]); err != nil {
+			return nil, &registration.CSVError{File: file, Row: line, Column: "angle", Err: err}
 		}
 		out = append(out, panel.Placement{Name: rec[idx["name"]], Section: rec[idx["section"]],
 			At: panel.Vec{X: v[0], Y: v[1]}, Angle: v[2], File: file, Row: line})

@@ -15,9 +15,21 @@ type Column struct {
 
 // ParseHeader reads the header cells "name [unit]" of a CSV file. kinds gives
 // the unit kind of each column that needs one; other columns may not carry a
-// unit. It returns the index of each column by name and the parsed columns in
-// header order. A byte-order mark before the first cell is ignored.
+// unit. Column names match whatever their case ("X [in]" is column x; the
+// names returned are lower case); unit names keep theirs, since case tells
+// mHz from MHz. It returns the index of each column by name and the parsed
+// columns in header order. A byte-order mark before the first cell is
+// ignored. A header that is one cell holding semicolons or tabs is a file
+// with another separator (a spreadsheet's export with decimal commas, say),
+// and is reported as such.
 func ParseHeader(header []string, kinds map[string]Kind) (map[string]int, []Column, error) {
+	if len(header) == 1 {
+		for _, sep := range []struct{ r, name string }{{";", "semicolons"}, {"\t", "tabs"}} {
+			if strings.Contains(header[0], sep.r) {
+				return nil, nil, fmt.Errorf("expected comma-separated columns (this file uses %s)", sep.name)
+			}
+		}
+	}
 	idx := map[string]int{}
 	cols := make([]Column, len(header))
 	for i, h := range header {
@@ -30,6 +42,7 @@ func ParseHeader(header []string, kinds map[string]Kind) (map[string]int, []Colu
 			}
 			name, u = strings.TrimSpace(h[:a]), strings.TrimSpace(h[a+1:b])
 		}
+		name = strings.ToLower(name)
 		c := Column{Name: name, Unit: u, Factor: 1}
 		if k, ok := kinds[name]; ok {
 			if u == "" {

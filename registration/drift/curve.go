@@ -116,6 +116,7 @@ func SolveSection(ctx context.Context, s *section.Section, reach float64, set *S
 		if err != nil {
 			return nil, fmt.Errorf("section %q: %w", s.Name, err)
 		}
+		set.warnCache(sc)
 		lo, hi := sc.Range()
 		c := &Curve{Section: s, Curve: sc, FromCache: hit, Nominal: sc.Coupling(nom)}
 		iv, lim, err := registration.SpecInterval(sc.Coupling, lo, hi, nom, s.Spec.Coupling, s.Spec.Tolerance)
@@ -147,5 +148,7 @@ func SolveSection(ctx context.Context, s *section.Section, reach float64, set *S
 // choosing; hit reports a cache hit.
 func SolveAt(ctx context.Context, s *section.Section, offsets []float64, set *Settings) (c *section.Curve, hit bool, err error) {
 	dir, noCache := set.cache()
-	return section.CachedSweep(ctx, s, offsets, set.Solver(), dir, noCache)
+	c, hit, err = section.CachedSweep(ctx, s, offsets, set.Solver(), dir, noCache)
+	set.warnCache(c)
+	return c, hit, err
 }

@@ -56,6 +56,20 @@ type Settings struct {
 	NoCache bool
 	// Workers is the number of parallel solves in a sweep; 0 means one per CPU.
 	Workers int
+	// CacheWarning, if not nil, receives each *section.CacheWarning of a
+	// solve (a damaged entry recomputed, an entry that could not be written):
+	// the solve itself succeeded, so these are not errors. Nil drops them.
+	CacheWarning func(error)
+}
+
+// warnCache passes the cache warnings of c to s.CacheWarning.
+func (s *Settings) warnCache(c *section.Curve) {
+	if s == nil || s.CacheWarning == nil || c == nil {
+		return
+	}
+	for _, w := range c.CacheWarnings {
+		s.CacheWarning(w)
+	}
 }
 
 // Solver returns the settings of the cross-section solver.
