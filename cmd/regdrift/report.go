@@ -65,7 +65,7 @@ func (f *reportFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	set, err := f.solver.settings()
+	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}
