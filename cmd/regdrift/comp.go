@@ -117,22 +117,8 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		if err != nil {
 			return err
 		}
-		copper := map[string]bool{}
-		for _, l := range j.Stackup.Layers {
-			if l.Kind == section.Copper {
-				copper[l.Name] = true
-			}
-		}
 		var lots []registration.Lot
-		for _, l := range fr.Lots {
-			u, lo, rel := registration.SplitLayer(l.Layer)
-			if !copper[u] || (rel && !copper[lo]) {
-				fmt.Fprintf(std.err, "regdrift comp: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", fr.File, l.Layer, j.File)
-				continue
-			}
-			lots = append(lots, l)
-			fitted = append(fitted, l.Layer)
-		}
+		lots, fitted = measuredLots(std, "comp", j, fr)
 		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
 	}
 	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
@@ -202,4 +188,28 @@ func printComp(w io.Writer, title string, cmp *drift.Comparison, s *drift.CompSu
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
 	}
+}
+
+// measuredLots returns the lots of fr whose layers (both, for a pair) are
+// copper layers of j, and their names; the others are skipped with a
+// warning from command cmd.
+func measuredLots(std stdio, cmd string, j *Job, fr *fitRun) ([]registration.Lot, []string) {
+	copper := map[string]bool{}
+	for _, l := range j.Stackup.Layers {
+		if l.Kind == section.Copper {
+			copper[l.Name] = true
+		}
+	}
+	var lots []registration.Lot
+	var names []string
+	for _, l := range fr.Lots {
+		u, lo, rel := registration.SplitLayer(l.Layer)
+		if !copper[u] || (rel && !copper[lo]) {
+			fmt.Fprintf(std.err, "regdrift %s: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", cmd, fr.File, l.Layer, j.File)
+			continue
+		}
+		lots = append(lots, l)
+		names = append(names, l.Layer)
+	}
+	return lots, names
 }

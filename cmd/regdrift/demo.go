@@ -126,6 +126,9 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 			}
 		}
 		fmt.Fprintf(std.out, "  images %s\n", strings.Join(pngs(out), ", "))
+		if err := demoReport(ctx, std, filepath.Join(dir, dj.file), demoTargets(dir, dj.targets), out, set, f.width); err != nil {
+			return err
+		}
 	}
 	return nil
 }

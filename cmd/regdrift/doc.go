@@ -18,6 +18,7 @@ The commands are:
 	fit      fit each layer's movement (offset, rotation, scale, skew) to measured registration targets
 	comp     recommend per-layer artwork scale compensation that minimises the broadside offsets
 	yield    coupler and part yield across panels, and the error budget
+	report   write one self-contained HTML report of a job: maps, plots, tables and inputs
 	version  print the version, module version and VCS revision
 
 Run 'regdrift COMMAND -h' for a command's flags.
@@ -219,6 +220,26 @@ section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
 site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
 (per site p_closed, p_mc and its standard error), budget.csv, budget.png and
 yield.json, and a summary table to stdout.
+
+# report
+
+Usage:
+
+	regdrift report JOB [--targets TARGETS.csv] [-o DIR] [--units mil|um] [--trials N] [--seed S] [--width PX] [--json]
+
+Write one self-contained HTML report of a job: maps, plots, tables and inputs.
+
+Analyses the job as map, sweep, yield and tol do (and, with --targets, as fit
+and comp do) and writes report.html, nothing else, to the output directory: a
+headline (title, date, version, solver accuracy, expected parts in spec per
+panel, the worst section), coupling against offset per section with the spec
+band, the panel map with the ten worst sites, the yield and parts maps, the
+error budget, the drawing tolerance, the fit and compensation with --targets,
+the assumptions and cautions, and the job file with every file it includes,
+verbatim. Pictures, styles and a small script are inside the file: it opens
+offline in a current browser and prints on A4 or Letter. Pointing at a site
+on the panel map shows its name, position, offset, coupling, drift, margin
+and probability of being in spec; the search box finds a site by name.
 
 # version
 

@@ -10,7 +10,7 @@ import (
 
 // bigJob returns the same-core demo stackup and error model with 100 x 50
 // parts of two couplers each: 10,000 sites on an 18 x 24 in panel.
-func bigJob(b *testing.B) string {
+func bigJob(b testing.TB) string {
 	src, err := os.ReadFile("../../samples/same-core.toml")
 	if err != nil {
 		b.Fatal(err)

@@ -23,9 +23,18 @@ type Job struct {
 	Stackup   section.Stackup
 	Sections  []*section.Section // in file order
 	Model     *registration.Model
+	// Sources are the job files read, each with its bytes as read: the
+	// main file first, then its includes in the order they were read.
+	Sources []Source
 	// sectionSrc is the source of each section, parallel to Sections, so that
 	// a solver error can name its file line.
 	sectionSrc []source
+}
+
+// Source is one job file as it was read.
+type Source struct {
+	Name string // as in messages: the main file as named, an include joined to its directory
+	Data []byte
 }
 
 // Section returns the section named name, or nil.

@@ -204,6 +204,12 @@ func TestInclude(t *testing.T) {
 	if len(j.Model.Contributors) != 3 {
 		t.Fatalf("%d contributors", len(j.Model.Contributors))
 	}
+	// Sources hold the files as read, the main one first.
+	main := "include = [\"contrib.toml\"]\n" + s[:i]
+	if len(j.Sources) != 2 || j.Sources[0].Name != filepath.Join(dir, "job.toml") || string(j.Sources[0].Data) != main ||
+		j.Sources[1].Name != filepath.Join(dir, "contrib.toml") || string(j.Sources[1].Data) != s[i:] {
+		t.Errorf("sources %d, want job.toml and contrib.toml as written", len(j.Sources))
+	}
 	// An error in the included file names that file and its line.
 	bad := strings.Replace(s[i:], `rotation   = { sigma = "8 urad" }`, `rotaton   = { sigma = "8 urad" }`, 1)
 	os.WriteFile(filepath.Join(dir, "contrib.toml"), []byte(bad), 0o644)

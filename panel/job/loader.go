@@ -155,6 +155,7 @@ func (l *loader) file(data []byte, name, dir string, depth int, chain []chainLin
 	if err != nil {
 		return err
 	}
+	l.job.Sources = append(l.job.Sources, Source{Name: name, Data: data})
 	f.dir = dir
 	for i, inc := range raw.Include {
 		src := source{f, fmt.Sprintf("include[%d]", i)}

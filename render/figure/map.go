@@ -113,9 +113,17 @@ func scaleFor(lo, hi float64, badLow bool) (*render.Palette, float64, float64) {
 // the panel, a bar per site along its lines in its own colour, and the worst
 // sites of sum ringed and numbered.
 func Map(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions) error {
+	_, err := MapView(w, a, sum, o)
+	return err
+}
+
+// MapView draws the map as Map does and returns the view the panel is drawn
+// in, so that the caller can tell where each site is in the picture
+// (View.Pixel): the report's site look-up.
+func MapView(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions) (*render.View, error) {
 	o, s, err := o.norm()
 	if err != nil {
-		return err
+		return nil, err
 	}
 	in, u := a.In, o.Units
 	zones := a.Zones()
@@ -154,5 +162,5 @@ func Map(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions) er
 	}
 	v.Markers(ms)
 	m.ColorBar(pal, lo, hi, s.label)
-	return m.EncodePNG(w)
+	return v, m.EncodePNG(w)
 }
