@@ -1,0 +1,129 @@
+package history
+
+import (
+	"bufio"
+	"encoding/csv"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
+)
+
+// TermUnit returns the unit a term is written in: mil for offsets, urad for
+// rotation, ppm for scales and skew.
+func TermUnit(k registration.TermKind) (unit.Kind, string) {
+	switch k {
+	case registration.OffsetX, registration.OffsetY:
+		return unit.Length, "mil"
+	case registration.Rotation:
+		return unit.Angle, "urad"
+	}
+	return unit.Strain, "ppm"
+}
+
+func fixed(v float64, kind unit.Kind, u string, dec int) string {
+	if math.IsNaN(v) {
+		return ""
+	}
+	return strconv.FormatFloat(unit.In(v, kind, u), 'f', dec, 64)
+}
+
+// signalText lists signals with the lots they fell on.
+func signalText(sg []Signal, pts []Point) string {
+	var parts []string
+	for _, s := range sg {
+		parts = append(parts, s.Rule.Short()+" at lot "+pts[s.Index].Lot)
+	}
+	return strings.Join(parts, "; ")
+}
+
+// WriteTableCSV writes the scale table as CSV with units in the header.
+func WriteTableCSV(w io.Writer, rows []TableRow, series []Series) error {
+	cw := csv.NewWriter(w)
+	cw.Write([]string{"construction", "role", "axis", "layers", "lots", "last_lot", "last_date",
+		"movement [ppm]", "setting [ppm]", "factor", "se [ppm]", "lot_sigma [ppm]", "within_sd [ppm]", "shift"})
+	pts := map[[2]string][]Point{}
+	for i := range series {
+		pts[[2]string{series[i].Construction, series[i].Role}] = series[i].Points
+	}
+	for _, r := range rows {
+		cw.Write([]string{r.Construction, r.Role, r.Axis, strings.Join(r.Layers, " "), strconv.Itoa(r.Lots), r.LastLot, r.LastDate,
+			fixed(r.Movement, unit.Strain, "ppm", 2), fixed(r.Setting, unit.Strain, "ppm", 2),
+			strconv.FormatFloat(1+r.Setting, 'f', 9, 64), fixed(r.SE, unit.Strain, "ppm", 2),
+			fixed(r.LotSigma, unit.Strain, "ppm", 2), fixed(r.WithinSD, unit.Strain, "ppm", 2),
+			signalText(r.Signals, pts[[2]string{r.Construction, r.Role}])})
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// WriteContributors writes the scale table as [[contributor]] blocks a job
+// can include: per construction and role, the estimated material movement
+// of the next lot as the mean of scale_x and scale_y, and as sigma the
+// spread of one panel about it, √(σ_lot² + σ_within²) — the lot-to-lot
+// standard deviation of the lot means and the pooled panel-to-panel one
+// within a lot (σ_lot already holds σ_within²/n of the lot mean, so the sum
+// overstates the spread slightly for lots of few panels).
+func WriteContributors(w io.Writer, rows []TableRow, db string) error {
+	bw := bufio.NewWriter(w)
+	fmt.Fprintf(bw, "# Material movement from the registration history %s, written by regdrift.\n", db)
+	bw.WriteString("# Each contributor is one construction and layer role: mean = the EWMA estimate of\n" +
+		"# the next lot's movement (the applied artwork scale taken out), sigma = the spread of\n" +
+		"# one panel about it (lot to lot and panel to panel). Layers of one role share the\n" +
+		"# term (they move together); different roles are independent here. Include this\n" +
+		"# file from a job (include = [\"FILE\"]), leave out the job's own movement\n" +
+		"# contributors for these layers, and rename the layers to the job's if they differ.\n")
+	for i := 0; i+1 < len(rows); i += 2 {
+		x, y := rows[i], rows[i+1]
+		fmt.Fprintf(bw, "\n[[contributor]]\n")
+		fmt.Fprintf(bw, "name   = %s\n", strconv.Quote(fmt.Sprintf("history: %s, %s (%d lots to %s)", x.Construction, x.Role, x.Lots, x.LastDate)))
+		q := make([]string, len(x.Layers))
+		for j, l := range x.Layers {
+			q[j] = strconv.Quote(l)
+		}
+		fmt.Fprintf(bw, "layers = [%s]\n", strings.Join(q, ", "))
+		for _, r := range []TableRow{x, y} {
+			sigma := math.Hypot(nan0(r.LotSigma), r.WithinSD)
+			fmt.Fprintf(bw, "scale_%s = { mean = \"%s ppm\", sigma = \"%s ppm\" }   # lot to lot %s ppm, within a lot %s ppm\n", r.Axis,
+				fixed(r.Movement, unit.Strain, "ppm", 2), fixed(sigma, unit.Strain, "ppm", 2),
+				fixed(nan0(r.LotSigma), unit.Strain, "ppm", 2), fixed(r.WithinSD, unit.Strain, "ppm", 2))
+		}
+	}
+	return bw.Flush()
+}
+
+func nan0(v float64) float64 {
+	if math.IsNaN(v) {
+		return 0
+	}
+	return v
+}
+
+// WriteCSV writes the trend: one row per lot with the lot mean, the
+// within-lot spread, the individuals and EWMA limits and the signals.
+func (t *Trend) WriteCSV(w io.Writer) error {
+	kind, u := TermUnit(t.Term)
+	name := t.Term.String()
+	cw := csv.NewWriter(w)
+	h := func(s string) string { return s + " [" + u + "]" }
+	cw.Write([]string{"lot", "date", "fits", h(name), h("within_sd"), h("centre"), h("ucl"), h("lcl"), h("ewma"), h("ewma_ucl"), h("ewma_lcl"), "signals"})
+	j := 0
+	for i, p := range t.Series.Points {
+		var rules []string
+		for j < len(t.Signals) && t.Signals[j].Index == i {
+			rules = append(rules, t.Signals[j].Rule.Short())
+			j++
+		}
+		cw.Write([]string{p.Lot, p.Date, strconv.Itoa(p.N),
+			fixed(t.Values[i], kind, u, 3), fixed(p.SD[t.Term], kind, u, 3),
+			fixed(t.Chart.Centre, kind, u, 3), fixed(t.Chart.UCL, kind, u, 3), fixed(t.Chart.LCL, kind, u, 3),
+			fixed(t.EWMA.Z[i], kind, u, 3), fixed(t.EWMA.UCL[i], kind, u, 3), fixed(t.EWMA.LCL[i], kind, u, 3),
+			strings.Join(rules, " ")})
+	}
+	cw.Flush()
+	return cw.Error()
+}
