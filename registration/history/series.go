@@ -69,15 +69,12 @@ func (d *DB) Series(ctx context.Context, f Filter, terms ...registration.TermKin
 			args = append(args, c.v)
 		}
 	}
-	q := "SELECT s.construction, s.role, s.layer, s.lot_id, l.name, s.date, s.panels" + cols.String() +
-		" FROM lot_layer s JOIN lot l ON l.id = s.lot_id"
+	q := "SELECT s.construction, s.role, s.layer, s.lot_id, s.lot, s.date, s.panels" + cols.String() +
+		" FROM lot_layer s"
 	if len(where) > 0 {
 		q += " WHERE " + strings.Join(where, " AND ")
 	}
-	q += " ORDER BY s.construction, s.role, s.date, s.lot_id"
-	if f.Layer != "" {
-		q += ", s.layer"
-	}
+	q += " ORDER BY s.construction, s.role, s.date, s.lot_id, s.layer"
 	rows, err := d.db.QueryContext(ctx, q, args...)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", d.path, err)

@@ -78,7 +78,9 @@ func Open(ctx context.Context, path string) (*DB, error) {
 	// write lock at once and waits for it under the busy timeout, instead of
 	// failing when a read lock cannot be upgraded (SQLite, "File Locking And
 	// Concurrency in SQLite Version 3", and the WAL notes on SQLITE_BUSY).
-	dsn := fmt.Sprintf("%s?_pragma=busy_timeout(%d)&_txlock=immediate", path, busyTimeout.Milliseconds())
+	// A 64 MB page cache per connection keeps the chart tables of a large
+	// history in memory between queries (the default is 2 MB).
+	dsn := fmt.Sprintf("%s?_pragma=busy_timeout(%d)&_pragma=cache_size(-65536)&_txlock=immediate", path, busyTimeout.Milliseconds())
 	db, err := sql.Open("sqlite", dsn)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
@@ -212,21 +214,26 @@ var migrations = [][]string{
 		// Per lot and layer, the mean and sample standard deviation over the
 		// panels of each term of the material movement (the measured scale
 		// with the applied artwork scale taken out): what the charts and the
-		// scale table read, so that they need not scan every fit.
+		// scale table read, so that they need not scan every fit. The lot's
+		// name and date are repeated here so that a chart reads one table.
 		`CREATE TABLE lot_layer (
-			lot_id       INTEGER NOT NULL REFERENCES lot (id),
-			layer        TEXT NOT NULL,
 			construction TEXT NOT NULL,
 			role         TEXT NOT NULL,
 			date         TEXT NOT NULL,
+			lot_id       INTEGER NOT NULL REFERENCES lot (id),
+			layer        TEXT NOT NULL,
+			lot          TEXT NOT NULL,
 			panels       INTEGER NOT NULL,
 			mean_offset_x REAL NOT NULL, mean_offset_y REAL NOT NULL, mean_rotation REAL NOT NULL,
 			mean_scale_x  REAL NOT NULL, mean_scale_y  REAL NOT NULL, mean_skew     REAL NOT NULL,
 			sd_offset_x REAL NOT NULL, sd_offset_y REAL NOT NULL, sd_rotation REAL NOT NULL,
 			sd_scale_x  REAL NOT NULL, sd_scale_y  REAL NOT NULL, sd_skew     REAL NOT NULL,
-			PRIMARY KEY (lot_id, layer)
+			PRIMARY KEY (construction, role, date, lot_id, layer)
 		) WITHOUT ROWID`,
-		`CREATE INDEX lot_layer_by_construction ON lot_layer (construction, role, date, lot_id)`,
+		// The key above stores the rows in the order the charts read them
+		// (a series is one range of the table, read straight through);
+		// this index keeps (lot, layer) unique and finds a lot's rows.
+		`CREATE UNIQUE INDEX lot_layer_by_lot ON lot_layer (lot_id, layer)`,
 	},
 }
 
@@ -407,8 +414,31 @@ func (d *DB) addLots(ctx context.Context, lots []*Lot, replace bool) error {
 
 // writer holds the prepared statements of one transaction that adds lots.
 type writer struct {
-	find, lot, fit, sum *sql.Stmt
-	del                 []*sql.Stmt
+	tx             *sql.Tx
+	find, lot, sum *sql.Stmt
+	del            []*sql.Stmt
+	fits           map[int]*sql.Stmt // INSERT of n fit rows, by n
+}
+
+// fitBatch is the most fit rows one INSERT writes: one statement per 64
+// rows instead of one per row cuts the per-statement cost of database/sql
+// and the driver, which is most of an add (27 values a row, 1728 a
+// statement, far below SQLite's limit of 32766).
+const fitBatch = 64
+
+// fitStmt returns the prepared INSERT of n fit rows.
+func (w *writer) fitStmt(ctx context.Context, n int) (*sql.Stmt, error) {
+	if s := w.fits[n]; s != nil {
+		return s, nil
+	}
+	row := "(" + strings.TrimSuffix(strings.Repeat("?, ", 27), ", ") + ")"
+	q := "INSERT INTO fit (" + fitColumns + ") VALUES " + strings.TrimSuffix(strings.Repeat(row+", ", n), ", ")
+	s, err := w.tx.PrepareContext(ctx, q)
+	if err != nil {
+		return nil, err
+	}
+	w.fits[n] = s
+	return s, nil
 }
 
 const fitColumns = `lot_id, seq, panel, layer, construction, role, model, targets, dof,
@@ -417,7 +447,7 @@ const fitColumns = `lot_id, seq, panel, layer, construction, role, model, target
 	sigma0, rms_residual, max_residual, outliers, applied_scale_x, applied_scale_y`
 
 func newWriter(ctx context.Context, tx *sql.Tx) (*writer, error) {
-	w := &writer{}
+	w := &writer{tx: tx, fits: map[int]*sql.Stmt{}}
 	var err error
 	prep := func(q string) *sql.Stmt {
 		if err != nil {
@@ -429,11 +459,10 @@ func newWriter(ctx context.Context, tx *sql.Tx) (*writer, error) {
 	}
 	w.find = prep("SELECT id FROM lot WHERE name = ?")
 	w.lot = prep("INSERT INTO lot (name, date) VALUES (?, ?)")
-	w.fit = prep("INSERT INTO fit (" + fitColumns + ") VALUES (" + strings.TrimSuffix(strings.Repeat("?, ", 27), ", ") + ")")
-	w.sum = prep(`INSERT INTO lot_layer (lot_id, layer, construction, role, date, panels,
+	w.sum = prep(`INSERT INTO lot_layer (lot_id, layer, construction, role, date, lot, panels,
 		mean_offset_x, mean_offset_y, mean_rotation, mean_scale_x, mean_scale_y, mean_skew,
 		sd_offset_x, sd_offset_y, sd_rotation, sd_scale_x, sd_scale_y, sd_skew)
-		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+		VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
 	for _, t := range []string{"fit", "lot_layer", "lot"} {
 		col := "lot_id"
 		if t == "lot" {
@@ -449,10 +478,13 @@ func newWriter(ctx context.Context, tx *sql.Tx) (*writer, error) {
 }
 
 func (w *writer) close() {
-	for _, s := range append([]*sql.Stmt{w.find, w.lot, w.fit, w.sum}, w.del...) {
+	for _, s := range append([]*sql.Stmt{w.find, w.lot, w.sum}, w.del...) {
 		if s != nil {
 			s.Close()
 		}
+	}
+	for _, s := range w.fits {
+		s.Close()
 	}
 }
 
@@ -485,20 +517,32 @@ func (w *writer) add(ctx context.Context, l *Lot, replace bool) error {
 	if id, err = res.LastInsertId(); err != nil {
 		return err
 	}
-	for i := range l.Fits {
-		f := &l.Fits[i]
-		t, s := f.Terms, f.StdErr
-		_, err := w.fit.ExecContext(ctx, id, i, f.Panel, f.Layer, f.Construction, f.Role, f.Model.String(), f.Targets, f.DOF,
-			t[0], t[1], t[2], t[3], t[4], t[5],
-			nullable(s[0]), nullable(s[1]), nullable(s[2]), nullable(s[3]), nullable(s[4]), nullable(s[5]),
-			f.Sigma0, f.RMS, f.Max, strings.Join(f.Outliers, outlierSep), f.AppliedX, f.AppliedY)
-		if err != nil {
-			return fmt.Errorf("lot %q, panel %q, layer %q: %w", l.Name, f.Panel, f.Layer, err)
+	args := make([]any, 0, 27*fitBatch)
+	for i0 := 0; i0 < len(l.Fits); i0 += fitBatch {
+		i1 := min(i0+fitBatch, len(l.Fits))
+		args = args[:0]
+		for i := i0; i < i1; i++ {
+			f := &l.Fits[i]
+			t, s := f.Terms, f.StdErr
+			args = append(args, id, i, f.Panel, f.Layer, f.Construction, f.Role, f.Model.String(), f.Targets, f.DOF,
+				t[0], t[1], t[2], t[3], t[4], t[5],
+				nullable(s[0]), nullable(s[1]), nullable(s[2]), nullable(s[3]), nullable(s[4]), nullable(s[5]),
+				f.Sigma0, f.RMS, f.Max, strings.Join(f.Outliers, outlierSep), f.AppliedX, f.AppliedY)
 		}
+		st, err := w.fitStmt(ctx, i1-i0)
+		if err != nil {
+			return err
+		}
+		if _, err := st.ExecContext(ctx, args...); err != nil {
+			return fmt.Errorf("lot %q, fits %d to %d: %w", l.Name, i0+1, i1, err)
+		}
+	}
+	if testHookAfterFits != nil {
+		testHookAfterFits()
 	}
 	for _, s := range summarise(l) {
 		m, sd := s.mean, s.sd
-		_, err := w.sum.ExecContext(ctx, id, s.layer, s.construction, s.role, l.Date, s.panels,
+		_, err := w.sum.ExecContext(ctx, id, s.layer, s.construction, s.role, l.Date, l.Name, s.panels,
 			m[0], m[1], m[2], m[3], m[4], m[5], sd[0], sd[1], sd[2], sd[3], sd[4], sd[5])
 		if err != nil {
 			return fmt.Errorf("lot %q, layer %q: %w", l.Name, s.layer, err)
@@ -506,6 +550,10 @@ func (w *writer) add(ctx context.Context, l *Lot, replace bool) error {
 	}
 	return nil
 }
+
+// testHookAfterFits, when set by a test, runs in the middle of adding a lot:
+// after its fits are written and before its summaries and the commit.
+var testHookAfterFits func()
 
 // outlierSep separates the outlier target names in the fit table and the
 // export.
