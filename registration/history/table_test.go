@@ -87,10 +87,10 @@ func TestTable(t *testing.T) {
 	}
 	var job struct {
 		Contributor []struct {
-			Name    string
-			Layers  []string
-			ScaleX  map[string]string `toml:"scale_x"`
-			ScaleY  map[string]string `toml:"scale_y"`
+			Name   string
+			Layers []string
+			ScaleX map[string]string `toml:"scale_x"`
+			ScaleY map[string]string `toml:"scale_y"`
 		}
 	}
 	if err := toml.Unmarshal(tomlBuf.Bytes(), &job); err != nil {
