@@ -111,12 +111,11 @@ func BenchmarkTable(b *testing.B) {
 	d := bigHistory(b)
 	b.ReportAllocs()
 	for b.Loop() {
-		ss, err := d.Series(context.Background(), Filter{}, registration.ScaleX, registration.ScaleY)
+		rows, err := d.ScaleTable(context.Background(), Filter{})
 		if err != nil {
 			b.Fatal(err)
 		}
-		rows := Table(ss)
-		if err := WriteTableCSV(io.Discard, rows, ss); err != nil {
+		if err := WriteTableCSV(io.Discard, rows); err != nil {
 			b.Fatal(err)
 		}
 	}

@@ -76,8 +76,10 @@ type TableRow struct {
 	// a lot.
 	LotSigma, WithinSD float64
 	// Signals are the chart signals among the last ShiftWindow lots: the
-	// process has shifted, and the estimate may still lag.
-	Signals []Signal
+	// process has shifted, and the estimate may still lag. SignalLots
+	// names the lot of each.
+	Signals    []Signal
+	SignalLots []string
 }
 
 // Shifted reports whether the chart shows a shift in the latest lots.
@@ -116,6 +118,7 @@ func Table(series []Series) []TableRow {
 			for _, sg := range tr.Signals {
 				if sg.Index >= len(x)-ShiftWindow {
 					row.Signals = append(row.Signals, sg)
+					row.SignalLots = append(row.SignalLots, s.Points[sg.Index].Lot)
 				}
 			}
 			out = append(out, row)

@@ -2,6 +2,7 @@ package history
 
 import (
 	"context"
+	"database/sql"
 	"fmt"
 	"math"
 	"strings"
@@ -49,6 +50,15 @@ func (s *Series) Values(k registration.TermKind) []float64 {
 // Series returns the series the filter selects, in order of construction
 // and role, reading the terms asked for (all six when none are given).
 func (d *DB) Series(ctx context.Context, f Filter, terms ...registration.TermKind) ([]Series, error) {
+	return d.series(ctx, f, true, terms)
+}
+
+// series reads the series one by one: first which constructions and roles
+// the filter selects, then each one's rows, a range of lot_layer's key
+// read in order. Without names the points carry no lot name or date,
+// which saves the driver a text value per row (most of a large table's
+// cost); the callers fill in the few they show.
+func (d *DB) series(ctx context.Context, f Filter, names bool, terms []registration.TermKind) ([]Series, error) {
 	if len(terms) == 0 {
 		for k := range registration.NumTerms {
 			terms = append(terms, registration.TermKind(k))
@@ -59,30 +69,76 @@ func (d *DB) Series(ctx context.Context, f Filter, terms ...registration.TermKin
 		if k < 0 || k >= registration.NumTerms {
 			panic(fmt.Sprintf("history: term %d out of range", k))
 		}
-		fmt.Fprintf(&cols, ", s.mean_%s, s.sd_%s", k, k)
+		fmt.Fprintf(&cols, ", mean_%s, sd_%s", k, k)
 	}
 	var where []string
 	var args []any
-	for _, c := range []struct{ col, v string }{{"s.construction", f.Construction}, {"s.role", f.Role}, {"s.layer", f.Layer}} {
+	for _, c := range []struct{ col, v string }{{"construction", f.Construction}, {"role", f.Role}, {"layer", f.Layer}} {
 		if c.v != "" {
 			where = append(where, c.col+" = ?")
 			args = append(args, c.v)
 		}
 	}
-	q := "SELECT s.construction, s.role, s.layer, s.lot_id, s.lot, s.date, s.panels" + cols.String() +
-		" FROM lot_layer s"
+	cond := ""
 	if len(where) > 0 {
-		q += " WHERE " + strings.Join(where, " AND ")
+		cond = " WHERE " + strings.Join(where, " AND ")
 	}
-	q += " ORDER BY s.construction, s.role, s.date, s.lot_id, s.layer"
-	rows, err := d.db.QueryContext(ctx, q, args...)
+	// The constructions, roles and layers selected.
+	rows, err := d.db.QueryContext(ctx, "SELECT DISTINCT construction, role, layer FROM lot_layer"+cond+" ORDER BY construction, role, layer", args...)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", d.path, err)
 	}
-	defer rows.Close()
 	var out []Series
-	var cur *Series
-	// acc pools the layers of one lot: Σn, Σn·mean and the sums of squares.
+	for rows.Next() {
+		var c, r, l string
+		if err := rows.Scan(&c, &r, &l); err != nil {
+			rows.Close()
+			return nil, err
+		}
+		if n := len(out); n == 0 || out[n-1].Construction != c || out[n-1].Role != r {
+			out = append(out, Series{Construction: c, Role: r, Layer: f.Layer})
+		}
+		out[len(out)-1].Layers = append(out[len(out)-1].Layers, l)
+	}
+	rows.Close()
+	if err := rows.Err(); err != nil {
+		return nil, err
+	}
+	head := "SELECT lot_id, panels"
+	if names {
+		head += ", lot, date"
+	}
+	q := head + cols.String() + " FROM lot_layer WHERE construction = ? AND role = ?"
+	if f.Layer != "" {
+		q += " AND layer = ?"
+	}
+	q += " ORDER BY date, lot_id, layer"
+	stmt, err := d.db.PrepareContext(ctx, q)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", d.path, err)
+	}
+	defer stmt.Close()
+	for i := range out {
+		a := []any{out[i].Construction, out[i].Role}
+		if f.Layer != "" {
+			a = append(a, f.Layer)
+		}
+		if err := readSeries(ctx, stmt, a, names, terms, &out[i]); err != nil {
+			return nil, fmt.Errorf("%s: %w", d.path, err)
+		}
+	}
+	return out, nil
+}
+
+// readSeries reads one series' rows and pools the layers of each lot: the
+// mean over all their fits, and the SD from the within-layer squares plus
+// the spread of the layer means about the lot mean.
+func readSeries(ctx context.Context, stmt *sql.Stmt, args []any, names bool, terms []registration.TermKind, s *Series) error {
+	rows, err := stmt.QueryContext(ctx, args...)
+	if err != nil {
+		return err
+	}
+	defer rows.Close()
 	type acc struct {
 		n      int
 		sum    [registration.NumTerms]float64
@@ -100,42 +156,33 @@ func (d *DB) Series(ctx context.Context, f Filter, terms ...registration.TermKin
 			mean := a.sum[k] / float64(a.n)
 			pt.Mean[k] = mean
 			if a.n > 1 {
-				// Pooled: within-layer squares plus the spread of the
-				// layer means about the lot mean.
 				ss := a.within[k] + a.sumsq[k] - float64(a.n)*mean*mean
 				pt.SD[k] = math.Sqrt(math.Max(ss, 0) / float64(a.n-1))
 			}
 		}
-		cur.Points = append(cur.Points, pt)
+		s.Points = append(s.Points, pt)
 		a = acc{}
 	}
-	vals := make([]float64, 2*len(terms))
-	dest := make([]any, 7+len(vals))
-	var cons, role, layer, name, date string
 	var lotID int64
 	var panels int
-	dest[0], dest[1], dest[2], dest[3], dest[4], dest[5], dest[6] = &cons, &role, &layer, &lotID, &name, &date, &panels
+	var name, date string
+	dest := []any{&lotID, &panels}
+	if names {
+		dest = append(dest, &name, &date)
+	}
+	vals := make([]float64, 2*len(terms))
 	for i := range vals {
-		dest[7+i] = &vals[i]
+		dest = append(dest, &vals[i])
 	}
 	for rows.Next() {
 		if err := rows.Scan(dest...); err != nil {
-			return nil, err
+			return err
 		}
-		if cur == nil || cur.Construction != cons || cur.Role != role {
-			if cur != nil {
-				flush()
-			}
-			out = append(out, Series{Construction: cons, Role: role, Layer: f.Layer})
-			cur = &out[len(out)-1]
-		} else if lotID != pt.LotID {
+		if lotID != pt.LotID {
 			flush()
 		}
 		if a.n == 0 {
 			pt = Point{LotID: lotID, Lot: name, Date: date}
-		}
-		if len(cur.Layers) == 0 || !contains(cur.Layers, layer) {
-			cur.Layers = append(cur.Layers, layer)
 		}
 		for j, k := range terms {
 			m, sd := vals[2*j], vals[2*j+1]
@@ -146,12 +193,38 @@ func (d *DB) Series(ctx context.Context, f Filter, terms ...registration.TermKin
 		a.n += panels
 	}
 	if err := rows.Err(); err != nil {
+		return err
+	}
+	flush()
+	return nil
+}
+
+// ScaleTable returns the scale table (Table) of the series the filter
+// selects, reading only what the table needs.
+func (d *DB) ScaleTable(ctx context.Context, f Filter) ([]TableRow, error) {
+	ss, err := d.series(ctx, f, false, []registration.TermKind{registration.ScaleX, registration.ScaleY})
+	if err != nil {
 		return nil, err
 	}
-	if cur != nil {
-		flush()
+	// Name the lots the table shows: each series' last and the lots of
+	// the signals.
+	stmt, err := d.db.PrepareContext(ctx, "SELECT name, date FROM lot WHERE id = ?")
+	if err != nil {
+		return nil, err
 	}
-	return out, nil
+	defer stmt.Close()
+	for i := range ss {
+		pts := ss[i].Points
+		for j := range pts {
+			if j < len(pts)-ShiftWindow {
+				continue
+			}
+			if err := stmt.QueryRowContext(ctx, pts[j].LotID).Scan(&pts[j].Lot, &pts[j].Date); err != nil {
+				return nil, fmt.Errorf("%s: %w", d.path, err)
+			}
+		}
+	}
+	return Table(ss), nil
 }
 
 func contains(s []string, v string) bool {

@@ -32,30 +32,26 @@ func fixed(v float64, kind unit.Kind, u string, dec int) string {
 	return strconv.FormatFloat(unit.In(v, kind, u), 'f', dec, 64)
 }
 
-// signalText lists signals with the lots they fell on.
-func signalText(sg []Signal, pts []Point) string {
+// signalText lists a row's signals with the lots they fell on.
+func signalText(r *TableRow) string {
 	var parts []string
-	for _, s := range sg {
-		parts = append(parts, s.Rule.Short()+" at lot "+pts[s.Index].Lot)
+	for i, s := range r.Signals {
+		parts = append(parts, s.Rule.Short()+" at lot "+r.SignalLots[i])
 	}
 	return strings.Join(parts, "; ")
 }
 
 // WriteTableCSV writes the scale table as CSV with units in the header.
-func WriteTableCSV(w io.Writer, rows []TableRow, series []Series) error {
+func WriteTableCSV(w io.Writer, rows []TableRow) error {
 	cw := csv.NewWriter(w)
 	cw.Write([]string{"construction", "role", "axis", "layers", "lots", "last_lot", "last_date",
 		"movement [ppm]", "setting [ppm]", "factor", "se [ppm]", "lot_sigma [ppm]", "within_sd [ppm]", "shift"})
-	pts := map[[2]string][]Point{}
-	for i := range series {
-		pts[[2]string{series[i].Construction, series[i].Role}] = series[i].Points
-	}
 	for _, r := range rows {
 		cw.Write([]string{r.Construction, r.Role, r.Axis, strings.Join(r.Layers, " "), strconv.Itoa(r.Lots), r.LastLot, r.LastDate,
 			fixed(r.Movement, unit.Strain, "ppm", 2), fixed(r.Setting, unit.Strain, "ppm", 2),
 			strconv.FormatFloat(1+r.Setting, 'f', 9, 64), fixed(r.SE, unit.Strain, "ppm", 2),
 			fixed(r.LotSigma, unit.Strain, "ppm", 2), fixed(r.WithinSD, unit.Strain, "ppm", 2),
-			signalText(r.Signals, pts[[2]string{r.Construction, r.Role}])})
+			signalText(&r)})
 	}
 	cw.Flush()
 	return cw.Error()
