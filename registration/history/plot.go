@@ -166,15 +166,15 @@ func (t *Trend) Plot(width int) *render.Plot {
 			top.Lines = append(top.Lines, l)
 		}
 	}
-	title := fmt.Sprintf("%s, %s: %s movement, %d lots", s.Construction, s.Role, t.Term, n)
+	title := fmt.Sprintf("%s, %s: %s, %d lots", s.Construction, s.Role, t.Term, n)
 	if s.Layer != "" {
-		title = fmt.Sprintf("%s, layer %s (%s): %s movement, %d lots", s.Construction, s.Layer, s.Role, t.Term, n)
+		title = fmt.Sprintf("%s, layer %s (%s): %s, %d lots", s.Construction, s.Layer, s.Role, t.Term, n)
 	}
 	if n > 0 {
-		title += fmt.Sprintf(" from %s to %s", s.Points[0].Date, s.Points[n-1].Date)
+		title += fmt.Sprintf(" %s to %s", s.Points[0].Date, s.Points[n-1].Date)
 	}
 	if !math.IsNaN(t.Chart.Sigma) {
-		title += fmt.Sprintf("; centre %.4g %s, σ = average MR/d₂ = %.3g %s", unit.In(t.Chart.Centre, kind, u), u, unit.In(t.Chart.Sigma, kind, u), u)
+		title += fmt.Sprintf("; σ %.3g %s (MR/d₂)", unit.In(t.Chart.Sigma, kind, u), u)
 	}
 	return &render.Plot{Title: title, XLabel: "lot, in order of date", Axes: []*render.Axes{top, bottom}}
 }

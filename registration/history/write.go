@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -32,13 +33,23 @@ func fixed(v float64, kind unit.Kind, u string, dec int) string {
 	return strconv.FormatFloat(unit.In(v, kind, u), 'f', dec, 64)
 }
 
-// signalText lists a row's signals with the lots they fell on.
+// signalText lists the rules a row's signals broke, each once, with the
+// latest lot that broke it: "WE1 at H053, EWMA at H059".
 func signalText(r *TableRow) string {
-	var parts []string
+	var order []Rule
+	last := map[Rule]string{}
 	for i, s := range r.Signals {
-		parts = append(parts, s.Rule.Short()+" at lot "+r.SignalLots[i])
+		if _, ok := last[s.Rule]; !ok {
+			order = append(order, s.Rule)
+		}
+		last[s.Rule] = r.SignalLots[i]
 	}
-	return strings.Join(parts, "; ")
+	slices.Sort(order)
+	parts := make([]string, len(order))
+	for i, ru := range order {
+		parts[i] = ru.Short() + " at " + last[ru]
+	}
+	return strings.Join(parts, ", ")
 }
 
 // WriteTableCSV writes the scale table as CSV with units in the header.
