@@ -387,6 +387,11 @@ func (d *DB) Add(ctx context.Context, l *Lot, replace bool) error {
 	return d.addLots(ctx, []*Lot{l}, replace)
 }
 
+// AddLots stores lots in one transaction: all of them or none.
+func (d *DB) AddLots(ctx context.Context, lots []*Lot, replace bool) error {
+	return d.addLots(ctx, lots, replace)
+}
+
 // addLots stores lots in one transaction.
 func (d *DB) addLots(ctx context.Context, lots []*Lot, replace bool) error {
 	for _, l := range lots {
