@@ -17,6 +17,7 @@ import (
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/history"
+	"github.com/regdrift/regdrift/samples"
 )
 
 // defaultHistoryDB is the history file without --db or REGDRIFT_DB.
@@ -401,9 +402,8 @@ func (f *historyFlags) table(ctx context.Context, std stdio, path string, args [
 		if r.Shifted() {
 			shift = "yes"
 		}
-		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%s\t%s\t%.6f\t%s\t%s\n", r.Construction, r.Role, r.Axis, r.Lots, r.LastDate,
-			unit.Format(r.Movement, unit.Strain, "ppm", 1), unit.Format(r.Setting, unit.Strain, "ppm", 1), 1+r.Setting,
-			unit.Format(r.SE, unit.Strain, "ppm", 1), shift)
+		fmt.Fprintf(tw, "%s\t%s\t%s\t%d\t%s\t%+.1f ppm\t%+.1f ppm\t%.6f\t%.1f ppm\t%s\n", r.Construction, r.Role, r.Axis, r.Lots, r.LastDate,
+			r.Movement/unit.PPM, r.Setting/unit.PPM, 1+r.Setting, r.SE/unit.PPM, shift)
 	}
 	tw.Flush()
 	fmt.Fprintf(std.out, "next artwork = the scale setting that cancels the EWMA estimate (λ = %.1f) of the material movement; shift = a chart signal in the last %d lots\n",
@@ -412,4 +412,69 @@ func (f *historyFlags) table(ctx context.Context, std stdio, path string, args [
 		fmt.Fprintf(std.out, "wrote %s\n", filepath.Join(f.out, p))
 	}
 	return nil
+}
+
+// demoHistory loads the invented demo history (samples.DemoHistory, 60 lots
+// of two constructions) lot by lot through 'history add' into a temporary
+// database, and writes its scale table and the trends of scale_x into
+// out/history. It returns the lines the demo prints.
+func demoHistory(ctx context.Context, out string) ([]string, error) {
+	tmp, err := os.MkdirTemp("", "regdrift-demo-history-")
+	if err != nil {
+		return nil, err
+	}
+	defer os.RemoveAll(tmp)
+	db := filepath.Join(tmp, "history.db")
+	hist := &command{"history", func() options { return new(historyFlags) }}
+	run := func(args ...string) ([]byte, error) {
+		var o, e strings.Builder
+		err := invoke(ctx, hist, stdio{out: &o, err: &e}, append(args, "--db", db))
+		if err != nil {
+			return nil, fmt.Errorf("history %s: %w", args[0], err)
+		}
+		return []byte(o.String()), nil
+	}
+	lots := samples.DemoHistory()
+	for _, h := range lots {
+		targets, applied := filepath.Join(tmp, h.Name+".csv"), filepath.Join(tmp, h.Name+"-applied.csv")
+		if err := writeFileWith(targets, h.WriteTargets); err != nil {
+			return nil, err
+		}
+		if err := writeFileWith(applied, h.WriteApplied); err != nil {
+			return nil, err
+		}
+		if _, err := run("add", targets, "--lot", h.Name, "--date", h.Date, "--construction", h.Construction, "--applied", applied, "--robust"); err != nil {
+			return nil, err
+		}
+	}
+	dir := filepath.Join(out, "history")
+	table, err := run("table", "-o", dir)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := run("trend", "--term", "scale_x", "-o", dir); err != nil {
+		return nil, err
+	}
+	lines := []string{fmt.Sprintf("history: %d invented lots of %s and %s (%s changes laminate at lot H036), loaded into a temporary database",
+		len(lots), samples.HistoryCoreA, samples.HistoryCoreB, samples.HistoryCoreA)}
+	for _, l := range strings.Split(strings.TrimRight(string(table), "\n"), "\n") {
+		if !strings.HasPrefix(l, "wrote ") {
+			lines = append(lines, "  "+l)
+		}
+	}
+	lines = append(lines, "  images "+strings.Join(pngs(dir), ", "))
+	return lines, nil
+}
+
+// writeFileWith writes a file with a writer function.
+func writeFileWith(path string, write func(io.Writer) error) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	if err := write(f); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
 }

@@ -137,3 +137,15 @@ func TestHistoryBadInput(t *testing.T) {
 		t.Errorf("bad input created %s", fresh)
 	}
 }
+
+func TestDemoHistory(t *testing.T) {
+	out := t.TempDir()
+	lines, err := demoHistory(context.Background(), out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Join(lines, "\n")
+	if !strings.Contains(text, samples.HistoryCoreA) || !strings.Contains(text, "yes") || !strings.Contains(text, "trend-5mil-core-A-L3-scale_x.png") {
+		t.Errorf("demo history:\n%s", text)
+	}
+}
