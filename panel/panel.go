@@ -71,6 +71,8 @@ func (p Panel) Validate() error {
 	switch {
 	case !(p.Size.X > 0) || !(p.Size.Y > 0) || math.IsInf(p.Size.X, 0) || math.IsInf(p.Size.Y, 0):
 		return &FieldError{Key: "panel.size", Err: errors.New("both sizes must be positive and finite")}
+	case p.Size.X > MaxPanelSize || p.Size.Y > MaxPanelSize:
+		return &FieldError{Key: "panel.size", Err: fmt.Errorf("a panel side of %.4g m is not plausible: at most %g m (%.0f in)", math.Max(p.Size.X, p.Size.Y), MaxPanelSize, MaxPanelSize/0.0254)}
 	case !(p.Border >= 0) || 2*p.Border >= math.Min(p.Size.X, p.Size.Y):
 		return &FieldError{Key: "panel.border", Err: errors.New("the border must be non-negative and leave room inside the panel")}
 	case !p.Outline().Contains(p.Datum):
@@ -132,6 +134,19 @@ type Layout struct {
 // production panel.
 const MaxInstances = 1_000_000
 
+// MaxPanelSize is the longest panel side accepted, a plausibility bound:
+// production panels are 12 x 18 in to 24 x 30 in, the largest backplanes
+// about 1.5 m, so a side beyond 3 m is a typing slip in a unit.
+const MaxPanelSize = 3.0 // m
+
+// MaxSites bounds the coupler sites of one layout, from arrays and placements
+// together. The analysis holds about a kilobyte per site (the sensitivity
+// row, statistics and results of each site; measured: 10 million sites took
+// 8.5 GB in map), so two million sites stay near 2 GB, well inside a 24 GB
+// machine with room for the figures, while a production panel carries at
+// most some tens of thousands of couplers.
+const MaxSites = 2_000_000
+
 // Instance is one placed copy of a part.
 type Instance struct {
 	Index  int // position in the slice returned by Expand
@@ -173,7 +188,7 @@ func (e *FieldError) Unwrap() error { return e.Err }
 // Errors reported by Expand, for errors.Is.
 var (
 	ErrOverlap  = errors.New("parts overlap")
-	ErrInBorder = errors.New("site inside the panel border")
+	ErrInBorder = errors.New("inside the panel border")
 	ErrOffPanel = errors.New("part outside the panel")
 )
 
@@ -251,6 +266,10 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 		if a.Count[0] > MaxInstances || a.Count[1] > MaxInstances || len(inst)+a.Count[0]*a.Count[1] > MaxInstances {
 			return nil, nil, &FieldError{key + ".count", fmt.Errorf("more than %d parts on one panel", MaxInstances)}
 		}
+		if len(sites)+a.Count[0]*a.Count[1]*len(part.Couplers) > MaxSites {
+			return nil, nil, &FieldError{key + ".count", fmt.Errorf("more than %d coupler sites on one panel (%d parts of %d couplers here)",
+				MaxSites, a.Count[0]*a.Count[1], len(part.Couplers))}
+		}
 		origin := a.Origin
 		if !a.UseOrigin {
 			ext := Vec{float64(a.Count[0]-1)*a.Pitch.X + sz.X, float64(a.Count[1]-1)*a.Pitch.Y + sz.Y}
@@ -281,6 +300,17 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 				inst = append(inst, in)
 			}
 		}
+		// Parts, not only their couplers, stay out of the border (checked
+		// after the whole array is on the panel, so that an array beyond the
+		// edge is reported as such).
+		for _, in := range inst[blk.first:] {
+			if !usable.Contains(in.Bounds.Min) || !usable.Contains(in.Bounds.Max) {
+				return nil, nil, &FieldError{key, fmt.Errorf("%w: part %s reaches into the %.3g in border", ErrInBorder, in.Name, l.Panel.Border/0.0254)}
+			}
+		}
+	}
+	if len(l.Placements) > MaxInstances || len(sites)+len(l.Placements) > MaxSites {
+		return nil, nil, &FieldError{"sites", fmt.Errorf("more than %d coupler sites on one panel (%d from placement files)", MaxSites, len(l.Placements))}
 	}
 	for k, p := range l.Placements {
 		key := fmt.Sprintf("sites[%d]", k)

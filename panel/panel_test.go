@@ -95,6 +95,27 @@ func TestExpandErrors(t *testing.T) {
 		}, ErrOverlap, ""},
 		{"unknown part", func(l *Layout) { l.Arrays[0].Part = "q" }, nil, "array[0].part"},
 		{"bad rotate", func(l *Layout) { l.Arrays[0].Rotate = 45 }, nil, "array[0].rotate"},
+		// The part's outline enters the 0.5 in border although its coupler,
+		// 0.25 in from the part's left edge, is 0.55 in from the panel edge.
+		{"part in border", func(l *Layout) {
+			l.Parts[0].Couplers[0].At.X = 0.75 * in
+			l.Arrays[0].Origin = Vec{-8.8 * in, 0}
+		}, ErrInBorder, "array[0]"},
+		{"too many sites", func(l *Layout) {
+			for k := 0; k < 10; k++ {
+				l.Parts[0].Couplers = append(l.Parts[0].Couplers, l.Parts[0].Couplers[0])
+			}
+			l.Parts[0].Size = Vec{1e-4, 1e-4}
+			l.Parts[0].Couplers = l.Parts[0].Couplers[:11]
+			for k := range l.Parts[0].Couplers {
+				l.Parts[0].Couplers[k].At = Vec{5e-5, 5e-5}
+			}
+			l.Arrays[0] = Array{Part: "p", Count: [2]int{500, 400}, Pitch: Vec{1e-4, 1e-4}}
+		}, nil, "array[0].count"},
+		{"huge panel", func(l *Layout) { l.Panel.Size.Y = 1e250 * in }, nil, "panel.size"},
+		{"too many placements", func(l *Layout) {
+			l.Placements = make([]Placement, MaxSites)
+		}, nil, "sites"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

@@ -71,7 +71,7 @@ type AxisComp struct {
 	// Net is the resulting change of the layer's scale term: the artwork
 	// factor f acts before the material moves by its mean scale s, so the
 	// layer ends at (1+s)·f − 1 and Net = (f − 1)(1 + s). Compensating s fully
-	// takes f = 1/(1+s) (FACTS item 9).
+	// takes f = 1/(1+s) [calculated here: (1+s)·f = 1].
 	Net float64
 	// Free is set when this axis moves no broadside offset at any site (no
 	// coupled lines run across it), so that its value comes from the drill
@@ -149,6 +149,8 @@ type linRows struct {
 	caps []float64
 }
 
+// add appends the form b + a·x with cap (0: none); caps is filled with
+// zeros for the earlier rows once any row has a cap.
 func (r *linRows) add(a []float64, b, cap float64) {
 	r.a = append(r.a, a)
 	r.b = append(r.b, b)
@@ -160,6 +162,7 @@ func (r *linRows) add(a []float64, b, cap float64) {
 	}
 }
 
+// value returns row i at x, b_i + a_i·x.
 func (r *linRows) value(i int, x []float64) float64 {
 	v := r.b[i]
 	for j, a := range r.a[i] {
@@ -177,108 +180,186 @@ func (r *linRows) value(i int, x []float64) float64 {
 // the common part: with a drill budget it minimises the largest registration
 // of the trace layers to the drilled holes (a second linear programme), else
 // it takes the smallest compensation (least sum of squares).
+//
+// The steps, one function each: the linear forms of the problem
+// ([newCompProblem]), the common part's directions and the rms optimum
+// ([compProblem.nullSpace]), the objective over the differences
+// ([compProblem.optimise]), the common part ([compProblem.chooseCommon]),
+// rounding to the equipment's step ([compProblem.roundArtwork]) and the
+// summary ([compProblem.result]).
 func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, error) {
 	if set == nil {
 		set = &CompSettings{}
 	}
-	maxScale := set.Max
-	if maxScale <= 0 {
-		maxScale = 1000e-6
+	p, err := newCompProblem(m, sites, set)
+	if err != nil {
+		return nil, err
 	}
-	// Layers in order of appearance, two variables each (x, y).
-	var layers []string
-	li := map[string]int{}
-	addLayer := func(l string) {
-		if _, ok := li[l]; !ok {
-			li[l] = len(layers)
-			layers = append(layers, l)
-		}
+	null, x, err := p.nullSpace()
+	if err != nil {
+		return nil, err
+	}
+	if x, err = p.optimise(x, len(null) > 0); err != nil {
+		return nil, err
+	}
+	x, common, err := p.chooseCommon(x, null)
+	if err != nil {
+		return nil, err
+	}
+	art, roundedOK := p.roundArtwork(x)
+	return p.result(x, art, roundedOK, len(null), common), nil
+}
+
+// layerPair names the upper and lower trace layers of a site.
+type layerPair struct{ u, l string }
+
+// compProblem is the linear problem of one compensation in the internal
+// units (offsets in µm, scales in ppm). Its variables are the net scale
+// changes of the trace layers, two per layer: x then y, in the order of
+// layers.
+type compProblem struct {
+	m        *Model
+	sites    []CompSite
+	set      *CompSettings
+	maxScale float64 // bound on |factor − 1|, strain
+	budget   float64 // drill budget, µm; 0 means none
+
+	layers    []string       // trace layers in order of appearance
+	li        map[string]int // index of each layer in layers
+	nv        int            // number of variables, 2·len(layers)
+	meanScale []float64      // each variable's mean scale term in the model, strain
+
+	bounds   linRows   // |x_j| ≤ maxScale·(1 + meanScale_j), the artwork bound in net terms
+	off      linRows   // the mean offset across the lines at each two-layer site, µm
+	offIndex []int     // the row of off of each site, or −1
+	before   []float64 // the mean offset at each site without compensation, m
+	drill    linRows   // each trace layer's mean registration per axis at its sites, capped by the budget
+	caps     linRows   // the rows every solution must keep: bounds, and drill when there is a budget
+}
+
+// newCompProblem collects the trace layers of sites (those of sites with two
+// different layers, in order of appearance) and builds the problem's linear
+// forms: the bounds, the offset rows and the drill rows.
+func newCompProblem(m *Model, sites []CompSite, set *CompSettings) (*compProblem, error) {
+	p := &compProblem{m: m, sites: sites, set: set, maxScale: set.Max, budget: set.DrillBudget * toUM, li: map[string]int{}}
+	if p.maxScale <= 0 {
+		p.maxScale = 1000e-6
 	}
 	for _, s := range sites {
 		if s.Upper != s.Lower {
-			addLayer(s.Upper)
-			addLayer(s.Lower)
+			p.addLayer(s.Upper)
+			p.addLayer(s.Lower)
 		}
 	}
-	if len(layers) == 0 {
+	if len(p.layers) == 0 {
 		return nil, errors.New("no coupler site has its traces on two different layers: compensation cannot move any offset")
 	}
-	nv := 2 * len(layers)
-	// The layers' mean scale terms and bounds on the net change.
-	res := &CompResult{Objective: set.Objective}
-	meanScale := make([]float64, nv)
-	for l, name := range layers {
-		for i := range m.Contributors {
-			c := &m.Contributors[i]
+	p.nv = 2 * len(p.layers)
+	p.meanScales()
+	for j := 0; j < p.nv; j++ {
+		a := make([]float64, p.nv)
+		a[j] = 1
+		p.bounds.add(a, 0, p.maxScale*(1+p.meanScale[j])*toPPM)
+	}
+	p.offsetRows()
+	p.drillRows()
+	p.caps.a, p.caps.b, p.caps.caps = append(p.caps.a, p.bounds.a...), append(p.caps.b, p.bounds.b...), append(p.caps.caps, p.bounds.caps...)
+	if p.budget > 0 {
+		p.caps.a, p.caps.b, p.caps.caps = append(p.caps.a, p.drill.a...), append(p.caps.b, p.drill.b...), append(p.caps.caps, p.drill.caps...)
+	}
+	return p, nil
+}
+
+// addLayer appends trace layer l to the problem's layers unless it is
+// there already.
+func (p *compProblem) addLayer(l string) {
+	if _, ok := p.li[l]; !ok {
+		p.li[l] = len(p.layers)
+		p.layers = append(p.layers, l)
+	}
+}
+
+// meanScales sums the mean scale terms of every contributor that moves each
+// trace layer.
+func (p *compProblem) meanScales() {
+	p.meanScale = make([]float64, p.nv)
+	for l, name := range p.layers {
+		for i := range p.m.Contributors {
+			c := &p.m.Contributors[i]
 			if c.Names(name) {
-				meanScale[2*l] += c.Terms[ScaleX].Mean
-				meanScale[2*l+1] += c.Terms[ScaleY].Mean
+				p.meanScale[2*l] += c.Terms[ScaleX].Mean
+				p.meanScale[2*l+1] += c.Terms[ScaleY].Mean
 			}
 		}
 	}
-	var bounds linRows
-	for j := 0; j < nv; j++ {
-		a := make([]float64, nv)
-		a[j] = 1
-		bounds.add(a, 0, maxScale*(1+meanScale[j])*toPPM)
-	}
-	// Offset rows: e_i = m_i + Σ coef·x (µm, x in ppm).
-	type pairKey struct{ u, l string }
-	rels := map[pairKey]*Relative{}
-	var off linRows
-	res.Before = make([]float64, len(sites))
-	offIndex := make([]int, len(sites)) // row of each site, or −1
-	for i, s := range sites {
-		offIndex[i] = -1
+}
+
+// offsetRows builds one row per two-layer site, e_i = m_i + Σ coef·x (µm,
+// x in ppm), and records the offsets before compensation.
+func (p *compProblem) offsetRows() {
+	rels := map[layerPair]*Relative{}
+	p.before = make([]float64, len(p.sites))
+	p.offIndex = make([]int, len(p.sites))
+	for i, s := range p.sites {
+		p.offIndex[i] = -1
 		if s.Upper == s.Lower {
 			continue
 		}
-		k := pairKey{s.Upper, s.Lower}
+		k := layerPair{s.Upper, s.Lower}
 		rel := rels[k]
 		if rel == nil {
-			rel = m.Relative(s.Upper, s.Lower)
+			rel = p.m.Relative(s.Upper, s.Lower)
 			rels[k] = rel
 		}
 		row := rel.Row(s.Pos, s.U)
 		st := rel.Stats(row)
-		res.Before[i] = st.MeanAcross
-		a := make([]float64, nv)
-		u, l := li[s.Upper], li[s.Lower]
+		p.before[i] = st.MeanAcross
+		a := make([]float64, p.nv)
+		u, l := p.li[s.Upper], p.li[s.Lower]
 		// Net scale change c moves the layer by c ⊙ r; across the lines that is
 		// row.Across[ScaleX]·cx + row.Across[ScaleY]·cy (µm per ppm = m).
 		a[2*u] += row.Across[ScaleX]
 		a[2*u+1] += row.Across[ScaleY]
 		a[2*l] -= row.Across[ScaleX]
 		a[2*l+1] -= row.Across[ScaleY]
-		offIndex[i] = len(off.b)
-		off.add(a, st.MeanAcross*toUM, 0)
+		p.offIndex[i] = len(p.off.b)
+		p.off.add(a, st.MeanAcross*toUM, 0)
 	}
-	// Drill rows: each trace layer's mean displacement per axis at each site.
-	var drill linRows
-	for l, name := range layers {
-		for _, s := range sites {
+}
+
+// drillRows builds each trace layer's mean displacement per axis at each of
+// its sites, capped by the drill budget when there is one.
+func (p *compProblem) drillRows() {
+	for l, name := range p.layers {
+		for _, s := range p.sites {
 			if s.Upper != name && s.Lower != name {
 				continue
 			}
-			d := m.MeanDisplacement(name, s.Pos)
-			r := s.Pos.Sub(m.Datum)
-			ax := make([]float64, nv)
+			d := p.m.MeanDisplacement(name, s.Pos)
+			r := s.Pos.Sub(p.m.Datum)
+			ax := make([]float64, p.nv)
 			ax[2*l] = r.X
-			ay := make([]float64, nv)
+			ay := make([]float64, p.nv)
 			ay[2*l+1] = r.Y
-			drill.add(ax, d.X*toUM, 0)
-			drill.add(ay, d.Y*toUM, 0)
+			p.drill.add(ax, d.X*toUM, 0)
+			p.drill.add(ay, d.Y*toUM, 0)
 		}
 	}
-	budget := set.DrillBudget * toUM
-	if budget > 0 {
-		drill.caps = make([]float64, len(drill.b))
-		for i := range drill.caps {
-			drill.caps[i] = budget
+	if p.budget > 0 {
+		p.drill.caps = make([]float64, len(p.drill.b))
+		for i := range p.drill.caps {
+			p.drill.caps[i] = p.budget
 		}
 	}
+}
 
-	// Null space of the offset rows: the common part.
+// nullSpace returns an orthonormal basis of the null space of the offset rows
+// (the common part, which moves no offset), from the eigen-decomposition of
+// their normal matrix AᵀA, and with the rms objective the minimum-norm least-
+// squares solution x = −Σ v_k (v_kᵀ Aᵀb)/λ_k over the other eigenvectors
+// (zero for the worst-case objective).
+func (p *compProblem) nullSpace() (null [][]float64, x []float64, err error) {
+	nv, off := p.nv, &p.off
 	ata := mat.NewSymDense(nv, nil)
 	atb := make([]float64, nv)
 	for i := range off.b {
@@ -291,22 +372,20 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 	}
 	var eig mat.EigenSym
 	if !eig.Factorize(ata, true) {
-		return nil, errors.New("compensation: eigen-decomposition failed")
+		return nil, nil, errors.New("compensation: eigen-decomposition failed")
 	}
 	vals := eig.Values(nil)
 	var vecs mat.Dense
 	eig.VectorsTo(&vecs)
 	lmax := slices.Max(vals)
-	var null [][]float64
-	x := make([]float64, nv)
+	x = make([]float64, nv)
 	for k, lam := range vals {
 		v := mat.Col(nil, k, &vecs)
 		if lam <= 1e-10*lmax || lmax == 0 {
 			null = append(null, v)
 			continue
 		}
-		if set.Objective == RMS {
-			// Minimum-norm least squares: x = −Σ v_k (v_kᵀ Aᵀb)/λ_k.
+		if p.set.Objective == RMS {
 			var g float64
 			for j := range v {
 				g += v[j] * atb[j]
@@ -316,211 +395,259 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 			}
 		}
 	}
-	res.Free = len(null)
-	var caps linRows
-	caps.a, caps.b, caps.caps = append(caps.a, bounds.a...), append(caps.b, bounds.b...), append(caps.caps, bounds.caps...)
-	if budget > 0 {
-		caps.a, caps.b, caps.caps = append(caps.a, drill.a...), append(caps.b, drill.b...), append(caps.caps, drill.caps...)
-	}
-	switch set.Objective {
+	return null, x, nil
+}
+
+// optimise minimises the objective over the differences: the worst offset by
+// the linear programme within the caps, or, for the rms objective, keeps the
+// least-squares x and checks it against the caps when no common part is left
+// to move it back inside them.
+func (p *compProblem) optimise(x []float64, hasNull bool) ([]float64, error) {
+	switch p.set.Objective {
 	case Worst:
-		var err error
-		x, _, err = minimax(nv, &off, &caps, 0, bounds.caps)
-		if err != nil {
-			return nil, err
-		}
+		x, _, err := minimax(p.nv, &p.off, &p.caps, 0, p.bounds.caps)
+		return x, err
 	case RMS:
-		if v, ok := violated(&caps, x); ok {
-			// The least-squares optimum may still fit once the common part moves.
-			if len(null) == 0 {
-				return nil, fmt.Errorf("%w: the rms optimum breaks %s; try --objective worst or a larger bound", ErrInfeasible, v)
-			}
+		if v, ok := violated(&p.caps, x); ok && !hasNull {
+			return nil, fmt.Errorf("%w: the rms optimum breaks %s; try --objective worst or a larger bound", ErrInfeasible, v)
 		}
 	}
-	// The common part.
+	return x, nil
+}
+
+// chooseCommon sets the common part of x (x = x1 + N·z with N the null
+// vectors): by the drill budget when there is one, else the smallest
+// compensation. It returns x and how the common part was chosen ("" when
+// there is none).
+func (p *compProblem) chooseCommon(x []float64, null [][]float64) ([]float64, string, error) {
+	common := ""
 	if len(null) > 0 {
-		nn := len(null)
-		// x = x1 + N z: rows in z of any linear form b + a·x.
-		inZ := func(src *linRows) *linRows {
-			out := &linRows{}
-			for i := range src.b {
-				az := make([]float64, nn)
-				for k := range null {
-					for j := range null[k] {
-						az[k] += src.a[i][j] * null[k][j]
-					}
-				}
-				var c float64
-				if src.caps != nil {
-					c = src.caps[i]
-				}
-				out.add(az, src.value(i, x), c)
-			}
-			return out
-		}
-		if budget > 0 {
-			// First choice: centre every trace layer on the drilled holes in
-			// the least-squares sense (for a layer whose own movement is a
-			// pure scale this cancels it exactly). If that breaks the budget
-			// or a bound, minimise the worst registration instead.
-			zd := inZ(&drill)
-			apply := func(z []float64) []float64 {
-				y := slices.Clone(x)
-				for k := range null {
-					for j := range y {
-						y[j] += null[k][j] * z[k]
-					}
-				}
-				return y
-			}
-			res.Common = "the drill budget: the common part centres the trace layers on the drilled holes (least squares over the sites), within the budget"
-			z, ok := leastSquares(zd, nn)
-			if y := apply(z); ok {
-				if _, bad := violated(&caps, y); !bad {
-					x = y
-				} else {
-					ok = false
-				}
-			}
-			if !ok {
-				res.Common = "the drill budget: the common part minimises the worst registration of the trace layers to the drilled holes"
-				// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
-				var reach float64
-				for j := range x {
-					reach += x[j]*x[j] + bounds.caps[j]*bounds.caps[j]
-				}
-				zbox := make([]float64, nn)
-				for k := range zbox {
-					zbox[k] = 2 * math.Sqrt(reach)
-				}
-				z, _, err := minimax(nn, zd, inZ(&bounds), budget, zbox)
-				if err != nil {
-					return nil, err
-				}
-				x = apply(z)
-			}
+		var err error
+		if p.budget > 0 {
+			x, common, err = p.drillCommon(x, null)
 		} else {
-			res.Common = "the smallest compensation: the common part minimises the sum of squares of the layers' scale changes"
-			y := slices.Clone(x)
-			for k := range null {
-				var p float64
-				for j := range y {
-					p += null[k][j] * y[j]
-				}
-				for j := range y {
-					y[j] -= p * null[k][j]
-				}
-			}
-			if _, bad := violated(&bounds, y); !bad {
-				x = y
-			} else if set.Objective == RMS {
-				if v, bad := violated(&bounds, x); bad {
-					return nil, fmt.Errorf("%w: the rms optimum breaks %s", ErrInfeasible, v)
-				}
-			}
+			x, common, err = p.smallestCommon(x, null)
+		}
+		if err != nil {
+			return nil, "", err
 		}
 	}
-	if set.Objective == RMS && budget > 0 {
-		if v, bad := violated(&caps, x); bad {
-			return nil, fmt.Errorf("%w: at the rms optimum the common part cannot meet %s; try --objective worst", ErrInfeasible, v)
+	if p.set.Objective == RMS && p.budget > 0 {
+		if v, bad := violated(&p.caps, x); bad {
+			return nil, "", fmt.Errorf("%w: at the rms optimum the common part cannot meet %s; try --objective worst", ErrInfeasible, v)
 		}
 	}
-	// Artwork values, rounded to the step.
-	art := make([]float64, nv)
+	return x, common, nil
+}
+
+// drillCommon chooses the common part with a drill budget. First choice:
+// centre every trace layer on the drilled holes in the least-squares sense
+// (for a layer whose own movement is a pure scale this cancels it exactly).
+// If that breaks the budget or a bound, it minimises the worst registration
+// instead (a second linear programme in z).
+func (p *compProblem) drillCommon(x []float64, null [][]float64) ([]float64, string, error) {
+	nn := len(null)
+	zd := inNull(&p.drill, x, null)
+	z, ok := leastSquares(zd, nn)
+	if y := alongNull(x, null, z); ok {
+		if _, bad := violated(&p.caps, y); !bad {
+			return y, "the drill budget: the common part centres the trace layers on the drilled holes (least squares over the sites), within the budget", nil
+		}
+	}
+	// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
+	var reach float64
 	for j := range x {
-		art[j] = x[j] / (1 + meanScale[j])
+		reach += x[j]*x[j] + p.bounds.caps[j]*p.bounds.caps[j]
 	}
-	roundedOK := true
-	if set.Step > 0 {
-		art, roundedOK = roundToStep(art, set.Step*toPPM, maxScale*toPPM, func(a []float64) (float64, float64, bool) {
-			xx := make([]float64, nv)
-			for j := range a {
-				xx[j] = a[j] * (1 + meanScale[j])
-			}
-			if budget > 0 {
-				if _, bad := violated(&drill, xx); bad {
-					return 0, 0, false
-				}
-			}
-			obj := objective(set.Objective, &off, xx)
-			var second float64
-			if budget > 0 {
-				second = worstAbs(&drill, xx)
-			} else {
-				for _, v := range a {
-					second += v * v
-				}
-			}
-			return obj, second, true
-		})
-		for j := range x {
-			x[j] = art[j] * (1 + meanScale[j])
+	zbox := make([]float64, nn)
+	for k := range zbox {
+		zbox[k] = 2 * math.Sqrt(reach)
+	}
+	z, _, err := minimax(nn, zd, inNull(&p.bounds, x, null), p.budget, zbox)
+	if err != nil {
+		return nil, "", err
+	}
+	return alongNull(x, null, z), "the drill budget: the common part minimises the worst registration of the trace layers to the drilled holes", nil
+}
+
+// smallestCommon removes the common part from x (the least sum of squares of
+// the layers' scale changes), unless that breaks a bound; then it keeps x,
+// which for the rms objective must itself meet the bounds.
+func (p *compProblem) smallestCommon(x []float64, null [][]float64) ([]float64, string, error) {
+	const common = "the smallest compensation: the common part minimises the sum of squares of the layers' scale changes"
+	y := slices.Clone(x)
+	for k := range null {
+		var pr float64
+		for j := range y {
+			pr += null[k][j] * y[j]
+		}
+		for j := range y {
+			y[j] -= pr * null[k][j]
 		}
 	}
-	// Results.
-	var ax [2]bool
-	for j := 0; j < nv; j++ {
-		free := true
-		for i := range off.b {
-			if off.a[i][j] != 0 {
-				free = false
-				break
+	if _, bad := violated(&p.bounds, y); !bad {
+		return y, common, nil
+	}
+	if p.set.Objective == RMS {
+		if v, bad := violated(&p.bounds, x); bad {
+			return nil, "", fmt.Errorf("%w: the rms optimum breaks %s", ErrInfeasible, v)
+		}
+	}
+	return x, common, nil
+}
+
+// inNull returns the rows of src as linear forms in z, for x = x1 + N·z with
+// N the null vectors.
+func inNull(src *linRows, x1 []float64, null [][]float64) *linRows {
+	out := &linRows{}
+	for i := range src.b {
+		az := make([]float64, len(null))
+		for k := range null {
+			for j := range null[k] {
+				az[k] += src.a[i][j] * null[k][j]
 			}
 		}
-		if j%2 == 0 {
-			ax[0] = ax[0] || !free
+		var c float64
+		if src.caps != nil {
+			c = src.caps[i]
+		}
+		out.add(az, src.value(i, x1), c)
+	}
+	return out
+}
+
+// alongNull returns x1 + N·z.
+func alongNull(x1 []float64, null [][]float64, z []float64) []float64 {
+	y := slices.Clone(x1)
+	for k := range null {
+		for j := range y {
+			y[j] += null[k][j] * z[k]
+		}
+	}
+	return y
+}
+
+// roundArtwork returns the artwork scale changes (ppm) for the net changes
+// x, art_j = x_j/(1 + meanScale_j). With a step it rounds them to multiples
+// of it (roundToStep, by the same objective, ties broken by the drill
+// registration or the size of the compensation), moves x to match, and
+// reports whether the rounding kept the drill budget.
+func (p *compProblem) roundArtwork(x []float64) (art []float64, ok bool) {
+	nv := p.nv
+	art = make([]float64, nv)
+	for j := range x {
+		art[j] = x[j] / (1 + p.meanScale[j])
+	}
+	if p.set.Step <= 0 {
+		return art, true
+	}
+	art, ok = roundToStep(art, p.set.Step*toPPM, p.maxScale*toPPM, func(a []float64) (float64, float64, bool) {
+		xx := make([]float64, nv)
+		for j := range a {
+			xx[j] = a[j] * (1 + p.meanScale[j])
+		}
+		if p.budget > 0 {
+			if _, bad := violated(&p.drill, xx); bad {
+				return 0, 0, false
+			}
+		}
+		obj := objective(p.set.Objective, &p.off, xx)
+		var second float64
+		if p.budget > 0 {
+			second = worstAbs(&p.drill, xx)
 		} else {
-			ax[1] = ax[1] || !free
+			for _, v := range a {
+				second += v * v
+			}
 		}
-		l := j / 2
-		if j%2 == 0 {
-			res.Layers = append(res.Layers, LayerComp{Layer: layers[l], MeanScale: [2]float64{meanScale[j], meanScale[j+1]}})
-		}
-		a := AxisComp{Scale: art[j] / toPPM, Factor: 1 + art[j]/toPPM, Net: x[j] / toPPM, Free: free}
-		if j%2 == 0 {
-			res.Layers[l].X = a
-		} else {
-			res.Layers[l].Y = a
-		}
+		return obj, second, true
+	})
+	for j := range x {
+		x[j] = art[j] * (1 + p.meanScale[j])
 	}
-	seen := map[pairKey]bool{}
-	for _, s := range sites {
-		k := pairKey{s.Upper, s.Lower}
+	return art, ok
+}
+
+// result summarises the compensation x (net, ppm) with artwork values art:
+// per layer and axis, per trace pair, the offsets and drill registration
+// before and after, and the notes.
+func (p *compProblem) result(x, art []float64, roundedOK bool, free int, common string) *CompResult {
+	res := &CompResult{Objective: p.set.Objective, Before: p.before, Free: free, Common: common}
+	var moved [2]bool // whether any site's offset has an x (y) component
+	res.Layers, moved = p.layerComps(x, art)
+	seen := map[layerPair]bool{}
+	for _, s := range p.sites {
+		k := layerPair{s.Upper, s.Lower}
 		if s.Upper == s.Lower || seen[k] {
 			continue
 		}
 		seen[k] = true
-		u, l := li[s.Upper], li[s.Lower]
+		u, l := p.li[s.Upper], p.li[s.Lower]
 		res.Pairs = append(res.Pairs, PairDiff{s.Upper, s.Lower, [2]float64{(x[2*u] - x[2*l]) / toPPM, (x[2*u+1] - x[2*l+1]) / toPPM}})
 	}
-	res.After = make([]float64, len(sites))
-	for i := range sites {
-		if r := offIndex[i]; r >= 0 {
-			res.After[i] = off.value(r, x) / toUM
+	res.After = make([]float64, len(p.sites))
+	for i := range p.sites {
+		if r := p.offIndex[i]; r >= 0 {
+			res.After[i] = p.off.value(r, x) / toUM
 		}
 	}
 	res.WorstBefore, res.RMSBefore = stats(res.Before)
 	res.WorstAfter, res.RMSAfter = stats(res.After)
-	res.DrillBefore = worstAbs(&drill, make([]float64, nv)) / toUM
-	res.DrillAfter = worstAbs(&drill, x) / toUM
-	res.Notes = append(res.Notes, "only the difference of two layers' scale compensation across the coupled lines moves a broadside offset")
+	res.DrillBefore = worstAbs(&p.drill, make([]float64, p.nv)) / toUM
+	res.DrillAfter = worstAbs(&p.drill, x) / toUM
+	res.Notes = p.notes(res.Free, roundedOK, moved)
+	return res
+}
+
+// layerComps returns each layer's compensation and which axes move an offset
+// somewhere. A variable is free when no offset row depends on it.
+func (p *compProblem) layerComps(x, art []float64) ([]LayerComp, [2]bool) {
+	var layers []LayerComp
+	var moved [2]bool
+	for j := 0; j < p.nv; j++ {
+		free := true
+		for i := range p.off.b {
+			if p.off.a[i][j] != 0 {
+				free = false
+				break
+			}
+		}
+		moved[j%2] = moved[j%2] || !free
+		l := j / 2
+		if j%2 == 0 {
+			layers = append(layers, LayerComp{Layer: p.layers[l], MeanScale: [2]float64{p.meanScale[j], p.meanScale[j+1]}})
+		}
+		a := AxisComp{Scale: art[j] / toPPM, Factor: 1 + art[j]/toPPM, Net: x[j] / toPPM, Free: free}
+		if j%2 == 0 {
+			layers[l].X = a
+		} else {
+			layers[l].Y = a
+		}
+	}
+	return layers, moved
+}
+
+// notes explains the result: that only differences matter, a rounding that
+// broke the budget, axes that move no offset, and the free values.
+func (p *compProblem) notes(free int, roundedOK bool, moved [2]bool) []string {
+	notes := []string{"only the difference of two layers' scale compensation across the coupled lines moves a broadside offset"}
 	if !roundedOK {
-		res.Notes = append(res.Notes, "no rounding of the compensation to the step keeps every layer within the drill budget; the nearest multiples are shown")
+		notes = append(notes, "no rounding of the compensation to the step keeps every layer within the drill budget; the nearest multiples are shown")
 	}
 	var freeAxes []string
 	for a, name := range []string{"X", "Y"} {
-		if !ax[a] {
+		if !moved[a] {
 			freeAxes = append(freeAxes, name)
 		}
 	}
 	if len(freeAxes) > 0 {
-		res.Notes = append(res.Notes, fmt.Sprintf("no site's offset has a %s component (every coupled line runs along %s): %s compensation moves no offset and is set by %s",
-			strings.Join(freeAxes, " or "), strings.Join(freeAxes, " or "), strings.Join(freeAxes, " and "), commonRule(budget > 0)))
+		notes = append(notes, fmt.Sprintf("no site's offset has a %s component (every coupled line runs along %s): %s compensation moves no offset and is set by %s",
+			strings.Join(freeAxes, " or "), strings.Join(freeAxes, " or "), strings.Join(freeAxes, " and "), commonRule(p.budget > 0)))
 	}
-	if res.Free > 0 {
-		res.Notes = append(res.Notes, fmt.Sprintf("%d of the %d values are free (the common part) and were set by %s", res.Free, nv, commonRule(budget > 0)))
+	if free > 0 {
+		notes = append(notes, fmt.Sprintf("%d of the %d values are free (the common part) and were set by %s", free, p.nv, commonRule(p.budget > 0)))
 	}
-	return res, nil
+	return notes
 }
 
 // leastSquares returns the z minimising Σ (b_i + a_i·z)², by Cholesky on
@@ -548,6 +675,7 @@ func leastSquares(r *linRows, n int) ([]float64, bool) {
 	return mat.Col(nil, 0, &z), true
 }
 
+// commonRule names how the common part is set, for the notes.
 func commonRule(budget bool) string {
 	if budget {
 		return "the drill budget (best registration to the drilled holes)"
@@ -555,6 +683,7 @@ func commonRule(budget bool) string {
 	return "the smallest compensation"
 }
 
+// stats returns the largest |e_i| and the root mean square of e (0 for none).
 func stats(e []float64) (worst, rms float64) {
 	if len(e) == 0 {
 		return 0, 0
@@ -567,6 +696,8 @@ func stats(e []float64) (worst, rms float64) {
 	return worst, math.Sqrt(ss / float64(len(e)))
 }
 
+// objective returns the value of o over the rows r at x: the largest |row|
+// or their root mean square.
 func objective(o Objective, r *linRows, x []float64) float64 {
 	if o == Worst {
 		return worstAbs(r, x)
@@ -579,6 +710,7 @@ func objective(o Objective, r *linRows, x []float64) float64 {
 	return math.Sqrt(ss / math.Max(1, float64(len(r.b))))
 }
 
+// worstAbs returns the largest |row| of r at x.
 func worstAbs(r *linRows, x []float64) float64 {
 	var w float64
 	for i := range r.b {

@@ -105,10 +105,12 @@ func (r Robust) String() string {
 
 // Default robust settings.
 const (
-	// DefaultHuberC is the Rayleigh 95 % point in units of σ (FACTS item 7):
-	// a target's radial residual, for independent N(0, σ) errors in x and y,
-	// exceeds 2.4477σ with probability 5 %, so an inlier is down-weighted by the
-	// Huber function only that often.
+	// DefaultHuberC is the Rayleigh 95 % point in units of σ: a target's
+	// radial residual, for independent N(0, σ) errors in x and y, has the
+	// Rayleigh distribution F(r) = 1 − exp(−r²/2σ²), so it exceeds
+	// r_p = σ·√(−2 ln(1 − p)) = 2.4477σ at p = 0.95 with probability 5 %
+	// [calculated here from that closed form], and an inlier is down-weighted
+	// by the Huber function only that often.
 	DefaultHuberC = 2.4477
 	// DefaultTukeyC is the biweight constant with 95 % efficiency at the
 	// normal for one-dimensional residuals (Holland & Welsch 1977, Commun.
@@ -119,7 +121,7 @@ const (
 	// exp(−4²/2) = 3.4e-4 (Rayleigh tail), about once in 3000 targets.
 	DefaultOutlierLimit = 4.0
 	// rayleighMedian converts the median radial residual to σ: the Rayleigh
-	// median is σ·√(2 ln 2) = 1.1774σ (FACTS item 7).
+	// median is σ·√(2 ln 2) = 1.1774σ (r_p above at p = 1/2).
 	rayleighMedian = 1.1774100225154747
 	// MaxCondition bounds the condition number of the column-equilibrated
 	// normal matrix. Above it the targets (too few, nearly on one line, or far
@@ -421,7 +423,7 @@ func robustWeight(r Robust, u, c float64) float64 {
 }
 
 // robustScale estimates σ in two steps. It starts from the median radial
-// residual, σ̂ = med|r|/1.1774 (the Rayleigh median, FACTS item 7), which
+// residual, σ̂ = med|r|/1.1774 (the Rayleigh median σ·√(2 ln 2)), which
 // ignores up to half the targets but scatters by some 15 % with 25 targets;
 // it then refines σ̂ as the root mean square of the residuals within
 // lim·σ̂, σ̂² = Σ|r|²/(2n' − p) over those n' targets, until that set is

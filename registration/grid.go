@@ -49,51 +49,6 @@ func locate(nodes []float64, v float64) (int, float64) {
 	return i, (v - nodes[i]) / (nodes[i+1] - nodes[i])
 }
 
-// Column is a CSV header cell of the form "name [unit]".
-type Column struct {
-	Name   string
-	Unit   string
-	Factor float64 // SI per unit
-}
-
-// ParseHeader reads the header cells "name [unit]" of a CSV file. kinds gives the
-// unit kind of each column that needs one; other columns may not carry a unit.
-// It returns the columns by name.
-func ParseHeader(header []string, kinds map[string]unit.Kind) (map[string]int, []Column, error) {
-	idx := map[string]int{}
-	cols := make([]Column, len(header))
-	for i, h := range header {
-		h = strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))
-		name, u := h, ""
-		if a := strings.IndexByte(h, '['); a >= 0 {
-			b := strings.IndexByte(h, ']')
-			if b < a {
-				return nil, nil, fmt.Errorf("column %d %q: unclosed [unit]", i+1, h)
-			}
-			name, u = strings.TrimSpace(h[:a]), strings.TrimSpace(h[a+1:b])
-		}
-		c := Column{Name: name, Unit: u, Factor: 1}
-		if k, ok := kinds[name]; ok {
-			if u == "" {
-				return nil, nil, fmt.Errorf("column %d %q: the header needs a unit, as in %q (%s)", i+1, h, name+" [mil]", unit.Accepted(k))
-			}
-			f, ok := unit.Factor(k, u)
-			if !ok {
-				return nil, nil, fmt.Errorf("column %d %q: unknown %s unit %q (want %s)", i+1, h, k, u, unit.Accepted(k))
-			}
-			c.Factor = f
-		} else if u != "" {
-			return nil, nil, fmt.Errorf("column %d %q: this column takes no unit", i+1, h)
-		}
-		if _, dup := idx[name]; dup {
-			return nil, nil, fmt.Errorf("column %d %q: duplicate column", i+1, h)
-		}
-		idx[name] = i
-		cols[i] = c
-	}
-	return idx, cols, nil
-}
-
 // CSVError is a bad cell or row of a CSV file.
 type CSVError struct {
 	File   string
@@ -113,8 +68,9 @@ func (e *CSVError) Error() string {
 }
 func (e *CSVError) Unwrap() error { return e.Err }
 
-// Cell parses a numeric cell in the column's unit, returning SI.
-func Cell(file string, row int, col Column, s string) (float64, error) {
+// Cell parses a numeric cell in the column's unit (see unit.ParseHeader),
+// returning SI.
+func Cell(file string, row int, col unit.Column, s string) (float64, error) {
 	v, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
 	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
 		return 0, &CSVError{file, row, col.Name, fmt.Errorf("%q is not a finite number", s)}
@@ -134,7 +90,7 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 		return nil, &CSVError{File: file, Err: fmt.Errorf("reading the header: %w", err)}
 	}
 	kinds := map[string]unit.Kind{"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length}
-	idx, cols, err := ParseHeader(header, kinds)
+	idx, cols, err := unit.ParseHeader(header, kinds)
 	if err != nil {
 		return nil, &CSVError{File: file, Row: 1, Err: err}
 	}

@@ -6,9 +6,13 @@ import (
 	"math"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/unit"
 )
 
-// TermKind names one of the six affine terms.
+// TermKind names one of the six affine terms. The terms are listed once, in
+// the table behind Info; everything that reads, writes or shows a term (the
+// job loader, the fit output, the contributor writer) walks that table, and
+// Basis gives each term's displacement.
 type TermKind int
 
 const (
@@ -21,14 +25,70 @@ const (
 	NumTerms = 6
 )
 
-var termNames = [NumTerms]string{"offset_x", "offset_y", "rotation", "scale_x", "scale_y", "skew"}
+// TermInfo describes a term: its name in files and outputs, the quantity it
+// measures and the unit it is shown in.
+type TermInfo struct {
+	Key  string    // job-file key and output column, e.g. "scale_x"
+	Kind unit.Kind // unit.Length, unit.Angle or unit.Strain
+	// Unit is the unit in which tables and written files show the term. A
+	// length term has none here: it follows the output length unit (see
+	// TermKind.Unit).
+	Unit string
+}
+
+// terms is the term table, one row per TermKind. A term added to the
+// constants without a row here gets an empty one, which TestTermTable
+// rejects, as it rejects a term without a Basis.
+var terms = [NumTerms]TermInfo{
+	OffsetX:  {"offset_x", unit.Length, ""},
+	OffsetY:  {"offset_y", unit.Length, ""},
+	Rotation: {"rotation", unit.Angle, "urad"},
+	ScaleX:   {"scale_x", unit.Strain, "ppm"},
+	ScaleY:   {"scale_y", unit.Strain, "ppm"},
+	Skew:     {"skew", unit.Strain, "ppm"},
+}
+
+// Info returns the table entry of term k. It panics for a k outside
+// [0, NumTerms), which is a programming error.
+func (k TermKind) Info() TermInfo { return terms[k] }
 
 // String returns the job-file key of the term, e.g. "scale_x".
 func (k TermKind) String() string {
 	if k >= 0 && int(k) < NumTerms {
-		return termNames[k]
+		return terms[k].Key
 	}
 	return fmt.Sprintf("TermKind(%d)", int(k))
+}
+
+// Unit returns the unit term k is shown in under the output choice o: the
+// output length unit for an offset, the table's unit otherwise.
+func (k TermKind) Unit(o unit.Output) string {
+	if terms[k].Kind == unit.Length {
+		return o.Length()
+	}
+	return terms[k].Unit
+}
+
+// JSONKey returns the key of term k in JSON outputs, which are SI with the
+// unit in the key: "offset_x_m", "rotation_rad", and "scale_x" for a strain.
+func (k TermKind) JSONKey() string {
+	switch terms[k].Kind {
+	case unit.Length:
+		return terms[k].Key + "_m"
+	case unit.Angle:
+		return terms[k].Key + "_rad"
+	}
+	return terms[k].Key
+}
+
+// TermByKey returns the term whose job-file key is key.
+func TermByKey(key string) (TermKind, bool) {
+	for k := range terms {
+		if terms[k].Key == key {
+			return TermKind(k), true
+		}
+	}
+	return 0, false
 }
 
 // Dist is the distribution of a term across panels.

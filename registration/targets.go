@@ -63,7 +63,7 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		"x": unit.Length, "y": unit.Length, "dx": unit.Length, "dy": unit.Length,
 		"x_meas": unit.Length, "y_meas": unit.Length,
 	}
-	idx, cols, err := ParseHeader(header, kinds)
+	idx, cols, err := unit.ParseHeader(header, kinds)
 	if err != nil {
 		return nil, &CSVError{File: file, Row: 1, Err: err}
 	}

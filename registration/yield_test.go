@@ -401,6 +401,7 @@ func BenchmarkMonteCarlo(b *testing.B) {
 	const trials = 10000
 	for _, workers := range []int{1, 2} {
 		b.Run(map[int]string{1: "workers=1", 2: "workers=2"}[workers], func(b *testing.B) {
+			b.ReportAllocs()
 			for b.Loop() {
 				if _, err := y.MonteCarlo(context.Background(), MCSettings{Trials: trials, Seed: 1, Workers: workers}); err != nil {
 					b.Fatal(err)

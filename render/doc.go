@@ -61,10 +61,10 @@
 // neutral background. EncodePNG writes 8-bit RGB, deflating bands of rows
 // on all cores (see encodeRGB).
 //
-// Figures on the 2-core development machine, quiet (go test -bench .
-// ./render/): the field raster of a 3000 x 4000 pixel plot area takes about
-// 57 ms on one core (FieldGrid about 66 ms); a complete 3000 pixel wide map
-// of 10,000 sites — field, outlines, bars, ten markers, colour bar and PNG
-// encoding — about 0.21 s (BenchmarkMap10k), of which encoding is about
-// 0.1 s. The PNG of that map is about 2 MB.
+// The benchmarks measure the speed (go test -bench . ./render/):
+// BenchmarkField, the field raster of a 3000 x 4000 pixel plot area;
+// BenchmarkMap10k, a complete 3000 pixel wide map of 10,000 sites — field,
+// outlines, bars, ten markers, colour bar and PNG encoding; BenchmarkEncode,
+// the encoding alone; BenchmarkPlot, a three-panel sweep plot. The figures
+// are kept in the README's speed table.
 package render

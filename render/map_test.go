@@ -268,6 +268,7 @@ func BenchmarkField(b *testing.B) {
 	c := newCanvas(3000, 4000, 30)
 	v := &View{c: c, area: c.Bounds(), ext: panel, s: 3000 / panel.Dx(), inv: panel.Dx() / 3000}
 	b.Run("func", func(b *testing.B) {
+		b.ReportAllocs()
 		for b.Loop() {
 			v.Field(v.Extent(), demoField, Diverging, -12e-6, 12e-6)
 		}
@@ -275,6 +276,7 @@ func BenchmarkField(b *testing.B) {
 	})
 	b.Run("grid", func(b *testing.B) {
 		g := NewGrid(v.Extent(), 181, 241, demoField)
+		b.ReportAllocs()
 		for b.Loop() {
 			v.FieldGrid(g, Diverging, -12e-6, 12e-6)
 		}
@@ -284,6 +286,7 @@ func BenchmarkField(b *testing.B) {
 // BenchmarkEncode compares PNG encoding of a finished map.
 func BenchmarkEncode(b *testing.B) {
 	m := drawDemoMap(3000, 10000)
+	b.ReportAllocs()
 	for b.Loop() {
 		if err := m.EncodePNG(io.Discard); err != nil {
 			b.Fatal(err)

@@ -9,8 +9,10 @@ import (
 // Ticks returns the tick values for an axis from lo to hi: the multiples of
 // a step of 1, 2 or 5 times a power of ten that lie in [lo, hi], with the
 // smallest such step that gives at most maxTicks of them (maxTicks below 2
-// is taken as 2). It returns nil if lo or hi is not finite or hi < lo, and
-// the single value lo with step 0 if hi == lo.
+// is taken as 2). It returns nil if lo or hi is not finite or hi < lo, the
+// single value lo with step 0 if hi == lo, and just lo and hi when the range
+// is too narrow for its magnitude to count steps in (below 2⁻⁵² of it) or
+// wider than a float64 holds.
 func Ticks(lo, hi float64, maxTicks int) (ticks []float64, step float64) {
 	if math.IsNaN(lo) || math.IsNaN(hi) || math.IsInf(lo, 0) || math.IsInf(hi, 0) || hi < lo {
 		return nil, 0
@@ -21,6 +23,11 @@ func Ticks(lo, hi float64, maxTicks int) (ticks []float64, step float64) {
 	maxTicks = max(maxTicks, 2)
 	raw := (hi - lo) / float64(maxTicks)
 	mag := math.Pow(10, math.Floor(math.Log10(raw)))
+	if math.IsInf(raw, 0) || math.Max(math.Abs(lo), math.Abs(hi))/mag > 1<<52 {
+		// The range is a sliver of its magnitude (or overflows): multiples
+		// of a step cannot be counted in an int; label the ends only.
+		return []float64{lo, hi}, hi - lo
+	}
 	for {
 		for _, m := range []float64{1, 2, 5} {
 			step = m * mag

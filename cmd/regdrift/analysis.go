@@ -13,8 +13,10 @@ import (
 	"github.com/regdrift/regdrift/render"
 )
 
-// lengthUnit is the output length unit chosen with --units.
+// lengthUnit is the output unit choice of --units (unit.Output), with its
+// names and sizes at hand.
 type lengthUnit struct {
+	unit.Output
 	name   string  // "mil" or "um"
 	factor float64 // metres per unit
 	panel  string  // unit of panel coordinates: "in" or "mm"
@@ -22,13 +24,11 @@ type lengthUnit struct {
 }
 
 func parseUnits(s string) (lengthUnit, error) {
-	switch s {
-	case "mil", "":
-		return lengthUnit{"mil", unit.Mil, "in", unit.Inch}, nil
-	case "um", "µm":
-		return lengthUnit{"um", unit.Micrometre, "mm", unit.Millimetre}, nil
+	o, err := unit.ParseOutput(s)
+	if err != nil {
+		return lengthUnit{}, usageErr("--units: %v", err)
 	}
-	return lengthUnit{}, usageErr("--units: want mil or um, not %q", s)
+	return lengthUnit{o, o.Length(), o.LengthSI(), o.Panel(), o.PanelSI()}, nil
 }
 
 // siteResult is the drift analysis of one site.

@@ -15,6 +15,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
@@ -406,19 +407,7 @@ func (cs *compState) writeCSV(w io.Writer, lu lengthUnit) error {
 // change of each layer, which is what the job's model needs to map the
 // compensated build.
 func (cs *compState) writeTOML(w io.Writer) error {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# Artwork scale compensation recommended by regdrift comp for %s\n", cs.job.File)
-	fmt.Fprintf(&b, "# (objective %s; common part: %s).\n", cs.res.Objective, cs.res.Common)
-	b.WriteString("# Each block is the net change of the layer's scale term, (f − 1)(1 + s) for the\n" +
-		"# artwork factor f and the layer's mean movement s; the factor itself is in the\n" +
-		"# comment. Include this file in the job to map the compensated build.\n")
-	for _, l := range cs.res.Layers {
-		fmt.Fprintf(&b, "\n# %s: artwork factor X %.9f (%+.2f ppm), Y %.9f (%+.2f ppm)\n", l.Layer, l.X.Factor, l.X.Scale/1e-6, l.Y.Factor, l.Y.Scale/1e-6)
-		fmt.Fprintf(&b, "[[contributor]]\nname    = %s\nlayers  = [%s]\n", strconv.Quote("artwork compensation "+l.Layer), strconv.Quote(l.Layer))
-		fmt.Fprintf(&b, "scale_x = %s\nscale_y = %s\n", tomlValue(l.X.Net, unit.Strain, "ppm"), tomlValue(l.Y.Net, unit.Strain, "ppm"))
-	}
-	_, err := io.WriteString(w, b.String())
-	return err
+	return job.WriteCompensation(w, cs.job.File, cs.res)
 }
 
 func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, paths []string) {

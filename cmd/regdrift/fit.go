@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/csv"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -15,6 +16,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/render"
@@ -201,15 +203,36 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	return nil
 }
 
-// termsJSON holds the six terms with SI units in the keys; nil is a term
-// that was not estimated (or a standard error without redundancy).
-type termsJSON struct {
-	OffsetX  *float64 `json:"offset_x_m"`
-	OffsetY  *float64 `json:"offset_y_m"`
-	Rotation *float64 `json:"rotation_rad"`
-	ScaleX   *float64 `json:"scale_x"`
-	ScaleY   *float64 `json:"scale_y"`
-	Skew     *float64 `json:"skew"`
+// termsJSON holds the terms, keyed in JSON by the term table with their SI
+// unit ("offset_x_m", "rotation_rad", "scale_x"), in term order; nil is a
+// term that was not estimated (or a standard error without redundancy).
+type termsJSON [registration.NumTerms]*float64
+
+func (t termsJSON) MarshalJSON() ([]byte, error) {
+	b := []byte{'{'}
+	for k, v := range t {
+		if k > 0 {
+			b = append(b, ',')
+		}
+		key, _ := json.Marshal(registration.TermKind(k).JSONKey())
+		val, err := json.Marshal(v)
+		if err != nil {
+			return nil, err
+		}
+		b = append(append(append(b, key...), ':'), val...)
+	}
+	return append(b, '}'), nil
+}
+
+func (t *termsJSON) UnmarshalJSON(data []byte) error {
+	var m map[string]*float64
+	if err := json.Unmarshal(data, &m); err != nil {
+		return err
+	}
+	for k := range t {
+		t[k] = m[registration.TermKind(k).JSONKey()]
+	}
+	return nil
 }
 
 func newTermsJSON(v [registration.NumTerms]float64, m registration.FitModel, zeroUnfitted bool) termsJSON {
@@ -227,7 +250,7 @@ func newTermsJSON(v [registration.NumTerms]float64, m registration.FitModel, zer
 		}
 		p[k] = &x
 	}
-	return termsJSON{p[0], p[1], p[2], p[3], p[4], p[5]}
+	return termsJSON(p)
 }
 
 type fitJSON struct {
@@ -282,15 +305,20 @@ func (r *fitRun) summary() *fitSummary {
 	return s
 }
 
-// termUnit returns the output unit name and kind of term k.
+// termUnit returns the output unit name and kind of term k (the term table of
+// package registration).
 func termUnit(k registration.TermKind, lu lengthUnit) (string, unit.Kind) {
-	switch k {
-	case registration.OffsetX, registration.OffsetY:
-		return lu.name, unit.Length
-	case registration.Rotation:
-		return "urad", unit.Angle
+	return k.Unit(lu.Output), k.Info().Kind
+}
+
+// termHeader returns the table header cells of the terms, "offset_x [mil]\t...".
+func termHeader(lu lengthUnit) string {
+	var b strings.Builder
+	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+		u, _ := termUnit(k, lu)
+		fmt.Fprintf(&b, "%s [%s]\t", k, u)
 	}
-	return "ppm", unit.Strain
+	return b.String()
 }
 
 func fmtG(v float64, digits int) string {
@@ -384,58 +412,10 @@ func writeGridCSV(w io.Writer, g *registration.Grid, lu lengthUnit) error {
 	return cw.Error()
 }
 
-// tomlValue formats v (SI) in unit u with six significant digits, as the job
-// loader reads it back.
-func tomlValue(v float64, kind unit.Kind, u string) string {
-	return strconv.Quote(strconv.FormatFloat(unit.In(v, kind, u), 'g', 6, 64) + " " + u)
-}
-
 // writeContributors writes the lot as [[contributor]] blocks with units on
-// every value.
+// every value (job.WriteContributors).
 func (r *fitRun) writeContributors(w io.Writer, lu lengthUnit) error {
-	var b strings.Builder
-	fmt.Fprintf(&b, "# Measured lot movement, fitted by regdrift fit from %s\n", r.file)
-	fmt.Fprintf(&b, "# (%s model about the datum (%s, %s), robust: %s).\n", r.set.Model,
-		unit.Format(r.set.Datum.X, unit.Length, lu.panel, 3), unit.Format(r.set.Datum.Y, unit.Length, lu.panel, 3), r.set.Robust)
-	b.WriteString("# Each term is the lot mean and the panel-to-panel standard deviation of the\n" +
-		"# fitted terms (which includes each fit's own estimation error). Include this\n" +
-		"# file from a job (include = [\"FILE\"]) and leave out the job's own\n" +
-		"# contributors for these layers, or they count twice. The job's datum must be\n" +
-		"# the fit's datum.\n")
-	for _, l := range r.lots {
-		upper, lower, rel := registration.SplitLayer(l.Layer)
-		b.WriteString("\n[[contributor]]\n")
-		if rel {
-			fmt.Fprintf(&b, "# measured relative to %s: this moves %s against %s (and against the drilled holes)\n", lower, upper, lower)
-		}
-		fmt.Fprintf(&b, "name   = %s\n", strconv.Quote(fmt.Sprintf("measured %s (lot of %d panels)", l.Layer, l.Panels)))
-		fmt.Fprintf(&b, "layers = [%s]\n", strconv.Quote(upper))
-		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-			if !l.Model.Estimates(k) {
-				continue
-			}
-			u, kind := termUnit(k, lu)
-			fmt.Fprintf(&b, "%-8s = { mean = %s, sigma = %s }\n", k, tomlValue(l.Mean[k], kind, u), tomlValue(l.SD[k], kind, u))
-		}
-		// The pooled residual scale, σ0² = Σ dof·σ0_i² / Σ dof over the
-		// layer's fits, is what the affine model leaves per target and axis;
-		// it includes the measurement noise, so it is offered, not applied.
-		var ss, dof float64
-		for _, f := range r.fits {
-			if f.Layer == l.Layer && f.DOF > 0 {
-				ss += float64(f.DOF) * f.Sigma0 * f.Sigma0
-				dof += float64(f.DOF)
-			}
-		}
-		if dof > 0 {
-			fmt.Fprintf(&b, "# site_sigma = %s   # pooled fit residual per axis; includes measurement noise\n",
-				tomlValue(math.Sqrt(ss/dof), unit.Length, lu.name))
-		}
-		fmt.Fprintf(&b, "# residual = %s   # pooled non-affine residual map written by regdrift fit\n",
-			strconv.Quote("residual-grid-"+l.Layer+".csv"))
-	}
-	_, err := io.WriteString(w, b.String())
-	return err
+	return job.WriteContributors(w, r.file, &r.set, r.fits, r.lots, lu.Output)
 }
 
 func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
@@ -445,7 +425,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	}
 	fmt.Fprintf(w, ")\n")
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "panel\tlayer\tn\toffset_x [%s]\toffset_y [%s]\trotation [urad]\tscale_x [ppm]\tscale_y [ppm]\tskew [ppm]\trms [%s]\tmax [%s]\toutliers\t\n", lu.name, lu.name, lu.name, lu.name)
+	fmt.Fprintf(tw, "panel\tlayer\tn\t%srms [%s]\tmax [%s]\toutliers\t\n", termHeader(lu), lu.name, lu.name)
 	for _, f := range r.fits {
 		fmt.Fprintf(tw, "%s\t%s\t%d\t", f.Panel, f.Layer, f.N)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
@@ -466,7 +446,7 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	tw.Flush()
 	fmt.Fprintf(w, "\nlot (mean ± panel-to-panel sigma):\n")
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "layer\tpanels\toffset_x [%s]\toffset_y [%s]\trotation [urad]\tscale_x [ppm]\tscale_y [ppm]\tskew [ppm]\t\n", lu.name, lu.name)
+	fmt.Fprintf(tw, "layer\tpanels\t%s\n", termHeader(lu))
 	for _, l := range r.lots {
 		fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
 		for k := registration.TermKind(0); k < registration.NumTerms; k++ {

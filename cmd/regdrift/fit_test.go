@@ -42,7 +42,7 @@ func TestFitCommand(t *testing.T) {
 	}
 	var flagged []string
 	for _, f := range s.Fits {
-		if f.Terms.ScaleX == nil || f.StdErr.Skew == nil || f.Sigma0M == nil || f.RMSM <= 0 || f.MaxM < f.RMSM {
+		if f.Terms[registration.ScaleX] == nil || f.StdErr[registration.Skew] == nil || f.Sigma0M == nil || f.RMSM <= 0 || f.MaxM < f.RMSM {
 			t.Errorf("fit %s/%s incomplete: %+v", f.Panel, f.Layer, f)
 		}
 		for _, o := range f.Outliers {
@@ -97,8 +97,8 @@ func TestFitCommand(t *testing.T) {
 		}
 		found++
 		l := lots[c.Layers[0]]
-		mean := []*float64{l.Mean.OffsetX, l.Mean.OffsetY, l.Mean.Rotation, l.Mean.ScaleX, l.Mean.ScaleY, l.Mean.Skew}
-		sd := []*float64{l.Sigma.OffsetX, l.Sigma.OffsetY, l.Sigma.Rotation, l.Sigma.ScaleX, l.Sigma.ScaleY, l.Sigma.Skew}
+		mean := l.Mean
+		sd := l.Sigma
 		for k := range mean {
 			tm := c.Terms[k]
 			if math.Abs(tm.Mean-*mean[k]) > 1e-5*math.Abs(*mean[k]) || math.Abs(tm.Spread-*sd[k]) > 1e-5*math.Abs(*sd[k]) {
@@ -192,7 +192,7 @@ func TestFitRelativeLayer(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &s); err != nil {
 		t.Fatal(err)
 	}
-	if len(s.Lot) != 1 || s.Lot[0].Layer != "L3-L4" || math.Abs(*s.Lot[0].Mean.ScaleX+120e-6) > 1e-10 || *s.Lot[0].Sigma.ScaleX > 1e-10 {
+	if len(s.Lot) != 1 || s.Lot[0].Layer != "L3-L4" || math.Abs(*s.Lot[0].Mean[registration.ScaleX]+120e-6) > 1e-10 || *s.Lot[0].Sigma[registration.ScaleX] > 1e-10 {
 		t.Fatalf("lot %+v", s.Lot)
 	}
 	toml, err := os.ReadFile(contrib)

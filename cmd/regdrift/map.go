@@ -311,7 +311,7 @@ func (z mapZone) bounds() panel.Rect { return z.r }
 // zones returns one zone per array, then the whole usable area.
 func (a *analysis) zones() []mapZone {
 	var zs []mapZone
-	for ai, ext := range a.job.arrayExtents() {
+	for ai, ext := range a.job.ArrayExtents() {
 		if sec, u, ok := a.dominant(func(r *siteResult) bool { return r.Site.Array == ai }); ok {
 			zs = append(zs, mapZone{ext, sec, u})
 		}

@@ -87,11 +87,10 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		var fe *section.FieldError
 		if errors.As(err, &fe) {
-			src := j.sectionSrc[si]
 			if fe.Key == "offsets" {
 				return usageErr("--offsets: %v", fe.Err)
 			}
-			return src.err(fe.Key, fe.Err)
+			return badInput(j.SectionError(si, fe.Key, fe.Err))
 		}
 		return err
 	}

@@ -593,7 +593,7 @@ func (ys *yieldSetup) zones() []fieldZone {
 		deg int
 	}
 	var out []fieldZone
-	for ai, ext := range j.arrayExtents() {
+	for ai, ext := range j.ArrayExtents() {
 		z := fieldZone{r: ext}
 		seen := map[key]bool{}
 		for i, st := range j.Sites {

@@ -30,10 +30,11 @@
 // copper slabs. A copper thickness of 0 is an ideal zero-thickness strip, a
 // line of nodes held at the conductor's potential; this is how the tests
 // reach Cohn's thin-strip formulas exactly rather than by extrapolating
-// thinner and thinner rectangles (a t/b = 1e−3 rectangle is still 0.26 %
-// high, DESIGN.md). Stripline domains end at the grounds' inner faces;
-// microstrip domains are closed by a grounded box 160 × (stack height + two
-// trace widths + nominal offset) away (TestOpenBoundary: doubling that
+// thinner and thinner rectangles (a t/b = 1e−3 rectangle of w/b = 1 still
+// has 0.26 % more capacitance than the zero-thickness strip; calculated here
+// with this solver at accuracy 1e−4). Stripline domains end at the grounds'
+// inner faces; microstrip domains are closed by a grounded box
+// 160 × (stack height + two trace widths + nominal offset) away (TestOpenBoundary: doubling that
 // distance changes C by 7e−5 and C0 by 1.3e−4, mesh change included; the
 // geometric grading makes the far box cost a few elements).
 //
@@ -113,39 +114,40 @@
 // Finite differences on such a graded, sloped grid lose the symmetry and the
 // variational error bound; a boundary-element method handles the open
 // microstrip boundary naturally but needs the layered-media Green's function
-// for five dielectrics; an adaptive solver (DESIGN.md: about 5,000 unknowns
-// and 0.3 s per solve to reach 0.05 %) spends its time discovering the
-// corners. Here the benchmark section reaches an extrapolated error of about
-// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh, in 12 to 24 ms per
-// offset (both media, all three levels).
+// for five dielectrics; an adaptive solver spends its time discovering the
+// corners. Here the demo section reaches an extrapolated error of about
+// 1e−4 at 4,000 to 7,000 unknowns on the fine mesh (both media, all three
+// levels); BenchmarkSolve measures the time per offset.
 //
 // # Convergence study
 //
-// The benchmark section of issue 5 (L2 ground / prepreg 20 mil εr 3.55 / L3
+// The demo section (invented: L2 ground / prepreg 20 mil εr 3.55 / L3
 // 1.2 mil / core 5 mil εr 3.00 / L4 1.2 mil / prepreg 20 mil εr 3.55 / L5
 // ground; traces 14 mil, 0.6 mil etch) at zero offset, against a solve at
 // accuracy 2e−5 (282,392 unknowns, estimated error 2e−7). Single meshes, then
-// Richardson triples; errors relative (C12 relative to itself). Times on the
-// shared 2-core machine (load about 1; the first solve of each level includes
-// building its dissection; "band" is the half bandwidth of the column-by-column
-// numbering), from TestConvergenceStudy (go test -v -run ConvergenceStudy):
+// Richardson triples; errors relative (C12 relative to itself); "band" is the
+// half bandwidth of the column-by-column numbering. From TestConvergenceStudy
+// (go test -v -run ConvergenceStudy, which also logs the time per level and
+// checks the order, the gain of the extrapolation and its convergence):
 //
-//	level  unknowns  band     C11 pF/m    err C11    err C12  err C0_11        est  ms
-//	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02              0.7
-//	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02              1.2
-//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02              2.4
-//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03              7.4
-//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03             16.7
-//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03             34.7
+//	level  unknowns  band     C11 pF/m    err C11    err C12  err C0_11        est
+//	0.35        192    13    161.14838  +5.32e-02  +5.02e-02  +5.19e-02
+//	0.50        414    19    157.67821  +3.05e-02  +2.94e-02  +2.96e-02
+//	0.70        884    27    155.35535  +1.53e-02  +1.40e-02  +1.47e-02
+//	1.00       2094    43    154.11522  +7.19e-03  +6.43e-03  +6.90e-03
+//	1.40       4284    60    153.60391  +3.85e-03  +3.39e-03  +3.69e-03
+//	2.00      10029    94    153.29857  +1.85e-03  +1.61e-03  +1.77e-03
+//	2.80      21404   137    153.15911  +9.43e-04  +8.18e-04  +9.02e-04
 //	Richardson triples (L/√2, L, 2L), extrapolated from L and 2L (unknowns of 2L):
-//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03   5.9
-//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04  13.4
-//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04  34.3
-//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04 116.3
+//	0.50       2094    43    152.92755  -5.70e-04  -1.24e-03  -6.58e-04   7.83e-03
+//	0.70       4284    60    153.02009  +3.46e-05  -1.58e-04  +2.45e-05   4.08e-04
+//	1.00      10029    94    153.02635  +7.55e-05  +8.95e-06  +6.48e-05   2.19e-04
+//	1.40      21404   137    153.01085  -2.58e-05  -3.94e-05  -2.61e-05   2.48e-04
 //
 // (Zero offset lies in a transition window: each level is the weighted mean
-// of two topologies, and the time covers both.) Single meshes converge as
-// L⁻² (h²); the extrapolation gains two orders of magnitude at once. On this
+// of two topologies.) Single meshes converge as L⁻² (h²; observed order 1.86
+// to 2.12 from level 0.5 on); the extrapolation gains 10 to 40 times over
+// the finer mesh of its pair. On this
 // table the estimate is 2.9 to 10 times the true error (C12's error taken
 // relative to √(C11·C22), as the estimate is). Over a wider calibration set
 // (the demo section at 0, 2 and 5 mil, two edge-coupled pairs, the offset
@@ -160,51 +162,61 @@
 //
 // # Published checks
 //
-// At accuracy 2e−4 (published_test.go): Cohn 1954 centred thin stripline
-// (10 cases, w/b 0.25 to 3): |error| ≤ 3.9e−5. Cohn 1955 edge-coupled (5
-// cases): ≤ 5.8e−5. Cohn 1960 broadside: ≤ 8.9e−5 for w/s ≥ 2; below that
-// the formula's own deviation: Z0e reads 0.20 % low at w/s = 1 and 1.35 % low
-// at w/s = 0.5 (FACTS.md lists 0.3 % and 1.7 % from another solve; the test
-// accepts ±0.15 % and ±0.4 % around those), Z0o within 0.17 %. Hammerstad &
-// Jensen 1980 microstrip (15 cases, w/h 0.2 to 5, εr 2.2 to 10): Z0 within
-// 9.4e−4, εeff within 2.1e−3. Parallel plate plus Cohn's edge fringing for
-// w/b = 20: 2e−6. Pozar §7.6 coupled-line relations on synthetic and solved
-// sections.
+// At accuracy 2e−4 (published_test.go; sources in REFERENCES.md): Cohn 1954
+// centred thin stripline (10 cases, w/b 0.25 to 3): |error| ≤ 3.9e−5. Cohn
+// 1955 edge-coupled (5 cases): ≤ 5.8e−5. Cohn 1960 broadside: ≤ 8.9e−5 for
+// w/s ≥ 2; below that the formula's own deviation at s/b = 0.1: Z0e reads
+// 0.20 % low at w/s = 1 and 1.35 % low at w/s = 0.5, as an independent
+// finite-element solve found (0.21 % and 1.35 %), Z0o within 0.17 %. (At
+// s/b = 0.2 this solver finds 0.27 % and 1.73 %, converged to 1e−5, where
+// the independent solve listed 0.31 % and 1.77 %; the test does not use
+// those.) Hammerstad & Jensen 1980 microstrip at accuracy 1e−3 (15 cases,
+// w/h 0.2 to 5, εr 2.2 to 10): Z0 within 8.1e−4, εeff within 2.24e−3, most
+// of it the formula's own (at accuracy 2e−4 εeff stays within 2.07e−3).
+// Parallel plate plus Cohn's edge fringing for w/b = 20: 2e−6. Pozar §7.6
+// coupled-line relations on synthetic and solved sections.
 //
 // # Line parameters and the 4-port
 //
 // L = μ0·ε0·C0⁻¹ (Paul, Analysis of Multiconductor Transmission Lines, 2nd
 // ed., Wiley 2008, §3.2.4). The modes are the eigenvectors of L·C, computed as
 // the symmetric problem R·C·Rᵀ with L = Rᵀ·R (gonum mat.EigenSym), which stays
-// well conditioned when the modes are nearly degenerate. The 4-port comes from
-// the modal decomposition (Paul 2008, §7.2): each mode is a scalar line whose
-// admittance matrix is known in closed form; the 4 × 4 admittance matrix
-// follows by the voltage and current transformations, and
-// S = (I − zref·Y)(I + zref·Y)⁻¹ (Pozar, Microwave Engineering, 4th ed., 2012,
-// §4.3). Ports: 1 input (line 1 at z = 0), 2 through (line 1 at z = ℓ),
+// well conditioned when the modes are nearly degenerate; with one εr
+// everywhere the modes are degenerate ([Lines.Degenerate]) and the basis
+// reported is C's eigenvectors, for a symmetric pair the odd then the even
+// mode. The 4-port comes from the chain-parameter matrix of the modal
+// decomposition (Paul 2008, §6.2, §7.2) with the four ports' terminations
+// written into it, one 2 × 2 system that is regular at every length (an
+// admittance matrix has poles where a mode is a multiple of a half wave);
+// the waves follow from the port voltages (Pozar, Microwave Engineering, 4th
+// ed., 2012, §4.3). The peak-coupling frequency is the first maximum of
+// |S31| above zero, searched up to twice the higher quarter-wave frequency
+// of the two modes. Ports: 1 input (line 1 at z = 0), 2 through (line 1 at z = ℓ),
 // 3 coupled (line 2 at z = 0), 4 isolated (line 2 at z = ℓ).
+//
+// # Limits and faults
+//
+// [Section.Validate] rejects, as a [FieldError] naming the key, values no
+// printed board has: εr above [MaxEr] (100), f0 above [MaxFrequency]
+// (1 THz), a thickness, width, etch or coupled length above [MaxDimension]
+// (1 m), a reference impedance above 1 kΩ. An accuracy target whose meshes
+// exceed the node limit fails at once with a [ConvergenceError] matching
+// [ErrMeshLimit]; [FinestAccuracy] gives the finest target a section can
+// start at, [MinAccuracy] the finest worth parsing at all. A cache entry is
+// checked (format, solver version, key, SHA-256 of the payload, points in
+// order, regular file, size) and recomputed when damaged; a cache that
+// cannot be written leaves a [CacheWarning] on the curve, never a failed
+// solve.
 //
 // # Speed
 //
-// go test -run XXX -bench Sweep21 -benchtime 3x ./panel/section/ on the
-// shared 2-core machine at load about 1 (three runs of 3 sweeps each; CPU
-// time is the load-independent figure):
-//
-//	BenchmarkSweep21/acc=0.1%    0.12 to 0.13 s wall, 0.23 to 0.25 s CPU per 21-offset sweep (6,787 unknowns)
-//	BenchmarkSweep21/acc=0.05%   0.29 to 0.31 s wall, 0.56 to 0.60 s CPU (14,910 unknowns)
-//
-// With the band Cholesky they were 0.30 s wall, 0.60 s CPU and 1.35 s wall,
-// 2.45 s CPU. go test -bench . ./panel/section/:
-//
-//	BenchmarkSolve/offset=0      24 ms per offset (two topologies), 10 MB, 13,400 allocations
-//	BenchmarkSolve/offset=2mil   12 ms per offset, 7.0 MB, 8,200 allocations
-//	BenchmarkCoupling            13 to 25 ns per call, 0 allocations
-//
-// (A single Solve builds the dissections of its meshes; a sweep builds them
-// once for all offsets.) Peak resident memory of the whole benchmark run:
-// 53 to 71 MB (it depends on when the collector runs). The 0.05 % sweep now meets its 1 s target with the unchanged error
-// estimate, which is still conservative by a factor of several there (the
-// true error is about 1e−4 at the default level).
+// The benchmarks measure it (go test -bench . ./panel/section/:
+// BenchmarkSweep21 at 0.1 % and 0.05 %, BenchmarkSolve, BenchmarkCoupling);
+// the figures are in the README's speed table. A single Solve builds the
+// dissections of its meshes; a sweep builds them once for all offsets. The
+// 0.05 % sweep meets its 1 s target with the unchanged error estimate, which
+// is still conservative by a factor of several there (the true error is
+// about 1e−4 at the default level).
 //
 // BUG(section): the error estimate is not a bound (see above). The microstrip
 // box is grounded, not an exact open boundary (error about 1e−4). Losses,

@@ -51,7 +51,8 @@ type edgeRef struct {
 	right bool
 }
 
-// buildGeometry converts the stackup convention of DESIGN.md into domain bands.
+// buildGeometry converts the stackup convention (package doc, Conventions)
+// into domain bands.
 // s must be valid.
 func (s *Section) buildGeometry() *geometry {
 	ls := s.Stackup.Layers
@@ -98,8 +99,8 @@ func (s *Section) buildGeometry() *geometry {
 		if l.Kind == Copper {
 			// A copper slab: the trace stands on the face of the dielectric it was
 			// etched on, a core face if the slab touches exactly one core, else the
-			// dielectric below (DESIGN.md); the rest of the slab is resin of the
-			// dielectric on the far side (air for an outer layer).
+			// dielectric below (package doc, Conventions); the rest of the slab is
+			// resin of the dielectric on the far side (air for an outer layer).
 			footBelow := true // in stackup orientation
 			switch {
 			case isCore(i+1) && !isCore(i-1):

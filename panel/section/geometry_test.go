@@ -7,8 +7,8 @@ import (
 )
 
 // TestOpenBoundary: the microstrip's Dirichlet box is far enough that moving
-// it twice as far changes C by less than 0.1 % (issue 5). The box at distance
-// R truncates a dipole field, an error ∝ (h/R)².
+// it twice as far changes C by less than 0.1 % (the default accuracy). The
+// box at distance R truncates a dipole field, an error ∝ (h/R)².
 func TestOpenBoundary(t *testing.T) {
 	s := microstripSec(10*testMil, 20*testMil, 4.5)
 	var c [2][2][2]float64

@@ -40,7 +40,7 @@ func broadsideSec(b, w, s, er float64) *Section {
 	}, [2]Trace{{Layer: "S1", Width: w}, {Layer: "S2", Width: w}})
 }
 
-// demoSection is the benchmark section of the issue: L2 ground / prepreg
+// demoSection is the benchmark section: L2 ground / prepreg
 // 20 mil εr 3.55 / L3 1.2 mil / core 5 mil εr 3.00 / L4 1.2 mil / prepreg
 // 20 mil εr 3.55 / L5 ground; traces 14 mil with 0.6 mil etch; f0 2.45 GHz.
 // (An invented demo section, not a reference.)

@@ -39,7 +39,7 @@ func cohn1955(wb, sb float64) (ze, zo float64) {
 // zero-thickness strips of width w, separation s, between grounds b apart
 // (S. B. Cohn, "Characteristic impedances of broadside-coupled strip
 // transmission lines", IRE Trans. MTT-8, pp. 633–637, 1960; formula from
-// memory, see FACTS.md item 4): parametric in k,
+// memory, not re-checked against the paper; REFERENCES.md): parametric in k,
 // R = √((k·b/s − 1)/(b/(k·s) − 1)),
 // w/b = (1/π)[ln((1+R)/(1−R)) − (s/b)·ln((1+R/k)/(1−R/k))],
 // Z0e·√εr = (η0/2)·K(k')/K(k), Z0o·√εr = (η0·π/4)·(s/b)/atanh(k).

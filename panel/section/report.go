@@ -1,7 +1,7 @@
 package section
 
 // Report is the machine-readable form of a curve for `regdrift sweep
-// --json` (INTERFACE.md): SI values with the unit in the key.
+// --json`: SI values with the unit in the key.
 type Report struct {
 	Section     string        `json:"section"`
 	FrequencyHz float64       `json:"frequency_hz"`
@@ -20,12 +20,13 @@ type PointReport struct {
 	KL              float64       `json:"k_l"`
 	CouplingDB      float64       `json:"coupling_db"`
 	DirectivityDB   float64       `json:"directivity_db"`
-	PeakFrequencyHz float64       `json:"peak_frequency_hz"`
+	PeakFrequencyHz float64       `json:"peak_frequency_hz"`    // first maximum of the coupling; 0 if none below twice the higher quarter-wave frequency
 	ZEvenOhm        *float64      `json:"z_even_ohm,omitempty"` // when the section is symmetric at this offset
 	ZOddOhm         *float64      `json:"z_odd_ohm,omitempty"`
-	ZLineOhm        [2]float64    `json:"z_line_ohm"` // √(L_ii/C_ii)
-	ZModeOhm        [2]float64    `json:"z_mode_ohm"`
-	EpsEff          [2]float64    `json:"eps_eff"` // the two modes, ascending
+	ZLineOhm        [2]float64    `json:"z_line_ohm"`                 // √(L_ii/C_ii)
+	ZModeOhm        [2]float64    `json:"z_mode_ohm"`                 // mode order of eps_eff; degenerate modes: odd-like first
+	ModesDegenerate bool          `json:"modes_degenerate,omitempty"` // one εeff (one εr everywhere): any basis is a mode basis
+	EpsEff          [2]float64    `json:"eps_eff"`                    // the two modes, ascending
 	Convergence     ConvReport    `json:"convergence"`
 }
 
@@ -48,14 +49,14 @@ type LevelReport struct {
 	C0FPerM  [2][2]float64 `json:"c0_f_per_m"`
 }
 
-// Report returns the curve's points in the INTERFACE.md shape.
+// Report returns the curve's points in that JSON shape.
 func (c *Curve) Report() Report {
 	r := Report{Section: c.Section, FrequencyHz: c.Frequency, LengthM: c.Length, ZRefOhm: c.ZRef}
 	for _, p := range c.Points {
 		q := PointReport{
 			OffsetM: p.Offset, CFPerM: p.C, C0FPerM: p.C0, LHPerM: p.L, KC: p.KC, KL: p.KL,
 			CouplingDB: p.CouplingDB, DirectivityDB: p.DirectivityDB, PeakFrequencyHz: p.PeakFrequency,
-			ZLineOhm: p.ZLine, ZModeOhm: p.ZMode, EpsEff: p.EpsEff,
+			ZLineOhm: p.ZLine, ZModeOhm: p.ZMode, EpsEff: p.EpsEff, ModesDegenerate: p.Degenerate,
 		}
 		if p.Symmetric {
 			ze, zo := p.ZEven, p.ZOdd

@@ -131,6 +131,9 @@ func (s *Section) copperIndex(name string) (int, bool) {
 // Validate checks that the section is physically meaningful. The error is a
 // *FieldError naming the section and the offending key.
 func (s *Section) Validate() error {
+	if err := s.checkPlausible(); err != nil { // limits.go
+		return err
+	}
 	ls := s.Stackup.Layers
 	if len(ls) == 0 {
 		return s.fieldErr("stackup.layers", "empty stackup")
@@ -207,7 +210,7 @@ func (s *Section) Validate() error {
 			return s.fieldErr(key+".etch", "etch %s per side leaves no top width", mils(t.Etch))
 		}
 		// Even isotropic etching undercuts no more than it etches deep (etch
-		// factor ≥ 1; 2 to 4 is typical, FACTS.md [cp]); an undercut of more
+		// factor ≥ 1; 2 to 4 is typical [common practice]); an undercut of more
 		// than twice the copper thickness is almost surely a unit slip.
 		if th := ls[i].Thickness; t.Etch > maxUndercut*th {
 			return s.fieldErr(key+".etch", "etch %s per side is more than %g times the copper thickness %s (etch factor below %g)", mils(t.Etch), maxUndercut, mils(th), 1/maxUndercut)

@@ -2,6 +2,7 @@ package section
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -55,20 +56,39 @@ type Convergence struct {
 	Target              float64       // the accuracy asked for
 }
 
-// ConvergenceError reports a solve that did not reach its accuracy target.
+// ConvergenceError reports a solve that did not reach its accuracy target:
+// the error estimate stayed above it after the last refinement step, a
+// linear solve left a residual above 1e−8, or (Limit > 0) the mesh the
+// target needs has more nodes than the solver takes (errors.Is(err,
+// ErrMeshLimit); FinestAccuracy says what a section can reach).
 type ConvergenceError struct {
 	Section    string
 	Offset     float64
 	Iterations int     // refinement steps tried
-	Residual   float64 // estimated relative error (or linear residual) reached
+	Residual   float64 // estimated relative error (or linear residual) reached; NaN when nothing was solved
 	Target     float64
-	Unknowns   int
+	Unknowns   int     // of the finest mesh solved, or (Limit > 0) of the mesh that was refused
+	Level      float64 // refinement level of that mesh
+	Limit      int     // the node limit, when the mesh needed more; 0 otherwise
+	Finest     float64 // with Limit: FinestAccuracy of the section at this offset
 }
 
+// ErrMeshLimit is matched (errors.Is) by a *ConvergenceError whose target
+// needs a mesh over the node limit.
+var ErrMeshLimit = errors.New("mesh over the node limit")
+
 func (e *ConvergenceError) Error() string {
+	if e.Limit > 0 {
+		return fmt.Sprintf("section %q: offset %s: solve did not converge: accuracy %.2g needs a mesh of %d nodes (level %.3g), over the limit of %d; the finest accuracy this section can start at is %.2g",
+			e.Section, mils(e.Offset), e.Target, e.Unknowns, e.Level, e.Limit, e.Finest)
+	}
 	return fmt.Sprintf("section %q: offset %s: solve did not converge after %d refinement steps (%d unknowns): estimated error %.2g > target %.2g",
 		e.Section, mils(e.Offset), e.Iterations, e.Unknowns, e.Residual, e.Target)
 }
+
+// Is reports whether target is ErrMeshLimit and the error is a mesh over
+// the limit.
+func (e *ConvergenceError) Is(target error) bool { return target == ErrMeshLimit && e.Limit > 0 }
 
 // Solution is the capacitance of the cross-section at one offset.
 type Solution struct {
@@ -102,7 +122,7 @@ const linearTol = 1e-8
 // 1.13, so that a sweep rarely needs a second step.
 func startLevel(acc float64) float64 {
 	l := 0.8 * math.Sqrt(DefaultAccuracy/acc)
-	return math.Max(0.5, math.Min(l, 8))
+	return math.Max(minStartLevel, math.Min(l, maxStartLevel))
 }
 
 // maxLevelSteps bounds the refinement steps (each multiplies the level by √2).
@@ -119,6 +139,9 @@ type solver struct {
 
 	mu    sync.Mutex
 	plans map[planKey]*meshPlan
+
+	finestOnce sync.Once
+	finest     float64 // FinestAccuracy at the solver's offsets (limits.go)
 }
 
 type planKey struct {
@@ -129,6 +152,9 @@ type planKey struct {
 // newSolver prepares the solves of s at offsets within [lo, hi].
 func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 	if err := s.Validate(); err != nil {
+		return nil, err
+	}
+	if err := set.check(s); err != nil { // limits.go
 		return nil, err
 	}
 	sv := &solver{s: s, g: s.buildGeometry(), acc: set.accuracy()}
@@ -199,6 +225,9 @@ func (sv *solver) solve(ctx context.Context, off float64, w *femWork) (*Solution
 	for step := 1; ; step++ {
 		sol, err := sv.solveLevel(ctx, off, lev, w)
 		if err != nil {
+			if ce := (*ConvergenceError)(nil); errors.As(err, &ce) {
+				ce.Iterations = step // the mesh limit can stop a later step
+			}
 			return nil, err
 		}
 		sol.Convergence.Iterations = step
@@ -274,7 +303,7 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 	for _, l := range levels {
 		for _, tk := range []int{k, k + 1}[:1+b2i(t > 0)] {
 			if n := sv.plan(tk, l).unknownsEstimate(); n > maxMeshNodes {
-				return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Target: sv.acc, Unknowns: n, Residual: math.NaN()}
+				return nil, &ConvergenceError{Section: sv.s.Name, Offset: off, Iterations: 1, Target: sv.acc, Unknowns: n, Level: l, Limit: maxMeshNodes, Finest: sv.finestAccuracy(), Residual: math.NaN()}
 			}
 		}
 	}
@@ -303,6 +332,9 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 	est := g * math.Max(relDiff(conv.C, richardsonRatio(lv[1].C, lv[0].C, roughRatio)), relDiff(conv.C0, richardsonRatio(lv[1].C0, lv[0].C0, roughRatio)))
 	est = math.Max(est, math.Max(orderError(lv[0].C, lv[1].C, lv[2].C), orderError(lv[0].C0, lv[1].C0, lv[2].C0)))
 	conv.EstimatedError = est
+	if err := sv.checkMaxwell(off, conv); err != nil { // limits.go
+		return nil, err
+	}
 	return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
 }
 

@@ -2,6 +2,7 @@ package section
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -14,9 +15,9 @@ import (
 type Point struct {
 	Offset float64 // upper minus lower trace centre, m
 	Lines
-	CouplingDB    float64 // 20·log10|S31| at f0 (negative)
-	DirectivityDB float64 // 20·log10(|S31|/|S41|), capped at 200 dB
-	PeakFrequency float64 // frequency of peak coupling, Hz
+	CouplingDB    float64 // 20·log10|S31| at f0 (negative, at least −400 dB)
+	DirectivityDB float64 // 20·log10(|S31|/|S41|), within ±200 dB
+	PeakFrequency float64 // first maximum of the coupling over frequency, Hz; 0 if none below twice the higher quarter-wave frequency
 	Convergence   Convergence
 }
 
@@ -27,6 +28,9 @@ type Curve struct {
 	Length    float64 // the coupled length used (resolved quarter wave), m
 	ZRef      float64 // port reference impedance, ohm
 	Points    []Point // sorted by Offset
+	// CacheWarnings are *CacheWarning values from CachedSweep: a damaged
+	// entry recomputed, an entry that could not be stored (cache.go).
+	CacheWarnings []error
 
 	coupling, directivity, z0, z1 monotoneCubic
 	lo, hi                        float64
@@ -72,6 +76,9 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		var err error
 		sols, err = sv.solveAll(ctx, todo, lev, set.workers())
 		if err != nil {
+			if ce := (*ConvergenceError)(nil); errors.As(err, &ce) {
+				ce.Iterations = step // the mesh limit can stop a later step
+			}
 			return nil, err
 		}
 		worst := sols[0]
@@ -108,6 +115,7 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 func (sv *solver) solveAll(ctx context.Context, todo []float64, lev float64, workers int) ([]*Solution, error) {
 	sols := make([]*Solution, len(todo))
 	errs := make([]error, len(todo))
+	parent := ctx
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
 	next := make(chan int)
@@ -146,12 +154,20 @@ feed:
 	}
 	close(next)
 	wg.Wait()
+	// The first failure cancels the others, which then report the
+	// cancellation: report the failure, not what it caused (or the caller's
+	// own cancellation, if that came first).
+	if err := parent.Err(); err != nil {
+		return nil, err
+	}
 	for i, e := range errs {
-		if e != nil {
+		if e != nil && !errors.Is(e, context.Canceled) {
 			return nil, fmt.Errorf("sweep offset %s: %w", mils(todo[i]), e)
 		}
+	}
+	for i := range sols {
 		if sols[i] == nil {
-			return nil, ctx.Err()
+			return nil, context.Canceled
 		}
 	}
 	return sols, nil

@@ -12,7 +12,8 @@ import (
 // edges may pass an edge of the lower trace: there the order changes and no
 // single topology can follow the edges without degenerate elements, while a
 // change of topology between offsets would put a step of the size of the
-// discretisation error into the coupling curve (DESIGN.md: no mesh noise).
+// discretisation error into the coupling curve, and drift is a small
+// difference of coupling.
 //
 // So the offset axis is covered by topologies that overlap in transition
 // windows around each crossing. Inside a window each of the two topologies

@@ -1,5 +1,6 @@
 // Package unit parses and formats the dimensional values of regdrift's job files,
-// measurement files and command-line flags.
+// measurement files and command-line flags, reads the units in CSV headers
+// ("x [in]", see ParseHeader) and holds the choice of output units (Output).
 //
 // Every dimensional value in a file or flag carries its unit ("20 mil", "0.5 mm",
 // "+150 ppm", "35 urad", "2.45 GHz", "-3.0 dB", "50 ohm"); inside the program every

@@ -1,0 +1,115 @@
+package job
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/registration"
+)
+
+// Job is a loaded, validated job file.
+type Job struct {
+	File      string // the main file as named by the user
+	Title     string
+	Layout    panel.Layout
+	Instances []panel.Instance
+	Sites     []panel.Site
+	Stackup   section.Stackup
+	Sections  []*section.Section // in file order
+	Model     *registration.Model
+	// sectionSrc is the source of each section, parallel to Sections, so that
+	// a solver error can name its file line.
+	sectionSrc []source
+}
+
+// Section returns the section named name, or nil.
+func (j *Job) Section(name string) *section.Section {
+	for _, s := range j.Sections {
+		if s.Name == name {
+			return s
+		}
+	}
+	return nil
+}
+
+// SectionError returns err as a *ParseError at key within section i of
+// Sections, naming the file and line the section was defined on. key is
+// relative to the section, as the keys of a section.FieldError are
+// ("traces[0].width"); "" names the section itself. It lets an error found
+// after loading (by the field solver, say) point into the job file.
+func (j *Job) SectionError(i int, key string, err error) error {
+	if i < 0 || i >= len(j.sectionSrc) {
+		return &ParseError{File: j.File, Key: key, Err: err}
+	}
+	return j.sectionSrc[i].err(key, err)
+}
+
+// ArrayExtents returns of the layout, the rectangle its parts cover.
+func (j *Job) ArrayExtents() []panel.Rect {
+	ext := make([]panel.Rect, len(j.Layout.Arrays))
+	seen := make([]bool, len(ext))
+	for _, in := range j.Instances {
+		if in.Array < 0 {
+			continue
+		}
+		b, e := in.Bounds, &ext[in.Array]
+		if !seen[in.Array] {
+			*e, seen[in.Array] = b, true
+			continue
+		}
+		e.Min = panel.Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
+		e.Max = panel.Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
+	}
+	return ext
+}
+
+// Load reads and validates the job file at path and everything it includes;
+// path "-" reads stdin, which messages call "<stdin>", and then includes are
+// found relative to the current directory.
+//
+// Every error Load returns is about its input: a *ParseError naming the file,
+// line and key; a *registration.CSVError naming the row and column of a
+// placement or residual file; or a failure to read the job file or a
+// placement file (wrapping the *fs.PathError).
+func Load(path string, stdin io.Reader) (*Job, error) {
+	data, name, err := readFile(path, stdin)
+	if err != nil {
+		return nil, fmt.Errorf("job file: %w", err)
+	}
+	return Parse(data, name, filepath.Dir(path))
+}
+
+// Parse validates a job file held in data; name is the file's name for
+// messages and dir the directory its includes, placement and residual files
+// are relative to. Its errors are those of Load.
+func Parse(data []byte, name, dir string) (*Job, error) {
+	j := &Job{File: name}
+	l := &loader{job: j, seen: map[string]bool{}}
+	if err := l.file(data, name, dir, 0); err != nil {
+		return nil, err
+	}
+	if err := l.finish(); err != nil {
+		return nil, err
+	}
+	return j, nil
+}
+
+// readFile returns the bytes of path, or of standard input for "-".
+func readFile(path string, stdin io.Reader) ([]byte, string, error) {
+	if path == "-" {
+		if stdin == nil {
+			return nil, "<stdin>", &fs.PathError{Op: "read", Path: "<stdin>", Err: errors.New("no standard input")}
+		}
+		b, err := io.ReadAll(stdin)
+		return b, "<stdin>", err
+	}
+	b, err := os.ReadFile(path)
+	return b, path, err
+}

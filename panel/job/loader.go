@@ -1,0 +1,783 @@
+package job
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"sort"
+	"strconv"
+	"strings"
+
+	"github.com/pelletier/go-toml/v2"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
+)
+
+// Raw job-file shapes. Dimensional values are decoded as any so that a bare
+// number is reported as a missing unit rather than a type mismatch.
+type rawJob struct {
+	Title       string           `toml:"title"`
+	Include     []string         `toml:"include"`
+	Panel       *rawPanel        `toml:"panel"`
+	Stackup     *rawStackup      `toml:"stackup"`
+	Section     []rawSection     `toml:"section"`
+	Part        []rawPart        `toml:"part"`
+	Array       []rawArray       `toml:"array"`
+	Contributor []map[string]any `toml:"contributor"`
+	Sites       []rawSites       `toml:"sites"`
+}
+
+type rawPanel struct {
+	Size   []any `toml:"size"`
+	Border any   `toml:"border"`
+	Datum  []any `toml:"datum"`
+}
+
+type rawStackup struct {
+	Layers []map[string]any `toml:"layers"`
+}
+
+type rawSection struct {
+	Name         string         `toml:"name"`
+	Traces       []rawTrace     `toml:"traces"`
+	Grounds      []string       `toml:"grounds"`
+	Frequency    any            `toml:"frequency"`
+	Length       any            `toml:"length"`
+	ZRef         any            `toml:"z_ref"`
+	Spec         map[string]any `toml:"spec"`
+	DesignOffset any            `toml:"design_offset"`
+}
+
+type rawTrace struct {
+	Layer string `toml:"layer"`
+	Width any    `toml:"width"`
+	Etch  any    `toml:"etch"`
+	X     any    `toml:"x"`
+}
+
+type rawPart struct {
+	Name     string       `toml:"name"`
+	Size     []any        `toml:"size"`
+	Couplers []rawCoupler `toml:"couplers"`
+}
+
+type rawCoupler struct {
+	Name    string `toml:"name"`
+	Section string `toml:"section"`
+	At      []any  `toml:"at"`
+	Angle   any    `toml:"angle"`
+}
+
+type rawArray struct {
+	Part   string `toml:"part"`
+	Count  []int  `toml:"count"`
+	Pitch  []any  `toml:"pitch"`
+	Center []any  `toml:"center"`
+	Origin []any  `toml:"origin"`
+	Rotate any    `toml:"rotate"`
+}
+
+type rawSites struct {
+	File string `toml:"file"`
+}
+
+// parseTOML decodes one job file strictly, with line numbers in its errors.
+func parseTOML(data []byte, name string) (*rawJob, *tomlFile, error) {
+	f := &tomlFile{name: name, lines: indexLines(data)}
+	var raw rawJob
+	dec := toml.NewDecoder(bytes.NewReader(data))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&raw); err != nil {
+		var se *toml.StrictMissingError
+		if errors.As(err, &se) && len(se.Errors) > 0 {
+			e := se.Errors[0]
+			row, _ := e.Position()
+			key := strings.Join(e.Key(), ".")
+			return nil, f, &ParseError{File: name, Line: row, Key: key, Err: fmt.Errorf("%w %q", ErrUnknownKey, key)}
+		}
+		var de *toml.DecodeError
+		if errors.As(err, &de) {
+			row, _ := de.Position()
+			return nil, f, &ParseError{File: name, Line: row, Key: strings.Join(de.Key(), "."), Err: errors.New(de.Error())}
+		}
+		return nil, f, &ParseError{File: name, Err: err}
+	}
+	return &raw, f, nil
+}
+
+// loader merges a job file and its includes: included files come first, so a
+// main file's arrays of tables follow theirs; a single table ([panel],
+// [stackup]) may be defined in one file only.
+type loader struct {
+	job        *Job
+	seen       map[string]bool
+	title      string
+	panel      *rawPanel
+	panelSrc   source
+	stackup    *rawStackup
+	stackupSrc source
+	sections   []rawSection
+	sectionSrc []source
+	parts      []rawPart
+	partSrc    []source
+	arrays     []rawArray
+	arraySrc   []source
+	contribs   []map[string]any
+	contribSrc []source
+	placements []panel.Placement
+}
+
+func (l *loader) file(data []byte, name, dir string, depth int) error {
+	if depth > 8 {
+		return &ParseError{File: name, Key: "include", Err: errors.New("includes nested more than 8 deep (a cycle?)")}
+	}
+	raw, f, err := parseTOML(data, name)
+	if err != nil {
+		return err
+	}
+	f.dir = dir
+	for i, inc := range raw.Include {
+		src := source{f, fmt.Sprintf("include[%d]", i)}
+		p := inc
+		if !filepath.IsAbs(p) {
+			p = filepath.Join(dir, inc)
+		}
+		if l.seen[p] {
+			return src.errf("", "%q is included twice", inc)
+		}
+		l.seen[p] = true
+		b, err := os.ReadFile(p)
+		if err != nil {
+			return src.err("", err)
+		}
+		if err := l.file(b, p, filepath.Dir(p), depth+1); err != nil {
+			return err
+		}
+	}
+	if raw.Title != "" {
+		l.title = raw.Title
+	}
+	if raw.Panel != nil {
+		if l.panel != nil {
+			return source{f, "panel"}.errf("", "[panel] is also defined in %s", l.panelSrc.f.name)
+		}
+		l.panel, l.panelSrc = raw.Panel, source{f, "panel"}
+	}
+	if raw.Stackup != nil {
+		if l.stackup != nil {
+			return source{f, "stackup"}.errf("", "[stackup] is also defined in %s", l.stackupSrc.f.name)
+		}
+		l.stackup, l.stackupSrc = raw.Stackup, source{f, "stackup"}
+	}
+	for i := range raw.Section {
+		l.sections = append(l.sections, raw.Section[i])
+		l.sectionSrc = append(l.sectionSrc, source{f, fmt.Sprintf("section[%d]", i)})
+	}
+	for i := range raw.Part {
+		l.parts = append(l.parts, raw.Part[i])
+		l.partSrc = append(l.partSrc, source{f, fmt.Sprintf("part[%d]", i)})
+	}
+	for i := range raw.Array {
+		l.arrays = append(l.arrays, raw.Array[i])
+		l.arraySrc = append(l.arraySrc, source{f, fmt.Sprintf("array[%d]", i)})
+	}
+	for i := range raw.Contributor {
+		l.contribs = append(l.contribs, raw.Contributor[i])
+		l.contribSrc = append(l.contribSrc, source{f, fmt.Sprintf("contributor[%d]", i)})
+	}
+	for i, s := range raw.Sites {
+		src := source{f, fmt.Sprintf("sites[%d]", i)}
+		if s.File == "" {
+			return src.err("file", fmt.Errorf("%w: a [[sites]] table needs file = \"placements.csv\"", ErrMissing))
+		}
+		p := s.File
+		if !filepath.IsAbs(p) {
+			p = filepath.Join(dir, p)
+		}
+		pl, err := readPlacementFile(p)
+		if err != nil {
+			return err
+		}
+		l.placements = append(l.placements, pl...)
+	}
+	return nil
+}
+
+// quantity converts a job-file value of kind k; a missing value is an error
+// unless def is given.
+func quantity(src source, key string, v any, k unit.Kind, def *float64) (float64, error) {
+	if v == nil {
+		if def != nil {
+			return *def, nil
+		}
+		return 0, src.err(key, fmt.Errorf("%w: give a %s with its unit (%s)", ErrMissing, k, unit.Accepted(k)))
+	}
+	s, ok := v.(string)
+	if !ok {
+		switch v.(type) {
+		case int64, float64:
+			return 0, src.err(key, fmt.Errorf("%w: %v needs a unit: write it as a string such as \"%v %s\" (%s)", ErrValue, v, v, firstUnit(k), unit.Accepted(k)))
+		}
+		return 0, src.err(key, fmt.Errorf("%w: want a %s such as \"1 %s\", got %T", ErrValue, k, firstUnit(k), v))
+	}
+	x, err := unit.Parse(s, k)
+	if err != nil {
+		return 0, src.err(key, err)
+	}
+	return x, nil
+}
+
+func firstUnit(k unit.Kind) string {
+	a := unit.Accepted(k)
+	if i := strings.Index(a, ","); i > 0 {
+		return a[:i]
+	}
+	return a
+}
+
+func pair(src source, key string, v []any, k unit.Kind, def *panel.Vec) (panel.Vec, error) {
+	if v == nil && def != nil {
+		return *def, nil
+	}
+	if len(v) != 2 {
+		return panel.Vec{}, src.err(key, fmt.Errorf("%w: want two values [x, y], each with a unit", ErrValue))
+	}
+	x, err := quantity(src, key+"[0]", v[0], k, nil)
+	if err != nil {
+		return panel.Vec{}, err
+	}
+	y, err := quantity(src, key+"[1]", v[1], k, nil)
+	if err != nil {
+		return panel.Vec{}, err
+	}
+	return panel.Vec{X: x, Y: y}, nil
+}
+
+func number(src source, key string, v any) (float64, bool, error) {
+	switch x := v.(type) {
+	case nil:
+		return 0, false, nil
+	case int64:
+		return float64(x), true, nil
+	case float64:
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return 0, false, src.err(key, fmt.Errorf("%w: must be finite", ErrValue))
+		}
+		return x, true, nil
+	}
+	return 0, false, src.err(key, fmt.Errorf("%w: want a plain number, got %v", ErrValue, v))
+}
+
+func (l *loader) finish() error {
+	j := l.job
+	j.Title = l.title
+	if l.panel == nil {
+		return &ParseError{File: j.File, Key: "panel", Err: fmt.Errorf("%w: the job has no [panel] table", ErrMissing)}
+	}
+	ps := l.panelSrc
+	size, err := pair(ps, "size", l.panel.Size, unit.Length, nil)
+	if err != nil {
+		return err
+	}
+	zero := 0.0
+	border, err := quantity(ps, "border", l.panel.Border, unit.Length, &zero)
+	if err != nil {
+		return err
+	}
+	datum, err := pair(ps, "datum", l.panel.Datum, unit.Length, &panel.Vec{})
+	if err != nil {
+		return err
+	}
+	j.Layout.Panel = panel.Panel{Size: size, Border: border, Datum: datum}
+	if err := j.Layout.Panel.Validate(); err != nil {
+		return l.layoutErr(err)
+	}
+	if err := l.buildStackup(); err != nil {
+		return err
+	}
+	if err := l.buildSections(); err != nil {
+		return err
+	}
+	if err := l.buildLayout(); err != nil {
+		return err
+	}
+	return l.buildModel()
+}
+
+func (l *loader) layoutErr(err error) error {
+	var fe *panel.FieldError
+	if !errors.As(err, &fe) {
+		if len(l.arraySrc) > 0 {
+			return &ParseError{File: l.arraySrc[0].f.name, Key: "array", Err: err}
+		}
+		return &ParseError{File: l.job.File, Err: err}
+	}
+	key := fe.Key
+	var src source
+	switch {
+	case strings.HasPrefix(key, "panel."):
+		src = source{l.panelSrc.f, ""}
+	case strings.HasPrefix(key, "array["):
+		i, rest := splitIndex(key, "array[")
+		src = l.arraySrc[i]
+		key = rest
+	case strings.HasPrefix(key, "part["):
+		i, rest := splitIndex(key, "part[")
+		src = l.partSrc[i]
+		key = rest
+	case strings.HasPrefix(key, "sites["):
+		i, _ := splitIndex(key, "sites[")
+		p := l.placements[i]
+		return &registration.CSVError{File: p.File, Row: p.Row, Err: fe.Err}
+	default:
+		return &ParseError{File: l.job.File, Key: key, Err: fe.Err}
+	}
+	return src.err(key, fe.Err)
+}
+
+// splitIndex splits "array[3].pitch" into 3 and "pitch".
+func splitIndex(key, prefix string) (int, string) {
+	rest := key[len(prefix):]
+	end := strings.IndexByte(rest, ']')
+	i, _ := strconv.Atoi(rest[:end])
+	rest = strings.TrimPrefix(rest[end+1:], ".")
+	return i, rest
+}
+
+func (l *loader) buildStackup() error {
+	if l.stackup == nil {
+		if len(l.sections) > 0 {
+			return l.sectionSrc[0].errf("", "%w: sections need a [stackup]", ErrMissing)
+		}
+		return nil
+	}
+	src := l.stackupSrc
+	if len(l.stackup.Layers) == 0 {
+		return src.errf("layers", "%w: the stackup lists no layers", ErrMissing)
+	}
+	names := map[string]bool{}
+	for i, m := range l.stackup.Layers {
+		key := fmt.Sprintf("layers[%d]", i)
+		var layer section.Layer
+		kinds := 0
+		for _, kk := range []string{"copper", "core", "prepreg"} {
+			if _, ok := m[kk]; ok {
+				kinds++
+			}
+		}
+		if kinds != 1 {
+			return src.errf(key, "%w: each layer is exactly one of copper = \"NAME\", core = \"THICKNESS\" or prepreg = \"THICKNESS\"", ErrValue)
+		}
+		allowed := map[string]bool{}
+		switch {
+		case m["copper"] != nil:
+			name, ok := m["copper"].(string)
+			if !ok || name == "" {
+				return src.errf(key+".copper", "%w: copper takes the layer's name, e.g. copper = \"L3\"", ErrValue)
+			}
+			if names[name] {
+				return src.errf(key+".copper", "%w: layer %q is listed twice", ErrValue, name)
+			}
+			names[name] = true
+			t, err := quantity(src, key+".thickness", m["thickness"], unit.Length, nil)
+			if err != nil {
+				return err
+			}
+			layer = section.Layer{Name: name, Kind: section.Copper, Thickness: t}
+			allowed = map[string]bool{"copper": true, "thickness": true}
+		default:
+			kind := "core"
+			if _, ok := m["prepreg"]; ok {
+				kind = "prepreg"
+			}
+			t, err := quantity(src, key+"."+kind, m[kind], unit.Length, nil)
+			if err != nil {
+				return err
+			}
+			er, ok, err := number(src, key+".er", m["er"])
+			if err != nil {
+				return err
+			}
+			if !ok {
+				return src.errf(key+".er", "%w: a dielectric needs er (relative permittivity)", ErrMissing)
+			}
+			name, _ := m["name"].(string)
+			layer = section.Layer{Name: name, Kind: section.Dielectric, Thickness: t, Er: er, Core: kind == "core"}
+			allowed = map[string]bool{kind: true, "er": true, "name": true}
+		}
+		for k := range m {
+			if !allowed[k] {
+				return src.errf(key+"."+k, "%w %q", ErrUnknownKey, k)
+			}
+		}
+		if !(layer.Thickness > 0) && !(layer.Kind == section.Copper && layer.Thickness == 0) {
+			k := key + ".thickness"
+			if layer.Kind == section.Dielectric {
+				k = key + "." + map[bool]string{true: "core", false: "prepreg"}[layer.Core]
+			}
+			return src.errf(k, "%w: thickness must be positive", ErrValue)
+		}
+		if layer.Kind == section.Dielectric && !(layer.Er >= 1) {
+			return src.errf(key+".er", "%w: er must be at least 1", ErrValue)
+		}
+		l.job.Stackup.Layers = append(l.job.Stackup.Layers, layer)
+	}
+	return nil
+}
+
+func (l *loader) buildSections() error {
+	j := l.job
+	seen := map[string]bool{}
+	for i, rs := range l.sections {
+		src := l.sectionSrc[i]
+		if rs.Name == "" {
+			return src.errf("name", "%w: a section needs a name", ErrMissing)
+		}
+		if seen[rs.Name] {
+			return src.errf("name", "%w: section %q is defined twice", ErrValue, rs.Name)
+		}
+		seen[rs.Name] = true
+		s := &section.Section{Name: rs.Name, Stackup: j.Stackup, Grounds: rs.Grounds}
+		if len(rs.Traces) != 2 {
+			return src.errf("traces", "%w: a section has two traces, upper first", ErrValue)
+		}
+		zero := 0.0
+		for k, rt := range rs.Traces {
+			key := fmt.Sprintf("traces[%d]", k)
+			if rt.Layer == "" {
+				return src.errf(key+".layer", "%w: each trace names its copper layer", ErrMissing)
+			}
+			w, err := quantity(src, key+".width", rt.Width, unit.Length, nil)
+			if err != nil {
+				return err
+			}
+			e, err := quantity(src, key+".etch", rt.Etch, unit.Length, &zero)
+			if err != nil {
+				return err
+			}
+			x, err := quantity(src, key+".x", rt.X, unit.Length, &zero)
+			if err != nil {
+				return err
+			}
+			s.Traces[k] = section.Trace{Layer: rt.Layer, Width: w, Etch: e, X: x}
+		}
+		var err error
+		if s.Frequency, err = quantity(src, "frequency", rs.Frequency, unit.Frequency, nil); err != nil {
+			return err
+		}
+		switch v := rs.Length.(type) {
+		case string:
+			if strings.EqualFold(strings.TrimSpace(v), "quarter-wave") {
+				s.Length = 0
+				break
+			}
+			if s.Length, err = quantity(src, "length", v, unit.Length, nil); err != nil {
+				return err
+			}
+			if !(s.Length > 0) {
+				return src.errf("length", "%w: the coupled length must be positive", ErrValue)
+			}
+		case nil:
+			s.Length = 0
+		default:
+			return src.errf("length", "%w: want \"quarter-wave\" or a length such as \"640 mil\"", ErrValue)
+		}
+		fifty := 50.0
+		if s.ZRef, err = quantity(src, "z_ref", rs.ZRef, unit.Impedance, &fifty); err != nil {
+			return err
+		}
+		if s.DesignOffset, err = quantity(src, "design_offset", rs.DesignOffset, unit.Length, &zero); err != nil {
+			return err
+		}
+		if rs.Spec == nil {
+			return src.errf("spec", "%w: give spec = { coupling = \"-3.0 dB\", tolerance = \"0.25 dB\" }", ErrMissing)
+		}
+		for k := range rs.Spec {
+			if k != "coupling" && k != "tolerance" {
+				return src.errf("spec."+k, "%w %q", ErrUnknownKey, k)
+			}
+		}
+		if s.Spec.Coupling, err = quantity(src, "spec.coupling", rs.Spec["coupling"], unit.Decibel, nil); err != nil {
+			return err
+		}
+		if s.Spec.Tolerance, err = quantity(src, "spec.tolerance", rs.Spec["tolerance"], unit.Decibel, nil); err != nil {
+			return err
+		}
+		if err := s.Validate(); err != nil {
+			var fe *section.FieldError
+			if errors.As(err, &fe) {
+				if strings.HasPrefix(fe.Key, "stackup.") {
+					return l.stackupSrc.err(strings.TrimPrefix(fe.Key, "stackup."), fmt.Errorf("section %q: %w", s.Name, fe.Err))
+				}
+				return src.err(fe.Key, fe.Err)
+			}
+			return src.err("", err)
+		}
+		j.Sections = append(j.Sections, s)
+		j.sectionSrc = append(j.sectionSrc, src)
+	}
+	return nil
+}
+
+func (l *loader) buildLayout() error {
+	j := l.job
+	for i, rp := range l.parts {
+		src := l.partSrc[i]
+		size, err := pair(src, "size", rp.Size, unit.Length, nil)
+		if err != nil {
+			return err
+		}
+		p := panel.Part{Name: rp.Name, Size: size}
+		for k, rc := range rp.Couplers {
+			key := fmt.Sprintf("couplers[%d]", k)
+			at, err := pair(src, key+".at", rc.At, unit.Length, nil)
+			if err != nil {
+				return err
+			}
+			zero := 0.0
+			a, err := quantity(src, key+".angle", rc.Angle, unit.Angle, &zero)
+			if err != nil {
+				return err
+			}
+			if rc.Section == "" {
+				return src.errf(key+".section", "%w: each coupler names its section", ErrMissing)
+			}
+			if j.Section(rc.Section) == nil {
+				return src.errf(key+".section", "%w: no section named %q", ErrValue, rc.Section)
+			}
+			name := rc.Name
+			if name == "" {
+				name = fmt.Sprintf("C%d", k+1)
+			}
+			p.Couplers = append(p.Couplers, panel.Coupler{Name: name, Section: rc.Section, At: at, Angle: a})
+		}
+		j.Layout.Parts = append(j.Layout.Parts, p)
+	}
+	for i, ra := range l.arrays {
+		src := l.arraySrc[i]
+		a := panel.Array{Part: ra.Part}
+		if len(ra.Count) != 2 {
+			return src.errf("count", "%w: want count = [columns, rows]", ErrValue)
+		}
+		a.Count = [2]int{ra.Count[0], ra.Count[1]}
+		one := panel.Vec{}
+		var err error
+		if a.Pitch, err = pair(src, "pitch", ra.Pitch, unit.Length, &one); err != nil {
+			return err
+		}
+		if ra.Origin != nil && ra.Center != nil {
+			return src.errf("origin", "%w: give center or origin, not both", ErrValue)
+		}
+		if ra.Origin != nil {
+			a.UseOrigin = true
+			if a.Origin, err = pair(src, "origin", ra.Origin, unit.Length, nil); err != nil {
+				return err
+			}
+		} else if a.Center, err = pair(src, "center", ra.Center, unit.Length, &panel.Vec{}); err != nil {
+			return err
+		}
+		zero := 0.0
+		rot, err := quantity(src, "rotate", ra.Rotate, unit.Angle, &zero)
+		if err != nil {
+			return err
+		}
+		deg := rot * 180 / math.Pi
+		q := math.Round(deg / 90)
+		if math.Abs(deg-90*q) > 1e-6 {
+			return src.errf("rotate", "%w: parts turn by 0, 90, 180 or 270 deg", ErrValue)
+		}
+		a.Rotate = int(q) * 90
+		j.Layout.Arrays = append(j.Layout.Arrays, a)
+	}
+	for _, p := range l.placements {
+		if j.Section(p.Section) == nil {
+			return &registration.CSVError{File: p.File, Row: p.Row, Column: "section", Err: fmt.Errorf("no section named %q", p.Section)}
+		}
+	}
+	j.Layout.Placements = l.placements
+	inst, sites, err := j.Layout.Expand()
+	if err != nil {
+		return l.layoutErr(err)
+	}
+	if len(sites) == 0 {
+		return &ParseError{File: j.File, Key: "array", Err: fmt.Errorf("%w: the job places no coupler sites (add [[part]] and [[array]] tables or [[sites]])", ErrMissing)}
+	}
+	j.Instances, j.Sites = inst, sites
+	return nil
+}
+
+// termKeys lists the job-file keys of the terms, for messages.
+func termKeys() string {
+	keys := make([]string, registration.NumTerms)
+	for k := range keys {
+		keys[k] = registration.TermKind(k).String()
+	}
+	return strings.Join(keys, ", ")
+}
+
+func (l *loader) buildModel() error {
+	j := l.job
+	m := &registration.Model{Datum: j.Layout.Panel.Datum}
+	copper := map[string]bool{}
+	for _, ly := range j.Stackup.Layers {
+		if ly.Kind == section.Copper {
+			copper[ly.Name] = true
+		}
+	}
+	for i, raw := range l.contribs {
+		src := l.contribSrc[i]
+		var c registration.Contributor
+		keys := make([]string, 0, len(raw))
+		for k := range raw {
+			keys = append(keys, k)
+		}
+		sort.Strings(keys)
+		for _, k := range keys {
+			v := raw[k]
+			switch k {
+			case "name":
+				s, ok := v.(string)
+				if !ok {
+					return src.errf(k, "%w: want a string", ErrValue)
+				}
+				c.Name = s
+			case "layers":
+				arr, ok := v.([]any)
+				if !ok || len(arr) == 0 {
+					return src.errf(k, "%w: want a list of copper layer names, e.g. [\"L3\", \"L4\"]", ErrValue)
+				}
+				for n, e := range arr {
+					s, ok := e.(string)
+					if !ok {
+						return src.errf(fmt.Sprintf("%s[%d]", k, n), "%w: want a layer name", ErrValue)
+					}
+					if len(copper) > 0 && !copper[s] {
+						return src.errf(fmt.Sprintf("%s[%d]", k, n), "%w: no copper layer named %q in the stackup", ErrValue, s)
+					}
+					c.Layers = append(c.Layers, s)
+				}
+			case "site_sigma":
+				x, err := quantity(src, k, v, unit.Length, nil)
+				if err != nil {
+					return err
+				}
+				if x < 0 {
+					return src.errf(k, "%w: site_sigma must be non-negative", ErrValue)
+				}
+				c.SiteSigma = x
+			case "residual":
+				s, ok := v.(string)
+				if !ok {
+					return src.errf(k, "%w: want the path of a residual grid CSV", ErrValue)
+				}
+				p := s
+				if !filepath.IsAbs(p) {
+					p = filepath.Join(src.f.dir, s)
+				}
+				fh, err := os.Open(p)
+				if err != nil {
+					return src.err(k, err)
+				}
+				g, err := registration.ReadGrid(fh, p)
+				fh.Close()
+				if err != nil {
+					return err
+				}
+				c.Residual = g
+			default:
+				tk, ok := registration.TermByKey(k)
+				if !ok {
+					return src.errf(k, "%w %q (terms: %s; also name, layers, site_sigma, residual)", ErrUnknownKey, k, termKeys())
+				}
+				t, err := parseTerm(src, k, v, tk.Info().Kind)
+				if err != nil {
+					return err
+				}
+				c.Terms[tk] = t
+			}
+		}
+		if len(c.Layers) == 0 {
+			return src.errf("layers", "%w: a contributor names the layers it moves", ErrMissing)
+		}
+		if c.Name == "" {
+			c.Name = fmt.Sprintf("contributor %d", i+1)
+		}
+		m.Contributors = append(m.Contributors, c)
+	}
+	if err := m.Validate(); err != nil {
+		var fe *registration.FieldError
+		if errors.As(err, &fe) {
+			i, rest := splitIndex(fe.Key, "contributor[")
+			return l.contribSrc[i].err(rest, fe.Err)
+		}
+		return &ParseError{File: j.File, Err: err}
+	}
+	j.Model = m
+	return nil
+}
+
+// parseTerm reads a term: a fixed value, { mean, sigma }, or
+// { mean, half_width, dist = "uniform" }.
+func parseTerm(src source, key string, v any, k unit.Kind) (registration.Term, error) {
+	switch x := v.(type) {
+	case string, int64, float64:
+		mean, err := quantity(src, key, x, k, nil)
+		return registration.Term{Mean: mean}, err
+	case map[string]any:
+		zero := 0.0
+		for kk := range x {
+			switch kk {
+			case "mean", "sigma", "half_width", "dist":
+			default:
+				return registration.Term{}, src.errf(key+"."+kk, "%w %q (want mean, sigma, or half_width with dist = \"uniform\")", ErrUnknownKey, kk)
+			}
+		}
+		mean, err := quantity(src, key+".mean", x["mean"], k, &zero)
+		if err != nil {
+			return registration.Term{}, err
+		}
+		dist := "normal"
+		if d, ok := x["dist"]; ok {
+			s, _ := d.(string)
+			if s != "normal" && s != "uniform" {
+				return registration.Term{}, src.errf(key+".dist", "%w: dist is \"normal\" or \"uniform\"", ErrValue)
+			}
+			dist = s
+		}
+		t := registration.Term{Mean: mean}
+		switch dist {
+		case "uniform":
+			if _, ok := x["sigma"]; ok {
+				return registration.Term{}, src.errf(key+".sigma", "%w: a uniform term takes half_width, not sigma", ErrValue)
+			}
+			h, err := quantity(src, key+".half_width", x["half_width"], k, nil)
+			if err != nil {
+				return registration.Term{}, err
+			}
+			t.Spread, t.Dist = h, registration.Uniform
+		default:
+			if _, ok := x["half_width"]; ok {
+				return registration.Term{}, src.errf(key+".half_width", "%w: half_width needs dist = \"uniform\"", ErrValue)
+			}
+			s, err := quantity(src, key+".sigma", x["sigma"], k, &zero)
+			if err != nil {
+				return registration.Term{}, err
+			}
+			t.Spread = s
+			if s > 0 {
+				t.Dist = registration.Normal
+			}
+		}
+		if t.Spread < 0 {
+			return registration.Term{}, src.errf(key, "%w: sigma and half_width must be non-negative", ErrValue)
+		}
+		return t, nil
+	}
+	return registration.Term{}, src.errf(key, "%w: want a value such as \"+150 ppm\" or { mean = ..., sigma = ... }", ErrValue)
+}
