@@ -103,7 +103,7 @@ func ReadApplied(r io.Reader, file string) (AppliedSet, error) {
 		return nil, &CSVError{File: file, Row: 1, Err: err}
 	}
 	kinds := map[string]unit.Kind{"scale_x": unit.Strain, "scale_y": unit.Strain}
-	idx, cols, err := ParseHeader(header, kinds)
+	idx, cols, err := unit.ParseHeader(header, kinds)
 	if err != nil {
 		return nil, &CSVError{File: file, Row: 1, Err: err}
 	}

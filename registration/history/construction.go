@@ -7,6 +7,7 @@ import (
 	"io"
 	"strings"
 
+	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
 
@@ -73,7 +74,7 @@ func ReadConstructions(r io.Reader, file string) (Constructions, error) {
 		}
 		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
 	}
-	idx, cols, err := registration.ParseHeader(header, nil)
+	idx, cols, err := unit.ParseHeader(header, nil)
 	if err != nil {
 		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
 	}

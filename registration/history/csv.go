@@ -137,7 +137,7 @@ func ReadExport(r io.Reader, file string) ([]*Lot, error) {
 			kinds[c.name] = c.kind
 		}
 	}
-	idx, cols, err := registration.ParseHeader(header, kinds)
+	idx, cols, err := unit.ParseHeader(header, kinds)
 	if err != nil {
 		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
 	}
