@@ -9,6 +9,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/regdrift/regdrift/panel/job"
+	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/samples"
 )
 
@@ -147,5 +149,43 @@ func TestDemoHistory(t *testing.T) {
 	text := strings.Join(lines, "\n")
 	if !strings.Contains(text, samples.HistoryCoreA) || !strings.Contains(text, "yes") || !strings.Contains(text, "trend-5mil-core-A-L3-scale_x.png") {
 		t.Errorf("demo history:\n%s", text)
+	}
+}
+
+// TestHistoryContributorsInclude checks that a job includes the table's
+// contributors file: the demo two-core job with scale-contributors.toml.
+func TestHistoryContributorsInclude(t *testing.T) {
+	dir := t.TempDir()
+	db := filepath.Join(dir, "h.db")
+	for _, h := range writeDemoLots(t, dir, 6) {
+		if _, err := runHistory(t, "add", filepath.Join(dir, h.Name+".csv"), "--db", db, "--lot", h.Name, "--date", h.Date,
+			"--construction", h.Construction, "--applied", filepath.Join(dir, h.Name+"-applied.csv")); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if _, err := runHistory(t, "table", "--db", db, "--construction", samples.HistoryCoreA, "-o", dir); err != nil {
+		t.Fatal(err)
+	}
+	base, err := samples.FS.ReadFile("two-core.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	jobFile := filepath.Join(dir, "with-history.toml")
+	os.WriteFile(jobFile, append([]byte("include = [\"scale-contributors.toml\"]\n"), base...), 0o644)
+	j, err := job.Load(jobFile, nil)
+	if err != nil {
+		t.Fatalf("the job does not load with the contributors: %v", err)
+	}
+	found := 0
+	for _, c := range j.Model.Contributors {
+		if strings.HasPrefix(c.Name, "history: "+samples.HistoryCoreA) {
+			found++
+			if m := c.Terms[registration.ScaleX].Mean; !(m < -150e-6 && m > -260e-6) {
+				t.Errorf("%s: scale_x mean %g", c.Name, m)
+			}
+		}
+	}
+	if found != 2 {
+		t.Errorf("%d history contributors in the job, want 2 (L3, L4)", found)
 	}
 }

@@ -14,16 +14,14 @@ import (
 	"github.com/regdrift/regdrift/registration"
 )
 
-// TermUnit returns the unit a term is written in: mil for offsets, urad for
-// rotation, ppm for scales and skew.
+// TermUnit returns the kind and unit a term is written in: the term table's
+// (registration.TermKind.Info), and mil for offsets.
 func TermUnit(k registration.TermKind) (unit.Kind, string) {
-	switch k {
-	case registration.OffsetX, registration.OffsetY:
+	info := k.Info()
+	if info.Kind == unit.Length {
 		return unit.Length, "mil"
-	case registration.Rotation:
-		return unit.Angle, "urad"
 	}
-	return unit.Strain, "ppm"
+	return info.Kind, info.Unit
 }
 
 func fixed(v float64, kind unit.Kind, u string, dec int) string {
