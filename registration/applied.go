@@ -1,7 +1,6 @@
 package registration
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -91,17 +90,11 @@ var ErrUnknownColumn = errors.New("unknown column")
 // one layer. Errors are *CSVError values naming the row and column.
 func ReadApplied(r io.Reader, file string) (AppliedSet, error) {
 	const want = "want layer, scale_x [ppm], scale_y [ppm]"
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
-	cr.FieldsPerRecord = -1
-	header, err := cr.Read()
+	rows, err := NewCSVRows(r, file, "such as \"layer,scale_x [ppm],scale_y [ppm]\"")
 	if err != nil {
-		if err == io.EOF {
-			err = errors.New("the file is empty (" + want + ")")
-		}
-		return nil, &CSVError{File: file, Row: 1, Err: err}
+		return nil, err
 	}
+	header := rows.Header
 	kinds := map[string]unit.Kind{"scale_x": unit.Strain, "scale_y": unit.Strain}
 	idx, cols, err := unit.ParseHeader(header, kinds)
 	if err != nil {
@@ -119,21 +112,12 @@ func ReadApplied(r io.Reader, file string) (AppliedSet, error) {
 	}
 	set := AppliedSet{}
 	for {
-		rec, err := cr.Read()
+		rec, line, err := rows.Next()
 		if err == io.EOF {
 			break
 		}
 		if err != nil {
-			var pe *csv.ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line, err = pe.Line, pe.Err
-			}
-			return nil, &CSVError{File: file, Row: line, Err: err}
-		}
-		line, _ := cr.FieldPos(0)
-		if len(rec) != len(header) {
-			return nil, &CSVError{File: file, Row: line, Err: fmt.Errorf("%d fields, the header has %d", len(rec), len(header))}
+			return nil, err
 		}
 		a := Applied{Row: line, Layer: strings.TrimSpace(rec[idx["layer"]])}
 		switch {

@@ -1,7 +1,6 @@
 package history
 
 import (
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
@@ -63,17 +62,11 @@ func (k OneConstruction) Of(layer string) (LayerBuild, error) {
 // and column.
 func ReadConstructions(r io.Reader, file string) (Constructions, error) {
 	const want = "want layer, construction, role"
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.TrimLeadingSpace = true
-	cr.FieldsPerRecord = -1
-	header, err := cr.Read()
+	rows, err := registration.NewCSVRows(r, file, "such as \"layer,construction,role\"")
 	if err != nil {
-		if err == io.EOF {
-			err = errors.New("the file is empty (" + want + ")")
-		}
-		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
+		return nil, err
 	}
+	header := rows.Header
 	idx, cols, err := unit.ParseHeader(header, nil)
 	if err != nil {
 		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
@@ -90,21 +83,12 @@ func ReadConstructions(r io.Reader, file string) (Constructions, error) {
 	}
 	out := Constructions{}
 	for {
-		rec, err := cr.Read()
+		rec, line, err := rows.Next()
 		if err == io.EOF {
 			break
 		}
 		if err != nil {
-			var pe *csv.ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line, err = pe.Line, pe.Err
-			}
-			return nil, &registration.CSVError{File: file, Row: line, Err: err}
-		}
-		line, _ := cr.FieldPos(0)
-		if len(rec) != len(header) {
-			return nil, &registration.CSVError{File: file, Row: line, Err: fmt.Errorf("%d fields, the header has %d", len(rec), len(header))}
+			return nil, err
 		}
 		var v [3]string
 		for i, c := range []string{"layer", "construction", "role"} {

@@ -121,16 +121,11 @@ func (d *DB) Export(ctx context.Context, w io.Writer) error {
 // returns its lots in order of first appearance, each lot's fits in file
 // order. Errors are *registration.CSVError values naming the row and column.
 func ReadExport(r io.Reader, file string) ([]*Lot, error) {
-	cr := csv.NewReader(r)
-	cr.Comment = '#'
-	cr.FieldsPerRecord = -1
-	header, err := cr.Read()
+	rows, err := registration.NewCSVRows(r, file, "of a regdrift history export")
 	if err != nil {
-		if err == io.EOF {
-			err = errors.New("the file is empty (want the header of a regdrift history export)")
-		}
-		return nil, &registration.CSVError{File: file, Row: 1, Err: err}
+		return nil, err
 	}
+	header := rows.Header
 	kinds := map[string]unit.Kind{}
 	for _, c := range exportColumns {
 		if c.unit != "" {
@@ -152,21 +147,12 @@ func ReadExport(r io.Reader, file string) ([]*Lot, error) {
 	seen := map[key]int{}
 	cons := map[[2]string][2]string{}
 	for {
-		rec, err := cr.Read()
+		rec, line, err := rows.Next()
 		if err == io.EOF {
 			break
 		}
 		if err != nil {
-			var pe *csv.ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line, err = pe.Line, pe.Err
-			}
-			return nil, &registration.CSVError{File: file, Row: line, Err: err}
-		}
-		line, _ := cr.FieldPos(0)
-		if len(rec) != len(header) {
-			return nil, &registration.CSVError{File: file, Row: line, Err: fmt.Errorf("%d fields, the header has %d", len(rec), len(header))}
+			return nil, err
 		}
 		cell := func(name string) string { return rec[idx[name]] }
 		cerr := func(col string, format string, args ...any) error {
