@@ -42,12 +42,13 @@ type historyFlags struct {
 	layer        string
 	term         string
 	width        int
+	json         bool
 }
 
 // historyUses lists the flags each subcommand takes besides --db.
 var historyUses = map[string][]string{
 	"add":    {"lot", "date", "construction", "applied", "replace", "model", "robust", "weight", "datum"},
-	"trend":  {"out", "construction", "role", "layer", "term", "width"},
+	"trend":  {"out", "construction", "role", "layer", "term", "width", "json"},
 	"table":  {"out", "construction", "role"},
 	"export": {},
 	"import": {"replace"},
@@ -70,6 +71,7 @@ func (f *historyFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.layer, "layer", "", "trend: one layer instead of each construction's roles")
 	fs.StringVar(&f.term, "term", "scale_x", "trend: the term charted: offset_x, offset_y, rotation, scale_x, scale_y or skew")
 	fs.IntVar(&f.width, "width", 2400, "trend: width of the charts in pixels")
+	fs.BoolVar(&f.json, "json", false, "trend: print the charts' numbers as JSON (SI) instead of the table")
 }
 
 func (f *historyFlags) run(ctx context.Context, std stdio, args []string) error {
@@ -337,11 +339,13 @@ func (f *historyFlags) trend(ctx context.Context, std stdio, path string, args [
 	}
 	defer o.abort()
 	kind, u := history.TermUnit(k)
+	var js []any
 	tw := tabwriter.NewWriter(std.out, 0, 4, 2, ' ', 0)
 	fmt.Fprintf(tw, "construction\trole\tlots\tlast lot\tcentre [%s]\tσ [%s]\tlatest [%s]\tEWMA [%s]\tsignals in the last %d\n", u, u, u, u, history.ShiftWindow)
 	for i := range ss {
 		s := &ss[i]
 		tr := history.NewTrend(s, k)
+		js = append(js, tr.JSON())
 		base := fmt.Sprintf("trend-%s-%s-%s", fileSafe(s.Construction), fileSafe(s.Role), k)
 		if f.layer != "" {
 			base = fmt.Sprintf("trend-%s-%s-%s", fileSafe(s.Construction), fileSafe(f.layer), k)
@@ -365,6 +369,9 @@ func (f *historyFlags) trend(ctx context.Context, std stdio, path string, args [
 	}
 	if err := o.commit(); err != nil {
 		return err
+	}
+	if f.json {
+		return writeJSON(std.out, map[string]any{"trends": js})
 	}
 	tw.Flush()
 	for _, p := range o.paths() {

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"errors"
 	"os"
 	"path/filepath"
@@ -64,6 +65,20 @@ func TestHistoryCommand(t *testing.T) {
 	out, err = runHistory(t, "trend", "--db", db, "--construction", samples.HistoryCoreB, "--term", "scale_y", "-o", filepath.Join(dir, "tr"))
 	if err != nil || !strings.Contains(out, "trend-8mil-core-B-L3-scale_y.png") {
 		t.Fatalf("trend: %v\n%s", err, out)
+	}
+	out, err = runHistory(t, "trend", "--db", db, "--construction", samples.HistoryCoreA, "--role", "L4", "--json", "-o", filepath.Join(dir, "trj"))
+	var js struct {
+		Trends []struct {
+			Term string `json:"term"`
+			Lots []struct {
+				Lot  string  `json:"lot"`
+				Mean float64 `json:"mean"`
+			} `json:"lots"`
+		} `json:"trends"`
+	}
+	if err != nil || json.Unmarshal([]byte(out), &js) != nil || len(js.Trends) != 1 || len(js.Trends[0].Lots) != 6 ||
+		js.Trends[0].Term != "scale_x" || !(js.Trends[0].Lots[0].Mean < -100e-6) {
+		t.Fatalf("trend --json: %v\n%s", err, out)
 	}
 	// export → import → export is byte-identical.
 	exp1, err := runHistory(t, "export", "--db", db)

@@ -132,3 +132,55 @@ func (t *Trend) WriteCSV(w io.Writer) error {
 	cw.Flush()
 	return cw.Error()
 }
+
+// trendJSON is the trend in SI, the unit in the key where there is one
+// (strain terms are plain numbers).
+type trendJSON struct {
+	Construction string      `json:"construction"`
+	Role         string      `json:"role"`
+	Layer        string      `json:"layer,omitempty"`
+	Term         string      `json:"term"`
+	Centre       float64     `json:"centre"`
+	Sigma        *float64    `json:"sigma"`
+	UCL          *float64    `json:"ucl"`
+	LCL          *float64    `json:"lcl"`
+	Lambda       float64     `json:"ewma_lambda"`
+	L            float64     `json:"ewma_l"`
+	Lots         []trendLotJ `json:"lots"`
+}
+
+type trendLotJ struct {
+	Lot      string   `json:"lot"`
+	Date     string   `json:"date"`
+	Fits     int      `json:"fits"`
+	Mean     float64  `json:"mean"`
+	WithinSD float64  `json:"within_sd"`
+	EWMA     float64  `json:"ewma"`
+	EWMAUCL  *float64 `json:"ewma_ucl"`
+	EWMALCL  *float64 `json:"ewma_lcl"`
+	Signals  []string `json:"signals"`
+}
+
+func finite(v float64) *float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return nil
+	}
+	return &v
+}
+
+// JSON returns the trend's numbers for a JSON summary: the term's values
+// in SI (the key "term" says which; JSONKey's unit applies to every value).
+func (t *Trend) JSON() any {
+	k := t.Term
+	j := trendJSON{Construction: t.Series.Construction, Role: t.Series.Role, Layer: t.Series.Layer, Term: k.JSONKey(),
+		Centre: t.Chart.Centre, Sigma: finite(t.Chart.Sigma), UCL: finite(t.Chart.UCL), LCL: finite(t.Chart.LCL),
+		Lambda: t.EWMA.Lambda, L: t.EWMA.L, Lots: make([]trendLotJ, len(t.Values))}
+	for i, p := range t.Series.Points {
+		j.Lots[i] = trendLotJ{Lot: p.Lot, Date: p.Date, Fits: p.N, Mean: t.Values[i], WithinSD: p.SD[k],
+			EWMA: t.EWMA.Z[i], EWMAUCL: finite(t.EWMA.UCL[i]), EWMALCL: finite(t.EWMA.LCL[i]), Signals: []string{}}
+	}
+	for _, s := range t.Signals {
+		j.Lots[s.Index].Signals = append(j.Lots[s.Index].Signals, s.Rule.Short())
+	}
+	return j
+}
