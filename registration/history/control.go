@@ -30,6 +30,13 @@ const ControllerLambda = 0.3
 // step ((1−λ)¹⁰ = 2.8 %).
 const ShiftWindow = 10
 
+// ShiftBaseline is the number of latest lots the table's shift test charts
+// (centre, σ̂ and the rules from those lots alone): a step well inside it
+// shows as runs on both sides of the centre, while a step the controller
+// absorbed long ago no longer flags the construction for ever, as a chart
+// of the whole history would.
+const ShiftBaseline = 30
+
 // Estimate is the controller's estimate of a series' material movement for
 // the next lot.
 type Estimate struct {
@@ -75,9 +82,9 @@ type TableRow struct {
 	// (MR̄/d₂); WithinSD the pooled panel-to-panel standard deviation within
 	// a lot.
 	LotSigma, WithinSD float64
-	// Signals are the chart signals among the last ShiftWindow lots: the
-	// process has shifted, and the estimate may still lag. SignalLots
-	// names the lot of each.
+	// Signals are the signals among the last ShiftWindow lots of a chart of
+	// the last ShiftBaseline lots: the process has shifted, and the estimate
+	// may still lag. SignalLots names the lot of each.
 	Signals    []Signal
 	SignalLots []string
 }
@@ -115,10 +122,12 @@ func Table(series []Series) []TableRow {
 			if len(x) < 2 {
 				row.SE = math.NaN()
 			}
-			for _, sg := range tr.Signals {
-				if sg.Index >= len(x)-ShiftWindow {
-					row.Signals = append(row.Signals, sg)
-					row.SignalLots = append(row.SignalLots, s.Points[sg.Index].Lot)
+			off := max(0, len(x)-ShiftBaseline)
+			recent := Series{Points: s.Points[off:]}
+			for _, sg := range NewTrend(&recent, ax.k).Signals {
+				if i := sg.Index + off; i >= len(x)-ShiftWindow {
+					row.Signals = append(row.Signals, Signal{i, sg.Rule})
+					row.SignalLots = append(row.SignalLots, s.Points[i].Lot)
 				}
 			}
 			out = append(out, row)

@@ -56,7 +56,8 @@
 // next lot from an EWMA run-to-run estimate of the movement (the controller
 // of Ingolfsson & Sachs 1993, λ = ControllerLambda, see there for why), its
 // standard error, the lots behind it, the latest lot and the chart signals
-// among the latest lots. WriteTableCSV and WriteContributors write it for a
+// among the latest lots (from a chart of the last ShiftBaseline lots, so a
+// step absorbed long ago stops flagging). WriteTableCSV and WriteContributors write it for a
 // spreadsheet and for a job to include.
 //
 // References and the sources of the test values are listed in REFERENCES.md.

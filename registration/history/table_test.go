@@ -178,3 +178,30 @@ func TestDecimate(t *testing.T) {
 		t.Errorf("range %g..%g, want %g..%g; ends %g, %g", lo, hi, wantLo, wantHi, dx[0], dx[len(dx)-1])
 	}
 }
+
+// TestTableOldStep checks that a step the controller absorbed long ago no
+// longer flags the series, while the same step among the last lots does.
+func TestTableOldStep(t *testing.T) {
+	rng := rand.New(rand.NewPCG(21, 22))
+	mk := func(step int) []Series {
+		s := Series{Construction: "K", Role: "r"}
+		for i := range 100 {
+			m := -150 * ppm
+			if i >= step {
+				m = -200 * ppm
+			}
+			var p Point
+			p.Lot, p.N = fmt.Sprint(i), 8
+			p.Mean[registration.ScaleX] = m + 2*ppm*rng.NormFloat64()
+			p.Mean[registration.ScaleY] = -100*ppm + 2*ppm*rng.NormFloat64()
+			s.Points = append(s.Points, p)
+		}
+		return []Series{s}
+	}
+	if r := Table(mk(20))[0]; r.Shifted() {
+		t.Errorf("a step 80 lots ago flags the table: %v", r.Signals)
+	}
+	if r := Table(mk(85))[0]; !r.Shifted() {
+		t.Error("a step 15 lots ago is not flagged")
+	}
+}
