@@ -151,6 +151,9 @@ func openHistory(ctx context.Context, path string, create bool) (*history.DB, er
 			return nil, badInput(fmt.Errorf("%s: no such history (add a lot first, or give --db)", path))
 		}
 	}
+	if st, err := os.Stat(filepath.Dir(path)); err != nil || !st.IsDir() {
+		return nil, badInput(fmt.Errorf("%s: the directory %s does not exist", path, filepath.Dir(path)))
+	}
 	d, err := history.Open(ctx, path)
 	if err != nil {
 		if errors.Is(err, history.ErrNotHistory) || errors.Is(err, history.ErrNewerSchema) || errors.Is(err, history.ErrIsDirectory) {

@@ -125,6 +125,7 @@ func TestHistoryBadInput(t *testing.T) {
 		{"fit not determined", []string{"add", few, "--db", db, "--lot", "X2", "--construction", "K"}, []string{"few.csv", `"L3"`, "too few targets"}},
 		{"applied layer not measured", []string{"add", targets, "--db", db, "--lot", "X3", "--construction", "K", "--applied", appliedL9}, []string{"applied-l9.csv", "row 3", `"L9"`}},
 		{"database is a directory", []string{"add", targets, "--db", filepath.Join(dir, "adir"), "--lot", "X4", "--construction", "K"}, []string{"adir", "directory"}},
+		{"database directory missing", []string{"add", targets, "--db", filepath.Join(dir, "no", "h.db"), "--lot", "X5", "--construction", "K"}, []string{"does not exist"}},
 		{"unknown construction", []string{"table", "--db", db, "--construction", "nope"}, []string{`"nope"`, `"K"`}},
 		{"unknown layer in trend", []string{"trend", "--db", db, "--layer", "L9"}, []string{`"L9"`}},
 		{"flag of another subcommand", []string{"export", "--db", db, "--lot", "x"}, []string{"--lot"}},
