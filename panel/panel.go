@@ -408,3 +408,23 @@ func firstOverlap(inst []Instance, blocks []arrayBlock) (int, int, bool) {
 	}
 	return 0, 0, false
 }
+
+// ArrayExtents returns, per array (narrays of them), the rectangle its part
+// instances in inst cover; an array with no instances gets the zero Rect.
+func ArrayExtents(narrays int, inst []Instance) []Rect {
+	ext := make([]Rect, narrays)
+	seen := make([]bool, narrays)
+	for _, in := range inst {
+		if in.Array < 0 {
+			continue
+		}
+		b, e := in.Bounds, &ext[in.Array]
+		if !seen[in.Array] {
+			*e, seen[in.Array] = b, true
+			continue
+		}
+		e.Min = Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
+		e.Max = Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
+	}
+	return ext
+}

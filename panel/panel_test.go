@@ -156,3 +156,21 @@ func TestOverlapManyParts(t *testing.T) {
 		t.Fatal("four million parts accepted")
 	}
 }
+
+// TestArrayExtents: each array's extent is the union of its parts' outlines
+// (hand-worked from the pitch and part size); placements belong to none.
+func TestArrayExtents(t *testing.T) {
+	inst := []Instance{
+		{Array: 0, Bounds: Rect{Vec{0, 0}, Vec{1, 2}}},
+		{Array: 0, Bounds: Rect{Vec{3, 0}, Vec{4, 2}}},
+		{Array: 1, Bounds: Rect{Vec{-5, -5}, Vec{-4, -3}}},
+		{Array: -1, Bounds: Rect{Vec{9, 9}, Vec{10, 10}}},
+	}
+	got := ArrayExtents(3, inst)
+	want := []Rect{{Vec{0, 0}, Vec{4, 2}}, {Vec{-5, -5}, Vec{-4, -3}}, {}}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Errorf("array %d: extent %v, want %v", i, got[i], want[i])
+		}
+	}
+}

@@ -409,7 +409,7 @@ func (p *compProblem) optimise(x []float64, hasNull bool) ([]float64, error) {
 		return x, err
 	case RMS:
 		if v, ok := violated(&p.caps, x); ok && !hasNull {
-			return nil, fmt.Errorf("%w: the rms optimum breaks %s; try --objective worst or a larger bound", ErrInfeasible, v)
+			return nil, fmt.Errorf("%w: the rms optimum breaks %s; try the worst-case objective or a larger bound", ErrInfeasible, v)
 		}
 	}
 	return x, nil
@@ -434,7 +434,7 @@ func (p *compProblem) chooseCommon(x []float64, null [][]float64) ([]float64, st
 	}
 	if p.set.Objective == RMS && p.budget > 0 {
 		if v, bad := violated(&p.caps, x); bad {
-			return nil, "", fmt.Errorf("%w: at the rms optimum the common part cannot meet %s; try --objective worst", ErrInfeasible, v)
+			return nil, "", fmt.Errorf("%w: at the rms optimum the common part cannot meet %s; try the worst-case objective", ErrInfeasible, v)
 		}
 	}
 	return x, common, nil

@@ -2,24 +2,20 @@ package main
 
 import (
 	"context"
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
-	"math"
-	"slices"
-	"strconv"
 	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
 
-	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/job"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
-	"github.com/regdrift/regdrift/render"
+	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/render/figure"
 )
 
 type compFlags struct {
@@ -53,134 +49,6 @@ func (f *compFlags) flags(fs *pflag.FlagSet) {
 	fs.IntVar(&f.width, "width", 2400, "width of comp.png in pixels")
 	addStrict(fs, &f.strict, "a site is out of spec after compensation")
 	f.solver.add(fs)
-}
-
-// measuredModel returns a copy of m with the fitted lots joined: each lot
-// becomes a contributor; unless keep, the layers a lot measures (both of a
-// relative pair) are taken out of the job's contributors first, and a
-// contributor left with no layer is dropped. notes says what changed.
-func measuredModel(m *registration.Model, lots []registration.Lot, file string, keep bool) (*registration.Model, []string) {
-	out := &registration.Model{Datum: m.Datum}
-	measured := map[string]bool{}
-	for _, l := range lots {
-		u, lo, rel := registration.SplitLayer(l.Layer)
-		measured[u] = true
-		if rel {
-			measured[lo] = true
-		}
-	}
-	var notes []string
-	for _, c := range m.Contributors {
-		c.Layers = slices.Clone(c.Layers)
-		if !keep {
-			var kept, gone []string
-			for _, l := range c.Layers {
-				if measured[l] {
-					gone = append(gone, l)
-				} else {
-					kept = append(kept, l)
-				}
-			}
-			switch {
-			case len(kept) == 0:
-				notes = append(notes, fmt.Sprintf("contributor %q left out: the measurement holds %s", c.Name, strings.Join(gone, ", ")))
-				continue
-			case len(gone) > 0:
-				notes = append(notes, fmt.Sprintf("contributor %q now moves %s only: the measurement holds %s", c.Name, strings.Join(kept, ", "), strings.Join(gone, ", ")))
-			}
-			c.Layers = kept
-		}
-		out.Contributors = append(out.Contributors, c)
-	}
-	for _, l := range lots {
-		out.Contributors = append(out.Contributors, l.Contributor(fmt.Sprintf("measured %s (lot of %d panels, %s)", l.Layer, l.Panels, file)))
-	}
-	return out, notes
-}
-
-// compState is the model before and after compensation with what each does.
-type compState struct {
-	job      *Job // the job with the model before compensation
-	after    *Job // the same with the compensation added
-	res      *registration.CompResult
-	ysBefore *yieldSetup
-	ysAfter  *yieldSetup
-	notes    []string // model changes, warnings
-	fitted   []string // measured layers
-}
-
-// compSigmas is how far the solved curves reach: the largest |mean| plus
-// compSigmas standard deviations of any site before or after compensation. A
-// site's offset falls beyond 5σ with probability 5.7e-7, far below the yields
-// reported, and the curve is not solved farther out than the map needs.
-const compSigmas = 5
-
-// compYield prepares the yield of each job (the same sections, different
-// models) from one set of solved curves covering all of them.
-func compYield(ctx context.Context, jobs []*Job, sf *solverFlags) ([]*yieldSetup, []string, error) {
-	set, err := sf.settings()
-	if err != nil {
-		return nil, nil, err
-	}
-	var yss []*yieldSetup
-	for _, j := range jobs {
-		yss = append(yss, newYieldSetup(j))
-	}
-	secs := jobs[0].Sections
-	span := make([]float64, len(secs))
-	for _, ys := range yss {
-		for k, s := range ys.job.Sites {
-			si := ys.secIndex[s.Section]
-			st := ys.y.Stats(k)
-			span[si] = math.Max(span[si], math.Abs(st.MeanAcross)+compSigmas*st.SDAcross)
-		}
-	}
-	var warns []string
-	for i, s := range secs {
-		if !yss[0].used[i] {
-			continue
-		}
-		c, _, err := section.CachedSweep(ctx, s, section.DefaultOffsets(s, span[i]), set, sf.cacheDir, sf.noCache)
-		if err != nil {
-			return nil, nil, fmt.Errorf("section %q: %w", s.Name, err)
-		}
-		lo, hi := c.Range()
-		iv, lim, err := registration.SpecInterval(c.Coupling, lo, hi, s.NominalOffset(), s.Spec.Coupling, s.Spec.Tolerance)
-		switch {
-		case errors.Is(err, registration.ErrNominalOutOfSpec):
-			warns = append(warns, fmt.Sprintf("section %q: the design is outside its spec at the design offset; its sites yield 0", s.Name))
-		case err != nil:
-			return nil, nil, badInput(fmt.Errorf("section %q: %w", s.Name, err))
-		}
-		for _, ys := range yss {
-			ys.curves[i], ys.allowed[i], ys.limits[i] = c, iv, lim
-			ys.outSpec[i] = errors.Is(err, registration.ErrNominalOutOfSpec)
-		}
-	}
-	for _, ys := range yss {
-		ys.setAllowed()
-	}
-	return yss, warns, nil
-}
-
-// siteOK reports whether site k of ys is in spec at its mean offset.
-func siteOK(ys *yieldSetup, k int) bool {
-	st := ys.y.Stats(k)
-	s := &ys.y.Sites[k]
-	return s.Allowed.Contains(s.Nominal + st.MeanAcross)
-}
-
-func (cs *compState) tally(ys *yieldSetup) (inSpec int, yield float64) {
-	for k := range ys.y.Sites {
-		if siteOK(ys, k) {
-			inSpec++
-		}
-		yield += ys.y.ClosedForm(k)
-	}
-	if n := len(ys.y.Sites); n > 0 {
-		yield /= float64(n)
-	}
-	return inSpec, yield
 }
 
 func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
@@ -237,8 +105,12 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	cs := &compState{}
+	solver, err := f.solver.settings(std)
+	if err != nil {
+		return err
+	}
 	model := j.Model
+	var fitted, notes []string
 	if f.targets != "" {
 		fset.Datum = j.Layout.Panel.Datum
 		fr, err := runFitFile(f.targets, std.in, fset, 5)
@@ -252,55 +124,34 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 			}
 		}
 		var lots []registration.Lot
-		for _, l := range fr.lots {
+		for _, l := range fr.Lots {
 			u, lo, rel := registration.SplitLayer(l.Layer)
 			if !copper[u] || (rel && !copper[lo]) {
-				fmt.Fprintf(std.err, "regdrift comp: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", fr.file, l.Layer, j.File)
+				fmt.Fprintf(std.err, "regdrift comp: warning: %s: layer %q is not a copper layer of %s; its targets are skipped\n", fr.File, l.Layer, j.File)
 				continue
 			}
 			lots = append(lots, l)
-			cs.fitted = append(cs.fitted, l.Layer)
+			fitted = append(fitted, l.Layer)
 		}
-		var notes []string
-		model, notes = measuredModel(j.Model, lots, fr.file, f.keep)
-		cs.notes = append(cs.notes, notes...)
+		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
 	}
-	before := *j
-	before.Model = model
-	cs.job = &before
-	sites := make([]registration.CompSite, len(j.Sites))
-	for k, s := range j.Sites {
-		sec := j.Section(s.Section)
-		sites[k] = registration.CompSite{Pos: s.Pos, U: s.U, Upper: sec.Traces[0].Layer, Lower: sec.Traces[1].Layer}
-	}
-	res, err := registration.Compensate(model, sites, &set)
-	if err != nil {
+	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
+	var ce *drift.CompError
+	switch {
+	case errors.As(err, &ce):
 		return badInput(fmt.Errorf("%s: %w", j.File, err))
+	case err != nil:
+		return solveErr(j, err)
 	}
-	cs.res = res
-	am := &registration.Model{Datum: model.Datum, Contributors: append(slices.Clone(model.Contributors), res.Contributors()...)}
-	after := *j
-	after.Model = am
-	cs.after = &after
-	yss, warns, err := compYield(ctx, []*Job{cs.job, cs.after}, &f.solver)
+	notes = append(notes, cmp.Notes...)
+	sum, paths, err := writeComp(f.out, cmp, fitted, notes, f.width, lu)
 	if err != nil {
 		return err
 	}
-	cs.ysBefore, cs.ysAfter = yss[0], yss[1]
-	cs.notes = append(cs.notes, warns...)
-	sum := cs.summary()
-	paths, err := writeAll(f.out,
-		outFile{"comp.csv", func(w io.Writer) error { return cs.writeCSV(w, lu) }},
-		outFile{"comp.json", func(w io.Writer) error { return writeJSON(w, sum) }},
-		outFile{"compensation.toml", func(w io.Writer) error { return cs.writeTOML(w) }},
-		outFile{"comp.png", func(w io.Writer) error { return cs.draw(w, sum, f.width, lu) }})
-	if err != nil {
-		return err
-	}
-	for _, n := range cs.notes {
+	for _, n := range notes {
 		fmt.Fprintf(std.err, "regdrift comp: %s\n", n)
 	}
-	if err := report(std, f.json, sum, func() { cs.printTable(std.out, sum, lu, paths) }); err != nil {
+	if err := report(std, f.json, sum, func() { printComp(std.out, j.Title, cmp, sum, lu, paths) }); err != nil {
 		return err
 	}
 	if f.strict && sum.After.InSpec < sum.After.Sites {
@@ -309,109 +160,20 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	return nil
 }
 
-type compLayerJSON struct {
-	Layer        string   `json:"layer"`
-	ScaleXPPM    float64  `json:"scale_x_ppm"`
-	ScaleYPPM    float64  `json:"scale_y_ppm"`
-	FactorX      float64  `json:"factor_x"`
-	FactorY      float64  `json:"factor_y"`
-	NetXPPM      float64  `json:"net_x_ppm"`
-	NetYPPM      float64  `json:"net_y_ppm"`
-	MeanScaleX   float64  `json:"mean_scale_x_ppm"`
-	MeanScaleY   float64  `json:"mean_scale_y_ppm"`
-	FreeX, FreeY bool     `json:"-"`
-	Free         []string `json:"free_axes"`
+// writeComp writes the compensation's files into dir.
+func writeComp(dir string, cmp *drift.Comparison, fitted, notes []string, width int, lu lengthUnit) (*drift.CompSummary, []string, error) {
+	sum := cmp.Summary(fitted, notes)
+	u := lu.units()
+	paths, err := writeAll(dir,
+		outFile{"comp.csv", func(w io.Writer) error { return cmp.WriteCSV(w, u) }},
+		outFile{"comp.json", func(w io.Writer) error { return writeJSON(w, sum) }},
+		outFile{"compensation.toml", func(w io.Writer) error { return job.WriteCompensation(w, cmp.Before.In.Source, cmp.Result) }},
+		outFile{"comp.png", func(w io.Writer) error { return figure.Comp(w, cmp, sum, width, u) }})
+	return sum, paths, err
 }
 
-type compPairJSON struct {
-	Upper    string  `json:"upper"`
-	Lower    string  `json:"lower"`
-	DiffXPPM float64 `json:"diff_x_ppm"`
-	DiffYPPM float64 `json:"diff_y_ppm"`
-}
-
-type compStateJSON struct {
-	Sites        int     `json:"sites"`
-	WorstOffsetM float64 `json:"worst_offset_m"`
-	RMSOffsetM   float64 `json:"rms_offset_m"`
-	InSpec       int     `json:"in_spec"`
-	SiteYield    float64 `json:"site_yield"`
-	DrillWorstM  float64 `json:"drill_worst_m"`
-}
-
-type compSummary struct {
-	Job         string          `json:"job"`
-	Objective   string          `json:"objective"`
-	DrillBudget float64         `json:"drill_budget_m,omitempty"`
-	Measured    []string        `json:"measured_layers,omitempty"`
-	Layers      []compLayerJSON `json:"layers"`
-	Pairs       []compPairJSON  `json:"pairs"`
-	Common      string          `json:"common_part"`
-	Notes       []string        `json:"notes"`
-	Before      compStateJSON   `json:"before"`
-	After       compStateJSON   `json:"after"`
-}
-
-func (cs *compState) summary() *compSummary {
-	r := cs.res
-	s := &compSummary{Job: cs.job.File, Objective: r.Objective.String(), Measured: cs.fitted, Common: r.Common,
-		Notes: append(slices.Clone(r.Notes), cs.notes...)}
-	for _, l := range r.Layers {
-		lj := compLayerJSON{Layer: l.Layer, ScaleXPPM: l.X.Scale / 1e-6, ScaleYPPM: l.Y.Scale / 1e-6,
-			FactorX: l.X.Factor, FactorY: l.Y.Factor, NetXPPM: l.X.Net / 1e-6, NetYPPM: l.Y.Net / 1e-6,
-			MeanScaleX: l.MeanScale[0] / 1e-6, MeanScaleY: l.MeanScale[1] / 1e-6, FreeX: l.X.Free, FreeY: l.Y.Free, Free: []string{}}
-		if l.X.Free {
-			lj.Free = append(lj.Free, "x")
-		}
-		if l.Y.Free {
-			lj.Free = append(lj.Free, "y")
-		}
-		s.Layers = append(s.Layers, lj)
-	}
-	for _, p := range r.Pairs {
-		s.Pairs = append(s.Pairs, compPairJSON{p.Upper, p.Lower, p.Net[0] / 1e-6, p.Net[1] / 1e-6})
-	}
-	ib, yb := cs.tally(cs.ysBefore)
-	ia, ya := cs.tally(cs.ysAfter)
-	n := len(cs.job.Sites)
-	s.Before = compStateJSON{n, r.WorstBefore, r.RMSBefore, ib, yb, r.DrillBefore}
-	s.After = compStateJSON{n, r.WorstAfter, r.RMSAfter, ia, ya, r.DrillAfter}
-	return s
-}
-
-func (cs *compState) writeCSV(w io.Writer, lu lengthUnit) error {
-	cw := csv.NewWriter(w)
-	L, P := "["+lu.name+"]", "["+lu.panel+"]"
-	header := []string{"site", "section", "x " + P, "y " + P, "angle [deg]",
-		"offset_before " + L, "offset_after " + L, "sigma " + L, "in_spec_before", "in_spec_after", "p_before", "p_after"}
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	g := func(v float64, d int) string { return strconv.FormatFloat(v, 'f', d, 64) }
-	for k, s := range cs.job.Sites {
-		sb, sa := cs.ysBefore.y.Stats(k), cs.ysAfter.y.Stats(k)
-		nom := cs.ysBefore.y.Sites[k].Nominal
-		rec := []string{s.Name, s.Section, g(s.Pos.X/lu.pfac, 4), g(s.Pos.Y/lu.pfac, 4), g(s.Angle*180/math.Pi, 2),
-			g((nom+sb.MeanAcross)/lu.factor, 4), g((nom+sa.MeanAcross)/lu.factor, 4), g(sa.SDAcross/lu.factor, 4),
-			strconv.FormatBool(siteOK(cs.ysBefore, k)), strconv.FormatBool(siteOK(cs.ysAfter, k)),
-			g(cs.ysBefore.y.ClosedForm(k), 6), g(cs.ysAfter.y.ClosedForm(k), 6)}
-		if err := cw.Write(rec); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
-}
-
-// writeTOML writes the recommendation as fixed contributors: the net scale
-// change of each layer, which is what the job's model needs to map the
-// compensated build.
-func (cs *compState) writeTOML(w io.Writer) error {
-	return job.WriteCompensation(w, cs.job.File, cs.res)
-}
-
-func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, paths []string) {
-	fmt.Fprintf(w, "%s\nartwork scale compensation (objective: %s)\n", cs.job.Title, s.Objective)
+func printComp(w io.Writer, title string, cmp *drift.Comparison, s *drift.CompSummary, lu lengthUnit, paths []string) {
+	fmt.Fprintf(w, "%s\nartwork scale compensation (objective: %s)\n", title, s.Objective)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "layer\tmovement X [ppm]\tmovement Y [ppm]\tartwork X [ppm]\tfactor X\tartwork Y [ppm]\tfactor Y\tfree\n")
 	for _, l := range s.Layers {
@@ -423,14 +185,14 @@ func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, path
 		fmt.Fprintf(w, "difference %s − %s: X %+.2f ppm, Y %+.2f ppm (this is what moves the offsets)\n", p.Upper, p.Lower, p.DiffXPPM, p.DiffYPPM)
 	}
 	fmt.Fprintf(w, "common part: %s\n", s.Common)
-	for _, n := range cs.res.Notes {
+	for _, n := range cmp.Result.Notes {
 		fmt.Fprintf(w, "note: %s\n", n)
 	}
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "\tworst offset [%s]\trms offset [%s]\tin spec\tsite yield\tdrill worst [%s]\t\n", lu.name, lu.name, lu.name)
 	for _, r := range []struct {
 		name string
-		v    compStateJSON
+		v    drift.CompState
 	}{{"before", s.Before}, {"after", s.After}} {
 		fmt.Fprintf(tw, "%s\t%.3f\t%.3f\t%d/%d\t%.4f %%\t%.3f\t\n", r.name, r.v.WorstOffsetM/lu.factor, r.v.RMSOffsetM/lu.factor,
 			r.v.InSpec, r.v.Sites, 100*r.v.SiteYield, r.v.DrillWorstM/lu.factor)
@@ -440,77 +202,4 @@ func (cs *compState) printTable(w io.Writer, s *compSummary, lu lengthUnit, path
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
 	}
-}
-
-// draw renders the mean offset (design offset excluded) before and after,
-// side by side on one diverging colour scale.
-func (cs *compState) draw(w io.Writer, s *compSummary, width int, lu lengthUnit) error {
-	j := cs.job
-	aB, aA := newAnalysis(cs.job), newAnalysis(cs.after)
-	zones := aB.zones()
-	global := zones[len(zones)-1]
-	sec, u := global.sec, global.u
-	outline := j.Layout.Panel.Outline()
-	ext := toRect(outline)
-	ur := toRect(j.Layout.Panel.Usable())
-	nx := max(width/12, 40)
-	ny := max(int(float64(nx)*ur.Dy()/ur.Dx()), 40)
-	field := func(a *analysis) func(x, y float64) float64 {
-		return func(x, y float64) float64 {
-			p := panel.Vec{X: x, Y: y}
-			z := zoneAt(zones, p)
-			rel := a.rel[z.sec]
-			return rel.Stats(rel.Row(p, z.u)).MeanAcross / lu.factor
-		}
-	}
-	grids := []*render.Grid{render.NewGrid(ur, nx, ny, field(aB)), render.NewGrid(ur, nx, ny, field(aA))}
-	var lim float64
-	for _, g := range grids {
-		lo, hi := g.Range()
-		lim = math.Max(lim, math.Max(-lo, hi))
-	}
-	for _, a := range []*analysis{aB, aA} {
-		for i := range a.sites {
-			lim = math.Max(lim, math.Abs(a.sites[i].Stats.MeanAcross/lu.factor))
-		}
-	}
-	if !(lim > 0) {
-		lim = 1e-3
-	}
-	ru := render.Inch
-	if lu.panel == "mm" {
-		ru = render.Millimetre
-	}
-	var comp []string
-	for _, l := range s.Layers {
-		comp = append(comp, fmt.Sprintf("%s X %+.1f Y %+.1f ppm", l.Layer, l.ScaleXPPM, l.ScaleYPPM))
-	}
-	title := []string{
-		j.Title,
-		fmt.Sprintf("artwork scale compensation (%s objective): %s", s.Objective, strings.Join(comp, "; ")),
-		fmt.Sprintf("field: over each array its most common coupler (elsewhere %s, lines at %.0f deg); bars: each site; common part: %s",
-			j.Sections[sec].Name, math.Atan2(u.Y, u.X)*180/math.Pi, strings.SplitN(s.Common, ":", 2)[0]),
-	}
-	caption := func(name string, v compStateJSON) string {
-		return fmt.Sprintf("%s: worst %.2f %s, rms %.2f %s, %d/%d in spec, site yield %.3f %%",
-			name, v.WorstOffsetM/lu.factor, lu.name, v.RMSOffsetM/lu.factor, lu.name, v.InSpec, v.Sites, 100*v.SiteYield)
-	}
-	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Views: 2, Title: title, Unit: ru,
-		Captions: []string{caption("before", s.Before), caption("after", s.After)}})
-	barL := barLen(j)
-	for vi, a := range []*analysis{aB, aA} {
-		v := m.Views[vi]
-		v.FieldGrid(grids[vi], render.Diverging, -lim, lim)
-		v.StrokeRect(ur, render.LineStyle{Color: render.Frame, Dash: []float64{6, 4}})
-		v.StrokeRect(ext, render.LineStyle{Color: render.Ink, Width: 2})
-		bars := make([]render.Bar, len(a.sites))
-		for i := range a.sites {
-			r := &a.sites[i]
-			bars[i] = render.Bar{At: render.Point{X: r.Site.Pos.X, Y: r.Site.Pos.Y}, Length: barL, Angle: r.Site.Angle,
-				Color: render.Diverging.Map(r.Stats.MeanAcross/lu.factor, -lim, lim)}
-		}
-		v.Bars(bars, render.BarStyle{})
-	}
-	m.ColorBar(render.Diverging, -lim, lim, "mean broadside offset across the lines, design offset excluded ["+lu.name+"]")
-	return m.EncodePNG(w)
 }

@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"github.com/regdrift/regdrift/registration/drift"
 	"math"
 	"os"
 	"path/filepath"
@@ -48,7 +49,7 @@ func TestCompCommandAnalytic(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	var s compSummary
+	var s drift.CompSummary
 	if err := json.Unmarshal([]byte(out), &s); err != nil {
 		t.Fatalf("JSON: %v\n%s", err, out)
 	}
@@ -79,8 +80,10 @@ func TestCompCommandAnalytic(t *testing.T) {
 			t.Error(err)
 		}
 	}
-	// With a drill budget each layer's own movement is cancelled:
-	// 1/(1+150 ppm) − 1 = −149.978 ppm for L3 (FACTS item 9).
+	// With a drill budget each layer's own movement is cancelled: a layer
+	// that grows by ε is imaged at 1/(1+ε) of size, so that it ends at the
+	// design size, (1+ε)/(1+ε) = 1; 1/(1+150 ppm) − 1 = −149.978 ppm for L3
+	// (calculated here).
 	code, out, errs = run(t, "comp", job, "-o", dir, "--json", "--accuracy", "1%", "--drill-budget", "2mil")
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
@@ -107,7 +110,7 @@ func TestCompRoundTrip(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	var s compSummary
+	var s drift.CompSummary
 	if err := json.Unmarshal([]byte(out), &s); err != nil {
 		t.Fatal(err)
 	}
@@ -152,10 +155,10 @@ func TestCompRoundTrip(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	a := newAnalysis(j)
+	a := drift.New(input(j), nil)
 	var worst float64
-	for i := range a.sites {
-		worst = math.Max(worst, math.Abs(a.sites[i].Stats.MeanAcross))
+	for i := range a.Sites {
+		worst = math.Max(worst, math.Abs(a.Sites[i].Stats.MeanAcross))
 	}
 	// Six significant digits in the TOML files: 1e-5 of a mil or so.
 	if math.Abs(worst-s.After.WorstOffsetM) > 1e-9 {

@@ -1,10 +1,9 @@
 package main
 
 import (
-	"bytes"
 	"context"
-	"encoding/json"
 	"fmt"
+	"io"
 	"io/fs"
 	"math"
 	"os"
@@ -13,6 +12,10 @@ import (
 
 	"github.com/spf13/pflag"
 
+	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/render/figure"
 	"github.com/regdrift/regdrift/samples"
 )
 
@@ -59,123 +62,123 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 		return fmt.Errorf("copying the samples: %w", err)
 	}
 	fmt.Fprintf(std.out, "regdrift demo: invented scenarios, copied to %s\n", dir)
-	common := []string{"--accuracy", f.solver.accuracy, "--cache-dir", f.solver.cacheDir}
-	if f.solver.noCache {
-		common = append(common, "--no-cache")
+	set, err := f.solver.settings(std)
+	if err != nil {
+		return err
 	}
+	lu, _ := parseUnits("mil")
 	// Analyse every job first, so that the maps of one design (the hybrid on
 	// one core and on two) share a colour scale and show which drifts more.
-	analyses := make([]*analysis, len(demoJobs))
-	lu, _ := parseUnits("mil")
+	analyses := make([]*drift.Analysis, len(demoJobs))
 	ranges := map[string]*[2]float64{}
 	for k, dj := range demoJobs {
 		j, err := loadJob(filepath.Join(dir, dj.file), nil)
 		if err != nil {
 			return err
 		}
-		if analyses[k], err = analyse(ctx, j, &f.solver); err != nil {
+		if analyses[k], err = drift.Analyse(ctx, input(j), set); err != nil {
 			return err
 		}
-		lo, hi := analyses[k].shownRange("drift", lu)
+		lo, hi, err := figure.ShownRange(analyses[k], figure.MapOptions{Show: "drift"})
+		if err != nil {
+			return err
+		}
 		r, ok := ranges[dj.design]
 		if !ok {
 			r = &[2]float64{lo, hi}
 			ranges[dj.design] = r
 		}
 		r[0], r[1] = math.Min(r[0], lo), math.Max(r[1], hi)
-		analyses[k].scale = r
 	}
 	for k, dj := range demoJobs {
 		name := strings.TrimSuffix(dj.file, ".toml")
-		job := filepath.Join(dir, dj.file)
 		out := filepath.Join(f.out, name)
 		a := analyses[k]
-		sum, _, err := a.writeMap(out, "drift", f.width, lu)
+		sum, _, err := writeMap(out, a, figure.MapOptions{Show: "drift", Width: f.width, Scale: ranges[dj.design]}, lu)
 		if err != nil {
 			return err
 		}
 		var dev, worst3 float64
-		for i := range a.sites {
-			r := &a.sites[i]
+		for i := range a.Sites {
+			r := &a.Sites[i]
 			dev = math.Max(dev, math.Abs(r.Stats.MeanAcross))
 			worst3 = math.Max(worst3, math.Abs(r.WorstDrift))
 		}
 		fmt.Fprintf(std.out, "\n%s: %s\n  map    %d of %d sites in spec; largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
 			name, dj.what, sum.InSpec, sum.Sites, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
-		// The curve is cached now: the sweep plot costs no solve.
-		if _, err := runQuiet(ctx, "sweep", append([]string{job, "-o", out}, common...)); err != nil {
+		// The sweep of the first section is the curve the map read.
+		if err := writeSweep(out, a, 0, lu); err != nil {
 			return err
 		}
-		var y struct {
-			SiteYield float64 `json:"site_yield_mean"`
-			PartYield float64 `json:"part_yield_mean"`
-			Good      struct {
-				Mean float64 `json:"mean"`
-				P05  float64 `json:"p05"`
-			} `json:"good_parts_per_panel"`
-			Parts int `json:"parts"`
-		}
-		if err := runJSON(ctx, "yield", append([]string{job, "-o", out, "--trials", "4000"}, common...), &y); err != nil {
+		res, err := a.Yield.MonteCarlo(ctx, registration.MCSettings{Trials: demoTrials, Seed: 1})
+		if err != nil {
 			return err
 		}
-		fmt.Fprintf(std.out, "  yield  %.3f %% of sites and %.3f %% of parts in spec over 4000 panels; good parts per panel %.1f of %d (5th percentile %.0f)\n",
-			100*y.SiteYield, 100*y.PartYield, y.Good.Mean, y.Parts, y.Good.P05)
+		y, _, err := writeYield(out, a, res, 1, lu)
+		if err != nil {
+			return err
+		}
+		fmt.Fprintf(std.out, "  yield  %.3f %% of sites and %.3f %% of parts in spec over %d panels; good parts per panel %.1f of %d (5th percentile %d)\n",
+			100*y.SiteYieldMean, 100*y.PartYieldMean, demoTrials, y.GoodPartsPerPanel.Mean, y.Parts, y.GoodPartsPerPanel.P05)
 		if dj.targets != "" {
-			targets := filepath.Join(dir, dj.targets)
-			var fit struct {
-				Fits []struct {
-					Outliers []string `json:"outliers"`
-				} `json:"fits"`
-			}
-			fitOut := filepath.Join(out, "fit")
-			if err := runJSON(ctx, "fit", []string{targets, "--robust", "--panel", "18in,24in", "-o", fitOut,
-				"--contributors", filepath.Join(fitOut, "measured.toml")}, &fit); err != nil {
+			if err := demoMeasured(ctx, std, a.In, filepath.Join(dir, dj.targets), dj.targets, out, set, lu); err != nil {
 				return err
 			}
-			outliers := 0
-			for _, ft := range fit.Fits {
-				outliers += len(ft.Outliers)
-			}
-			fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
-				len(fit.Fits), dj.targets, outliers, filepath.Join(fitOut, "fit.png"))
-			var comp struct {
-				Before, After struct {
-					WorstOffsetM float64 `json:"worst_offset_m"`
-					InSpec       int     `json:"in_spec"`
-					SiteYield    float64 `json:"site_yield"`
-				}
-			}
-			compOut := filepath.Join(out, "comp")
-			if err := runJSON(ctx, "comp", append([]string{job, "--targets", targets, "--drill-budget", "3mil", "--step", "5ppm", "-o", compOut}, common...), &comp); err != nil {
-				return err
-			}
-			fmt.Fprintf(std.out, "  comp   artwork scale compensation: worst offset %.2f -> %.2f mil, predicted site yield %.2f -> %.2f %% -> %s\n",
-				comp.Before.WorstOffsetM/lu.factor, comp.After.WorstOffsetM/lu.factor, 100*comp.Before.SiteYield, 100*comp.After.SiteYield,
-				filepath.Join(compOut, "comp.png"))
 		}
 		fmt.Fprintf(std.out, "  images %s\n", strings.Join(pngs(out), ", "))
 	}
 	return nil
 }
 
-// runQuiet runs another command with its stdout captured and returns it.
-func runQuiet(ctx context.Context, name string, args []string) ([]byte, error) {
-	var out, errw bytes.Buffer
-	c, _ := lookup(name)
-	err := invoke(ctx, c, stdio{out: &out, err: &errw}, args)
-	if err != nil {
-		return nil, fmt.Errorf("%s: %w", name, err)
-	}
-	return out.Bytes(), nil
+// demoTrials is the number of panels the demo's yield study draws.
+const demoTrials = 4000
+
+// writeSweep writes sweep.csv and sweep.png of section i's curve in a.
+func writeSweep(dir string, a *drift.Analysis, i int, lu lengthUnit) error {
+	c := a.Curves[i]
+	_, err := writeAll(dir,
+		outFile{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c.Curve, lu.units()) }},
+		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, c.Section, c.Curve, lu.units()) }})
+	return err
 }
 
-// runJSON runs another command with --json and decodes its summary into v.
-func runJSON(ctx context.Context, name string, args []string, v any) error {
-	b, err := runQuiet(ctx, name, append(args, "--json"))
+// demoMeasured runs the process engineer's loop on the measured targets:
+// the robust fit of each panel and layer, then the compensation from the
+// fitted lot with a 3 mil drill budget and 5 ppm steps.
+func demoMeasured(ctx context.Context, std stdio, in *drift.Input, targets, name, out string, set *drift.Settings, lu lengthUnit) error {
+	fset := registration.FitSettings{Model: registration.Affine, Robust: registration.Tukey, Datum: in.Layout.Panel.Datum}
+	fr, err := runFitFile(targets, nil, fset, 5)
 	if err != nil {
 		return err
 	}
-	return json.Unmarshal(b, v)
+	fitOut := filepath.Join(out, "fit")
+	if _, err := fr.writeFiles(fitOut, filepath.Join(fitOut, "measured.toml"), in.Layout.Panel.Size, 2400, lu); err != nil {
+		return err
+	}
+	outliers := 0
+	for _, ft := range fr.Fits {
+		outliers += len(ft.Outliers)
+	}
+	fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
+		len(fr.Fits), name, outliers, filepath.Join(fitOut, "fit.png"))
+	model, notes := drift.MeasuredModel(in.Model, fr.Lots, fr.File, false)
+	cmp, err := drift.Compensate(ctx, in, model, &registration.CompSettings{DrillBudget: 3 * unit.Mil, Max: 1000e-6, Step: 5e-6}, set)
+	if err != nil {
+		return err
+	}
+	var layers []string
+	for _, l := range fr.Lots {
+		layers = append(layers, l.Layer)
+	}
+	compOut := filepath.Join(out, "comp")
+	sum, _, err := writeComp(compOut, cmp, layers, append(notes, cmp.Notes...), 2400, lu)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(std.out, "  comp   artwork scale compensation: worst offset %.2f -> %.2f mil, predicted site yield %.2f -> %.2f %% -> %s\n",
+		sum.Before.WorstOffsetM/lu.factor, sum.After.WorstOffsetM/lu.factor, 100*sum.Before.SiteYield, 100*sum.After.SiteYield,
+		filepath.Join(compOut, "comp.png"))
+	return nil
 }
 
 // pngs lists the PNG files in dir and its subdirectories.

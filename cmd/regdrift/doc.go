@@ -72,8 +72,11 @@ each lateral offset of the upper trace relative to the lower (design offset
 included) and reports the capacitance and inductance matrices, kC and kL,
 coupling and directivity at the centre frequency, each line's impedance, the
 even and odd impedances of a symmetric pair, and both modes' effective
-permittivity. The default offsets cover ±3 sigma of the job's worst site and at
-least ±5 mil about the design offset.
+permittivity. The default offsets are those every command solves the section
+over, so that this is the curve map, yield, tol and comp read: at least ±5 mil
+about the design offset and as far as any site reaches (its mean offset ± 3
+sigma, with a tenth to spare), doubled while the coupling is still in spec at
+an end.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
 where it leaves the spec; impedances; directivity).
@@ -91,8 +94,9 @@ coupling meets the lower and upper spec limits, by root-finding on the solved
 coupling curve, and confirms each by a direct field solve at the root (refined
 by the secant method on direct solves until the coupling is within 0.0002 dB of
 the limit). The symmetric tolerance for the drawing is the smaller distance
-from the design offset to the two limits. If the curve is still in spec at the
-end of its range, the range is doubled (up to four times).
+from the design offset to the two limits. The curve is the one map and yield
+read (its range doubled, up to four times, while the coupling is still in spec
+at an end); the orientation study uses its allowed offsets, as yield does.
 
 --widen FROM:TO:STEP studies making one trace (the lower by default, see
 --widen-trace) wider by each width difference: the tolerance against the
@@ -189,8 +193,9 @@ Coupler and part yield across panels, and the error budget.
 Estimates how many couplers and parts meet their coupling spec across
 panel-to-panel variation of the registration error model.
 
-Each section's coupling curve (solved over at least ±5 mil about the design
-offset, wider while the coupling is still in spec at its ends) is inverted
+Each section's coupling curve (the one map reads: solved over at least ±5 mil
+about the design offset and the sites' mean offsets ± 3 sigma, wider while the
+coupling is still in spec at its ends) is inverted
 against its spec to give the interval
 of allowed offsets (it may be asymmetric about the design offset; if the design
 itself is out of spec the interval is empty, a warning is printed and its sites

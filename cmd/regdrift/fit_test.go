@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"fmt"
+	"github.com/regdrift/regdrift/registration/fitreport"
 	"math"
 	"os"
 	"path/filepath"
@@ -33,7 +34,7 @@ func TestFitCommand(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	var s fitSummary
+	var s fitreport.Summary
 	if err := json.Unmarshal([]byte(out), &s); err != nil {
 		t.Fatalf("JSON: %v\n%s", err, out)
 	}
@@ -86,7 +87,7 @@ func TestFitCommand(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	lots := map[string]lotJSON{}
+	lots := map[string]fitreport.LotJSON{}
 	for _, l := range s.Lot {
 		lots[l.Layer] = l
 	}
@@ -188,7 +189,7 @@ func TestFitRelativeLayer(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	var s fitSummary
+	var s fitreport.Summary
 	if err := json.Unmarshal([]byte(out), &s); err != nil {
 		t.Fatal(err)
 	}

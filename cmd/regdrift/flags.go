@@ -6,6 +6,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/registration/drift"
 )
 
 // The flags several commands share are declared here, once, so that their
@@ -51,13 +52,19 @@ func (f *solverFlags) add(fs *pflag.FlagSet) {
 	fs.StringVar(&f.cacheDir, "cache-dir", "", "directory of the solve cache (default: the user cache directory)")
 }
 
-// settings returns the solver settings; bad values are usage errors.
-func (f *solverFlags) settings() (*section.Settings, error) {
+// settings returns the solver settings; bad values are usage errors. Cache
+// warnings (a damaged entry recomputed, an entry that could not be written)
+// go to std.err: the solve succeeded, so they do not fail the run.
+func (f *solverFlags) settings(std stdio) (*drift.Settings, error) {
 	acc, err := parsePercent(f.accuracy)
 	if err != nil {
 		return nil, usageErr("--accuracy: %v", err)
 	}
-	return &section.Settings{Accuracy: acc}, nil
+	if acc < section.MinAccuracy {
+		return nil, usageErr("--accuracy: %s is finer than the solver can reach (%.2g %% at best)", f.accuracy, 100*section.MinAccuracy)
+	}
+	warn := func(w error) { fmt.Fprintf(std.err, "regdrift: warning: %v\n", w) }
+	return &drift.Settings{Accuracy: acc, CacheDir: f.cacheDir, NoCache: f.noCache, CacheWarning: warn}, nil
 }
 
 func parsePercent(s string) (float64, error) {

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -105,5 +106,30 @@ func TestPanicExitStatus(t *testing.T) {
 	}
 	if !strings.Contains(errw.String(), "internal error") {
 		t.Errorf("stderr: %s", errw.String())
+	}
+}
+
+// TestAccuracyFloor: an accuracy the solver cannot reach is a usage error
+// before any solve (it used to fail as "context canceled", exit 1).
+func TestAccuracyFloor(t *testing.T) {
+	code, _, errw := run(t, "sweep", "testdata/small.toml", "--accuracy", "0.0001%", "-o", t.TempDir())
+	if code != exitBadInput || !strings.Contains(errw, "--accuracy") {
+		t.Errorf("exit %d, want 2 naming --accuracy: %s", code, errw)
+	}
+}
+
+// TestCacheWarning: a cache that cannot be written is a warning on stderr,
+// not a failed run.
+func TestCacheWarning(t *testing.T) {
+	dir := t.TempDir()
+	file := filepath.Join(dir, "cache-is-a-file")
+	os.WriteFile(file, []byte("x"), 0o644)
+	var out, errw bytes.Buffer
+	code := realMain([]string{"sweep", "testdata/small.toml", "--cache-dir", file, "-o", t.TempDir()}, nil, &out, &errw)
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errw.String())
+	}
+	if !strings.Contains(errw.String(), "warning") {
+		t.Errorf("no cache warning on stderr: %q", errw.String())
 	}
 }

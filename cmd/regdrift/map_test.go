@@ -206,27 +206,83 @@ func TestMapAnalytic(t *testing.T) {
 
 func cmplxAbs(z complex128) float64 { return math.Hypot(real(z), imag(z)) }
 
+// TestMapJSON checks the JSON summary against sites.csv of the same run:
+// the counts, the offset and drift ranges and their root mean squares, and
+// the worst sites in order of margin.
 func TestMapJSON(t *testing.T) {
 	dir := t.TempDir()
-	code, stdout, stderr := run(t, "map", "testdata/small.toml", "-o", dir, "--width", "600", "--json")
+	code, stdout, stderr := run(t, "map", "testdata/small.toml", "-o", dir, "--width", "600", "--json", "--units", "um")
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr)
 	}
 	var s struct {
-		Sites   int `json:"sites"`
-		InSpec  int `json:"in_spec"`
-		OffsetM struct{ Min, Max, RMS float64 }
+		Sites   int                             `json:"sites"`
+		InSpec  int                             `json:"in_spec"`
+		OffsetM struct{ Min, Max, RMS float64 } `json:"offset_m"`
 		DriftDB struct{ Min, Max, RMS float64 } `json:"drift_db"`
 		Worst   []struct {
-			Name string  `json:"name"`
-			XM   float64 `json:"x_m"`
+			Name     string  `json:"name"`
+			XM       float64 `json:"x_m"`
+			MarginDB float64 `json:"margin_db"`
 		} `json:"worst"`
 	}
 	if err := json.Unmarshal([]byte(stdout), &s); err != nil {
 		t.Fatalf("%v: %s", err, stdout)
 	}
-	if s.Sites != 8 || len(s.Worst) != 8 || s.InSpec > s.Sites || s.Worst[0].Name == "" {
-		t.Errorf("summary %+v", s)
+	recs := readCSV(t, filepath.Join(dir, "sites.csv"))
+	col := map[string]int{}
+	for i, h := range recs[0] {
+		col[h] = i
+	}
+	num := func(r []string, name string) float64 {
+		v, err := strconv.ParseFloat(r[col[name]], 64)
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		return v
+	}
+	rows := recs[1:]
+	inSpec := 0
+	offLo, offHi, driftLo, driftHi := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
+	var offSS, driftSS float64
+	margin := map[string]float64{}
+	for _, r := range rows {
+		if r[col["in_spec"]] == "true" {
+			inSpec++
+		}
+		o, d := num(r, "offset_across [um]")*1e-6, num(r, "drift [dB]")
+		offLo, offHi, driftLo, driftHi = math.Min(offLo, o), math.Max(offHi, o), math.Min(driftLo, d), math.Max(driftHi, d)
+		offSS, driftSS = offSS+o*o, driftSS+d*d
+		margin[r[0]] = num(r, "margin [dB]")
+	}
+	n := float64(len(rows))
+	if s.Sites != len(rows) || s.InSpec != inSpec || len(s.Worst) != len(rows) {
+		t.Errorf("summary: %d sites, %d in spec, %d worst; sites.csv: %d rows, %d in spec", s.Sites, s.InSpec, len(s.Worst), len(rows), inSpec)
+	}
+	// sites.csv rounds to 4 decimals: 5e-5 µm and 5e-5 dB; the RMS of
+	// rounded values differs by at most as much.
+	const offTol, dbTol = 5e-11, 5e-5
+	for _, c := range []struct {
+		name      string
+		got, want float64
+		tol       float64
+	}{
+		{"offset min", s.OffsetM.Min, offLo, offTol}, {"offset max", s.OffsetM.Max, offHi, offTol},
+		{"offset rms", s.OffsetM.RMS, math.Sqrt(offSS / n), offTol},
+		{"drift min", s.DriftDB.Min, driftLo, dbTol}, {"drift max", s.DriftDB.Max, driftHi, dbTol},
+		{"drift rms", s.DriftDB.RMS, math.Sqrt(driftSS / n), dbTol},
+	} {
+		if math.Abs(c.got-c.want) > c.tol {
+			t.Errorf("%s: summary %.9g, sites.csv %.9g", c.name, c.got, c.want)
+		}
+	}
+	for k, w := range s.Worst {
+		if math.Abs(w.MarginDB-margin[w.Name]) > dbTol {
+			t.Errorf("worst %d %s: margin %.5f dB, sites.csv %.5f", k+1, w.Name, w.MarginDB, margin[w.Name])
+		}
+		if k > 0 && w.MarginDB < s.Worst[k-1].MarginDB {
+			t.Errorf("worst sites out of order at %d: %.5f after %.5f dB", k+1, w.MarginDB, s.Worst[k-1].MarginDB)
+		}
 	}
 }
 

@@ -2,20 +2,18 @@ package main
 
 import (
 	"context"
-	"encoding/csv"
 	"errors"
 	"fmt"
 	"io"
 	"math"
-	"sort"
-	"strconv"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
-	"github.com/regdrift/regdrift/render"
+	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/render/figure"
 )
 
 type sweepFlags struct {
@@ -58,7 +56,7 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	set, err := f.solver.settings()
+	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
 	}
@@ -71,122 +69,43 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	s := j.Sections[si]
-	a := newAnalysis(j)
-	offsets := a.offsets(si)
-	if f.offsets != "" {
+	var c *section.Curve
+	var hit bool
+	if f.offsets == "" {
+		// The curve map, yield, tol and comp read (one range rule, one cache entry).
+		sc, err := drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+		if err != nil {
+			return solveErr(j, err)
+		}
+		c, hit = sc.Curve, sc.FromCache
+	} else {
 		r, err := unit.ParseRange(f.offsets, unit.Length)
 		if err != nil {
 			return usageErr("--offsets: %v", err)
 		}
-		offsets = r.Values()
+		offsets := r.Values()
 		if len(offsets) < 2 {
 			return usageErr("--offsets: %q gives fewer than two offsets", f.offsets)
 		}
-	}
-	c, hit, err := section.CachedSweep(ctx, s, offsets, set, f.solver.cacheDir, f.solver.noCache)
-	if err != nil {
-		var fe *section.FieldError
-		if errors.As(err, &fe) {
-			if fe.Key == "offsets" {
+		if c, hit, err = drift.SolveAt(ctx, s, offsets, set); err != nil {
+			var fe *section.FieldError
+			if errors.As(err, &fe) && fe.Key == "offsets" {
 				return usageErr("--offsets: %v", fe.Err)
 			}
-			return badInput(j.SectionError(si, fe.Key, fe.Err))
+			return solveErr(j, err)
 		}
-		return err
 	}
-	res := sweepResult(s, c, hit)
+	res := drift.Sweep(s, c, hit)
 	paths, err := writeAll(f.out,
-		outFile{"sweep.csv", func(w io.Writer) error { return writeSweepCSV(w, c, lu) }},
-		outFile{"sweep.png", func(w io.Writer) error { return drawSweep(w, s, c, lu) }})
+		outFile{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c, lu.units()) }},
+		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, s, c, lu.units()) }})
 	if err != nil {
 		return err
 	}
 	return report(std, f.json, res, func() { printSweep(std.out, s, c, res, lu, paths) })
 }
 
-// sweepJSON is the sweep --json object: the solver's report of the curve
-// (INTERFACE.md's fields and a convergence report per point) and the spec.
-type sweepJSON struct {
-	section.Report
-	DesignOffsetM  float64   `json:"design_offset_m"`
-	SpecCouplingDB float64   `json:"spec_coupling_db"`
-	SpecTolDB      float64   `json:"spec_tolerance_db"`
-	LeavesSpecAtM  []float64 `json:"leaves_spec_at_m"`
-	FromCache      bool      `json:"from_cache"`
-}
-
-func sweepResult(s *section.Section, c *section.Curve, hit bool) *sweepJSON {
-	return &sweepJSON{Report: c.Report(), DesignOffsetM: s.NominalOffset(),
-		SpecCouplingDB: s.Spec.Coupling, SpecTolDB: s.Spec.Tolerance,
-		LeavesSpecAtM: specCrossings(c, s.Spec), FromCache: hit}
-}
-
-// specCrossings returns the offsets within the curve's range at which its
-// coupling crosses a spec limit, found by scanning the interpolant and
-// bisecting each sign change to 1e-12 m.
-func specCrossings(c *section.Curve, sp section.Spec) []float64 {
-	lo, hi := c.Range()
-	var out []float64
-	for _, lim := range []float64{sp.Coupling - sp.Tolerance, sp.Coupling + sp.Tolerance} {
-		g := func(x float64) float64 { return c.Coupling(x) - lim }
-		const n = 2000
-		x0, g0 := lo, g(lo)
-		for k := 1; k <= n; k++ {
-			x1 := lo + (hi-lo)*float64(k)/n
-			g1 := g(x1)
-			if g0 == 0 {
-				out = append(out, x0)
-			} else if g0*g1 < 0 {
-				a, b, ga := x0, x1, g0
-				for b-a > 1e-12 {
-					m := (a + b) / 2
-					gm := g(m)
-					if gm*ga <= 0 {
-						b = m
-					} else {
-						a, ga = m, gm
-					}
-				}
-				out = append(out, (a+b)/2)
-			}
-			x0, g0 = x1, g1
-		}
-	}
-	sort.Float64s(out)
-	return out
-}
-
-func writeSweepCSV(w io.Writer, c *section.Curve, lu lengthUnit) error {
-	cw := csv.NewWriter(w)
-	header := []string{"offset [" + lu.name + "]",
-		"c11 [pF/m]", "c12 [pF/m]", "c22 [pF/m]", "c0_11 [pF/m]", "c0_12 [pF/m]", "c0_22 [pF/m]",
-		"l11 [nH/m]", "l12 [nH/m]", "l22 [nH/m]", "k_c", "k_l",
-		"coupling [dB]", "directivity [dB]", "z_line1 [ohm]", "z_line2 [ohm]", "z_even [ohm]", "z_odd [ohm]",
-		"eps_eff_mode1", "eps_eff_mode2", "estimated_error"}
-	if err := cw.Write(header); err != nil {
-		return err
-	}
-	g := func(v float64, d int) string { return strconv.FormatFloat(v, 'f', d, 64) }
-	for _, p := range c.Points {
-		ze, zo := "", ""
-		if p.Symmetric {
-			ze, zo = g(p.ZEven, 4), g(p.ZOdd, 4)
-		}
-		rec := []string{g(p.Offset/lu.factor, 4),
-			g(p.C[0][0]*1e12, 4), g(p.C[0][1]*1e12, 4), g(p.C[1][1]*1e12, 4),
-			g(p.C0[0][0]*1e12, 4), g(p.C0[0][1]*1e12, 4), g(p.C0[1][1]*1e12, 4),
-			g(p.L[0][0]*1e9, 4), g(p.L[0][1]*1e9, 4), g(p.L[1][1]*1e9, 4), g(p.KC, 6), g(p.KL, 6),
-			g(p.CouplingDB, 4), g(p.DirectivityDB, 2), g(p.ZLine[0], 4), g(p.ZLine[1], 4), ze, zo,
-			g(p.EpsEff[0], 5), g(p.EpsEff[1], 5), strconv.FormatFloat(p.Convergence.EstimatedError, 'e', 2, 64)}
-		if err := cw.Write(rec); err != nil {
-			return err
-		}
-	}
-	cw.Flush()
-	return cw.Error()
-}
-
-func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *sweepJSON, lu lengthUnit, paths []string) {
+func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *drift.SweepSummary, lu lengthUnit, paths []string) {
 	fmt.Fprintf(w, "section %s: %d offsets, f0 %.4g GHz, coupled length %.1f %s, z_ref %.1f ohm\n",
 		s.Name, len(c.Points), c.Frequency/1e9, c.Length/lu.factor, lu.name, s.ZRef)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
@@ -218,55 +137,4 @@ func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *sweepJSON,
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
 	}
-}
-
-func drawSweep(w io.Writer, s *section.Section, c *section.Curve, lu lengthUnit) error {
-	lo, hi := c.Range()
-	n := 400
-	xs := make([]float64, n+1)
-	cp := make([]float64, n+1)
-	dir := make([]float64, n+1)
-	z1 := make([]float64, n+1)
-	z2 := make([]float64, n+1)
-	for k := range xs {
-		x := lo + (hi-lo)*float64(k)/float64(n)
-		xs[k] = x / lu.factor
-		cp[k] = c.Coupling(x)
-		dir[k] = c.Directivity(x)
-		z := c.ZLine(x)
-		z1[k], z2[k] = z[0], z[1]
-	}
-	var px, pc []float64
-	for _, p := range c.Points {
-		px = append(px, p.Offset/lu.factor)
-		pc = append(pc, p.CouplingDB)
-	}
-	top := &render.Axes{YLabel: "coupling |S31| [dB]", Weight: 2,
-		Bands: []render.Band{{Lo: s.Spec.Coupling - s.Spec.Tolerance, Hi: s.Spec.Coupling + s.Spec.Tolerance,
-			Label: fmt.Sprintf("spec %.2f ± %.2f dB", s.Spec.Coupling, s.Spec.Tolerance)}},
-		Lines: []render.Line{
-			{Label: "interpolated", X: xs, Y: cp, Color: render.Series(0)},
-			{Label: "solved", X: px, Y: pc, Color: render.Series(0), Marker: render.Circle, Width: -1},
-		},
-		VLines: []render.VLine{{X: s.NominalOffset() / lu.factor, Label: "design", Color: render.Frame}},
-	}
-	for _, x := range specCrossings(c, s.Spec) {
-		top.VLines = append(top.VLines, render.VLine{X: x / lu.factor, Label: fmt.Sprintf("%+.2f %s", x/lu.factor, lu.name), Color: render.Series(3)})
-	}
-	mid := &render.Axes{YLabel: "line impedance [ohm]",
-		Lines: []render.Line{
-			{Label: "upper line (" + s.Traces[0].Layer + ")", X: xs, Y: z1, Color: render.Series(1)},
-			{Label: "lower line (" + s.Traces[1].Layer + ")", X: xs, Y: z2, Color: render.Series(2), Dash: []float64{3, 2}},
-		},
-		HLines: []render.HLine{{Y: s.ZRef, Label: fmt.Sprintf("z_ref %.0f ohm", s.ZRef), Dash: []float64{6, 4}}},
-	}
-	bot := &render.Axes{YLabel: "directivity [dB]",
-		Lines: []render.Line{{Label: "directivity", X: xs, Y: dir, Color: render.Series(4)}}}
-	p := &render.Plot{
-		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus lateral offset of %s against %s",
-			s.Name, c.Frequency/1e9, c.Length/lu.factor, lu.name, s.Traces[0].Layer, s.Traces[1].Layer),
-		XLabel: "offset of the upper trace across the lines [" + lu.name + "]",
-		Axes:   []*render.Axes{top, mid, bot},
-	}
-	return p.Render(1800, 1500).EncodePNG(w)
 }

@@ -10,8 +10,9 @@ import (
 	"github.com/regdrift/regdrift/panel/section"
 )
 
-// TestSweepJSON runs sweep on the small job and checks the JSON fields of
-// INTERFACE.md, the symmetry of a centred equal-width pair (C(+δ) = C(−δ),
+// TestSweepJSON runs sweep on the small job and checks the JSON fields
+// (section, frequency, one point per offset, even and odd impedances of the
+// symmetric point), the symmetry of a centred equal-width pair (C(+δ) = C(−δ),
 // a property of the geometry), and that the reported spec crossings are where
 // a direct solve gives the spec limit (to 0.005 dB: the interpolant between
 // 0.5 mil samples plus the solve's own accuracy).

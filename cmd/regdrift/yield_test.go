@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"github.com/regdrift/regdrift/registration/drift"
 	"os"
 	"path/filepath"
 	"strings"
@@ -111,7 +112,7 @@ func TestYieldWorkers(t *testing.T) {
 	if !bytes.Equal(jsons[0], jsons[1]) {
 		t.Error("JSON summary differs between 1 and 2 workers")
 	}
-	var sum yieldJSON
+	var sum drift.YieldSummary
 	if err := json.Unmarshal(jsons[0], &sum); err != nil {
 		t.Fatal(err)
 	}
@@ -190,7 +191,7 @@ func TestYieldDesignOutOfSpec(t *testing.T) {
 	if !strings.Contains(errs, "warning") || !strings.Contains(errs, "hybrid") || !strings.Contains(errs, "outside its spec") {
 		t.Errorf("no clear warning: %q", errs)
 	}
-	var sum yieldJSON
+	var sum drift.YieldSummary
 	if err := json.Unmarshal([]byte(out), &sum); err != nil {
 		t.Fatal(err)
 	}

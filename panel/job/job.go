@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"io/fs"
-	"math"
 	"os"
 	"path/filepath"
 
@@ -51,23 +50,10 @@ func (j *Job) SectionError(i int, key string, err error) error {
 	return j.sectionSrc[i].err(key, err)
 }
 
-// ArrayExtents returns of the layout, the rectangle its parts cover.
+// ArrayExtents returns, per array of the layout, the rectangle its parts
+// cover (panel.ArrayExtents).
 func (j *Job) ArrayExtents() []panel.Rect {
-	ext := make([]panel.Rect, len(j.Layout.Arrays))
-	seen := make([]bool, len(ext))
-	for _, in := range j.Instances {
-		if in.Array < 0 {
-			continue
-		}
-		b, e := in.Bounds, &ext[in.Array]
-		if !seen[in.Array] {
-			*e, seen[in.Array] = b, true
-			continue
-		}
-		e.Min = panel.Vec{X: math.Min(e.Min.X, b.Min.X), Y: math.Min(e.Min.Y, b.Min.Y)}
-		e.Max = panel.Vec{X: math.Max(e.Max.X, b.Max.X), Y: math.Max(e.Max.Y, b.Max.Y)}
-	}
-	return ext
+	return panel.ArrayExtents(len(j.Layout.Arrays), j.Instances)
 }
 
 // Load reads and validates the job file at path and everything it includes;

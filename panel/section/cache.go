@@ -19,7 +19,7 @@ import (
 
 // SolverVersion changes whenever a change to the solver changes its numbers;
 // it is part of every cache key.
-const SolverVersion = "section-3"
+const SolverVersion = "section-4"
 
 // CacheFormat is the version of the cache file layout; it is part of every
 // cache key too. Format 2 added the payload checksum.
@@ -44,11 +44,12 @@ type cacheKey struct {
 	DesignOffset float64
 	Offsets      []float64
 	Accuracy     float64
+	Sens         bool // Settings.Sensitivities
 }
 
 // CacheKey returns the hex SHA-256 that names the cache file of a sweep.
 func CacheKey(s *Section, offsets []float64, set *Settings) string {
-	k := cacheKey{SolverVersion, CacheFormat, s.Stackup, s.Traces, s.Grounds, s.Frequency, s.Length, s.ZRef, s.DesignOffset, offsets, set.accuracy()}
+	k := cacheKey{SolverVersion, CacheFormat, s.Stackup, s.Traces, s.Grounds, s.Frequency, s.Length, s.ZRef, s.DesignOffset, offsets, set.accuracy(), set.sensitivities()}
 	b, err := json.Marshal(k)
 	if err != nil {
 		// Only a non-finite number fails to marshal; CachedSweep rejects

@@ -27,7 +27,9 @@ type femWork struct {
 	kb     int       // half bandwidth of the column-by-column numbering
 	rhs    []float64 // nfree × 2, row-major
 	nd     ndFactor
-	phi    [2][]float64
+	phi    [2][]float64 // potentials of the last solve
+	phi0   [2][]float64 // vacuum potentials, kept when derivatives follow
+	sens   sensWork
 }
 
 // gauss2 are the 2-point Gauss–Legendre abscissae ±1/√3 (weights 1).

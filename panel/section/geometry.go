@@ -8,6 +8,22 @@ type band struct {
 	y0, y1 float64
 	er     float64 // permittivity of the band (resin of the neighbouring prepreg in a trace slab)
 	trace  int     // index of the trace in this slab, or -1; both traces: 2
+	src    int     // stackup index of the dielectric whose εr fills the band; srcAir outside the stack
+}
+
+// Permittivity sources of an element that are not a stackup layer.
+const (
+	srcAir  = -1
+	srcMask = -2
+)
+
+// maskGeom is the solder mask in domain coordinates (see Mask).
+type maskGeom struct {
+	y0     float64 // laminate face under the outer copper slab
+	top    float64 // y0 + OverLaminate
+	tc     float64 // coat over the copper
+	er     float64
+	coated [2]bool // trace k stands in the outer slab and is coated
 }
 
 // traceGeom is one trapezoidal trace in domain coordinates.
@@ -43,6 +59,7 @@ type geometry struct {
 	order [4]edgeRef
 	offLo float64
 	offHi float64
+	mask  *maskGeom // nil without a solder mask
 }
 
 // edgeRef names one side of one trace.
@@ -90,12 +107,18 @@ func (s *Section) buildGeometry() *geometry {
 		}
 		return ls[i].Er
 	}
+	src := func(i int) int {
+		if i < 0 || i >= len(ls) {
+			return srcAir
+		}
+		return i
+	}
 	isCore := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric && ls[i].Core }
 	isDiel := func(i int) bool { return i >= 0 && i < len(ls) && ls[i].Kind == Dielectric }
 	y := 0.0
 	for _, i := range order {
 		l := ls[i]
-		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1}
+		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i}
 		if l.Kind == Copper {
 			// A copper slab: the trace stands on the face of the dielectric it was
 			// etched on, a core face if the slab touches exactly one core, else the
@@ -110,11 +133,11 @@ func (s *Section) buildGeometry() *geometry {
 			default:
 				footBelow = isDiel(i + 1)
 			}
-			resin := er(i - 1)
+			resin, rs := er(i-1), src(i-1)
 			if !footBelow {
-				resin = er(i + 1)
+				resin, rs = er(i+1), src(i+1)
 			}
-			b.er = resin
+			b.er, b.src = resin, rs
 			for k := range 2 {
 				if ls[i].Name != s.Traces[k].Layer {
 					continue
@@ -146,7 +169,60 @@ func (s *Section) buildGeometry() *geometry {
 		y = b.y1
 	}
 	g.stackH = y
+	if m := s.Stackup.Mask; m != nil && g.micro {
+		mg := &maskGeom{y0: y, tc: m.OverCopper, er: m.Er}
+		if o := order[len(order)-1]; ls[o].Kind == Copper {
+			mg.y0 = y - ls[o].Thickness
+			for k := range 2 {
+				mg.coated[k] = g.tr[k].slab == o && ls[o].Name == s.Traces[k].Layer
+			}
+		}
+		mg.top = mg.y0 + m.OverLaminate
+		g.mask = mg
+	}
 	return g
+}
+
+// splitTol is the least distance, m, between a mask face and another row:
+// 1 nm (4e−5 mil), far below any coat and far above rounding. Faces closer
+// than that are one row; so is a face moved by the step of a shape
+// derivative (shapeStep·feature, 1e−11 m for a 0.4 mil feature), so that
+// the derivative keeps the band structure where a coat's top meets another
+// face (there the coat's surface has a kink and the derivative is that of
+// one side).
+const splitTol = 1e-9
+
+// maskSplits returns the heights at which the mask adds node rows.
+func (g *geometry) maskSplits() []float64 {
+	m := g.mask
+	if m == nil {
+		return nil
+	}
+	out := []float64{m.top}
+	for k := range 2 {
+		if m.coated[k] {
+			out = append(out, g.tr[k].yt+m.tc)
+		}
+	}
+	return out
+}
+
+// splitBands splits bands at every height in at that lies inside one, more
+// than splitTol from its faces (a coat whose top meets another face within
+// rounding adds no row).
+func splitBands(bands []band, at []float64) []band {
+	for _, y := range at {
+		for i := 0; i < len(bands); i++ {
+			b := bands[i]
+			if y > b.y0+splitTol && y < b.y1-splitTol {
+				lo, hi := b, b
+				lo.y1, hi.y0 = y, y
+				bands = append(bands[:i], append([]band{lo, hi}, bands[i+1:]...)...)
+				break
+			}
+		}
+	}
+	return bands
 }
 
 // domainHeight returns the ground-to-ground distance (stripline) or the height

@@ -30,23 +30,27 @@ const (
 // row heights for one section and refinement level; it is shared by every
 // offset of a sweep.
 type meshPlan struct {
-	g       *geometry
-	level   float64
-	bands   []band    // geometry bands plus the air band for a microstrip
-	ys      []float64 // node row heights, bottom to top
-	rowBand []int     // band of each element row
-	xc      []int     // element counts per lateral segment
-	nx, ny  int       // elements per row and per column
-	gx      grading
-	margin  float64 // distance from the outermost trace edge to a side wall
-	wmax    float64 // widest foot
-	hi, lo  int     // broadside: index of the trace in the higher / lower slab
-	jub     int     // broadside: row of the lower face of the higher trace
-	jlt     int     // broadside: row of the upper face of the lower trace
-	feat    float64 // smallest feature (sets the gap of held edges)
+	g        *geometry
+	level    float64
+	bands    []band    // geometry bands plus the air band for a microstrip
+	ys       []float64 // node row heights, bottom to top
+	rowBand  []int     // band of each element row
+	xc       []int     // element counts per lateral segment
+	nx, ny   int       // elements per row and per column
+	gx       grading
+	margin   float64 // distance from the outermost trace edge to a side wall
+	wmax     float64 // widest foot
+	hi, lo   int     // broadside: index of the trace in the higher / lower slab
+	jub      int     // broadside: row of the lower face of the higher trace
+	jlt      int     // broadside: row of the upper face of the lower trace
+	feat     float64 // smallest feature (sets the gap of held edges)
+	coatEdge []int   // per key, the copper edge of a coat face, or −1 (geometry.coatEdges)
 
 	ndOnce sync.Once
 	nd     *ndSymbolic // nested dissection of the grid (nd.go), built on first use
+
+	pertMu sync.Mutex
+	pert   map[int]*meshPlan // the plan moved along each length parameter (sensitivity.go)
 }
 
 // dissection returns the plan's nested dissection, building it from m (a
@@ -76,9 +80,18 @@ func (g *geometry) smallestFeature(s *Section) float64 {
 			}
 		}
 	}
+	// The mask's coat is not a feature of its own: its corners are
+	// dielectric corners, far weaker singularities than the copper's, and a
+	// floor set by a thin coat would refine every conductor edge too (2.3×
+	// the bare section's time for a 0.6 mil coat). Its faces are node lines
+	// and the level's counts resolve it.
+	coat := 0.0
+	if m := g.mask; m != nil && (m.coated[0] || m.coated[1]) {
+		coat = m.tc
+	}
 	if g.same {
 		d := math.Abs((g.offLo + g.offHi) / 2)
-		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2
+		gap := d - (s.Traces[0].Width+s.Traces[1].Width)/2 - 2*coat
 		if gap > 0 {
 			f = math.Min(f, gap)
 		}
@@ -103,8 +116,9 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		hmax = math.Inf(1)
 		r := g.openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
 		p.margin = r
-		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1})
+		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1, src: srcAir})
 	}
+	p.bands = splitBands(p.bands, g.maskSplits())
 	p.gx = grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
 	gy := grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
 	// Counts come from the base grading (floor h0base) at level lev.
@@ -151,6 +165,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 		p.jub = rowOf(g.tr[p.hi].yb)
 		p.jlt = rowOf(g.tr[p.lo].yt)
 	}
+	p.coatEdge = g.coatEdges()
 	var keys []float64
 	for _, off := range []float64{g.offLo, (g.offLo + g.offHi) / 2, g.offHi} {
 		// The patterns as realised: each trace's own rows with the other's
@@ -168,7 +183,7 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 			}
 			for i := range p.xc {
 				if keys[i+1] > keys[i] {
-					p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], edgeSing(keys, i))))
+					p.xc[i] = max(p.xc[i], count(cx.phi(keys[i], keys[i+1], p.segSing(keys, i))))
 				} else {
 					p.xc[i] = max(p.xc[i], minSegCount)
 				}
@@ -200,6 +215,50 @@ func edgeSing(keys []float64, i int) []float64 {
 	return s
 }
 
+// segSing returns the singular points that grade segment i of the plan's
+// key list: its ends that are conductor edges, and for an end that is the
+// outer face of a mask's side-wall coat the copper edge behind it (a
+// dielectric face has a kink in the field, not a singularity, and the column
+// line resolves it; grading toward it as toward copper doubled the unknowns
+// of a coated pair, so the grading runs on from the copper across it).
+func (p *meshPlan) segSing(keys []float64, i int) []float64 {
+	if p.coatEdge == nil {
+		return edgeSing(keys, i)
+	}
+	var s []float64
+	for _, q := range []int{i, i + 1} {
+		switch {
+		case q == 0 || q == len(keys)-1: // a wall
+		case p.coatEdge[q] >= 0:
+			s = append(s, keys[p.coatEdge[q]])
+		default:
+			s = append(s, keys[q])
+		}
+	}
+	return s
+}
+
+// coatEdges returns, for each key of keysOrdered, the key of the copper edge
+// whose coat face it is, or −1 (nil without coated traces).
+func (g *geometry) coatEdges() []int {
+	_, coated := g.coat()
+	if !coated[0] && !coated[1] {
+		return nil
+	}
+	out := []int{-1}
+	for _, e := range g.order {
+		c := coated[e.trace]
+		if !e.right && c {
+			out = append(out, len(out)+1)
+		}
+		out = append(out, -1)
+		if e.right && c {
+			out = append(out, len(out)-1)
+		}
+	}
+	return append(out, -1)
+}
+
 // walls returns the side walls at offset off. The half extent
 // wmax/2 + √((δ/2)² + (wmax/2)²) bounds both traces and is smooth in δ.
 func (p *meshPlan) walls(off float64) (lo, hi float64) {
@@ -219,11 +278,18 @@ func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int
 	wl, wr := p.walls(off)
 	dst = append(dst[:0], wl)
 	centre := [2]float64{g.x1 + off, g.x1}
+	tc, coated := g.coat()
 	for _, e := range g.order {
 		hw := g.tr[e.trace].halfWidth(y[e.trace])
 		if e.right {
 			dst = append(dst, centre[e.trace]+hw)
+			if coated[e.trace] {
+				dst = append(dst, centre[e.trace]+hw+tc)
+			}
 		} else {
+			if coated[e.trace] {
+				dst = append(dst, centre[e.trace]-hw-tc)
+			}
 			dst = append(dst, centre[e.trace]-hw)
 		}
 	}
@@ -259,6 +325,48 @@ func (p *meshPlan) keysOrdered(off float64, dst []float64, y [2]float64, own int
 	return dst
 }
 
+// coat returns the side-wall coat of the mask and which traces carry it
+// (their rows get a column line at each coat's outer face; only an
+// edge-coupled pair can be coated, Section.checkMask).
+func (g *geometry) coat() (tc float64, coated [2]bool) {
+	if g.mask == nil {
+		return 0, coated
+	}
+	return g.mask.tc, g.mask.coated
+}
+
+// keyColumns returns, per trace, the column lines of its left and right edge
+// and of the outer faces of its side-wall coats (equal to the edges when it
+// is not coated), in the key order of keysOrdered.
+func (p *meshPlan) keyColumns() (colL, colR, coatL, coatR [2]int) {
+	_, coated := p.g.coat()
+	q, col := 0, 0 // key index, column of key q
+	next := func() { col += p.xc[q]; q++ }
+	for _, e := range p.g.order {
+		k := e.trace
+		if e.right {
+			next()
+			colR[k] = col
+			coatR[k] = col
+			if coated[k] {
+				next()
+				coatR[k] = col
+			}
+		} else {
+			if coated[k] {
+				next()
+				coatL[k] = col
+			}
+			next()
+			colL[k] = col
+			if !coated[k] {
+				coatL[k] = col
+			}
+		}
+	}
+	return
+}
+
 // Held edges: an edge of the other trace stays at least heldGap·feature from
 // its neighbour, and is moved only within heldSoft·feature of that limit.
 const (
@@ -291,6 +399,7 @@ type mesh struct {
 	x, y   []float64 // node coordinates, node (i, j) at i*(ny+1)+j
 	tag    []int8    // tagFree, tagGround, or tagTrace+k
 	er     []float64 // element permittivity, 0 inside a conductor; element (i, j) at i*ny+j
+	src    []int16   // where each element's permittivity comes from: a stackup index, srcAir or srcMask
 }
 
 const (
@@ -300,7 +409,12 @@ const (
 )
 
 // realize places the nodes of plan p for offset off.
-func (p *meshPlan) realize(off float64, m *mesh) {
+func (p *meshPlan) realize(off float64, m *mesh) { p.place(off, m, true) }
+
+// place places the nodes of plan p for offset off and, with full, tags them
+// and sets the element permittivities; without, only the coordinates (a
+// moved copy of a mesh whose tags and permittivities are known).
+func (p *meshPlan) place(off float64, m *mesh, full bool) {
 	g := p.g
 	nx, ny := p.nx, p.ny
 	nn := (nx + 1) * (ny + 1)
@@ -308,6 +422,10 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 	m.x = resize(m.x, nn)
 	m.y = resize(m.y, nn)
 	m.er = resize(m.er, nx*ny)
+	if cap(m.src) < nx*ny {
+		m.src = make([]int16, nx*ny)
+	}
+	m.src = m.src[:nx*ny]
 	if cap(m.tag) < nn {
 		m.tag = make([]int8, nn)
 	}
@@ -321,7 +439,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 		keys = p.keysOrdered(off, keys, [2]float64{y, y}, k)
 		i0 := 0
 		for s, c := range p.xc {
-			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, edgeSing(keys, s))
+			gr.nodes(dst[i0:i0+c+1], keys[s], keys[s+1], c, p.segSing(keys, s))
 			i0 += c
 		}
 	}
@@ -330,16 +448,7 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 		fill(rowHi, p.ys[p.jub], p.hi)
 	}
 	// Trace column ranges [iL, iR] in the pattern of each row.
-	var colL, colR [2]int
-	col := 0
-	for e, ed := range g.order {
-		col += p.xc[e]
-		if ed.right {
-			colR[ed.trace] = col
-		} else {
-			colL[ed.trace] = col
-		}
-	}
+	colL, colR, coatL, coatR := p.keyColumns()
 	for j, y := range p.ys {
 		switch {
 		case g.same:
@@ -368,6 +477,9 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 		for i := 0; i <= nx; i++ {
 			n := i*(ny+1) + j
 			m.x[n], m.y[n] = row[i], y
+			if !full {
+				continue
+			}
 			tag := tagFree
 			if j == 0 || (j == ny && !g.micro) || (g.micro && (j == ny || i == 0 || i == nx)) {
 				tag = tagGround
@@ -382,10 +494,14 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 			m.tag[n] = tag
 		}
 	}
+	if !full {
+		return
+	}
+	mg := g.mask
 	for i := range nx {
 		for j := range ny {
 			b := p.bands[p.rowBand[j]]
-			er := b.er
+			er, src := b.er, b.src
 			for k := range 2 {
 				if (b.trace == k || b.trace == 2) && g.tr[k].yt > g.tr[k].yb && i >= colL[k] && i < colR[k] {
 					if g.same || (k == p.hi && j >= p.jub) || (k == p.lo && j < p.jlt) {
@@ -393,7 +509,22 @@ func (p *meshPlan) realize(off float64, m *mesh) {
 					}
 				}
 			}
+			if er != 0 && mg != nil {
+				// Rows and columns follow the mask's faces, so the element
+				// centre decides.
+				yc := (p.ys[j] + p.ys[j+1]) / 2
+				in := yc > mg.y0 && yc < mg.top
+				for k := range 2 {
+					if mg.coated[k] && yc > mg.y0 && yc < g.tr[k].yt+mg.tc && i >= coatL[k] && i < coatR[k] {
+						in = true
+					}
+				}
+				if in {
+					er, src = mg.er, srcMask
+				}
+			}
 			m.er[i*ny+j] = er
+			m.src[i*ny+j] = int16(src)
 		}
 	}
 }

@@ -40,15 +40,69 @@ func (k LayerKind) String() string {
 
 // Layer is one entry of a stackup, listed top to bottom as on a fabrication drawing.
 type Layer struct {
-	Name      string    // copper layer name ("L3"); optional for dielectrics
+	Name      string    // copper layer name ("L3"); optional for dielectrics, unique when given
 	Kind      LayerKind // Copper or Dielectric
 	Thickness float64   // m, finished (copper: foil plus plating); a copper thickness of 0 is an ideal zero-thickness strip
 	Er        float64   // relative permittivity (dielectrics only)
 	Core      bool      // dielectric: true = core, false = prepreg
+	// Copper only, optional: the base foil and each plating step, m. When
+	// either is given, Thickness must be their sum (FinishedThickness); the
+	// solver uses Thickness, these record how it was built so that a picture
+	// or a variation term can address one step.
+	Foil    float64
+	Plating []float64
 }
 
-// Stackup is a list of layers, top to bottom.
-type Stackup struct{ Layers []Layer }
+// Stackup is a list of layers, top to bottom, and an optional solder mask
+// over the outer copper of a microstrip.
+type Stackup struct {
+	Layers []Layer
+	Mask   *Mask // nil: no mask
+}
+
+// Mask is a solder-mask coat over the outer copper of a microstrip (the face
+// of the stack away from its ground). Over the bare laminate it is a slab
+// OverLaminate thick on the laminate face; over a trace it is OverCopper
+// thick on the trace's far face and, measured horizontally, on its side walls
+// (square outer corners); where the two overlap the coat is their union.
+type Mask struct {
+	OverLaminate float64 // m, > 0
+	OverCopper   float64 // m, > 0
+	Er           float64 // relative permittivity, >= 1
+}
+
+// Copper weight. A foil's weight in ounces per square foot converts to a
+// thickness through the mass of the ounce and the area of the foot (both
+// exact by definition: 28.349523125 g and 0.09290304 m², so 1 oz/ft² =
+// 305.1517 g/m²) and the density of the copper.
+const (
+	// OunceMass is the avoirdupois ounce, kg (exact, 1959 international yard and pound).
+	OunceMass = 28.349523125e-3
+	// SquareFoot is 1 ft², m² (exact: 0.3048² m²).
+	SquareFoot = 0.09290304
+	// CopperDensity is the density of pure copper at 20 °C, kg/m³: the
+	// handbook value 8.96 g/cm³ (CRC Handbook of Chemistry and Physics,
+	// "Physical constants of inorganic compounds", copper). Rolled and
+	// electrodeposited foil is within about 1 % of it.
+	CopperDensity = 8960.0
+	// OzThickness is the thickness of 1 oz/ft² of copper at CopperDensity:
+	// 305.1517 g/m² / 8.96 g/cm³ = 34.057 µm = 1.3408 mil.
+	OzThickness = OunceMass / SquareFoot / CopperDensity
+)
+
+// CopperWeightThickness returns the thickness, m, of a copper foil of weight
+// oz ounces per square foot (OzThickness per ounce).
+func CopperWeightThickness(oz float64) float64 { return oz * OzThickness }
+
+// FinishedThickness returns a copper layer's finished thickness: the foil
+// plus every plating step, m.
+func FinishedThickness(foil float64, plating []float64) float64 {
+	t := foil
+	for _, p := range plating {
+		t += p
+	}
+	return t
+}
 
 // Trace is one conductor of the coupled pair.
 type Trace struct {
@@ -144,6 +198,15 @@ func (s *Section) Validate() error {
 		if !finite(l.Thickness) || l.Thickness < 0 || (l.Kind == Dielectric && l.Thickness == 0) {
 			return s.fieldErr(key+".thickness", "thickness %s must be positive", mils(l.Thickness))
 		}
+		if l.Name != "" {
+			if j, dup := names[l.Name]; dup {
+				return s.fieldErr(key+".name", "layer name %q repeats layer %d", l.Name, j)
+			}
+			names[l.Name] = i
+		}
+		if l.Kind != Copper && (l.Foil != 0 || len(l.Plating) > 0) {
+			return s.fieldErr(key+".foil", "a dielectric has no foil or plating")
+		}
 		switch l.Kind {
 		case Dielectric:
 			if !finite(l.Er) || l.Er < 1 {
@@ -153,10 +216,9 @@ func (s *Section) Validate() error {
 			if l.Name == "" {
 				return s.fieldErr(key+".name", "copper layer has no name")
 			}
-			if j, dup := names[l.Name]; dup {
-				return s.fieldErr(key+".name", "copper layer %q repeats layer %d", l.Name, j)
+			if err := s.checkBuild(key, l); err != nil {
+				return err
 			}
-			names[l.Name] = i
 			if i > 0 && ls[i-1].Kind == Copper {
 				return s.fieldErr(key, "copper layer %q touches copper layer %q: a dielectric must separate them", l.Name, ls[i-1].Name)
 			}
@@ -218,6 +280,9 @@ func (s *Section) Validate() error {
 		if !finite(t.X) || math.Abs(t.X) > 1 {
 			return s.fieldErr(key+".x", "position %s is not a lateral position in a cross-section", mils(t.X))
 		}
+	}
+	if err := s.checkMask(ti); err != nil {
+		return err
 	}
 	if ti[0] > ti[1] {
 		return s.fieldErr("traces[0].layer", "upper trace %q lies below trace %q: list the upper trace first", s.Traces[0].Layer, s.Traces[1].Layer)
@@ -289,6 +354,9 @@ func (s *Section) checkOffset(off float64, key string) error {
 		if gap <= 0 {
 			return s.fieldErr(key, "traces on layer %q overlap at offset %s", t0.Layer, mils(off))
 		}
+		if m := s.Stackup.Mask; m != nil && s.maskCoats(i0) && gap <= 2*m.OverCopper*(1+maskGapMargin) {
+			return s.fieldErr(key, "the solder mask on the side walls of the traces on layer %q fills their gap at offset %s (gap %s, mask %s per wall); the solver needs a gap between the coats", t0.Layer, mils(off), mils(gap), mils(m.OverCopper))
+		}
 	}
 	h := s.domainHeight()
 	if lim := maxOffsetSpans*h + t0.Width + t1.Width; math.Abs(off) > lim {
@@ -303,3 +371,78 @@ const maxUndercut = 2.0
 // maxOffsetSpans bounds offsets to this many domain heights: beyond about 5
 // heights a stripline's coupling is below −100 dB.
 const maxOffsetSpans = 20
+
+// maskGapMargin is the least gap left between the side-wall coats of an
+// edge-coupled pair, as a fraction of the coat: below it the mesh would need
+// elements much thinner than the coat.
+const maskGapMargin = 0.1
+
+// checkBuild checks a copper layer's foil and plating against its finished thickness.
+func (s *Section) checkBuild(key string, l Layer) error {
+	if l.Foil == 0 && len(l.Plating) == 0 {
+		return nil
+	}
+	if !finite(l.Foil) || l.Foil < 0 {
+		return s.fieldErr(key+".foil", "foil %s must not be negative", mils(l.Foil))
+	}
+	for k, p := range l.Plating {
+		if !finite(p) || p <= 0 {
+			return s.fieldErr(fmt.Sprintf("%s.plating[%d]", key, k), "plating step %s must be positive", mils(p))
+		}
+	}
+	if t := FinishedThickness(l.Foil, l.Plating); math.Abs(t-l.Thickness) > 1e-9*t {
+		return s.fieldErr(key+".thickness", "finished thickness %s is not foil plus plating (%s)", mils(l.Thickness), mils(t))
+	}
+	return nil
+}
+
+// outerSlab returns the stackup index of the outermost layer of a
+// microstrip's domain (the face away from its ground), or -1 for a stripline.
+func (s *Section) outerSlab() int {
+	if len(s.Grounds) != 1 {
+		return -1
+	}
+	gi, _ := s.copperIndex(s.Grounds[0])
+	ti, _ := s.copperIndex(s.Traces[0].Layer)
+	if ti < gi {
+		return 0
+	}
+	return len(s.Stackup.Layers) - 1
+}
+
+// layerIndex returns the stackup index of the layer named name (-1 if none).
+func (s *Section) layerIndex(name string) int {
+	i, _ := s.copperIndex(name)
+	return i
+}
+
+// maskCoats reports whether the mask coats traces on stackup layer i: a
+// mask is present and i is the outer copper layer of a microstrip.
+func (s *Section) maskCoats(i int) bool {
+	o := s.outerSlab()
+	return s.Stackup.Mask != nil && o >= 0 && o == i && s.Stackup.Layers[i].Kind == Copper
+}
+
+// checkMask validates the solder mask; ti are the traces' stackup indices.
+func (s *Section) checkMask(ti [2]int) error {
+	m := s.Stackup.Mask
+	if m == nil {
+		return nil
+	}
+	if len(s.Grounds) != 1 {
+		return s.fieldErr("stackup.mask", "a solder mask needs a microstrip (one ground, air above the outer copper); this section is a stripline")
+	}
+	if !finite(m.OverLaminate) || m.OverLaminate <= 0 {
+		return s.fieldErr("stackup.mask.thickness", "mask thickness over the laminate %s must be positive", mils(m.OverLaminate))
+	}
+	if !finite(m.OverCopper) || m.OverCopper <= 0 {
+		return s.fieldErr("stackup.mask.over_copper", "mask thickness over the copper %s must be positive", mils(m.OverCopper))
+	}
+	if !finite(m.Er) || m.Er < 1 {
+		return s.fieldErr("stackup.mask.er", "mask relative permittivity %g must be at least 1", m.Er)
+	}
+	if ti[0] != ti[1] && (s.maskCoats(ti[0]) || s.maskCoats(ti[1])) {
+		return s.fieldErr("stackup.mask", "a solder mask over a broadside pair with a trace on the outer layer is not modelled (only over an edge-coupled pair, or over an outer layer without traces)")
+	}
+	return nil
+}

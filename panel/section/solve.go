@@ -13,7 +13,12 @@ import (
 type Settings struct {
 	Accuracy float64 // target relative error in C; 0 means the default 1e-3 (0.1 %)
 	Workers  int     // parallel workers for a sweep; 0 means runtime.GOMAXPROCS(0)
+	// Sensitivities asks for the derivatives with respect to every
+	// parameter of Section.Params (Solution.DC, Point.Sens).
+	Sensitivities bool
 }
+
+func (set *Settings) sensitivities() bool { return set != nil && set.Sensitivities }
 
 // DefaultAccuracy is the accuracy used when Settings.Accuracy is zero.
 const DefaultAccuracy = 1e-3
@@ -95,6 +100,10 @@ type Solution struct {
 	Offset      float64       // upper minus lower trace centre, m
 	C, C0       [2][2]float64 // Maxwell capacitance matrices, F/m, with dielectrics / in vacuum
 	Convergence Convergence
+	// With Settings.Sensitivities: Params (Section.Params) and the
+	// derivatives of C and C0 with respect to each, extrapolated like C.
+	Params  []Param
+	DC, DC0 [][2][2]float64
 }
 
 // Richardson extrapolation: the energy-form capacitance of Q1 elements on
@@ -125,14 +134,40 @@ func startLevel(acc float64) float64 {
 	return math.Max(minStartLevel, math.Min(l, maxStartLevel))
 }
 
-// maxLevelSteps bounds the refinement steps (each multiplies the level by √2).
+// maxLevelSteps bounds the refinement steps (nextLevel).
 const maxLevelSteps = 5
+
+// nextLevel returns the level to try after level lev estimated est against
+// the target acc: lev·(est/acc)^(1/ladderOrder), at least 1.1× and at most
+// √2×. The estimate falls much faster with the level than the true error
+// (on the demo section's ±10 mil sweep at 0.05 %, as level^−5 to level^−6.5
+// between levels 0.9 and 1.41, and not monotonically: 5.9e−4 at 1.0, 7.1e−4
+// at 1.05, 3.2e−4 at 1.1), so a near miss takes the smallest step. (A fixed
+// √2 step overshot: a sweep missing by 20 % went from 1.13 to 1.6, a fine
+// mesh of 34,000 unknowns, ten times more accurate than asked; a prediction
+// from the true error's order 3 overshot too.)
+func nextLevel(lev, est, acc float64) float64 {
+	f := math.Pow(est/acc, 1/ladderOrder)
+	if math.IsNaN(f) {
+		f = math.Sqrt2
+	}
+	return lev * math.Max(minLevelStep, math.Min(math.Sqrt2, f))
+}
+
+// ladderOrder is the rate at which the estimate falls with the level (see
+// nextLevel); minLevelStep the smallest refinement step.
+const (
+	ladderOrder  = 6.0
+	minLevelStep = 1.1
+)
 
 // solver holds the state shared by the solves of one section.
 type solver struct {
 	s   *Section
 	g   *geometry
 	acc float64
+
+	sens []Param // parameters to differentiate by, or nil
 
 	topos   []*geometry // column topologies along the offset axis (topology.go)
 	windows []window    // windows[i] lies between topos[i] and topos[i+1]
@@ -158,6 +193,9 @@ func newSolver(s *Section, set *Settings, lo, hi float64) (*solver, error) {
 		return nil, err
 	}
 	sv := &solver{s: s, g: s.buildGeometry(), acc: set.accuracy()}
+	if set.sensitivities() {
+		sv.sens = s.Params()
+	}
 	sv.setOffsets(lo, hi)
 	sv.g = sv.topos[0]
 	return sv, nil
@@ -237,7 +275,7 @@ func (sv *solver) solve(ctx context.Context, off float64, w *femWork) (*Solution
 		if step == maxLevelSteps {
 			return nil, sv.convErr(sol)
 		}
-		lev *= math.Sqrt2
+		lev = nextLevel(lev, sol.Convergence.EstimatedError, sv.acc)
 	}
 }
 
@@ -312,7 +350,7 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		r, err := sv.levelAt(off, l, w)
+		r, err := sv.levelAtSens(off, l, w, i > 0 && sv.sens != nil)
 		if err != nil {
 			return nil, err
 		}
@@ -335,12 +373,25 @@ func (sv *solver) solveLevel(ctx context.Context, off, lev float64, w *femWork) 
 	if err := sv.checkMaxwell(off, conv); err != nil { // limits.go
 		return nil, err
 	}
-	return &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}, nil
+	sol := &Solution{Offset: off, C: conv.C, C0: conv.C0, Convergence: conv}
+	if sv.sens != nil {
+		// The derivatives extrapolate like C: each is a linear functional
+		// of the same mesh family.
+		sol.Params = sv.sens
+		sol.DC = make([][2][2]float64, len(sv.sens))
+		sol.DC0 = make([][2][2]float64, len(sv.sens))
+		for k := range sv.sens {
+			sol.DC[k] = richardson(lv[2].dC[k], lv[1].dC[k])
+			sol.DC0[k] = richardson(lv[2].dC0[k], lv[1].dC0[k])
+		}
+	}
+	return sol, nil
 }
 
 type levelResult struct {
 	MeshLevel
-	resid float64
+	resid   float64
+	dC, dC0 [][2][2]float64 // per parameter of solver.sens, when asked
 }
 
 // plan returns the mesh plan of topology k at level lev, shared by every
@@ -364,12 +415,17 @@ func (sv *solver) plan(k int, lev float64) *meshPlan {
 // levelAt solves one level at offset off: on one topology, or inside a
 // transition window on both neighbours, weighted (topology.go).
 func (sv *solver) levelAt(off, lev float64, w *femWork) (levelResult, error) {
+	return sv.levelAtSens(off, lev, w, false)
+}
+
+// levelAtSens is levelAt, with the derivatives of C and C0 when sens is set.
+func (sv *solver) levelAtSens(off, lev float64, w *femWork, sens bool) (levelResult, error) {
 	k, t := sv.locate(off)
-	a, err := sv.levelPlan(off, sv.plan(k, lev), w)
+	a, err := sv.levelPlanSens(off, sv.plan(k, lev), w, sens)
 	if err != nil || t == 0 {
 		return a, err
 	}
-	b, err := sv.levelPlan(off, sv.plan(k+1, lev), w)
+	b, err := sv.levelPlanSens(off, sv.plan(k+1, lev), w, sens)
 	if err != nil {
 		return b, err
 	}
@@ -377,6 +433,13 @@ func (sv *solver) levelAt(off, lev float64, w *femWork) (levelResult, error) {
 		for j := range 2 {
 			a.C[i][j] = (1-t)*a.C[i][j] + t*b.C[i][j]
 			a.C0[i][j] = (1-t)*a.C0[i][j] + t*b.C0[i][j]
+			// The window's weight moves with the geometry too; its term,
+			// (C_b − C_a)·dt/dp, is of the size of the discretisation
+			// error and is left out.
+			for p := range a.dC {
+				a.dC[p][i][j] = (1-t)*a.dC[p][i][j] + t*b.dC[p][i][j]
+				a.dC0[p][i][j] = (1-t)*a.dC0[p][i][j] + t*b.dC0[p][i][j]
+			}
 		}
 	}
 	a.Unknowns = max(a.Unknowns, b.Unknowns)
@@ -392,6 +455,11 @@ func b2i(b bool) int {
 }
 
 func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, error) {
+	return sv.levelPlanSens(off, p, w, false)
+}
+
+// levelPlanSens is levelPlan, with the derivatives of C and C0 when sens is set.
+func (sv *solver) levelPlanSens(off float64, p *meshPlan, w *femWork, sens bool) (levelResult, error) {
 	p.realize(off, &w.m)
 	if err := w.prepare(); err != nil {
 		return levelResult{}, err
@@ -403,9 +471,17 @@ func (sv *solver) levelPlan(off float64, p *meshPlan, w *femWork) (levelResult, 
 	if r.C0, r2, err = w.capacitance(true); err != nil {
 		return r, err
 	}
+	if sens {
+		w.phi, w.phi0 = w.phi0, w.phi
+	}
 	if r.C, r1, err = w.capacitance(false); err != nil {
 		return r, err
 	}
 	r.resid = math.Max(r1, r2)
+	if sens {
+		if r.dC, r.dC0, err = sv.capDerivatives(off, p, w); err != nil {
+			return r, err
+		}
+	}
 	return r, nil
 }

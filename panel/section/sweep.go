@@ -19,6 +19,9 @@ type Point struct {
 	DirectivityDB float64 // 20·log10(|S31|/|S41|), within ±200 dB
 	PeakFrequency float64 // first maximum of the coupling over frequency, Hz; 0 if none below twice the higher quarter-wave frequency
 	Convergence   Convergence
+	// Sens holds, with Settings.Sensitivities, the derivatives with
+	// respect to each parameter of Section.Params, in that order.
+	Sens []Sensitivity `json:",omitempty"`
 }
 
 // Curve is coupling versus offset for one section, with cubic interpolants.
@@ -33,6 +36,7 @@ type Curve struct {
 	CacheWarnings []error
 
 	coupling, directivity, z0, z1 monotoneCubic
+	sens                          []monotoneCubic // coupling sensitivity per parameter
 	lo, hi                        float64
 	// end slopes for linear extrapolation outside the range
 	cSlope [2]float64
@@ -59,11 +63,20 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		}
 	}
 	nom := s.NominalOffset()
-	todo := offs
-	if s.Length == 0 && !slices.Contains(offs, nom) {
-		todo = append(slices.Clone(offs), nom)
+	// The mirror x → −x maps the section at offset δ onto itself at −δ
+	// (two symmetric trapezoids in a laterally uniform stack, the same
+	// conductor on each side), so C(−δ) = C(δ) and every parameter's
+	// derivative too: only |δ| is solved.
+	need := make([]float64, 0, len(offs)+1)
+	for _, o := range offs {
+		need = append(need, math.Abs(o))
 	}
-	sv, err := newSolver(s, set, min(offs[0], nom), max(offs[len(offs)-1], nom))
+	if s.Length == 0 {
+		need = append(need, math.Abs(nom))
+	}
+	slices.Sort(need)
+	todo := slices.Compact(need)
+	sv, err := newSolver(s, set, todo[0], todo[len(todo)-1])
 	if err != nil {
 		return nil, err
 	}
@@ -94,16 +107,22 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		if step >= maxLevelSteps {
 			return nil, sv.convErr(worst)
 		}
-		lev *= math.Sqrt2
+		lev = nextLevel(lev, worst.Convergence.EstimatedError, sv.acc)
+	}
+	solAt := func(o float64) *Solution {
+		i, _ := slices.BinarySearch(todo, math.Abs(o))
+		return sols[i]
 	}
 	length := s.Length
 	if length == 0 {
-		i := slices.Index(todo, nom)
-		length = NewLines(sols[i].C, sols[i].C0).QuarterWave(s.Frequency)
+		sol := solAt(nom)
+		length = NewLines(sol.C, sol.C0).QuarterWave(s.Frequency)
 	}
 	c := &Curve{Section: s.Name, Frequency: s.Frequency, Length: length, ZRef: s.ZRef}
-	for i, o := range offs {
-		c.Points = append(c.Points, newPoint(o, sols[i], s.Frequency, length, s.ZRef))
+	for _, o := range offs {
+		sol := *solAt(o)
+		sol.Offset = o
+		c.Points = append(c.Points, newPoint(o, &sol, s.Frequency, length, s.ZRef))
 	}
 	if err := c.fit(); err != nil {
 		return nil, err
@@ -177,6 +196,9 @@ func newPoint(off float64, sol *Solution, f0, length, zref float64) Point {
 	p := Point{Offset: off, Lines: NewLines(sol.C, sol.C0), Convergence: sol.Convergence}
 	p.CouplingDB, p.DirectivityDB = p.Lines.couplingAt(f0, length, zref)
 	p.PeakFrequency = p.Lines.peakFrequency(f0, length, zref)
+	for k, par := range sol.Params {
+		p.Sens = append(p.Sens, newSensitivity(par, sol.C, sol.C0, sol.DC[k], sol.DC0[k], f0, length, zref, p.Symmetric))
+	}
 	return p
 }
 
@@ -269,10 +291,48 @@ func (c *Curve) fit() error {
 			return fmt.Errorf("section %q: interpolant: %w", c.Section, err)
 		}
 	}
+	c.sens = nil
+	if m := len(c.Points[0].Sens); m > 0 {
+		c.sens = make([]monotoneCubic, m)
+		for k := range m {
+			v := make([]float64, n)
+			for i, p := range c.Points {
+				if len(p.Sens) != m {
+					return fmt.Errorf("section %q: point %d has %d sensitivities, point 0 has %d", c.Section, i, len(p.Sens), m)
+				}
+				v[i] = p.Sens[k].CouplingDB
+			}
+			if err := c.sens[k].Fit(xs, v); err != nil {
+				return fmt.Errorf("section %q: interpolant: %w", c.Section, err)
+			}
+		}
+	}
 	c.lo, c.hi = xs[0], xs[n-1]
 	c.cSlope[0] = c.coupling.PredictDerivative(c.lo)
 	c.cSlope[1] = c.coupling.PredictDerivative(c.hi)
 	return nil
+}
+
+// Params returns the parameters of the curve's sensitivities, in the order
+// of Point.Sens (nil for a curve solved without Settings.Sensitivities).
+func (c *Curve) Params() []Param {
+	if len(c.Points) == 0 || len(c.Points[0].Sens) == 0 {
+		return nil
+	}
+	out := make([]Param, len(c.Points[0].Sens))
+	for k, s := range c.Points[0].Sens {
+		out[k] = s.Param
+	}
+	return out
+}
+
+// CouplingSensitivity returns the derivative of coupling (dB per metre, or
+// per unit εr) with respect to parameter k of Params at offset, interpolated
+// by a monotone cubic and clamped to Range. It does not allocate. With
+// Coupling it gives the first-order coupling of a site whose parameters
+// moved by Δp: Coupling(δ) + Σ_k CouplingSensitivity(k, δ)·Δp_k.
+func (c *Curve) CouplingSensitivity(k int, offset float64) float64 {
+	return c.sens[k].Predict(math.Max(c.lo, math.Min(c.hi, offset)))
 }
 
 // Range returns the offsets covered by the solved points.
@@ -324,6 +384,9 @@ func DefaultOffsets(s *Section, span float64) []float64 {
 	if s.Traces[0].Layer == s.Traces[1].Layer {
 		// keep a tenth of the nominal gap
 		gap := math.Abs(nom) - (s.Traces[0].Width+s.Traces[1].Width)/2
+		if m := s.Stackup.Mask; m != nil && s.maskCoats(s.layerIndex(s.Traces[0].Layer)) {
+			gap -= 2 * m.OverCopper * (1 + maskGapMargin) // the coats must not meet
+		}
 		if gap > 0 {
 			half = math.Min(half, 0.9*gap)
 		}

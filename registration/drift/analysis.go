@@ -1,0 +1,233 @@
+package drift
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"sort"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
+)
+
+// Site is one evaluated coupler site.
+type Site struct {
+	Site    panel.Site
+	Section int // index into Input.Sections
+	Eval
+}
+
+// Analysis is the evaluation of every site of an Input under one model. New
+// prepares the registration side (rows, statistics, no field solve);
+// Evaluate joins it to the sections' curves.
+type Analysis struct {
+	In    *Input
+	Model *registration.Model
+	// Yield holds the sites' sensitivity rows, layer pairs and allowed
+	// intervals; its closed form and Monte Carlo are the yield study's.
+	Yield *registration.Yield
+	// Curves holds one curve per section, nil for a section no site uses;
+	// nil until Evaluate.
+	Curves []*Curve
+	Sites  []Site
+	used   []bool
+}
+
+// New prepares the analysis of in under model (in.Model when nil): each
+// site's sensitivity row and offset statistics. Every site must name a
+// section of in; a site that does not is a programming error and panics.
+func New(in *Input, model *registration.Model) *Analysis {
+	if model == nil {
+		model = in.Model
+	}
+	a := &Analysis{In: in, Model: model, Sites: make([]Site, len(in.Sites)), used: make([]bool, len(in.Sections))}
+	index := make(map[string]int, len(in.Sections))
+	for i, s := range in.Sections {
+		index[s.Name] = i
+	}
+	ys := make([]registration.YieldSite, len(in.Sites))
+	for k, s := range in.Sites {
+		si, ok := index[s.Section]
+		if !ok {
+			panic(fmt.Sprintf("drift: site %q names no section of the input (%q)", s.Name, s.Section))
+		}
+		sec := in.Sections[si]
+		ys[k] = registration.YieldSite{Pos: s.Pos, U: s.U, Upper: sec.Traces[0].Layer, Lower: sec.Traces[1].Layer,
+			Nominal: sec.NominalOffset(), Part: s.Instance, Allowed: registration.EmptyInterval()}
+		a.Sites[k].Site, a.Sites[k].Section = s, si
+		a.used[si] = true
+	}
+	a.Yield = registration.NewYield(model, ys, len(in.Instances))
+	for k := range a.Sites {
+		r := &a.Sites[k]
+		r.Row = a.Yield.Rows[k]
+		r.Stats = a.Yield.Stats(k)
+		r.Offset = ys[k].Nominal + r.Stats.MeanAcross
+		r.Along = r.Stats.MeanAlong
+	}
+	return a
+}
+
+// Used reports whether any site uses section i.
+func (a *Analysis) Used(i int) bool { return a.used[i] }
+
+// Relative returns the relative displacement of section i's trace layers
+// under the analysis's model.
+func (a *Analysis) Relative(i int) *registration.Relative {
+	s := a.In.Sections[i]
+	for p, r := range a.Yield.Pairs {
+		if r.Upper == s.Traces[0].Layer && r.Lower == s.Traces[1].Layer {
+			return a.Yield.Pairs[p]
+		}
+	}
+	return a.Model.Relative(s.Traces[0].Layer, s.Traces[1].Layer)
+}
+
+// Evaluator returns the evaluator of section i under the analysis's model;
+// Evaluate must have run.
+func (a *Analysis) Evaluator(i int) Evaluator {
+	return Evaluator{Curve: a.Curves[i], Rel: a.Relative(i)}
+}
+
+// Reach returns, per section, the largest SiteReach of the sites that use it
+// in any of the analyses (0 for a section none uses). The analyses must share
+// one Input's sections.
+func Reach(as ...*Analysis) []float64 {
+	out := make([]float64, len(as[0].In.Sections))
+	for _, a := range as {
+		for k := range a.Sites {
+			si := a.Sites[k].Section
+			out[si] = math.Max(out[si], SiteReach(a.Sites[k].Stats))
+		}
+	}
+	return out
+}
+
+// SolveCurves solves every section that a site of any of the analyses uses,
+// over Reach(as...), and returns the curves per section (nil where unused).
+func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve, error) {
+	reach := Reach(as...)
+	secs := as[0].In.Sections
+	curves := make([]*Curve, len(secs))
+	for i, s := range secs {
+		used := false
+		for _, a := range as {
+			used = used || a.used[i]
+		}
+		if !used {
+			continue
+		}
+		c, err := SolveSection(ctx, s, reach[i], set)
+		if err != nil {
+			return nil, err
+		}
+		curves[i] = c
+	}
+	return curves, nil
+}
+
+// Evaluate joins the analysis to curves (per section; every used section
+// needs one): each site's allowed interval and every quantity of its Eval.
+func (a *Analysis) Evaluate(curves []*Curve) {
+	a.Curves = curves
+	ev := make([]Evaluator, len(curves))
+	for i := range curves {
+		if a.used[i] {
+			ev[i] = a.Evaluator(i)
+		}
+	}
+	for k := range a.Sites {
+		r := &a.Sites[k]
+		a.Yield.Sites[k].Allowed = curves[r.Section].Allowed
+		r.Eval = ev[r.Section].EvalRow(a.Yield.Rows[k])
+	}
+}
+
+// Analyse prepares in under its own model, solves the curves its sites need
+// and evaluates every site.
+func Analyse(ctx context.Context, in *Input, set *Settings) (*Analysis, error) {
+	a := New(in, nil)
+	curves, err := SolveCurves(ctx, set, a)
+	if err != nil {
+		return nil, err
+	}
+	a.Evaluate(curves)
+	return a, nil
+}
+
+// InSpec counts the sites in spec.
+func (a *Analysis) InSpec() int {
+	n := 0
+	for i := range a.Sites {
+		if a.Sites[i].InSpec {
+			n++
+		}
+	}
+	return n
+}
+
+// MeanPInSpec returns the mean closed-form site yield.
+func (a *Analysis) MeanPInSpec() float64 {
+	if len(a.Sites) == 0 {
+		return 0
+	}
+	var s float64
+	for i := range a.Sites {
+		s += a.Sites[i].PInSpec
+	}
+	return s / float64(len(a.Sites))
+}
+
+// Worst returns the indices of the n sites with the smallest margin (largest
+// |drift| breaking ties), in order.
+func (a *Analysis) Worst(n int) []int {
+	idx := make([]int, len(a.Sites))
+	for i := range idx {
+		idx[i] = i
+	}
+	sort.SliceStable(idx, func(p, q int) bool {
+		sp, sq := &a.Sites[idx[p]], &a.Sites[idx[q]]
+		if sp.Margin != sq.Margin {
+			return sp.Margin < sq.Margin
+		}
+		return math.Abs(sp.Drift) > math.Abs(sq.Drift)
+	})
+	return idx[:min(n, len(idx))]
+}
+
+// Warnings says, per used section, when its design is out of spec (its sites
+// yield 0) and when the allowed interval is cut by the end of the solved
+// offsets within the reach of some site.
+func (a *Analysis) Warnings() []string {
+	var out []string
+	// Per section, the lowest and highest offset its sites reach.
+	lo, hi := make([]float64, len(a.In.Sections)), make([]float64, len(a.In.Sections))
+	for i := range lo {
+		lo[i], hi[i] = math.Inf(1), math.Inf(-1)
+	}
+	for k := range a.Sites {
+		p := a.Yield.Prob(k)
+		w := YieldSigmas*p.SD + p.Uniform + p.Uniform2
+		si := a.Sites[k].Section
+		lo[si], hi[si] = math.Min(lo[si], p.Mean-w), math.Max(hi[si], p.Mean+w)
+	}
+	for i, c := range a.Curves {
+		if c == nil || !a.used[i] {
+			continue
+		}
+		s := c.Section
+		nom := s.NominalOffset()
+		if !c.DesignInSpec {
+			out = append(out, fmt.Sprintf("section %q: the design is outside its spec: coupling %.3f dB at the design offset %.3f mil, spec %.2f ± %.2f dB; its sites yield 0",
+				s.Name, c.Nominal, nom/unit.Mil, s.Spec.Coupling, s.Spec.Tolerance))
+			continue
+		}
+		iv, lim := c.Allowed, c.Limits
+		if (lim.Clipped[0] && lo[i] < iv.Lo) || (lim.Clipped[1] && hi[i] > iv.Hi) {
+			out = append(out, fmt.Sprintf("section %q: the coupling is still in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
+				s.Name, iv.Lo/unit.Mil, iv.Hi/unit.Mil, YieldSigmas))
+		}
+	}
+	return out
+}

@@ -1,0 +1,212 @@
+package drift
+
+import (
+	"context"
+	"encoding/csv"
+	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
+	"io"
+	"math"
+	"slices"
+	"strconv"
+	"strings"
+
+	"github.com/regdrift/regdrift/registration"
+)
+
+// MeasuredModel returns a copy of m with fitted lots joined: each lot becomes
+// a contributor named after it and the file it came from; unless keep, the
+// layers a lot measures (both of a relative pair) are first taken out of m's
+// contributors, and a contributor left with no layer is dropped. notes says
+// what changed.
+func MeasuredModel(m *registration.Model, lots []registration.Lot, file string, keep bool) (*registration.Model, []string) {
+	out := &registration.Model{Datum: m.Datum}
+	measured := map[string]bool{}
+	for _, l := range lots {
+		u, lo, rel := registration.SplitLayer(l.Layer)
+		measured[u] = true
+		if rel {
+			measured[lo] = true
+		}
+	}
+	var notes []string
+	for _, c := range m.Contributors {
+		c.Layers = slices.Clone(c.Layers)
+		if !keep {
+			var kept, gone []string
+			for _, l := range c.Layers {
+				if measured[l] {
+					gone = append(gone, l)
+				} else {
+					kept = append(kept, l)
+				}
+			}
+			switch {
+			case len(kept) == 0:
+				notes = append(notes, fmt.Sprintf("contributor %q left out: the measurement holds %s", c.Name, strings.Join(gone, ", ")))
+				continue
+			case len(gone) > 0:
+				notes = append(notes, fmt.Sprintf("contributor %q now moves %s only: the measurement holds %s", c.Name, strings.Join(kept, ", "), strings.Join(gone, ", ")))
+			}
+			c.Layers = kept
+		}
+		out.Contributors = append(out.Contributors, c)
+	}
+	for _, l := range lots {
+		out.Contributors = append(out.Contributors, l.Contributor(fmt.Sprintf("measured %s (lot of %d panels, %s)", l.Layer, l.Panels, file)))
+	}
+	return out, notes
+}
+
+// Comparison is a panel before and after artwork scale compensation: the
+// recommendation and both analyses, evaluated on one set of curves.
+type Comparison struct {
+	Result        *registration.CompResult
+	Before, After *Analysis
+	// Notes holds warnings about the curves (a design out of spec).
+	Notes []string
+}
+
+// Compensate recommends the artwork scale compensation of in's trace layers
+// under model (in.Model when nil) with settings cs, and evaluates the panel
+// before and after it on one set of curves covering both. An error of the
+// recommendation itself is a *CompError.
+func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *registration.CompSettings, set *Settings) (*Comparison, error) {
+	if model == nil {
+		model = in.Model
+	}
+	before := New(in, model)
+	sites := make([]registration.CompSite, len(in.Sites))
+	for k := range in.Sites {
+		sec := in.Sections[before.Sites[k].Section]
+		s := in.Sites[k]
+		sites[k] = registration.CompSite{Pos: s.Pos, U: s.U, Upper: sec.Traces[0].Layer, Lower: sec.Traces[1].Layer}
+	}
+	res, err := registration.Compensate(model, sites, cs)
+	if err != nil {
+		return nil, &CompError{err}
+	}
+	am := &registration.Model{Datum: model.Datum, Contributors: append(slices.Clone(model.Contributors), res.Contributors()...)}
+	after := New(in, am)
+	curves, err := SolveCurves(ctx, set, before, after)
+	if err != nil {
+		return nil, err
+	}
+	before.Evaluate(curves)
+	after.Evaluate(curves)
+	cmp := &Comparison{Result: res, Before: before, After: after}
+	for _, c := range curves {
+		if c != nil && !c.DesignInSpec {
+			s := c.Section
+			cmp.Notes = append(cmp.Notes, fmt.Sprintf("section %q: the design is outside its spec: coupling %.3f dB at the design offset, spec %.2f ± %.2f dB; its sites yield 0",
+				s.Name, c.Nominal, s.Spec.Coupling, s.Spec.Tolerance))
+		}
+	}
+	return cmp, nil
+}
+
+// CompError is a compensation that the model and the settings do not allow
+// (registration.ErrInfeasible, or no site whose traces are on two layers):
+// the input's fault, not the solver's.
+type CompError struct{ Err error }
+
+func (e *CompError) Error() string { return e.Err.Error() }
+func (e *CompError) Unwrap() error { return e.Err }
+
+// CompLayer is one layer's recommended compensation.
+type CompLayer struct {
+	Layer        string   `json:"layer"`
+	ScaleXPPM    float64  `json:"scale_x_ppm"`
+	ScaleYPPM    float64  `json:"scale_y_ppm"`
+	FactorX      float64  `json:"factor_x"`
+	FactorY      float64  `json:"factor_y"`
+	NetXPPM      float64  `json:"net_x_ppm"`
+	NetYPPM      float64  `json:"net_y_ppm"`
+	MeanScaleX   float64  `json:"mean_scale_x_ppm"`
+	MeanScaleY   float64  `json:"mean_scale_y_ppm"`
+	FreeX, FreeY bool     `json:"-"`
+	Free         []string `json:"free_axes"`
+}
+
+// CompPair is the compensation difference across one coupled layer pair.
+type CompPair struct {
+	Upper    string  `json:"upper"`
+	Lower    string  `json:"lower"`
+	DiffXPPM float64 `json:"diff_x_ppm"`
+	DiffYPPM float64 `json:"diff_y_ppm"`
+}
+
+// CompState is the panel before or after compensation.
+type CompState struct {
+	Sites        int     `json:"sites"`
+	WorstOffsetM float64 `json:"worst_offset_m"`
+	RMSOffsetM   float64 `json:"rms_offset_m"`
+	InSpec       int     `json:"in_spec"`
+	SiteYield    float64 `json:"site_yield"`
+	DrillWorstM  float64 `json:"drill_worst_m"`
+}
+
+// CompSummary is the summary of a compensation (comp.json).
+type CompSummary struct {
+	Job         string      `json:"job"`
+	Objective   string      `json:"objective"`
+	DrillBudget float64     `json:"drill_budget_m,omitempty"`
+	Measured    []string    `json:"measured_layers,omitempty"`
+	Layers      []CompLayer `json:"layers"`
+	Pairs       []CompPair  `json:"pairs"`
+	Common      string      `json:"common_part"`
+	Notes       []string    `json:"notes"`
+	Before      CompState   `json:"before"`
+	After       CompState   `json:"after"`
+}
+
+// Summary returns the comparison's summary; measured names the layers whose
+// movement was measured and notes are added after the recommendation's own.
+func (c *Comparison) Summary(measured, notes []string) *CompSummary {
+	r := c.Result
+	s := &CompSummary{Job: c.Before.In.Source, Objective: r.Objective.String(), Measured: measured, Common: r.Common,
+		Notes: append(slices.Clone(r.Notes), notes...)}
+	for _, l := range r.Layers {
+		lj := CompLayer{Layer: l.Layer, ScaleXPPM: l.X.Scale / 1e-6, ScaleYPPM: l.Y.Scale / 1e-6,
+			FactorX: l.X.Factor, FactorY: l.Y.Factor, NetXPPM: l.X.Net / 1e-6, NetYPPM: l.Y.Net / 1e-6,
+			MeanScaleX: l.MeanScale[0] / 1e-6, MeanScaleY: l.MeanScale[1] / 1e-6, FreeX: l.X.Free, FreeY: l.Y.Free, Free: []string{}}
+		if l.X.Free {
+			lj.Free = append(lj.Free, "x")
+		}
+		if l.Y.Free {
+			lj.Free = append(lj.Free, "y")
+		}
+		s.Layers = append(s.Layers, lj)
+	}
+	for _, p := range r.Pairs {
+		s.Pairs = append(s.Pairs, CompPair{p.Upper, p.Lower, p.Net[0] / 1e-6, p.Net[1] / 1e-6})
+	}
+	n := len(c.Before.Sites)
+	s.Before = CompState{n, r.WorstBefore, r.RMSBefore, c.Before.InSpec(), c.Before.MeanPInSpec(), r.DrillBefore}
+	s.After = CompState{n, r.WorstAfter, r.RMSAfter, c.After.InSpec(), c.After.MeanPInSpec(), r.DrillAfter}
+	return s
+}
+
+// WriteCSV writes one row per site before and after (comp.csv).
+func (c *Comparison) WriteCSV(w io.Writer, u unit.Output) error {
+	cw := csv.NewWriter(w)
+	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
+	header := []string{"site", "section", "x " + P, "y " + P, "angle [deg]",
+		"offset_before " + L, "offset_after " + L, "sigma " + L, "in_spec_before", "in_spec_after", "p_before", "p_after"}
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	for k := range c.Before.Sites {
+		b, a := &c.Before.Sites[k], &c.After.Sites[k]
+		s := b.Site
+		rec := []string{s.Name, s.Section, fixed(s.Pos.X/u.PanelSI(), 4), fixed(s.Pos.Y/u.PanelSI(), 4), fixed(s.Angle*180/math.Pi, 2),
+			fixed(b.Offset/u.LengthSI(), 4), fixed(a.Offset/u.LengthSI(), 4), fixed(a.Stats.SDAcross/u.LengthSI(), 4),
+			strconv.FormatBool(b.InSpec), strconv.FormatBool(a.InSpec),
+			fixed(b.PInSpec, 6), fixed(a.PInSpec, 6)}
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}

@@ -1,0 +1,248 @@
+package fitreport
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+
+	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
+)
+
+// Report is a finished fit of one measurement file: every panel-and-layer
+// fit, the lot statistics per layer and each layer's pooled residual grid.
+type Report struct {
+	File     string // the measurement file, as messages name it
+	Settings registration.FitSettings
+	Fits     []registration.Fit
+	Lots     []registration.Lot
+	Grids    map[string]*registration.Grid // by layer; nil for a layer without one
+}
+
+// New fits the targets ts (read from file) with set: every panel and layer
+// (registration.FitAll), the lot statistics, and per layer the pooled
+// residuals on grid × grid nodes.
+func New(file string, ts []registration.Target, set registration.FitSettings, grid int) (*Report, error) {
+	fits, err := registration.FitAll(ts, &set)
+	if err != nil {
+		return nil, err
+	}
+	r := &Report{File: file, Settings: set, Fits: fits, Lots: registration.LotStats(fits), Grids: map[string]*registration.Grid{}}
+	for _, l := range r.Lots {
+		r.Grids[l.Layer] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+	}
+	return r, nil
+}
+
+// Terms holds the terms, keyed in JSON by the term table with their SI unit
+// ("offset_x_m", "rotation_rad", "scale_x"), in term order; nil is a term
+// that was not estimated (or a standard error without redundancy).
+type Terms [registration.NumTerms]*float64
+
+// MarshalJSON writes the terms in term order.
+func (t Terms) MarshalJSON() ([]byte, error) {
+	b := []byte{'{'}
+	for k, v := range t {
+		if k > 0 {
+			b = append(b, ',')
+		}
+		key, _ := json.Marshal(registration.TermKind(k).JSONKey())
+		val, err := json.Marshal(v)
+		if err != nil {
+			return nil, err
+		}
+		b = append(append(append(b, key...), ':'), val...)
+	}
+	return append(b, '}'), nil
+}
+
+// UnmarshalJSON reads terms by their keys; a key not present is nil.
+func (t *Terms) UnmarshalJSON(data []byte) error {
+	var m map[string]*float64
+	if err := json.Unmarshal(data, &m); err != nil {
+		return err
+	}
+	for k := range t {
+		t[k] = m[registration.TermKind(k).JSONKey()]
+	}
+	return nil
+}
+
+// newTerms keeps the terms model m estimates (the others 0 with
+// zeroUnfitted, else nil) and drops non-finite ones.
+func newTerms(v [registration.NumTerms]float64, m registration.FitModel, zeroUnfitted bool) Terms {
+	var p Terms
+	for k := range v {
+		x := v[k]
+		if !m.Estimates(registration.TermKind(k)) {
+			if !zeroUnfitted {
+				continue
+			}
+			x = 0
+		}
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			continue
+		}
+		p[k] = &x
+	}
+	return p
+}
+
+// FitJSON is one panel-and-layer fit of the summary.
+type FitJSON struct {
+	Panel    string   `json:"panel"`
+	Layer    string   `json:"layer"`
+	Targets  int      `json:"targets"`
+	DOF      int      `json:"dof"`
+	Terms    Terms    `json:"terms"`
+	StdErr   Terms    `json:"stderr"`
+	Sigma0M  *float64 `json:"sigma0_m"`
+	RMSM     float64  `json:"rms_m"`
+	MaxM     float64  `json:"max_m"`
+	Outliers []string `json:"outliers"`
+}
+
+// LotJSON is one layer's lot statistics of the summary.
+type LotJSON struct {
+	Layer  string `json:"layer"`
+	Panels int    `json:"panels"`
+	Mean   Terms  `json:"mean"`
+	Sigma  Terms  `json:"sigma"`
+}
+
+// Summary is the JSON summary of a report.
+type Summary struct {
+	File   string     `json:"file"`
+	Model  string     `json:"model"`
+	Robust string     `json:"robust"`
+	DatumM [2]float64 `json:"datum_m"`
+	Fits   []FitJSON  `json:"fits"`
+	Lot    []LotJSON  `json:"lot"`
+}
+
+// Summary returns the JSON summary of r.
+func (r *Report) Summary() *Summary {
+	set := r.Settings
+	s := &Summary{File: r.File, Model: set.Model.String(), Robust: set.Robust.String(),
+		DatumM: [2]float64{set.Datum.X, set.Datum.Y}}
+	for _, f := range r.Fits {
+		fj := FitJSON{Panel: f.Panel, Layer: f.Layer, Targets: f.N, DOF: f.DOF,
+			Terms: newTerms(f.Terms, f.Model, true), StdErr: newTerms(f.StdErr, f.Model, false),
+			RMSM: f.RMS, MaxM: f.Max, Outliers: f.Outliers}
+		if f.Outliers == nil {
+			fj.Outliers = []string{}
+		}
+		if f.DOF > 0 {
+			s0 := f.Sigma0
+			fj.Sigma0M = &s0
+		}
+		s.Fits = append(s.Fits, fj)
+	}
+	for _, l := range r.Lots {
+		s.Lot = append(s.Lot, LotJSON{Layer: l.Layer, Panels: l.Panels,
+			Mean: newTerms(l.Mean, l.Model, true), Sigma: newTerms(l.SD, l.Model, false)})
+	}
+	return s
+}
+
+// cell formats v with d decimals, "" for NaN.
+func cell(v float64, d int) string {
+	if math.IsNaN(v) {
+		return ""
+	}
+	return strconv.FormatFloat(v, 'f', d, 64)
+}
+
+// WriteFitCSV writes one row per fit (fit.csv): terms and their standard
+// errors in the output units of the term table, sigma0, rms, max and the
+// outliers.
+func (r *Report) WriteFitCSV(w io.Writer, u unit.Output) error {
+	cw := csv.NewWriter(w)
+	header := []string{"panel", "layer", "model", "targets", "dof"}
+	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+		header = append(header, fmt.Sprintf("%s [%s]", k, k.Unit(u)))
+	}
+	for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+		header = append(header, fmt.Sprintf("%s_se [%s]", k, k.Unit(u)))
+	}
+	L := " [" + u.Length() + "]"
+	header = append(header, "sigma0"+L, "rms"+L, "max"+L, "outliers")
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	lf := u.LengthSI()
+	for _, f := range r.Fits {
+		rec := []string{f.Panel, f.Layer, f.Model.String(), strconv.Itoa(f.N), strconv.Itoa(f.DOF)}
+		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+			rec = append(rec, cell(unit.In(f.Terms[k], k.Info().Kind, k.Unit(u)), 4))
+		}
+		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+			v := unit.In(f.StdErr[k], k.Info().Kind, k.Unit(u))
+			if !f.Model.Estimates(k) {
+				v = math.NaN()
+			}
+			rec = append(rec, cell(v, 4))
+		}
+		s0 := f.Sigma0
+		if f.DOF <= 0 {
+			s0 = math.NaN()
+		}
+		rec = append(rec, cell(s0/lf, 4), cell(f.RMS/lf, 4), cell(f.Max/lf, 4), strings.Join(f.Outliers, ";"))
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// WriteResidualsCSV writes one row per target (residuals.csv): position,
+// measured, fitted and residual displacement, and whether it was rejected.
+func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
+	cw := csv.NewWriter(w)
+	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
+	header := []string{"panel", "layer", "target", "x " + P, "y " + P, "dx " + L, "dy " + L,
+		"fit_dx " + L, "fit_dy " + L, "res_dx " + L, "res_dy " + L, "outlier"}
+	if err := cw.Write(header); err != nil {
+		return err
+	}
+	lf, pf := u.LengthSI(), u.PanelSI()
+	for _, f := range r.Fits {
+		for i, t := range f.Targets {
+			out := f.Weights[i] == 0 && len(f.Outliers) > 0
+			rec := []string{f.Panel, f.Layer, t.Name, cell(t.Pos.X/pf, 4), cell(t.Pos.Y/pf, 4),
+				cell(t.D.X/lf, 4), cell(t.D.Y/lf, 4),
+				cell(f.Fitted[i].X/lf, 4), cell(f.Fitted[i].Y/lf, 4),
+				cell(f.Residuals[i].X/lf, 4), cell(f.Residuals[i].Y/lf, 4), strconv.FormatBool(out)}
+			if err := cw.Write(rec); err != nil {
+				return err
+			}
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// WriteGridCSV writes a residual grid in the format registration.ReadGrid
+// reads.
+func WriteGridCSV(w io.Writer, g *registration.Grid, u unit.Output) error {
+	cw := csv.NewWriter(w)
+	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
+	if err := cw.Write([]string{"x " + P, "y " + P, "dx " + L, "dy " + L}); err != nil {
+		return err
+	}
+	lf, pf := u.LengthSI(), u.PanelSI()
+	for j, y := range g.Y {
+		for i, x := range g.X {
+			if err := cw.Write([]string{cell(x/pf, 6), cell(y/pf, 6), cell(g.DX[j][i]/lf, 5), cell(g.DY[j][i]/lf, 5)}); err != nil {
+				return err
+			}
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}

@@ -1,0 +1,122 @@
+package figure
+
+import (
+	"fmt"
+	"github.com/regdrift/regdrift/panel/unit"
+	"io"
+	"math"
+	"path/filepath"
+	"strconv"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/render"
+)
+
+// Fit draws one view per fitted layer (fit.png): every panel's targets with
+// the measured displacement (grey) and the residual after the fit
+// (coloured), each exaggerated by one stated factor, outliers ringed. file
+// names the measurement file, set the fit; size is the panel size, or zero to
+// frame the targets' extent; width is in pixels, 0 meaning 2400.
+func Fit(w io.Writer, file string, set registration.FitSettings, fits []registration.Fit, lots []registration.Lot, size panel.Vec, width int, u unit.Output) error {
+	if width == 0 {
+		width = 2400
+	}
+	var ext render.Rect
+	if size.X > 0 {
+		ext = render.Centered(size.X, size.Y)
+	} else {
+		lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
+		hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
+		for _, f := range fits {
+			for _, t := range f.Targets {
+				lo = panel.Vec{X: math.Min(lo.X, t.Pos.X), Y: math.Min(lo.Y, t.Pos.Y)}
+				hi = panel.Vec{X: math.Max(hi.X, t.Pos.X), Y: math.Max(hi.Y, t.Pos.Y)}
+			}
+		}
+		pad := 0.1*math.Max(hi.X-lo.X, hi.Y-lo.Y) + 0.01
+		ext = render.Rect{Min: render.Point{X: lo.X - pad, Y: lo.Y - pad}, Max: render.Point{X: hi.X + pad, Y: hi.Y + pad}}
+	}
+	// Two exaggerations: the measured displacements are mils, the residuals
+	// a tenth of that; each gets the round factor that draws its largest
+	// arrow (outliers aside) a tenth of the panel's shorter side long.
+	var maxD, maxR float64
+	for _, f := range fits {
+		for i, t := range f.Targets {
+			if f.Weights[i] == 0 && len(f.Outliers) > 0 {
+				continue // an outlier must not shrink every other arrow
+			}
+			maxD = math.Max(maxD, math.Hypot(t.D.X, t.D.Y))
+			maxR = math.Max(maxR, math.Hypot(f.Residuals[i].X, f.Residuals[i].Y))
+		}
+	}
+	side := math.Min(ext.Dx(), ext.Dy())
+	exg := niceLength(side / 10 / math.Max(maxD, 1e-9))
+	exr := niceLength(side / 10 / math.Max(maxR, 1e-9))
+	var captions []string
+	for _, l := range lots {
+		captions = append(captions, fmt.Sprintf("layer %s, %d panels", l.Layer, l.Panels))
+	}
+	title := []string{
+		"Registration targets of " + filepath.Base(file),
+		fmt.Sprintf("%s fit per panel and layer about the datum (%.2f, %.2f) %s; robust: %s; all panels overlaid",
+			set.Model, set.Datum.X/u.PanelSI(), set.Datum.Y/u.PanelSI(), u.Panel(), set.Robust),
+	}
+	legend := []render.LegendItem{
+		{Label: "measured displacement, × " + strconv.FormatFloat(exg, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Frame},
+		{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
+		{Label: "target rejected as mis-measured", Kind: render.LegendRing},
+	}
+	cols := min(len(lots), 4)
+	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Views: len(lots), Columns: cols, Title: title,
+		Captions: captions, Unit: axisUnit(u), NoColorBar: true, Legend: legend})
+	for li, l := range lots {
+		v := m.Views[li]
+		if size.X > 0 {
+			v.StrokeRect(ext, render.LineStyle{Color: render.Ink, Width: 2})
+		}
+		var meas, res []render.Arrow
+		var pts []render.Point
+		var ms []render.Marker
+		for _, f := range fits {
+			if f.Layer != l.Layer {
+				continue
+			}
+			for i, t := range f.Targets {
+				at := render.Point{X: t.Pos.X, Y: t.Pos.Y}
+				pts = append(pts, at)
+				meas = append(meas, render.Arrow{At: at, D: render.Point{X: t.D.X, Y: t.D.Y}})
+				if f.Weights[i] == 0 && len(f.Outliers) > 0 {
+					ms = append(ms, render.Marker{At: at, Label: f.Panel + " " + t.Name})
+					continue
+				}
+				res = append(res, render.Arrow{At: at, D: render.Point{X: f.Residuals[i].X, Y: f.Residuals[i].Y}})
+			}
+		}
+		v.Arrows(meas, render.ArrowStyle{Color: render.Frame, Exaggeration: exg})
+		v.Arrows(res, render.ArrowStyle{Color: render.Series(0), Exaggeration: exr, Width: 2 * m.Thin()})
+		v.Dots(pts, 0.25*m.TextSize(), render.Ink)
+		v.Markers(ms)
+		bar := niceLength(maxD/2/u.LengthSI()) * u.LengthSI()
+		v.ScaleArrow(bar, fmt.Sprintf("measured: %s %s (× %s); residual: %s %s",
+			strconv.FormatFloat(bar/u.LengthSI(), 'g', 3, 64), u.Length(), strconv.FormatFloat(exg, 'g', 6, 64),
+			strconv.FormatFloat(bar*exg/exr/u.LengthSI(), 'g', 3, 64), u.Length()),
+			render.ArrowStyle{Color: render.Ink, Exaggeration: exg})
+	}
+	return m.EncodePNG(w)
+}
+
+// niceLength returns 1, 2 or 5 times a power of ten not above d, for a
+// scale arrow.
+func niceLength(d float64) float64 {
+	if !(d > 0) {
+		return 1
+	}
+	mag := math.Pow(10, math.Floor(math.Log10(d)))
+	for _, m := range []float64{5, 2, 1} {
+		if m*mag <= d {
+			return m * mag
+		}
+	}
+	return mag
+}
