@@ -231,9 +231,9 @@ func (f *historyFlags) add(ctx context.Context, std stdio, path string, args []s
 	if err != nil {
 		return err
 	}
-	l, err := history.NewLot(f.lot, date, r.fits, builder, applied, appliedName)
+	l, err := history.NewLot(f.lot, date, r.Fits, builder, applied, appliedName)
 	if err != nil {
-		return badInput(fmt.Errorf("%s: %w", r.file, err))
+		return badInput(fmt.Errorf("%s: %w", r.File, err))
 	}
 	d, err := openHistory(ctx, path, true)
 	if err != nil {

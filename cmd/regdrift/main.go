@@ -51,6 +51,7 @@ var commands = []command{
 	{"fit", func() options { return new(fitFlags) }},
 	{"comp", func() options { return new(compFlags) }},
 	{"yield", func() options { return new(yieldFlags) }},
+	{"history", func() options { return new(historyFlags) }},
 	{"version", func() options { return new(versionFlags) }},
 }
 
