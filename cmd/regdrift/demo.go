@@ -130,6 +130,12 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 			return err
 		}
 	}
+	// The registration history: 60 invented lots in a temporary database.
+	lines, err := demoHistory(ctx, f.out)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(std.out, "\n%s\n", strings.Join(lines, "\n"))
 	return nil
 }
 

@@ -19,6 +19,7 @@ The commands are:
 	comp     recommend per-layer artwork scale compensation that minimises the broadside offsets
 	yield    coupler and part yield across panels, and the error budget
 	report   write one self-contained HTML report of a job: maps, plots, tables and inputs
+	history  keep lot after lot of fits, chart each construction's movement and recommend the next lot's artwork scale
 	version  print the version, module version and VCS revision
 
 Run 'regdrift COMMAND -h' for a command's flags.
@@ -240,6 +241,62 @@ verbatim. Pictures, styles and a small script are inside the file: it opens
 offline in a current browser and prints on A4 or Letter. Pointing at a site
 on the panel map shows its name, position, offset, coupling, drift, margin
 and probability of being in spec; the search box finds a site by name.
+# history
+
+Usage:
+
+	regdrift history add|trend|table|export|import [--db PATH] ...
+
+Keep every lot's registration fits in a database, chart each construction's material movement and recommend the next lot's artwork scale.
+
+The history is one SQLite file: --db PATH, else $REGDRIFT_DB, else
+regdrift-history.db in the working directory. Several engineers may add lots
+to it at once; each lot is stored whole or not at all.
+
+	regdrift history add TARGETS.csv --lot ID [--date YYYY-MM-DD] --construction FILE|KEY [--applied FILE] [--robust]
+
+fits the lot as 'regdrift fit' does (the same --model, --robust, --weight and
+--datum) and stores each panel's and layer's terms, standard errors, residual
+RMS and maximum and the targets set aside. --construction names the build of
+each layer: a CSV file "layer,construction,role" (for example "L3,5 mil
+high-Tg core 1/1 oz,core top"), or one key for every layer, each layer then
+its own role. --applied gives the artwork scale each layer was built with
+("layer,scale_x [ppm],scale_y [ppm]"; layers not named were built at CAD
+size). A lot already stored is refused unless --replace.
+
+Sign convention: a scale is positive when a length grows. A layer built with
+artwork a that measured ε moved m = (1+ε)/(1+a) − 1 ≈ ε − a; the artwork
+that cancels m is s = 1/(1+m) − 1 ≈ −m, a change of s − a. A lot built with
++200 ppm that measured −10 ppm moved −209.96 ppm; the next setting is
++210.00 ppm, a change of +10.00 ppm. Every statistic uses m.
+
+	regdrift history trend [--construction K] [--role R | --layer L] [--term scale_x] [-o DIR]
+
+writes, per construction and role (or the one layer), a control chart
+(trend-CONSTRUCTION-ROLE-TERM.png) and its numbers (.csv): one point per lot,
+the lot mean with ±1 within-lot standard deviation, an individuals chart with
+limits from the average moving range (sigma = MR/1.128), an EWMA (lambda 0.2)
+with its time-varying 3-sigma limits, and the lots that break a Western
+Electric rule (WE1 one beyond 3 sigma, WE2 two of three beyond 2 sigma, WE3
+four of five beyond 1 sigma, WE4 eight in a row on one side) or take the EWMA
+beyond its limits.
+
+	regdrift history table [--construction K] [--role R] [-o DIR]
+
+writes scale-table.csv: per construction, role and axis the estimated
+movement of the next lot (an EWMA run-to-run estimate, lambda 0.3), the
+artwork setting that cancels it in ppm and as a factor, its standard error,
+the lots behind it, the last lot and its date, and the chart signals among
+the last 10 lots (the process has shifted; the estimate may lag). And
+scale-contributors.toml: the movement mean and spread per construction and
+role as [[contributor]] blocks a job can include.
+
+	regdrift history export > FILE.csv
+	regdrift history import FILE.csv [--replace]
+
+move the history between machines: one CSV row per panel and layer fit, units
+in the header; export, import and export again is byte-identical. An import
+is stored whole or not at all.
 
 # version
 

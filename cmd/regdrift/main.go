@@ -52,6 +52,7 @@ var commands = []command{
 	{"comp", func() options { return new(compFlags) }},
 	{"yield", func() options { return new(yieldFlags) }},
 	{"report", func() options { return new(reportFlags) }},
+	{"history", func() options { return new(historyFlags) }},
 	{"version", func() options { return new(versionFlags) }},
 }
 
