@@ -1,7 +1,9 @@
 package main
 
 import (
+	"errors"
 	"fmt"
+	"strconv"
 
 	"github.com/spf13/pflag"
 
@@ -78,4 +80,32 @@ func parsePercent(s string) (float64, error) {
 		return 0, fmt.Errorf("%q: want a value between 0 and 10%%", s)
 	}
 	return v / 100, nil
+}
+
+// maxTrials bounds --trials: ten million panels of a few thousand sites is
+// minutes of Monte Carlo, and the standard error of a yield is already below
+// 1e-4 long before.
+const maxTrials = 10_000_000
+
+// addTrials declares --trials, the panels of a Monte Carlo, taking 1 to
+// maxTrials with a message that says which when the count is out of range.
+func addTrials(fs *pflag.FlagSet, p *int, usage string) {
+	*p = 10000
+	fs.Var((*trialsValue)(p), "trials", usage)
+}
+
+type trialsValue int
+
+func (v *trialsValue) String() string { return strconv.Itoa(int(*v)) }
+func (v *trialsValue) Type() string   { return "int" }
+func (v *trialsValue) Set(s string) error {
+	n, err := strconv.ParseInt(s, 10, 64)
+	switch {
+	case errors.Is(err, strconv.ErrRange) || (err == nil && (n < 1 || n > maxTrials)):
+		return fmt.Errorf("want 1 to %d panels", maxTrials)
+	case err != nil:
+		return errors.New("want a whole number of panels")
+	}
+	*v = trialsValue(n)
+	return nil
 }

@@ -140,9 +140,11 @@ func TestCountCaps(t *testing.T) {
 	for _, args := range [][]string{
 		{"sweep", "testdata/small.toml", "--offsets", "-5mil:5mil:0.0001mil"},
 		{"tol", "testdata/small.toml", "--widen", "0mil:4mil:0.00004mil"},
+		{"yield", "testdata/small.toml", "--trials", "99999999999999999999"},
+		{"yield", "testdata/small.toml", "--trials", "2000000000"},
 	} {
 		code, _, errw := run(t, append(args, "-o", t.TempDir())...)
-		if code != exitBadInput || !strings.Contains(errw, "at most") {
+		if code != exitBadInput || !(strings.Contains(errw, "at most") || strings.Contains(errw, "want 1 to")) {
 			t.Errorf("%v: exit %d, want 2 with the cap: %s", args, code, errw)
 		}
 	}

@@ -38,7 +38,7 @@ type reportFlags struct {
 func (f *reportFlags) flags(fs *pflag.FlagSet) {
 	f.outputFlags.add(fs)
 	fs.StringVar(&f.targets, "targets", "", "measurement file (CSV): add the fit of its targets and the compensation it recommends")
-	fs.IntVar(&f.trials, "trials", 10000, "number of panels drawn in the Monte Carlo yield")
+	addTrials(fs, &f.trials, "number of panels drawn in the Monte Carlo yield")
 	fs.Uint64Var(&f.seed, "seed", 1, "seed of the Monte Carlo's random streams")
 	fs.IntVar(&f.width, "width", 1600, "width of the report's panel maps in pixels")
 	f.solver.add(fs)

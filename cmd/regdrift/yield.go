@@ -26,7 +26,7 @@ type yieldFlags struct {
 
 // flags declares the command's flags on fs.
 func (f *yieldFlags) flags(fs *pflag.FlagSet) {
-	fs.IntVar(&f.trials, "trials", 10000, "number of panels drawn in the Monte Carlo")
+	addTrials(fs, &f.trials, "number of panels drawn in the Monte Carlo")
 	fs.Uint64Var(&f.seed, "seed", 1, "seed of the random streams")
 	fs.IntVar(&f.workers, "workers", 0, "parallel workers (0: one per CPU); results do not depend on it")
 	f.outputFlags.add(fs)
