@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel/section"
@@ -148,5 +149,34 @@ func TestSweepBadExcursions(t *testing.T) {
 			t.Errorf("%v: left %s behind", args, dir)
 		}
 		t.Logf("%v: %s", args, stderr)
+	}
+}
+
+// TestSweepCopperBuild checks that sweep shows a copper layer's foil, each
+// plating step and the finished total: 0.5 oz/ft² of copper is 0.6704 mil
+// (28.349523125 g / 0.09290304 m² / 8.96 g/cm³ = 34.057 µm per oz: NIST
+// Special Publication 811, 2008 edition, appendix B.9, and CRC Handbook of
+// Chemistry and Physics, copper; published).
+func TestSweepCopperBuild(t *testing.T) {
+	data, err := os.ReadFile("testdata/small.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	old := `{ copper = "L3", thickness = "1.4 mil" }`
+	job := strings.Replace(string(data), old, `{ copper = "L3", foil = "0.5 oz", plating = ["0.6 mil", "0.13 mil"] }`, 1)
+	if job == string(data) {
+		t.Fatal("testdata/small.toml no longer has the L3 line this test edits")
+	}
+	path := filepath.Join(t.TempDir(), "build.toml")
+	if err := os.WriteFile(path, []byte(job), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, stdout, stderr := run(t, "sweep", path, "-o", t.TempDir(), "--offsets", "-1mil:1mil:1mil")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	want := "copper L3: foil 0.670 + plating 0.600 + plating 0.130 = 1.400 mil finished"
+	if !strings.Contains(stdout, want) {
+		t.Errorf("sweep output lacks %q:\n%s", want, stdout)
 	}
 }

@@ -156,6 +156,7 @@ func printImpacts(w io.Writer, s *section.Section, imp []drift.Impact, lu length
 func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *drift.SweepSummary, lu lengthUnit, paths []string) {
 	fmt.Fprintf(w, "section %s: %d offsets, f0 %.4g GHz, coupled length %.1f %s, z_ref %.1f ohm\n",
 		s.Name, len(c.Points), c.Frequency/1e9, c.Length/lu.factor, lu.name, s.ZRef)
+	printCopperBuild(w, s, lu)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "offset [%s]\tcoupling [dB]\tdirectivity [dB]\tz1 [ohm]\tz2 [ohm]\tk_c\tk_l\t\n", lu.name)
 	for _, p := range c.Points {
@@ -187,5 +188,20 @@ func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *drift.Swee
 	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
+	}
+}
+
+// printCopperBuild writes, for each copper layer given as foil plus
+// plating, the foil, each step and the finished thickness the solver uses.
+func printCopperBuild(w io.Writer, s *section.Section, lu lengthUnit) {
+	for _, l := range s.Stackup.Layers {
+		if l.Kind != section.Copper || (l.Foil == 0 && len(l.Plating) == 0) {
+			continue
+		}
+		fmt.Fprintf(w, "copper %s: foil %.3f", l.Name, l.Foil/lu.factor)
+		for _, p := range l.Plating {
+			fmt.Fprintf(w, " + plating %.3f", p/lu.factor)
+		}
+		fmt.Fprintf(w, " = %.3f %s finished\n", l.Thickness/lu.factor, lu.name)
 	}
 }
