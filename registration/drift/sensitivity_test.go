@@ -48,3 +48,29 @@ func TestParseExcursions(t *testing.T) {
 		}
 	}
 }
+
+// FuzzParseExcursions checks that any list either parses to positive,
+// finite excursions (a relative thickness below 1) or fails with
+// ErrExcursion, and never panics.
+func FuzzParseExcursions(f *testing.F) {
+	for _, s := range []string{"", "thickness=5%,er=0.05,width=0.3mil", "thickness=1mil", "copper=5um,etch=0.1mil", "er=,", "=", "width=1e400mil", "thickness=-0%"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		ex, err := ParseExcursions(s)
+		if err != nil {
+			if !errors.Is(err, ErrExcursion) {
+				t.Fatalf("%q: error %v does not wrap ErrExcursion", s, err)
+			}
+			return
+		}
+		for _, v := range []float64{ex.Thickness, ex.Er, ex.Width, ex.Etch, ex.Copper} {
+			if !(v > 0) || math.IsInf(v, 0) {
+				t.Fatalf("%q: excursion %g not positive and finite: %+v", s, v, ex)
+			}
+		}
+		if ex.ThicknessRelative && !(ex.Thickness < 1) {
+			t.Fatalf("%q: relative thickness excursion %g", s, ex.Thickness)
+		}
+	})
+}
