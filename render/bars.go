@@ -19,6 +19,8 @@ type BarChart struct {
 	// XMax fixes the end of the value axis; 0 means from the data.
 	XMax  float64
 	Color color.Color // nil means the first Qualitative colour
+	// Colors, if given, colour each bar (a nil entry: Color), e.g. by sign.
+	Colors []color.Color
 }
 
 // Render draws the chart width pixels wide. A height of 0 fits the bars:
@@ -48,7 +50,11 @@ func (b *BarChart) Render(width, height int) *Canvas {
 			finiteRange(&lo, &hi, v)
 		}
 		lo, hi = fixRange(lo, hi)
-		hi += 0.12 * (hi - lo) // room for the value text
+		span := hi - lo
+		hi += 0.12 * span // room for the value text
+		if lo < 0 {
+			lo -= 0.12 * span // and for a negative bar's, written left of it
+		}
 	}
 	labelW := 0.0
 	for _, l := range b.Labels {
@@ -84,7 +90,11 @@ func (b *BarChart) Render(width, height int) *Canvas {
 		if x1 < x0 {
 			x0, x1 = x1, x0
 		}
-		c.fillBox(box{x0, cy - bh/2, x1, cy + bh/2}, col)
+		bc := col
+		if k < len(b.Colors) && b.Colors[k] != nil {
+			bc = b.Colors[k]
+		}
+		c.fillBox(box{x0, cy - bh/2, x1, cy + bh/2}, bc)
 		if k < len(b.Labels) {
 			c.text(b.Labels[k], left-0.5*em, cy, 1, 0.5, ts)
 		}

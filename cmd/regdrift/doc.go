@@ -65,7 +65,7 @@ summary.json to the output directory, and a summary table to stdout.
 
 Usage:
 
-	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [-o DIR] [--json]
+	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [--sensitivities [--excursions LIST]] [-o DIR] [--json]
 
 Solve a section's cross-section over a range of lateral offsets.
 
@@ -82,6 +82,23 @@ an end.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
 where it leaves the spec; impedances; directivity).
+
+With --sensitivities every offset is also solved for the derivative of
+coupling, directivity, each line's impedance and each mode's effective
+permittivity with respect to every physical parameter of the cross-section:
+each dielectric's thickness and εr (by name, or layers[i] when unnamed), each
+copper layer's finished thickness, the traces' foot width and etch on each
+trace layer, the mask's two thicknesses and εr. sensitivity.csv has one row
+per offset and parameter, in dB/mil, ohm/mil and 1/mil for a length (per um
+with --units um) and per unit εr for a permittivity, each in its own
+column. The table and sensitivity.png rank, at the design offset, the
+coupling change each parameter causes over its excursion (first order, for a
+rise; a fall reverses the sign): by default ±10 % of a thickness, ±0.1 εr,
+±0.5 mil of width and of etch, ±0.3 mil of copper; --excursions changes any
+of them, e.g. thickness=5%,er=0.05,width=0.3mil,copper=0.2mil (thickness also
+takes a length). An excursion that would make a thickness or width
+non-positive (or an εr below 1) is bad input. --json carries the same numbers
+(SI: per metre, "per": "m", or per unit εr, "per": "er").
 
 # tol
 

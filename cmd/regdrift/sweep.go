@@ -21,12 +21,16 @@ type sweepFlags struct {
 	section string
 	offsets string
 	solver  solverFlags
+	sens    bool
+	excurs  string
 }
 
 // flags declares the command's flags on fs.
 func (f *sweepFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.section, "section", "", "section to sweep (default: the first)")
 	fs.StringVar(&f.offsets, "offsets", "", "offsets FROM:TO:STEP, each with a unit, e.g. -5mil:5mil:0.5mil")
+	fs.BoolVar(&f.sens, "sensitivities", false, "also solve the derivative of coupling, directivity, impedances and εeff with respect to every parameter (sensitivity.csv, sensitivity.png)")
+	fs.StringVar(&f.excurs, "excursions", "", "with --sensitivities: the excursions ranked at the design offset, e.g. thickness=5%,er=0.05,width=0.3mil (default thickness=10%,er=0.1,width=0.5mil,etch=0.5mil,copper=0.3mil)")
 	f.outputFlags.add(fs)
 	f.solver.add(fs)
 }
@@ -64,6 +68,14 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	if f.excurs != "" && !f.sens {
+		return usageErr("--excursions needs --sensitivities")
+	}
+	ex, err := drift.ParseExcursions(f.excurs)
+	if err != nil {
+		return usageErr("--excursions: %v", err)
+	}
+	set.Sensitivities = f.sens
 	j, err := loadJob(args[0], std.in)
 	if err != nil {
 		return err
@@ -73,6 +85,11 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	s := j.Sections[si]
+	if f.sens {
+		if err := drift.CheckExcursions(s, ex); err != nil {
+			return usageErr("--excursions: section %q: %v", s.Name, err)
+		}
+	}
 	var c *section.Curve
 	var hit bool
 	if f.offsets == "" {
@@ -103,18 +120,43 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		}
 	}
 	res := drift.Sweep(s, c, hit)
-	paths, err := writeAll(f.out,
-		outFile{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c, lu.units()) }},
-		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, s, c, lu.units()) }})
+	files := []outFile{
+		{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c, lu.units()) }},
+		{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, s, c, lu.units()) }}}
+	if f.sens {
+		res.Sensitivities = drift.SensitivityRows(c)
+		res.Impacts = drift.Impacts(s, c, ex)
+		files = append(files,
+			outFile{"sensitivity.csv", func(w io.Writer) error { return drift.WriteSensitivityCSV(w, c, lu.units()) }},
+			outFile{"sensitivity.png", func(w io.Writer) error { return figure.Sensitivity(w, s, res.Impacts, lu.units()) }})
+	}
+	paths, err := writeAll(f.out, files...)
 	if err != nil {
 		return err
 	}
 	return report(std, f.json, res, func() { printSweep(std.out, s, c, res, lu, paths) })
 }
 
+// printImpacts writes the ranked coupling changes at the design offset.
+func printImpacts(w io.Writer, s *section.Section, imp []drift.Impact, lu lengthUnit) {
+	fmt.Fprintf(w, "coupling change at the design offset (%.3f %s) over each parameter's excursion, first order, largest first:\n",
+		s.NominalOffset()/lu.factor, lu.name)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "parameter\texcursion\tdcoupling/dp\tchange [dB]\t\n")
+	for _, im := range imp {
+		if im.Per == "er" {
+			fmt.Fprintf(tw, "%s\t±%.3g\t%.4g dB/er\t%+.4f\t\n", im.Parameter, im.Excursion, im.CouplingDB, im.ChangeDB)
+		} else {
+			fmt.Fprintf(tw, "%s\t±%.3g %s\t%.4g dB/%s\t%+.4f\t\n", im.Parameter, im.Excursion/lu.factor, lu.name, im.CouplingDB*lu.factor, lu.name, im.ChangeDB)
+		}
+	}
+	tw.Flush()
+}
+
 func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *drift.SweepSummary, lu lengthUnit, paths []string) {
 	fmt.Fprintf(w, "section %s: %d offsets, f0 %.4g GHz, coupled length %.1f %s, z_ref %.1f ohm\n",
 		s.Name, len(c.Points), c.Frequency/1e9, c.Length/lu.factor, lu.name, s.ZRef)
+	printCopperBuild(w, s, lu)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 	fmt.Fprintf(tw, "offset [%s]\tcoupling [dB]\tdirectivity [dB]\tz1 [ohm]\tz2 [ohm]\tk_c\tk_l\t\n", lu.name)
 	for _, p := range c.Points {
@@ -141,7 +183,25 @@ func printSweep(w io.Writer, s *section.Section, c *section.Curve, r *drift.Swee
 			fmt.Fprintf(w, "note: crossings are interpolated between solved offsets up to %.3g %s apart; 'regdrift tol' finds them by direct solves\n", step/lu.factor, lu.name)
 		}
 	}
+	if len(r.Impacts) > 0 {
+		printImpacts(w, s, r.Impacts, lu)
+	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
+	}
+}
+
+// printCopperBuild writes, for each copper layer given as foil plus
+// plating, the foil, each step and the finished thickness the solver uses.
+func printCopperBuild(w io.Writer, s *section.Section, lu lengthUnit) {
+	for _, l := range s.Stackup.Layers {
+		if l.Kind != section.Copper || (l.Foil == 0 && len(l.Plating) == 0) {
+			continue
+		}
+		fmt.Fprintf(w, "copper %s: foil %.3f", l.Name, l.Foil/lu.factor)
+		for _, p := range l.Plating {
+			fmt.Fprintf(w, " + plating %.3f", p/lu.factor)
+		}
+		fmt.Fprintf(w, " = %.3f %s finished\n", l.Thickness/lu.factor, lu.name)
 	}
 }

@@ -42,6 +42,7 @@ type rawPanel struct {
 
 type rawStackup struct {
 	Layers []map[string]any `toml:"layers"`
+	Mask   map[string]any   `toml:"mask"`
 }
 
 type rawSection struct {
@@ -449,12 +450,11 @@ func (l *loader) buildStackup() error {
 				return src.errf(key+".copper", "%w: layer %q is listed twice", ErrValue, name)
 			}
 			names[name] = true
-			t, err := quantity(src, key+".thickness", m["thickness"], unit.Length, nil)
-			if err != nil {
+			var err error
+			if layer, err = copperLayer(src, key, name, m); err != nil {
 				return err
 			}
-			layer = section.Layer{Name: name, Kind: section.Copper, Thickness: t}
-			allowed = map[string]bool{"copper": true, "thickness": true}
+			allowed = map[string]bool{"copper": true, "thickness": true, "foil": true, "plating": true}
 		default:
 			kind := "core"
 			if _, ok := m["prepreg"]; ok {
@@ -471,7 +471,10 @@ func (l *loader) buildStackup() error {
 			if !ok {
 				return src.errf(key+".er", "%w: a dielectric needs er (relative permittivity)", ErrMissing)
 			}
-			name, _ := m["name"].(string)
+			name, err := dielectricName(src, key+".name", m["name"], names)
+			if err != nil {
+				return err
+			}
 			layer = section.Layer{Name: name, Kind: section.Dielectric, Thickness: t, Er: er, Core: kind == "core"}
 			allowed = map[string]bool{kind: true, "er": true, "name": true}
 		}
@@ -492,7 +495,139 @@ func (l *loader) buildStackup() error {
 		}
 		l.job.Stackup.Layers = append(l.job.Stackup.Layers, layer)
 	}
+	if l.stackup.Mask != nil {
+		m, err := solderMask(src, "mask", l.stackup.Mask)
+		if err != nil {
+			return err
+		}
+		l.job.Stackup.Mask = m
+	}
 	return nil
+}
+
+// copperLayer reads a copper layer given either by its finished thickness
+// or by its foil (a length or a copper weight in oz) and plating steps.
+func copperLayer(src source, key, name string, m map[string]any) (section.Layer, error) {
+	layer := section.Layer{Name: name, Kind: section.Copper}
+	_, hasFoil := m["foil"]
+	_, hasPlating := m["plating"]
+	if !hasFoil && !hasPlating {
+		t, err := quantity(src, key+".thickness", m["thickness"], unit.Length, nil)
+		layer.Thickness = t
+		return layer, err
+	}
+	if _, ok := m["thickness"]; ok {
+		return layer, src.errf(key+".thickness", "%w: give either thickness (finished) or foil with plating, not both", ErrValue)
+	}
+	if !hasFoil {
+		return layer, src.errf(key+".foil", "%w: plating needs the base foil, e.g. foil = \"0.5 oz\"", ErrMissing)
+	}
+	foil, err := foilThickness(src, key+".foil", m["foil"])
+	if err != nil {
+		return layer, err
+	}
+	layer.Foil = foil
+	if hasPlating {
+		steps, ok := m["plating"].([]any)
+		if !ok {
+			return layer, src.errf(key+".plating", "%w: want a list of lengths, e.g. plating = [\"1.0 mil\", \"0.3 mil\"]", ErrValue)
+		}
+		for k, v := range steps {
+			sk := fmt.Sprintf("%s.plating[%d]", key, k)
+			p, err := quantity(src, sk, v, unit.Length, nil)
+			if err != nil {
+				return layer, err
+			}
+			if !(p > 0) {
+				return layer, src.errf(sk, "%w: a plating step must be positive", ErrValue)
+			}
+			layer.Plating = append(layer.Plating, p)
+		}
+	}
+	layer.Thickness = section.FinishedThickness(layer.Foil, layer.Plating)
+	return layer, nil
+}
+
+// foilThickness reads a base foil: a length, or a copper weight in ounces
+// per square foot ("0.5 oz") converted by section.CopperWeightThickness.
+func foilThickness(src source, key string, v any) (float64, error) {
+	s, ok := v.(string)
+	if ok {
+		if num, found := strings.CutSuffix(strings.TrimSpace(s), "oz"); found {
+			oz, err := strconv.ParseFloat(strings.TrimSpace(num), 64)
+			if err != nil || math.IsNaN(oz) || math.IsInf(oz, 0) {
+				return 0, src.errf(key, "%w: %q is not a copper weight such as \"0.5 oz\"", ErrValue, s)
+			}
+			if !(oz > 0) || oz > 100 {
+				return 0, src.errf(key, "%w: copper weight %g oz must be positive and at most 100 oz", ErrValue, oz)
+			}
+			return section.CopperWeightThickness(oz), nil
+		}
+	}
+	t, err := quantity(src, key, v, unit.Length, nil)
+	if err != nil {
+		var pe *ParseError
+		if errors.As(err, &pe) {
+			pe.Err = fmt.Errorf("%w (or a copper weight in oz, e.g. \"0.5 oz\")", pe.Err)
+		}
+		return 0, err
+	}
+	if !(t > 0) {
+		return 0, src.errf(key, "%w: foil must be positive", ErrValue)
+	}
+	return t, nil
+}
+
+// dielectricName reads a dielectric's optional name; names (copper and
+// dielectric alike) must be unique so that a parameter can address one layer.
+func dielectricName(src source, key string, v any, names map[string]bool) (string, error) {
+	if v == nil {
+		return "", nil
+	}
+	name, ok := v.(string)
+	if !ok || name == "" {
+		return "", src.errf(key, "%w: name takes a non-empty string, e.g. name = \"K1\"", ErrValue)
+	}
+	if names[name] {
+		return "", src.errf(key, "%w: layer name %q is used twice", ErrValue, name)
+	}
+	names[name] = true
+	return name, nil
+}
+
+// solderMask reads [stackup] mask = { thickness, over_copper, er }.
+func solderMask(src source, key string, m map[string]any) (*section.Mask, error) {
+	for k := range m {
+		if k != "thickness" && k != "over_copper" && k != "er" {
+			return nil, src.errf(key+"."+k, "%w %q (mask keys: thickness, over_copper, er)", ErrUnknownKey, k)
+		}
+	}
+	var mask section.Mask
+	for _, f := range []struct {
+		k string
+		v *float64
+	}{{"thickness", &mask.OverLaminate}, {"over_copper", &mask.OverCopper}} {
+		t, err := quantity(src, key+"."+f.k, m[f.k], unit.Length, nil)
+		if err != nil {
+			return nil, err
+		}
+		if !(t > 0) {
+			return nil, src.errf(key+"."+f.k, "%w: mask thickness must be positive", ErrValue)
+		}
+		*f.v = t
+	}
+	er, ok, err := number(src, key+".er", m["er"])
+	if err != nil {
+		return nil, err
+	}
+	if !ok {
+		return nil, src.errf(key+".er", "%w: the mask needs er (relative permittivity)", ErrMissing)
+	}
+	if !(er >= 1) {
+		return nil, src.errf(key+".er", "%w: er must be at least 1", ErrValue)
+	}
+	mask.Er = er
+	return &mask, nil
 }
 
 // stackupKey turns the key of a section.FieldError within the stackup into

@@ -1,10 +1,12 @@
 package drift
 
 import (
+	"io"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
 
@@ -68,5 +70,32 @@ func BenchmarkValue(b *testing.B) {
 			}
 			_ = sink
 		})
+	}
+}
+
+// BenchmarkSensitivityOutput times what sweep --sensitivities adds after the
+// solve: the JSON rows, the ranked impacts and sensitivity.csv, for a
+// centred 3 dB pair solved at 21 offsets with sensitivities once before.
+func BenchmarkSensitivityOutput(b *testing.B) {
+	s := pair("hyb", 0, section.Spec{Coupling: -3, Tolerance: 0.25})
+	offsets := make([]float64, 21)
+	for k := range offsets {
+		offsets[k] = (float64(k) - 10) * 0.5 * mil
+	}
+	set := &Settings{CacheDir: b.TempDir(), Sensitivities: true}
+	c, _, err := SolveAt(b.Context(), s, offsets, set)
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		rows := SensitivityRows(c)
+		imp := Impacts(s, c, DefaultExcursions)
+		if len(rows) == 0 || len(imp) == 0 {
+			b.Fatal("no sensitivities")
+		}
+		if err := WriteSensitivityCSV(io.Discard, c, unit.MilInch); err != nil {
+			b.Fatal(err)
+		}
 	}
 }

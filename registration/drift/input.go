@@ -60,6 +60,9 @@ type Settings struct {
 	// solve (a damaged entry recomputed, an entry that could not be written):
 	// the solve itself succeeded, so these are not errors. Nil drops them.
 	CacheWarning func(error)
+	// Sensitivities solves every point's derivatives with respect to each
+	// parameter of the section as well (section.Settings.Sensitivities).
+	Sensitivities bool
 }
 
 // warnCache passes the cache warnings of c to s.CacheWarning.
@@ -77,7 +80,7 @@ func (s *Settings) Solver() *section.Settings {
 	if s == nil {
 		return &section.Settings{}
 	}
-	return &section.Settings{Accuracy: s.Accuracy, Workers: s.Workers}
+	return &section.Settings{Accuracy: s.Accuracy, Workers: s.Workers, Sensitivities: s.Sensitivities}
 }
 
 func (s *Settings) cache() (dir string, off bool) {

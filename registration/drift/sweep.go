@@ -19,6 +19,11 @@ type SweepSummary struct {
 	SpecTolDB      float64   `json:"spec_tolerance_db"`
 	LeavesSpecAtM  []float64 `json:"leaves_spec_at_m"`
 	FromCache      bool      `json:"from_cache"`
+	// With sensitivities: every point's derivatives (sensitivity.csv) and,
+	// at the design offset, each parameter's coupling change over its
+	// excursion, largest first (sensitivity.png).
+	Sensitivities []SensitivityRow `json:"sensitivities,omitempty"`
+	Impacts       []Impact         `json:"excursion_impacts,omitempty"`
 }
 
 // Sweep summarises the curve c of section s (hit: it came from the cache).
