@@ -3,6 +3,7 @@ package registration
 import (
 	"errors"
 	"fmt"
+	"hash/maphash"
 	"io"
 	"strings"
 
@@ -110,11 +111,17 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 	}
 	type group struct{ panel, layer string }
 	groups := map[group]int32{}
+	// seen maps a hash of (group, name) to the index of the first target
+	// with it; a hit is confirmed against that target, and the rare distinct
+	// targets with one hash go to exact, so a slot costs 12 bytes, not a
+	// string and a row per target.
 	type key struct {
 		group int32
 		name  string
 	}
-	seen := map[key]int32{}
+	seed := maphash.MakeSeed()
+	seen := map[uint64]int32{}
+	exact := map[key]int32{}
 	var out []Target
 	for {
 		rec, err := cr.Read()
@@ -172,11 +179,20 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 			g = int32(len(groups))
 			groups[group{t.Panel, t.Layer}] = g
 		}
-		k := key{g, t.Name}
-		if first, dup := seen[k]; dup {
+		h := maphash.Comparable(seed, key{g, t.Name})
+		first := -1
+		if i, hit := seen[h]; !hit {
+			seen[h] = int32(len(out))
+		} else if o := &out[i]; o.Panel == t.Panel && o.Layer == t.Layer && o.Name == t.Name {
+			first = o.Row
+		} else if j, dup := exact[key{g, t.Name}]; dup {
+			first = out[j].Row
+		} else {
+			exact[key{g, t.Name}] = int32(len(out))
+		}
+		if first >= 0 {
 			return nil, &CSVError{File: file, Row: line, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, t.Name, t.Panel, t.Layer, first)}
 		}
-		seen[k] = int32(line)
 		out = append(out, t)
 	}
 	if len(out) == 0 {

@@ -67,7 +67,7 @@ func TestFitSampledFigure(t *testing.T) {
 	if testing.Short() {
 		t.Skip("writes 24,000 targets")
 	}
-	in := writeBigTargets(t, t.TempDir(), 10, 1, 2400) // 24,000 on one layer, over the 5,000 drawn
+	in := writeBigTargets(t, t.TempDir(), 10, 1, 2400) // 24,000 on one layer, over the 20,000 drawn
 	out := t.TempDir()
 	var o, e bytes.Buffer
 	if code := realMain([]string{"fit", in, "-o", out}, nil, &o, &e); code != 0 {

@@ -67,8 +67,8 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
 		{Label: "target rejected as mis-measured", Kind: render.LegendRing},
 	}
-	// A view draws at most maxFitArrows targets: beyond that the arrows
-	// overlap into a solid field and only cost time. A layer with more is
+	// The figure draws at most maxFitArrows targets (minViewArrows a view):
+	// beyond that the arrows overlap into a solid field and only cost time. A layer with more is
 	// drawn from a deterministic sample (see sampleTarget); the statistics
 	// above and the fit itself use every target.
 	perLayer := map[string]int{}
@@ -79,9 +79,10 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	}
 	keep := map[string]uint32{}
 	shown := 0
+	limit := max(minViewArrows, maxFitArrows/max(len(lots), 1))
 	for _, l := range lots {
 		n := perLayer[l.Layer]
-		keep[l.Layer] = sampleThreshold(n, maxFitArrows)
+		keep[l.Layer] = sampleThreshold(n, limit)
 		shown += sampledCount(n, keep[l.Layer])
 	}
 	if shown < total {
@@ -148,8 +149,12 @@ func niceLength(d float64) float64 {
 	return mag
 }
 
-// maxFitArrows is the most targets one view of fit.png draws.
-const maxFitArrows = 5000
+// fit.png draws at most maxFitArrows targets in all, shared by its views,
+// but never fewer than minViewArrows in one view.
+const (
+	maxFitArrows  = 20000
+	minViewArrows = 2000
+)
 
 // sampleThreshold returns the threshold of sampleTarget that keeps about
 // limit of n targets; 0 means keep all.
