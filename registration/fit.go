@@ -198,12 +198,36 @@ func FitAll(ts []Target, set *FitSettings) ([]Fit, error) {
 	type key struct{ panel, layer string }
 	var order []key
 	groups := map[key][]Target{}
-	for _, t := range ts {
-		k := key{t.Panel, t.Layer}
-		if _, ok := groups[k]; !ok {
-			order = append(order, k)
+	// A file written panel by panel and layer by layer holds each group in
+	// one run of rows; then every fit takes its run of ts itself and no
+	// target is copied.
+	runs := map[key]bool{}
+	contiguous := true
+	for i := 0; i < len(ts); {
+		k := key{ts[i].Panel, ts[i].Layer}
+		j := i + 1
+		for j < len(ts) && ts[j].Panel == k.panel && ts[j].Layer == k.layer {
+			j++
 		}
-		groups[k] = append(groups[k], t)
+		if runs[k] {
+			contiguous = false
+			break
+		}
+		runs[k] = true
+		order = append(order, k)
+		groups[k] = ts[i:j:j]
+		i = j
+	}
+	if !contiguous {
+		order = order[:0]
+		clear(groups)
+		for _, t := range ts {
+			k := key{t.Panel, t.Layer}
+			if _, ok := groups[k]; !ok {
+				order = append(order, k)
+			}
+			groups[k] = append(groups[k], t)
+		}
 	}
 	fits := make([]Fit, 0, len(order))
 	var w fitWork
@@ -681,8 +705,15 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 		if f.Layer != layer {
 			continue
 		}
+		var out map[string]bool
+		if len(f.Outliers) > 0 {
+			out = make(map[string]bool, len(f.Outliers))
+			for _, n := range f.Outliers {
+				out[n] = true
+			}
+		}
 		for j, t := range f.Targets {
-			if slices.Contains(f.Outliers, t.Name) {
+			if out[t.Name] {
 				continue
 			}
 			pts = append(pts, pt{t.Pos, f.Residuals[j]})

@@ -3,6 +3,7 @@ package registration
 import (
 	"errors"
 	"fmt"
+	"hash/maphash"
 	"io"
 	"strings"
 
@@ -94,8 +95,33 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 	if !disp {
 		numeric = []string{"x", "y", "x_meas", "y_meas"}
 	}
-	type key struct{ panel, layer, name string }
-	seen := map[key]int{}
+	// Memory is per target, so nothing here may keep a row alive: the
+	// reader reuses its record, a panel or layer name is stored once
+	// (intern), a target name is copied out of the row's string, and the
+	// duplicate check keys on the group's number rather than on its names.
+	cr.ReuseRecord = true
+	names := map[string]string{}
+	intern := func(v string) string {
+		if s, ok := names[v]; ok {
+			return s
+		}
+		v = strings.Clone(v)
+		names[v] = v
+		return v
+	}
+	type group struct{ panel, layer string }
+	groups := map[group]int32{}
+	// seen maps a hash of (group, name) to the index of the first target
+	// with it; a hit is confirmed against that target, and the rare distinct
+	// targets with one hash go to exact, so a slot costs 12 bytes, not a
+	// string and a row per target.
+	type key struct {
+		group int32
+		name  string
+	}
+	seed := maphash.MakeSeed()
+	seen := map[uint64]int32{}
+	exact := map[key]int32{}
 	var out []Target
 	for {
 		rec, err := cr.Read()
@@ -119,11 +145,11 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 			}
 			switch c {
 			case "panel":
-				t.Panel = v
+				t.Panel = intern(v)
 			case "layer":
-				t.Layer = v
+				t.Layer = intern(v)
 			case "target":
-				t.Name = v
+				t.Name = strings.Clone(v)
 			}
 		}
 		if a, b, rel := SplitLayer(t.Layer); rel && (a == "" || b == "" || strings.Contains(b, "-") || a == b) {
@@ -148,11 +174,25 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 				}
 			}
 		}
-		k := key{t.Panel, t.Layer, t.Name}
-		if first, dup := seen[k]; dup {
+		g, ok := groups[group{t.Panel, t.Layer}]
+		if !ok {
+			g = int32(len(groups))
+			groups[group{t.Panel, t.Layer}] = g
+		}
+		h := maphash.Comparable(seed, key{g, t.Name})
+		first := -1
+		if i, hit := seen[h]; !hit {
+			seen[h] = int32(len(out))
+		} else if o := &out[i]; o.Panel == t.Panel && o.Layer == t.Layer && o.Name == t.Name {
+			first = o.Row
+		} else if j, dup := exact[key{g, t.Name}]; dup {
+			first = out[j].Row
+		} else {
+			exact[key{g, t.Name}] = int32(len(out))
+		}
+		if first >= 0 {
 			return nil, &CSVError{File: file, Row: line, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, t.Name, t.Panel, t.Layer, first)}
 		}
-		seen[k] = line
 		out = append(out, t)
 	}
 	if len(out) == 0 {

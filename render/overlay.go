@@ -164,14 +164,25 @@ const barBatch = 32
 // measured targets.
 func (v *View) Dots(pts []Point, r float64, fill color.Color) {
 	dc := v.c.dc
-	for _, p := range pts {
+	dc.SetColor(fill)
+	for i, p := range pts {
 		x, y := v.Pixel(p)
 		dc.DrawCircle(x, y, r)
 		dc.NewSubPath()
+		if (i+1)%pathBatch == 0 {
+			dc.Fill()
+		}
 	}
-	dc.SetColor(fill)
 	dc.Fill()
 }
+
+// pathBatch is how many dots or arrows go into one path before it is
+// filled or stroked: gg's rasteriser takes time quadratic in the segments of
+// one path (every scanline meets every edge), so a figure of many thousand
+// arrows is drawn as many small paths. Shapes that overlap across two
+// batches are composited twice, which only a plot of more than pathBatch
+// shapes can show.
+const pathBatch = 256
 
 // Marker is a numbered ring around a site, such as one of the worst sites.
 type Marker struct {
@@ -342,7 +353,11 @@ func (v *View) Arrows(as []Arrow, s ArrowStyle) {
 	var heads [][3][2]float64
 	a := v.area
 	clip := box{float64(a.Min.X), float64(a.Min.Y), float64(a.Max.X), float64(a.Max.Y)}
-	for _, ar := range as {
+	v.c.applyLine(LineStyle{Color: s.Color, Width: s.Width})
+	for i, ar := range as {
+		if i > 0 && i%pathBatch == 0 {
+			dc.Stroke()
+		}
 		x, y := v.Pixel(ar.At)
 		dx := v.PixelLen(ar.D.X * s.Exaggeration)
 		dy := -v.PixelLen(ar.D.Y * s.Exaggeration)
@@ -359,15 +374,17 @@ func (v *View) Arrows(as []Arrow, s ArrowStyle) {
 			heads = append(heads, h)
 		}
 	}
-	v.c.applyLine(LineStyle{Color: s.Color, Width: s.Width})
 	dc.Stroke()
-	for _, h := range heads {
+	dc.SetColor(s.Color)
+	for i, h := range heads {
+		if i > 0 && i%pathBatch == 0 {
+			dc.Fill()
+		}
 		dc.MoveTo(h[0][0], h[0][1])
 		dc.LineTo(h[1][0], h[1][1])
 		dc.LineTo(h[2][0], h[2][1])
 		dc.ClosePath()
 	}
-	dc.SetColor(s.Color)
 	dc.Fill()
 }
 

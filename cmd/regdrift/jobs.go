@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"errors"
 	"fmt"
@@ -52,11 +53,27 @@ func readFile(path string, stdin io.Reader) ([]byte, string, error) {
 // panel size that is not zero, refuses a target off the panel. Its errors
 // are bad input. It returns the name messages use for the file.
 func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) ([]registration.Target, string, error) {
-	data, name, err := readFile(path, stdin)
-	if err != nil {
-		return nil, name, badInput(fmt.Errorf("measurement file: %w", err))
+	var src io.Reader
+	name := path
+	// A regular file is read as a stream, so that the file's bytes are not
+	// held beside the targets parsed from them; anything else (stdin, a
+	// directory, a pipe) goes through readFile and its messages.
+	if path != "-" {
+		if f, err := os.Open(path); err == nil {
+			defer f.Close()
+			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
+				src = bufio.NewReaderSize(f, 1<<16)
+			}
+		}
 	}
-	ts, err := registration.ReadTargets(bytes.NewReader(data), name)
+	if src == nil {
+		data, n, err := readFile(path, stdin)
+		if err != nil {
+			return nil, n, badInput(fmt.Errorf("measurement file: %w", err))
+		}
+		src, name = bytes.NewReader(data), n
+	}
+	ts, err := registration.ReadTargets(src, name)
 	if err != nil {
 		return nil, name, badInput(err)
 	}

@@ -67,6 +67,28 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
 		{Label: "target rejected as mis-measured", Kind: render.LegendRing},
 	}
+	// The figure draws at most maxFitArrows targets (minViewArrows a view):
+	// beyond that the arrows overlap into a solid field and only cost time. A layer with more is
+	// drawn from a deterministic sample (see sampleTarget); the statistics
+	// above and the fit itself use every target.
+	perLayer := map[string]int{}
+	total := 0
+	for _, f := range fits {
+		perLayer[f.Layer] += len(f.Targets)
+		total += len(f.Targets)
+	}
+	keep := map[string]uint32{}
+	shown := 0
+	limit := max(minViewArrows, maxFitArrows/max(len(lots), 1))
+	for _, l := range lots {
+		n := perLayer[l.Layer]
+		keep[l.Layer] = sampleThreshold(n, limit)
+		shown += sampledCount(n, keep[l.Layer])
+	}
+	if shown < total {
+		title = append(title, fmt.Sprintf("showing a sample of %s of %s targets (every target is in the fit and the tables)",
+			groupThousands(shown), groupThousands(total)))
+	}
 	cols := min(len(lots), 4)
 	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Views: len(lots), Columns: cols, Title: title,
 		Captions: captions, Unit: axisUnit(u), NoColorBar: true, Legend: legend})
@@ -78,11 +100,17 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		var meas, res []render.Arrow
 		var pts []render.Point
 		var ms []render.Marker
+		th := keep[l.Layer]
+		var idx uint32 // the target's index within its layer, for the sample
 		for _, f := range fits {
 			if f.Layer != l.Layer {
 				continue
 			}
 			for i, t := range f.Targets {
+				idx++
+				if !sampleTarget(idx-1, th) {
+					continue
+				}
 				at := render.Point{X: t.Pos.X, Y: t.Pos.Y}
 				pts = append(pts, at)
 				meas = append(meas, render.Arrow{At: at, D: render.Point{X: t.D.X, Y: t.D.Y}})
@@ -119,4 +147,53 @@ func niceLength(d float64) float64 {
 		}
 	}
 	return mag
+}
+
+// fit.png draws at most maxFitArrows targets in all, shared by its views,
+// but never fewer than minViewArrows in one view.
+const (
+	maxFitArrows  = 20000
+	minViewArrows = 2000
+)
+
+// sampleThreshold returns the threshold of sampleTarget that keeps about
+// limit of n targets; 0 means keep all.
+func sampleThreshold(n, limit int) uint32 {
+	if n <= limit {
+		return 0
+	}
+	return uint32(float64(limit) / float64(n) * (1 << 32))
+}
+
+// sampleTarget reports whether the target with index i within its layer is
+// drawn. Multiplicative (Fibonacci) hashing, i·⌊2³²/φ⌋ mod 2³², spreads
+// consecutive indices evenly over [0, 2³²) (Knuth, The Art of Computer
+// Programming, vol. 3, sec. 6.4), so keeping those below a threshold takes
+// a fraction of the targets without the aliasing of every k-th one on a
+// regular target grid, and the same file always draws the same sample.
+func sampleTarget(i, threshold uint32) bool {
+	return threshold == 0 || i*2654435769 < threshold
+}
+
+// sampledCount counts the targets among n that sampleTarget keeps.
+func sampledCount(n int, threshold uint32) int {
+	if threshold == 0 {
+		return n
+	}
+	k := 0
+	for i := range uint32(n) {
+		if sampleTarget(i, threshold) {
+			k++
+		}
+	}
+	return k
+}
+
+// groupThousands writes n with commas between groups of three digits.
+func groupThousands(n int) string {
+	s := strconv.Itoa(n)
+	for i := len(s) - 3; i > 0; i -= 3 {
+		s = s[:i] + "," + s[i:]
+	}
+	return s
 }
