@@ -88,15 +88,9 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
 	}
-	fm, err := registration.ParseFitModel(f.model)
+	fset, err := parseFitSettings(f.model, f.robust, f.weight)
 	if err != nil {
-		return usageErr("--model: %v", err)
-	}
-	fset := registration.FitSettings{Model: fm}
-	if f.robust {
-		if fset.Robust, err = registration.ParseRobust(f.weight); err != nil || fset.Robust == registration.NoRobust {
-			return usageErr("--weight: want tukey or huber, not %q", f.weight)
-		}
+		return err
 	}
 	if f.targets == "-" && args[0] == "-" {
 		return usageErr("the job and --targets cannot both be standard input")

@@ -117,6 +117,23 @@ func runFitFileIn(path string, stdin io.Reader, set registration.FitSettings, gr
 	return &fitRun{r}, nil
 }
 
+// parseFitSettings turns the fit flags (--model, --robust, --weight) that
+// fit, comp and history add share into the fitter's settings; bad values are
+// usage errors naming the flag.
+func parseFitSettings(model string, robust bool, weight string) (registration.FitSettings, error) {
+	m, err := registration.ParseFitModel(model)
+	if err != nil {
+		return registration.FitSettings{}, usageErr("--model: %v", err)
+	}
+	set := registration.FitSettings{Model: m}
+	if robust {
+		if set.Robust, err = registration.ParseRobust(weight); err != nil || set.Robust == registration.NoRobust {
+			return registration.FitSettings{}, usageErr("--weight: want tukey or huber, not %q", weight)
+		}
+	}
+	return set, nil
+}
+
 // isFitOutput reports whether path names one of the files fit writes into dir.
 func isFitOutput(path, dir string) bool {
 	pd, _ := filepath.Abs(filepath.Dir(path))
@@ -145,15 +162,9 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.contributors != "" && isFitOutput(f.contributors, f.out) {
 		return usageErr("--contributors: %s is one of fit's own outputs in -o %s", f.contributors, f.out)
 	}
-	m, err := registration.ParseFitModel(f.model)
+	set, err := parseFitSettings(f.model, f.robust, f.weight)
 	if err != nil {
-		return usageErr("--model: %v", err)
-	}
-	set := registration.FitSettings{Model: m}
-	if f.robust {
-		if set.Robust, err = registration.ParseRobust(f.weight); err != nil || set.Robust == registration.NoRobust {
-			return usageErr("--weight: want tukey or huber, not %q", f.weight)
-		}
+		return err
 	}
 	if set.Datum, err = parseVecFlag("datum", f.datum); err != nil {
 		return err

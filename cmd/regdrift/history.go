@@ -188,15 +188,9 @@ func (f *historyFlags) add(ctx context.Context, std stdio, path string, args []s
 	} else if _, err := time.Parse(history.DateLayout, date); err != nil {
 		return usageErr("--date: %q: want YYYY-MM-DD", date)
 	}
-	m, err := registration.ParseFitModel(f.model)
+	set, err := parseFitSettings(f.model, f.robust, f.weight)
 	if err != nil {
-		return usageErr("--model: %v", err)
-	}
-	set := registration.FitSettings{Model: m}
-	if f.robust {
-		if set.Robust, err = registration.ParseRobust(f.weight); err != nil || set.Robust == registration.NoRobust {
-			return usageErr("--weight: want tukey or huber, not %q", f.weight)
-		}
+		return err
 	}
 	if set.Datum, err = parseVecFlag("datum", f.datum); err != nil {
 		return err
