@@ -11,6 +11,7 @@ import (
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/registration/process"
 )
 
 // Job is a loaded, validated job file.
@@ -23,6 +24,8 @@ type Job struct {
 	Stackup   section.Stackup
 	Sections  []*section.Section // in file order
 	Model     *registration.Model
+	// Process holds the [[variation]] terms; nil when there are none.
+	Process *process.Model
 	// Sources are the job files read, each with its bytes as read: the
 	// main file first, then its includes in the order they were read.
 	Sources []Source

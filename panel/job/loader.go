@@ -31,6 +31,7 @@ type rawJob struct {
 	Part        []rawPart        `toml:"part"`
 	Array       []rawArray       `toml:"array"`
 	Contributor []map[string]any `toml:"contributor"`
+	Variation   []map[string]any `toml:"variation"`
 	Sites       []rawSites       `toml:"sites"`
 }
 
@@ -140,7 +141,10 @@ type loader struct {
 	arraySrc   []source
 	contribs   []map[string]any
 	contribSrc []source
-	placements []panel.Placement
+	// variations are the [[variation]] tables (variation.go).
+	variations   []map[string]any
+	variationSrc []source
+	placements   []panel.Placement
 }
 
 // MaxIncludeDepth bounds how deep includes nest: a job that includes a
@@ -224,6 +228,10 @@ func (l *loader) file(data []byte, name, dir string, depth int, chain []chainLin
 	for i := range raw.Contributor {
 		l.contribs = append(l.contribs, raw.Contributor[i])
 		l.contribSrc = append(l.contribSrc, source{f, fmt.Sprintf("contributor[%d]", i)})
+	}
+	for i := range raw.Variation {
+		l.variations = append(l.variations, raw.Variation[i])
+		l.variationSrc = append(l.variationSrc, source{f, fmt.Sprintf("variation[%d]", i)})
 	}
 	for i, s := range raw.Sites {
 		src := source{f, fmt.Sprintf("sites[%d]", i)}
@@ -367,7 +375,10 @@ func (l *loader) finish() error {
 	if err := l.buildLayout(); err != nil {
 		return err
 	}
-	return l.buildModel()
+	if err := l.buildModel(); err != nil {
+		return err
+	}
+	return l.buildVariation()
 }
 
 func (l *loader) layoutErr(err error) error {
