@@ -32,7 +32,7 @@ func (lu lengthUnit) units() unit.Output { return lu.Output }
 // input is what the analysis library needs of a job.
 func input(j *Job) *drift.Input {
 	return &drift.Input{Title: j.Title, Source: j.File, Layout: j.Layout, Instances: j.Instances,
-		Sites: j.Sites, Sections: j.Sections, Model: j.Model}
+		Sites: j.Sites, Sections: j.Sections, Model: j.Model, Process: j.Process}
 }
 
 // solveErr marks an error of the library as bad input when a section's own

@@ -32,6 +32,9 @@ type Analysis struct {
 	Curves []*Curve
 	Sites  []Site
 	used   []bool
+	// proc holds per section the process side of its evaluator (nil
+	// without process terms); set by Evaluate (variation.go).
+	proc []*Proc
 }
 
 // New prepares the analysis of in under model (in.Model when nil): each
@@ -87,7 +90,7 @@ func (a *Analysis) Relative(i int) *registration.Relative {
 // Evaluator returns the evaluator of section i under the analysis's model;
 // Evaluate must have run.
 func (a *Analysis) Evaluator(i int) Evaluator {
-	return Evaluator{Curve: a.Curves[i], Rel: a.Relative(i)}
+	return Evaluator{Curve: a.Curves[i], Rel: a.Relative(i), Proc: a.procOf(i)}
 }
 
 // Reach returns, per section, the largest SiteReach of the sites that use it
@@ -118,7 +121,7 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 		if !used {
 			continue
 		}
-		c, err := SolveSection(ctx, s, reach[i], set)
+		c, err := SolveSection(ctx, s, reach[i], withSensitivities(set, as[0].In))
 		if err != nil {
 			return nil, err
 		}
@@ -131,6 +134,7 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 // needs one): each site's allowed interval and every quantity of its Eval.
 func (a *Analysis) Evaluate(curves []*Curve) {
 	a.Curves = curves
+	a.bindProcess()
 	ev := make([]Evaluator, len(curves))
 	for i := range curves {
 		if a.used[i] {
@@ -140,7 +144,7 @@ func (a *Analysis) Evaluate(curves []*Curve) {
 	for k := range a.Sites {
 		r := &a.Sites[k]
 		a.Yield.Sites[k].Allowed = curves[r.Section].Allowed
-		r.Eval = ev[r.Section].EvalRow(a.Yield.Rows[k])
+		r.Eval = ev[r.Section].EvalSite(a.Yield.Rows[k], r.Site.Pos)
 	}
 }
 

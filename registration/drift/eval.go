@@ -24,9 +24,17 @@ type Eval struct {
 	// WorstDrift is the drift of the coupling farthest from the design value
 	// over the offsets within mean ± 3σ, with its sign.
 	WorstDrift float64
-	// PInSpec is the closed-form probability that the offset lies in the
-	// allowed interval (registration.SiteProb.Prob): the site's yield.
+	// PInSpec is the closed-form probability that the site meets its
+	// spec: that the offset lies in the allowed interval
+	// (registration.SiteProb.Prob), or with process terms the integral of
+	// variation.go. It is the site's yield.
 	PInSpec float64
+	// DriftRegistration is the part of Drift the offset causes (the curve
+	// at the mean offset against the design), DriftProcess the part the
+	// process terms' means cause there, dB; they sum to Drift. ProcessSD is
+	// the standard deviation of the coupling the process terms cause at the
+	// mean offset, dB (0 without them).
+	DriftRegistration, DriftProcess, ProcessSD float64
 }
 
 // Evaluator evaluates sites of one kind: a section's curve and the relative
@@ -34,25 +42,54 @@ type Eval struct {
 type Evaluator struct {
 	Curve *Curve
 	Rel   *registration.Relative
+	// Proc holds the process terms that move the section's parameters;
+	// nil (or none bound) evaluates registration alone.
+	Proc *Proc
 }
 
 // Quantity names one value of Eval, for fields drawn over a panel.
 type Quantity int
 
 const (
-	Drift           Quantity = iota // Eval.Drift, dB
-	WorstDrift                      // Eval.WorstDrift, dB
-	Offset                          // Eval.Offset, m
-	Sigma                           // Eval.Stats.SDAcross, m
-	Margin                          // Eval.Margin, dB
-	PInSpec                         // Eval.PInSpec
-	Misregistration                 // Eval.Stats.MeanAcross (design offset excluded), m
+	Drift             Quantity = iota // Eval.Drift, dB
+	WorstDrift                        // Eval.WorstDrift, dB
+	Offset                            // Eval.Offset, m
+	Sigma                             // Eval.Stats.SDAcross, m
+	Margin                            // Eval.Margin, dB
+	PInSpec                           // Eval.PInSpec
+	Misregistration                   // Eval.Stats.MeanAcross (design offset excluded), m
+	RegistrationDrift                 // Eval.DriftRegistration, dB
+	ProcessDrift                      // Eval.DriftProcess, dB
 )
 
-// Eval evaluates a site at p whose lines run along u.
-func (e Evaluator) Eval(p, u panel.Vec) Eval { return e.EvalRow(e.Rel.Row(p, u)) }
+// termDriftBase is where the quantities of one process term's drift begin.
+const termDriftBase Quantity = 1 << 16
 
-// EvalRow evaluates a site with sensitivity row row.
+// TermDrift is the quantity of process term i's drift (i indexes
+// process.Model.Terms): its sensitivity at the mean offset times its mean
+// at the site, dB; 0 where the term moves nothing of the section.
+func TermDrift(i int) Quantity { return termDriftBase + Quantity(i) }
+
+// Eval evaluates a site at p whose lines run along u.
+func (e Evaluator) Eval(p, u panel.Vec) Eval { return e.EvalSite(e.Rel.Row(p, u), p) }
+
+// EvalSite evaluates a site at p with sensitivity row row: registration and
+// the process terms at p.
+func (e Evaluator) EvalSite(row registration.Row, p panel.Vec) Eval {
+	if !e.hasProc() {
+		return e.EvalRow(row)
+	}
+	r := Eval{Row: row, Stats: e.Rel.Stats(row)}
+	r.Offset = e.Curve.Section.NominalOffset() + r.Stats.MeanAcross
+	r.Along = r.Stats.MeanAlong
+	var pr procRow
+	e.Proc.row(&pr, p)
+	e.evalProc(&r, &pr)
+	return r
+}
+
+// EvalRow evaluates a site with sensitivity row row, from registration
+// alone (the process terms, which depend on the position, are EvalSite's).
 func (e Evaluator) EvalRow(row registration.Row) Eval {
 	c := e.Curve
 	r := Eval{Row: row, Stats: e.Rel.Stats(row)}
@@ -67,6 +104,7 @@ func (e Evaluator) EvalRow(row registration.Row) Eval {
 	r.CouplingHi = c.Coupling(r.Offset + 3*sd)
 	r.WorstDrift = worstDrift(c, r.Offset, sd)
 	r.PInSpec = e.pInSpec(&r.Row)
+	r.DriftRegistration = r.Drift
 	return r
 }
 
@@ -74,6 +112,12 @@ func (e Evaluator) EvalRow(row registration.Row) Eval {
 // steps as Eval but computing only what q needs.
 func (e Evaluator) Value(q Quantity, p, u panel.Vec) float64 {
 	row := e.Rel.Row(p, u)
+	if e.hasProc() {
+		return e.valueProc(q, row, p)
+	}
+	if q >= termDriftBase || q == ProcessDrift {
+		return 0
+	}
 	if q == PInSpec {
 		return e.pInSpec(&row)
 	}
@@ -135,6 +179,10 @@ func (r *Eval) Value(q Quantity) float64 {
 		return r.PInSpec
 	case Misregistration:
 		return r.Stats.MeanAcross
+	case RegistrationDrift:
+		return r.DriftRegistration
+	case ProcessDrift:
+		return r.DriftProcess
 	}
 	return r.Drift
 }

@@ -83,3 +83,17 @@ func term(mean, sd float64) registration.Term {
 	}
 	return registration.Term{Mean: mean, Spread: sd, Dist: registration.Normal}
 }
+
+// microstripPair returns an edge-coupled microstrip pair on L1 over a
+// 10 mil core K1 and the ground L2: two 20 mil traces 10 mil apart (an
+// invented section, near a 15 dB coupler).
+func microstripPair() *section.Section {
+	return &section.Section{Name: "ms",
+		Stackup: section.Stackup{Layers: []section.Layer{
+			{Name: "L1", Kind: section.Copper, Thickness: 1.9 * mil},
+			{Name: "K1", Kind: section.Dielectric, Thickness: 10 * mil, Er: 3.48, Core: true},
+			{Name: "L2", Kind: section.Copper, Thickness: 1.4 * mil}}},
+		Traces:    [2]section.Trace{{Layer: "L1", Width: 20 * mil, Etch: 0.5 * mil, X: -15 * mil}, {Layer: "L1", Width: 20 * mil, Etch: 0.5 * mil, X: 15 * mil}},
+		Grounds:   []string{"L2"},
+		Frequency: 2.45e9, ZRef: 50, Spec: section.Spec{Coupling: -15, Tolerance: 3}}
+}

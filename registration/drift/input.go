@@ -4,6 +4,7 @@ import (
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/registration/process"
 )
 
 // Input is what the analysis needs of one panel design: its layout, the
@@ -17,6 +18,9 @@ type Input struct {
 	Sites     []panel.Site
 	Sections  []*section.Section
 	Model     *registration.Model
+	// Process holds the process variation terms; nil (or empty) for
+	// registration alone.
+	Process *process.Model
 }
 
 // SectionIndex returns the index of the section named name, or −1.
