@@ -45,8 +45,8 @@ import (
 // domain, δ normal (its registration mean and standard deviation). The
 // integrand steps where m(δ) crosses a spec limit, with a width √v/|m'|
 // that is anything from the whole range to nothing; Gauss–Hermite nodes
-// spread over the line cannot sit on such a step, so the range mean ± 8σ
-// (Φ(−8) = 6.2e-16, Abramowitz & Stegun 26.2.29) is split at every
+// spread over the line cannot sit on such a step, so the range mean ± 6σ
+// (procRangeSigmas) is split at every
 // crossing and each piece integrated by Gauss–Legendre (gonum
 // integrate/quad.Legendre): a sharp step then falls on a piece boundary
 // and each piece is smooth.
@@ -62,15 +62,16 @@ import (
 const procSigmas = 6
 
 // procRangeSigmas is how far the offset integral reaches each side of the
-// mean: Φ(−8) = 6.2e-16 is lost.
-const procRangeSigmas = 8
+// mean: 2·Φ(−6) = 2.0e-9 of probability is lost (Abramowitz & Stegun
+// 26.2.29), below the sixth decimal the yield is written with.
+const procRangeSigmas = 6
 
-// procScan is the number of steps mean ± 8σ is scanned in for the spec
+// procScan is the number of steps mean ± 6σ is scanned in for the spec
 // crossings of m(δ); m is a sum of monotone cubics on the curve's 0.5 mil
-// grid, so two crossings closer than 16σ/procScan (a site whose σ spans
+// grid, so two crossings closer than 12σ/procScan (a site whose σ spans
 // many curve points) could be missed: a pair of crossings that close would
 // be a re-entry of the window between two curve points.
-const procScan = 32
+const procScan = 16
 
 // procMaxCross bounds the spec crossings found per site; a monotone or
 // single-peaked curve has at most four within a window's two limits.
@@ -83,8 +84,9 @@ const procMaxCross = 8
 var procGrade = [...]float64{1, 3, 9}
 
 // procBisect is the number of bisections of each crossing: the step is
-// placed to 2⁻³⁰ of a scan step.
-const procBisect = 30
+// placed to 2⁻²⁴ of a scan step (1e-7 of the range), the graded pieces
+// about it resolving the step however wide it is.
+const procBisect = 24
 
 // procNodes is the number of Gauss–Legendre nodes per piece, and
 // procPiece the widest piece in standard deviations of the offset. A
@@ -118,51 +120,129 @@ type Proc struct {
 	Bind []process.Binding
 	// Domain is the section's offset domain (see the package notes above).
 	Domain registration.Interval
+
+	// tab holds each binding's coupling sensitivity at procTabPerSpan
+	// points per interval of the curve's offsets, row i (offset tabLo +
+	// i·tabStep) holding every binding: the evaluator reads two rows and
+	// interpolates linearly instead of a cubic per parameter.
+	tab            []float64
+	tabLo, tabStep float64
+	tabRows        int
+}
+
+// procTabPerSpan is the number of table intervals per interval of the
+// curve's solved offsets. Linear interpolation errs by h²/8·|s″|: on the
+// 0.5 mil grid of section.DefaultOffsets h is 0.0078 mil, and a
+// sensitivity curve that changes by its own size over 1 mil errs by
+// 8e-6 of itself; at the solved offsets the table is the curve.
+const procTabPerSpan = 64
+
+// tabulate fills the table of pr from curve c (every binding's exact
+// sensitivity, section.Curve.CouplingSensitivity, summed over its
+// parameters).
+func (pr *Proc) tabulate(c *Curve) {
+	lo, hi := c.Curve.Range()
+	n := procTabPerSpan * max(1, len(c.Curve.Points)-1)
+	nb := len(pr.Bind)
+	pr.tabLo, pr.tabStep, pr.tabRows = lo, (hi-lo)/float64(n), n+1
+	pr.tab = make([]float64, (n+1)*nb)
+	for i := 0; i <= n; i++ {
+		off := lo + float64(i)*pr.tabStep
+		if i == n {
+			off = hi
+		}
+		for b, bd := range pr.Bind {
+			var v float64
+			for _, k := range bd.Params {
+				v += c.Curve.CouplingSensitivity(k, off)
+			}
+			pr.tab[i*nb+b] = v
+		}
+	}
+}
+
+// rows returns the two table rows about off and the weight of the second,
+// clamped to the table (the sensitivities are clamped to the curve's
+// range, as CouplingSensitivity's).
+func (pr *Proc) rows(off float64) (r0, r1 []float64, f float64) {
+	nb := len(pr.Bind)
+	x := (off - pr.tabLo) / pr.tabStep
+	i := 0
+	switch {
+	case !(x > 0):
+	case x >= float64(pr.tabRows-1):
+		i, f = pr.tabRows-2, 1
+	default:
+		i = int(x)
+		f = x - float64(i)
+	}
+	if pr.tabRows < 2 {
+		return pr.tab[:nb], pr.tab[:nb], 0
+	}
+	return pr.tab[i*nb : i*nb+nb], pr.tab[(i+1)*nb : (i+1)*nb+nb], f
 }
 
 // maxStackTerms is the number of bound terms a site is evaluated with on
 // the stack; more take one allocation per evaluation.
 const maxStackTerms = 24
 
-// procRow is a site's process terms: per binding its mean and variance.
+// procRow is a site's process terms: per binding its mean and variance,
+// held in the row itself up to maxStackTerms bindings (so that a row on
+// the stack does not escape), on the heap beyond.
 type procRow struct {
-	mu, va []float64
-	buf    [2 * maxStackTerms]float64
+	n        int
+	mu, va   [maxStackTerms]float64
+	muH, vaH []float64
+}
+
+// means and vars return the row's means and variances per binding.
+func (r *procRow) means() []float64 {
+	if r.muH != nil {
+		return r.muH
+	}
+	return r.mu[:r.n]
+}
+
+func (r *procRow) vars() []float64 {
+	if r.vaH != nil {
+		return r.vaH
+	}
+	return r.va[:r.n]
 }
 
 // row fills r with the process terms of a site at p.
 func (pr *Proc) row(r *procRow, p panel.Vec) {
 	n := len(pr.Bind)
-	if n <= maxStackTerms {
-		r.mu, r.va = r.buf[:n], r.buf[maxStackTerms:maxStackTerms+n]
-	} else {
-		r.mu, r.va = make([]float64, n), make([]float64, n)
+	r.n, r.muH, r.vaH = n, nil, nil
+	if n > maxStackTerms {
+		r.muH, r.vaH = make([]float64, n), make([]float64, n)
 	}
+	mu, va := r.means(), r.vars()
 	for b, bd := range pr.Bind {
 		t := &pr.Model.Terms[bd.Term]
-		r.mu[b] = t.Mean(p, pr.Model.Size)
-		r.va[b] = t.Variance()
+		mu[b] = t.Mean(p, pr.Model.Size)
+		va[b] = t.Variance()
 	}
 }
 
 // termSens returns binding b's coupling sensitivity at offset off: the sum
-// over its parameters (a mask coat moves two).
+// over its parameters (a mask coat moves two), from the table.
 func (e *Evaluator) termSens(b int, off float64) float64 {
-	var s float64
-	for _, k := range e.Proc.Bind[b].Params {
-		s += e.Curve.Curve.CouplingSensitivity(k, off)
-	}
-	return s
+	r0, r1, f := e.Proc.rows(off)
+	return r0[b] + f*(r1[b]-r0[b])
 }
 
 // at returns the mean m(δ) and variance v(δ) of the coupling at offset off
 // for process row r.
 func (e *Evaluator) at(off float64, r *procRow) (m, v float64) {
 	m = e.Curve.Coupling(off)
-	for b := range r.mu {
-		s := e.termSens(b, off)
-		m += s * r.mu[b]
-		v += s * s * r.va[b]
+	r0, r1, f := e.Proc.rows(off)
+	mus, va := r.means(), r.vars()
+	r0, r1, va = r0[:len(mus)], r1[:len(mus)], va[:len(mus)]
+	for b, mu := range mus {
+		s := r0[b] + f*(r1[b]-r0[b])
+		m += s * mu
+		v += s * s * va[b]
 	}
 	return m, v
 }
@@ -170,8 +250,11 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v float64) {
 // mean returns m(δ) only.
 func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	m := e.Curve.Coupling(off)
-	for b := range r.mu {
-		m += e.termSens(b, off) * r.mu[b]
+	r0, r1, f := e.Proc.rows(off)
+	mus := r.means()
+	r0, r1 = r0[:len(mus)], r1[:len(mus)]
+	for b, mu := range mus {
+		m += (r0[b] + f*(r1[b]-r0[b])) * mu
 	}
 	return m
 }
@@ -186,8 +269,34 @@ func window(m, v, lo, hi float64) float64 {
 		return 0
 	}
 	s := math.Sqrt(v)
-	return math.Max(0, registration.NormalCDF((hi-m)/s)-registration.NormalCDF((lo-m)/s))
+	u, l := (hi-m)/s, (lo-m)/s
+	// Beyond windowFar standard deviations Φ is 0 or 1 in float64.
+	pu, pl := 1.0, 0.0
+	if u < windowFar {
+		pu = registration.NormalCDF(u)
+	}
+	if l > -windowFar {
+		pl = registration.NormalCDF(l)
+	}
+	return math.Max(0, pu-pl)
 }
+
+// windowFar is where Φ(x) rounds to 1 in float64: 1 − Φ(8.3) = 5.2e-17 <
+// 2⁻⁵³ (Abramowitz & Stegun 26.2.29), so a limit that far is skipped.
+const windowFar = 8.3
+
+// windowAt returns the window probability at offset off.
+func (e *Evaluator) windowAt(off float64, pr *procRow, lo, hi float64) float64 {
+	m, v := e.at(off, pr)
+	return window(m, v, lo, hi)
+}
+
+// procSure is how close to 1 (or 0) the window probability must be at both
+// ends and the middle of a piece for the piece to count as wholly in (or
+// out of) spec. No crossing of a spec limit lies inside a piece, so the
+// window is monotone in m there; the error is below procSure times the
+// piece's probability.
+const procSure = 1e-12
 
 // hasProc reports whether the evaluator has process terms bound.
 func (e *Evaluator) hasProc() bool { return e.Proc != nil && len(e.Proc.Bind) > 0 }
@@ -309,21 +418,32 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 	norm := 1 / (sd * math.Sqrt(2*math.Pi))
 	var p float64
 	left := a
+	wl := e.windowAt(left, pr, lo, hi)
 	for i := 0; i <= nc; i++ {
 		right := b
 		if i < nc {
 			right = cuts[i]
 		}
-		if right > left {
-			h, c := (right-left)/2, (right+left)/2
+		if !(right > left) {
+			continue
+		}
+		wr := e.windowAt(right, pr, lo, hi)
+		h, c := (right-left)/2, (right+left)/2
+		wm := e.windowAt(c, pr, lo, hi)
+		switch {
+		case wl >= 1-procSure && wr >= 1-procSure && wm >= 1-procSure:
+			// In spec throughout: the piece's normal probability.
+			p += registration.NormalCDF((right-mu)/sd) - registration.NormalCDF((left-mu)/sd)
+		case wl <= procSure && wr <= procSure && wm <= procSure:
+			// Out of spec throughout.
+		default:
 			for k := range xs {
 				x := c + h*xs[k]
 				z := (x - mu) / sd
-				m, v := e.at(x, pr)
-				p += h * ws[k] * norm * math.Exp(-0.5*z*z) * window(m, v, lo, hi)
+				p += h * ws[k] * norm * math.Exp(-0.5*z*z) * e.windowAt(x, pr, lo, hi)
 			}
 		}
-		left = right
+		left, wl = right, wr
 	}
 	return math.Min(1, math.Max(0, p))
 }
@@ -345,6 +465,7 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 		return nil
 	}
 	pr := &Proc{Model: m, Bind: bind, Domain: c.Allowed}
+	pr.tabulate(c)
 	e := Evaluator{Curve: c, Proc: pr}
 	nom := c.Section.NominalOffset()
 	var reach float64
@@ -354,8 +475,8 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 		var shift, v float64
 		for b := range bind {
 			s := e.termSens(b, nom)
-			shift += s * row.mu[b]
-			v += s * s * row.va[b]
+			shift += s * row.means()[b]
+			v += s * s * row.vars()[b]
 		}
 		reach = math.Max(reach, math.Abs(shift)+procSigmas*math.Sqrt(v))
 	}
@@ -403,7 +524,7 @@ func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) flo
 	if q >= termDriftBase {
 		for b, bd := range e.Proc.Bind {
 			if bd.Term == int(q-termDriftBase) {
-				return e.termSens(b, off) * pr.mu[b]
+				return e.termSens(b, off) * pr.means()[b]
 			}
 		}
 		return 0

@@ -1,0 +1,82 @@
+package drift
+
+import (
+	"testing"
+
+	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/registration/process"
+)
+
+// bigProcessInput is bigInput with its dielectrics named and 12 process
+// terms, one on every parameter of the stripline pair: thicknesses as
+// domes, copper as edge profiles, widths as tilts, the rest flat; each
+// with a panel and a site part (invented values of the order of a
+// fabricator's).
+func bigProcessInput(b *testing.B) *Input {
+	in := bigInput(b)
+	s := in.Sections[0]
+	s.Stackup.Layers[1].Name, s.Stackup.Layers[3].Name, s.Stackup.Layers[5].Name = "P1", "C2", "P2"
+	n := func(mean, sd float64) registration.Term { return term(mean, sd) }
+	dome := func(a float64) process.Shape { return process.Shape{Kind: process.Dome, Amplitude: a} }
+	edge := process.Shape{Kind: process.Edge, Amplitude: 0.2 * mil, Decay: 2 * inch}
+	tilt := func(y bool) process.Shape { return process.Shape{Kind: process.Tilt, Amplitude: 0.3 * mil, AlongY: y} }
+	var ts []process.Term
+	for _, d := range []string{"P1", "C2", "P2"} {
+		ts = append(ts, process.Term{Name: d + " thickness", Layer: d, Quantity: process.Thickness, Panel: n(0, 0.2*mil), Shape: dome(0.3 * mil), SiteSigma: 0.05 * mil},
+			process.Term{Name: d + " er", Layer: d, Quantity: process.Er, Panel: n(0, 0.03)})
+	}
+	for i, c := range []string{"L3", "L4"} {
+		ts = append(ts, process.Term{Name: c + " copper", Layer: c, Quantity: process.Copper, Panel: n(0, 0.1*mil), Shape: edge, SiteSigma: 0.03 * mil},
+			process.Term{Name: c + " width", Layer: c, Quantity: process.Width, Panel: registration.Term{Spread: 0.3 * mil, Dist: registration.Uniform}, Shape: tilt(i == 1), SiteSigma: 0.1 * mil},
+			process.Term{Name: c + " etch", Layer: c, Quantity: process.Etch, Panel: n(0, 0.1*mil)})
+	}
+	in.Process = &process.Model{Size: in.Layout.Panel.Size, Terms: ts}
+	return in
+}
+
+// BenchmarkAnalyse10kProcess is BenchmarkAnalyse10k with 12 process
+// terms: every quantity of every site, P(in spec) by the offset integral.
+func BenchmarkAnalyse10kProcess(b *testing.B) {
+	in := bigProcessInput(b)
+	set := &Settings{Accuracy: 0.01, CacheDir: b.TempDir()}
+	curves, err := SolveCurves(b.Context(), set, New(in, nil))
+	if err != nil {
+		b.Fatal(err)
+	}
+	a := New(in, nil)
+	a.Evaluate(curves)
+	if len(a.proc[0].Bind) != 12 {
+		b.Fatalf("%d terms bound, want 12", len(a.proc[0].Bind))
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		a := New(in, nil)
+		a.Evaluate(curves)
+	}
+}
+
+// BenchmarkValueProcess times one per-pixel evaluation with 12 process
+// terms.
+func BenchmarkValueProcess(b *testing.B) {
+	in := bigProcessInput(b)
+	a, err := Analyse(b.Context(), in, &Settings{Accuracy: 0.01, CacheDir: b.TempDir()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	ev := a.Evaluator(0)
+	p, u := panel.Vec{X: 3 * inch, Y: -4 * inch}, panel.Vec{Y: 1}
+	for _, q := range []struct {
+		name string
+		q    Quantity
+	}{{"drift", Drift}, {"worst", WorstDrift}, {"pinspec", PInSpec}} {
+		b.Run(q.name, func(b *testing.B) {
+			b.ReportAllocs()
+			var sink float64
+			for b.Loop() {
+				sink += ev.Value(q.q, p, u)
+			}
+			_ = sink
+		})
+	}
+}
