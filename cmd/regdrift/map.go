@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"slices"
+	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
@@ -25,7 +26,7 @@ type mapFlags struct {
 // flags declares the command's flags on fs.
 func (f *mapFlags) flags(fs *pflag.FlagSet) {
 	f.outputFlags.add(fs)
-	fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset), worst (worst drift within ±3σ), offset, sigma or margin")
+	fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset, all sources), worst (worst drift within ±3σ), offset, sigma, margin, registration or variation (the drift of one group), or term:NAME (of one [[variation]] term)")
 	fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
 	addStrict(fs, &f.strict, "any site is out of spec")
 	f.solver.add(fs)
@@ -39,8 +40,9 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	if !slices.Contains(figure.Shows, f.show) {
-		return usageErr("--show: want drift, worst, offset, sigma or margin, not %q", f.show)
+	termName, isTerm := strings.CutPrefix(f.show, "term:")
+	if !isTerm && !slices.Contains(figure.Shows, f.show) {
+		return usageErr("--show: want drift, worst, offset, sigma, margin, registration, variation or term:NAME, not %q", f.show)
 	}
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
@@ -53,11 +55,18 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	o := figure.MapOptions{Show: f.show, Width: f.width, Units: lu.units()}
+	if isTerm {
+		if o.Term = termIndex(j, termName); o.Term < 0 {
+			return usageErr("--show: the job has no [[variation]] named %q", termName)
+		}
+		o.Show, o.TermName = "term", termName
+	}
 	a, err := drift.Analyse(ctx, input(j), set)
 	if err != nil {
 		return solveErr(j, err)
 	}
-	sum, paths, err := writeMap(f.out, a, figure.MapOptions{Show: f.show, Width: f.width, Units: lu.units()}, lu)
+	sum, paths, err := writeMap(f.out, a, o, lu)
 	if err != nil {
 		return err
 	}
@@ -109,8 +118,22 @@ func printMap(w io.Writer, a *drift.Analysis, s *drift.MapSummary, lu lengthUnit
 		ws := s.Worst[0]
 		fmt.Fprintf(w, "worst site: %s at (%.2f, %.2f) %s: offset %+.3f %s ± %.3f (1σ), coupling %.3f dB, drift %+.4f dB, margin %.3f dB\n",
 			ws.Name, ws.XM/lu.pfac, ws.YM/lu.pfac, lu.panel, ws.OffsetM/lu.factor, lu.name, ws.SigmaM/lu.factor, ws.CouplingDB, ws.DriftDB, ws.MarginDB)
+		printSources(w, ws.DriftSources) // variation.go
 	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
 	}
+}
+
+// termIndex returns the index of the variation term named name in j, or −1.
+func termIndex(j *Job, name string) int {
+	if j.Process == nil {
+		return -1
+	}
+	for i, t := range j.Process.Terms {
+		if t.Name == name {
+			return i
+		}
+	}
+	return -1
 }

@@ -47,6 +47,9 @@ type WorstSite struct {
 	AlongM      float64 `json:"along_m"`
 	Coupling3Lo float64 `json:"coupling_minus3sigma_db"`
 	Coupling3Hi float64 `json:"coupling_plus3sigma_db"`
+	// DriftSources splits DriftDB into registration and the variation
+	// terms; set only when the job has process terms.
+	DriftSources *DriftSources `json:"drift_sources,omitempty"`
 }
 
 // SectionSummary is one section's line of the map summary.
@@ -111,6 +114,7 @@ func (a *Analysis) Summary(n int) *MapSummary {
 			XM: r.Site.Pos.X, YM: r.Site.Pos.Y, AngleRad: r.Site.Angle, OffsetM: r.Offset, SigmaM: r.Stats.SDAcross,
 			CouplingDB: r.Coupling, DriftDB: r.Drift, MarginDB: r.Margin, InSpec: r.InSpec, AlongM: r.Along,
 			Coupling3Lo: r.CouplingLo, Coupling3Hi: r.CouplingHi})
+		a.splitWorst(&s.Worst[len(s.Worst)-1], r) // variation.go
 	}
 	return s
 }
@@ -126,6 +130,7 @@ func (a *Analysis) WriteSitesCSV(w io.Writer, u unit.Output) error {
 		"offset_across " + L, "sigma_across " + L, "offset_along " + L, "sigma_along " + L,
 		"coupling [dB]", "drift [dB]", "margin [dB]", "in_spec",
 		"coupling_minus3sigma [dB]", "coupling_plus3sigma [dB]"}
+	header = append(header, a.processHeader()...) // variation.go; none without process terms
 	if err := cw.Write(header); err != nil {
 		return err
 	}
@@ -140,6 +145,7 @@ func (a *Analysis) WriteSitesCSV(w io.Writer, u unit.Output) error {
 			fixed(r.Offset/u.LengthSI(), 4), fixed(r.Stats.SDAcross/u.LengthSI(), 4), fixed(r.Along/u.LengthSI(), 4), fixed(r.Stats.SDAlong/u.LengthSI(), 4),
 			fixed(r.Coupling, 4), fixed(r.Drift, 4), fixed(r.Margin, 4), strconv.FormatBool(r.InSpec),
 			fixed(r.CouplingLo, 4), fixed(r.CouplingHi, 4))
+		rec = a.processColumns(rec, i)
 		if err := cw.Write(rec); err != nil {
 			return err
 		}

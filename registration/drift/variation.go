@@ -574,3 +574,63 @@ func (a *Analysis) procOf(i int) *Proc {
 	}
 	return nil
 }
+
+// DriftSources is a site's drift split by source, in the map summary.
+type DriftSources struct {
+	RegistrationDB float64 `json:"registration_db"`
+	VariationDB    float64 `json:"variation_db"`
+	// VariationSDDB is the standard deviation of the coupling the process
+	// terms cause at the mean offset.
+	VariationSDDB float64 `json:"variation_sd_db"`
+	// Terms is each process term's part of VariationDB, by name, in the
+	// order of the job.
+	Terms []TermDriftDB `json:"terms"`
+}
+
+// TermDriftDB is one process term's drift at a site.
+type TermDriftDB struct {
+	Name    string  `json:"name"`
+	DriftDB float64 `json:"drift_db"`
+}
+
+// splitWorst fills w.DriftSources from the evaluated site r when the input
+// has process terms.
+func (a *Analysis) splitWorst(w *WorstSite, r *Site) {
+	if a.In.Process.Empty() {
+		return
+	}
+	ds := &DriftSources{RegistrationDB: r.DriftRegistration, VariationDB: r.DriftProcess, VariationSDDB: r.ProcessSD}
+	ev := a.Evaluator(r.Section)
+	for i, t := range a.In.Process.Terms {
+		ds.Terms = append(ds.Terms, TermDriftDB{Name: t.Name, DriftDB: ev.Value(TermDrift(i), r.Site.Pos, r.Site.U)})
+	}
+	w.DriftSources = ds
+}
+
+// processHeader returns the columns sites.csv adds with process terms: the
+// drift from registration, from the variation terms and the latter's
+// standard deviation, and one drift column per term.
+func (a *Analysis) processHeader() []string {
+	if a.In.Process.Empty() {
+		return nil
+	}
+	h := []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]"}
+	for _, t := range a.In.Process.Terms {
+		h = append(h, "drift "+t.Name+" [dB]")
+	}
+	return h
+}
+
+// processColumns appends site i's process columns (processHeader) to rec.
+func (a *Analysis) processColumns(rec []string, i int) []string {
+	if a.In.Process.Empty() {
+		return rec
+	}
+	r := &a.Sites[i]
+	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4))
+	ev := a.Evaluator(r.Section)
+	for k := range a.In.Process.Terms {
+		rec = append(rec, fixed(ev.Value(TermDrift(k), r.Site.Pos, r.Site.U), 4))
+	}
+	return rec
+}

@@ -14,7 +14,7 @@ import (
 
 // Shows are the quantities a drift map can draw, by the names the map
 // command takes.
-var Shows = []string{"drift", "worst", "offset", "sigma", "margin"}
+var Shows = []string{"drift", "worst", "offset", "sigma", "margin", "registration", "variation"}
 
 // show is one quantity a drift map draws.
 type show struct {
@@ -37,6 +37,10 @@ func showOf(name string, u unit.Output) (show, bool) {
 		return show{drift.Sigma, true, false, "standard deviation of the broadside offset" + L}, true
 	case "margin":
 		return show{drift.Margin, false, true, "margin from the coupling at the mean offset to the nearer spec limit [dB]"}, true
+	case "registration":
+		return show{drift.RegistrationDrift, false, true, "coupling drift from registration alone, at the mean offset [dB]"}, true
+	case "variation":
+		return show{drift.ProcessDrift, false, true, "coupling drift from the process variation terms alone, at the mean offset [dB]"}, true
 	}
 	return show{}, false
 }
@@ -56,6 +60,11 @@ type MapOptions struct {
 	// Scale, when set, fixes the colour range, so that maps of several
 	// panels compare on one scale.
 	Scale *[2]float64
+	// Term, with Show "term", is the index into the process terms
+	// (process.Model.Terms) of the one term drawn, and TermName its name
+	// for the colour bar.
+	Term     int
+	TermName string
 }
 
 func (o MapOptions) norm() (MapOptions, show, error) {
@@ -63,6 +72,9 @@ func (o MapOptions) norm() (MapOptions, show, error) {
 		o.Width = 2400
 	}
 	s, ok := showOf(o.Show, o.Units)
+	if o.Show == "term" {
+		s, ok = show{drift.TermDrift(o.Term), false, true, fmt.Sprintf("coupling drift from the process term %q alone, at the mean offset [dB]", o.TermName)}, true
+	}
 	if !ok {
 		return o, s, fmt.Errorf("figure: no map of %q (want one of %v)", o.Show, Shows)
 	}

@@ -1,0 +1,219 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+// variationTerms are twelve invented [[variation]] terms, one on every
+// parameter of the same-core hybrid's stripline section (its prepregs
+// named P1 and P2 by processJob).
+const variationTerms = `
+[[variation]]
+name = "press P1"
+on = "P1"
+quantity = "thickness"
+panel = { sigma = "0.4 mil" }
+shape = { kind = "dome", centre_minus_edge = "0.6 mil" }
+site_sigma = "0.1 mil"
+
+[[variation]]
+name = "press C2"
+on = "C2"
+quantity = "thickness"
+panel = { sigma = "0.1 mil" }
+shape = { kind = "dome", centre_minus_edge = "0.15 mil" }
+
+[[variation]]
+name = "press P2"
+on = "P2"
+quantity = "thickness"
+panel = { sigma = "0.4 mil" }
+shape = { kind = "dome", centre_minus_edge = "0.6 mil" }
+
+[[variation]]
+name = "er P1"
+on = "P1"
+quantity = "er"
+panel = { sigma = 0.03 }
+
+[[variation]]
+name = "er C2"
+on = "C2"
+quantity = "er"
+panel = { sigma = 0.03 }
+
+[[variation]]
+name = "er P2"
+on = "P2"
+quantity = "er"
+panel = { sigma = 0.03 }
+
+[[variation]]
+name = "copper L3"
+on = "L3"
+quantity = "copper"
+panel = { sigma = "0.05 mil" }
+shape = { kind = "edge", at_edge = "0.1 mil", decay = "2 in" }
+
+[[variation]]
+name = "copper L4"
+on = "L4"
+quantity = "copper"
+panel = { sigma = "0.05 mil" }
+shape = { kind = "edge", at_edge = "0.1 mil", decay = "2 in" }
+
+[[variation]]
+name = "etched width L3"
+on = "L3"
+quantity = "width"
+panel = { half_width = "0.4 mil", dist = "uniform" }
+shape = { kind = "tilt", along = "y", end_to_end = "0.5 mil" }
+site_sigma = "0.1 mil"
+
+[[variation]]
+name = "etched width L4"
+on = "L4"
+quantity = "width"
+panel = { half_width = "0.4 mil", dist = "uniform" }
+shape = { kind = "tilt", along = "y", end_to_end = "0.5 mil" }
+site_sigma = "0.1 mil"
+
+[[variation]]
+name = "etch L3"
+on = "L3"
+quantity = "etch"
+panel = { sigma = "0.08 mil" }
+
+[[variation]]
+name = "etch L4"
+on = "L4"
+quantity = "etch"
+panel = { sigma = "0.08 mil" }
+`
+
+// processJob returns the job at path with its prepregs named and the
+// twelve variation terms appended, written beside it.
+func processJob(t testing.TB, path string) string {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := string(b)
+	for _, n := range []string{"P1", "P2"} {
+		old := `{ prepreg = "26 mil", er = 3.55 }`
+		if !strings.Contains(s, old) {
+			t.Fatalf("%s has no %s", path, old)
+		}
+		s = strings.Replace(s, old, `{ prepreg = "26 mil", er = 3.55, name = "`+n+`" }`, 1)
+	}
+	p := filepath.Join(filepath.Dir(path), "process-"+filepath.Base(path))
+	if err := os.WriteFile(p, []byte(s+variationTerms), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// TestMapVariation runs map on the same-core demo with twelve variation
+// terms: sites.csv gains the drift of each source and term (and they sum
+// to the drift), summary.json splits the worst site's drift, and --show
+// draws one group or one named term; an unknown term is a usage error.
+func TestMapVariation(t *testing.T) {
+	dir := t.TempDir()
+	src, _ := os.ReadFile("../../samples/same-core.toml")
+	base := filepath.Join(dir, "same-core.toml")
+	os.WriteFile(base, src, 0o644)
+	job := processJob(t, base)
+	out := t.TempDir()
+	code, stdout, errs := run(t, "map", job, "--accuracy", "1%", "-o", out, "--width", "600")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if !strings.Contains(stdout, "its drift: registration") {
+		t.Errorf("the table does not split the worst drift:\n%s", stdout)
+	}
+	rows := readCSV(t, filepath.Join(out, "sites.csv"))
+	col := map[string]int{}
+	for i, h := range rows[0] {
+		col[h] = i
+	}
+	for _, h := range []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]", "drift press C2 [dB]", "drift etch L4 [dB]"} {
+		if _, ok := col[h]; !ok {
+			t.Fatalf("sites.csv has no column %q: %v", h, rows[0])
+		}
+	}
+	num := func(r []string, h string) float64 {
+		v, err := strconv.ParseFloat(r[col[h]], 64)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	// Written to 4 decimals: the parts sum to the whole within the
+	// rounding of the numbers added, 5e-5 dB each (3 and 13 of them).
+	for _, r := range rows[1:] {
+		reg, vari := num(r, "drift_registration [dB]"), num(r, "drift_variation [dB]")
+		if d := reg + vari - num(r, "drift [dB]"); d > 3*5e-5 || d < -3*5e-5 {
+			t.Fatalf("site %s: registration %g + variation %g ≠ drift %g", r[0], reg, vari, num(r, "drift [dB]"))
+		}
+		var terms float64
+		for h, i := range col {
+			if strings.HasPrefix(h, "drift ") && h != "drift [dB]" {
+				v, _ := strconv.ParseFloat(r[i], 64)
+				terms += v
+			}
+		}
+		if d := terms - vari; d > 13*5e-5 || d < -13*5e-5 {
+			t.Fatalf("site %s: the terms sum to %g, the variation drift is %g", r[0], terms, vari)
+		}
+	}
+	b, _ := os.ReadFile(filepath.Join(out, "summary.json"))
+	var sum struct {
+		Worst []struct {
+			DriftDB float64 `json:"drift_db"`
+			Sources *struct {
+				Registration float64 `json:"registration_db"`
+				Variation    float64 `json:"variation_db"`
+				Terms        []struct{ Name string }
+			} `json:"drift_sources"`
+		}
+	}
+	if err := json.Unmarshal(b, &sum); err != nil || len(sum.Worst) == 0 || sum.Worst[0].Sources == nil || len(sum.Worst[0].Sources.Terms) != 12 {
+		t.Fatalf("summary.json worst sites: %s (%v)", b, err)
+	}
+	for _, show := range []string{"registration", "variation", "term:press P1"} {
+		if code, _, errs := run(t, "map", job, "--accuracy", "1%", "-o", t.TempDir(), "--width", "600", "--show", show); code != 0 {
+			t.Errorf("--show %s: exit %d: %s", show, code, errs)
+		}
+	}
+	if code, _, errs := run(t, "map", job, "--accuracy", "1%", "-o", t.TempDir(), "--show", "term:no such term"); code != 2 || !strings.Contains(errs, "no such term") {
+		t.Errorf("--show term:no such term: exit %d: %s", code, errs)
+	}
+}
+
+// BenchmarkMap10kVariation is BenchmarkMap10k with the twelve variation
+// terms: curves and sensitivities cached.
+func BenchmarkMap10kVariation(b *testing.B) {
+	job := processJob(b, bigJob(b))
+	cache := b.TempDir()
+	out := b.TempDir()
+	args := []string{"map", job, "-o", out, "--width", "3000", "--cache-dir", cache}
+	var o, e bytes.Buffer
+	if code := realMain(args, nil, &o, &e); code != 0 { // solves and fills the cache
+		b.Fatalf("exit %d: %s", code, e.String())
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		o.Reset()
+		if code := realMain(args, nil, &o, &e); code != 0 {
+			b.Fatalf("exit %d: %s", code, e.String())
+		}
+	}
+	b.ReportMetric(b.Elapsed().Seconds()*1e3/float64(b.N), "ms/map")
+}
