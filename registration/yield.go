@@ -244,6 +244,32 @@ type Yield struct {
 	Pairs []*Relative
 	Pair  []int
 	Parts int // number of part instances
+	// Check, if not nil, decides in Monte Carlo whether the sites it
+	// claims meet their spec, for a coupling that depends on more than the
+	// across offset (process variation terms); the others are decided by
+	// their allowed interval alone.
+	Check SiteChecker
+}
+
+// SiteChecker decides whether a site meets its spec in a Monte Carlo trial,
+// given its drawn across offset, for the sites it claims.
+type SiteChecker interface {
+	// Claims reports whether the checker decides site i.
+	Claims(i int) bool
+	// NewWorker returns the state of one Monte Carlo goroutine.
+	NewWorker() SiteCheckWorker
+}
+
+// SiteCheckWorker is one goroutine's side of a SiteChecker. Its calls draw
+// from the trial's stream, so that a run is the same whatever the number
+// of workers.
+type SiteCheckWorker interface {
+	// Panel draws what one panel shares (panel-to-panel terms), once per
+	// trial after the registration terms.
+	Panel(rng *rand.Rand)
+	// InSpec reports whether claimed site i meets its spec at the across
+	// offset offset (design offset included), drawing its per-site parts.
+	InSpec(i int, offset float64, rng *rand.Rand) bool
 }
 
 // NewYield prepares a yield study of sites under model m, with parts part
@@ -424,6 +450,10 @@ type mcSite struct {
 	sd     float64
 	pair   int32
 	part   int32
+	// base is the constant of the across offset (residual and design
+	// offset) when Check claims the site; checked marks such a site.
+	base    float64
+	checked bool
 }
 
 // MonteCarlo draws set.Trials panels: every contributor term once per panel
@@ -443,6 +473,9 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 			sd: math.Sqrt(p.SiteVar), pair: int32(y.Pair[i]), part: int32(s.Part)}
 		if s.Allowed.Empty() {
 			ms.lo, ms.hi = math.Inf(1), math.Inf(-1)
+		}
+		if y.Check != nil && y.Check.Claims(i) {
+			ms.checked, ms.base = true, base
 		}
 		sites[i] = ms
 	}
@@ -512,13 +545,21 @@ type mcWorker struct {
 	goodParts []int64
 	trials    int64
 	serial    int64
+	check     SiteCheckWorker // nil without Yield.Check
 }
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	pcg := rand.NewPCG(0, 0)
 	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
 		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
-		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1)}
+		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1), check: newCheckWorker(y)}
+}
+
+func newCheckWorker(y *Yield) SiteCheckWorker {
+	if y.Check == nil {
+		return nil
+	}
+	return y.Check.NewWorker()
 }
 
 // block runs n trials from stream (seed, b): the worker's generator is
@@ -535,6 +576,9 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 		for p, r := range w.y.Pairs {
 			w.v[p] = r.Collapse(w.draw)
 		}
+		if w.check != nil {
+			w.check.Panel(rng)
+		}
 		bad := 0
 		for i := range sites {
 			s := &sites[i]
@@ -543,7 +587,11 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 			if s.sd > 0 {
 				d += s.sd * rng.NormFloat64()
 			}
-			if d >= s.lo && d <= s.hi {
+			in := d >= s.lo && d <= s.hi
+			if s.checked {
+				in = w.check.InSpec(i, d+s.base, rng)
+			}
+			if in {
 				good[i]++
 			} else if s.part >= 0 && w.stamp[s.part] != t {
 				w.stamp[s.part] = t

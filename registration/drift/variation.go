@@ -551,6 +551,7 @@ func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) flo
 // curve (Analysis.proc).
 func (a *Analysis) bindProcess() {
 	a.proc = nil
+	a.Yield.Check = nil
 	if a.In.Process.Empty() {
 		return
 	}
@@ -564,6 +565,9 @@ func (a *Analysis) bindProcess() {
 		if a.used[i] {
 			a.proc[i] = bindProc(a.In.Process, c, pos[i])
 		}
+	}
+	if pc := newProcCheck(a); pc != nil {
+		a.Yield.Check = pc
 	}
 }
 

@@ -80,3 +80,21 @@ func BenchmarkValueProcess(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkMonteCarloProcess times the Monte Carlo yield of the 10,000
+// sites with 12 process terms on one worker: 256 panels (one block) per
+// iteration, reported as site evaluations per second.
+func BenchmarkMonteCarloProcess(b *testing.B) {
+	in := bigProcessInput(b)
+	a, err := Analyse(b.Context(), in, &Settings{Accuracy: 0.01, CacheDir: b.TempDir()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := a.Yield.MonteCarlo(b.Context(), registration.MCSettings{Trials: registration.MCBlock, Seed: 1, Workers: 1}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.N)*registration.MCBlock*float64(len(in.Sites))/b.Elapsed().Seconds(), "site-evals/s")
+}

@@ -331,3 +331,44 @@ func TestSensitivityTable(t *testing.T) {
 		}
 	}
 }
+
+// TestYieldProcessMonteCarlo: with registration and process terms (all
+// normal), the closed-form site yield of every site agrees with the Monte
+// Carlo of registration.Yield, which draws each term as distributed (the
+// panel parts once per panel), within 4 standard errors: a binomial
+// estimate's error is √(p(1−p)/N), and 4 SE is exceeded with probability
+// 6e-5 per site.
+func TestYieldProcessMonteCarlo(t *testing.T) {
+	s := namedPair("mcy", section.Spec{Coupling: -3, Tolerance: 0.08})
+	arr := panel.Array{Part: "p", Count: [2]int{3, 3}, Pitch: panel.Vec{X: 4 * inch, Y: 6 * inch}}
+	l, inst, sites := layout(t, "mcy", 90, arr)
+	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+		Terms:     [registration.NumTerms]registration.Term{registration.OffsetX: term(0.3*mil, 0.6*mil), registration.ScaleY: term(40e-6, 20e-6)},
+		SiteSigma: 0.2 * mil}}}
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil,
+			Shape: process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}},
+		{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.4*mil), Shape: process.Shape{Kind: process.Tilt, Amplitude: 0.6 * mil}}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: m, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Yield.Check == nil {
+		t.Fatal("no process check in the yield")
+	}
+	res, err := a.Yield.MonteCarlo(t.Context(), registration.MCSettings{Trials: 40000, Seed: 7})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range a.Sites {
+		pc, pmc, se := a.Sites[i].PInSpec, res.SiteYield(i), res.SiteSE(i)
+		if math.Abs(pc-pmc) > 4*se {
+			t.Errorf("site %d at %v: closed form %.5f, Monte Carlo %.5f ± %.5f", i, a.Sites[i].Site.Pos, pc, pmc, se)
+		}
+	}
+	t.Logf("site 0: closed %.5f, MC %.5f ± %.5f; mean closed %.5f", a.Sites[0].PInSpec, res.SiteYield(0), res.SiteSE(0), a.MeanPInSpec())
+	if p := a.MeanPInSpec(); p < 0.2 || p > 0.98 {
+		t.Errorf("mean yield %.3f: the case should sit away from 0 and 1", p)
+	}
+}
