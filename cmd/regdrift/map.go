@@ -66,6 +66,9 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return solveErr(j, err)
 	}
+	if err := a.CheckLinearity(ctx, set, 10); err != nil { // only with [[variation]] terms
+		return solveErr(j, err)
+	}
 	sum, paths, err := writeMap(f.out, a, o, lu)
 	if err != nil {
 		return err
@@ -119,6 +122,7 @@ func printMap(w io.Writer, a *drift.Analysis, s *drift.MapSummary, lu lengthUnit
 		fmt.Fprintf(w, "worst site: %s at (%.2f, %.2f) %s: offset %+.3f %s ± %.3f (1σ), coupling %.3f dB, drift %+.4f dB, margin %.3f dB\n",
 			ws.Name, ws.XM/lu.pfac, ws.YM/lu.pfac, lu.panel, ws.OffsetM/lu.factor, lu.name, ws.SigmaM/lu.factor, ws.CouplingDB, ws.DriftDB, ws.MarginDB)
 		printSources(w, ws.DriftSources) // variation.go
+		printLinearity(w, s.Linearity)
 	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)

@@ -27,3 +27,15 @@ func printSources(w io.Writer, ds *drift.DriftSources) {
 	}
 	fmt.Fprintln(w)
 }
+
+// printLinearity writes the linearity check of the process model and its
+// warning, if any.
+func printLinearity(w io.Writer, l *drift.Linearity) {
+	if l == nil {
+		return
+	}
+	fmt.Fprintln(w, l.String())
+	if l.Warning != "" {
+		fmt.Fprintf(w, "warning: %s\n", l.Warning)
+	}
+}

@@ -35,6 +35,8 @@ type Analysis struct {
 	// proc holds per section the process side of its evaluator (nil
 	// without process terms); set by Evaluate (variation.go).
 	proc []*Proc
+	// linearity is the report of CheckLinearity (variation_lin.go).
+	linearity *Linearity
 }
 
 // New prepares the analysis of in under model (in.Model when nil): each

@@ -78,6 +78,9 @@ type MapSummary struct {
 	DriftDB  MinMaxRMS        `json:"drift_db"`
 	Sections []SectionSummary `json:"sections"`
 	Worst    []WorstSite      `json:"worst"`
+	// Linearity checks the first-order process model at the worst sites
+	// (Analysis.CheckLinearity); absent without process terms.
+	Linearity *Linearity `json:"linearity,omitempty"`
 }
 
 // Summary returns the map summary with the n sites of least margin.
@@ -116,6 +119,7 @@ func (a *Analysis) Summary(n int) *MapSummary {
 			Coupling3Lo: r.CouplingLo, Coupling3Hi: r.CouplingHi})
 		a.splitWorst(&s.Worst[len(s.Worst)-1], r) // variation.go
 	}
+	s.Linearity = a.linearity
 	return s
 }
 

@@ -372,3 +372,45 @@ func TestYieldProcessMonteCarlo(t *testing.T) {
 		t.Errorf("mean yield %.3f: the case should sit away from 0 and 1", p)
 	}
 }
+
+// TestCheckLinearity: at small process terms the direct solves at ±3σ
+// agree with the first-order prediction within the 0.025 dB limit (a
+// tenth of the 0.25 dB tolerance); a core thickness σ of a quarter of the
+// 4 mil core is far outside the first-order range (coupling goes about as
+// 1/h across the core, so ±3σ = ±3 mil is not small) and draws the
+// warning.
+func TestCheckLinearity(t *testing.T) {
+	for _, tt := range []struct {
+		name  string
+		sigma float64
+		warn  bool
+	}{{"small", 0.05 * mil, false}, {"large", 1 * mil, true}} {
+		t.Run(tt.name, func(t *testing.T) {
+			s := namedPair("lin-"+tt.name, section.Spec{Coupling: -3, Tolerance: 0.25})
+			l, inst, sites := layout(t, s.Name, 90, panel.Array{Part: "p", Count: [2]int{1, 1}, Pitch: panel.Vec{X: inch, Y: inch}})
+			pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, tt.sigma)}}}
+			in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: &registration.Model{}, Process: pm}
+			a, err := Analyse(t.Context(), in, testSettings(t))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := a.CheckLinearity(t.Context(), testSettings(t), 10); err != nil {
+				t.Fatal(err)
+			}
+			lin := a.Summary(10).Linearity
+			if lin == nil || len(lin.Checks) != 2 {
+				t.Fatalf("linearity %+v, want two checks at the one site", lin)
+			}
+			t.Logf("%s", lin)
+			if (lin.Warning != "") != tt.warn {
+				t.Errorf("warning %q, want one: %v (largest error %.4f dB)", lin.Warning, tt.warn, lin.MaxErrorDB)
+			}
+			// The prediction is c + s·(±3σ) with s the table's sensitivity.
+			ev := a.Evaluator(0)
+			want := ev.Curve.Coupling(a.Sites[0].Offset) + 3*tt.sigma*math.Abs(ev.termSens(0, a.Sites[0].Offset))
+			if got := math.Max(lin.Checks[0].LinearDB, lin.Checks[1].LinearDB); math.Abs(got-want) > assembly {
+				t.Errorf("upper prediction %.6f dB, want %.6f", got, want)
+			}
+		})
+	}
+}
