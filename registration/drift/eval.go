@@ -35,6 +35,10 @@ type Eval struct {
 	// the standard deviation of the coupling the process terms cause at the
 	// mean offset, dB (0 without them).
 	DriftRegistration, DriftProcess, ProcessSD float64
+	// TermDrifts holds, with process terms, each term's part of
+	// DriftProcess (indexed as process.Model.Terms; 0 for a term that moves
+	// nothing of the section); nil without them.
+	TermDrifts []float64
 }
 
 // Evaluator evaluates sites of one kind: a section's curve and the relative
@@ -183,6 +187,12 @@ func (r *Eval) Value(q Quantity) float64 {
 		return r.DriftRegistration
 	case ProcessDrift:
 		return r.DriftProcess
+	}
+	if q >= termDriftBase {
+		if i := int(q - termDriftBase); i < len(r.TermDrifts) {
+			return r.TermDrifts[i]
+		}
+		return 0
 	}
 	return r.Drift
 }

@@ -314,6 +314,10 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	r.DriftRegistration = creg - c.Nominal
 	r.DriftProcess = m - creg
 	r.ProcessSD = math.Sqrt(v)
+	r.TermDrifts = make([]float64, len(e.Proc.Model.Terms))
+	for b, bd := range e.Proc.Bind {
+		r.TermDrifts[bd.Term] = e.termSens(b, r.Offset) * pr.means()[b]
+	}
 	r.InSpec = e.Proc.Domain.Contains(r.Offset) && math.Abs(m-sp.Coupling) <= sp.Tolerance
 	r.Margin = sp.Tolerance - math.Abs(m-sp.Coupling)
 	if !r.InSpec {
@@ -604,9 +608,8 @@ func (a *Analysis) splitWorst(w *WorstSite, r *Site) {
 		return
 	}
 	ds := &DriftSources{RegistrationDB: r.DriftRegistration, VariationDB: r.DriftProcess, VariationSDDB: r.ProcessSD}
-	ev := a.Evaluator(r.Section)
 	for i, t := range a.In.Process.Terms {
-		ds.Terms = append(ds.Terms, TermDriftDB{Name: t.Name, DriftDB: ev.Value(TermDrift(i), r.Site.Pos, r.Site.U)})
+		ds.Terms = append(ds.Terms, TermDriftDB{Name: t.Name, DriftDB: r.Value(TermDrift(i))})
 	}
 	w.DriftSources = ds
 }
@@ -632,9 +635,12 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 	}
 	r := &a.Sites[i]
 	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4))
-	ev := a.Evaluator(r.Section)
-	for k := range a.In.Process.Terms {
-		rec = append(rec, fixed(ev.Value(TermDrift(k), r.Site.Pos, r.Site.U), 4))
+	terms := r.TermDrifts
+	if terms == nil { // a section no term moves
+		terms = make([]float64, len(a.In.Process.Terms))
+	}
+	for _, d := range terms {
+		rec = append(rec, fixed(d, 4))
 	}
 	return rec
 }

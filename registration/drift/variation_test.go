@@ -414,3 +414,44 @@ func TestCheckLinearity(t *testing.T) {
 		})
 	}
 }
+
+// TestProcessValueMatchesEval: with process terms, every quantity of the
+// per-pixel Evaluator.Value equals the site's Eval.Value (one evaluator),
+// and the terms' drifts add up to the variation drift, which with the
+// registration drift adds up to the drift.
+func TestProcessValueMatchesEval(t *testing.T) {
+	s := namedPair("vals", section.Spec{Coupling: -3, Tolerance: 0.1})
+	arr := panel.Array{Part: "p", Count: [2]int{3, 2}, Pitch: panel.Vec{X: 3 * inch, Y: 5 * inch}}
+	l, inst, sites := layout(t, s.Name, 90, arr)
+	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+		Terms: [registration.NumTerms]registration.Term{registration.OffsetX: term(0.3*mil, 0.6*mil), registration.ScaleY: term(80e-6, 20e-6)}}}}
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0.02*mil, 0.05*mil), Shape: process.Shape{Kind: process.Dome, Amplitude: 0.1 * mil}},
+		{Name: "l5", Layer: "L5", Quantity: process.Copper, Panel: term(0.1*mil, 0)}, // a ground: moves nothing inside the domain
+		{Name: "w4", Layer: "L4", Quantity: process.Width, Panel: term(0, 0.3*mil), Shape: process.Shape{Kind: process.Edge, Amplitude: 0.2 * mil, Decay: 2 * inch}}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: m, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev := a.Evaluator(0)
+	qs := []Quantity{Drift, WorstDrift, Offset, Sigma, Margin, PInSpec, Misregistration, RegistrationDrift, ProcessDrift, TermDrift(0), TermDrift(1), TermDrift(2)}
+	for k := range a.Sites {
+		r := &a.Sites[k]
+		for _, q := range qs {
+			if got, want := ev.Value(q, r.Site.Pos, r.Site.U), r.Value(q); math.Abs(got-want) > assembly*math.Max(1, math.Abs(want)) {
+				t.Errorf("site %d quantity %d: Value %g, Eval %g", k, q, got, want)
+			}
+		}
+		var sum float64
+		for _, d := range r.TermDrifts {
+			sum += d
+		}
+		if math.Abs(sum-r.DriftProcess) > assembly || math.Abs(r.DriftRegistration+r.DriftProcess-r.Drift) > assembly {
+			t.Errorf("site %d: terms %g, variation %g, registration %g, drift %g", k, sum, r.DriftProcess, r.DriftRegistration, r.Drift)
+		}
+		if r.TermDrifts[1] != 0 {
+			t.Errorf("site %d: a term on a ground plane drifts %g dB", k, r.TermDrifts[1])
+		}
+	}
+}
