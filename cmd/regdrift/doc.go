@@ -48,7 +48,7 @@ All demo data are invented.
 
 Usage:
 
-	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]
+	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin|registration|variation|term:NAME] [--width PX] [--json]
 
 Map the broadside offset and coupling drift of every coupler site on the panel.
 
