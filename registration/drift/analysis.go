@@ -235,5 +235,5 @@ func (a *Analysis) Warnings() []string {
 				s.Name, iv.Lo/unit.Mil, iv.Hi/unit.Mil, YieldSigmas))
 		}
 	}
-	return out
+	return append(out, a.processWarnings()...) // variation.go
 }

@@ -9,6 +9,7 @@ import (
 	"gonum.org/v1/gonum/integrate/quad"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/process"
 )
@@ -118,8 +119,10 @@ type Proc struct {
 	// Bind are the terms that move a parameter of the section, with the
 	// indices of their parameters in the curve's sensitivities.
 	Bind []process.Binding
-	// Domain is the section's offset domain (see the package notes above).
-	Domain registration.Interval
+	// Domain is the section's offset domain (see the package notes above);
+	// Clipped says which of its ends the range of the solved offsets cut.
+	Domain  registration.Interval
+	Clipped [2]bool
 
 	// tab holds each binding's coupling sensitivity at procTabPerSpan
 	// points per interval of the curve's offsets, row i (offset tabLo +
@@ -486,11 +489,11 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 	}
 	sp := c.Section.Spec
 	lo, hi := c.Curve.Range()
-	iv, _, err := registration.SpecInterval(c.Coupling, lo, hi, nom, sp.Coupling, sp.Tolerance+reach)
+	iv, lim, err := registration.SpecInterval(c.Coupling, lo, hi, nom, sp.Coupling, sp.Tolerance+reach)
 	if err != nil {
 		iv = registration.EmptyInterval()
 	}
-	pr.Domain = iv
+	pr.Domain, pr.Clipped = iv, lim.Clipped
 	return pr
 }
 
@@ -643,4 +646,30 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 		rec = append(rec, fixed(d, 4))
 	}
 	return rec
+}
+
+// processWarnings says, per section with process terms, when the end of the
+// solved offsets cuts its offset domain within procRangeSigmas of some
+// site: offsets beyond count as out of spec, though a process excursion
+// could keep the coupling in spec there.
+func (a *Analysis) processWarnings() []string {
+	var out []string
+	for i, pr := range a.proc {
+		if pr == nil || !(pr.Clipped[0] || pr.Clipped[1]) {
+			continue
+		}
+		for k := range a.Sites {
+			r := &a.Sites[k]
+			if r.Section != i {
+				continue
+			}
+			w := procRangeSigmas * r.Stats.SDAcross
+			if (pr.Clipped[0] && r.Offset-w < pr.Domain.Lo) || (pr.Clipped[1] && r.Offset+w > pr.Domain.Hi) {
+				out = append(out, fmt.Sprintf("section %q: with the variation terms the coupling can still be in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
+					a.In.Sections[i].Name, pr.Domain.Lo/unit.Mil, pr.Domain.Hi/unit.Mil, procRangeSigmas))
+				break
+			}
+		}
+	}
+	return out
 }
