@@ -220,7 +220,7 @@ func TestPInSpecProcess(t *testing.T) {
 		want := plain.Eval(p, u).PInSpec
 		t.Logf("P with a 1e-6 mil process term %.9f, registration alone %.9f", got, want)
 		// The step of the window, 1e-6 mil·|s|/|c'| wide, falls on the
-		// cut at the crossing, placed to 2⁻³⁰ of a scan step; the
+		// cut at the crossing, placed to 1e-7 of a scan step; the
 		// difference measured is below 1e-9, allow 1e-8.
 		if math.Abs(got-want) > 1e-8 {
 			t.Errorf("P = %.9f, want the registration yield %.9f", got, want)
