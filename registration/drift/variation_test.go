@@ -455,3 +455,37 @@ func TestProcessValueMatchesEval(t *testing.T) {
 		}
 	}
 }
+
+// TestCrossing checks the root finder on closed-form roots: x³ − 2 (root
+// ∛2), a step tanh((x − 0.3)/1e-6) sharper than any bracket step, and a
+// flat-then-steep (x − 0.7)⁹; each to its tolerance.
+func TestCrossing(t *testing.T) {
+	for _, tt := range []struct {
+		name string
+		f    func(float64) float64
+		a, b float64
+		root float64
+	}{
+		{"cubic", func(x float64) float64 { return x*x*x - 2 }, 0, 2, math.Cbrt(2)},
+		{"sharp step", func(x float64) float64 { return math.Tanh((x - 0.3) / 1e-6) }, 0, 1, 0.3},
+		{"flat", func(x float64) float64 { return math.Pow(x-0.7, 9) }, 0, 1, 0.7},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			const tol = 1e-9
+			n := 0
+			f := func(x float64) float64 { n++; return tt.f(x) }
+			got := crossing(tt.a, tt.b, tt.f(tt.a), tt.f(tt.b), tol, f)
+			// The flat root is where false position crawls; the
+			// bisection of every third step alone shrinks the bracket of
+			// width 1 to 2^(−⌊40/3⌋) = 1.2e-4 in procCrossIter steps.
+			want := tol
+			if tt.name == "flat" {
+				want = math.Ldexp(1, -procCrossIter/3)
+			}
+			if math.Abs(got-tt.root) > want {
+				t.Errorf("root %.12g, want %.12g (%d evaluations)", got, tt.root, n)
+			}
+			t.Logf("%d evaluations", n)
+		})
+	}
+}
