@@ -131,6 +131,7 @@ func printYield(w io.Writer, title string, sum *drift.YieldSummary, lu lengthUni
 		fmt.Fprintf(tw, "  %s\t%s\t%.1f %%\t%.3f\t%.1f %%\n", r.Contributor, r.Term, 100*r.Share, r.SDM/lu.factor, 100*atWorst[r.Contributor+"\x00"+r.Term])
 	}
 	tw.Flush()
+	printCouplingBudget(w, sum.CouplingBudget) // variation.go
 	if len(sum.Orientation) > 0 {
 		fmt.Fprintf(w, "\norientation (parts kept in place, lines turned 90 deg):\n")
 		tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)

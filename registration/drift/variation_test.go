@@ -489,3 +489,76 @@ func TestCrossing(t *testing.T) {
 		})
 	}
 }
+
+// TestCouplingBudget: the coupling budget's shares sum to 1, and its total
+// variance at the worst site (law of total variance, Gauss–Hermite over
+// the offset) equals the sample variance of the coupling of the same
+// linear model drawn by Monte Carlo, within 5 standard errors of a sample
+// variance, σ²·√(2/(N−1)) for a normal sample (a tail heavier than normal
+// widens it; 5 SE leaves room for that).
+func TestCouplingBudget(t *testing.T) {
+	s := namedPair("budget", section.Spec{Coupling: -3, Tolerance: 0.1})
+	arr := panel.Array{Part: "p", Count: [2]int{3, 2}, Pitch: panel.Vec{X: 3 * inch, Y: 5 * inch}}
+	l, inst, sites := layout(t, s.Name, 90, arr)
+	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+		Terms:     [registration.NumTerms]registration.Term{registration.OffsetX: term(1*mil, 1.2*mil), registration.ScaleY: term(80e-6, 20e-6)},
+		SiteSigma: 0.3 * mil}}}
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0.02*mil, 0.05*mil), SiteSigma: 0.02 * mil, Shape: process.Shape{Kind: process.Dome, Amplitude: 0.1 * mil}},
+		{Name: "w4", Layer: "L4", Quantity: process.Width, Panel: term(0, 0.3*mil)}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: m, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cb := a.couplingBudget()
+	if cb == nil {
+		t.Fatal("no coupling budget")
+	}
+	for _, rows := range [][]CouplingShare{cb.AtWorst, cb.Panel} {
+		var sum float64
+		for _, r := range rows {
+			sum += r.Share
+		}
+		if math.Abs(sum-1) > 1e-12 {
+			t.Errorf("shares sum to %.15f", sum)
+		}
+	}
+	var total float64
+	for _, r := range cb.AtWorst {
+		total += r.SDDB * r.SDDB
+	}
+	w := a.WorstYieldSite()
+	r := &a.Sites[w]
+	ev := a.Evaluator(0)
+	var row procRow
+	ev.Proc.row(&row, r.Site.Pos)
+	rng := rand.New(rand.NewPCG(3, 4))
+	const n = 200000
+	var sum, sum2 float64
+	for range n {
+		d := r.Offset + r.Stats.SDAcross*rng.NormFloat64()
+		c := ev.Curve.Coupling(d)
+		for b, mu := range row.means() {
+			c += ev.termSens(b, d) * (mu + math.Sqrt(row.vars()[b])*rng.NormFloat64())
+		}
+		sum += c
+		sum2 += c * c
+	}
+	mean := sum / n
+	v := (sum2 - n*mean*mean) / (n - 1)
+	se := v * math.Sqrt(2.0/(n-1))
+	t.Logf("worst site: coupling variance %.4g dB² by quadrature, %.4g ± %.2g by Monte Carlo; %d rows", total, v, se, len(cb.AtWorst))
+	if math.Abs(total-v) > 5*se {
+		t.Errorf("variance %.5g dB², Monte Carlo %.5g ± %.2g", total, v, se)
+	}
+	var reg float64
+	for _, r := range cb.AtWorst {
+		if r.Source == "registration" {
+			reg += r.Share
+		}
+	}
+	if reg < 0.05 || reg > 0.95 {
+		t.Errorf("registration share %.3f: the case should mix both sources", reg)
+	}
+}

@@ -26,8 +26,11 @@ type YieldSummary struct {
 	WorstSites          []YieldSite    `json:"worst_sites"`
 	Sections            []YieldSection `json:"sections"`
 	Budget              Budget         `json:"budget"`
-	Orientation         []Orient       `json:"orientation,omitempty"`
-	Warnings            []string       `json:"warnings,omitempty"`
+	// CouplingBudget ranks registration and variation terms together by
+	// their share of the coupling variance; absent without variation terms.
+	CouplingBudget *CouplingBudget `json:"coupling_budget,omitempty"`
+	Orientation    []Orient        `json:"orientation,omitempty"`
+	Warnings       []string        `json:"warnings,omitempty"`
 }
 
 // GoodParts is the distribution of good parts per panel over the trials.
@@ -233,6 +236,7 @@ func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldS
 		}
 		sum.Budget.Panel = a.budgetRows(panelShares, tot)
 	}
+	sum.CouplingBudget = a.couplingBudget() // variation_budget.go
 	sum.Orientation = a.Orientation()
 	return sum
 }
