@@ -21,7 +21,15 @@ const yieldWidth = 2400
 // part outlines and each site's Monte Carlo yield res as a bar.
 func Yield(w io.Writer, a *drift.Analysis, res *registration.MCResult, sum *drift.YieldSummary, u unit.Output) error {
 	in := a.In
-	grid := fieldGrid(in, yieldWidth/6, lowestField(a, a.Zones(), drift.PInSpec, 100))
+	cells := yieldWidth / 6
+	if !in.Process.Empty() {
+		// With variation terms each cell is an integral over the offset
+		// (drift's P(in spec)), some fifty times a registration-only
+		// cell; the process shapes are smooth over the panel, so a
+		// sixteenth of the cells draws the same field.
+		cells = yieldWidth / 24
+	}
+	grid := fieldGrid(in, cells, lowestField(a, a.Zones(), drift.PInSpec, 100))
 	lo, _ := grid.Range()
 	for i := range a.Sites {
 		lo = math.Min(lo, 100*res.SiteYield(i))
