@@ -648,12 +648,29 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 	return rec
 }
 
-// processWarnings says, per section with process terms, when the end of the
-// solved offsets cuts its offset domain within procRangeSigmas of some
+// processWarnings names the variation terms that move no parameter of any
+// section used, and says, per section with process terms, when the end of
+// the solved offsets cuts its offset domain within procRangeSigmas of some
 // site: offsets beyond count as out of spec, though a process excursion
 // could keep the coupling in spec there.
 func (a *Analysis) processWarnings() []string {
 	var out []string
+	if a.proc != nil {
+		bound := make([]bool, len(a.In.Process.Terms))
+		for _, pr := range a.proc {
+			if pr != nil {
+				for _, bd := range pr.Bind {
+					bound[bd.Term] = true
+				}
+			}
+		}
+		for t, ok := range bound {
+			if !ok {
+				out = append(out, fmt.Sprintf("variation term %q on %s moves nothing of any section used (its layer is outside every section's field, or it is a quantity the sections lack)",
+					a.In.Process.Terms[t].Name, a.In.Process.Terms[t].On))
+			}
+		}
+	}
 	for i, pr := range a.proc {
 		if pr == nil || !(pr.Clipped[0] || pr.Clipped[1]) {
 			continue

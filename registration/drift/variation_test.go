@@ -3,6 +3,7 @@ package drift
 import (
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel"
@@ -560,5 +561,25 @@ func TestCouplingBudget(t *testing.T) {
 	}
 	if reg < 0.05 || reg > 0.95 {
 		t.Errorf("registration share %.3f: the case should mix both sources", reg)
+	}
+}
+
+// TestProcessWarnings: a term on a dielectric outside the stripline's
+// grounds moves nothing and is named in the warnings.
+func TestProcessWarnings(t *testing.T) {
+	s := namedPair("warn", section.Spec{Coupling: -3, Tolerance: 0.25})
+	s.Stackup.Layers = append([]section.Layer{{Name: "TOP", Kind: section.Dielectric, Thickness: 5 * mil, Er: 3.5, Core: true}}, s.Stackup.Layers...)
+	l, inst, sites := layout(t, s.Name, 90, panel.Array{Part: "p", Count: [2]int{1, 1}, Pitch: panel.Vec{X: inch, Y: inch}})
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "outside", Layer: "TOP", On: "TOP", Quantity: process.Thickness, Panel: term(0, 0.1*mil)},
+		{Name: "core", Layer: "C2", On: "C2", Quantity: process.Thickness, Panel: term(0, 0.05*mil)}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: &registration.Model{}, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ws := a.Warnings()
+	if len(ws) != 1 || !strings.Contains(ws[0], `"outside"`) {
+		t.Errorf("warnings %q, want one naming the term outside", ws)
 	}
 }
