@@ -173,16 +173,7 @@ const (
 // G2 gives G1 back). With σ = 0, G1(x) = max(x, 0) and G2(x) = max(x, 0)²/2.
 func (p SiteProb) CDF(t float64) float64 {
 	x := t - p.Mean
-	sd, w1, w2 := p.SD, p.Uniform, p.Uniform2
-	if w2 > 0 && w2 < uniform2FoldRatio*(sd+w1) {
-		sd, w2 = math.Sqrt(sd*sd+w2*w2/3), 0
-	}
-	if w1 > 0 && w1 < uniformFoldRatio*sd {
-		sd, w1 = math.Sqrt(sd*sd+w1*w1/3), 0
-	}
-	if w1 == 0 && w2 > 0 {
-		w1, w2 = w2, 0
-	}
+	sd, w1, w2 := p.folded()
 	switch {
 	case w1 == 0:
 		if sd == 0 {
@@ -212,6 +203,73 @@ func (p SiteProb) CDF(t float64) float64 {
 	}
 	f := (G2(x+w1+w2) - G2(x+w1-w2) - G2(x-w1+w2) + G2(x-w1-w2)) / (4 * w1 * w2)
 	return math.Min(1, math.Max(0, f))
+}
+
+// folded returns the normal part's standard deviation and the two
+// half-widths after the fold rule above (uniformFoldRatio,
+// uniform2FoldRatio), the widest half-width first.
+func (p SiteProb) folded() (sd, w1, w2 float64) {
+	sd, w1, w2 = p.SD, p.Uniform, p.Uniform2
+	if w2 > 0 && w2 < uniform2FoldRatio*(sd+w1) {
+		sd, w2 = math.Sqrt(sd*sd+w2*w2/3), 0
+	}
+	if w1 > 0 && w1 < uniformFoldRatio*sd {
+		sd, w1 = math.Sqrt(sd*sd+w1*w1/3), 0
+	}
+	if w1 == 0 && w2 > 0 {
+		w1, w2 = w2, 0
+	}
+	return sd, w1, w2
+}
+
+// PDF returns the density of the offset at t, the derivative of CDF by
+// the same fold rule: a normal density, one box's
+// [Φ(u+) − Φ(u−)]/(2w) (u± = (x ± w)/σ), or two boxes' double difference
+// of G1 (CDF's notation) over 4·w1·w2. With σ = 0 the boxes' density is a
+// box or a trapezoid; with σ = 0 and no box the offset is fixed and the
+// density is 0 everywhere but at the mean, where it is +Inf.
+func (p SiteProb) PDF(t float64) float64 {
+	x := t - p.Mean
+	sd, w1, w2 := p.folded()
+	switch {
+	case w1 == 0:
+		if sd == 0 {
+			if x == 0 {
+				return math.Inf(1)
+			}
+			return 0
+		}
+		return normalPDF(x/sd) / sd
+	case w2 == 0:
+		if sd == 0 {
+			if math.Abs(x) <= w1 {
+				return 1 / (2 * w1)
+			}
+			return 0
+		}
+		return math.Max(0, NormalCDF((x+w1)/sd)-NormalCDF((x-w1)/sd)) / (2 * w1)
+	}
+	G1 := func(x float64) float64 {
+		if sd == 0 {
+			return math.Max(x, 0)
+		}
+		u := x / sd
+		return sd * (u*NormalCDF(u) + normalPDF(u))
+	}
+	return math.Max(0, (G1(x+w1+w2)-G1(x+w1-w2)-G1(x-w1+w2)+G1(x-w1-w2))/(4*w1*w2))
+}
+
+// Kinks returns the offsets where the density changes form: the mean ±
+// w1 ± w2 after the fold rule (the edges of the boxes), none without a
+// box. An integral of the density against another function converges
+// fastest on pieces between them.
+func (p SiteProb) Kinks(dst []float64) []float64 {
+	_, w1, w2 := p.folded()
+	dst = dst[:0]
+	if w1 == 0 {
+		return dst
+	}
+	return append(dst, p.Mean-w1-w2, p.Mean-w1+w2, p.Mean+w1-w2, p.Mean+w1+w2)
 }
 
 // Prob returns P(offset ∈ iv), the closed-form yield of the site.

@@ -29,8 +29,11 @@ import (
 //
 //	m(δ) = c(δ) + Σ sᵢ(δ)·μᵢ,  v(δ) = Σ sᵢ(δ)²·σᵢ²
 //
-// (uniform panel parts enter by their variance, w²/3: a sum of a dozen
-// terms is close to normal by the central limit theorem; BUG below).
+// (uniform panel parts of the process terms enter by their variance, w²/3:
+// a sum of a dozen terms is close to normal by the central limit theorem;
+// BUG below). The offset's own distribution is the registration yield's,
+// uniform terms exact (registration.SiteProb: its density PDF, its
+// probability CDF).
 //
 // In spec. A realisation is in spec when its coupling is inside the spec
 // window and its offset lies in the section's offset domain: the connected
@@ -52,10 +55,10 @@ import (
 // integrate/quad.Legendre): a sharp step then falls on a piece boundary
 // and each piece is smooth.
 //
-// BUG(variation): with process terms, uniform registration terms enter the
-// offset distribution by their variance (normal of the same σ), not exactly
-// as in registration.SiteProb; and Monte Carlo yield samples registration
-// only.
+// BUG(variation): in the closed form, a uniform panel part of a process
+// term enters the coupling by its variance (normal of the same σ); Monte
+// Carlo draws it uniform. The coupling budget's expectations over the
+// offset take it as normal of its full variance.
 
 // procSigmas is how many standard deviations of the process part the
 // offset domain allows for (see above); a normal tail beyond 6σ holds
@@ -106,6 +109,10 @@ const (
 	procNodes = 8
 	procPiece = 4
 )
+
+// procMaxPieces bounds the fixed pieces of the offset range (uniform parts
+// wider than the normal part spread it beyond ±6σ).
+const procMaxPieces = 16
 
 var (
 	legendreOnce   sync.Once
@@ -336,7 +343,7 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	r.CouplingLo = e.mean(r.Offset-3*sd, pr)
 	r.CouplingHi = e.mean(r.Offset+3*sd, pr)
 	r.WorstDrift = e.worstDriftProc(r.Offset, sd, pr)
-	r.PInSpec = e.pInSpecProc(r.Offset, sd, pr)
+	r.PInSpec = e.pInSpecProc(e.Rel.Prob(&r.Row, c.Section.NominalOffset()), pr)
 }
 
 // worstDriftProc is worstDrift with the process terms: the largest
@@ -356,27 +363,31 @@ func (e *Evaluator) worstDriftProc(mean, sd float64, pr *procRow) float64 {
 	return worst
 }
 
-// pInSpecProc returns P(in spec) of a site whose offset is normal with
-// mean mu and standard deviation sd, with process row pr (see the package
-// notes above).
-func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
+// pInSpecProc returns P(in spec) of a site whose offset is distributed as
+// op (a normal part and up to two uniform parts, exactly as in the
+// registration yield), with process row pr (see the package notes above).
+func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 	sp := e.Curve.Section.Spec
 	lo, hi := sp.Coupling-sp.Tolerance, sp.Coupling+sp.Tolerance
 	dom := e.Proc.Domain
-	if sd == 0 {
+	mu, sd := op.Mean, op.SD
+	boxes := op.Uniform + op.Uniform2
+	if sd == 0 && boxes == 0 {
 		if !dom.Contains(mu) {
 			return 0
 		}
 		m, v := e.at(mu, pr)
 		return window(m, v, lo, hi)
 	}
-	a, b := math.Max(mu-procRangeSigmas*sd, dom.Lo), math.Min(mu+procRangeSigmas*sd, dom.Hi)
+	reach := procRangeSigmas*sd + boxes
+	a, b := math.Max(mu-reach, dom.Lo), math.Min(mu+reach, dom.Hi)
 	if !(a < b) {
 		return 0
 	}
 	// Pieces split at the crossings of m(δ) with lo and hi, graded about
-	// each crossing.
-	var cuts [procMaxCross * (1 + 2*len(procGrade))]float64
+	// each crossing, and at the edges of the uniform parts' boxes, graded
+	// when the normal part rounds them over less than the box.
+	var cuts [procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
 	nc := 0
 	add := func(x float64) {
 		if x > a && x < b && nc < len(cuts) {
@@ -416,13 +427,30 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 		}
 		x0, g0l, g0h = x1, g1l, g1h
 	}
-	// Pieces of at most procPiece standard deviations of the offset.
-	for k := -procRangeSigmas + procPiece; k < procRangeSigmas; k += procPiece {
-		add(mu + float64(k)*sd)
+	// Pieces of at most procPiece standard deviations of the offset's
+	// normal part, about the mean and about each box edge.
+	var kinks [4]float64
+	ks := op.Kinks(kinks[:0])
+	if sd > 0 {
+		// At most procMaxPieces of them over the range: where boxes make
+		// it wide the density is flat in their middle.
+		step := math.Max(procPiece*sd, (b-a)/procMaxPieces)
+		for x := mu - step*math.Floor((mu-a)/step); x < b; x += step {
+			add(x)
+		}
+	}
+	for _, k := range ks {
+		add(k)
+		if sd > 0 && sd < op.Uniform {
+			for _, f := range procGrade {
+				add(k - f*sd)
+				add(k + f*sd)
+			}
+		}
 	}
 	slices.Sort(cuts[:nc])
 	xs, ws := legendre()
-	norm := 1 / (sd * math.Sqrt(2*math.Pi))
+	norm := 1 / (sd * math.Sqrt(2*math.Pi)) // used without boxes, where sd > 0
 	var p float64
 	left := a
 	wl := e.windowAt(left, pr, lo, hi)
@@ -439,15 +467,20 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 		wm := e.windowAt(c, pr, lo, hi)
 		switch {
 		case wl >= 1-procSure && wr >= 1-procSure && wm >= 1-procSure:
-			// In spec throughout: the piece's normal probability.
-			p += registration.NormalCDF((right-mu)/sd) - registration.NormalCDF((left-mu)/sd)
+			// In spec throughout: the piece's probability.
+			p += op.CDF(right) - op.CDF(left)
 		case wl <= procSure && wr <= procSure && wm <= procSure:
 			// Out of spec throughout.
-		default:
+		case len(ks) == 0:
 			for k := range xs {
 				x := c + h*xs[k]
 				z := (x - mu) / sd
 				p += h * ws[k] * norm * math.Exp(-0.5*z*z) * e.windowAt(x, pr, lo, hi)
+			}
+		default:
+			for k := range xs {
+				x := c + h*xs[k]
+				p += h * ws[k] * op.PDF(x) * e.windowAt(x, pr, lo, hi)
 			}
 		}
 		left, wl = right, wr
@@ -540,7 +573,7 @@ func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) flo
 	case WorstDrift:
 		return e.worstDriftProc(off, st.SDAcross, &pr)
 	case PInSpec:
-		return e.pInSpecProc(off, st.SDAcross, &pr)
+		return e.pInSpecProc(e.Rel.Prob(&row, c.Section.NominalOffset()), &pr)
 	case ProcessDrift:
 		return e.mean(off, &pr) - c.Coupling(off)
 	case Margin:

@@ -255,6 +255,28 @@ func TestPInSpecProcess(t *testing.T) {
 			t.Errorf("P = %.9f, want the registration yield %.9f", got, want)
 		}
 	})
+	t.Run("tiny process, uniform registration", func(t *testing.T) {
+		// With uniform registration terms (one wider than the normal
+		// part, one narrower) the offset's density is the registration
+		// yield's exactly: a negligible process term reproduces
+		// SiteProb.Prob. Measured below 1e-9; allow 1e-8.
+		s := namedPair("tinyu", section.Spec{Coupling: -3, Tolerance: 0.05})
+		m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+			Terms: [registration.NumTerms]registration.Term{registration.OffsetY: {Spread: 1.3 * mil, Dist: registration.Uniform},
+				registration.ScaleY: {Spread: 30e-6, Dist: registration.Uniform}}},
+			{Name: "L4", Layers: []string{"L4"}, Terms: [registration.NumTerms]registration.Term{registration.OffsetY: term(0.3*mil, 0.4*mil)}}}}
+		pm := &process.Model{Size: size, Terms: []process.Term{{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 1e-6*mil)}}}
+		ev := procEvaluator(t, s, m, pm, []panel.Vec{{}})
+		for _, p := range []panel.Vec{{X: 2 * inch, Y: 3 * inch}, {X: -4 * inch, Y: -8 * inch}} {
+			u := panel.Vec{X: 1}
+			got := ev.Eval(p, u).PInSpec
+			want := Evaluator{Curve: ev.Curve, Rel: ev.Rel}.Eval(p, u).PInSpec
+			t.Logf("at %v: P %.10f, registration alone %.10f", p, got, want)
+			if math.Abs(got-want) > 1e-8 {
+				t.Errorf("at %v: P = %.10f, want the registration yield %.10f", p, got, want)
+			}
+		}
+	})
 	t.Run("quadrature against a fine midpoint rule", func(t *testing.T) {
 		// A window step 0.01 mil wide, between sharp and wide: the
 		// graded pieces must resolve it. Reference: the midpoint rule
@@ -279,7 +301,7 @@ func TestPInSpecProcess(t *testing.T) {
 			mm, v := ev.at(x, &row)
 			want += math.Exp(-z*z/2) / (sd * math.Sqrt(2*math.Pi)) * h * window(mm, v, sp.Coupling-sp.Tolerance, sp.Coupling+sp.Tolerance)
 		}
-		got := ev.pInSpecProc(mu, sd, &row)
+		got := ev.pInSpecProc(registration.SiteProb{Mean: mu, SD: sd}, &row)
 		t.Logf("P %.10f, midpoint rule %.10f", got, want)
 		if math.Abs(got-want) > 1e-8 {
 			t.Errorf("P = %.10f, midpoint rule %.10f", got, want)
@@ -361,8 +383,8 @@ func TestSensitivityTable(t *testing.T) {
 	}
 }
 
-// TestYieldProcessMonteCarlo: with registration and process terms (all
-// normal), the closed-form site yield of every site agrees with the Monte
+// TestYieldProcessMonteCarlo: with registration terms (normal and uniform)
+// and normal process terms, the closed-form site yield of every site agrees with the Monte
 // Carlo of registration.Yield, which draws each term as distributed (the
 // panel parts once per panel), within 4 standard errors: a binomial
 // estimate's error is √(p(1−p)/N), and 4 SE is exceeded with probability
@@ -373,7 +395,9 @@ func TestYieldProcessMonteCarlo(t *testing.T) {
 	l, inst, sites := layout(t, "mcy", 90, arr)
 	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
 		Terms:     [registration.NumTerms]registration.Term{registration.OffsetX: term(0.3*mil, 0.6*mil), registration.ScaleY: term(40e-6, 20e-6)},
-		SiteSigma: 0.2 * mil}}}
+		SiteSigma: 0.2 * mil},
+		{Name: "L4", Layers: []string{"L4"}, Terms: [registration.NumTerms]registration.Term{ // uniform terms, the wider exact
+			registration.OffsetX: {Spread: 0.8 * mil, Dist: registration.Uniform}, registration.Rotation: {Spread: 20e-6, Dist: registration.Uniform}}}}}
 	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
 		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil,
 			Shape: process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}},
