@@ -290,10 +290,9 @@ func (p *compProblem) meanScales() {
 	for l, name := range p.layers {
 		for i := range p.m.Contributors {
 			c := &p.m.Contributors[i]
-			if c.Names(name) {
-				p.meanScale[2*l] += c.Terms[ScaleX].Mean
-				p.meanScale[2*l+1] += c.Terms[ScaleY].Mean
-			}
+			w := c.Weight(name)
+			p.meanScale[2*l] += w * c.Terms[ScaleX].Mean
+			p.meanScale[2*l+1] += w * c.Terms[ScaleY].Mean
 		}
 	}
 }

@@ -292,7 +292,7 @@ func (r *Relative) Prob(row *Row, nominal float64) SiteProb {
 			if t.Dist != Uniform {
 				continue
 			}
-			w := math.Abs(row.Across[k]) * t.Spread
+			w := math.Abs(r.Sign[i]*row.Across[k]) * t.Spread
 			switch {
 			case w > w1:
 				w1, w2 = w, w1

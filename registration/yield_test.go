@@ -3,6 +3,7 @@ package registration
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"strconv"
 	"testing"
@@ -183,7 +184,12 @@ func TestSiteProbUniform(t *testing.T) {
 // scale, rotation and offset terms, a uniform offset_y term on each layer
 // (two uniform parts across lines along x), a per-site sigma, and a contributor naming both layers (which must
 // cancel).
-func testYield(t testing.TB) *Yield {
+func testYield(t testing.TB) *Yield { return testYieldWeighted(t, false) }
+
+// testYieldWeighted is testYield, with weights when weighted: the shared
+// core moves B by 0.95 of A's movement, and the upper imaging moves B by −0.5
+// of A's, which stretches its uniform term by 1.5 in the offset.
+func testYieldWeighted(t testing.TB, weighted bool) *Yield {
 	m := &Model{Contributors: []Contributor{
 		{Name: "upper imaging", Layers: []string{"A"}, Terms: [NumTerms]Term{
 			OffsetX:  {Spread: 0.3 * mil, Dist: Normal},
@@ -201,6 +207,10 @@ func testYield(t testing.TB) *Yield {
 			ScaleX: {Mean: -300 * ppm, Spread: 100 * ppm, Dist: Normal},
 		}, SiteSigma: 5 * mil},
 	}}
+	if weighted {
+		m.Contributors[0].Layers, m.Contributors[0].Weights = []string{"A", "B"}, []float64{1, -0.5}
+		m.Contributors[2].Weights = []float64{1, 0.95}
+	}
 	x, y := panel.Vec{X: 1}, panel.Vec{Y: 1}
 	sym := Interval{-2 * mil, 2 * mil}
 	asym := Interval{-1 * mil, 2.5 * mil}
@@ -223,7 +233,12 @@ func testYield(t testing.TB) *Yield {
 // Monte Carlo estimate within 3 binomial standard errors √(p(1−p)/N), at sites
 // with symmetric and asymmetric intervals, with and without the uniform term.
 func TestClosedFormVsMonteCarlo(t *testing.T) {
-	y := testYield(t)
+	for _, weighted := range []bool{false, true} {
+		t.Run(fmt.Sprintf("weighted=%v", weighted), func(t *testing.T) { closedFormVsMonteCarlo(t, testYieldWeighted(t, weighted)) })
+	}
+}
+
+func closedFormVsMonteCarlo(t *testing.T, y *Yield) {
 	trials := 1000000
 	if testing.Short() {
 		trials = 100000

@@ -113,7 +113,7 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		}
 		var lots []registration.Lot
 		lots, fitted = measuredLots(std, "comp", j, fr)
-		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
+		model, notes = drift.MeasuredModel(j.Model, fr.Fits, lots, fr.File, f.keep)
 	}
 	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
 	var ce *drift.CompError

@@ -170,7 +170,7 @@ func demoMeasured(ctx context.Context, std stdio, in *drift.Input, targets, name
 	}
 	fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
 		len(fr.Fits), name, outliers, filepath.Join(fitOut, "fit.png"))
-	model, notes := drift.MeasuredModel(in.Model, fr.Lots, fr.File, false)
+	model, notes := drift.MeasuredModel(in.Model, fr.Fits, fr.Lots, fr.File, false)
 	cmp, err := drift.Compensate(ctx, in, model, &registration.CompSettings{DrillBudget: 3 * unit.Mil, Max: 1000e-6, Step: 5e-6}, set)
 	if err != nil {
 		return err

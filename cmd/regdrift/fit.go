@@ -312,6 +312,27 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 		fmt.Fprintf(tw, "\n")
 	}
 	tw.Flush()
+	if len(r.Differences) > 0 {
+		fmt.Fprintf(w, "\nper-panel differences of layers measured on the same panels (mean ± sigma; the drill error both share cancels):\n")
+		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		fmt.Fprintf(tw, "layers\tpanels\t%s\n", termHeader(lu))
+		for _, l := range r.Differences {
+			fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
+			for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+				u, kind := termUnit(k, lu)
+				if !l.Model.Estimates(k) {
+					fmt.Fprintf(tw, "-\t")
+					continue
+				}
+				fmt.Fprintf(tw, "%.2f ± %.2f\t", unit.In(l.Mean[k], kind, u), unit.In(l.SD[k], kind, u))
+			}
+			fmt.Fprintf(tw, "\n")
+		}
+		tw.Flush()
+	}
+	for _, n := range r.Joint.Notes {
+		fmt.Fprintf(w, "note: %s\n", n)
+	}
 	n := 0
 	for _, f := range r.Fits {
 		n += len(f.Outliers)

@@ -87,31 +87,53 @@ func TestFitCommand(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The sample's L3 and L4 are measured against the drilled holes on the
+	// same panels, so they are written jointly: a table of means per layer
+	// and the spread as components over both layers. Read back, each layer
+	// against the holes has its lot's sigma and L3−L4 the sigma of the
+	// per-panel differences.
 	lots := map[string]fitreport.LotJSON{}
 	for _, l := range s.Lot {
 		lots[l.Layer] = l
 	}
+	if len(s.Differences) != 1 || s.Differences[0].Layer != "L3-L4" {
+		t.Fatalf("differences %+v, want one for L3-L4", s.Differences)
+	}
+	lots["L3-L4"] = s.Differences[0]
 	found := 0
 	for _, c := range j.Model.Contributors {
-		if !strings.HasPrefix(c.Name, "measured ") {
-			continue
-		}
-		found++
-		l := lots[c.Layers[0]]
-		mean := l.Mean
-		sd := l.Sigma
-		for k := range mean {
-			tm := c.Terms[k]
-			if math.Abs(tm.Mean-*mean[k]) > 1e-5*math.Abs(*mean[k]) || math.Abs(tm.Spread-*sd[k]) > 1e-5*math.Abs(*sd[k]) {
-				t.Errorf("%s %s: read back %g ± %g, fitted %g ± %g", c.Name, registration.TermKind(k), tm.Mean, tm.Spread, *mean[k], *sd[k])
-			}
-			if tm.Dist != registration.Normal {
-				t.Errorf("%s %s: distribution %v, want normal", c.Name, registration.TermKind(k), tm.Dist)
-			}
+		if strings.HasPrefix(c.Name, "measured ") && c.Weights == nil {
+			found++
 		}
 	}
 	if found != 2 {
-		t.Errorf("%d measured contributors in the job, want 2", found)
+		t.Errorf("%d measured contributors of means in the job, want 2", found)
+	}
+	for _, pair := range [][2]string{{"L3", "none"}, {"L4", "none"}, {"L3", "L4"}} {
+		l := lots[pair[0]]
+		if pair[1] == "L4" {
+			l = lots["L3-L4"]
+		}
+		// The job keeps its own contributors too; collapse the measured ones.
+		m := &registration.Model{Datum: j.Model.Datum}
+		for _, c := range j.Model.Contributors {
+			if strings.HasPrefix(c.Name, "measured ") {
+				m.Contributors = append(m.Contributors, c)
+			}
+		}
+		r := m.Relative(pair[0], pair[1])
+		for k := range l.Mean {
+			if l.Sigma[k] == nil {
+				continue
+			}
+			mean, sd := *l.Mean[k], *l.Sigma[k]
+			// Six digits written: 1e-5 leaves room for the difference of two
+			// rounded means and weights.
+			if math.Abs(r.Mean[k]-mean) > 1e-5*math.Abs(*lots["L3"].Mean[k])+1e-5*math.Abs(*lots["L4"].Mean[k]) ||
+				math.Abs(math.Sqrt(r.Var[k])-sd) > 1e-5*sd {
+				t.Errorf("%s−%s %s: read back %g ± %g, fitted %g ± %g", pair[0], pair[1], registration.TermKind(k), r.Mean[k], math.Sqrt(r.Var[k]), mean, sd)
+			}
+		}
 	}
 }
 

@@ -236,7 +236,7 @@ func (r *reportRun) compensate(ctx context.Context) error {
 	}
 	r.fit = fr
 	lots, fitted := measuredLots(r.std, "report", j, fr)
-	model, notes := drift.MeasuredModel(j.Model, lots, fr.File, false)
+	model, notes := drift.MeasuredModel(j.Model, fr.Fits, lots, fr.File, false)
 	cs := registration.CompSettings{Max: 1000e-6}
 	cmp, err := drift.Compensate(ctx, input(j), model, &cs, r.set)
 	var ce *drift.CompError

@@ -898,6 +898,23 @@ func (l *loader) buildModel() error {
 					}
 					c.Layers = append(c.Layers, s)
 				}
+			case "weights":
+				arr, ok := v.([]any)
+				if !ok || len(arr) == 0 {
+					return src.errf(k, "%w: want a list of numbers, one per layer, e.g. [1.0, -0.98]", ErrValue)
+				}
+				for n, e := range arr {
+					var w float64
+					switch x := e.(type) {
+					case float64:
+						w = x
+					case int64:
+						w = float64(x)
+					default:
+						return src.errf(fmt.Sprintf("%s[%d]", k, n), "%w: want a plain number (a weight has no unit)", ErrValue)
+					}
+					c.Weights = append(c.Weights, w)
+				}
 			case "site_sigma":
 				x, err := quantity(src, k, v, unit.Length, nil)
 				if err != nil {
@@ -932,7 +949,7 @@ func (l *loader) buildModel() error {
 			default:
 				tk, ok := registration.TermByKey(k)
 				if !ok {
-					return src.errf(k, "%w %q (terms: %s; also name, layers, site_sigma, residual)", ErrUnknownKey, k, termKeys())
+					return src.errf(k, "%w %q (terms: %s; also name, layers, weights, site_sigma, residual)", ErrUnknownKey, k, termKeys())
 				}
 				t, err := parseTerm(src, k, v, tk.Info().Kind)
 				if err != nil {

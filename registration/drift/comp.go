@@ -14,12 +14,14 @@ import (
 	"github.com/regdrift/regdrift/registration"
 )
 
-// MeasuredModel returns a copy of m with fitted lots joined: each lot becomes
-// a contributor named after it and the file it came from; unless keep, the
-// layers a lot measures (both of a relative pair) are first taken out of m's
-// contributors, and a contributor left with no layer is dropped. notes says
-// what changed.
-func MeasuredModel(m *registration.Model, lots []registration.Lot, file string, keep bool) (*registration.Model, []string) {
+// MeasuredModel returns a copy of m with fitted lots joined: the lots'
+// contributors (registration.LotContributors, which keeps the pairing of
+// layers measured on the same panels), named after each lot and the file it
+// came from; unless keep, the layers a lot measures (both of a relative pair)
+// are first taken out of m's contributors, and a contributor left with no
+// layer is dropped. fits are the fits the lots came from. notes says what
+// changed.
+func MeasuredModel(m *registration.Model, fits []registration.Fit, lots []registration.Lot, file string, keep bool) (*registration.Model, []string) {
 	out := &registration.Model{Datum: m.Datum}
 	measured := map[string]bool{}
 	for _, l := range lots {
@@ -52,10 +54,13 @@ func MeasuredModel(m *registration.Model, lots []registration.Lot, file string, 
 		}
 		out.Contributors = append(out.Contributors, c)
 	}
-	for _, l := range lots {
-		out.Contributors = append(out.Contributors, l.Contributor(fmt.Sprintf("measured %s (lot of %d panels, %s)", l.Layer, l.Panels, file)))
+	lm := registration.LotContributors(fits, lots, func(l *registration.Lot) string {
+		return fmt.Sprintf("measured %s (lot of %d panels, %s)", l.Layer, l.Panels, file)
+	})
+	for _, c := range lm.Contributors {
+		out.Contributors = append(out.Contributors, c.Contributor)
 	}
-	return out, notes
+	return out, append(notes, lm.Notes...)
 }
 
 // Comparison is a panel before and after artwork scale compensation: the
