@@ -587,7 +587,7 @@ func (r *reportRun) compSection() (rep.Section, bool, error) {
 // the same).
 var reportAssumptions = []string{
 	"Quasi-static (TEM-like) fields, lossless lines, smooth copper, ideal infinite ground planes for stripline, vertical stacks of flat homogeneous dielectrics, traces as trapezoids standing on the core face they were etched on with the rest of their copper slab filled by the neighbouring prepreg's resin.",
-	"Error terms are independent between contributors.",
+	"Error terms are independent between contributors; layers measured together on the same panels are carried as weighted components of their joint movement.",
 }
 
 var reportCautions = []string{
