@@ -198,8 +198,8 @@ func (a *Analysis) YieldSummaryTurn(res *registration.MCResult, seed uint64, tur
 		Coupons: len(y.Coupons), Warnings: a.Warnings()}
 	for i := range a.Sites {
 		sum.SiteYieldMean += res.SiteYield(i) / float64(len(a.Sites))
-		sum.SiteYieldMeanClosed += a.Sites[i].PInSpec / float64(len(a.Sites))
 	}
+	sum.SiteYieldMeanClosed = a.MeanPInSpec() // the one mean of the closed form, as map and the comparison use
 	mean := res.MeanGoodParts()
 	if y.Products() > 0 {
 		sum.PartYieldMean = mean / float64(y.Products())
