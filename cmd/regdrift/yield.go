@@ -246,17 +246,21 @@ func goodPartsCell(g drift.YieldArray) string {
 
 // printOrientation writes the orientation study of one job.
 func printOrientation(w io.Writer, orients []drift.Orient, minGain float64, lu lengthUnit) {
-	printOrientationOf(w, orients, nil, minGain, lu)
+	printOrientationOf(w, orients, nil, minGain, true, lu)
 }
 
 // printOrientationOf writes the orientation study, with the threshold a turn
 // must pass; variants, if not nil, names the variant of each line.
-func printOrientationOf(w io.Writer, orients []drift.Orient, variants []string, minGain float64, lu lengthUnit) {
+func printOrientationOf(w io.Writer, orients []drift.Orient, variants []string, minGain float64, mc bool, lu lengthUnit) {
 	if len(orients) == 0 {
 		return
 	}
 	fmt.Fprintf(w, "\norientation (parts kept in place, lines turned 90 deg; closed-form mean site yield):\n")
-	fmt.Fprintf(w, "a turn is recommended when its gain exceeds %.2f %% and the Monte Carlo resolution (2 standard errors)\n", 100*minGain)
+	if mc {
+		fmt.Fprintf(w, "a turn is recommended when its gain exceeds %.2f %% and the Monte Carlo resolution (2 standard errors)\n", 100*minGain)
+	} else {
+		fmt.Fprintf(w, "a turn is recommended when its gain exceeds %.2f %% (no Monte Carlo ran to confirm it)\n", 100*minGain)
+	}
 	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 	head := "  "
 	if variants != nil {
@@ -409,7 +413,7 @@ func printVariants(w io.Writer, cmp *drift.VariantComparison, lu lengthUnit, pat
 			on = append(on, v.Name)
 		}
 	}
-	printOrientationOf(w, orients, on, cmp.TurnMinGain, lu)
+	printOrientationOf(w, orients, on, cmp.TurnMinGain, cmp.Trials > 0, lu)
 	if len(paths) > 0 {
 		fmt.Fprintf(w, "\nwrote %s\n", strings.Join(paths, ", "))
 	}

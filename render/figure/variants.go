@@ -22,10 +22,13 @@ func Variants(w io.Writer, cmp *drift.VariantComparison, title string) error {
 	b := render.BarChart{XLabel: "parts lost per panel (expected)"}
 	how := fmt.Sprintf("%d panels each, seed %d", cmp.Trials, cmp.Seed)
 	if cmp.Trials == 0 {
-		how = "closed form: bars at the most the bounds allow"
+		how = "closed form, bars at the upper bound"
 		b.XLabel = "parts lost per panel (at most, from the closed-form bounds)"
 	}
-	b.Title = fmt.Sprintf("Placement variants, parts lost per panel (%s): %s", how, title)
+	b.Title = fmt.Sprintf("Placement variants, parts lost per panel (%s)", how)
+	if t := b.Title + ": " + title; len([]rune(t)) <= titleRunes {
+		b.Title = t // the design's title only when it fits whole
+	}
 	for k, v := range cmp.Variants {
 		col := render.Series(k)
 		if v.GoodPartsPerPanel != nil {
@@ -72,3 +75,9 @@ func Variants(w io.Writer, cmp *drift.VariantComparison, title string) error {
 	}
 	return b.Render(2000, 0).EncodePNG(w)
 }
+
+// titleRunes is about as many characters as the bar chart's bold title
+// holds across its 2000 pixels (a text size of width/64, characters about
+// 0.55 of it wide, times 1.2 for the title): the design's title is left out
+// of a longer one rather than cut.
+const titleRunes = 88
