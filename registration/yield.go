@@ -244,7 +244,15 @@ type Yield struct {
 	Pairs []*Relative
 	Pair  []int
 	Parts int // number of part instances
+	// Coupons lists the part instances that are not products (test coupon
+	// strips), in increasing order: their sites and part yields are tallied
+	// like any other, but they are left out of MCResult.GoodParts. Nil means
+	// every part is a product.
+	Coupons []int
 }
+
+// Products returns the number of part instances that are products.
+func (y *Yield) Products() int { return y.Parts - len(y.Coupons) }
 
 // NewYield prepares a yield study of sites under model m, with parts part
 // instances (site Part indices must lie in [0, parts) or be −1).
@@ -374,8 +382,9 @@ const MCBlock = 256
 type MCResult struct {
 	Trials   int
 	SiteGood []int64 // per site, panels on which the site met its spec
-	PartGood []int64 // per part instance, panels on which all its sites did
-	// GoodParts[k] is the number of panels with exactly k good parts.
+	PartGood []int64 // per part instance (coupons too), panels on which all its sites did
+	// GoodParts[k] is the number of panels with exactly k good products
+	// (coupon parts are not counted; see Yield.Coupons).
 	GoodParts []int64
 }
 
@@ -454,7 +463,7 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 	workers = min(workers, blocks)
 
 	res := &MCResult{Trials: set.Trials, SiteGood: make([]int64, len(sites)),
-		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Parts+1)}
+		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Products()+1)}
 	var next atomic.Int64
 	var mu sync.Mutex
 	done := 0
@@ -518,7 +527,7 @@ func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	pcg := rand.NewPCG(0, 0)
 	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
 		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
-		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1)}
+		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1)}
 }
 
 // block runs n trials from stream (seed, b): the worker's generator is
@@ -551,7 +560,15 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 				bad++
 			}
 		}
-		w.goodParts[w.y.Parts-bad]++
+		// Coupon parts failed in this trial were counted in bad; they are
+		// few (a strip or two), so taking them out here keeps the site
+		// loop free of the product test.
+		for _, c := range w.y.Coupons {
+			if w.stamp[c] == t {
+				bad--
+			}
+		}
+		w.goodParts[w.y.Products()-bad]++
 	}
 	w.trials += int64(n)
 }

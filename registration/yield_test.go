@@ -444,3 +444,40 @@ func BenchmarkMonteCarloMemory(b *testing.B) {
 		})
 	}
 }
+
+// TestMonteCarloCoupons: a coupon part (Yield.Coupons) that always fails
+// leaves the good parts per panel alone, while its own part yield and its
+// sites are still counted. Three parts of one site each, no error terms:
+// parts 0 and 2 always meet a ±1 mil window, coupon part 1 never meets an
+// empty one, so every panel has exactly 2 good products of 2.
+func TestMonteCarloCoupons(t *testing.T) {
+	m := &Model{Contributors: []Contributor{{Name: "none", Layers: []string{"A"}}}}
+	win := Interval{Lo: -25.4e-6, Hi: 25.4e-6}
+	sites := []YieldSite{
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: win, Part: 0},
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: EmptyInterval(), Part: 1},
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: win, Part: 2},
+	}
+	y := NewYield(m, sites, 3)
+	y.Coupons = []int{1}
+	const trials = 300
+	res, err := y.MonteCarlo(context.Background(), MCSettings{Trials: trials, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if y.Products() != 2 || len(res.GoodParts) != 3 || res.GoodParts[2] != trials {
+		t.Errorf("good products per panel %v, want all %d panels at 2 of 2", res.GoodParts, trials)
+	}
+	if res.PartGood[0] != trials || res.PartGood[1] != 0 || res.PartGood[2] != trials || res.SiteGood[1] != 0 {
+		t.Errorf("part counts %v, site counts %v", res.PartGood, res.SiteGood)
+	}
+	// Without the coupon mark the same failing part costs one part a panel.
+	y.Coupons = nil
+	res, err = y.MonteCarlo(context.Background(), MCSettings{Trials: trials, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.GoodParts) != 4 || res.GoodParts[2] != trials {
+		t.Errorf("good parts per panel %v, want all %d panels at 2 of 3", res.GoodParts, trials)
+	}
+}

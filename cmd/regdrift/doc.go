@@ -207,7 +207,7 @@ solved coupling curve, as map and yield do.
 
 Usage:
 
-	regdrift yield JOB [--trials N] [--seed S] [-o DIR] [--json]
+	regdrift yield JOB [JOB...] [--trials N] [--seed S] [--closed-form] [--turn-gain PCT] [-o DIR] [--json]
 
 Coupler and part yield across panels, and the error budget.
 
@@ -238,6 +238,34 @@ section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
 site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
 (per site p_closed, p_mc and its standard error), budget.csv, budget.png and
 yield.json, and a summary table to stdout.
+
+Arrays are named by their name key (a1, a2, ... by position without one) in
+part and site names and in the per-array table. An array with product = false
+is a coupon strip: its couplers are mapped, simulated and reported per array,
+but its parts count in no part yield, good parts per panel or worst parts.
+
+The orientation study turns each array's parts a quarter turn in place and
+compares the closed-form mean site yield. It recommends a turn only when the
+gain exceeds --turn-gain (default 0.5 %: re-stepping a panel costs more than
+one coupler in two hundred) and the Monte Carlo resolution of the array's
+mean site yield (twice its standard error, bounded by the mean of the sites'
+binomial errors); it says "either" when neither orientation wins by that much.
+
+With several job files, typically thin variants that include one base (the
+stackup, sections, parts and error model) and place the arrays differently,
+yield compares them: every variant is drawn with the same seed, so variants
+that share the error model see the same panels and their differences are
+sharper than each figure's own error. One table gives per variant the site
+yield, part yield, good parts per panel (with its 5th percentile and the
+difference from the first variant) and the same per named array, then the
+orientation study of every variant; it writes variants.csv, variants.json
+(printed with --json) and variants.png (parts lost per panel, per variant and
+array). Run yield on one variant for its maps and error budget. --closed-form
+skips the Monte Carlo: site yields are then exact, and part yields and good
+parts are given as bounds from the site yields alone (the Fréchet bounds
+1 − Σ(1 − pᵢ) ≤ P(all sites good) ≤ min pᵢ, whatever the sites' correlation).
+--strict exits 3 when any variant's part yield is below 100 % (with
+--closed-form: its lower bound).
 
 # report
 

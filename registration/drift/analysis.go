@@ -59,6 +59,11 @@ func New(in *Input, model *registration.Model) *Analysis {
 		a.used[si] = true
 	}
 	a.Yield = registration.NewYield(model, ys, len(in.Instances))
+	for k := range in.Instances {
+		if in.Instances[k].Coupon {
+			a.Yield.Coupons = append(a.Yield.Coupons, k)
+		}
+	}
 	for k := range a.Sites {
 		r := &a.Sites[k]
 		r.Row = a.Yield.Rows[k]
