@@ -52,6 +52,9 @@ const (
 	AtTopLeft
 	AtBottomLeft
 	AtBottomRight
+	// Outside puts the legend to the right of the panel, clear of the data
+	// whatever it covers; the plot narrows to make room.
+	Outside
 )
 
 // MarkerShape is the symbol drawn at each point of a Line.
@@ -268,6 +271,14 @@ func (p *Plot) Render(width, height int) *Canvas {
 	}
 	left := margin + 1.9*em + labelW + tickEm*em + 0.4*em
 	right := float64(width) - 1.6*em
+	outside := 0.0
+	for _, a := range p.Axes {
+		if items := legendLabels(a); a.Legend == Outside && len(items) > 0 {
+			w, _ := legendSize(c, items)
+			outside = math.Max(outside, w+0.8*em)
+		}
+	}
+	right -= outside
 	xticks, xstep := Ticks(x0, x1, clampInt(int((right-left)/(4.5*em)), 2, 12))
 
 	y := top
@@ -508,7 +519,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 		corner = BottomRight
 	}
 	var placed []box
-	if showLegend {
+	if showLegend && a.Legend != Outside {
 		placed = append(placed, legendBox(c, ar, legend, corner, 0.8*em))
 	}
 	// Vertical markers: labels at the top, right of the line (or left of
@@ -589,7 +600,12 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 	if a.YLabel != "" {
 		c.textUp(a.YLabel, float64(marginEm*em)+0.6*em, (fb.y0+fb.y1)/2, textStyle{})
 	}
-	if showLegend {
+	switch {
+	case showLegend && a.Legend == Outside:
+		w, h := legendSize(c, legend)
+		x0 := fb.x1 + 0.8*em
+		drawLegendBox(c, box{x0, fb.y0, x0 + w, fb.y0 + h}, legend)
+	case showLegend:
 		drawLegend(c, ar, legend, corner)
 	}
 }

@@ -95,11 +95,15 @@ func Budget(w io.Writer, sum *drift.YieldSummary) error {
 	for _, r := range sum.Budget.AtWorst {
 		atWorst[r.Contributor+"\x00"+r.Term] = r.Share
 	}
+	const rows = 12
 	b := render.BarChart{
 		Title:  fmt.Sprintf("Error budget over the panel; in brackets: at the worst site, %s", sum.Budget.WorstSite),
 		XLabel: "share of variance over the panel [%]",
 	}
-	for _, r := range sum.Budget.Panel[:min(12, len(sum.Budget.Panel))] {
+	if n := len(sum.Budget.Panel); n > rows {
+		b.Title += fmt.Sprintf(" (the %d largest of %d terms)", rows, n)
+	}
+	for _, r := range sum.Budget.Panel[:min(rows, len(sum.Budget.Panel))] {
 		b.Labels = append(b.Labels, r.Contributor+": "+r.Term)
 		b.Values = append(b.Values, 100*r.Share)
 		b.Texts = append(b.Texts, fmt.Sprintf("%.1f %% (%.1f %%)", 100*r.Share, 100*atWorst[r.Contributor+"\x00"+r.Term]))
