@@ -3,6 +3,7 @@ package render
 import (
 	"image"
 	"image/color"
+	"math"
 	"strings"
 	"testing"
 )
@@ -152,5 +153,26 @@ func TestOutsideLegendOffData(t *testing.T) {
 	}
 	if !gap {
 		t.Error("no gap between the data and the legend samples: the legend sits on the data")
+	}
+}
+
+// TestBarsContrastOutline: with Contrast, a dark bar is outlined in Halo
+// and a light one in Ink, so both show over a field of their own colour.
+func TestBarsContrastOutline(t *testing.T) {
+	m := NewMap(MapSpec{Width: 800, Extent: Centered(1, 1), NoColorBar: true})
+	v := m.Views[0]
+	dark, light := color.RGBA{30, 20, 60, 255}, color.RGBA{250, 230, 200, 255}
+	v.Bars([]Bar{{At: Point{X: -0.2}, Length: 0.1, Angle: math.Pi / 2, Color: dark},
+		{At: Point{X: 0.2}, Length: 0.1, Angle: math.Pi / 2, Color: light}}, BarStyle{Width: 8, Contrast: true})
+	d, l := span(pixelsOf(m.Canvas, dark)), span(pixelsOf(m.Canvas, light))
+	if d.Empty() || l.Empty() {
+		t.Fatal("bars not drawn")
+	}
+	img := m.Image()
+	if got := img.RGBAAt(d.Min.X-1, (d.Min.Y+d.Max.Y)/2); got != Halo {
+		t.Errorf("dark bar outlined in %v, want Halo", got)
+	}
+	if got := img.RGBAAt(l.Min.X-1, (l.Min.Y+l.Max.Y)/2); got != Ink {
+		t.Errorf("light bar outlined in %v, want Ink", got)
 	}
 }

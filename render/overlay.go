@@ -29,6 +29,11 @@ type BarStyle struct {
 	// similar colour; nil means Ink. Set NoOutline to leave it out.
 	Outline   color.Color
 	NoOutline bool
+	// Contrast picks each bar's outline by its fill: Halo round a dark bar,
+	// Ink round a light one, so that bars stay visible over a field that
+	// runs from light to dark (a bar takes the field's colour where it
+	// agrees with it). Bars along neither axis keep Outline.
+	Contrast bool
 }
 
 // Bars draws many bars quickly. Bars along x or y are filled straight into
@@ -125,11 +130,19 @@ func (v *View) axisBar(b Bar, w, minLen float64, s BarStyle) bool {
 	img := v.c.img
 	if !s.NoOutline {
 		ow := math.Max(1, w/4)
-		fillPixels(img, x-hx-ow, y-hy-ow, x+hx+ow, y+hy+ow, rgbaOf(orInk(s.Outline)))
+		oc := rgbaOf(orInk(s.Outline))
+		if s.Contrast && Luma(b.Color) < contrastLuma {
+			oc = Halo
+		}
+		fillPixels(img, x-hx-ow, y-hy-ow, x+hx+ow, y+hy+ow, oc)
 	}
 	fillPixels(img, x-hx, y-hy, x+hx, y+hy, b.Color)
 	return true
 }
+
+// contrastLuma is the luma below which a fill counts as dark, for outlines
+// and marks drawn over it (the threshold yield.png's contours use).
+const contrastLuma = 0.45
 
 func rgbaOf(c color.Color) color.RGBA {
 	r, g, b, a := c.RGBA()

@@ -133,7 +133,10 @@ coupling meets the lower and upper spec limits, by root-finding on the solved
 coupling curve, and confirms each by a direct field solve at the root (refined
 by the secant method on direct solves until the coupling is within 0.0002 dB of
 the limit). The symmetric tolerance for the drawing is the smaller distance
-from the design offset to the two limits. The curve is the one map and yield
+from the design offset to the two limits. For two traces on one copper layer
+(an edge-coupled pair) the offset is their centre-to-centre spacing, which
+layer registration cannot move: the table and tol.json (offset_is "spacing",
+gap_m) give it as a spacing (gap) tolerance, not a registration tolerance. The curve is the one map and yield
 read (its range doubled, up to four times, while the coupling is still in spec
 at an end); the orientation study uses its allowed offsets, as yield does.
 
@@ -142,8 +145,9 @@ at an end); the orientation study uses its allowed offsets, as yield does.
 job's spec, the tolerance against the spec window re-centred on the widened
 design's own coupling (widening moves the nominal coupling, so the design
 would be re-tuned), the coupling at the design offset and each line's
-impedance, as a table and tol.png (the family of coupling curves with the spec
-band).
+impedance, as a table and tol.png (one plot per section over its own offsets:
+the design's curve in bold, the widened family light to dark by width, the
+spec band, the legend beside the plot).
 
 Also an orientation study per array: the closed-form mean site yield with
 the parts as placed and turned a quarter turn (couplers kept in place; only

@@ -234,10 +234,10 @@ func MapView(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions
 	colour := func(i int, _ *drift.Site) color.RGBA { return pal.Map(s.siteValue(a, i, u), lo, hi) }
 	if len(used) > 1 {
 		for n, si := range used {
-			v.Bars(siteBarsOf(a, func(r *drift.Site) bool { return r.Section == si }, colour), render.BarStyle{Width: barWidth * float64(n+1)})
+			v.Bars(siteBarsOf(a, func(r *drift.Site) bool { return r.Section == si }, colour), render.BarStyle{Width: barWidth * float64(n+1), Contrast: true})
 		}
 	} else {
-		v.Bars(siteBars(a, colour), render.BarStyle{Width: barWidth})
+		v.Bars(siteBars(a, colour), render.BarStyle{Width: barWidth, Contrast: true})
 	}
 	var ms []render.Marker
 	for _, ws := range sum.Worst {
