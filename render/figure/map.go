@@ -218,8 +218,8 @@ func MapView(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions
 	title = append(title, fmt.Sprintf("expected in spec %.1f of %d sites (%d with the mean offset in spec)", sum.ExpectedInSpec, sum.Sites, sum.InSpec))
 	if len(sum.Worst) > 0 {
 		ws := sum.Worst[0]
-		title[len(title)-1] += fmt.Sprintf("; worst %s (%s): P(in spec) %.4f, offset from design %+.2f %s, drift %+.3f dB, margin %.3f dB",
-			ws.Name, ws.Section, ws.PInSpec, ws.OffsetFromDesignM/u.LengthSI(), u.Length(), ws.DriftDB, ws.MarginDB)
+		title = append(title, fmt.Sprintf("least likely in spec: %s (%s), P(in spec) %.4f, offset from design %+.2f %s, drift %+.3f dB, margin %.3f dB",
+			ws.Name, ws.Section, ws.PInSpec, ws.OffsetFromDesignM/u.LengthSI(), u.Length(), ws.DriftDB, ws.MarginDB))
 	}
 	fieldOf := "over each array its most common coupler kind"
 	if s.window {
