@@ -48,7 +48,7 @@ All demo data are invented.
 
 Usage:
 
-	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin] [--width PX] [--json]
+	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin|window|p] [--width PX] [--strict [--strict-p P]] [--json]
 
 Map the broadside offset and coupling drift of every coupler site on the panel.
 
@@ -56,10 +56,30 @@ Computes, for every coupler site of the job, the mean broadside offset that the
 registration error model produces there (closed form, linear in the terms), its
 standard deviation, and the coupling it gives from the section's solved
 coupling-versus-offset curve: drift against the design offset, margin to the
-spec limits, and the coupling at mean ± 3 sigma.
+spec limits, the coupling at mean ± 3 sigma, and the probability that the site
+is in spec (the closed form yield reports as p_closed).
 
-Writes map.png (heatmap of the panel), sites.csv (one row per site) and
-summary.json to the output directory, and a summary table to stdout.
+The headline is the expected number of sites in spec (the sum of those
+probabilities) beside the count whose mean offset is in spec; the table gives
+both per section with the lowest probability. The ten ringed sites, the
+"worst site" line and the worst list of summary.json are the sites least likely
+to be in spec (lowest probability, then largest |drift|). Offsets in the table
+are from the design offset; summary.json gives offset_m with each section's
+design offset included and offset_from_design_m without it.
+
+--show picks the field: drift (the default when all sites share one section),
+worst, offset, sigma, margin, p (probability in spec) or window, the share of
+the site's allowed offsets that mean ± 3 sigma reaches (1 at the window's
+edge), the default when sections differ, whose drifts in dB do not compare;
+each section's bars then have their own width, named in the legend.
+
+--strict exits with status 3 when any site is in spec with a probability below
+--strict-p (default 0.9973, the share of a normal distribution within ±3
+sigma: every site in spec at three sigma).
+
+Writes map.png (heatmap of the panel), sites.csv (one row per site, with
+p_in_spec) and summary.json to the output directory, and a summary table to
+stdout.
 
 # sweep
 
@@ -113,7 +133,10 @@ coupling meets the lower and upper spec limits, by root-finding on the solved
 coupling curve, and confirms each by a direct field solve at the root (refined
 by the secant method on direct solves until the coupling is within 0.0002 dB of
 the limit). The symmetric tolerance for the drawing is the smaller distance
-from the design offset to the two limits. The curve is the one map and yield
+from the design offset to the two limits. For two traces on one copper layer
+(an edge-coupled pair) the offset is their centre-to-centre spacing, which
+layer registration cannot move: the table and tol.json (offset_is "spacing",
+gap_m) give it as a spacing (gap) tolerance, not a registration tolerance. The curve is the one map and yield
 read (its range doubled, up to four times, while the coupling is still in spec
 at an end); the orientation study uses its allowed offsets, as yield does.
 
@@ -122,8 +145,9 @@ at an end); the orientation study uses its allowed offsets, as yield does.
 job's spec, the tolerance against the spec window re-centred on the widened
 design's own coupling (widening moves the nominal coupling, so the design
 would be re-tuned), the coupling at the design offset and each line's
-impedance, as a table and tol.png (the family of coupling curves with the spec
-band).
+impedance, as a table and tol.png (one plot per section over its own offsets:
+the design's curve in bold, the widened family light to dark by width, the
+spec band, the legend beside the plot).
 
 Also an orientation study per array: the closed-form mean site yield with
 the parts as placed and turned a quarter turn (couplers kept in place; only

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strings"
 	"text/tabwriter"
 
@@ -126,7 +127,16 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 			}
 			fmt.Fprintf(w, "  meets the spec limits at %s and %s\n", end(s.OffsetLowM, s.LimitLowDB, s.SolvedLowDB, s.LowAtRangeEnd),
 				end(s.OffsetHighM, s.LimitHighDB, s.SolvedHighDB, s.HighAtRangeEnd))
-			fmt.Fprintf(w, "  drawing tolerance: design offset ± %.3f %s\n", s.ToleranceM/lu.factor, u)
+			if s.GapM != nil {
+				// Both traces on one layer: registration cannot move them
+				// apart, so the offset is their spacing and the tolerance
+				// one on the gap the etch leaves.
+				fmt.Fprintf(w, "  both traces are on %s: the offset is their centre-to-centre spacing, which layer registration cannot move\n", s.Curve.Section.Traces[0].Layer)
+				fmt.Fprintf(w, "  spacing (gap) tolerance, not a registration tolerance: spacing %.3f ± %.3f %s, gap %.3f ± %.3f %s\n",
+					math.Abs(s.DesignOffsetM)/lu.factor, s.ToleranceM/lu.factor, u, *s.GapM/lu.factor, s.ToleranceM/lu.factor, u)
+			} else {
+				fmt.Fprintf(w, "  drawing tolerance: design offset ± %.3f %s\n", s.ToleranceM/lu.factor, u)
+			}
 		}
 		if len(s.Widen) > 0 {
 			tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)

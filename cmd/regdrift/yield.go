@@ -168,23 +168,30 @@ func printYield(w io.Writer, title string, sum *drift.YieldSummary, lu lengthUni
 	tw.Flush()
 	gp := sum.GoodPartsPerPanel
 	fmt.Fprintf(w, "\nsite yield   %.4f %% (closed form %.4f %%)\n", 100*sum.SiteYieldMean, 100*sum.SiteYieldMeanClosed)
-	fmt.Fprintf(w, "part yield   %.4f %%\n", 100*sum.PartYieldMean)
-	fmt.Fprintf(w, "good parts per panel: expected %.2f of %d, 5th percentile %d, median %d, min %d\n\n", gp.Mean, sum.Parts, gp.P05, gp.P50, gp.Min)
-	fmt.Fprintf(w, "worst parts:\n")
-	tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
-	fmt.Fprintf(tw, "  part\tpart yield\tworst site\tits yield\n")
-	for _, p := range sum.WorstParts[:min(5, len(sum.WorstParts))] {
-		fmt.Fprintf(tw, "  %s\t%.4f %%\t%s\t%.4f %%\n", p.Name, 100*p.PartYield, p.WorstSite, 100*p.WorstSiteYield)
+	if sum.Parts == 0 {
+		fmt.Fprintf(w, "part yield   none: the sites belong to no part (placement file)\n\n")
+	} else {
+		fmt.Fprintf(w, "part yield   %.4f %%\n", 100*sum.PartYieldMean)
+		fmt.Fprintf(w, "good parts per panel: expected %.2f of %d, 5th percentile %d, median %d, min %d\n\n", gp.Mean, sum.Parts, gp.P05, gp.P50, gp.Min)
 	}
-	tw.Flush()
-	fmt.Fprintf(w, "\nerror budget (share of the across-offset variance):\n")
+	if len(sum.WorstParts) > 0 {
+		fmt.Fprintf(w, "worst parts:\n")
+		tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
+		fmt.Fprintf(tw, "  part\tpart yield\tworst site\tits yield\n")
+		for _, p := range sum.WorstParts[:min(5, len(sum.WorstParts))] {
+			fmt.Fprintf(tw, "  %s\t%.4f %%\t%s\t%.4f %%\n", p.Name, 100*p.PartYield, p.WorstSite, 100*p.WorstSiteYield)
+		}
+		tw.Flush()
+		fmt.Fprintln(w)
+	}
+	fmt.Fprintf(w, "error budget (share of the across-offset variance%s):\n", shownOf(budgetRows, len(sum.Budget.Panel)))
 	tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 	fmt.Fprintf(tw, "  contributor\tterm\tpanel\tsd [%s]\tat %s\n", lu.name, sum.Budget.WorstSite)
 	atWorst := map[string]float64{}
 	for _, r := range sum.Budget.AtWorst {
 		atWorst[r.Contributor+"\x00"+r.Term] = r.Share
 	}
-	for _, r := range sum.Budget.Panel[:min(8, len(sum.Budget.Panel))] {
+	for _, r := range sum.Budget.Panel[:min(budgetRows, len(sum.Budget.Panel))] {
 		fmt.Fprintf(tw, "  %s\t%s\t%.1f %%\t%.3f\t%.1f %%\n", r.Contributor, r.Term, 100*r.Share, r.SDM/lu.factor, 100*atWorst[r.Contributor+"\x00"+r.Term])
 	}
 	tw.Flush()
@@ -193,6 +200,19 @@ func printYield(w io.Writer, title string, sum *drift.YieldSummary, lu lengthUni
 	if len(paths) > 0 {
 		fmt.Fprintf(w, "\nwrote %s\n", strings.Join(paths, ", "))
 	}
+}
+
+// budgetRows is how many terms of the error budget the table shows, the
+// largest first; budget.csv and yield.json have them all.
+const budgetRows = 8
+
+// shownOf says, when only the first shown of n rows are listed, which they
+// are and where the rest are.
+func shownOf(shown, n int) string {
+	if n <= shown {
+		return ""
+	}
+	return fmt.Sprintf("; the %d largest of %d terms, all in budget.csv", shown, n)
 }
 
 // printArrays writes the per-array table of a yield study, when the panel

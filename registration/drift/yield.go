@@ -196,10 +196,16 @@ func (a *Analysis) YieldSummaryTurn(res *registration.MCResult, seed uint64, tur
 	in, y := a.In, a.Yield
 	sum := &YieldSummary{Job: in.Source, Trials: res.Trials, Seed: seed, Sites: len(in.Sites), Parts: y.Products(),
 		Coupons: len(y.Coupons), Warnings: a.Warnings()}
+	// Count the good site-trials, then divide once: adding SiteYield/n n
+	// times reported 1.0000000000000107 for a panel where every site passed.
+	var good float64
 	for i := range a.Sites {
-		sum.SiteYieldMean += res.SiteYield(i) / float64(len(a.Sites))
+		good += float64(res.SiteGood[i])
 	}
-	sum.SiteYieldMeanClosed = a.MeanPInSpec() // the one mean of the closed form, as map and the comparison use
+	if len(a.Sites) > 0 && res.Trials > 0 {
+		sum.SiteYieldMean = Clamp01(good / (float64(res.Trials) * float64(len(a.Sites))))
+	}
+	sum.SiteYieldMeanClosed = a.MeanPInSpec()
 	mean := res.MeanGoodParts()
 	if y.Products() > 0 {
 		sum.PartYieldMean = mean / float64(y.Products())
@@ -265,7 +271,7 @@ func (a *Analysis) YieldSummaryTurn(res *registration.MCResult, seed uint64, tur
 				ysec.SiteYieldMean += res.SiteYield(i)
 			}
 		}
-		ysec.SiteYieldMean /= float64(ysec.Sites)
+		ysec.SiteYieldMean = Clamp01(ysec.SiteYieldMean / float64(ysec.Sites))
 		sum.Sections = append(sum.Sections, ysec)
 	}
 	if len(a.Sites) > 0 {
