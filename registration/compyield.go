@@ -71,10 +71,11 @@ func (p *compProblem) yieldGrad(g, x []float64) {
 
 // maxYield maximises the expected site yield over the range directions (the
 // common part moves no offset, and leaving it out is the smallest change),
-// by BFGS (gonum optimize) from three deterministic starts: no change, the
-// normalised minimax and the normalised least-squares optima. The best end
-// wins; ends within yieldTie of it count as equal and the smallest change
-// wins among them. When the answer breaks the drill budget or a bound that
+// by BFGS (gonum optimize) from the best of three deterministic starts: no
+// change, the normalised minimax and the normalised least-squares optima
+// (starts within yieldTie of the best count as equal and the smallest change
+// wins among them). The climb only gains, so the answer is never below
+// keeping the artwork. When the answer breaks the drill budget or a bound that
 // the common part cannot mend, the constraints enter as a quadratic penalty
 // (exterior penalty method, Nocedal & Wright, Numerical Optimization, 2nd
 // ed., 2006, sec. 17.1) and the end is brought back onto the feasible set
@@ -90,15 +91,16 @@ func (p *compProblem) maxYield(null, rng [][]float64) ([]float64, string, error)
 	var best []float64
 	bestY := math.Inf(-1)
 	for _, x0 := range starts {
-		x := p.climb(x0, rng)
-		y := p.yield(x)
+		x0 = removeNull(x0, null)
+		y := p.yield(x0)
 		switch {
 		case y > bestY+yieldTie:
-			best, bestY = x, y
-		case y >= bestY-yieldTie && norm2(x) < norm2(best):
-			best, bestY = x, math.Max(y, bestY)
+			best, bestY = x0, y
+		case y >= bestY-yieldTie && norm2(x0) < norm2(best):
+			best, bestY = x0, math.Max(y, bestY)
 		}
 	}
+	best = p.climb(best, rng)
 	if y, common, ok := p.settle(best, null); ok {
 		return y, common, nil
 	}
@@ -150,14 +152,21 @@ func (p *compProblem) climb(x0 []float64, rng [][]float64) []float64 {
 			}
 		},
 	}
-	set := &optimize.Settings{GradientThreshold: 1e-12, MajorIterations: 400,
-		Converger: &optimize.FunctionConverge{Absolute: 1e-14, Iterations: 20}}
-	res, err := optimize.Minimize(prob, w0, set, &optimize.BFGS{})
+	res, err := optimize.Minimize(prob, w0, climbSettings(), &optimize.BFGS{})
 	f0 := -p.yield(toX(w0))
 	if res == nil || (err != nil && res.F >= f0) || !(res.F <= f0) {
 		return toX(w0)
 	}
 	return toX(res.X)
+}
+
+// climbSettings are the settings of every BFGS run: stop when three major
+// iterations gain less than 1e-12 of mean site yield (a thousandth of
+// yieldTie, so that a stop never decides between two answers) or the
+// gradient is below 1e-10 per ppm (a 1 ppm move would gain under 1e-10).
+func climbSettings() *optimize.Settings {
+	return &optimize.Settings{GradientThreshold: 1e-10, MajorIterations: 400,
+		Converger: &optimize.FunctionConverge{Absolute: 1e-12, Iterations: 3}}
 }
 
 // penaltyWeights are the successive weights of the exterior penalty on the
@@ -200,8 +209,7 @@ func (p *compProblem) constrain(x []float64) ([]float64, string, error) {
 				}
 			},
 		}
-		res, err := optimize.Minimize(prob, x, &optimize.Settings{GradientThreshold: 1e-12, MajorIterations: 400,
-			Converger: &optimize.FunctionConverge{Absolute: 1e-14, Iterations: 20}}, &optimize.BFGS{})
+		res, err := optimize.Minimize(prob, x, climbSettings(), &optimize.BFGS{})
 		if res != nil && (err == nil || res.F < prob.Func(x)) {
 			x = res.X
 		}
