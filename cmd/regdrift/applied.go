@@ -17,33 +17,38 @@ const appliedHelp = "artwork scale each layer of the measured lot was built with
 // LAYER:x=SCALE[,y=SCALE] with a strain unit on each scale (an axis left out
 // is zero). A layer may be given once over all values. Errors are bad input
 // naming the file's row or the flag value.
-func parseApplied(values []string, std stdio) (registration.AppliedSet, error) {
-	set := registration.AppliedSet{}
+//
+// src names where each layer was given: its file, or "--applied" for the
+// compact form.
+func parseApplied(values []string, std stdio) (set registration.AppliedSet, src map[string]string, err error) {
+	set, src = registration.AppliedSet{}, map[string]string{}
 	for _, v := range values {
 		var part registration.AppliedSet
+		from := "--applied"
 		if strings.Contains(v, "=") {
 			a, err := parseAppliedFlag(v)
 			if err != nil {
-				return nil, err
+				return nil, nil, err
 			}
 			part = registration.AppliedSet{a.Layer: a}
 		} else {
 			data, name, err := readFile(v, std.in)
 			if err != nil {
-				return nil, badInput(fmt.Errorf("--applied: %w", err))
+				return nil, nil, badInput(fmt.Errorf("--applied: %w", err))
 			}
 			if part, err = registration.ReadApplied(strings.NewReader(string(data)), name); err != nil {
-				return nil, badInput(fmt.Errorf("--applied: %w", err))
+				return nil, nil, badInput(fmt.Errorf("--applied: %w", err))
 			}
+			from = name
 		}
 		for l, a := range part {
 			if _, dup := set[l]; dup {
-				return nil, usageErr("--applied: layer %q is given twice", l)
+				return nil, nil, usageErr("--applied: layer %q is given twice", l)
 			}
-			set[l] = a
+			set[l], src[l] = a, from
 		}
 	}
-	return set, nil
+	return set, src, nil
 }
 
 // parseAppliedFlag reads LAYER:x=SCALE[,y=SCALE].

@@ -106,7 +106,8 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	if set.Applied, err = parseApplied(f.applied, std); err != nil {
+	var appliedSrc map[string]string
+	if set.Applied, appliedSrc, err = parseApplied(f.applied, std); err != nil {
 		return err
 	}
 	model := j.Model
@@ -123,7 +124,7 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		set.SE = lotSE(lots)
 	}
 	var more []string
-	if model, more, err = withApplied(j, model, lots, set.Applied); err != nil {
+	if model, more, err = withApplied(j, model, lots, set.Applied, appliedSrc); err != nil {
 		return err
 	}
 	notes = append(notes, more...)
@@ -270,7 +271,7 @@ func lotSE(lots []registration.Lot) map[string]registration.MovementSE {
 // change" keeps today's artwork for every layer (to first order: the sum of
 // the scales stands for the product, a difference of about a·m, 0.04 ppm at
 // 200 ppm each).
-func withApplied(j *Job, model *registration.Model, lots []registration.Lot, applied registration.AppliedSet) (*registration.Model, []string, error) {
+func withApplied(j *Job, model *registration.Model, lots []registration.Lot, applied registration.AppliedSet, src map[string]string) (*registration.Model, []string, error) {
 	if len(applied) == 0 {
 		return model, nil, nil
 	}
@@ -300,7 +301,7 @@ func withApplied(j *Job, model *registration.Model, lots []registration.Lot, app
 		if !copper[l] {
 			where := "--applied"
 			if a.Row > 0 {
-				where = fmt.Sprintf("--applied row %d", a.Row)
+				where = fmt.Sprintf("--applied: %s: row %d", src[l], a.Row)
 			}
 			return nil, nil, usageErr("%s: layer %q is not a copper layer of %s", where, l, j.File)
 		}

@@ -21,6 +21,9 @@ type Report struct {
 	Fits     []registration.Fit
 	Lots     []registration.Lot
 	Grids    map[string]*registration.Grid // by layer; nil for a layer without one
+	// Applied is the artwork each layer was built with (SetApplied); nil
+	// means CAD size and no artwork table in the summary.
+	Applied registration.AppliedSet
 }
 
 // New fits the targets ts (read from file) with set: every panel and layer
@@ -122,6 +125,9 @@ type Summary struct {
 	DatumM [2]float64 `json:"datum_m"`
 	Fits   []FitJSON  `json:"fits"`
 	Lot    []LotJSON  `json:"lot"`
+	// Artwork is, with an applied artwork, each layer's material movement
+	// and the setting that cancels it (Artwork).
+	Artwork []ArtworkJSON `json:"artwork,omitempty"`
 }
 
 // Summary returns the JSON summary of r.
@@ -145,6 +151,11 @@ func (r *Report) Summary() *Summary {
 	for _, l := range r.Lots {
 		s.Lot = append(s.Lot, LotJSON{Layer: l.Layer, Panels: l.Panels,
 			Mean: newTerms(l.Mean, l.Model, true), Sigma: newTerms(l.SD, l.Model, false)})
+	}
+	if r.Applied != nil {
+		for _, a := range r.Artworks() {
+			s.Artwork = append(s.Artwork, a.JSON())
+		}
 	}
 	return s
 }
