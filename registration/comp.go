@@ -71,11 +71,13 @@ type CompSite struct {
 }
 
 // MovementSE is the standard error of a layer's measured mean scale terms
-// (strain), from a lot of Panels panels: the lot's panel-to-panel standard
-// deviation over √Panels.
+// (strain), from Panels panels: the lot's panel-to-panel standard deviation
+// over √Panels. From, when set, says what Panels counts instead (for an
+// estimate from a history, "lots of history (EWMA)").
 type MovementSE struct {
 	X, Y   float64
 	Panels int
+	From   string
 }
 
 // CompSettings configures Compensate. The zero value maximises the expected
@@ -957,7 +959,7 @@ func (p *compProblem) notes(res *CompResult, roundedOK bool, moved [2]bool) []st
 // than it (setting res.StepFinerThanSE).
 func (p *compProblem) seNotes(res *CompResult, moved [2]bool) []string {
 	var worst float64
-	panels := 0
+	panels, from := 0, "panels"
 	for _, l := range res.Layers {
 		for a, ax := range []AxisComp{l.X, l.Y} {
 			if moved[a] && !ax.Free {
@@ -966,6 +968,9 @@ func (p *compProblem) seNotes(res *CompResult, moved [2]bool) []string {
 		}
 		if se, ok := p.set.SE[l.Layer]; ok && (panels == 0 || se.Panels < panels) {
 			panels = se.Panels
+			if se.From != "" {
+				from = se.From
+			}
 		}
 	}
 	if worst == 0 {
@@ -974,7 +979,7 @@ func (p *compProblem) seNotes(res *CompResult, moved [2]bool) []string {
 		}
 		return nil
 	}
-	notes := []string{fmt.Sprintf("standard error of the recommended changes: up to %.2f ppm (from the lot mean of %d panels; it shrinks as 1/√panels)", worst*1e6, panels)}
+	notes := []string{fmt.Sprintf("standard error of the recommended changes: up to %.2f ppm (from %d %s; it shrinks as 1/√n)", worst*1e6, panels, from)}
 	if s := p.set.Step; s > 0 && s < worst {
 		res.StepFinerThanSE = true
 		notes = append(notes, fmt.Sprintf("the step of %.3g ppm is finer than that standard error (%.2f ppm): the rounded digits are below what the measurement resolves", s*1e6, worst*1e6))

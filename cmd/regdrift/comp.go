@@ -31,6 +31,8 @@ type compFlags struct {
 	weight    string
 	keep      bool
 	applied   []string
+	history   string
+	construct string
 	width     int
 	strict    bool
 	solver    solverFlags
@@ -43,6 +45,8 @@ func (f *compFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.objective, "objective", "yield", "maximise the expected site yield (yield), or minimise the largest (worst) or rms (rms) share of each site's window its offset uses")
 	fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil); a constraint only")
 	fs.StringArrayVar(&f.applied, "applied", nil, appliedHelp)
+	fs.StringVar(&f.history, "history", "", "history database (SQLite, see regdrift history): without --targets the next lot's movement of each trace layer comes from it; with --targets the lot is compared with its limits")
+	fs.StringVar(&f.construct, "construction", "", "with --history: read the history of this construction key only (default: every lot of each layer name)")
 	fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
 	fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
 	fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
@@ -123,11 +127,36 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
 		set.SE = lotSE(lots)
 	}
+	var checks []drift.HistoryCheck
+	if f.history != "" {
+		hs, err := readLayerHistory(ctx, f.history, f.construct, traceLayers(input(j)))
+		if err != nil {
+			return err
+		}
+		if f.targets == "" {
+			var hnotes []string
+			model, set.SE, hnotes = historyModel(model, hs, f.history)
+			notes = append(notes, hnotes...)
+		} else {
+			checks = historyChecks(hs, lots, set.Applied)
+			for _, c := range checks {
+				where := "inside"
+				if !c.Inside {
+					where = "OUTSIDE"
+				}
+				notes = append(notes, fmt.Sprintf("layer %s %s: this lot moved %+.1f ppm, %s the history's limits %+.1f … %+.1f ppm (centre %+.1f, %d lots)",
+					c.Layer, c.Axis, c.MovementPPM, where, c.LCLPPM, c.UCLPPM, c.CentrePPM, c.Lots))
+			}
+		}
+	}
 	var more []string
 	if model, more, err = withApplied(j, model, lots, set.Applied, appliedSrc); err != nil {
 		return err
 	}
 	notes = append(notes, more...)
+	if f.construct != "" && f.history == "" {
+		return usageErr("--construction needs --history")
+	}
 	if set.DrillBudget > 0 && slices.ContainsFunc(fitted, isRelative) {
 		notes = append(notes, "--drill-budget: a relative measurement (layer against layer) carries no registration to the drilled holes; the budget acts on the job's model of those layers")
 	}
@@ -140,7 +169,7 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		return solveErr(j, err)
 	}
 	notes = append(notes, cmp.Notes...)
-	sum, paths, err := writeComp(f.out, cmp, fitted, notes, f.width, lu)
+	sum, paths, err := writeCompChecked(f.out, cmp, fitted, notes, checks, f.width, lu)
 	if err != nil {
 		return err
 	}
@@ -158,7 +187,13 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 
 // writeComp writes the compensation's files into dir.
 func writeComp(dir string, cmp *drift.Comparison, fitted, notes []string, width int, lu lengthUnit) (*drift.CompSummary, []string, error) {
+	return writeCompChecked(dir, cmp, fitted, notes, nil, width, lu)
+}
+
+// writeCompChecked is writeComp with the lot's comparison with its history.
+func writeCompChecked(dir string, cmp *drift.Comparison, fitted, notes []string, checks []drift.HistoryCheck, width int, lu lengthUnit) (*drift.CompSummary, []string, error) {
 	sum := cmp.Summary(fitted, notes)
+	sum.History = checks
 	u := lu.units()
 	paths, err := writeAll(dir,
 		outFile{"comp.csv", func(w io.Writer) error { return cmp.WriteCSV(w, u) }},

@@ -11,6 +11,8 @@ import (
 
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/registration/history"
+	"github.com/regdrift/regdrift/samples"
 )
 
 // analyticJob is two-core.toml with its couplers turned to run along x and
@@ -342,4 +344,82 @@ func must[T any](v T, err error) T {
 		panic(err)
 	}
 	return v
+}
+
+// TestCompHistory: without targets, comp takes each trace layer's next-lot
+// movement from the history (the EWMA run-to-run estimate of
+// history.EWMAEstimate over the stored lots); with a lot's targets it says
+// whether that lot lies inside the history's individuals-chart limits.
+func TestCompHistory(t *testing.T) {
+	tmp := t.TempDir()
+	db := filepath.Join(tmp, "h.db")
+	var coreB, coreA []samples.HistoryLot
+	for _, h := range samples.DemoHistory() {
+		switch {
+		case h.Construction == samples.HistoryCoreB && len(coreB) < 9:
+			coreB = append(coreB, h)
+		case h.Construction == samples.HistoryCoreA && h.Name == "H041":
+			coreA = append(coreA, h)
+		}
+	}
+	files := func(h samples.HistoryLot) (string, string) {
+		targets, applied := filepath.Join(tmp, h.Name+".csv"), filepath.Join(tmp, h.Name+"-applied.csv")
+		if err := writeFileWith(targets, h.WriteTargets); err != nil {
+			t.Fatal(err)
+		}
+		if err := writeFileWith(applied, h.WriteApplied); err != nil {
+			t.Fatal(err)
+		}
+		return targets, applied
+	}
+	for _, h := range coreB[:8] {
+		targets, applied := files(h)
+		if code, _, errs := runPlain(t, "", "history", "add", targets, "--lot", h.Name, "--date", h.Date, "--construction", h.Construction, "--applied", applied, "--db", db); code != 0 {
+			t.Fatalf("history add: exit %d: %s", code, errs)
+		}
+	}
+	s := compJSON(t, "../../samples/two-core.toml", "--history", db, "--construction", samples.HistoryCoreB)
+	d, err := history.Open(t.Context(), db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer d.Close()
+	for _, l := range s.Layers {
+		ss, err := d.Series(t.Context(), history.Filter{Construction: samples.HistoryCoreB, Layer: l.Layer}, registration.ScaleX)
+		if err != nil || len(ss) != 1 {
+			t.Fatalf("series of %s: %v %d", l.Layer, err, len(ss))
+		}
+		want := history.EWMAEstimate(ss[0].Values(registration.ScaleX), 0, history.ControllerLambda).Movement
+		if math.Abs(l.MovementXPPM-want*1e6) > 1e-9 {
+			t.Errorf("%s: movement X %.6f ppm, the history's EWMA %.6f", l.Layer, l.MovementXPPM, want*1e6)
+		}
+	}
+	if !strings.Contains(strings.Join(s.Notes, " "), "from the history") || s.Layers[0].SEXPPM == 0 {
+		t.Errorf("notes %q, standard error %v ppm", s.Notes, s.Layers[0].SEXPPM)
+	}
+	// The ninth lot of the same construction is inside its limits; a lot of
+	// the other construction after its laminate change (moving about 115 ppm
+	// further in x) is not.
+	for _, c := range []struct {
+		h      samples.HistoryLot
+		inside bool
+	}{{coreB[8], true}, {coreA[0], false}} {
+		targets, applied := files(c.h)
+		s := compJSON(t, "../../samples/two-core.toml", "--history", db, "--construction", samples.HistoryCoreB, "--targets", targets, "--applied", applied)
+		var x []drift.HistoryCheck
+		for _, h := range s.History {
+			if h.Axis == "x" {
+				x = append(x, h)
+			}
+		}
+		if len(x) != 2 {
+			t.Fatalf("lot %s: history checks %+v", c.h.Name, s.History)
+		}
+		for _, h := range x {
+			t.Logf("lot %s, %s x: movement %+.1f ppm, limits %+.1f … %+.1f", c.h.Name, h.Layer, h.MovementPPM, h.LCLPPM, h.UCLPPM)
+			if h.Inside != c.inside || h.Lots != 8 {
+				t.Errorf("lot %s, %s x: movement %+.1f ppm, limits %+.1f … %+.1f, inside %v (want %v), %d lots", c.h.Name, h.Layer, h.MovementPPM, h.LCLPPM, h.UCLPPM, h.Inside, c.inside, h.Lots)
+			}
+		}
+	}
 }

@@ -204,6 +204,22 @@ type CompSummary struct {
 	Notes           []string  `json:"notes"`
 	Before          CompState `json:"before"`
 	After           CompState `json:"after"`
+	// History compares the measured lot with its history (comp --history
+	// with --targets).
+	History []HistoryCheck `json:"history,omitempty"`
+}
+
+// HistoryCheck compares one measured layer's material movement on one axis
+// with the individuals chart of its history (centre ± 3σ̂).
+type HistoryCheck struct {
+	Layer       string  `json:"layer"`
+	Axis        string  `json:"axis"`
+	Lots        int     `json:"lots"`
+	MovementPPM float64 `json:"movement_ppm"`
+	CentrePPM   float64 `json:"centre_ppm"`
+	LCLPPM      float64 `json:"lcl_ppm"`
+	UCLPPM      float64 `json:"ucl_ppm"`
+	Inside      bool    `json:"inside"`
 }
 
 // Summary returns the comparison's summary; measured names the layers whose
