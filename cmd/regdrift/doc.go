@@ -181,7 +181,7 @@ the standard error of the lot mean (σ/√panels); "artwork" in the JSON.
 
 Usage:
 
-	regdrift comp JOB [--targets TARGETS.csv] [--applied FILE|LAYER:x=S,y=S] [--objective yield|worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
+	regdrift comp JOB [--targets TARGETS.csv] [--applied FILE|LAYER:x=S,y=S] [--history DB [--construction KEY]] [--objective yield|worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
 
 Recommend per-layer artwork scale compensation that maximises the coupler yield.
 
@@ -214,6 +214,16 @@ repeatable). A measured scale already contains it; a layer the job models
 gets it added, so that "no change" keeps today's artwork everywhere. The
 output gives the material movement, the change and the new setting,
 (1 + applied)(1 + change) − 1.
+
+--history DB reads a history database (see regdrift history; --construction
+KEY keeps one construction's lots). Without --targets, each trace layer's
+scale movement for the next lot is the history's EWMA run-to-run estimate
+(the scale table's), with the lot-to-lot σ as its spread and the estimate's
+standard error as the recommendation's; the job's scale terms on those layers
+are set aside. With --targets, each measured layer's movement (the applied
+artwork taken out) is compared with the history's individuals-chart limits
+(centre ± 3σ̂ from the average moving range): "inside" or "OUTSIDE" in the
+notes, "history" in the JSON.
 
 Only the difference of two layers' compensation across the coupled lines moves
 a broadside offset, so the offsets fix the differences and leave a common part

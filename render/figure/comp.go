@@ -48,8 +48,8 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 			in.Sections[global.Section].Name, math.Atan2(global.U.Y, global.U.X)*180/math.Pi, strings.SplitN(sum.Common, ":", 2)[0]),
 	}
 	caption := func(name string, v drift.CompState) string {
-		s := fmt.Sprintf("%s: worst %.2f %s, rms %.2f %s, %d/%d in spec, site yield %.3f %%",
-			name, v.WorstOffsetM/u.LengthSI(), u.Length(), v.RMSOffsetM/u.LengthSI(), u.Length(), v.InSpec, v.Sites, 100*v.SiteYield)
+		s := fmt.Sprintf("%s: site yield %.3f %%, worst %.2f %s",
+			name, 100*v.SiteYield, v.WorstOffsetM/u.LengthSI(), u.Length())
 		if v.WindowUsed != nil {
 			s += fmt.Sprintf(", window used %.2f", *v.WindowUsed)
 		}
@@ -57,10 +57,10 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 	}
 	after := "recommended"
 	if sum.BelowApplied {
-		after = "recommended (LOWER yield than keeping the artwork)"
+		after = "recommended (LOWER yield)"
 	}
 	m := newPanelMap(in, u, render.MapSpec{Width: width, Views: 2, Title: title,
-		Captions: []string{caption("keeping the applied artwork", sum.Before), caption(after, sum.After)}})
+		Captions: []string{caption("keep applied", sum.Before), caption(after, sum.After)}})
 	for vi, a := range states {
 		v := m.Views[vi]
 		drawPanel(v, in, grids[vi], render.Diverging, -lim, lim, false)
