@@ -214,3 +214,33 @@ func TestCompensateAppliedSetting(t *testing.T) {
 		t.Errorf("setting %g is not (1+applied)(1+change) − 1 = %g", l3.X.Setting, got)
 	}
 }
+
+// TestCompensateSaysWhenBelowApplied: a panel of well-centred hybrids and
+// one coupler whose window (1.9 to 2.1 mil, σ 0.5 mil) no compensation can
+// make good. The minimax of the window used chases that coupler and costs the
+// hybrids yield, which the result must flag; the yield objective does not
+// lose yield.
+func TestCompensateSaysWhenBelowApplied(t *testing.T) {
+	m := &Model{Contributors: []Contributor{{Name: "imaging", Layers: []string{"L3"},
+		Terms: [NumTerms]Term{OffsetX: {Spread: 0.5 * mil, Dist: Normal}}}}}
+	var sites []CompSite
+	for i := 0; i < 15; i++ {
+		x := -7*in + 14*in*float64(i)/14
+		sites = append(sites, CompSite{Pos: panel.Vec{X: x}, U: panel.Vec{Y: 1}, Upper: "L3", Lower: "L4", Allowed: Interval{Lo: -1.8 * mil, Hi: 1.8 * mil}})
+	}
+	sites = append(sites, CompSite{Pos: panel.Vec{X: 7 * in, Y: 1 * in}, U: panel.Vec{Y: 1}, Upper: "L3", Lower: "L4", Allowed: Interval{Lo: 1.9 * mil, Hi: 2.1 * mil}})
+	w, err := Compensate(m, sites, &CompSettings{Objective: Worst})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !(w.YieldAfter < w.YieldBefore) || !w.BelowApplied || !strings.Contains(strings.Join(w.Notes, " "), "LOWER site yield") {
+		t.Errorf("worst: yield %.5f → %.5f, below applied %v, notes %q", w.YieldBefore, w.YieldAfter, w.BelowApplied, w.Notes)
+	}
+	y, err := Compensate(m, sites, &CompSettings{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if y.YieldAfter < y.YieldBefore || y.BelowApplied {
+		t.Errorf("yield: %.5f → %.5f, below applied %v", y.YieldBefore, y.YieldAfter, y.BelowApplied)
+	}
+}

@@ -423,3 +423,26 @@ func TestCompHistory(t *testing.T) {
 		}
 	}
 }
+
+// TestCompTableWarns: a recommendation below the applied artwork's yield is
+// said in the table, and a relative measurement shows no drill column.
+func TestCompTableWarns(t *testing.T) {
+	lu, err := parseUnits("mil")
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := 1e-5
+	s := &drift.CompSummary{Objective: "worst", BelowApplied: true,
+		Before: drift.CompState{Sites: 1, SiteYield: 0.9, DrillWorstM: &d}, After: drift.CompState{Sites: 1, SiteYield: 0.8, DrillWorstM: &d}}
+	var b strings.Builder
+	printComp(&b, "t", &drift.Comparison{Result: &registration.CompResult{}}, s, lu, nil)
+	if !strings.Contains(b.String(), "WARNING: the recommendation predicts a LOWER site yield") || !strings.Contains(b.String(), "drill worst") {
+		t.Errorf("table:\n%s", b.String())
+	}
+	s.BelowApplied, s.Before.DrillWorstM, s.After.DrillWorstM = false, nil, nil
+	b.Reset()
+	printComp(&b, "t", &drift.Comparison{Result: &registration.CompResult{}}, s, lu, nil)
+	if strings.Contains(b.String(), "WARNING") || strings.Contains(b.String(), "drill worst") || !strings.Contains(b.String(), "relative measurement carries none") {
+		t.Errorf("table:\n%s", b.String())
+	}
+}
