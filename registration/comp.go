@@ -940,7 +940,9 @@ func (p *compProblem) notes(res *CompResult, roundedOK bool, moved [2]bool) []st
 	}
 	if res.BelowApplied {
 		why := "the drill budget, the artwork bound or the step cost more than the optimum gains"
-		if p.set.Objective != SiteYield {
+		if !p.feasible(make([]float64, p.nv)) {
+			why = "keeping the applied artwork itself breaks the drill budget or the artwork bound, and keeping them costs yield"
+		} else if p.set.Objective != SiteYield {
 			why = fmt.Sprintf("the %s objective does not maximise yield; --objective yield does", p.set.Objective)
 		}
 		notes = append(notes, fmt.Sprintf("WARNING: the recommendation predicts a LOWER site yield (%.4f %%) than keeping the applied artwork (%.4f %%): %s",
