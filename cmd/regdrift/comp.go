@@ -95,6 +95,9 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
 	}
+	if f.construct != "" && f.history == "" {
+		return usageErr("--construction needs --history")
+	}
 	fset, err := parseFitSettings(f.model, f.robust, f.weight)
 	if err != nil {
 		return err
@@ -154,9 +157,6 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	notes = append(notes, more...)
-	if f.construct != "" && f.history == "" {
-		return usageErr("--construction needs --history")
-	}
 	if set.DrillBudget > 0 && slices.ContainsFunc(fitted, isRelative) {
 		notes = append(notes, "--drill-budget: a relative measurement (layer against layer) carries no registration to the drilled holes; the budget acts on the job's model of those layers")
 	}

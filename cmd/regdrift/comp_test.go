@@ -206,6 +206,9 @@ func TestCompBadInput(t *testing.T) {
 		{"applied: not copper", []string{"--applied", "L9:x=1ppm"}, 2, `layer "L9" is not a copper layer`},
 		{"applied: file row", []string{"--applied", appliedBad}, 2, `row 3, column "scale_y"`},
 		{"applied: missing file", []string{"--applied", filepath.Join(tdir, "none-applied.csv")}, 2, "none-applied.csv"},
+		{"history: missing", []string{"--history", filepath.Join(tdir, "none.db")}, 2, "no such history"},
+		{"history: not a history", []string{"--history", bad}, 2, "not a regdrift history"},
+		{"construction without history", []string{"--construction", "A"}, 2, "--construction needs --history"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
