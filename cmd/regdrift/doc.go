@@ -16,7 +16,7 @@ The commands are:
 	sweep    solve a section's cross-section over a range of lateral offsets
 	tol      layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study
 	fit      fit each layer's movement (offset, rotation, scale, skew) to measured registration targets
-	comp     recommend per-layer artwork scale compensation that minimises the broadside offsets
+	comp     recommend per-layer artwork scale compensation that maximises the coupler yield
 	yield    coupler and part yield across panels, and the error budget
 	report   write one self-contained HTML report of a job: maps, plots, tables and inputs
 	history  keep lot after lot of fits, chart each construction's movement and recommend the next lot's artwork scale
@@ -157,7 +157,7 @@ the offset across the coupled lines counts).
 
 Usage:
 
-	regdrift fit TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]
+	regdrift fit TARGETS.csv [--model affine|similarity|translation] [--robust] [--applied FILE|LAYER:x=S,y=S] [-o DIR] [--contributors FILE] [--json]
 
 Fit each layer's movement (offset, rotation, scale, skew) to measured registration targets.
 
@@ -190,42 +190,81 @@ target), residual-grid-LAYER.csv (the pooled field, in the format a
 contributor's residual = "..." reads) and fit.png (for each layer the targets
 on the panel with the measured displacement and the residual after the fit as
 exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
-TOML [[contributor]] blocks for a job's include = [...].
+TOML [[contributor]] blocks for a job's include = [...] (as measured, the
+applied artwork included).
+
+--applied gives the artwork scale each measured layer was built with: a CSV
+file (layer,scale_x [ppm],scale_y [ppm]) or the compact LAYER:x=+200ppm,y=+180ppm,
+repeatable; a layer not named was built at CAD size, and one the targets lack
+is bad input. fit then also prints, per layer and axis, the material movement
+(the lot mean with the artwork taken out, m = (1+ε)/(1+a) − 1), the setting
+that cancels it, 1/(1+m) − 1, and the change from the applied artwork, with
+the standard error of the lot mean (σ/√panels); "artwork" in the JSON.
 
 # comp
 
 Usage:
 
-	regdrift comp JOB [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
+	regdrift comp JOB [--targets TARGETS.csv] [--applied FILE|LAYER:x=S,y=S] [--history DB [--construction KEY]] [--objective yield|worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
 
-Recommend per-layer artwork scale compensation that minimises the broadside offsets.
+Recommend per-layer artwork scale compensation that maximises the coupler yield.
 
-Recommends the artwork scale compensation of each trace layer, X and Y, in ppm
-and as a factor, from the job's registration model: the compensation that
-minimises the worst broadside offset over all sites (--objective worst, a
-linear programme) or its root mean square (--objective rms, least squares).
+Recommends the artwork scale change of each trace layer, X and Y, from the
+artwork the lot was built with, and the new absolute setting (ppm and factor),
+from the job's registration model. Every site is judged against its own
+section's allowed offset interval (from the solved coupling curve), so a panel
+that mixes wide-window hybrids with narrow-window couplers weighs each by its
+window. The default objective (--objective yield) maximises the expected site
+yield, each site's closed-form probability of being in spec (the rule map and
+yield use), by BFGS over the scale differences; site yield rather than good
+parts per panel because it is exact in closed form, while a part's yield needs
+the joint distribution of its sites (yield's Monte Carlo). --objective worst
+minimises the largest share of its window a site uses, (|mean − window centre|
++ 3σ)/half-width (a linear programme); --objective rms the rms of each site's
+mean offset from its window's centre over the half-width (least squares).
 
 With --targets, the measurement file is fitted first (as regdrift fit does,
 about the job's datum) and each measured layer's lot mean and sigma replace
 what the job's contributors say about that layer: the measurement already
 holds every source that moves it. Contributors keep acting on the layers that
 were not measured (--keep-job-terms adds the measurement instead). A layer in
-the targets that the job does not have is skipped with a warning.
+the targets that the job does not have is skipped with a warning. The
+standard error of the recommendation follows from the lot size (σ/√panels of
+each measured layer's mean scale); a --step finer than it is flagged.
+
+--applied gives the artwork scale each layer of the lot was built with (a CSV
+file layer,scale_x [ppm],scale_y [ppm], or LAYER:x=+200ppm,y=+180ppm,
+repeatable). A measured scale already contains it; a layer the job models
+gets it added, so that "no change" keeps today's artwork everywhere. The
+output gives the material movement, the change and the new setting,
+(1 + applied)(1 + change) − 1.
+
+--history DB reads a history database (see regdrift history; --construction
+KEY keeps one construction's lots). Without --targets, each trace layer's
+scale movement for the next lot is the history's EWMA run-to-run estimate
+(the scale table's), with the lot-to-lot σ as its spread and the estimate's
+standard error as the recommendation's; the job's scale terms on those layers
+are set aside. With --targets, each measured layer's movement (the applied
+artwork taken out) is compared with the history's individuals-chart limits
+(centre ± 3σ̂ from the average moving range): "inside" or "OUTSIDE" in the
+notes, "history" in the JSON.
 
 Only the difference of two layers' compensation across the coupled lines moves
 a broadside offset, so the offsets fix the differences and leave a common part
-free. With --drill-budget the common part keeps every trace layer's mean
-registration to the drilled holes within the budget (per axis, at every site)
-and as small as possible; without it the common part is the smallest
-compensation. The output says which. The compensation is what the artwork is
-scaled by before the material moves: a layer whose material shrinks by ε is
-compensated fully by the factor 1/(1+ε).
+free: among equally good answers comp takes the smallest change from the
+applied artwork. --drill-budget (each trace layer's mean registration to the
+drilled holes, per axis, at every site) and --max are constraints only: a
+budget the answer already keeps changes nothing; one that binds moves the
+common part (or, failing that, the differences). comp never recommends a lower
+predicted yield than keeping the applied artwork without saying so (a
+WARNING in the table, below_applied in the JSON). A relative measurement
+(L3-L4) carries no drill registration, and none is shown.
 
-Writes comp.csv (per site, before and after), comp.png (the mean offset maps
-before and after, side by side on one colour scale), compensation.toml (the
-recommendation as [[contributor]] blocks, to include in the job and map again)
-and comp.json. Sites in spec and the predicted site yield use the section's
-solved coupling curve, as map and yield do.
+Writes comp.csv (per site, before and after; the misregistration columns
+exclude the design offset, which has its own column, as in the table),
+comp.png (the mean offset maps before and after, side by side on one colour
+scale), compensation.toml (the change as [[contributor]] blocks, to include
+in the job and map again) and comp.json.
 
 # yield
 

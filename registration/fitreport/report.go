@@ -27,6 +27,9 @@ type Report struct {
 	// Differences holds, per pair of layers measured together, the lot
 	// statistics of the per-panel differences ("L3-L4").
 	Differences []registration.Lot
+	// Applied is the artwork each layer was built with (SetApplied); nil
+	// means CAD size and no artwork table in the summary.
+	Applied registration.AppliedSet
 }
 
 // New fits the targets ts (read from file) with set: every panel and layer
@@ -134,6 +137,9 @@ type Summary struct {
 	// same panels, "L3-L4", as lot statistics.
 	Differences []LotJSON `json:"differences"`
 	Notes       []string  `json:"notes"`
+	// Artwork is, with an applied artwork, each layer's material movement
+	// and the setting that cancels it (Artwork).
+	Artwork []ArtworkJSON `json:"artwork,omitempty"`
 }
 
 // Summary returns the JSON summary of r.
@@ -166,6 +172,11 @@ func (r *Report) Summary() *Summary {
 	s.Notes = []string{}
 	if r.Joint != nil {
 		s.Notes = append(s.Notes, r.Joint.Notes...)
+	}
+	if r.Applied != nil {
+		for _, a := range r.Artworks() {
+			s.Artwork = append(s.Artwork, a.JSON())
+		}
 	}
 	return s
 }
