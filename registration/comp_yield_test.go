@@ -202,9 +202,9 @@ func TestCompensateAppliedSetting(t *testing.T) {
 	}
 	l3 := r.Layers[0]
 	want := Setting(MaterialScale(-10e-6, 200e-6))
-	// The budget leaves L3 within 0.001 mil over a 10 in lever arm of full
-	// cancellation: 0.1 ppm.
-	if math.Abs(l3.X.Setting-want) > 0.1e-6 || math.Abs(l3.X.Scale-10e-6) > 0.1e-6 {
+	// The smallest change within the budget sits on it: 0.001 mil over the
+	// 8 in lever arm of the sites' x is 0.125 ppm from full cancellation.
+	if math.Abs(l3.X.Setting-want) > 0.126e-6 || math.Abs(l3.X.Scale-10e-6) > 0.126e-6 {
 		t.Errorf("L3 X setting %+.4f ppm (change %+.4f), want %+.4f ppm (change ≈ +10)", l3.X.Setting*1e6, l3.X.Scale*1e6, want*1e6)
 	}
 	if math.Abs(l3.X.Movement-MaterialScale(-10e-6, 200e-6)) > 1e-15 || math.Abs(l3.X.Movement+209.958e-6) > 0.001e-6 {
