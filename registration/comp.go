@@ -674,18 +674,16 @@ func removeNull(x []float64, null [][]float64) []float64 {
 }
 
 // drillCommon chooses the common part when the smallest change breaks the
-// drill budget. First choice: centre every trace layer on the drilled holes
-// in the least-squares sense (for a layer whose own movement is a pure scale
-// this cancels it exactly). If that breaks the budget or a bound, it
-// minimises the worst registration instead (a second linear programme in z).
+// drill budget: the smallest change (least sum of squares of the layers'
+// changes) whose common part keeps the budget and the bounds. A feasible
+// common part comes first (x = x1 + N·z): the one centring the trace layers
+// on the drilled holes by least squares when that keeps the budget, else the
+// linear programme's, minimising the worst registration; the penalty method
+// then minimises |x1 + N·z|² from z = 0 and backInside brings the end onto
+// the feasible set along the segment from that point.
 func (p *compProblem) drillCommon(x []float64, null [][]float64) ([]float64, string, error) {
 	nn := len(null)
 	zd := inNull(&p.drill, x, null)
-	if z, err := minNormLS(zd, nn); err == nil {
-		if y := alongNull(x, null, z); p.feasible(y) {
-			return y, "the drill budget binds: the common part centres the trace layers on the drilled holes (least squares over the sites), within the budget", nil
-		}
-	}
 	// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
 	var reach float64
 	for j := range x {
@@ -695,11 +693,24 @@ func (p *compProblem) drillCommon(x []float64, null [][]float64) ([]float64, str
 	for k := range zbox {
 		zbox[k] = 2 * math.Sqrt(reach)
 	}
-	z, _, err := minimax(nn, zd, inNull(&p.bounds, x, null), p.budget, zbox)
-	if err != nil {
-		return nil, "", err
+	capsZ := inNull(&p.caps, x, null)
+	zf, err := minNormLS(zd, nn)
+	if _, bad := violated(capsZ, zf); err != nil || bad {
+		if zf, _, err = minimax(nn, zd, inNull(&p.bounds, x, null), p.budget, zbox); err != nil {
+			return nil, "", err
+		}
 	}
-	return alongNull(x, null, z), "the drill budget binds: the common part minimises the worst registration of the trace layers to the drilled holes", nil
+	scale := 1 / (norm2(x) + 1) // keeps the objective of order 1 beside the penalty
+	z := penaltyMin(func(z []float64) float64 { return norm2(alongNull(x, null, z)) * scale },
+		func(g, z []float64) {
+			y := alongNull(x, null, z)
+			for k := range null {
+				for j := range y {
+					g[k] += 2 * scale * y[j] * null[k][j]
+				}
+			}
+		}, capsZ, make([]float64, nn))
+	return alongNull(x, null, backInside(zf, z, capsZ)), "the drill budget binds: the common part is the smallest change that keeps every trace layer within the budget", nil
 }
 
 // inNull returns the rows of src as linear forms in z, for x = x1 + N·z with

@@ -176,44 +176,12 @@ func climbSettings() *optimize.Settings {
 var penaltyWeights = []float64{1e2, 1e4, 1e6}
 
 // constrain maximises the yield with the constraints as a quadratic penalty
-// over all the variables from x, then moves the end onto the feasible set:
-// along the segment from a feasible point (no change when that is feasible,
-// else the normalised minimax optimum within the constraints) to the end,
-// as far as every capped row allows (the set is convex, each row linear).
+// over all the variables from x, then moves the end onto the feasible set
+// (backInside) from a feasible point: no change when that is feasible, else
+// the normalised minimax optimum within the constraints.
 func (p *compProblem) constrain(x []float64) ([]float64, string, error) {
-	caps := &p.caps
-	for _, mu := range penaltyWeights {
-		prob := optimize.Problem{
-			Func: func(x []float64) float64 {
-				f := -p.yield(x)
-				for k := range caps.b {
-					if v := math.Abs(caps.value(k, x)) - caps.caps[k]; v > 0 {
-						f += mu * (v / caps.caps[k]) * (v / caps.caps[k])
-					}
-				}
-				return f
-			},
-			Grad: func(g, x []float64) {
-				for j := range g {
-					g[j] = 0
-				}
-				p.yieldGrad(g, x)
-				for k := range caps.b {
-					c := caps.value(k, x)
-					if v := math.Abs(c) - caps.caps[k]; v > 0 {
-						s := 2 * mu * v / (caps.caps[k] * caps.caps[k]) * math.Copysign(1, c)
-						for j, a := range caps.a[k] {
-							g[j] += s * a
-						}
-					}
-				}
-			},
-		}
-		res, err := optimize.Minimize(prob, x, climbSettings(), &optimize.BFGS{})
-		if res != nil && (err == nil || res.F < prob.Func(x)) {
-			x = res.X
-		}
-	}
+	x = penaltyMin(func(x []float64) float64 { return -p.yield(x) },
+		func(g, x []float64) { p.yieldGrad(g, x) }, &p.caps, x)
 	from := make([]float64, p.nv)
 	if !p.feasible(from) {
 		f, _, err := minimax(p.nv, &p.norm, &p.caps, 0, p.bounds.caps)
@@ -222,6 +190,64 @@ func (p *compProblem) constrain(x []float64) ([]float64, string, error) {
 		}
 		from = f
 	}
+	return backInside(from, x, &p.caps), "the constraints bind: the yield optimum within the drill budget and the artwork bound (penalty method, then the nearest feasible point on the way back)", nil
+}
+
+// penaltyMin minimises f (gradient grad, which adds into g) plus the
+// exterior quadratic penalty μ·Σ (excess_k/cap_k)² of the capped rows, for
+// each weight of penaltyWeights in turn, from x0 (Nocedal & Wright,
+// Numerical Optimization, 2nd ed., 2006, sec. 17.1), by BFGS. The end may
+// lie just outside the caps; backInside brings it in.
+func penaltyMin(f func(x []float64) float64, grad func(g, x []float64), caps *linRows, x0 []float64) []float64 {
+	x := slices.Clone(x0)
+	for _, mu := range penaltyWeights {
+		prob := optimize.Problem{
+			Func: func(x []float64) float64 {
+				v := f(x)
+				for k := range caps.b {
+					if e := math.Abs(caps.value(k, x)) - caps.caps[k]; e > 0 {
+						v += mu * (e / caps.caps[k]) * (e / caps.caps[k])
+					}
+				}
+				return v
+			},
+			Grad: func(g, x []float64) {
+				for j := range g {
+					g[j] = 0
+				}
+				grad(g, x)
+				for k := range caps.b {
+					c := caps.value(k, x)
+					if e := math.Abs(c) - caps.caps[k]; e > 0 {
+						s := 2 * mu * e / (caps.caps[k] * caps.caps[k]) * math.Copysign(1, c)
+						for j, a := range caps.a[k] {
+							g[j] += s * a
+						}
+					}
+				}
+			},
+		}
+		res, err := optimize.Minimize(prob, x, penaltySettings(), &optimize.BFGS{})
+		if res != nil && (err == nil || res.F < prob.Func(x)) {
+			x = res.X
+		}
+	}
+	return x
+}
+
+// penaltySettings stop a penalty solve sooner than climbSettings: its end is
+// moved onto the feasible set anyway, so a gain below 1e-10 over three
+// iterations (the objectives are of order 1) is convergence enough, and the
+// penalty's kink at each cap would otherwise keep BFGS polishing.
+func penaltySettings() *optimize.Settings {
+	return &optimize.Settings{GradientThreshold: 1e-8, MajorIterations: 200,
+		Converger: &optimize.FunctionConverge{Absolute: 1e-10, Iterations: 3}}
+}
+
+// backInside returns the point of the segment from the feasible point from
+// to x that is nearest x and keeps every capped row (the feasible set is
+// convex and each row linear, so the crossing of each row is exact).
+func backInside(from, x []float64, caps *linRows) []float64 {
 	lam := 1.0
 	for k := range caps.b {
 		v0, v1 := caps.value(k, from), caps.value(k, x)
@@ -238,5 +264,5 @@ func (p *compProblem) constrain(x []float64) ([]float64, string, error) {
 	for j := range y {
 		y[j] += lam * (x[j] - from[j])
 	}
-	return y, "the constraints bind: the yield optimum within the drill budget and the artwork bound (penalty method, then the nearest feasible point on the way back)", nil
+	return y
 }

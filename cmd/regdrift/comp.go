@@ -157,6 +157,9 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	notes = append(notes, more...)
+	if len(set.Applied) > 0 && slices.ContainsFunc(fitted, isRelative) {
+		notes = append(notes, "a relative measurement holds the upper layer's movement seen from the lower one: the per-layer movement column is not separable there, while the changes and settings are")
+	}
 	if set.DrillBudget > 0 && slices.ContainsFunc(fitted, isRelative) {
 		notes = append(notes, "--drill-budget: a relative measurement (layer against layer) carries no registration to the drilled holes; the budget acts on the job's model of those layers")
 	}

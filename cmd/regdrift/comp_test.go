@@ -449,3 +449,36 @@ func TestCompTableWarns(t *testing.T) {
 		t.Errorf("table:\n%s", b.String())
 	}
 }
+
+// TestCompRelativeNoDrill: with a lot measured L3 against L4 the JSON holds
+// no drill registration (the measurement carries none) and the table says
+// why.
+func TestCompRelativeNoDrill(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("panel,layer,target,x [in],y [in],dx [um],dy [um]\n")
+	for p := 1; p <= 3; p++ {
+		n := 0
+		for _, y := range []float64{-10, 0, 10} {
+			for _, x := range []float64{-7, 0, 7} {
+				n++
+				eps := (-100 - 10*float64(p)) * 1e-6
+				fmt.Fprintf(&b, "P%d,L3-L4,T%d,%g,%g,%.6f,%.6f\n", p, n, x, y, eps*x*25400, eps*y*25400)
+			}
+		}
+	}
+	targets := filepath.Join(t.TempDir(), "rel.csv")
+	if err := os.WriteFile(targets, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errs := run(t, "comp", "testdata/mixed.toml", "--targets", targets, "-o", t.TempDir(), "--json", "--accuracy", "1%")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if strings.Contains(out, "drill_worst_m") || !strings.Contains(out, `"L3-L4"`) {
+		t.Errorf("JSON of a relative measurement:\n%s", out)
+	}
+	code, out, errs = run(t, "comp", "testdata/mixed.toml", "--targets", targets, "-o", t.TempDir(), "--accuracy", "1%")
+	if code != 0 || strings.Contains(out, "drill worst") || !strings.Contains(out, "relative measurement carries none") {
+		t.Errorf("exit %d, table:\n%s%s", code, out, errs)
+	}
+}
