@@ -572,7 +572,7 @@ func (r *reportRun) compSection() (rep.Section, bool, error) {
 		return []string{name, fixed(c.WorstOffsetM/r.lu.factor, 3), fixed(c.RMSOffsetM/r.lu.factor, 3), strconv.Itoa(c.InSpec) + " of " + strconv.Itoa(c.Sites), pct(c.SiteYield, 4)}
 	}
 	blocks := []rep.Block{
-		rep.Paragraph(fmt.Sprintf("Artwork scale compensation minimising the %s offset; the common part: %s.", s.Objective, s.Common)),
+		rep.Paragraph(fmt.Sprintf("Artwork scale compensation; objective: %s; the common part: %s.", objectiveText(s.Objective), s.Common)),
 		&rep.Figure{PNG: b, Alt: "Panel maps of the offsets before and after the recommended compensation", Caption: "Offsets across the lines before (left) and after (right) compensation."},
 		&rep.Table{Caption: "Recommended compensation per layer", Columns: cols, Rows: rows, RowHeaders: true},
 		&rep.Table{Caption: "Before and after", Columns: state, Rows: [][]string{st("before", s.Before), st("after", s.After)}, RowHeaders: true},
