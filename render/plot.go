@@ -236,7 +236,8 @@ func (p *Plot) Render(width, height int) *Canvas {
 	x0, x1 := p.xRange()
 	top := margin
 	if p.Title != "" {
-		c.text(p.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		t, ts := fitTitle(c, p.Title, float64(width)-2*margin)
+		c.text(t, margin, top, 0, 0, ts)
 		top += 2.2 * em
 	} else {
 		top += 0.5 * em
@@ -296,6 +297,22 @@ func (p *Plot) Render(width, height int) *Canvas {
 		c.text(p.XLabel, (left+right)/2, float64(height)-margin-1.0*em, 0.5, 0.5, textStyle{})
 	}
 	return c
+}
+
+// fitTitle returns a one-line plot title and its style: bold at 1.2 em, or
+// smaller, down to the tick labels' size, so that a long title (a job's own
+// title inside it) stays on the canvas instead of running off its edge; what
+// still does not fit is cut with an ellipsis.
+func fitTitle(c *Canvas, title string, room float64) (string, textStyle) {
+	ts := textStyle{size: 1.2, bold: true}
+	if w := c.measure(title, ts); w > room {
+		ts.size = math.Max(tickTextEm, ts.size*room/w)
+	}
+	for r := []rune(title); c.measure(title, ts) > room && len(r) > 1; {
+		r = r[:len(r)-1]
+		title = string(r) + "…"
+	}
+	return title, ts
 }
 
 // makeLegendRoom raises the top of an automatic y range when every corner
