@@ -197,3 +197,21 @@ func TestLongTitleStaysOnCanvas(t *testing.T) {
 		}
 	}
 }
+
+// TestMapTitleClearOfLegend: a title line longer than the room beside the
+// map's legend is fitted, so it neither runs off the canvas nor under the
+// legend.
+func TestMapTitleClearOfLegend(t *testing.T) {
+	long := strings.Repeat("section hybrid: spec −3.00 ± 0.25 dB at 2.45 GHz, ", 4)
+	m := NewMap(MapSpec{Width: 800, Extent: Centered(1, 1), NoColorBar: true, Title: []string{"title", long, long},
+		Legend: []LegendItem{{Label: "thin bars: section hybrid", Kind: LegendLine}}})
+	img := m.Image()
+	// Ink of the title text in the right margin means a line ran off.
+	for y := 0; y < int(6*m.em); y++ {
+		for x := img.Bounds().Max.X - int(marginEm*m.em) + 2; x < img.Bounds().Max.X; x++ {
+			if p := img.RGBAAt(x, y); p != Background {
+				t.Fatalf("title drawn at (%d, %d), in the right margin", x, y)
+			}
+		}
+	}
+}

@@ -300,19 +300,24 @@ func (p *Plot) Render(width, height int) *Canvas {
 }
 
 // fitTitle returns a one-line plot title and its style: bold at 1.2 em, or
-// smaller, down to the tick labels' size, so that a long title (a job's own
-// title inside it) stays on the canvas instead of running off its edge; what
-// still does not fit is cut with an ellipsis.
+// smaller (fitLine), so that a long title (a job's own title inside it)
+// stays on the canvas instead of running off its edge.
 func fitTitle(c *Canvas, title string, room float64) (string, textStyle) {
-	ts := textStyle{size: 1.2, bold: true}
-	if w := c.measure(title, ts); w > room {
+	return fitLine(c, title, textStyle{size: 1.2, bold: true}, room)
+}
+
+// fitLine returns line and ts made to fit in room pixels: the text size
+// lowered as far as the tick labels' size, then the line cut with an
+// ellipsis.
+func fitLine(c *Canvas, line string, ts textStyle, room float64) (string, textStyle) {
+	if w := c.measure(line, ts); w > room && ts.size > tickTextEm {
 		ts.size = math.Max(tickTextEm, ts.size*room/w)
 	}
-	for r := []rune(title); c.measure(title, ts) > room && len(r) > 1; {
+	for r := []rune(line); c.measure(line, ts) > room && len(r) > 1; {
 		r = r[:len(r)-1]
-		title = string(r) + "…"
+		line = string(r) + "…"
 	}
-	return title, ts
+	return line, ts
 }
 
 // makeLegendRoom raises the top of an automatic y range when every corner
