@@ -41,7 +41,8 @@ func (b *BarChart) Render(width, height int) *Canvas {
 
 	top := margin
 	if b.Title != "" {
-		c.text(b.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		t, ts := fitTitle(c, b.Title, float64(width)-2*margin)
+		c.text(t, margin, top, 0, 0, ts)
 		top += 2.2 * em
 	}
 	// Labels take at most 40 % of the width; longer ones are shortened

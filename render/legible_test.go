@@ -176,3 +176,42 @@ func TestBarsContrastOutline(t *testing.T) {
 		t.Errorf("light bar outlined in %v, want Ink", got)
 	}
 }
+
+// TestLongTitleStaysOnCanvas: a plot or bar chart title longer than the
+// canvas is set smaller instead of running off the right edge.
+func TestLongTitleStaysOnCanvas(t *testing.T) {
+	title := "Good parts per panel: 100.0 % of 4000 panels had all 728 parts good (" + strings.Repeat("a long job title ", 6) + ")"
+	for name, c := range map[string]*Canvas{
+		"plot": (&Plot{Title: title, Axes: []*Axes{{Lines: []Line{{X: []float64{0, 1}, Y: []float64{0, 1}}}}}}).Render(1600, 1000),
+		"bars": (&BarChart{Title: title, Labels: []string{"a"}, Values: []float64{1}}).Render(1600, 0),
+	} {
+		img := c.Image()
+		b := img.Bounds()
+		// The title row: the top 2 em; its right margin must stay background.
+		for y := 0; y < int(2*c.em); y++ {
+			for x := b.Max.X - int(marginEm*c.em) + 2; x < b.Max.X; x++ {
+				if img.RGBAAt(x, y) != Background {
+					t.Fatalf("%s: title drawn at (%d, %d), in the right margin", name, x, y)
+				}
+			}
+		}
+	}
+}
+
+// TestMapTitleClearOfLegend: a title line longer than the room beside the
+// map's legend is fitted, so it neither runs off the canvas nor under the
+// legend.
+func TestMapTitleClearOfLegend(t *testing.T) {
+	long := strings.Repeat("section hybrid: spec −3.00 ± 0.25 dB at 2.45 GHz, ", 4)
+	m := NewMap(MapSpec{Width: 800, Extent: Centered(1, 1), NoColorBar: true, Title: []string{"title", long, long},
+		Legend: []LegendItem{{Label: "thin bars: section hybrid", Kind: LegendLine}}})
+	img := m.Image()
+	// Ink of the title text in the right margin means a line ran off.
+	for y := 0; y < int(6*m.em); y++ {
+		for x := img.Bounds().Max.X - int(marginEm*m.em) + 2; x < img.Bounds().Max.X; x++ {
+			if p := img.RGBAAt(x, y); p != Background {
+				t.Fatalf("title drawn at (%d, %d), in the right margin", x, y)
+			}
+		}
+	}
+}

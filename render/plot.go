@@ -236,7 +236,8 @@ func (p *Plot) Render(width, height int) *Canvas {
 	x0, x1 := p.xRange()
 	top := margin
 	if p.Title != "" {
-		c.text(p.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		t, ts := fitTitle(c, p.Title, float64(width)-2*margin)
+		c.text(t, margin, top, 0, 0, ts)
 		top += 2.2 * em
 	} else {
 		top += 0.5 * em
@@ -296,6 +297,27 @@ func (p *Plot) Render(width, height int) *Canvas {
 		c.text(p.XLabel, (left+right)/2, float64(height)-margin-1.0*em, 0.5, 0.5, textStyle{})
 	}
 	return c
+}
+
+// fitTitle returns a one-line plot title and its style: bold at 1.2 em, or
+// smaller (fitLine), so that a long title (a job's own title inside it)
+// stays on the canvas instead of running off its edge.
+func fitTitle(c *Canvas, title string, room float64) (string, textStyle) {
+	return fitLine(c, title, textStyle{size: 1.2, bold: true}, room)
+}
+
+// fitLine returns line and ts made to fit in room pixels: the text size
+// lowered as far as the tick labels' size, then the line cut with an
+// ellipsis.
+func fitLine(c *Canvas, line string, ts textStyle, room float64) (string, textStyle) {
+	if w := c.measure(line, ts); w > room && ts.size > tickTextEm {
+		ts.size = math.Max(tickTextEm, ts.size*room/w)
+	}
+	for r := []rune(line); c.measure(line, ts) > room && len(r) > 1; {
+		r = r[:len(r)-1]
+		line = string(r) + "…"
+	}
+	return line, ts
 }
 
 // makeLegendRoom raises the top of an automatic y range when every corner

@@ -395,9 +395,9 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 		return rep.Section{}, false, err
 	}
 	pm := &rep.PanelMap{PNG: b.Bytes(), Transform: rep.ViewTransform(v), Fields: r.siteFields(),
-		Alt: fmt.Sprintf("Panel map of the coupling drift at the mean offset of each of %d sites, with the ten sites of least margin ringed and numbered", len(rows)),
+		Alt: fmt.Sprintf("Panel map of the coupling drift at the mean offset of each of %d sites, with the ten sites least likely to be in spec ringed and numbered", len(rows)),
 		Caption: "Coupling drift at each site's mean offset (the field: over each array its most common coupler direction); each site is a bar along its lines; " +
-			"the ten sites of least margin are ringed and numbered as in the table below. Point at a site to see its values, click to mark it, or find it by name."}
+			"the ten sites least likely to be in spec are ringed and numbered as in the table below. Point at a site to see its values, click to mark it, or find it by name."}
 	for k, row := range rows {
 		s := &r.a.Sites[k]
 		pm.Sites = append(pm.Sites, rep.Site{Name: cell(row, "site"), At: render.Point{X: s.Site.Pos.X, Y: s.Site.Pos.Y}, Values: []string{
@@ -427,8 +427,8 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 			cell(row, "margin [dB]"), pct(r.a.Sites[k].PInSpec, 4)})
 	}
 	return rep.Section{ID: "panel-map", Title: "Panel map", Blocks: []rep.Block{pm,
-		&rep.Table{Caption: "The ten sites of least margin (numbered on the map)", Columns: cols, Rows: worst},
-		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines, design offset included, ± one standard deviation; %d of %d sites have their mean offset in spec.", r.mapSum.InSpec, r.mapSum.Sites)),
+		&rep.Table{Caption: "The ten sites least likely to be in spec (numbered on the map)", Columns: cols, Rows: worst},
+		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines, design offset included, ± one standard deviation; expected in spec %.1f of %d sites (%d have their mean offset in spec).", r.mapSum.ExpectedInSpec, r.mapSum.Sites, r.mapSum.InSpec)),
 	}}, true, nil
 }
 

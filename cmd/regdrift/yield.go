@@ -169,7 +169,7 @@ func printYield(w io.Writer, title string, sum *drift.YieldSummary, lu lengthUni
 	gp := sum.GoodPartsPerPanel
 	fmt.Fprintf(w, "\nsite yield   %.4f %% (closed form %.4f %%)\n", 100*sum.SiteYieldMean, 100*sum.SiteYieldMeanClosed)
 	if sum.Parts == 0 {
-		fmt.Fprintf(w, "part yield   none: the sites belong to no part (placement file)\n\n")
+		fmt.Fprintf(w, "part yield   none: the sites belong to no part counted as a product\n\n")
 	} else {
 		fmt.Fprintf(w, "part yield   %.4f %%\n", 100*sum.PartYieldMean)
 		fmt.Fprintf(w, "good parts per panel: expected %.2f of %d, 5th percentile %d, median %d, min %d\n\n", gp.Mean, sum.Parts, gp.P05, gp.P50, gp.Min)

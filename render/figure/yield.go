@@ -92,8 +92,8 @@ func Parts(w io.Writer, res *registration.MCResult, sum *drift.YieldSummary, tit
 		{X: float64(gp.P05), Label: fmt.Sprintf("5th percentile %d", gp.P05), Dash: []float64{3, 3}},
 	}
 	p := render.Plot{
-		Title: fmt.Sprintf("Good parts per panel (%s): %d panels of %d parts; %.1f %% of panels all good, the worst %d",
-			title, sum.Trials, sum.Parts, 100*allGood(res, sum.Parts), gp.Min),
+		Title: fmt.Sprintf("Good parts per panel: %.1f %% of %d panels had all %d parts good, the worst %d (%s)",
+			100*allGood(res, sum.Parts), sum.Trials, sum.Parts, gp.Min, title),
 		XLabel: "good parts per panel",
 		Axes: []*render.Axes{{
 			YLabel: "panels",
