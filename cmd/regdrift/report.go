@@ -144,7 +144,9 @@ type reportSummary struct {
 	Accuracy float64 `json:"solver_accuracy"`
 	Sites    int     `json:"sites"`
 	InSpec   int     `json:"in_spec"`
-	Parts    int     `json:"parts_per_panel"`
+	// ExpectedInSpec is the sum over sites of P(in spec), the map's headline.
+	ExpectedInSpec float64 `json:"expected_in_spec"`
+	Parts          int     `json:"parts_per_panel"`
 	// GoodParts is the Monte Carlo's expected number of parts in spec per panel.
 	GoodParts     float64 `json:"good_parts_per_panel"`
 	PartYield     float64 `json:"part_yield_mean"`
@@ -155,7 +157,10 @@ type reportSummary struct {
 	WorstSecYield float64 `json:"worst_section_site_yield"`
 	WorstSite     string  `json:"worst_site"`
 	WorstMarginDB float64 `json:"worst_site_margin_db"`
-	Sections      int     `json:"report_sections"`
+	// WorstSiteP is the worst site's probability of being in spec: the map
+	// ranks sites by it.
+	WorstSiteP float64 `json:"worst_site_p_in_spec"`
+	Sections   int     `json:"report_sections"`
 }
 
 // reportSections are the report's sections in the order a reader asks;
@@ -266,18 +271,19 @@ func (r *reportRun) summary() *reportSummary {
 		}
 	}
 	if len(r.mapSum.Worst) > 0 {
-		s.WorstSite, s.WorstMarginDB = r.mapSum.Worst[0].Name, r.mapSum.Worst[0].MarginDB
+		s.WorstSite, s.WorstMarginDB, s.WorstSiteP = r.mapSum.Worst[0].Name, r.mapSum.Worst[0].MarginDB, r.mapSum.Worst[0].PInSpec
 	}
+	s.ExpectedInSpec = r.mapSum.ExpectedInSpec
 	return s
 }
 
 func printReport(w io.Writer, s *reportSummary, paths []string) {
 	fmt.Fprintf(w, "%s\n", s.Title)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "sites in spec\t%d of %d\n", s.InSpec, s.Sites)
+	fmt.Fprintf(tw, "expected sites in spec\t%.1f of %d (%d with the mean offset in spec)\n", s.ExpectedInSpec, s.Sites, s.InSpec)
 	fmt.Fprintf(tw, "good parts per panel\t%.2f of %d (%d panels, seed %d)\n", s.GoodParts, s.Parts, s.Trials, s.Seed)
 	fmt.Fprintf(tw, "worst section\t%s (site yield %.4f %%)\n", s.WorstSection, 100*s.WorstSecYield)
-	fmt.Fprintf(tw, "worst site\t%s (margin %.4f dB)\n", s.WorstSite, s.WorstMarginDB)
+	fmt.Fprintf(tw, "least likely site\t%s (P(in spec) %.4f, margin %.4f dB)\n", s.WorstSite, s.WorstSiteP, s.WorstMarginDB)
 	tw.Flush()
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
@@ -304,9 +310,11 @@ func (r *reportRun) summarySection() (rep.Section, bool, error) {
 		{Label: "solver accuracy (target error in C)", Value: fixed(100*s.Accuracy, 3), Unit: "%", Key: "solver_accuracy"},
 		{Label: "expected parts in spec per panel", Value: fixed(s.GoodParts, 2), Unit: "of " + strconv.Itoa(s.Parts) + " parts",
 			Note: fmt.Sprintf("part yield %s %%, Monte Carlo of %d panels", pct(s.PartYield, 3), s.Trials), Key: "good_parts_per_panel"},
+		{Label: "expected sites in spec", Value: fixed(s.ExpectedInSpec, 1), Unit: "of " + strconv.Itoa(s.Sites) + " sites",
+			Note: "the sum of each site's probability of being in spec", Key: "expected_in_spec"},
 		{Label: "sites in spec (mean offset)", Value: strconv.Itoa(s.InSpec), Unit: "of " + strconv.Itoa(s.Sites) + " sites", Key: "in_spec"},
 		{Label: "worst section", Value: s.WorstSection, Note: "site yield " + pct(s.WorstSecYield, 3) + " %", Key: "worst_section"},
-		{Label: "worst site", Value: s.WorstSite, Note: "margin " + fixed(s.WorstMarginDB, 4) + " dB", Key: "worst_site"},
+		{Label: "least likely site", Value: s.WorstSite, Note: "P(in spec) " + fixed(s.WorstSiteP, 4) + ", margin " + fixed(s.WorstMarginDB, 4) + " dB", Key: "worst_site"},
 	}
 	cols := []rep.Column{{Label: "section"}, {Label: "sites", Unit: "sites", Numeric: true}, {Label: "in spec", Unit: "sites", Numeric: true},
 		{Label: "design coupling", Unit: "dB", Numeric: true}, {Label: "spec", Unit: "dB", Numeric: true}, {Label: "mean site yield", Unit: "%", Numeric: true}}
