@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/drift"
 	"github.com/regdrift/regdrift/render/figure"
 )
@@ -154,13 +155,7 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 		fmt.Fprintln(w)
 	}
 	if len(r.Orientation) > 0 {
-		fmt.Fprintf(w, "orientation (closed-form mean site yield; parts kept in place, lines turned 90 deg):\n")
-		tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
-		fmt.Fprintf(tw, "  array\tpart\tas placed\tturned\t\n")
-		for _, o := range r.Orientation {
-			fmt.Fprintf(tw, "  %d\t%s\t%.4f %%\t%.4f %%\t%s\n", o.Array, o.Part, 100*o.MeanYield, 100*o.MeanYieldTurned, o.Verdict())
-		}
-		tw.Flush()
+		printOrientationOf(w, r.Orientation, nil, registration.OrientMinGain, false, lu)
 		fmt.Fprintln(w)
 	}
 	if len(paths) > 0 {
