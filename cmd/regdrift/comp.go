@@ -163,7 +163,11 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if set.DrillBudget > 0 && slices.ContainsFunc(fitted, isRelative) {
 		notes = append(notes, "--drill-budget: a relative measurement (layer against layer) carries no registration to the drilled holes; the budget acts on the job's model of those layers")
 	}
-	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
+	var cmp *drift.Comparison
+	err = step(progressStd(std, f.json), "compensation (field solves, optimisation)", func() (err error) {
+		cmp, err = drift.Compensate(ctx, input(j), model, &set, solver)
+		return err
+	})
 	var ce *drift.CompError
 	switch {
 	case errors.As(err, &ce):

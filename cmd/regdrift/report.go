@@ -73,7 +73,7 @@ func (f *reportFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	r := &reportRun{std: std, job: j, lu: lu, set: set, trials: f.trials, seed: f.seed, width: f.width,
+	r := &reportRun{std: progressStd(std, f.json), job: j, lu: lu, set: set, trials: f.trials, seed: f.seed, width: f.width,
 		targets: f.targets, date: time.Now().UTC()}
 	paths, err := r.write(ctx, f.out)
 	if err != nil {
@@ -184,7 +184,11 @@ var reportSections = []func(*reportRun) (rep.Section, bool, error){
 func (r *reportRun) build(ctx context.Context) (*rep.Document, error) {
 	j := r.job
 	in := input(j)
-	a, err := drift.Analyse(ctx, in, r.set)
+	var a *drift.Analysis
+	err := step(r.std, "field solves", func() (err error) {
+		a, err = drift.Analyse(ctx, in, r.set)
+		return err
+	})
 	if err != nil {
 		return nil, solveErr(j, err)
 	}
@@ -200,7 +204,10 @@ func (r *reportRun) build(ctx context.Context) (*rep.Document, error) {
 		return nil, err
 	}
 	r.yield = a.YieldSummary(r.mc, r.seed)
-	if r.tol, err = drift.Tol(ctx, in, drift.TolStudy{}, r.set); err != nil {
+	if err = step(r.std, "tolerance search", func() (err error) {
+		r.tol, err = drift.Tol(ctx, in, drift.TolStudy{}, r.set)
+		return err
+	}); err != nil {
 		return nil, solveErr(j, err)
 	}
 	if r.targets != "" {

@@ -83,7 +83,11 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 		}
 		study.Sections = []int{si}
 	}
-	res, err := drift.Tol(ctx, input(j), study, set)
+	var res *drift.TolSummary
+	err = step(progressStd(std, f.json), "tolerance search (field solves, roots confirmed by direct solves)", func() (err error) {
+		res, err = drift.Tol(ctx, input(j), study, set)
+		return err
+	})
 	var we *drift.WidenError
 	if errors.As(err, &we) {
 		return usageErr("--widen: %v", err)
