@@ -9,6 +9,7 @@ type band struct {
 	er     float64 // permittivity of the band (resin of the neighbouring prepreg in a trace slab)
 	trace  int     // index of the trace in this slab, or -1; both traces: 2
 	src    int     // stackup index of the dielectric whose εr fills the band; srcAir outside the stack
+	layer  int     // stackup index of the layer the band is (a copper slab's own index); -1 outside the stack
 }
 
 // Permittivity sources of an element that are not a stackup layer.
@@ -60,6 +61,9 @@ type geometry struct {
 	offLo float64
 	offHi float64
 	mask  *maskGeom // nil without a solder mask
+	// down: domain-up is stackup-down (a microstrip below its ground);
+	// the picture turns it back (drawing.go).
+	down bool
 }
 
 // edgeRef names one side of one trace.
@@ -118,7 +122,7 @@ func (s *Section) buildGeometry() *geometry {
 	y := 0.0
 	for _, i := range order {
 		l := ls[i]
-		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i}
+		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i, layer: i}
 		if l.Kind == Copper {
 			// A copper slab: the trace stands on the face of the dielectric it was
 			// etched on, a core face if the slab touches exactly one core, else the
@@ -169,6 +173,7 @@ func (s *Section) buildGeometry() *geometry {
 		y = b.y1
 	}
 	g.stackH = y
+	g.down = !up
 	if m := s.Stackup.Mask; m != nil && g.micro {
 		mg := &maskGeom{y0: y, tc: m.OverCopper, er: m.Er}
 		if o := order[len(order)-1]; ls[o].Kind == Copper {
