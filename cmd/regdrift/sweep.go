@@ -1,11 +1,15 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"io"
 	"math"
+	"slices"
+	"strings"
+	"sync"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
@@ -137,7 +141,7 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 			outFile{"sensitivity.csv", func(w io.Writer) error { return drift.WriteSensitivityCSV(w, c, lu.units()) }},
 			outFile{"sensitivity.png", func(w io.Writer) error { return figure.Sensitivity(w, s, res.Impacts, lu.units()) }})
 	}
-	paths, err := writeAll(f.out, files...)
+	paths, err := writeAll(f.out, prerender(files)...)
 	if err != nil {
 		return err
 	}
@@ -276,4 +280,43 @@ func sectionPicture(s *section.Section, c *section.Curve, mesh bool, u unit.Outp
 		}
 	}
 	return func(w io.Writer) error { return figure.Section(w, s, d, m, u) }, nil
+}
+
+// prerender draws the figures among files at once, each into memory on its
+// own goroutine (a figure draws on one core; sweep.png and section.png
+// together), and returns files whose writers copy the finished bytes, for
+// writeAll to commit in order.
+func prerender(files []outFile) []outFile {
+	out := slices.Clone(files)
+	var wg sync.WaitGroup
+	panics := make([]any, len(files))
+	for i, f := range files {
+		if !strings.HasSuffix(f.name, ".png") {
+			continue
+		}
+		var buf bytes.Buffer
+		var err error
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			// A figure's panic is re-raised on the caller's goroutine,
+			// where realMain reports it as a crash.
+			defer func() { panics[i] = recover() }()
+			err = f.write(&buf)
+		}()
+		out[i].write = func(w io.Writer) error {
+			if err != nil {
+				return err
+			}
+			_, e := w.Write(buf.Bytes())
+			return e
+		}
+	}
+	wg.Wait()
+	for _, p := range panics {
+		if p != nil {
+			panic(p)
+		}
+	}
+	return out
 }

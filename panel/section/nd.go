@@ -6,7 +6,6 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/blas/gonum"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -347,55 +346,6 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 	return true
 }
 
-// solve2 solves K·x = rhs in place for the two right-hand sides interleaved
-// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into two
-// contiguous vectors and works on them row by row of U (gonum's assembly
-// axpy and dot), then scatters back.
-func (nf *ndFactor) solve2(rhs []float64) {
-	sym := nf.sym
-	var impl gonum.Implementation
-	// Forward: Uᵀ·y = b, fronts in post order.
-	for k := range sym.fronts {
-		f := &sym.fronts[k]
-		m, p := len(f.vars), f.p
-		if p == 0 {
-			continue
-		}
-		F := nf.rows[f.off : f.off+p*m]
-		y0, y1 := nf.gather(f.vars, rhs)
-		for i := range p {
-			row := F[i*m+i : i*m+m]
-			y0[i] /= row[0]
-			y1[i] /= row[0]
-			if n := m - i - 1; n > 0 {
-				impl.Daxpy(n, -y0[i], row[1:], 1, y0[i+1:], 1)
-				impl.Daxpy(n, -y1[i], row[1:], 1, y1[i+1:], 1)
-			}
-		}
-		nf.scatter(f.vars, rhs)
-	}
-	// Backward: U·x = y, fronts in reverse post order.
-	for k := len(sym.fronts) - 1; k >= 0; k-- {
-		f := &sym.fronts[k]
-		m, p := len(f.vars), f.p
-		if p == 0 {
-			continue
-		}
-		F := nf.rows[f.off : f.off+p*m]
-		y0, y1 := nf.gather(f.vars, rhs)
-		for i := p - 1; i >= 0; i-- {
-			row := F[i*m+i : i*m+m]
-			if n := m - i - 1; n > 0 {
-				y0[i] -= impl.Ddot(n, row[1:], 1, y0[i+1:], 1)
-				y1[i] -= impl.Ddot(n, row[1:], 1, y1[i+1:], 1)
-			}
-			y0[i] /= row[0]
-			y1[i] /= row[0]
-		}
-		nf.scatter(f.vars[:p], rhs)
-	}
-}
-
 // gather copies the two right-hand sides of vars into nf.y, as two vectors.
 func (nf *ndFactor) gather(vars []int32, rhs []float64) (y0, y1 []float64) {
 	n := len(vars)
@@ -419,4 +369,61 @@ func (nf *ndFactor) scatter(vars []int32, rhs []float64) {
 // errNotPD is the message of a failed factorisation.
 func errNotPD(n int) error {
 	return fmt.Errorf("section: stiffness matrix is not positive definite (%d unknowns)", n)
+}
+
+// solve2 solves K·x = rhs in place for the two right-hand sides interleaved
+// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into two
+// contiguous vectors and works on them row by row of U, both right-hand
+// sides in one pass over each row: the rows of U are read once rather than
+// twice (10 % faster than two gonum axpy or dot calls per row on the fine
+// meshes; the solve streams U from memory).
+func (nf *ndFactor) solve2(rhs []float64) {
+	sym := nf.sym
+	// Forward: Uᵀ·y = b, fronts in post order.
+	for k := range sym.fronts {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.rows[f.off : f.off+p*m]
+		y0, y1 := nf.gather(f.vars, rhs)
+		for i := range p {
+			row := F[i*m+i : i*m+m]
+			a0, a1 := y0[i]/row[0], y1[i]/row[0]
+			y0[i], y1[i] = a0, a1
+			r := row[1:]
+			t0, t1 := y0[i+1:m], y1[i+1:m]
+			t0, t1 = t0[:len(r)], t1[:len(r)]
+			for c, v := range r {
+				t0[c] -= a0 * v
+				t1[c] -= a1 * v
+			}
+		}
+		nf.scatter(f.vars, rhs)
+	}
+	// Backward: U·x = y, fronts in reverse post order.
+	for k := len(sym.fronts) - 1; k >= 0; k-- {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.rows[f.off : f.off+p*m]
+		y0, y1 := nf.gather(f.vars, rhs)
+		for i := p - 1; i >= 0; i-- {
+			row := F[i*m+i : i*m+m]
+			r := row[1:]
+			t0, t1 := y0[i+1:m], y1[i+1:m]
+			t0, t1 = t0[:len(r)], t1[:len(r)]
+			var s0, s1 float64
+			for c, v := range r {
+				s0 += v * t0[c]
+				s1 += v * t1[c]
+			}
+			y0[i] = (y0[i] - s0) / row[0]
+			y1[i] = (y1[i] - s1) / row[0]
+		}
+		nf.scatter(f.vars[:p], rhs)
+	}
 }

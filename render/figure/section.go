@@ -308,7 +308,7 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 			}
 		}
 		label := fmt.Sprintf("%s trace: foot %s, far face %s", t.Layer, L(t.Foot), L(t.Far))
-		dimension(cv, px(fl), px(fr), yDim, yEdge, label, above)
+		dimension(cv, px(fl), px(fr), yDim, yEdge, label, above, m != nil)
 	}
 	// Offset between the centres, below the drawing; the gap of an
 	// edge-coupled pair beside it.
@@ -329,7 +329,7 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 	if math.Abs(c0-c1) > 2 {
 		arrowLine(dc, math.Min(c0, c1), math.Max(c0, c1), yOff)
 	}
-	cv.Text(offText, math.Max(c0, c1)+0.8*em, yOff, 0, 0.5, render.TextStyle{Color: dimInk, Halo: true})
+	cv.Text(offText, math.Max(c0, c1)+0.8*em, yOff, 0, 0.5, render.TextStyle{Color: dimInk})
 
 	// Scale bar: a round length about a tenth of the view.
 	bar := niceLength(0.12 * (xhi - xlo) / u.LengthSI())
@@ -444,6 +444,12 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 		notes = append(notes, fmt.Sprintf("The solved region is closed by a grounded box %s from the traces (its field there is negligible).", L(d.Walls[1]-d.Traces[0].Centre)))
 	} else {
 		notes = append(notes, fmt.Sprintf("The solved region runs %s left and %s right of the lower trace's centre to side walls of zero normal field; the view is cut.", L(d.Traces[1].Centre-d.Walls[0]), L(d.Walls[1]-d.Traces[1].Centre)))
+	}
+	for _, l := range d.Layers {
+		if ls[l.Index].Kind == section.Dielectric && ls[l.Index].Name == "" {
+			notes = append(notes, "An unnamed dielectric is called by its place in the stackup: layer N is the job's Nth stackup entry, counted from the top.")
+			break
+		}
 	}
 	notes = append(notes, "Each trace stands on the face of the dielectric it was etched on (its foot); the rest of its copper layer is resin of the neighbouring dielectric.")
 	if m != nil {
@@ -640,7 +646,7 @@ func blend(img *image.RGBA, x, y int, col color.RGBA) {
 
 // dimension draws a width dimension from x0 to x1 at height y with
 // extension lines to the face at yFace and the label beyond it.
-func dimension(cv *render.Sketch, x0, x1, y, yFace float64, label string, above bool) {
+func dimension(cv *render.Sketch, x0, x1, y, yFace float64, label string, above, halo bool) {
 	dc := cv.Context()
 	em := cv.TextSize()
 	dc.SetColor(dimInk)
@@ -658,7 +664,8 @@ func dimension(cv *render.Sketch, x0, x1, y, yFace float64, label string, above 
 	if !above {
 		ly = y + 0.9*em
 	}
-	cv.Text(label, (x0+x1)/2, ly, 0.5, 0.5, render.TextStyle{Size: 0.95, Color: dimInk, Halo: true})
+	// A halo only over the mesh: each costs twelve more passes of the text.
+	cv.Text(label, (x0+x1)/2, ly, 0.5, 0.5, render.TextStyle{Size: 0.95, Color: dimInk, Halo: halo})
 }
 
 // arrowLine draws a horizontal line from x0 to x1 with arrowheads at both ends.
