@@ -139,7 +139,7 @@ func (s *Section) Drawing(off float64) (*Drawing, error) {
 		dt.Y0, dt.Y1 = lo.Y, hi.Y
 		c := centre[k]
 		dt.Corners = [4]XY{{c - hwLo, lo.Y}, {c + hwLo, lo.Y}, {c + hwHi, hi.Y}, {c - hwHi, hi.Y}}
-		dt.FootLow = math.Abs(2*hwLo-dt.Foot) <= math.Abs(2*hwHi-dt.Foot)
+		dt.FootLow = t.footLow != g.down
 		d.Traces[k] = dt
 	}
 	if m := g.mask; m != nil {

@@ -32,6 +32,7 @@ type traceGeom struct {
 	yb, yt   float64 // lower and upper face (equal for an ideal zero-thickness strip)
 	hwb, hwt float64 // half widths at the lower and upper face
 	slab     int     // index of the copper layer in the stackup
+	footLow  bool    // the foot (the etched-from face) is the lower face
 }
 
 // halfWidth returns the half width of the trace at height y inside its slab.
@@ -153,7 +154,7 @@ func (s *Section) buildGeometry() *geometry {
 				}
 				// footLow: the foot is at the lower face in domain coordinates.
 				footLow := footBelow == up
-				tg := traceGeom{yb: b.y0, yt: b.y1, slab: i}
+				tg := traceGeom{yb: b.y0, yt: b.y1, slab: i, footLow: footLow}
 				if footLow {
 					tg.hwb, tg.hwt = foot, far
 				} else {

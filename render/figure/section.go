@@ -362,6 +362,9 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 		switch {
 		case l.Ground:
 			t = fmt.Sprintf("%s  ground plane  %s%s", lay.Name, L(lay.Thickness), star)
+			if b := buildText(lay, u); b != "" {
+				t += " = " + b
+			}
 		case lay.Kind == section.Dielectric:
 			t = fmt.Sprintf("%s  %s  %s  εr %.2f%s", dielectricName(ls, l.Index), coreOrPrepreg(lay), L(lay.Thickness), lay.Er, star)
 		default:
