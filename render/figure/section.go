@@ -121,6 +121,7 @@ func (v vscale) raised(y0, y1 float64) bool {
 func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.DrawnMesh, u unit.Output) error {
 	ls := s.Stackup.Layers
 	L := func(v float64) string { return fmt.Sprintf("%.2f %s", v/u.LengthSI(), u.Length()) }
+	far := func(v float64) string { return fmt.Sprintf("%.0f %s", v/u.LengthSI(), u.Length()) } // a distance to a wall
 
 	// Horizontal extent: the traces with room around them.
 	xlo, xhi := math.Inf(1), math.Inf(-1)
@@ -444,9 +445,9 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 		notes = append(notes, "Beyond the grounds, not in the solve: "+strings.Join(o, ", ")+".")
 	}
 	if d.Microstrip {
-		notes = append(notes, fmt.Sprintf("The solved region is closed by a grounded box %s from the traces (its field there is negligible).", L(d.Walls[1]-d.Traces[0].Centre)))
+		notes = append(notes, fmt.Sprintf("The solved region is closed by a grounded box %s from the traces (its field there is negligible).", far(d.Walls[1]-d.Traces[0].Centre)))
 	} else {
-		notes = append(notes, fmt.Sprintf("The solved region runs %s left and %s right of the lower trace's centre to side walls of zero normal field; the view is cut.", L(d.Traces[1].Centre-d.Walls[0]), L(d.Walls[1]-d.Traces[1].Centre)))
+		notes = append(notes, fmt.Sprintf("The solved region runs %s left and %s right of the lower trace's centre to side walls of zero normal field; the view is cut.", far(d.Traces[1].Centre-d.Walls[0]), far(d.Walls[1]-d.Traces[1].Centre)))
 	}
 	for _, l := range d.Layers {
 		if ls[l.Index].Kind == section.Dielectric && ls[l.Index].Name == "" {
