@@ -58,9 +58,10 @@ type DrawnTrace struct {
 // XY is a point of a Drawing, m.
 type XY struct{ X, Y float64 }
 
-// DrawnMask is the solder mask of a Drawing: a coat over the laminate from
-// Y0 to Top, and over each coated trace the polygon Coats[k] (nil when trace
-// k is not coated), the trace's own copper inside it.
+// DrawnMask is the solder mask of a Drawing: a coat over the laminate
+// between Y0 and Top (Y0 < Top; the coat's outer face is Top above the
+// ground, Y0 below it), and over each coated trace the polygon Coats[k] (nil
+// when trace k is not coated), the trace's own copper inside it.
 type DrawnMask struct {
 	Er      float64
 	Y0, Top float64

@@ -34,9 +34,10 @@ func drawingCases() []struct {
 	twoCore.DesignOffset = 21 * testMil
 	micro := withMask(edgeMicro(10*testMil, 12*testMil, 8*testMil, 1.9*testMil, 3.48), 0.8*testMil, 0.5*testMil, 3.8)
 	micro.Traces[0].Etch, micro.Traces[1].Etch = 0.5*testMil, 0.5*testMil
-	below := edgeMicro(10*testMil, 12*testMil, 8*testMil, 1.9*testMil, 3.48)
+	below := withMask(edgeMicro(10*testMil, 12*testMil, 8*testMil, 1.9*testMil, 3.48), 0.7*testMil, 0.4*testMil, 3.6)
 	ls := below.Stackup.Layers
 	below.Stackup.Layers = []Layer{ls[2], ls[1], ls[0]}
+	below.Traces[0].Etch, below.Traces[1].Etch = 0.4*testMil, 0.4*testMil
 	below.Name = "below"
 	return []struct {
 		name string
@@ -136,22 +137,35 @@ func TestDrawingGeometry(t *testing.T) {
 			}
 			if m := s.Stackup.Mask; m != nil {
 				dm := d.Mask
-				if dm == nil || math.Abs(dm.Top-dm.Y0-m.OverLaminate) > drawTol {
+				if dm == nil || math.Abs(math.Abs(dm.Top-dm.Y0)-m.OverLaminate) > drawTol {
 					t.Fatalf("mask %+v, want %g over the laminate", dm, m.OverLaminate)
+				}
+				// The coat's outer face is the one away from the ground: up
+				// the page for a stack above its ground, down for one below.
+				dir := 1.0
+				if d.Bottom < 0 {
+					dir = -1
 				}
 				for k, coat := range dm.Coats {
 					tr := d.Traces[k]
-					top := math.Inf(-1)
+					face := tr.Y1
+					if dir < 0 {
+						face = tr.Y0
+					}
+					outer := math.Inf(-1)
 					var xl, xr float64
 					for _, p := range coat {
-						if p.Y > top {
-							top, xl, xr = p.Y, p.X, p.X
-						} else if p.Y == top {
+						if v := dir * p.Y; v > outer {
+							outer, xl, xr = v, p.X, p.X
+						} else if v == outer {
 							xl, xr = math.Min(xl, p.X), math.Max(xr, p.X)
 						}
 					}
-					if math.Abs(top-tr.Y1-m.OverCopper) > drawTol || math.Abs(xr-xl-(tr.Far+2*m.OverCopper)) > drawTol {
-						t.Errorf("coat %d: top %g over the trace, %g wide; want %g and %g", k, top-tr.Y1, xr-xl, m.OverCopper, tr.Far+2*m.OverCopper)
+					if got := outer - dir*face; math.Abs(got-m.OverCopper) > drawTol || math.Abs(xr-xl-(tr.Far+2*m.OverCopper)) > drawTol {
+						t.Errorf("coat %d: %g over the trace, %g wide; want %g and %g", k, got, xr-xl, m.OverCopper, tr.Far+2*m.OverCopper)
+					}
+					if area := shoelace(coat); !(area > 0) {
+						t.Errorf("coat %d outline not counter-clockwise (area %g)", k, area)
 					}
 				}
 			}
@@ -258,4 +272,15 @@ func TestDrawingBadInput(t *testing.T) {
 	if _, err := demoSection().SweepMesh([]float64{0, testMil}, 0, 0); err == nil {
 		t.Error("level 0 meshed")
 	}
+}
+
+// shoelace returns the signed area of a polygon, positive counter-clockwise
+// (the surveyor's formula).
+func shoelace(p []XY) float64 {
+	a := 0.0
+	for i := range p {
+		q := p[(i+1)%len(p)]
+		a += p[i].X*q.Y - q.X*p[i].Y
+	}
+	return a / 2
 }
