@@ -249,6 +249,13 @@ func Section(w io.Writer, s *section.Section, d *section.Drawing, m *section.Dra
 	}
 	for _, t := range d.Traces {
 		cs := t.Corners[:]
+		if t.Y1 == t.Y0 { // an ideal zero-thickness strip: a line
+			dc.SetColor(copperEdge)
+			dc.SetLineWidth(3)
+			dc.DrawLine(px(cs[0].X), py(cs[0].Y), px(cs[1].X), py(cs[1].Y))
+			dc.Stroke()
+			continue
+		}
 		dc.SetColor(copperFill)
 		polygon(dc, cs, px, py)
 		dc.FillPreserve()

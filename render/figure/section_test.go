@@ -109,3 +109,57 @@ func BenchmarkSection(b *testing.B) {
 		})
 	}
 }
+
+// TestSectionZeroThickness checks that ideal zero-thickness strips (a line
+// of nodes in the solver) are drawn: the copper-edge colour appears.
+func TestSectionZeroThickness(t *testing.T) {
+	s := testInput(t).Sections[0]
+	z := *s
+	z.Stackup.Layers = append([]section.Layer(nil), s.Stackup.Layers...)
+	for i, l := range z.Stackup.Layers {
+		if l.Name == "L3" || l.Name == "L4" {
+			z.Stackup.Layers[i].Thickness = 0
+		}
+	}
+	z.Traces[0].Etch, z.Traces[1].Etch = 0, 0
+	d, err := z.Drawing(z.NominalOffset())
+	if err != nil {
+		t.Fatal(err)
+	}
+	count := func(d *section.Drawing) int {
+		var b bytes.Buffer
+		if err := Section(&b, &z, d, nil, unit.MilInch); err != nil {
+			t.Fatal(err)
+		}
+		img := decode(t, "zero thickness", b.Bytes(), sectionWidth)
+		n := 0
+		r := img.Bounds()
+		for y := r.Min.Y; y < r.Max.Y; y++ {
+			for x := r.Min.X; x < r.Max.X; x++ {
+				c0, c1, c2, _ := img.At(x, y).RGBA()
+				r, g, b := uint8(c0>>8), uint8(c1>>8), uint8(c2>>8)
+				exact := color.RGBA{r, g, b, 255} == copperEdge || color.RGBA{r, g, b, 255} == copperFill
+				// Copper-brown, but not a pixel set whole (fills and the
+				// ground hatching are): the antialiased strip lines.
+				if !exact && int(r)-int(b) > 60 {
+					n++
+				}
+			}
+		}
+		return n
+	}
+	// The same drawing with each strip shrunk to a point: the difference is
+	// the two strips' lines.
+	pt := *d
+	for k := range pt.Traces {
+		for c := range pt.Traces[k].Corners {
+			pt.Traces[k].Corners[c].X = pt.Traces[k].Centre
+		}
+	}
+	with, without := count(d), count(&pt)
+	// Two 14 mil lines at no less than 5 px per mil, each with at least one
+	// antialiased row along it.
+	if with-without < 2*14*5 {
+		t.Errorf("the strips add %d antialiased copper pixels, want at least %d", with-without, 2*14*5)
+	}
+}
