@@ -542,24 +542,27 @@ func buildText(l section.Layer, u unit.Output) string {
 	return strings.Join(parts, " + ") + " " + u.Length()
 }
 
-// wrapText breaks s at spaces into lines no wider than width pixels.
+// wrapText breaks s at spaces into lines no wider than width pixels,
+// measuring each word once.
 func wrapText(cv *render.Sketch, s string, width float64, ts render.TextStyle) []string {
+	space := cv.TextWidth(" ", ts)
 	var lines []string
-	line := ""
-	for _, w := range strings.Fields(s) {
-		try := w
-		if line != "" {
-			try = line + " " + w
+	var line []string
+	w := 0.0
+	for _, word := range strings.Fields(s) {
+		ww := cv.TextWidth(word, ts)
+		if len(line) > 0 && w+space+ww > width {
+			lines = append(lines, strings.Join(line, " "))
+			line, w = nil, 0
 		}
-		if line != "" && cv.TextWidth(try, ts) > width {
-			lines = append(lines, line)
-			line = w
-			continue
+		if len(line) > 0 {
+			w += space
 		}
-		line = try
+		line = append(line, word)
+		w += ww
 	}
-	if line != "" {
-		lines = append(lines, line)
+	if len(line) > 0 {
+		lines = append(lines, strings.Join(line, " "))
 	}
 	return lines
 }
