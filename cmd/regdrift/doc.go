@@ -85,7 +85,7 @@ stdout.
 
 Usage:
 
-	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [--sensitivities [--excursions LIST]] [-o DIR] [--json]
+	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [--sensitivities [--excursions LIST]] [--mesh] [-o DIR] [--json]
 
 Solve a section's cross-section over a range of lateral offsets.
 
@@ -101,7 +101,22 @@ sigma, with a tenth to spare), doubled while the coupling is still in spec at
 an end.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
-where it leaves the spec; impedances; directivity).
+where it leaves the spec; impedances; directivity), and section.png
+(section-NAME.png when the job has several sections): the cross-section at
+the design offset as the field solver meshes it, to check the input at a
+glance. Each dielectric of the solved region is shaded and labelled with its
+name, kind, thickness and εr; each copper layer with its finished thickness,
+its foil and plating steps when given, and the resin beside its traces; the
+ground planes, the two traces as their trapezoids with the foot and far-face
+widths, the solder mask, and the offset between the trace centres are drawn
+and dimensioned. The picture is to scale in both directions, except that a
+layer too thin to see is drawn at a stated least height and marked; layers
+beyond the grounds, which the solver does not see, are listed. With --mesh
+the mesh solved at the design offset is overlaid, at the level the sweep
+reached (the coarser of its Richardson pair).
+
+--json also lists every copper layer of the stackup ("copper": layer,
+finished_m, and foil_m and plating_m when given as foil plus plating).
 
 With --sensitivities every offset is also solved for the derivative of
 coupling, directivity, each line's impedance and each mode's effective
