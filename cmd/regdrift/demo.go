@@ -145,9 +145,14 @@ const demoTrials = 4000
 // writeSweep writes sweep.csv and sweep.png of section i's curve in a.
 func writeSweep(dir string, a *drift.Analysis, i int, lu lengthUnit) error {
 	c := a.Curves[i]
-	_, err := writeAll(dir,
+	pic, err := sectionPicture(c.Section, c.Curve, false, lu.units())
+	if err != nil {
+		return err
+	}
+	_, err = writeAll(dir,
 		outFile{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c.Curve, lu.units()) }},
-		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, c.Section, c.Curve, lu.units()) }})
+		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, c.Section, c.Curve, lu.units()) }},
+		outFile{"section.png", pic})
 	return err
 }
 
