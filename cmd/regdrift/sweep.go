@@ -100,7 +100,11 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	var hit bool
 	if f.offsets == "" {
 		// The curve map, yield, tol and comp read (one range rule, one cache entry).
-		sc, err := drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+		var sc *drift.Curve
+		err := step(progressStd(std, f.json), "field solves of section "+s.Name, func() (err error) {
+			sc, err = drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+			return err
+		})
 		if err != nil {
 			return solveErr(j, err)
 		}
@@ -117,7 +121,10 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		if len(offsets) > maxSweepOffsets {
 			return usageErr("--offsets: %q gives %d offsets; at most %d (the curve is interpolated between them: a step of a tenth of a mil is fine enough for any drift)", f.offsets, len(offsets), maxSweepOffsets)
 		}
-		if c, hit, err = drift.SolveAt(ctx, s, offsets, set); err != nil {
+		if err = step(progressStd(std, f.json), fmt.Sprintf("field solves of section %s at %d offsets", s.Name, len(offsets)), func() (err error) {
+			c, hit, err = drift.SolveAt(ctx, s, offsets, set)
+			return err
+		}); err != nil {
 			var fe *section.FieldError
 			if errors.As(err, &fe) && fe.Key == "offsets" {
 				return usageErr("--offsets: %v", fe.Err)
