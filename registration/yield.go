@@ -302,6 +302,11 @@ type Yield struct {
 	Pairs []*Relative
 	Pair  []int
 	Parts int // number of part instances
+	// Coupons lists the part instances that are not products (test coupon
+	// strips), in increasing order: their sites and part yields are tallied
+	// like any other, but they are left out of MCResult.GoodParts. Nil means
+	// every part is a product.
+	Coupons []int
 	// Check, if not nil, decides in Monte Carlo whether the sites it
 	// claims meet their spec, for a coupling that depends on more than the
 	// across offset (process variation terms); the others are decided by
@@ -329,6 +334,9 @@ type SiteCheckWorker interface {
 	// offset offset (design offset included), drawing its per-site parts.
 	InSpec(i int, offset float64, rng *rand.Rand) bool
 }
+
+// Products returns the number of part instances that are products.
+func (y *Yield) Products() int { return y.Parts - len(y.Coupons) }
 
 // NewYield prepares a yield study of sites under model m, with parts part
 // instances (site Part indices must lie in [0, parts) or be −1).
@@ -376,7 +384,7 @@ func (r *Relative) Prob(row *Row, nominal float64) SiteProb {
 			if t.Dist != Uniform {
 				continue
 			}
-			w := math.Abs(row.Across[k]) * t.Spread
+			w := math.Abs(r.Sign[i]*row.Across[k]) * t.Spread
 			switch {
 			case w > w1:
 				w1, w2 = w, w1
@@ -458,8 +466,9 @@ const MCBlock = 256
 type MCResult struct {
 	Trials   int
 	SiteGood []int64 // per site, panels on which the site met its spec
-	PartGood []int64 // per part instance, panels on which all its sites did
-	// GoodParts[k] is the number of panels with exactly k good parts.
+	PartGood []int64 // per part instance (coupons too), panels on which all its sites did
+	// GoodParts[k] is the number of panels with exactly k good products
+	// (coupon parts are not counted; see Yield.Coupons).
 	GoodParts []int64
 }
 
@@ -545,7 +554,7 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 	workers = min(workers, blocks)
 
 	res := &MCResult{Trials: set.Trials, SiteGood: make([]int64, len(sites)),
-		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Parts+1)}
+		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Products()+1)}
 	var next atomic.Int64
 	var mu sync.Mutex
 	done := 0
@@ -610,7 +619,7 @@ func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	pcg := rand.NewPCG(0, 0)
 	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
 		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
-		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1), check: newCheckWorker(y)}
+		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
 }
 
 func newCheckWorker(y *Yield) SiteCheckWorker {
@@ -657,7 +666,15 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 				bad++
 			}
 		}
-		w.goodParts[w.y.Parts-bad]++
+		// Coupon parts failed in this trial were counted in bad; they are
+		// few (a strip or two), so taking them out here keeps the site
+		// loop free of the product test.
+		for _, c := range w.y.Coupons {
+			if w.stamp[c] == t {
+				bad--
+			}
+		}
+		w.goodParts[w.y.Products()-bad]++
 	}
 	w.trials += int64(n)
 }
