@@ -197,7 +197,18 @@ func MapView(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions
 	}
 	in, u := a.In, o.Units
 	zones := a.Zones()
-	grid := fieldGrid(in, o.Width/6, s.field(a, zones, u))
+	cells := o.Width / 6
+	if !in.Process.Empty() && !s.window {
+		// With variation terms every cell reads a dozen sensitivity
+		// curves (and for p integrates over the offset, like yield.png);
+		// the process shapes are smooth over the panel, so a quarter (a
+		// sixteenth) of the cells draws the same field.
+		cells = o.Width / 12
+		if s.q == drift.PInSpec {
+			cells = o.Width / 24
+		}
+	}
+	grid := fieldGrid(in, cells, s.field(a, zones, u))
 	lo, hi, _ := ShownRange(a, o)
 	glo, ghi := grid.Range()
 	lo, hi = math.Min(lo, glo), math.Max(hi, ghi)
