@@ -232,7 +232,7 @@ func (a *Analysis) WriteSitesCSV(w io.Writer, u unit.Output) error {
 		r := &a.Sites[i]
 		s := r.Site
 		rec = rec[:0]
-		rec = append(rec, s.Name, a.In.PartName(s), strconv.Itoa(s.Array+1), strconv.Itoa(s.I+1), strconv.Itoa(s.J+1), s.Coupler,
+		rec = append(rec, s.Name, a.In.PartName(s), arrayName(&a.In.Layout, s.Array), strconv.Itoa(s.I+1), strconv.Itoa(s.J+1), s.Coupler,
 			a.In.Sections[r.Section].Name,
 			fixed(s.Pos.X/u.PanelSI(), 4), fixed(s.Pos.Y/u.PanelSI(), 4), fixed(s.Angle*180/math.Pi, 2),
 			fixed(r.Offset/u.LengthSI(), 4), fixed(r.Stats.SDAcross/u.LengthSI(), 4), fixed(r.Along/u.LengthSI(), 4), fixed(r.Stats.SDAlong/u.LengthSI(), 4),
@@ -245,4 +245,13 @@ func (a *Analysis) WriteSitesCSV(w io.Writer, u unit.Output) error {
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// arrayName names array i of l in sites.csv: its name ("a1" without one),
+// or "" for a site read from a placement file (i < 0).
+func arrayName(l *panel.Layout, i int) string {
+	if i < 0 {
+		return ""
+	}
+	return l.ArrayName(i)
 }
