@@ -42,7 +42,12 @@ Copies the embedded demo jobs into DIR/samples (so that you can edit and rerun
 them) and maps each one into DIR/<job>/: a same-core 3 dB hybrid build, the same
 hybrids on two cores (which drift more toward the corners), and a panel of
 10 dB offset-broadside couplers whose coupling moves linearly with offset.
-All demo data are invented.
+Then the topology comparison: one 20 dB coupler designed three ways (broadside
+on one core, broadside across two cores, edge-coupled microstrip under mask)
+on one panel and one process file, mapped and yielded into
+DIR/topology-<build>/ and compared side by side, and the microstrip solved
+with its base foil as the trace height against its finished copper
+(DIR/topology-foil/). All demo data are invented.
 
 # map
 
@@ -228,10 +233,16 @@ good parts (every coupler of the part good) and good parts per panel. Runs are
 split into fixed blocks of panels, each with its own PCG stream, so the result
 for a seed does not depend on --workers.
 
-The error budget gives each contributor term's share of the across-offset
-variance (squared sensitivity times variance) at the worst site and averaged
-over the panel; its sd column is the standard deviation the term alone causes
-(over the panel, the rms over the sites).
+The error budget ranks registration terms and variation terms together by
+their share of the coupling variance, at the worst site and averaged over the
+panel: a registration term enters through the offset to second order about
+the site's mean offset (the curve's slope squared times v, plus half its
+curvature squared times v times sigma^2, with v the term's offset
+variance and sigma^2 the site's), a variation term to first order (its
+sensitivity squared times its variance). The sd column is the coupling
+standard deviation the term alone causes (over the panel, the rms over the
+sites); budget.csv also gives each registration term's share of the
+across-offset variance and its offset sd.
 
 Writes yield.png (closed-form site yield over the panel for the most common
 section and line direction, contours at 99.9, 99 and 95 %, part outlines, each

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"cmp"
 	"context"
 	"fmt"
 	"io"
@@ -98,18 +99,8 @@ func printTopology(w io.Writer, rows []topologyRow, trials int) {
 			100*r.siteMC, 100*r.siteClosed, r.goodMean, r.parts, r.goodP05, reg, vari, sd, r.top, 100*r.topShare)
 	}
 	tw.Flush()
-	best := slices.MaxFunc(rows, func(a, b topologyRow) int { return cmpFloat(a.siteMC, b.siteMC) })
+	best := slices.MaxFunc(rows, func(a, b topologyRow) int { return cmp.Compare(a.goodMean, b.goodMean) })
 	fmt.Fprintf(w, "  most parts in spec: %s (%d panels each, the same seed)\n", best.build, trials)
-}
-
-func cmpFloat(a, b float64) int {
-	switch {
-	case a < b:
-		return -1
-	case a > b:
-		return 1
-	}
-	return 0
 }
 
 // foilOffsets are the centre-to-centre spacings of the microstrip pair the

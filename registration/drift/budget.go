@@ -124,10 +124,6 @@ func (a *Analysis) CouplingBudget() CouplingBudget {
 
 // budgetShares turns variances (summed over n sites) into ranked shares.
 func (a *Analysis) budgetShares(v map[budgetKey]float64, n float64) []CouplingShare {
-	var tot float64
-	for _, x := range v {
-		tot += x
-	}
 	out := make([]CouplingShare, 0, len(v))
 	keys := make([]budgetKey, 0, len(v))
 	for k := range v {
@@ -145,6 +141,12 @@ func (a *Analysis) budgetShares(v map[budgetKey]float64, n float64) []CouplingSh
 		}
 		return keys[i].t < keys[j].t
 	})
+	// The total in the keys' order: a map's order would change its last
+	// bits from run to run.
+	var tot float64
+	for _, k := range keys {
+		tot += v[k]
+	}
 	for _, k := range keys {
 		if !(v[k] > 0) {
 			continue // a term that moves nothing at these sites

@@ -2,6 +2,7 @@ package drift
 
 import (
 	"math"
+	"reflect"
 	"testing"
 
 	"gonum.org/v1/gonum/integrate/quad"
@@ -55,6 +56,12 @@ func TestCouplingBudgetSums(t *testing.T) {
 		}
 		if !src["registration"] || !src["variation"] {
 			t.Errorf("%s: sources %v, want both", name, src)
+		}
+	}
+	// Byte-identical from run to run (map orders change between ranges).
+	for range 5 {
+		if b2 := a.CouplingBudget(); !reflect.DeepEqual(b2, b) {
+			t.Fatal("the budget differs between two calls")
 		}
 	}
 	if b.WorstSite != a.Sites[a.WorstYieldSite()].Site.Name {
