@@ -233,16 +233,10 @@ good parts (every coupler of the part good) and good parts per panel. Runs are
 split into fixed blocks of panels, each with its own PCG stream, so the result
 for a seed does not depend on --workers.
 
-The error budget ranks registration terms and variation terms together by
-their share of the coupling variance, at the worst site and averaged over the
-panel: a registration term enters through the offset to second order about
-the site's mean offset (the curve's slope squared times v, plus half its
-curvature squared times v times sigma^2, with v the term's offset
-variance and sigma^2 the site's), a variation term to first order (its
-sensitivity squared times its variance). The sd column is the coupling
-standard deviation the term alone causes (over the panel, the rms over the
-sites); budget.csv also gives each registration term's share of the
-across-offset variance and its offset sd.
+The error budget gives each contributor term's share of the across-offset
+variance (squared sensitivity times variance) at the worst site and averaged
+over the panel; its sd column is the standard deviation the term alone causes
+(over the panel, the rms over the sites).
 
 Writes yield.png (closed-form site yield over the panel for the most common
 section and line direction, contours at 99.9, 99 and 95 %, part outlines, each

@@ -85,11 +85,8 @@ func demoTopology(ctx context.Context, std stdio, dir, out string, set *drift.Se
 		if msum.Linearity != nil {
 			r.linear = msum.Linearity.MaxErrorDB
 		}
-		if cb := y.CouplingBudget.Panel; len(cb) > 0 {
-			r.top, r.topShare = cb[0].Name, cb[0].Share
-			if cb[0].Source == "registration" {
-				r.top += " " + cb[0].Term
-			}
+		if len(y.Budget.Panel) > 0 { // registration alone until the coupling budget
+			r.top, r.topShare = y.Budget.Panel[0].Contributor+": "+y.Budget.Panel[0].Term, y.Budget.Panel[0].Share
 		}
 		rows = append(rows, r)
 	}

@@ -120,16 +120,15 @@ func printYield(w io.Writer, title string, sum *drift.YieldSummary, lu lengthUni
 		fmt.Fprintf(tw, "  %s\t%.4f %%\t%s\t%.4f %%\n", p.Name, 100*p.PartYield, p.WorstSite, 100*p.WorstSiteYield)
 	}
 	tw.Flush()
-	cb := sum.CouplingBudget
-	fmt.Fprintf(w, "\nerror budget (share of the coupling variance, registration and variation together):\n")
+	fmt.Fprintf(w, "\nerror budget (share of the across-offset variance):\n")
 	tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
-	fmt.Fprintf(tw, "  source\tcontributor\tterm\tpanel\tsd [dB]\tat %s\n", cb.WorstSite)
+	fmt.Fprintf(tw, "  contributor\tterm\tpanel\tsd [%s]\tat %s\n", lu.name, sum.Budget.WorstSite)
 	atWorst := map[string]float64{}
-	for _, r := range cb.AtWorst {
-		atWorst[r.Source+"\x00"+r.Name+"\x00"+r.Term] = r.Share
+	for _, r := range sum.Budget.AtWorst {
+		atWorst[r.Contributor+"\x00"+r.Term] = r.Share
 	}
-	for _, r := range cb.Panel[:min(8, len(cb.Panel))] {
-		fmt.Fprintf(tw, "  %s\t%s\t%s\t%.1f %%\t%.4f\t%.1f %%\n", r.Source, r.Name, r.Term, 100*r.Share, r.SDDB, 100*atWorst[r.Source+"\x00"+r.Name+"\x00"+r.Term])
+	for _, r := range sum.Budget.Panel[:min(8, len(sum.Budget.Panel))] {
+		fmt.Fprintf(tw, "  %s\t%s\t%.1f %%\t%.3f\t%.1f %%\n", r.Contributor, r.Term, 100*r.Share, r.SDM/lu.factor, 100*atWorst[r.Contributor+"\x00"+r.Term])
 	}
 	tw.Flush()
 	if len(sum.Orientation) > 0 {

@@ -66,7 +66,7 @@ func TestYieldStudy(t *testing.T) {
 		t.Fatal(err)
 	}
 	recs, _ = csv.NewReader(&b).ReadAll()
-	if want := 1 + len(sum.CouplingBudget.AtWorst) + len(sum.CouplingBudget.Panel); len(recs) != want || recs[0][8] != "offset_sd [mil]" {
+	if want := 1 + len(sum.Budget.AtWorst) + len(sum.Budget.Panel); len(recs) != want || recs[0][5] != "sd [mil]" {
 		t.Errorf("budget.csv: %d rows (want %d), header %v", len(recs), want, recs[0])
 	}
 }

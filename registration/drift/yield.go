@@ -26,11 +26,8 @@ type YieldSummary struct {
 	WorstSites          []YieldSite    `json:"worst_sites"`
 	Sections            []YieldSection `json:"sections"`
 	Budget              Budget         `json:"budget"`
-	// CouplingBudget ranks registration and variation terms together by
-	// their share of the coupling variance (budget.go).
-	CouplingBudget CouplingBudget `json:"coupling_budget"`
-	Orientation    []Orient       `json:"orientation,omitempty"`
-	Warnings       []string       `json:"warnings,omitempty"`
+	Orientation         []Orient       `json:"orientation,omitempty"`
+	Warnings            []string       `json:"warnings,omitempty"`
 }
 
 // GoodParts is the distribution of good parts per panel over the trials.
@@ -236,7 +233,6 @@ func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldS
 		}
 		sum.Budget.Panel = a.budgetRows(panelShares, tot)
 	}
-	sum.CouplingBudget = a.CouplingBudget()
 	sum.Orientation = a.Orientation()
 	return sum
 }
@@ -292,33 +288,19 @@ func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u unit
 	return cw.Error()
 }
 
-// WriteBudgetCSV writes the error budget of sum (budget.csv): registration
-// and variation terms ranked together by their share of the coupling
-// variance, at the worst site and over the panel, each registration term
-// also with its share of the across-offset variance and its offset sd.
+// WriteBudgetCSV writes the error budget rows of sum (budget.csv).
 func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"scope", "rank", "source", "contributor", "term", "share", "sd [dB]",
-		"offset_share", "offset_sd [" + u.Length() + "]"}); err != nil {
+	if err := cw.Write([]string{"scope", "rank", "contributor", "term", "share", "sd [" + u.Length() + "]"}); err != nil {
 		return err
 	}
-	cb := sum.CouplingBudget
 	for _, part := range []struct {
-		scope  string
-		rows   []CouplingShare
-		offset []BudgetRow
-	}{{"worst site: " + cb.WorstSite, cb.AtWorst, sum.Budget.AtWorst}, {"panel", cb.Panel, sum.Budget.Panel}} {
-		off := map[string]BudgetRow{}
-		for _, r := range part.offset {
-			off[r.Contributor+"\x00"+r.Term] = r
-		}
+		scope string
+		rows  []BudgetRow
+	}{{"worst site: " + sum.Budget.WorstSite, sum.Budget.AtWorst}, {"panel", sum.Budget.Panel}} {
 		for k, r := range part.rows {
-			osh, osd := "", ""
-			if o, ok := off[r.Name+"\x00"+r.Term]; ok && r.Source == "registration" {
-				osh, osd = fixed(o.Share, 5), fixed(o.SDM/u.LengthSI(), 4)
-			}
-			if err := cw.Write([]string{part.scope, strconv.Itoa(k + 1), r.Source, r.Name, r.Term,
-				fixed(r.Share, 5), fixed(r.SDDB, 5), osh, osd}); err != nil {
+			if err := cw.Write([]string{part.scope, strconv.Itoa(k + 1), r.Contributor, r.Term,
+				fixed(r.Share, 5), fixed(r.SDM/u.LengthSI(), 4)}); err != nil {
 				return err
 			}
 		}

@@ -88,32 +88,21 @@ func Parts(w io.Writer, res *registration.MCResult, sum *drift.YieldSummary, tit
 	return p.Render(1600, 1000).EncodePNG(w)
 }
 
-// Budget draws the panel's error budget as horizontal bars: registration
-// and variation terms ranked together by their share of the coupling
-// variance, with the share at the worst site beside each (budget.png).
+// Budget draws the panel's error budget as horizontal bars, with the share at
+// the worst site beside each (budget.png).
 func Budget(w io.Writer, sum *drift.YieldSummary) error {
-	cb := sum.CouplingBudget
 	atWorst := map[string]float64{}
-	for _, r := range cb.AtWorst {
-		atWorst[r.Source+"\x00"+r.Name+"\x00"+r.Term] = r.Share
+	for _, r := range sum.Budget.AtWorst {
+		atWorst[r.Contributor+"\x00"+r.Term] = r.Share
 	}
 	b := render.BarChart{
-		Title:  fmt.Sprintf("Coupling variance by term (in brackets: at %s)", cb.WorstSite),
-		XLabel: "share of the coupling variance over the panel [%]; blue: registration, orange: variation",
+		Title:  fmt.Sprintf("Error budget over the panel; in brackets: at the worst site, %s", sum.Budget.WorstSite),
+		XLabel: "share of variance over the panel [%]",
 	}
-	var top float64
-	for _, r := range cb.Panel[:min(12, len(cb.Panel))] {
-		b.Labels = append(b.Labels, r.Name+": "+r.Term)
+	for _, r := range sum.Budget.Panel[:min(12, len(sum.Budget.Panel))] {
+		b.Labels = append(b.Labels, r.Contributor+": "+r.Term)
 		b.Values = append(b.Values, 100*r.Share)
-		top = max(top, 100*r.Share)
-		c := render.Qualitative[1]
-		if r.Source == "registration" {
-			c = render.Qualitative[0]
-		}
-		b.Colors = append(b.Colors, c)
-		b.Texts = append(b.Texts, fmt.Sprintf("%.1f %% (%.1f %%)", 100*r.Share, 100*atWorst[r.Source+"\x00"+r.Name+"\x00"+r.Term]))
+		b.Texts = append(b.Texts, fmt.Sprintf("%.1f %% (%.1f %%)", 100*r.Share, 100*atWorst[r.Contributor+"\x00"+r.Term]))
 	}
-	// Room for the texts at the end of the longest bar.
-	b.XMax = min(100, math.Ceil(1.3*top/10)*10)
 	return b.Render(2000, 0).EncodePNG(w)
 }
