@@ -27,4 +27,7 @@ require (
 	modernc.org/memory v1.12.1 // indirect
 )
 
-require github.com/go-json-experiment/json v0.0.0-20260213210345-44df1a37e875 // indirect
+require (
+	github.com/go-json-experiment/json v0.0.0-20260213210345-44df1a37e875 // indirect
+	golang.org/x/tools v0.52.0 // indirect
+)

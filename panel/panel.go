@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strings"
 )
 
 // Vec is a point or vector in the panel plane, in metres.
@@ -98,9 +99,16 @@ type Part struct {
 
 // Array is a step-and-repeat of one part.
 type Array struct {
-	Part  string
-	Count [2]int // columns (x) and rows (y)
-	Pitch Vec    // step between neighbouring parts, panel axes
+	// Name names the array in site and part names, tables and reports; ""
+	// means "a1", "a2", … by its position. Names are unique in a layout.
+	Name string
+	Part string
+	// Coupon marks a test coupon strip (product = false in a job file): its
+	// couplers are mapped and reported like any other, but its parts are not
+	// products, so they count in no part yield and no good parts per panel.
+	Coupon bool
+	Count  [2]int // columns (x) and rows (y)
+	Pitch  Vec    // step between neighbouring parts, panel axes
 	// Center is the centre of the array's extent; when UseOrigin is set, Origin is
 	// instead the lower-left corner of the first part (column 0, row 0).
 	Center    Vec
@@ -155,6 +163,18 @@ type Instance struct {
 	I, J   int  // column and row in the array, from 0
 	Bounds Rect // the part's outline on the panel
 	Name   string
+	// Coupon is set for a part of a coupon array (Array.Coupon): not a
+	// product, so left out of part counts.
+	Coupon bool
+}
+
+// ArrayName returns the name of array i of the layout: its Name, or "a" and
+// its 1-based position when it has none.
+func (l *Layout) ArrayName(i int) string {
+	if n := l.Arrays[i].Name; n != "" {
+		return n
+	}
+	return fmt.Sprintf("a%d", i+1)
 }
 
 // Site is one coupler on the panel.
@@ -190,7 +210,27 @@ var (
 	ErrOverlap  = errors.New("parts overlap")
 	ErrInBorder = errors.New("inside the panel border")
 	ErrOffPanel = errors.New("part outside the panel")
+	// ErrDuplicateName is an array name given twice.
+	ErrDuplicateName = errors.New("duplicate name")
 )
+
+// DuplicateNameError is an array name used twice; the FieldError that
+// carries it names the later array. It matches ErrDuplicateName.
+type DuplicateNameError struct {
+	Name    string
+	First   int  // index of the array that has the name first
+	Default bool // one of the two names is a default one (a1, a2, …)
+}
+
+func (e *DuplicateNameError) Error() string {
+	how := ""
+	if e.Default {
+		how = " (an array without a name is called a1, a2, … by its position)"
+	}
+	return fmt.Sprintf("%v: array name %q is also the name of array[%d]%s", ErrDuplicateName, e.Name, e.First, how)
+}
+
+func (e *DuplicateNameError) Unwrap() error { return ErrDuplicateName }
 
 // OverlapError is two parts of different arrays whose outlines overlap; B
 // belongs to the later array. It matches ErrOverlap.
@@ -246,6 +286,19 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 			}
 		}
 	}
+	names := map[string]int{}
+	for ai, a := range l.Arrays {
+		n := l.ArrayName(ai)
+		if a.Name != "" && (strings.TrimSpace(a.Name) != a.Name || strings.ContainsAny(a.Name, "\t\r\n")) {
+			return nil, nil, &FieldError{fmt.Sprintf("array[%d].name", ai),
+				fmt.Errorf("array name %q: want a name on one line without leading or trailing blanks", a.Name)}
+		}
+		if first, dup := names[n]; dup {
+			return nil, nil, &FieldError{fmt.Sprintf("array[%d].name", ai),
+				&DuplicateNameError{Name: n, First: first, Default: l.Arrays[first].Name == "" || a.Name == ""}}
+		}
+		names[n] = ai
+	}
 	var inst []Instance
 	var sites []Site
 	var blocks []arrayBlock
@@ -291,8 +344,8 @@ func (l *Layout) Expand() ([]Instance, []Site, error) {
 			for i := 0; i < a.Count[0]; i++ {
 				ll := origin.Add(Vec{float64(i) * a.Pitch.X, float64(j) * a.Pitch.Y})
 				in := Instance{Index: len(inst), Array: ai, Part: part.Name, I: i, J: j,
-					Bounds: Rect{ll, ll.Add(sz)},
-					Name:   fmt.Sprintf("a%d %s(%d,%d)", ai+1, part.Name, i+1, j+1)}
+					Bounds: Rect{ll, ll.Add(sz)}, Coupon: a.Coupon,
+					Name: fmt.Sprintf("%s %s(%d,%d)", l.ArrayName(ai), part.Name, i+1, j+1)}
 				if !outline.Contains(in.Bounds.Min) || !outline.Contains(in.Bounds.Max) {
 					return nil, nil, &FieldError{key, fmt.Errorf("%w: %s reaches beyond the panel edge", ErrOffPanel, in.Name)}
 				}

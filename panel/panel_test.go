@@ -113,6 +113,19 @@ func TestExpandErrors(t *testing.T) {
 			l.Arrays[0] = Array{Part: "p", Count: [2]int{500, 400}, Pitch: Vec{1e-4, 1e-4}}
 		}, nil, "array[0].count"},
 		{"huge panel", func(l *Layout) { l.Panel.Size.Y = 1e250 * in }, nil, "panel.size"},
+		{"array name twice", func(l *Layout) {
+			a := l.Arrays[0]
+			a.Origin.Y += 5 * in
+			l.Arrays[0].Name, a.Name = "x", "x"
+			l.Arrays = append(l.Arrays, a)
+		}, ErrDuplicateName, "array[1].name"},
+		{"array name equals a default one", func(l *Layout) {
+			a := l.Arrays[0]
+			a.Origin.Y += 5 * in
+			a.Name = "a1"
+			l.Arrays = append(l.Arrays, a)
+		}, ErrDuplicateName, "array[1].name"},
+		{"array name with a blank at its end", func(l *Layout) { l.Arrays[0].Name = "x " }, nil, "array[0].name"},
 		{"too many placements", func(l *Layout) {
 			l.Placements = make([]Placement, MaxSites)
 		}, nil, "sites"},
@@ -172,5 +185,37 @@ func TestArrayExtents(t *testing.T) {
 		if got[i] != want[i] {
 			t.Errorf("array %d: extent %v, want %v", i, got[i], want[i])
 		}
+	}
+}
+
+// TestExpandNamesAndCoupons: an array's name heads its parts' and sites'
+// names (a1, a2, … without one), and a coupon array marks its instances.
+func TestExpandNamesAndCoupons(t *testing.T) {
+	l := testLayout(0)
+	b := l.Arrays[0]
+	b.Origin.Y += 5 * in
+	b.Name, b.Coupon = "strip", true
+	l.Arrays = append(l.Arrays, b)
+	inst, sites, err := l.Expand()
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []struct {
+		name   string
+		coupon bool
+	}{{"a1 p(1,1)", false}, {"a1 p(2,1)", false}, {"strip p(1,1)", true}, {"strip p(2,1)", true}}
+	if len(inst) != len(want) {
+		t.Fatalf("%d instances", len(inst))
+	}
+	for k, w := range want {
+		if inst[k].Name != w.name || inst[k].Coupon != w.coupon {
+			t.Errorf("instance %d: %q coupon %v, want %q %v", k, inst[k].Name, inst[k].Coupon, w.name, w.coupon)
+		}
+		if sites[k].Name != w.name+" K" {
+			t.Errorf("site %d: %q, want %q", k, sites[k].Name, w.name+" K")
+		}
+	}
+	if l.ArrayName(0) != "a1" || l.ArrayName(1) != "strip" {
+		t.Errorf("array names %q, %q", l.ArrayName(0), l.ArrayName(1))
 	}
 }

@@ -14,68 +14,122 @@ import (
 	"github.com/regdrift/regdrift/panel"
 )
 
-// Objective chooses what a compensation minimises.
+// Objective chooses what a compensation optimises.
 type Objective int
 
 const (
-	// Worst minimises the largest |broadside offset| over all sites, a linear
-	// programme solved by the simplex method (gonum optimize/convex/lp).
-	Worst Objective = iota
-	// RMS minimises the root mean square broadside offset, a linear least-
-	// squares problem.
+	// SiteYield maximises the expected site yield, the mean over all sites of
+	// each site's closed-form probability of lying inside its own allowed
+	// interval (SiteProb.Prob, the rule every command uses). Site yield rather
+	// than good parts per panel: the expected number of good sites is exact
+	// in closed form by linearity, while a part's yield needs the joint
+	// distribution of its sites (they share the panel's terms), which only
+	// the Monte Carlo of a yield study has; a smooth closed-form objective is
+	// what a gradient optimiser needs, and the after state's part yield is
+	// then measured by that study.
+	SiteYield Objective = iota
+	// Worst minimises the largest fraction of its window a site uses,
+	// (|mean − window centre| + 3σ)/half-width: 1 is a site whose mean ± 3σ
+	// touches the nearer end of its allowed interval. A linear programme
+	// solved by the simplex method (gonum optimize/convex/lp).
+	Worst
+	// RMS minimises the root mean square of each site's mean offset from its
+	// window's centre divided by its half-width, a weighted linear least-
+	// squares problem (σ does not move with an artwork scale, so it adds a
+	// constant and only the mean term can be optimised).
 	RMS
 )
 
-// ParseObjective reads "worst" or "rms".
+// ParseObjective reads "yield", "worst" or "rms".
 func ParseObjective(s string) (Objective, error) {
 	switch s {
+	case "yield":
+		return SiteYield, nil
 	case "worst":
 		return Worst, nil
 	case "rms":
 		return RMS, nil
 	}
-	return 0, fmt.Errorf("unknown objective %q (want worst or rms)", s)
+	return 0, fmt.Errorf("unknown objective %q (want yield, worst or rms)", s)
 }
 
-func (o Objective) String() string { return [...]string{"worst", "rms"}[o] }
+func (o Objective) String() string { return [...]string{"yield", "worst", "rms"}[o] }
 
 // CompSite is a coupler site for compensation: where it is, the direction of
-// its coupled lines and the layers of its two traces.
+// its coupled lines, the layers of its two traces, its section's design
+// offset and the interval of across offsets in which it meets its spec.
 type CompSite struct {
 	Pos, U       panel.Vec
 	Upper, Lower string
+	// Nominal is the design offset of the site's section, m.
+	Nominal float64
+	// Allowed is the interval of across offsets, design offset included, in
+	// which the coupler meets its spec (the section curve's allowed
+	// interval); EmptyInterval() for a design that never does. The zero
+	// value admits only an offset of exactly zero.
+	Allowed Interval
 }
 
-// CompSettings configures Compensate. The zero value minimises the worst
-// offset with artwork scales within ±1000 ppm, continuous, and no drill budget.
+// MovementSE is the standard error of a layer's measured mean scale terms
+// (strain), from Panels panels: the lot's panel-to-panel standard deviation
+// over √Panels. From, when set, says what Panels counts instead (for an
+// estimate from a history, "lots of history (EWMA)").
+type MovementSE struct {
+	X, Y   float64
+	Panels int
+	From   string
+}
+
+// CompSettings configures Compensate. The zero value maximises the expected
+// site yield with artwork scales within ±1000 ppm, continuous, no drill
+// budget, every layer built at CAD size and no standard errors known.
 type CompSettings struct {
 	Objective Objective
 	// DrillBudget, when positive, keeps each compensated layer's mean
 	// registration to the drilled holes within ±DrillBudget per axis at every
-	// site (m), and then chooses the common part of the compensation to make
-	// that registration as good as possible.
+	// site (m). It is a constraint only: a budget the recommendation already
+	// meets changes nothing.
 	DrillBudget float64
-	// Max bounds each artwork scale, |factor − 1| ≤ Max; zero means 1000 ppm.
+	// Max bounds each artwork scale change, |factor − 1| ≤ Max; zero means
+	// 1000 ppm.
 	Max float64
 	// Step is the increment the imaging equipment accepts (strain); zero means
 	// continuous. Rounded values are chosen among the neighbours of the
 	// optimum by the same objective.
 	Step float64
+	// Applied is the artwork scale each layer of the analysed lot was built
+	// with (nil: CAD size). The model's scales are as built, so "no change"
+	// keeps this artwork; it only turns changes into absolute settings.
+	Applied AppliedSet
+	// SE holds the standard errors of the measured layers' mean scales, by
+	// layer; layers without one have no stated uncertainty.
+	SE map[string]MovementSE
 }
 
 // AxisComp is the recommended compensation of one layer along one axis.
 type AxisComp struct {
-	// Scale is the artwork scale change, Factor − 1 (strain): +180e-6 means
-	// the artwork is made 180 ppm larger.
+	// Scale is the artwork scale change from the applied artwork, Factor − 1
+	// (strain): +180e-6 means the artwork is made 180 ppm larger than today.
 	Scale, Factor float64
+	// Applied is the artwork scale the lot was built with and Setting the new
+	// absolute artwork scale, (1 + Applied)(1 + Scale) − 1 (the product
+	// convention of Applied); SettingFactor is 1 + Setting.
+	Applied, Setting, SettingFactor float64
+	// Movement is the layer's material movement, its mean scale in the model
+	// with the applied artwork taken out, MaterialScale(mean, Applied).
+	Movement float64
 	// Net is the resulting change of the layer's scale term: the artwork
 	// factor f acts before the material moves by its mean scale s, so the
 	// layer ends at (1+s)·f − 1 and Net = (f − 1)(1 + s). Compensating s fully
 	// takes f = 1/(1+s) [calculated here: (1+s)·f = 1].
 	Net float64
+	// SE is the standard error of Scale from the lot's measurement (first
+	// order: an interior optimum moves one for one with the measured mean
+	// scales along the directions that move offsets), 0 when unknown.
+	SE float64
 	// Free is set when this axis moves no broadside offset at any site (no
-	// coupled lines run across it), so that its value comes from the drill
-	// budget or is the smallest compensation.
+	// coupled lines run across it), so that its value is the smallest change
+	// (or comes from the drill budget).
 	Free bool
 }
 
@@ -83,7 +137,7 @@ type AxisComp struct {
 type LayerComp struct {
 	Layer string
 	// MeanScale is the layer's mean scale term in the model (x, y) before
-	// compensation.
+	// compensation, as built (applied artwork included).
 	MeanScale [2]float64
 	X, Y      AxisComp
 }
@@ -93,6 +147,7 @@ type LayerComp struct {
 type PairDiff struct {
 	Upper, Lower string
 	Net          [2]float64 // Net(upper) − Net(lower), x and y
+	SE           [2]float64 // its standard error, 0 when unknown
 }
 
 // CompResult is a recommended compensation and what it does.
@@ -105,6 +160,20 @@ type CompResult struct {
 	Before, After []float64
 	// WorstBefore, WorstAfter, RMSBefore and RMSAfter summarise them.
 	WorstBefore, WorstAfter, RMSBefore, RMSAfter float64
+	// YieldBefore and YieldAfter are the predicted mean site yield (closed
+	// form, SiteProb.Prob over each site's allowed interval) keeping the
+	// applied artwork and with the recommendation.
+	YieldBefore, YieldAfter float64
+	// UsedBefore and UsedAfter are the largest fraction of its window a site
+	// with a window uses (see Worst); NaN when no site has a window.
+	UsedBefore, UsedAfter float64
+	// BelowApplied is set when the recommendation predicts a lower site
+	// yield than keeping the applied artwork (a binding constraint, or an
+	// objective other than yield); the notes say why.
+	BelowApplied bool
+	// StepFinerThanSE is set when the rounding step is finer than the
+	// largest standard error of a change that moves an offset.
+	StepFinerThanSE bool
 	// DrillBefore and DrillAfter are the largest mean registration of a trace
 	// layer to the drilled holes over the sites, per axis, m.
 	DrillBefore, DrillAfter float64
@@ -141,12 +210,20 @@ const (
 	toPPM = 1e6
 )
 
+// yieldTie is the difference of mean site yield below which two
+// compensations count as equally good, and the smaller change wins: 1e-9 is
+// 1e-5 of one site on a 10,000-site panel, far below any yield a lot can
+// show, and far above the rounding of a sum of 10⁴ probabilities (~1e-12).
+const yieldTie = 1e-9
+
 // linRows is a set of linear forms b_i + a_i·x; caps, when set, bound their
-// magnitudes one by one.
+// magnitudes one by one. give, when set, adds a fixed amount to each row's
+// magnitude in a minimax objective, |b_i + a_i·x| + give_i.
 type linRows struct {
 	a    [][]float64
 	b    []float64
 	caps []float64
+	give []float64
 }
 
 // add appends the form b + a·x with cap (0: none); caps is filled with
@@ -171,22 +248,31 @@ func (r *linRows) value(i int, x []float64) float64 {
 	return v
 }
 
-// Compensate recommends per-layer artwork scale compensation in x and y for
-// the trace layers of sites, from the model's mean displacements.
+// giveOf returns row i's give (0 without).
+func (r *linRows) giveOf(i int) float64 {
+	if r.give == nil {
+		return 0
+	}
+	return r.give[i]
+}
+
+// Compensate recommends per-layer artwork scale changes in x and y for the
+// trace layers of sites, from the model's mean displacements (the lot as
+// built, so that no change keeps today's artwork).
 //
 // Only the difference of two layers' compensation projected across the lines
 // moves a broadside offset, so the offsets fix the differences and leave a
-// common part free. Compensate first minimises the objective, then chooses
-// the common part: with a drill budget it minimises the largest registration
-// of the trace layers to the drilled holes (a second linear programme), else
-// it takes the smallest compensation (least sum of squares).
+// common part free. Compensate optimises the objective over the differences,
+// then takes the smallest change from the applied artwork (the common part
+// zero: least sum of squares); the drill budget and the artwork bound are
+// constraints only, consulted when that answer breaks them.
 //
-// The steps, one function each: the linear forms of the problem
-// ([newCompProblem]), the common part's directions and the rms optimum
-// ([compProblem.nullSpace]), the objective over the differences
-// ([compProblem.optimise]), the common part ([compProblem.chooseCommon]),
-// rounding to the equipment's step ([compProblem.roundArtwork]) and the
-// summary ([compProblem.result]).
+// The steps: the linear forms of the problem ([newCompProblem]), the null and
+// range spaces of the offsets ([compProblem.spaces]), the objective
+// ([compProblem.maxYield], [compProblem.minimaxWindow],
+// [compProblem.rmsWindow]), the constraints ([compProblem.settle]), rounding
+// to the equipment's step ([compProblem.roundArtwork]) and the summary
+// ([compProblem.result]).
 func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, error) {
 	if set == nil {
 		set = &CompSettings{}
@@ -195,28 +281,41 @@ func Compensate(m *Model, sites []CompSite, set *CompSettings) (*CompResult, err
 	if err != nil {
 		return nil, err
 	}
-	null, x, err := p.nullSpace()
+	null, rng, err := p.spaces()
 	if err != nil {
 		return nil, err
 	}
-	if x, err = p.optimise(x, len(null) > 0); err != nil {
-		return nil, err
+	var x []float64
+	var common string
+	switch p.set.Objective {
+	case SiteYield:
+		x, common, err = p.maxYield(null, rng)
+	case Worst:
+		x, common, err = p.minimaxWindow(null)
+	default:
+		x, common, err = p.rmsWindow(null, rng)
 	}
-	x, common, err := p.chooseCommon(x, null)
 	if err != nil {
 		return nil, err
 	}
 	art, roundedOK := p.roundArtwork(x)
-	return p.result(x, art, roundedOK, len(null), common), nil
+	keep := make([]float64, p.nv)
+	if p.set.Objective == SiteYield && p.yield(x) < p.yield(keep)-yieldTie && p.feasible(keep) {
+		// The constraints or the rounding cost more than the optimum gains:
+		// today's artwork is the better recommendation.
+		x, art = keep, slices.Clone(keep)
+		common = "no change: within the constraints and the step no compensation beats the applied artwork"
+		roundedOK = true
+	}
+	return p.result(x, art, roundedOK, len(null), common, rng), nil
 }
 
 // layerPair names the upper and lower trace layers of a site.
 type layerPair struct{ u, l string }
 
-// compProblem is the linear problem of one compensation in the internal
-// units (offsets in µm, scales in ppm). Its variables are the net scale
-// changes of the trace layers, two per layer: x then y, in the order of
-// layers.
+// compProblem is the problem of one compensation in the internal units
+// (offsets in µm, scales in ppm). Its variables are the net scale changes of
+// the trace layers, two per layer: x then y, in the order of layers.
 type compProblem struct {
 	m        *Model
 	sites    []CompSite
@@ -238,11 +337,23 @@ type compProblem struct {
 	before   []float64 // the mean offset at each site without compensation, m
 	drill    linRows   // each trace layer's mean registration per axis at its sites, capped by the budget
 	caps     linRows   // the rows every solution must keep: bounds, and drill when there is a budget
+
+	// prob and allowed are each offset row's closed-form offset distribution
+	// at no change and its allowed interval; fixedYield is the summed
+	// probability of the sites compensation cannot move.
+	prob       []SiteProb
+	allowed    []Interval
+	fixedYield float64
+	// norm holds the windowed rows normalised by their half-width, with the
+	// 3σ give: (|b + a·x − centre| + 3σ)/half-width is the window used.
+	norm linRows
+	// windowed is the number of two-layer sites with a window.
+	windowed int
 }
 
 // newCompProblem collects the trace layers of sites (those of sites with two
 // different layers, in order of appearance) and builds the problem's linear
-// forms: the bounds, the offset rows and the drill rows.
+// forms: the bounds, the offset rows, the normalised rows and the drill rows.
 func newCompProblem(m *Model, sites []CompSite, set *CompSettings) (*compProblem, error) {
 	p := &compProblem{m: m, sites: sites, set: set, maxScale: set.Max, budget: set.DrillBudget * toUM, li: map[string]int{}}
 	if p.maxScale <= 0 {
@@ -265,6 +376,15 @@ func newCompProblem(m *Model, sites []CompSite, set *CompSettings) (*compProblem
 		p.bounds.add(a, 0, p.maxScale*(1+p.meanScale[j])*toPPM)
 	}
 	p.offsetRows()
+	if p.windowed == 0 {
+		// No site can meet its spec: nothing to weigh by windows, so the
+		// objectives fall back to the plain offsets (|offset| in µm as the
+		// rows to minimise), the yield objective to their worst case.
+		p.norm = linRows{a: p.off.a, b: p.off.b}
+		if p.set.Objective == SiteYield {
+			p.set = &CompSettings{Objective: Worst, DrillBudget: set.DrillBudget, Max: set.Max, Step: set.Step, Applied: set.Applied, SE: set.SE}
+		}
+	}
 	p.drillRows()
 	p.dropSlackBudget()
 	p.caps.a, p.caps.b, p.caps.caps = append(p.caps.a, p.bounds.a...), append(p.caps.b, p.bounds.b...), append(p.caps.caps, p.bounds.caps...)
@@ -290,25 +410,23 @@ func (p *compProblem) meanScales() {
 	for l, name := range p.layers {
 		for i := range p.m.Contributors {
 			c := &p.m.Contributors[i]
-			if c.Names(name) {
-				p.meanScale[2*l] += c.Terms[ScaleX].Mean
-				p.meanScale[2*l+1] += c.Terms[ScaleY].Mean
-			}
+			w := c.Weight(name)
+			p.meanScale[2*l] += w * c.Terms[ScaleX].Mean
+			p.meanScale[2*l+1] += w * c.Terms[ScaleY].Mean
 		}
 	}
 }
 
 // offsetRows builds one row per two-layer site, e_i = m_i + Σ coef·x (µm,
-// x in ppm), and records the offsets before compensation.
+// x in ppm), its closed-form distribution and window, the normalised row of
+// a windowed site, and records the offsets before compensation.
 func (p *compProblem) offsetRows() {
 	rels := map[layerPair]*Relative{}
 	p.before = make([]float64, len(p.sites))
 	p.offIndex = make([]int, len(p.sites))
+	p.norm.give = []float64{}
 	for i, s := range p.sites {
 		p.offIndex[i] = -1
-		if s.Upper == s.Lower {
-			continue
-		}
 		k := layerPair{s.Upper, s.Lower}
 		rel := rels[k]
 		if rel == nil {
@@ -316,6 +434,10 @@ func (p *compProblem) offsetRows() {
 			rels[k] = rel
 		}
 		row := rel.Row(s.Pos, s.U)
+		if s.Upper == s.Lower {
+			p.fixedYield += rel.Prob(&row, s.Nominal).Prob(s.Allowed)
+			continue
+		}
 		st := rel.Stats(row)
 		p.before[i] = st.MeanAcross
 		a := make([]float64, p.nv)
@@ -328,6 +450,21 @@ func (p *compProblem) offsetRows() {
 		a[2*l+1] -= row.Across[ScaleY]
 		p.offIndex[i] = len(p.off.b)
 		p.off.add(a, st.MeanAcross*toUM, 0)
+		p.prob = append(p.prob, rel.Prob(&row, s.Nominal))
+		p.allowed = append(p.allowed, s.Allowed)
+		if iv := s.Allowed; !iv.Empty() && iv.Hi > iv.Lo {
+			// In the design-offset-excluded frame of the row the window's
+			// centre is (Lo + Hi)/2 − nominal.
+			h := (iv.Hi - iv.Lo) / 2 * toUM
+			c := ((iv.Lo+iv.Hi)/2 - s.Nominal) * toUM
+			an := make([]float64, p.nv)
+			for j := range a {
+				an[j] = a[j] / h
+			}
+			p.norm.add(an, (st.MeanAcross*toUM-c)/h, 0)
+			p.norm.give = append(p.norm.give, 3*st.SDAcross*toUM/h)
+			p.windowed++
+		}
 	}
 }
 
@@ -380,20 +517,34 @@ func (p *compProblem) dropSlackBudget() {
 	}
 }
 
-// nullSpace returns an orthonormal basis of the null space of the offset rows
-// (the common part, which moves no offset), from the eigen-decomposition of
-// their normal matrix AᵀA, and with the rms objective the minimum-norm least-
-// squares solution x = −Σ v_k (v_kᵀ Aᵀb)/λ_k over the other eigenvectors
-// (zero for the worst-case objective).
-func (p *compProblem) nullSpace() (null [][]float64, x []float64, err error) {
-	nv, off := p.nv, &p.off
+// spaces returns orthonormal bases of the null space of the offset rows (the
+// common part, which moves no offset) and of its complement (the range, the
+// directions that do), from the eigen-decomposition of their normal matrix
+// AᵀA.
+func (p *compProblem) spaces() (null, rng [][]float64, err error) {
+	vals, vecs, err := normalEigen(&p.off, p.nv)
+	if err != nil {
+		return nil, nil, err
+	}
+	lmax := slices.Max(vals)
+	for k, lam := range vals {
+		v := mat.Col(nil, k, vecs)
+		if lam <= 1e-10*lmax || lmax == 0 {
+			null = append(null, v)
+		} else {
+			rng = append(rng, v)
+		}
+	}
+	return null, rng, nil
+}
+
+// normalEigen returns the eigenvalues and eigenvectors (columns) of rᵀr.
+func normalEigen(r *linRows, nv int) ([]float64, *mat.Dense, error) {
 	ata := mat.NewSymDense(nv, nil)
-	atb := make([]float64, nv)
-	for i := range off.b {
+	for i := range r.b {
 		for a := 0; a < nv; a++ {
-			atb[a] += off.a[i][a] * off.b[i]
 			for b := a; b < nv; b++ {
-				ata.SetSym(a, b, ata.At(a, b)+off.a[i][a]*off.a[i][b])
+				ata.SetSym(a, b, ata.At(a, b)+r.a[i][a]*r.a[i][b])
 			}
 		}
 	}
@@ -401,107 +552,114 @@ func (p *compProblem) nullSpace() (null [][]float64, x []float64, err error) {
 	if !eig.Factorize(ata, true) {
 		return nil, nil, errors.New("compensation: eigen-decomposition failed")
 	}
-	vals := eig.Values(nil)
 	var vecs mat.Dense
 	eig.VectorsTo(&vecs)
-	lmax := slices.Max(vals)
-	x = make([]float64, nv)
-	for k, lam := range vals {
-		v := mat.Col(nil, k, &vecs)
-		if lam <= 1e-10*lmax || lmax == 0 {
-			null = append(null, v)
-			continue
-		}
-		if p.set.Objective == RMS {
-			var g float64
-			for j := range v {
-				g += v[j] * atb[j]
-			}
-			for j := range v {
-				x[j] -= v[j] * g / lam
-			}
-		}
-	}
-	return null, x, nil
+	return eig.Values(nil), &vecs, nil
 }
 
-// optimise minimises the objective over the differences: the worst offset by
-// the linear programme within the caps, or, for the rms objective, keeps the
-// least-squares x and checks it against the caps when no common part is left
-// to move it back inside them.
-func (p *compProblem) optimise(x []float64, hasNull bool) ([]float64, error) {
-	switch p.set.Objective {
-	case Worst:
-		x, _, err := minimax(p.nv, &p.off, &p.caps, 0, p.bounds.caps)
-		return x, err
-	case RMS:
-		if v, ok := violated(&p.caps, x); ok && !hasNull {
-			return nil, fmt.Errorf("%w: the rms optimum breaks %s; try the worst-case objective or a larger bound", ErrInfeasible, v)
+// minimaxWindow minimises the largest window used by the linear programme,
+// first within the artwork bounds alone and, only when that answer breaks
+// the drill budget, within the budget too, so that a budget that does not
+// bind cannot change the answer.
+func (p *compProblem) minimaxWindow(null [][]float64) ([]float64, string, error) {
+	x, _, err := minimax(p.nv, &p.norm, &p.bounds, 0, p.bounds.caps)
+	if err != nil {
+		return nil, "", err
+	}
+	if y, common, ok := p.settle(x, null); ok {
+		return y, common, nil
+	}
+	if p.budget <= 0 {
+		return x, "the common part as the linear programme left it (leaving it out breaks a bound)", nil
+	}
+	if x, _, err = minimax(p.nv, &p.norm, &p.caps, 0, p.bounds.caps); err != nil {
+		return nil, "", err
+	}
+	if y, common, ok := p.settle(x, null); ok {
+		return y, common, nil
+	}
+	return x, "the drill budget binds: the common part is as the linear programme within the budget left it", nil
+}
+
+// rmsWindow is the weighted least-squares optimum over the normalised rows,
+// x = −Σ v_k (v_kᵀ Aᵀb)/λ_k over the eigenvectors of their normal matrix
+// with λ_k > 0 (the minimum-norm solution), then the constraints.
+func (p *compProblem) rmsWindow(null, rng [][]float64) ([]float64, string, error) {
+	x, err := minNormLS(&p.norm, p.nv)
+	if err != nil {
+		return nil, "", err
+	}
+	if y, common, ok := p.settle(x, null); ok {
+		return y, common, nil
+	}
+	if v, bad := violated(&p.caps, x); bad {
+		return nil, "", fmt.Errorf("%w: the rms optimum breaks %s; try the worst-case objective or a larger bound", ErrInfeasible, v)
+	}
+	return x, "the least-squares optimum as it stands", nil
+}
+
+// minNormLS returns the minimum-norm x minimising Σ (b_i + a_i·x)²,
+// x = −Σ v_k (v_kᵀ Aᵀb)/λ_k over the eigenvectors of AᵀA with λ_k > 0 (the
+// pseudo-inverse solution, Golub & Van Loan, Matrix Computations, 4th ed.,
+// sec. 5.5.1).
+func minNormLS(r *linRows, nv int) ([]float64, error) {
+	vals, vecs, err := normalEigen(r, nv)
+	if err != nil {
+		return nil, err
+	}
+	atb := make([]float64, nv)
+	for i := range r.b {
+		for j := range atb {
+			atb[j] += r.a[i][j] * r.b[i]
+		}
+	}
+	lmax := slices.Max(vals)
+	x := make([]float64, nv)
+	for k, lam := range vals {
+		if lam <= 1e-10*lmax || lmax == 0 {
+			continue
+		}
+		v := mat.Col(nil, k, vecs)
+		var g float64
+		for j := range v {
+			g += v[j] * atb[j]
+		}
+		for j := range v {
+			x[j] -= v[j] * g / lam
 		}
 	}
 	return x, nil
 }
 
-// chooseCommon sets the common part of x (x = x1 + N·z with N the null
-// vectors): by the drill budget when there is one, else the smallest
-// compensation. It returns x and how the common part was chosen ("" when
-// there is none).
-func (p *compProblem) chooseCommon(x []float64, null [][]float64) ([]float64, string, error) {
-	common := ""
-	if len(null) > 0 {
-		var err error
-		if p.budget > 0 {
-			x, common, err = p.drillCommon(x, null)
-		} else {
-			x, common, err = p.smallestCommon(x, null)
-		}
-		if err != nil {
-			return nil, "", err
-		}
-	}
-	if p.set.Objective == RMS && p.budget > 0 {
-		if v, bad := violated(&p.caps, x); bad {
-			return nil, "", fmt.Errorf("%w: at the rms optimum the common part cannot meet %s; try the worst-case objective", ErrInfeasible, v)
-		}
-	}
-	return x, common, nil
+// feasible reports whether x keeps every capped row.
+func (p *compProblem) feasible(x []float64) bool {
+	_, bad := violated(&p.caps, x)
+	return !bad
 }
 
-// drillCommon chooses the common part with a drill budget. First choice:
-// centre every trace layer on the drilled holes in the least-squares sense
-// (for a layer whose own movement is a pure scale this cancels it exactly).
-// If that breaks the budget or a bound, it minimises the worst registration
-// instead (a second linear programme in z).
-func (p *compProblem) drillCommon(x []float64, null [][]float64) ([]float64, string, error) {
-	nn := len(null)
-	zd := inNull(&p.drill, x, null)
-	z, ok := leastSquares(zd, nn)
-	if y := alongNull(x, null, z); ok {
-		if _, bad := violated(&p.caps, y); !bad {
-			return y, "the drill budget: the common part centres the trace layers on the drilled holes (least squares over the sites), within the budget", nil
+// settle applies the constraints to an optimum x of the differences: the
+// smallest change (x with its common part removed) when that keeps the
+// bounds and the budget, else, with a budget, a common part that brings it
+// within them (drillCommon); ok is false when neither does.
+func (p *compProblem) settle(x []float64, null [][]float64) ([]float64, string, bool) {
+	const smallest = "the smallest change from the applied artwork: the common part, which moves no offset, is left out (least sum of squares of the layers' changes)"
+	y := removeNull(x, null)
+	if p.feasible(y) {
+		return y, smallest, true
+	}
+	if len(null) > 0 && p.budget > 0 {
+		if z, common, err := p.drillCommon(y, null); err == nil && p.feasible(z) {
+			return z, common, true
 		}
 	}
-	// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
-	var reach float64
-	for j := range x {
-		reach += x[j]*x[j] + p.bounds.caps[j]*p.bounds.caps[j]
+	if p.feasible(x) {
+		return x, "the common part as the optimiser left it (leaving it out breaks a bound)", true
 	}
-	zbox := make([]float64, nn)
-	for k := range zbox {
-		zbox[k] = 2 * math.Sqrt(reach)
-	}
-	z, _, err := minimax(nn, zd, inNull(&p.bounds, x, null), p.budget, zbox)
-	if err != nil {
-		return nil, "", err
-	}
-	return alongNull(x, null, z), "the drill budget: the common part minimises the worst registration of the trace layers to the drilled holes", nil
+	return nil, "", false
 }
 
-// smallestCommon removes the common part from x (the least sum of squares of
-// the layers' scale changes), unless that breaks a bound; then it keeps x,
-// which for the rms objective must itself meet the bounds.
-func (p *compProblem) smallestCommon(x []float64, null [][]float64) ([]float64, string, error) {
-	const common = "the smallest compensation: the common part minimises the sum of squares of the layers' scale changes"
+// removeNull returns x with its components along the null vectors removed.
+func removeNull(x []float64, null [][]float64) []float64 {
 	y := slices.Clone(x)
 	for k := range null {
 		var pr float64
@@ -512,15 +670,47 @@ func (p *compProblem) smallestCommon(x []float64, null [][]float64) ([]float64, 
 			y[j] -= pr * null[k][j]
 		}
 	}
-	if _, bad := violated(&p.bounds, y); !bad {
-		return y, common, nil
+	return y
+}
+
+// drillCommon chooses the common part when the smallest change breaks the
+// drill budget: the smallest change (least sum of squares of the layers'
+// changes) whose common part keeps the budget and the bounds. A feasible
+// common part comes first (x = x1 + N·z): the one centring the trace layers
+// on the drilled holes by least squares when that keeps the budget, else the
+// linear programme's, minimising the worst registration; the penalty method
+// then minimises |x1 + N·z|² from z = 0 and backInside brings the end onto
+// the feasible set along the segment from that point.
+func (p *compProblem) drillCommon(x []float64, null [][]float64) ([]float64, string, error) {
+	nn := len(null)
+	zd := inNull(&p.drill, x, null)
+	// The null vectors are orthonormal, so |z| ≤ |x1| + |bounds|.
+	var reach float64
+	for j := range x {
+		reach += x[j]*x[j] + p.bounds.caps[j]*p.bounds.caps[j]
 	}
-	if p.set.Objective == RMS {
-		if v, bad := violated(&p.bounds, x); bad {
-			return nil, "", fmt.Errorf("%w: the rms optimum breaks %s", ErrInfeasible, v)
+	zbox := make([]float64, nn)
+	for k := range zbox {
+		zbox[k] = 2 * math.Sqrt(reach)
+	}
+	capsZ := inNull(&p.caps, x, null)
+	zf, err := minNormLS(zd, nn)
+	if _, bad := violated(capsZ, zf); err != nil || bad {
+		if zf, _, err = minimax(nn, zd, inNull(&p.bounds, x, null), p.budget, zbox); err != nil {
+			return nil, "", err
 		}
 	}
-	return x, common, nil
+	scale := 1 / (norm2(x) + 1) // keeps the objective of order 1 beside the penalty
+	z := penaltyMin(func(z []float64) float64 { return norm2(alongNull(x, null, z)) * scale },
+		func(g, z []float64) {
+			y := alongNull(x, null, z)
+			for k := range null {
+				for j := range y {
+					g[k] += 2 * scale * y[j] * null[k][j]
+				}
+			}
+		}, capsZ, make([]float64, nn))
+	return alongNull(x, null, backInside(zf, z, capsZ)), "the drill budget binds: the common part is the smallest change that keeps every trace layer within the budget", nil
 }
 
 // inNull returns the rows of src as linear forms in z, for x = x1 + N·z with
@@ -554,11 +744,24 @@ func alongNull(x1 []float64, null [][]float64, z []float64) []float64 {
 	return y
 }
 
+// score returns the objective of x to minimise, never negative (roundToStep
+// compares relatively): the yield shortfall 1 − yield, the worst window used,
+// or the rms of the normalised rows.
+func (p *compProblem) score(x []float64) float64 {
+	switch p.set.Objective {
+	case SiteYield:
+		return 1 - p.yield(x)
+	case Worst:
+		return objective(Worst, &p.norm, x)
+	}
+	return objective(RMS, &p.norm, x)
+}
+
 // roundArtwork returns the artwork scale changes (ppm) for the net changes
 // x, art_j = x_j/(1 + meanScale_j). With a step it rounds them to multiples
-// of it (roundToStep, by the same objective, ties broken by the drill
-// registration or the size of the compensation), moves x to match, and
-// reports whether the rounding kept the drill budget.
+// of it (roundToStep, by the same objective, ties broken by the size of the
+// change), moves x to match, and reports whether the rounding kept the
+// constraints.
 func (p *compProblem) roundArtwork(x []float64) (art []float64, ok bool) {
 	nv := p.nv
 	art = make([]float64, nv)
@@ -578,16 +781,11 @@ func (p *compProblem) roundArtwork(x []float64) (art []float64, ok bool) {
 				return 0, 0, false
 			}
 		}
-		obj := objective(p.set.Objective, &p.off, xx)
 		var second float64
-		if p.budget > 0 {
-			second = worstAbs(&p.drill, xx)
-		} else {
-			for _, v := range a {
-				second += v * v
-			}
+		for _, v := range a {
+			second += v * v
 		}
-		return obj, second, true
+		return p.score(xx), second, true
 	})
 	for j := range x {
 		x[j] = art[j] * (1 + p.meanScale[j])
@@ -596,12 +794,13 @@ func (p *compProblem) roundArtwork(x []float64) (art []float64, ok bool) {
 }
 
 // result summarises the compensation x (net, ppm) with artwork values art:
-// per layer and axis, per trace pair, the offsets and drill registration
-// before and after, and the notes.
-func (p *compProblem) result(x, art []float64, roundedOK bool, free int, common string) *CompResult {
+// per layer and axis, per trace pair, the offsets, yields and drill
+// registration before and after, and the notes.
+func (p *compProblem) result(x, art []float64, roundedOK bool, free int, common string, rng [][]float64) *CompResult {
 	res := &CompResult{Objective: p.set.Objective, Before: p.before, Free: free, Common: common}
+	cov := p.changeCov(rng)
 	var moved [2]bool // whether any site's offset has an x (y) component
-	res.Layers, moved = p.layerComps(x, art)
+	res.Layers, moved = p.layerComps(x, art, cov)
 	seen := map[layerPair]bool{}
 	for _, s := range p.sites {
 		k := layerPair{s.Upper, s.Lower}
@@ -610,7 +809,15 @@ func (p *compProblem) result(x, art []float64, roundedOK bool, free int, common 
 		}
 		seen[k] = true
 		u, l := p.li[s.Upper], p.li[s.Lower]
-		res.Pairs = append(res.Pairs, PairDiff{s.Upper, s.Lower, [2]float64{(x[2*u] - x[2*l]) / toPPM, (x[2*u+1] - x[2*l+1]) / toPPM}})
+		d := PairDiff{Upper: s.Upper, Lower: s.Lower, Net: [2]float64{(x[2*u] - x[2*l]) / toPPM, (x[2*u+1] - x[2*l+1]) / toPPM}}
+		if cov != nil {
+			for a := 0; a < 2; a++ {
+				i, j := 2*u+a, 2*l+a
+				v := cov.At(i, i) + cov.At(j, j) - 2*cov.At(i, j)
+				d.SE[a] = math.Sqrt(math.Max(v, 0)) / toPPM
+			}
+		}
+		res.Pairs = append(res.Pairs, d)
 	}
 	res.After = make([]float64, len(p.sites))
 	for i := range p.sites {
@@ -618,17 +825,69 @@ func (p *compProblem) result(x, art []float64, roundedOK bool, free int, common 
 			res.After[i] = p.off.value(r, x) / toUM
 		}
 	}
+	keep := make([]float64, p.nv)
 	res.WorstBefore, res.RMSBefore = stats(res.Before)
 	res.WorstAfter, res.RMSAfter = stats(res.After)
-	res.DrillBefore = worstAbs(&p.drill, make([]float64, p.nv)) / toUM
+	res.YieldBefore, res.YieldAfter = p.yield(keep), p.yield(x)
+	if p.windowed > 0 {
+		res.UsedBefore, res.UsedAfter = objective(Worst, &p.norm, keep), objective(Worst, &p.norm, x)
+	} else {
+		res.UsedBefore, res.UsedAfter = math.NaN(), math.NaN()
+	}
+	res.BelowApplied = res.YieldAfter < res.YieldBefore-yieldTie
+	res.DrillBefore = worstAbs(&p.drill, keep) / toUM
 	res.DrillAfter = worstAbs(&p.drill, x) / toUM
-	res.Notes = p.notes(res.Free, roundedOK, moved)
+	res.Notes = p.notes(res, roundedOK, moved)
 	return res
+}
+
+// changeCov returns the covariance (ppm²) of the recommended net changes
+// from the standard errors of the measured mean scales, nil when none is
+// known. At an interior optimum the objective depends on the mean scale s and
+// the change x only through s + x along the range directions, so the optimum
+// moves by −P·δs for a change δs of the measured means, P = V·Vᵀ the
+// projector onto the range: Cov(x) = P·Σ·P with Σ = diag(SE²) [calculated
+// here].
+func (p *compProblem) changeCov(rng [][]float64) *mat.SymDense {
+	if len(p.set.SE) == 0 || len(rng) == 0 {
+		return nil
+	}
+	nv := p.nv
+	sig := make([]float64, nv)
+	any := false
+	for l, name := range p.layers {
+		if se, ok := p.set.SE[name]; ok {
+			sig[2*l], sig[2*l+1] = se.X*toPPM, se.Y*toPPM
+			any = any || se.X > 0 || se.Y > 0
+		}
+	}
+	if !any {
+		return nil
+	}
+	proj := mat.NewDense(nv, nv, nil)
+	for _, v := range rng {
+		for i := range v {
+			for j := range v {
+				proj.Set(i, j, proj.At(i, j)+v[i]*v[j])
+			}
+		}
+	}
+	cov := mat.NewSymDense(nv, nil)
+	for i := 0; i < nv; i++ {
+		for j := i; j < nv; j++ {
+			var s float64
+			for k := 0; k < nv; k++ {
+				s += proj.At(i, k) * sig[k] * sig[k] * proj.At(k, j)
+			}
+			cov.SetSym(i, j, s)
+		}
+	}
+	return cov
 }
 
 // layerComps returns each layer's compensation and which axes move an offset
 // somewhere. A variable is free when no offset row depends on it.
-func (p *compProblem) layerComps(x, art []float64) ([]LayerComp, [2]bool) {
+func (p *compProblem) layerComps(x, art []float64, cov *mat.SymDense) ([]LayerComp, [2]bool) {
 	var layers []LayerComp
 	var moved [2]bool
 	for j := 0; j < p.nv; j++ {
@@ -644,7 +903,18 @@ func (p *compProblem) layerComps(x, art []float64) ([]LayerComp, [2]bool) {
 		if j%2 == 0 {
 			layers = append(layers, LayerComp{Layer: p.layers[l], MeanScale: [2]float64{p.meanScale[j], p.meanScale[j+1]}})
 		}
-		a := AxisComp{Scale: art[j] / toPPM, Factor: 1 + art[j]/toPPM, Net: x[j] / toPPM, Free: free}
+		ap := p.set.Applied[p.layers[l]]
+		applied := ap.ScaleX
+		if j%2 == 1 {
+			applied = ap.ScaleY
+		}
+		change := art[j] / toPPM
+		setting := (1+applied)*(1+change) - 1
+		a := AxisComp{Scale: change, Factor: 1 + change, Applied: applied, Setting: setting, SettingFactor: 1 + setting,
+			Movement: MaterialScale(p.meanScale[j], applied), Net: x[j] / toPPM, Free: free}
+		if cov != nil {
+			a.SE = math.Sqrt(math.Max(cov.At(j, j), 0)) / toPPM
+		}
 		if j%2 == 0 {
 			layers[l].X = a
 		} else {
@@ -655,8 +925,9 @@ func (p *compProblem) layerComps(x, art []float64) ([]LayerComp, [2]bool) {
 }
 
 // notes explains the result: that only differences matter, a rounding that
-// broke the budget, axes that move no offset, and the free values.
-func (p *compProblem) notes(free int, roundedOK bool, moved [2]bool) []string {
+// broke the budget, axes that move no offset, the free values, a yield below
+// the applied artwork's and a step finer than the standard error.
+func (p *compProblem) notes(res *CompResult, roundedOK bool, moved [2]bool) []string {
 	notes := []string{"only the difference of two layers' scale compensation across the coupled lines moves a broadside offset"}
 	if !roundedOK {
 		notes = append(notes, "no rounding of the compensation to the step keeps every layer within the drill budget; the nearest multiples are shown")
@@ -674,43 +945,66 @@ func (p *compProblem) notes(free int, roundedOK bool, moved [2]bool) []string {
 		notes = append(notes, fmt.Sprintf("no site's offset has a %s component (every coupled line runs along %s): %s compensation moves no offset and is set by %s",
 			strings.Join(freeAxes, " or "), strings.Join(freeAxes, " or "), strings.Join(freeAxes, " and "), commonRule(p.budget > 0)))
 	}
-	if free > 0 {
-		notes = append(notes, fmt.Sprintf("%d of the %d values are free (the common part) and were set by %s", free, p.nv, commonRule(p.budget > 0)))
+	if res.Free > 0 {
+		notes = append(notes, fmt.Sprintf("%d of the %d values are free (the common part) and were set by %s", res.Free, p.nv, commonRule(p.budget > 0)))
 	}
+	if res.BelowApplied {
+		why := "the drill budget, the artwork bound or the step cost more than the optimum gains"
+		if !p.feasible(make([]float64, p.nv)) {
+			why = "keeping the applied artwork itself breaks the drill budget or the artwork bound, and keeping them costs yield"
+		} else if p.set.Objective != SiteYield {
+			why = fmt.Sprintf("the %s objective does not maximise yield; --objective yield does", p.set.Objective)
+		}
+		notes = append(notes, fmt.Sprintf("WARNING: the recommendation predicts a LOWER site yield (%.4f %%) than keeping the applied artwork (%.4f %%): %s",
+			100*res.YieldAfter, 100*res.YieldBefore, why))
+	}
+	if p.windowed == 0 {
+		notes = append(notes, fmt.Sprintf("no coupler site can meet its spec at any offset (every design is out of spec): the %s objective judged the plain offsets instead", p.set.Objective))
+	} else if p.windowed < len(p.off.b) {
+		notes = append(notes, fmt.Sprintf("%d of %d coupler sites never meet their spec (design out of spec) and do not weigh in the objective", len(p.off.b)-p.windowed, len(p.off.b)))
+	}
+	notes = append(notes, p.seNotes(res, moved)...)
 	return notes
 }
 
-// leastSquares returns the z minimising Σ (b_i + a_i·z)², by Cholesky on
-// the normal equations (n is at most the number of layers times two); ok is
-// false when they are singular.
-func leastSquares(r *linRows, n int) ([]float64, bool) {
-	nm := mat.NewSymDense(n, nil)
-	rhs := mat.NewVecDense(n, nil)
-	for i := range r.b {
-		for a := 0; a < n; a++ {
-			rhs.SetVec(a, rhs.AtVec(a)-r.a[i][a]*r.b[i])
-			for b := a; b < n; b++ {
-				nm.SetSym(a, b, nm.At(a, b)+r.a[i][a]*r.a[i][b])
+// seNotes states the recommendation's standard error and flags a step finer
+// than it (setting res.StepFinerThanSE).
+func (p *compProblem) seNotes(res *CompResult, moved [2]bool) []string {
+	var worst float64
+	panels, from := 0, "panels"
+	for _, l := range res.Layers {
+		for a, ax := range []AxisComp{l.X, l.Y} {
+			if moved[a] && !ax.Free {
+				worst = math.Max(worst, ax.SE)
+			}
+		}
+		if se, ok := p.set.SE[l.Layer]; ok && (panels == 0 || se.Panels < panels) {
+			panels = se.Panels
+			if se.From != "" {
+				from = se.From
 			}
 		}
 	}
-	var ch mat.Cholesky
-	if !ch.Factorize(nm) || ch.Cond() > 1e12 {
-		return make([]float64, n), false
+	if worst == 0 {
+		if len(p.set.SE) > 0 {
+			return []string{"the measured lot gives no standard error of the recommendation (one panel, or no panel-to-panel spread)"}
+		}
+		return nil
 	}
-	var z mat.VecDense
-	if err := ch.SolveVecTo(&z, rhs); err != nil {
-		return make([]float64, n), false
+	notes := []string{fmt.Sprintf("standard error of the recommended changes: up to %.2f ppm (from %d %s; it shrinks as 1/√n)", worst*1e6, panels, from)}
+	if s := p.set.Step; s > 0 && s < worst {
+		res.StepFinerThanSE = true
+		notes = append(notes, fmt.Sprintf("the step of %.3g ppm is finer than that standard error (%.2f ppm): the rounded digits are below what the measurement resolves", s*1e6, worst*1e6))
 	}
-	return mat.Col(nil, 0, &z), true
+	return notes
 }
 
 // commonRule names how the common part is set, for the notes.
 func commonRule(budget bool) string {
 	if budget {
-		return "the drill budget (best registration to the drilled holes)"
+		return "the smallest change from the applied artwork, moved only where the drill budget binds"
 	}
-	return "the smallest compensation"
+	return "the smallest change from the applied artwork"
 }
 
 // stats returns the largest |e_i| and the root mean square of e (0 for none).
@@ -726,11 +1020,15 @@ func stats(e []float64) (worst, rms float64) {
 	return worst, math.Sqrt(ss / float64(len(e)))
 }
 
-// objective returns the value of o over the rows r at x: the largest |row|
-// or their root mean square.
+// objective returns the value of o over the rows r at x: the largest
+// |row| + give, or the rows' root mean square.
 func objective(o Objective, r *linRows, x []float64) float64 {
 	if o == Worst {
-		return worstAbs(r, x)
+		var w float64
+		for i := range r.b {
+			w = math.Max(w, math.Abs(r.value(i, x))+r.giveOf(i))
+		}
+		return w
 	}
 	var ss float64
 	for i := range r.b {
@@ -749,17 +1047,24 @@ func worstAbs(r *linRows, x []float64) float64 {
 	return w
 }
 
+// capSlack is the relative (and, in µm or ppm, absolute) amount by which a
+// row may pass its cap and still count as kept: the simplex method's
+// solutions sit on the caps with right-hand sides perturbed by up to
+// 1e-9·(1 + |h|) (solveLP), so the slack is a hundred times that, and still
+// 1e-7 of a cap, far below any length or scale that matters.
+const capSlack = 1e-7
+
 // violated reports the first capped row that x breaks beyond rounding.
 func violated(r *linRows, x []float64) (string, bool) {
 	for i := range r.b {
-		if v := r.value(i, x); math.Abs(v) > r.caps[i]*(1+1e-9)+1e-9 {
+		if v := r.value(i, x); math.Abs(v) > r.caps[i]*(1+capSlack)+capSlack {
 			return fmt.Sprintf("a limit of %.4g (at %.4g)", r.caps[i], v), true
 		}
 	}
 	return "", false
 }
 
-// minimax minimises t subject to |obj_i(x)| ≤ t for every objective row and
+// minimax minimises t subject to |obj_i(x)| + give_i ≤ t for every objective row and
 // |caps_k(x)| ≤ cap_k for every capped row, and t ≤ tmax when tmax > 0, by
 // the simplex method on a growing subset of the rows (constraint generation):
 // solve with the rows most likely to bind, add the rows the solution breaks,
@@ -782,7 +1087,9 @@ func minimax(nv int, obj, caps *linRows, tmax float64, box []float64) ([]float64
 		for i := range idx {
 			idx[i] = i
 		}
-		sort.Slice(idx, func(a, b int) bool { return math.Abs(r.b[idx[a]]) > math.Abs(r.b[idx[b]]) })
+		sort.Slice(idx, func(a, b int) bool {
+			return math.Abs(r.b[idx[a]])+r.giveOf(idx[a]) > math.Abs(r.b[idx[b]])+r.giveOf(idx[b])
+		})
 		for _, i := range idx[:4] {
 			active[[2]int{set, i}] = true
 		}
@@ -802,8 +1109,8 @@ func minimax(nv int, obj, caps *linRows, tmax float64, box []float64) ([]float64
 	addExtremes(0, obj)
 	addExtremes(1, caps)
 	scale := 1.0
-	for _, b := range obj.b {
-		scale = math.Max(scale, math.Abs(b))
+	for i, b := range obj.b {
+		scale = math.Max(scale, math.Abs(b)+obj.giveOf(i))
 	}
 	tol := 1e-9 * scale
 	for iter := 0; iter < 200; iter++ {
@@ -828,7 +1135,7 @@ func minimax(nv int, obj, caps *linRows, tmax float64, box []float64) ([]float64
 		}
 		var vs []viol
 		for i := range obj.b {
-			if v := math.Abs(obj.value(i, x)) - t; v > tol && !active[[2]int{0, i}] {
+			if v := math.Abs(obj.value(i, x)) + obj.giveOf(i) - t; v > tol && !active[[2]int{0, i}] {
 				vs = append(vs, viol{[2]int{0, i}, v})
 			}
 		}
@@ -878,9 +1185,9 @@ func solveLP(nv int, obj, caps *linRows, keys [][2]int, tmax float64, box []floa
 	}
 	for _, k := range keys {
 		if k[0] == 0 {
-			a, b := obj.a[k[1]], obj.b[k[1]]
-			row(a, -1, -b)
-			row(neg(a), -1, b)
+			a, b, d := obj.a[k[1]], obj.b[k[1]], obj.giveOf(k[1])
+			row(a, -1, -b-d)
+			row(neg(a), -1, b-d)
 		} else {
 			a, b, c := caps.a[k[1]], caps.b[k[1]], caps.caps[k[1]]
 			row(a, 0, c-b)
@@ -901,7 +1208,7 @@ func solveLP(nv int, obj, caps *linRows, keys [][2]int, tmax float64, box []floa
 			if k[0] == 1 {
 				continue
 			}
-			v := math.Abs(r.b[k[1]])
+			v := math.Abs(r.b[k[1]]) + r.giveOf(k[1])
 			for j := 0; j < nv; j++ {
 				v += math.Abs(r.a[k[1]][j]) * box[j]
 			}

@@ -13,11 +13,11 @@ import (
 // gonum's simplex method panic at 1e8 mil) and says why.
 func TestCompensateSlackBudget(t *testing.T) {
 	m, sites := twoCores(), compGrid(9, 11, 16*in, 22*in, panel.Vec{X: 1}, "L3", "L4")
-	none, err := Compensate(m, sites, &CompSettings{})
+	none, err := Compensate(m, sites, &CompSettings{Objective: Worst})
 	if err != nil {
 		t.Fatal(err)
 	}
-	huge, err := Compensate(m, sites, &CompSettings{DrillBudget: 1e8 * 25.4e-6})
+	huge, err := Compensate(m, sites, &CompSettings{Objective: Worst, DrillBudget: 1e8 * 25.4e-6})
 	if err != nil {
 		t.Fatal(err)
 	}

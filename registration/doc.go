@@ -55,8 +55,10 @@
 // optionally down-weights mis-measured targets (iteratively reweighted Huber or
 // Tukey). LotStats turns the fits into a lot's mean and spread per term, ready
 // to be written as contributors. Compensate chooses per-layer artwork scale
-// compensation that minimises the worst (a linear programme) or RMS broadside
-// offset over the sites; only the scale difference across the coupled lines
-// moves a broadside offset, so the common part comes from a drill-registration
-// budget or is the smallest compensation.
+// changes that maximise the expected site yield, each site judged against its
+// own allowed interval by SiteProb.Prob (or minimise the worst or rms share of
+// each site's window used); only the scale difference across the coupled lines
+// moves a broadside offset, so among equally good answers it takes the
+// smallest change from the applied artwork (Applied), with the drill budget
+// and the artwork bound as constraints.
 package registration

@@ -122,9 +122,17 @@ func (t Term) Variance() float64 {
 func (t Term) SD() float64 { return math.Sqrt(t.Variance()) }
 
 // Contributor is one source of misregistration applied to the layers it names.
+//
+// A contributor moves each layer it names by the same realisation of its
+// terms, scaled by the layer's weight: Weights, when not nil, holds one
+// factor per entry of Layers (nil is a weight of 1 on each). Weights other
+// than 1 let a set of contributors carry the joint distribution of several
+// layers measured on the same panels (see LotContributors): a layer moved by
+// w_A·t and another by w_B·t are offset by (w_A − w_B)·t.
 type Contributor struct {
 	Name      string
 	Layers    []string
+	Weights   []float64 // per layer of Layers; nil means 1 for each
 	Terms     [NumTerms]Term
 	SiteSigma float64 // isotropic per-site random displacement, one sigma per axis, m
 	Residual  *Grid   // measured residual displacement, added to the mean; may be nil
@@ -140,6 +148,25 @@ func (c *Contributor) Names(layer string) bool {
 	return false
 }
 
+// Weight returns the factor c moves layer by: 0 for a layer it does not
+// name, else its entry of Weights (1 when Weights is nil).
+func (c *Contributor) Weight(layer string) float64 {
+	for i, l := range c.Layers {
+		if l == layer {
+			if c.Weights == nil {
+				return 1
+			}
+			return c.Weights[i]
+		}
+	}
+	return 0
+}
+
+// MaxWeight bounds a contributor's layer weights. The weights written by
+// LotContributors are at most 1 in magnitude; a larger bound leaves room for
+// hand-written models without letting an absurd factor overflow the sums.
+const MaxWeight = 1000
+
 // Model is the registration error model of a panel.
 type Model struct {
 	Datum        panel.Vec
@@ -153,6 +180,14 @@ func (m *Model) Validate() error {
 		key := fmt.Sprintf("contributor[%d]", i)
 		if len(c.Layers) == 0 {
 			return &FieldError{key + ".layers", errors.New("a contributor names at least one layer")}
+		}
+		if c.Weights != nil && len(c.Weights) != len(c.Layers) {
+			return &FieldError{key + ".weights", fmt.Errorf("want one weight per layer (%d), not %d", len(c.Layers), len(c.Weights))}
+		}
+		for _, w := range c.Weights {
+			if math.IsNaN(w) || math.IsInf(w, 0) || math.Abs(w) > MaxWeight {
+				return &FieldError{key + ".weights", fmt.Errorf("weights must be finite and within ±%g, not %g", float64(MaxWeight), w)}
+			}
 		}
 		for k, t := range c.Terms {
 			tk := key + "." + TermKind(k).String()
@@ -210,16 +245,18 @@ func (m *Model) MeanDisplacement(layer string, p panel.Vec) panel.Vec {
 	var d panel.Vec
 	for i := range m.Contributors {
 		c := &m.Contributors[i]
-		if !c.Names(layer) {
+		w := c.Weight(layer)
+		if w == 0 {
 			continue
 		}
 		var v [NumTerms]float64
 		for k := range v {
-			v[k] = c.Terms[k].Mean
+			v[k] = w * c.Terms[k].Mean
 		}
 		d = d.Add(Displace(v, p, m.Datum))
 		if c.Residual != nil {
-			d = d.Add(c.Residual.At(p))
+			r := c.Residual.At(p)
+			d = d.Add(panel.Vec{X: w * r.X, Y: w * r.Y})
 		}
 	}
 	return d

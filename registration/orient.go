@@ -28,16 +28,56 @@ type Orientation struct {
 	Turned   OrientYield
 }
 
-// OrientMinGain is the rise in mean site yield below which a turn is not
-// worth it: one part per million, below any Monte Carlo resolution.
-const OrientMinGain = 1e-6
+// OrientMinGain is the default smallest rise in a group's mean site yield
+// for which the study recommends a turn: half a percentage point, one coupler
+// in two hundred. Turning an array re-steps the panel (a new panel plan, new
+// artwork, often a new nesting of the parts), which a gain smaller than this
+// does not pay for; a user with other costs gives another threshold.
+const OrientMinGain = 0.005
 
 // Gain returns the rise in mean site yield from turning the parts.
 func (o Orientation) Gain() float64 { return o.Turned.Mean - o.AsPlaced.Mean }
 
+// TurnThreshold returns the gain a turn must exceed: the larger of minGain
+// (OrientMinGain when 0) and resolution, the Monte Carlo resolution of the
+// group's mean site yield (GroupResolution; 0 when no Monte Carlo ran). A gain
+// the run could not resolve could not be confirmed by it either, however the
+// closed form ranks the two orientations.
+func TurnThreshold(minGain, resolution float64) float64 {
+	if minGain == 0 {
+		minGain = OrientMinGain
+	}
+	return math.Max(minGain, resolution)
+}
+
+// Recommend reports whether turning the parts raises the group's mean site
+// yield by more than TurnThreshold(minGain, resolution).
+func (o Orientation) Recommend(minGain, resolution float64) bool {
+	return o.Gain() > TurnThreshold(minGain, resolution)
+}
+
 // Better reports whether turning the parts raises the group's mean yield by
-// more than OrientMinGain.
-func (o Orientation) Better() bool { return o.Gain() > OrientMinGain }
+// more than OrientMinGain, with no Monte Carlo resolution to respect.
+func (o Orientation) Better() bool { return o.Recommend(0, 0) }
+
+// GroupResolution returns the Monte Carlo resolution of the mean site yield
+// of a group of sites: twice its standard error (about 95 % two-sided
+// confidence for a normal estimate). The sites of one panel draw the same
+// panel terms, so their outcomes are correlated and the standard error of
+// their mean is not the binomial one of independent sites; the triangle
+// inequality for standard deviations, sd(Σ Xᵢ/n) ≤ Σ sd(Xᵢ)/n, bounds it by
+// the mean of the sites' binomial errors √(pᵢ(1−pᵢ)/N), with equality when
+// the sites are fully correlated. It is 0 for an empty group.
+func (r *MCResult) GroupResolution(sites []int) float64 {
+	if len(sites) == 0 {
+		return 0
+	}
+	var s float64
+	for _, i := range sites {
+		s += r.SiteSE(i)
+	}
+	return 2 * s / float64(len(sites))
+}
 
 // Orient evaluates the group of sites as placed and turned a quarter turn.
 func (y *Yield) Orient(sites []int) Orientation {

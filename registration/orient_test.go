@@ -72,3 +72,50 @@ func TestOrient(t *testing.T) {
 		})
 	}
 }
+
+// TestTurnThreshold: a turn is recommended only for a gain above both the
+// stated minimum and the Monte Carlo resolution; the gains are exact in
+// binary so that the comparisons sit exactly where the table says.
+func TestTurnThreshold(t *testing.T) {
+	for _, tt := range []struct {
+		name                      string
+		gain, minGain, resolution float64
+		want                      bool
+	}{
+		{"0.07 % gain, default threshold", 0.0007, 0, 0, false},
+		{"gain just over the default", OrientMinGain * 1.01, 0, 0, true},
+		{"gain under the resolution", 0.01, 0.005, 0.02, false},
+		{"gain over both", 0.03, 0.005, 0.02, true},
+		{"gain at the threshold", 0.25, 0.25, 0, false},
+		{"a loss", -0.1, 0, 0, false},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			o := Orientation{AsPlaced: OrientYield{Mean: 0.5}, Turned: OrientYield{Mean: 0.5 + tt.gain}}
+			if got := o.Recommend(tt.minGain, tt.resolution); got != tt.want {
+				t.Errorf("gain %g, min %g, resolution %g: turn = %v, want %v", o.Gain(), tt.minGain, tt.resolution, got, tt.want)
+			}
+		})
+	}
+	if th := TurnThreshold(0, 0); th != OrientMinGain {
+		t.Errorf("default threshold %g, want OrientMinGain %g", th, OrientMinGain)
+	}
+}
+
+// TestGroupResolution: twice the mean binomial standard error
+// √(p(1−p)/N) of the group's sites (Feller, An Introduction to Probability
+// Theory and Its Applications, vol. 1, 3rd ed., ch. IX.2: the variance of a
+// binomial count is Npq). For 100 panels and yields 0.9 and 0.5 the errors
+// are 0.03 and 0.05, so the resolution is 2·0.04 = 0.08.
+func TestGroupResolution(t *testing.T) {
+	r := &MCResult{Trials: 100, SiteGood: []int64{90, 50, 100}}
+	if got := r.GroupResolution([]int{0, 1}); math.Abs(got-0.08) > 1e-15 {
+		t.Errorf("resolution %.17g, want 0.08", got)
+	}
+	// A site always good has no error; an empty group no resolution.
+	if got := r.GroupResolution([]int{2}); got != 0 {
+		t.Errorf("resolution of a certain site %g", got)
+	}
+	if got := r.GroupResolution(nil); got != 0 {
+		t.Errorf("resolution of no sites %g", got)
+	}
+}

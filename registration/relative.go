@@ -11,8 +11,9 @@ import (
 type Relative struct {
 	Upper, Lower string
 	Datum        panel.Vec
-	// Sign is, per contributor of the model, +1 if it names Upper only, −1 if it
-	// names Lower only and 0 if it names both or neither.
+	// Sign is, per contributor of the model, its weight on Upper minus its
+	// weight on Lower (Contributor.Weight): +1 if it names Upper only, −1 if
+	// it names Lower only and 0 if it moves both alike or names neither.
 	Sign []float64
 	// Mean and Var are the mean and variance of the six relative terms: sums over
 	// contributors of Sign·mean and Sign²·variance (terms are independent).
@@ -28,23 +29,16 @@ func (m *Model) Relative(upper, lower string) *Relative {
 	r := &Relative{Upper: upper, Lower: lower, Datum: m.Datum, Sign: make([]float64, len(m.Contributors)), model: m}
 	for i := range m.Contributors {
 		c := &m.Contributors[i]
-		a, b := c.Names(upper), c.Names(lower)
-		var s float64
-		switch {
-		case a && !b:
-			s = 1
-		case b && !a:
-			s = -1
-		}
+		s := c.Weight(upper) - c.Weight(lower)
 		r.Sign[i] = s
 		if s == 0 {
 			continue
 		}
 		for k := range c.Terms {
 			r.Mean[k] += s * c.Terms[k].Mean
-			r.Var[k] += c.Terms[k].Variance()
+			r.Var[k] += s * s * c.Terms[k].Variance()
 		}
-		r.SiteVar += c.SiteSigma * c.SiteSigma
+		r.SiteVar += s * s * c.SiteSigma * c.SiteSigma
 	}
 	return r
 }
@@ -135,13 +129,14 @@ func (r *Relative) Budget(dst []Share, row Row) []Share {
 			continue
 		}
 		c := &r.model.Contributors[i]
+		s2 := r.Sign[i] * r.Sign[i]
 		for k := range c.Terms {
-			if v := row.Across[k] * row.Across[k] * c.Terms[k].Variance(); v > 0 {
+			if v := s2 * row.Across[k] * row.Across[k] * c.Terms[k].Variance(); v > 0 {
 				dst = append(dst, Share{i, TermKind(k), v})
 			}
 		}
 		if c.SiteSigma > 0 {
-			dst = append(dst, Share{i, -1, c.SiteSigma * c.SiteSigma})
+			dst = append(dst, Share{i, -1, s2 * c.SiteSigma * c.SiteSigma})
 		}
 	}
 	return dst

@@ -173,16 +173,7 @@ const (
 // G2 gives G1 back). With σ = 0, G1(x) = max(x, 0) and G2(x) = max(x, 0)²/2.
 func (p SiteProb) CDF(t float64) float64 {
 	x := t - p.Mean
-	sd, w1, w2 := p.SD, p.Uniform, p.Uniform2
-	if w2 > 0 && w2 < uniform2FoldRatio*(sd+w1) {
-		sd, w2 = math.Sqrt(sd*sd+w2*w2/3), 0
-	}
-	if w1 > 0 && w1 < uniformFoldRatio*sd {
-		sd, w1 = math.Sqrt(sd*sd+w1*w1/3), 0
-	}
-	if w1 == 0 && w2 > 0 {
-		w1, w2 = w2, 0
-	}
+	sd, w1, w2 := p.folded()
 	switch {
 	case w1 == 0:
 		if sd == 0 {
@@ -212,6 +203,73 @@ func (p SiteProb) CDF(t float64) float64 {
 	}
 	f := (G2(x+w1+w2) - G2(x+w1-w2) - G2(x-w1+w2) + G2(x-w1-w2)) / (4 * w1 * w2)
 	return math.Min(1, math.Max(0, f))
+}
+
+// folded returns the normal part's standard deviation and the two
+// half-widths after the fold rule above (uniformFoldRatio,
+// uniform2FoldRatio), the widest half-width first.
+func (p SiteProb) folded() (sd, w1, w2 float64) {
+	sd, w1, w2 = p.SD, p.Uniform, p.Uniform2
+	if w2 > 0 && w2 < uniform2FoldRatio*(sd+w1) {
+		sd, w2 = math.Sqrt(sd*sd+w2*w2/3), 0
+	}
+	if w1 > 0 && w1 < uniformFoldRatio*sd {
+		sd, w1 = math.Sqrt(sd*sd+w1*w1/3), 0
+	}
+	if w1 == 0 && w2 > 0 {
+		w1, w2 = w2, 0
+	}
+	return sd, w1, w2
+}
+
+// PDF returns the density of the offset at t, the derivative of CDF by
+// the same fold rule: a normal density, one box's
+// [Φ(u+) − Φ(u−)]/(2w) (u± = (x ± w)/σ), or two boxes' double difference
+// of G1 (CDF's notation) over 4·w1·w2. With σ = 0 the boxes' density is a
+// box or a trapezoid; with σ = 0 and no box the offset is fixed and the
+// density is 0 everywhere but at the mean, where it is +Inf.
+func (p SiteProb) PDF(t float64) float64 {
+	x := t - p.Mean
+	sd, w1, w2 := p.folded()
+	switch {
+	case w1 == 0:
+		if sd == 0 {
+			if x == 0 {
+				return math.Inf(1)
+			}
+			return 0
+		}
+		return normalPDF(x/sd) / sd
+	case w2 == 0:
+		if sd == 0 {
+			if math.Abs(x) <= w1 {
+				return 1 / (2 * w1)
+			}
+			return 0
+		}
+		return math.Max(0, NormalCDF((x+w1)/sd)-NormalCDF((x-w1)/sd)) / (2 * w1)
+	}
+	G1 := func(x float64) float64 {
+		if sd == 0 {
+			return math.Max(x, 0)
+		}
+		u := x / sd
+		return sd * (u*NormalCDF(u) + normalPDF(u))
+	}
+	return math.Max(0, (G1(x+w1+w2)-G1(x+w1-w2)-G1(x-w1+w2)+G1(x-w1-w2))/(4*w1*w2))
+}
+
+// Kinks returns the offsets where the density changes form: the mean ±
+// w1 ± w2 after the fold rule (the edges of the boxes), none without a
+// box. An integral of the density against another function converges
+// fastest on pieces between them.
+func (p SiteProb) Kinks(dst []float64) []float64 {
+	_, w1, w2 := p.folded()
+	dst = dst[:0]
+	if w1 == 0 {
+		return dst
+	}
+	return append(dst, p.Mean-w1-w2, p.Mean-w1+w2, p.Mean+w1-w2, p.Mean+w1+w2)
 }
 
 // Prob returns P(offset ∈ iv), the closed-form yield of the site.
@@ -244,6 +302,11 @@ type Yield struct {
 	Pairs []*Relative
 	Pair  []int
 	Parts int // number of part instances
+	// Coupons lists the part instances that are not products (test coupon
+	// strips), in increasing order: their sites and part yields are tallied
+	// like any other, but they are left out of MCResult.GoodParts. Nil means
+	// every part is a product.
+	Coupons []int
 	// Check, if not nil, decides in Monte Carlo whether the sites it
 	// claims meet their spec, for a coupling that depends on more than the
 	// across offset (process variation terms); the others are decided by
@@ -271,6 +334,9 @@ type SiteCheckWorker interface {
 	// offset offset (design offset included), drawing its per-site parts.
 	InSpec(i int, offset float64, rng *rand.Rand) bool
 }
+
+// Products returns the number of part instances that are products.
+func (y *Yield) Products() int { return y.Parts - len(y.Coupons) }
 
 // NewYield prepares a yield study of sites under model m, with parts part
 // instances (site Part indices must lie in [0, parts) or be −1).
@@ -318,7 +384,7 @@ func (r *Relative) Prob(row *Row, nominal float64) SiteProb {
 			if t.Dist != Uniform {
 				continue
 			}
-			w := math.Abs(row.Across[k]) * t.Spread
+			w := math.Abs(r.Sign[i]*row.Across[k]) * t.Spread
 			switch {
 			case w > w1:
 				w1, w2 = w, w1
@@ -400,8 +466,9 @@ const MCBlock = 256
 type MCResult struct {
 	Trials   int
 	SiteGood []int64 // per site, panels on which the site met its spec
-	PartGood []int64 // per part instance, panels on which all its sites did
-	// GoodParts[k] is the number of panels with exactly k good parts.
+	PartGood []int64 // per part instance (coupons too), panels on which all its sites did
+	// GoodParts[k] is the number of panels with exactly k good products
+	// (coupon parts are not counted; see Yield.Coupons).
 	GoodParts []int64
 }
 
@@ -487,7 +554,7 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 	workers = min(workers, blocks)
 
 	res := &MCResult{Trials: set.Trials, SiteGood: make([]int64, len(sites)),
-		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Parts+1)}
+		PartGood: make([]int64, y.Parts), GoodParts: make([]int64, y.Products()+1)}
 	var next atomic.Int64
 	var mu sync.Mutex
 	done := 0
@@ -552,7 +619,7 @@ func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	pcg := rand.NewPCG(0, 0)
 	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
 		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
-		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Parts+1), check: newCheckWorker(y)}
+		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
 }
 
 func newCheckWorker(y *Yield) SiteCheckWorker {
@@ -599,7 +666,15 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 				bad++
 			}
 		}
-		w.goodParts[w.y.Parts-bad]++
+		// Coupon parts failed in this trial were counted in bad; they are
+		// few (a strip or two), so taking them out here keeps the site
+		// loop free of the product test.
+		for _, c := range w.y.Coupons {
+			if w.stamp[c] == t {
+				bad--
+			}
+		}
+		w.goodParts[w.y.Products()-bad]++
 	}
 	w.trials += int64(n)
 }

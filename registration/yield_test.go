@@ -3,6 +3,7 @@ package registration
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"strconv"
 	"testing"
@@ -183,7 +184,12 @@ func TestSiteProbUniform(t *testing.T) {
 // scale, rotation and offset terms, a uniform offset_y term on each layer
 // (two uniform parts across lines along x), a per-site sigma, and a contributor naming both layers (which must
 // cancel).
-func testYield(t testing.TB) *Yield {
+func testYield(t testing.TB) *Yield { return testYieldWeighted(t, false) }
+
+// testYieldWeighted is testYield, with weights when weighted: the shared
+// core moves B by 0.95 of A's movement, and the upper imaging moves B by −0.5
+// of A's, which stretches its uniform term by 1.5 in the offset.
+func testYieldWeighted(t testing.TB, weighted bool) *Yield {
 	m := &Model{Contributors: []Contributor{
 		{Name: "upper imaging", Layers: []string{"A"}, Terms: [NumTerms]Term{
 			OffsetX:  {Spread: 0.3 * mil, Dist: Normal},
@@ -201,6 +207,10 @@ func testYield(t testing.TB) *Yield {
 			ScaleX: {Mean: -300 * ppm, Spread: 100 * ppm, Dist: Normal},
 		}, SiteSigma: 5 * mil},
 	}}
+	if weighted {
+		m.Contributors[0].Layers, m.Contributors[0].Weights = []string{"A", "B"}, []float64{1, -0.5}
+		m.Contributors[2].Weights = []float64{1, 0.95}
+	}
 	x, y := panel.Vec{X: 1}, panel.Vec{Y: 1}
 	sym := Interval{-2 * mil, 2 * mil}
 	asym := Interval{-1 * mil, 2.5 * mil}
@@ -223,7 +233,12 @@ func testYield(t testing.TB) *Yield {
 // Monte Carlo estimate within 3 binomial standard errors √(p(1−p)/N), at sites
 // with symmetric and asymmetric intervals, with and without the uniform term.
 func TestClosedFormVsMonteCarlo(t *testing.T) {
-	y := testYield(t)
+	for _, weighted := range []bool{false, true} {
+		t.Run(fmt.Sprintf("weighted=%v", weighted), func(t *testing.T) { closedFormVsMonteCarlo(t, testYieldWeighted(t, weighted)) })
+	}
+}
+
+func closedFormVsMonteCarlo(t *testing.T, y *Yield) {
 	trials := 1000000
 	if testing.Short() {
 		trials = 100000
@@ -427,5 +442,42 @@ func BenchmarkMonteCarloMemory(b *testing.B) {
 				}
 			}
 		})
+	}
+}
+
+// TestMonteCarloCoupons: a coupon part (Yield.Coupons) that always fails
+// leaves the good parts per panel alone, while its own part yield and its
+// sites are still counted. Three parts of one site each, no error terms:
+// parts 0 and 2 always meet a ±1 mil window, coupon part 1 never meets an
+// empty one, so every panel has exactly 2 good products of 2.
+func TestMonteCarloCoupons(t *testing.T) {
+	m := &Model{Contributors: []Contributor{{Name: "none", Layers: []string{"A"}}}}
+	win := Interval{Lo: -25.4e-6, Hi: 25.4e-6}
+	sites := []YieldSite{
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: win, Part: 0},
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: EmptyInterval(), Part: 1},
+		{U: panel.Vec{X: 1}, Upper: "A", Lower: "B", Allowed: win, Part: 2},
+	}
+	y := NewYield(m, sites, 3)
+	y.Coupons = []int{1}
+	const trials = 300
+	res, err := y.MonteCarlo(context.Background(), MCSettings{Trials: trials, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if y.Products() != 2 || len(res.GoodParts) != 3 || res.GoodParts[2] != trials {
+		t.Errorf("good products per panel %v, want all %d panels at 2 of 2", res.GoodParts, trials)
+	}
+	if res.PartGood[0] != trials || res.PartGood[1] != 0 || res.PartGood[2] != trials || res.SiteGood[1] != 0 {
+		t.Errorf("part counts %v, site counts %v", res.PartGood, res.SiteGood)
+	}
+	// Without the coupon mark the same failing part costs one part a panel.
+	y.Coupons = nil
+	res, err = y.MonteCarlo(context.Background(), MCSettings{Trials: trials, Seed: 3})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.GoodParts) != 4 || res.GoodParts[2] != trials {
+		t.Errorf("good parts per panel %v, want all %d panels at 2 of 3", res.GoodParts, trials)
 	}
 }

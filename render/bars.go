@@ -41,27 +41,60 @@ func (b *BarChart) Render(width, height int) *Canvas {
 
 	top := margin
 	if b.Title != "" {
-		c.text(b.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		t, ts := fitTitle(c, b.Title, float64(width)-2*margin)
+		c.text(t, margin, top, 0, 0, ts)
 		top += 2.2 * em
 	}
+	// Labels take at most 40 % of the width; longer ones are shortened
+	// with an ellipsis rather than pushing the bars off the canvas.
+	labels := append([]string(nil), b.Labels...)
+	maxLabel := 0.4 * float64(width)
+	labelW := 0.0
+	for k, l := range labels {
+		for c.measure(l, ts) > maxLabel && len([]rune(l)) > 2 {
+			r := []rune(l)
+			l = string(r[:len(r)-2]) + "…"
+		}
+		labels[k] = l
+		labelW = math.Max(labelW, c.measure(l, ts))
+	}
+	left := margin + labelW + 0.8*em
+	right := float64(width) - 1.6*em
+	texts := make([]string, len(b.Values))
 	lo, hi := 0.0, b.XMax
 	if hi == 0 {
 		for _, v := range b.Values {
 			finiteRange(&lo, &hi, v)
 		}
 		lo, hi = fixRange(lo, hi)
-		span := hi - lo
-		hi += 0.12 * span // room for the value text
-		if lo < 0 {
-			lo -= 0.12 * span // and for a negative bar's, written left of it
+	}
+	_, step := Ticks(lo, hi, clampInt(int((right-left)/(4.5*em)), 2, 12))
+	for k, v := range b.Values {
+		if k < len(b.Texts) {
+			texts[k] = b.Texts[k]
+		} else {
+			texts[k] = TickLabel(v, step/10)
 		}
 	}
-	labelW := 0.0
-	for _, l := range b.Labels {
-		labelW = math.Max(labelW, c.measure(l, ts))
+	if b.XMax == 0 {
+		// Widen the range until every bar's text fits inside the frame: a
+		// fixed share of the span let long texts run past it.
+		W := right - left
+		for k, v := range b.Values {
+			if math.IsNaN(v) {
+				continue
+			}
+			room := W - 0.8*em - c.measure(texts[k], ts)
+			if room < 0.2*W {
+				room = 0.2 * W
+			}
+			if v > 0 {
+				hi = math.Max(hi, lo+(v-lo)*W/room)
+			} else if v < 0 {
+				lo = math.Min(lo, hi-(hi-v)*W/room)
+			}
+		}
 	}
-	left := margin + labelW + 0.8*em
-	right := float64(width) - 1.6*em
 	bottom := float64(height) - margin - 3.4*em
 	area := image.Rect(int(left), int(top), int(right), int(bottom))
 	f := plotFrame{area, lo, hi, 0, 1}
@@ -95,15 +128,10 @@ func (b *BarChart) Render(width, height int) *Canvas {
 			bc = b.Colors[k]
 		}
 		c.fillBox(box{x0, cy - bh/2, x1, cy + bh/2}, bc)
-		if k < len(b.Labels) {
-			c.text(b.Labels[k], left-0.5*em, cy, 1, 0.5, ts)
+		if k < len(labels) {
+			c.text(labels[k], left-0.5*em, cy, 1, 0.5, ts)
 		}
-		txt := ""
-		if k < len(b.Texts) {
-			txt = b.Texts[k]
-		} else {
-			txt = TickLabel(v, step/10)
-		}
+		txt := texts[k]
 		if v >= 0 {
 			c.text(txt, f.px(v)+0.4*em, cy, 0, 0.5, ts)
 		} else {

@@ -156,14 +156,23 @@ func NewMap(spec MapSpec) *Map {
 	c := m.Canvas
 
 	// Title block.
+	// A line too long for the canvas (or for the room beside the legend)
+	// is set smaller and, if need be, cut with an ellipsis, rather than run
+	// off the edge or under the legend.
 	y := margin
 	for k, line := range spec.Title {
-		ts := textStyle{}
+		ts := textStyle{size: 1}
 		if k == 0 {
 			ts = textStyle{size: titleEm, bold: true}
 		}
+		step := 1.45 * em * math.Max(ts.size, 1)
+		room := float64(w) - 2*margin
+		if len(spec.Legend) > 0 && y < legend.y1 {
+			room = legend.x0 - margin - em
+		}
+		line, ts = fitLine(c, line, ts, room)
 		c.text(line, margin, y, 0, 0, ts)
-		y += 1.45 * em * math.Max(ts.size, 1)
+		y += step
 	}
 
 	if len(spec.Legend) > 0 {

@@ -29,6 +29,11 @@ type BarStyle struct {
 	// similar colour; nil means Ink. Set NoOutline to leave it out.
 	Outline   color.Color
 	NoOutline bool
+	// Contrast picks each bar's outline by its fill: Halo round a dark bar,
+	// Ink round a light one, so that bars stay visible over a field that
+	// runs from light to dark (a bar takes the field's colour where it
+	// agrees with it). Bars along neither axis keep Outline.
+	Contrast bool
 }
 
 // Bars draws many bars quickly. Bars along x or y are filled straight into
@@ -125,11 +130,19 @@ func (v *View) axisBar(b Bar, w, minLen float64, s BarStyle) bool {
 	img := v.c.img
 	if !s.NoOutline {
 		ow := math.Max(1, w/4)
-		fillPixels(img, x-hx-ow, y-hy-ow, x+hx+ow, y+hy+ow, rgbaOf(orInk(s.Outline)))
+		oc := rgbaOf(orInk(s.Outline))
+		if s.Contrast && Luma(b.Color) < contrastLuma {
+			oc = Halo
+		}
+		fillPixels(img, x-hx-ow, y-hy-ow, x+hx+ow, y+hy+ow, oc)
 	}
 	fillPixels(img, x-hx, y-hy, x+hx, y+hy, b.Color)
 	return true
 }
+
+// contrastLuma is the luma below which a fill counts as dark, for outlines
+// and marks drawn over it (the threshold yield.png's contours use).
+const contrastLuma = 0.45
 
 func rgbaOf(c color.Color) color.RGBA {
 	r, g, b, a := c.RGBA()
@@ -162,11 +175,18 @@ const barBatch = 32
 
 // Dots draws a filled circle of radius r pixels at each point, such as
 // measured targets.
+//
+// A dot whose centre falls outside the view is left out: it would cover the
+// axes or the next view.
 func (v *View) Dots(pts []Point, r float64, fill color.Color) {
 	dc := v.c.dc
 	dc.SetColor(fill)
+	a := v.area
 	for i, p := range pts {
 		x, y := v.Pixel(p)
+		if x < float64(a.Min.X) || x > float64(a.Max.X) || y < float64(a.Min.Y) || y > float64(a.Max.Y) {
+			continue
+		}
 		dc.DrawCircle(x, y, r)
 		dc.NewSubPath()
 		if (i+1)%pathBatch == 0 {
@@ -194,10 +214,20 @@ type Marker struct {
 // both with a white halo so they read over the field. Each label goes to the
 // first of eight places around its ring that stays inside the view and
 // clear of the rings and labels already placed.
+//
+// A marker whose site falls outside the view is left out, as Dots does.
 func (v *View) Markers(ms []Marker) {
 	c := v.c
 	dc := c.dc
 	em := c.em
+	a := v.area
+	inside := ms[:0:0]
+	for _, m := range ms {
+		if x, y := v.Pixel(m.At); x >= float64(a.Min.X) && x <= float64(a.Max.X) && y >= float64(a.Min.Y) && y <= float64(a.Max.Y) {
+			inside = append(inside, m)
+		}
+	}
+	ms = inside
 	r := 0.6 * em
 	lw := math.Max(2, em/8)
 	var taken []box
@@ -515,6 +545,20 @@ type LegendItem struct {
 	Color color.Color // nil means Ink
 	Dash  []float64   // for LegendLine
 	Width float64     // line width in pixels for LegendLine; 0 means 2 thin lines
+	// Length is the length of the sample in pixels, for a LegendArrow that
+	// is a scale key (a displacement drawn at a stated exaggeration); 0
+	// means the usual 2.4 em. The samples of a legend share the longest.
+	Length float64
+}
+
+// sampleWidth returns the width of the samples of a legend: 2.4 em, or the
+// longest Length asked for.
+func sampleWidth(em float64, items []LegendItem) float64 {
+	w := 2.4 * em
+	for _, it := range items {
+		w = math.Max(w, it.Length)
+	}
+	return w
 }
 
 // Corner names a corner of a plot area.
@@ -539,7 +583,7 @@ func legendSize(c *Canvas, items []LegendItem) (w, h float64) {
 	for _, it := range items {
 		tw = math.Max(tw, c.measure(it.Label, ts))
 	}
-	return 0.7*em + 2.4*em + 0.6*em + tw + 0.7*em, 0.5*em + float64(len(items))*1.5*em + 0.5*em
+	return 0.7*em + sampleWidth(em, items) + 0.6*em + tw + 0.7*em, 0.5*em + float64(len(items))*1.5*em + 0.5*em
 }
 
 func legendBox(c *Canvas, area image.Rectangle, items []LegendItem, corner Corner, inset float64) box {
@@ -568,7 +612,7 @@ func drawLegendBox(c *Canvas, b box, items []LegendItem) {
 	dc := c.dc
 	for k, it := range items {
 		cy := b.y0 + 0.5*em + (float64(k)+0.5)*1.5*em
-		sx0, sx1 := b.x0+0.7*em, b.x0+0.7*em+2.4*em
+		sx0, sx1 := b.x0+0.7*em, b.x0+0.7*em+sampleWidth(em, items)
 		col := orInk(it.Color)
 		switch it.Kind {
 		case LegendLine:
@@ -593,7 +637,11 @@ func drawLegendBox(c *Canvas, b box, items []LegendItem) {
 			dc.Stroke()
 		case LegendArrow:
 			w := 1.5 * c.thin()
-			h, _ := arrowPath(c, sx0, cy, sx1-sx0, 0, w)
+			l := sx1 - sx0
+			if it.Length > 0 {
+				l = it.Length
+			}
+			h, _ := arrowPath(c, sx0, cy, l, 0, w)
 			c.applyLine(LineStyle{Color: col, Width: w})
 			dc.Stroke()
 			dc.MoveTo(h[0][0], h[0][1])

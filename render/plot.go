@@ -52,6 +52,9 @@ const (
 	AtTopLeft
 	AtBottomLeft
 	AtBottomRight
+	// Outside puts the legend to the right of the panel, clear of the data
+	// whatever it covers; the plot narrows to make room.
+	Outside
 )
 
 // MarkerShape is the symbol drawn at each point of a Line.
@@ -233,7 +236,8 @@ func (p *Plot) Render(width, height int) *Canvas {
 	x0, x1 := p.xRange()
 	top := margin
 	if p.Title != "" {
-		c.text(p.Title, margin, top, 0, 0, textStyle{size: 1.2, bold: true})
+		t, ts := fitTitle(c, p.Title, float64(width)-2*margin)
+		c.text(t, margin, top, 0, 0, ts)
 		top += 2.2 * em
 	} else {
 		top += 0.5 * em
@@ -268,6 +272,14 @@ func (p *Plot) Render(width, height int) *Canvas {
 	}
 	left := margin + 1.9*em + labelW + tickEm*em + 0.4*em
 	right := float64(width) - 1.6*em
+	outside := 0.0
+	for _, a := range p.Axes {
+		if items := legendLabels(a); a.Legend == Outside && len(items) > 0 {
+			w, _ := legendSize(c, items)
+			outside = math.Max(outside, w+0.8*em)
+		}
+	}
+	right -= outside
 	xticks, xstep := Ticks(x0, x1, clampInt(int((right-left)/(4.5*em)), 2, 12))
 
 	y := top
@@ -285,6 +297,27 @@ func (p *Plot) Render(width, height int) *Canvas {
 		c.text(p.XLabel, (left+right)/2, float64(height)-margin-1.0*em, 0.5, 0.5, textStyle{})
 	}
 	return c
+}
+
+// fitTitle returns a one-line plot title and its style: bold at 1.2 em, or
+// smaller (fitLine), so that a long title (a job's own title inside it)
+// stays on the canvas instead of running off its edge.
+func fitTitle(c *Canvas, title string, room float64) (string, textStyle) {
+	return fitLine(c, title, textStyle{size: 1.2, bold: true}, room)
+}
+
+// fitLine returns line and ts made to fit in room pixels: the text size
+// lowered as far as the tick labels' size, then the line cut with an
+// ellipsis.
+func fitLine(c *Canvas, line string, ts textStyle, room float64) (string, textStyle) {
+	if w := c.measure(line, ts); w > room && ts.size > tickTextEm {
+		ts.size = math.Max(tickTextEm, ts.size*room/w)
+	}
+	for r := []rune(line); c.measure(line, ts) > room && len(r) > 1; {
+		r = r[:len(r)-1]
+		line = string(r) + "…"
+	}
+	return line, ts
 }
 
 // makeLegendRoom raises the top of an automatic y range when every corner
@@ -427,13 +460,33 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 			col = Series(*colour)
 			*colour++
 		}
+		// A bin that holds anything is drawn at least minBin pixels tall and
+		// wide: one panel in four thousand must not vanish beside the
+		// tallest bar (parts.png at 700 parts a panel looked empty).
+		minBin := 2.5 * c.thin()
+		narrow := false
 		for k := 0; k+1 < len(h.Edges) && k < len(h.Counts); k++ {
-			dc.DrawRectangle(f.px(h.Edges[k]), f.py(h.Counts[k]), f.px(h.Edges[k+1])-f.px(h.Edges[k]), f.py(0)-f.py(h.Counts[k]))
+			if h.Counts[k] == 0 {
+				continue
+			}
+			x0, x1 := f.px(h.Edges[k]), f.px(h.Edges[k+1])
+			if x1-x0 < minBin {
+				m := (x0 + x1) / 2
+				x0, x1 = m-minBin/2, m+minBin/2
+				narrow = true
+			}
+			y0, y1 := f.py(h.Counts[k]), f.py(0)
+			y0 = math.Min(y0, y1-minBin)
+			dc.DrawRectangle(x0, y0, x1-x0, y1-y0)
 		}
 		dc.SetColor(col)
-		dc.FillPreserve()
-		c.applyLine(LineStyle{Color: Background, Width: c.thin()})
-		dc.Stroke()
+		if narrow || (len(h.Edges) > 1 && f.px(h.Edges[1])-f.px(h.Edges[0]) < 4*c.thin()) {
+			dc.Fill() // a separating stroke would eat bars this narrow
+		} else {
+			dc.FillPreserve()
+			c.applyLine(LineStyle{Color: Background, Width: c.thin()})
+			dc.Stroke()
+		}
 		if h.Label != "" {
 			legend = append(legend, LegendItem{Label: h.Label, Kind: LegendSwatch, Color: col})
 		}
@@ -508,7 +561,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 		corner = BottomRight
 	}
 	var placed []box
-	if showLegend {
+	if showLegend && a.Legend != Outside {
 		placed = append(placed, legendBox(c, ar, legend, corner, 0.8*em))
 	}
 	// Vertical markers: labels at the top, right of the line (or left of
@@ -589,7 +642,12 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 	if a.YLabel != "" {
 		c.textUp(a.YLabel, float64(marginEm*em)+0.6*em, (fb.y0+fb.y1)/2, textStyle{})
 	}
-	if showLegend {
+	switch {
+	case showLegend && a.Legend == Outside:
+		w, h := legendSize(c, legend)
+		x0 := fb.x1 + 0.8*em
+		drawLegendBox(c, box{x0, fb.y0, x0 + w, fb.y0 + h}, legend)
+	case showLegend:
 		drawLegend(c, ar, legend, corner)
 	}
 }

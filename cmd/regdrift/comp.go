@@ -5,7 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"strings"
+	"math"
+	"slices"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
@@ -29,6 +30,9 @@ type compFlags struct {
 	robust    bool
 	weight    string
 	keep      bool
+	applied   []string
+	history   string
+	construct string
 	width     int
 	strict    bool
 	solver    solverFlags
@@ -38,8 +42,11 @@ type compFlags struct {
 func (f *compFlags) flags(fs *pflag.FlagSet) {
 	f.outputFlags.add(fs)
 	fs.StringVar(&f.targets, "targets", "", "measurement file (CSV) whose fitted lot joins the model")
-	fs.StringVar(&f.objective, "objective", "worst", "minimise the worst offset (worst, linear programme) or the rms offset (rms)")
-	fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil)")
+	fs.StringVar(&f.objective, "objective", "yield", "maximise the expected site yield (yield), or minimise the largest (worst) or rms (rms) share of each site's window its offset uses")
+	fs.StringVar(&f.drill, "drill-budget", "", "keep each trace layer's registration to the drilled holes within this, per axis (e.g. 2mil); a constraint only")
+	fs.StringArrayVar(&f.applied, "applied", nil, appliedHelp)
+	fs.StringVar(&f.history, "history", "", "history database (SQLite, see regdrift history): without --targets the next lot's movement of each trace layer comes from it; with --targets the lot is compared with its limits")
+	fs.StringVar(&f.construct, "construction", "", "with --history: read the history of this construction key only (default: every lot of each layer name)")
 	fs.StringVar(&f.max, "max", "1000ppm", "largest artwork scale change per layer and axis")
 	fs.StringVar(&f.step, "step", "", "increment the imaging equipment accepts (e.g. 5ppm; default continuous)")
 	fs.StringVar(&f.model, "model", "affine", "fit model for --targets: affine, similarity or translation")
@@ -88,6 +95,9 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
 	}
+	if f.construct != "" && f.history == "" {
+		return usageErr("--construction needs --history")
+	}
 	fset, err := parseFitSettings(f.model, f.robust, f.weight)
 	if err != nil {
 		return err
@@ -103,19 +113,61 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	var appliedSrc map[string]string
+	if set.Applied, appliedSrc, err = parseApplied(f.applied, std); err != nil {
+		return err
+	}
 	model := j.Model
 	var fitted, notes []string
+	var lots []registration.Lot
 	if f.targets != "" {
 		fset.Datum = j.Layout.Panel.Datum
 		fr, err := runFitFile(f.targets, std.in, fset, 5)
 		if err != nil {
 			return err
 		}
-		var lots []registration.Lot
 		lots, fitted = measuredLots(std, "comp", j, fr)
-		model, notes = drift.MeasuredModel(j.Model, lots, fr.File, f.keep)
+		model, notes = drift.MeasuredModel(j.Model, fr.Fits, lots, fr.File, f.keep)
+		set.SE = lotSE(lots)
 	}
-	cmp, err := drift.Compensate(ctx, input(j), model, &set, solver)
+	var checks []drift.HistoryCheck
+	if f.history != "" {
+		hs, err := readLayerHistory(ctx, f.history, f.construct, traceLayers(input(j)))
+		if err != nil {
+			return err
+		}
+		if f.targets == "" {
+			var hnotes []string
+			model, set.SE, hnotes = historyModel(model, hs, f.history)
+			notes = append(notes, hnotes...)
+		} else {
+			checks = historyChecks(hs, lots, set.Applied)
+			for _, c := range checks {
+				where := "inside"
+				if !c.Inside {
+					where = "OUTSIDE"
+				}
+				notes = append(notes, fmt.Sprintf("layer %s %s: this lot moved %+.1f ppm, %s the history's limits %+.1f … %+.1f ppm (centre %+.1f, %d lots)",
+					c.Layer, c.Axis, c.MovementPPM, where, c.LCLPPM, c.UCLPPM, c.CentrePPM, c.Lots))
+			}
+		}
+	}
+	var more []string
+	if model, more, err = withApplied(j, model, lots, set.Applied, appliedSrc); err != nil {
+		return err
+	}
+	notes = append(notes, more...)
+	if len(set.Applied) > 0 && slices.ContainsFunc(fitted, isRelative) {
+		notes = append(notes, "a relative measurement holds the upper layer's movement seen from the lower one: the per-layer movement column is not separable there, while the changes and settings are")
+	}
+	if set.DrillBudget > 0 && slices.ContainsFunc(fitted, isRelative) {
+		notes = append(notes, "--drill-budget: a relative measurement (layer against layer) carries no registration to the drilled holes; the budget acts on the job's model of those layers")
+	}
+	var cmp *drift.Comparison
+	err = step(progressStd(std, f.json), "compensation (field solves, optimisation)", func() (err error) {
+		cmp, err = drift.Compensate(ctx, input(j), model, &set, solver)
+		return err
+	})
 	var ce *drift.CompError
 	switch {
 	case errors.As(err, &ce):
@@ -124,7 +176,7 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 		return solveErr(j, err)
 	}
 	notes = append(notes, cmp.Notes...)
-	sum, paths, err := writeComp(f.out, cmp, fitted, notes, f.width, lu)
+	sum, paths, err := writeCompChecked(f.out, cmp, fitted, notes, checks, f.width, lu)
 	if err != nil {
 		return err
 	}
@@ -142,7 +194,13 @@ func (f *compFlags) run(ctx context.Context, std stdio, args []string) error {
 
 // writeComp writes the compensation's files into dir.
 func writeComp(dir string, cmp *drift.Comparison, fitted, notes []string, width int, lu lengthUnit) (*drift.CompSummary, []string, error) {
+	return writeCompChecked(dir, cmp, fitted, notes, nil, width, lu)
+}
+
+// writeCompChecked is writeComp with the lot's comparison with its history.
+func writeCompChecked(dir string, cmp *drift.Comparison, fitted, notes []string, checks []drift.HistoryCheck, width int, lu lengthUnit) (*drift.CompSummary, []string, error) {
 	sum := cmp.Summary(fitted, notes)
+	sum.History = checks
 	u := lu.units()
 	paths, err := writeAll(dir,
 		outFile{"comp.csv", func(w io.Writer) error { return cmp.WriteCSV(w, u) }},
@@ -153,14 +211,29 @@ func writeComp(dir string, cmp *drift.Comparison, fitted, notes []string, width 
 }
 
 func printComp(w io.Writer, title string, cmp *drift.Comparison, s *drift.CompSummary, lu lengthUnit, paths []string) {
-	fmt.Fprintf(w, "%s\nartwork scale compensation (objective: %s)\n", title, s.Objective)
+	fmt.Fprintf(w, "%s\nartwork scale compensation (objective: %s)\n", title, objectiveText(s.Objective))
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "layer\tmovement X [ppm]\tmovement Y [ppm]\tartwork X [ppm]\tfactor X\tartwork Y [ppm]\tfactor Y\tfree\n")
+	fmt.Fprintf(tw, "layer\taxis\tmovement [ppm]\tapplied [ppm]\tchange [ppm]\tnew setting [ppm]\tnew factor\tstd error [ppm]\t\n")
 	for _, l := range s.Layers {
-		fmt.Fprintf(tw, "%s\t%+.1f\t%+.1f\t%+.2f\t%.9f\t%+.2f\t%.9f\t%s\n", l.Layer, l.MeanScaleX, l.MeanScaleY,
-			l.ScaleXPPM, l.FactorX, l.ScaleYPPM, l.FactorY, strings.Join(l.Free, ", "))
+		for _, a := range []struct {
+			name                               string
+			move, applied, change, set, factor float64
+			se                                 float64
+			free                               bool
+		}{{"X", l.MovementXPPM, l.AppliedXPPM, l.ScaleXPPM, l.SettingXPPM, l.SettingFactorX, l.SEXPPM, l.FreeX},
+			{"Y", l.MovementYPPM, l.AppliedYPPM, l.ScaleYPPM, l.SettingYPPM, l.SettingFactorY, l.SEYPPM, l.FreeY}} {
+			se := "-"
+			if a.se > 0 {
+				se = fmt.Sprintf("±%.2f", a.se)
+			}
+			if a.free {
+				se = "free (moves no offset)"
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%+.2f\t%+.2f\t%+.2f\t%+.2f\t%.9f\t%s\t\n", l.Layer, a.name, a.move, a.applied, a.change, a.set, a.factor, se)
+		}
 	}
 	tw.Flush()
+	fmt.Fprintf(w, "movement: the material's mean scale with the applied artwork taken out; new setting = (1 + applied)(1 + change) − 1\n")
 	for _, p := range s.Pairs {
 		fmt.Fprintf(w, "difference %s − %s: X %+.2f ppm, Y %+.2f ppm (this is what moves the offsets)\n", p.Upper, p.Lower, p.DiffXPPM, p.DiffYPPM)
 	}
@@ -168,20 +241,122 @@ func printComp(w io.Writer, title string, cmp *drift.Comparison, s *drift.CompSu
 	for _, n := range cmp.Result.Notes {
 		fmt.Fprintf(w, "note: %s\n", n)
 	}
+	drill := s.Before.DrillWorstM != nil
 	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "\tworst offset [%s]\trms offset [%s]\tin spec\tsite yield\tdrill worst [%s]\t\n", lu.name, lu.name, lu.name)
+	fmt.Fprintf(tw, "\tworst offset [%s]\trms offset [%s]\twindow used\tin spec\tsite yield\t", lu.name, lu.name)
+	if drill {
+		fmt.Fprintf(tw, "drill worst [%s]\t", lu.name)
+	}
+	fmt.Fprintf(tw, "\n")
 	for _, r := range []struct {
 		name string
 		v    drift.CompState
-	}{{"before", s.Before}, {"after", s.After}} {
-		fmt.Fprintf(tw, "%s\t%.3f\t%.3f\t%d/%d\t%.4f %%\t%.3f\t\n", r.name, r.v.WorstOffsetM/lu.factor, r.v.RMSOffsetM/lu.factor,
-			r.v.InSpec, r.v.Sites, 100*r.v.SiteYield, r.v.DrillWorstM/lu.factor)
+	}{{"keep applied", s.Before}, {"recommended", s.After}} {
+		used := "-"
+		if r.v.WindowUsed != nil {
+			used = fmt.Sprintf("%.3f", *r.v.WindowUsed)
+		}
+		fmt.Fprintf(tw, "%s\t%.3f\t%.3f\t%s\t%d/%d\t%.4f %%\t", r.name, r.v.WorstOffsetM/lu.factor, r.v.RMSOffsetM/lu.factor,
+			used, r.v.InSpec, r.v.Sites, 100*r.v.SiteYield)
+		if drill {
+			fmt.Fprintf(tw, "%.3f\t", *r.v.DrillWorstM/lu.factor)
+		}
+		fmt.Fprintf(tw, "\n")
 	}
 	tw.Flush()
-	fmt.Fprintf(w, "offsets are the mean misregistration across the lines (design offset excluded); in spec and yield use the coupling curve\n")
+	if s.BelowApplied {
+		fmt.Fprintf(w, "WARNING: the recommendation predicts a LOWER site yield than keeping the applied artwork (see the notes)\n")
+	}
+	fmt.Fprintf(w, "offsets are the mean misregistration across the lines (design offset excluded, as in comp.csv); window used is (|mean − window centre| + 3σ)/half-width at the worst site; in spec and yield use each section's coupling curve\n")
+	if !drill {
+		fmt.Fprintf(w, "no drill registration is shown: a relative measurement carries none\n")
+	}
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
 	}
+}
+
+// objectiveText describes an objective for the table.
+func objectiveText(o string) string {
+	switch o {
+	case "yield":
+		return "yield, the expected site yield over every site's own allowed interval"
+	case "worst":
+		return "worst, the largest share of a site's window its mean ± 3σ uses"
+	}
+	return "rms, the rms of each site's mean offset from its window's centre over the half-width"
+}
+
+// isRelative reports whether a measured layer name is a pair ("L3-L4").
+func isRelative(layer string) bool {
+	_, _, rel := registration.SplitLayer(layer)
+	return rel
+}
+
+// lotSE returns the standard error of each measured layer's mean scale
+// terms, the lot's panel-to-panel σ over √panels (a relative lot's belongs to
+// its upper layer, which carries it in the model).
+func lotSE(lots []registration.Lot) map[string]registration.MovementSE {
+	se := map[string]registration.MovementSE{}
+	for _, l := range lots {
+		upper, _, _ := registration.SplitLayer(l.Layer)
+		n := math.Sqrt(float64(l.Panels))
+		se[upper] = registration.MovementSE{X: l.SD[registration.ScaleX] / n, Y: l.SD[registration.ScaleY] / n, Panels: l.Panels}
+	}
+	return se
+}
+
+// withApplied checks the applied artwork against the job and the measured
+// lots and returns the model of the lot as built: a measured layer's fit
+// already contains its artwork, while a layer the job models (its material
+// movement) gets a fixed contributor with its applied scale, so that "no
+// change" keeps today's artwork for every layer (to first order: the sum of
+// the scales stands for the product, a difference of about a·m, 0.04 ppm at
+// 200 ppm each).
+func withApplied(j *Job, model *registration.Model, lots []registration.Lot, applied registration.AppliedSet, src map[string]string) (*registration.Model, []string, error) {
+	if len(applied) == 0 {
+		return model, nil, nil
+	}
+	copper := map[string]bool{}
+	for _, l := range j.Stackup.Layers {
+		if l.Kind == section.Copper {
+			copper[l.Name] = true
+		}
+	}
+	measured := map[string]bool{}
+	for _, l := range lots {
+		u, lo, rel := registration.SplitLayer(l.Layer)
+		measured[u] = true
+		if rel {
+			measured[lo] = true
+		}
+	}
+	names := make([]string, 0, len(applied))
+	for l := range applied {
+		names = append(names, l)
+	}
+	slices.Sort(names)
+	out := &registration.Model{Datum: model.Datum, Contributors: slices.Clone(model.Contributors)}
+	var notes []string
+	for _, l := range names {
+		a := applied[l]
+		if !copper[l] {
+			where := "--applied"
+			if a.Row > 0 {
+				where = fmt.Sprintf("--applied: %s: row %d", src[l], a.Row)
+			}
+			return nil, nil, usageErr("%s: layer %q is not a copper layer of %s", where, l, j.File)
+		}
+		if measured[l] {
+			continue
+		}
+		c := registration.Contributor{Name: "applied artwork " + l, Layers: []string{l}}
+		c.Terms[registration.ScaleX] = registration.Term{Mean: a.ScaleX}
+		c.Terms[registration.ScaleY] = registration.Term{Mean: a.ScaleY}
+		out.Contributors = append(out.Contributors, c)
+		notes = append(notes, fmt.Sprintf("layer %s is not measured: its applied artwork (X %+.1f ppm, Y %+.1f ppm) is added to the job's movement, so the model is the lot as built", l, a.ScaleX*1e6, a.ScaleY*1e6))
+	}
+	return out, notes, nil
 }
 
 // measuredLots returns the lots of fr whose layers (both, for a pair) are

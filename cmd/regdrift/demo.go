@@ -104,8 +104,8 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 			dev = math.Max(dev, math.Abs(r.Stats.MeanAcross))
 			worst3 = math.Max(worst3, math.Abs(r.WorstDrift))
 		}
-		fmt.Fprintf(std.out, "\n%s: %s\n  map    %d of %d sites in spec; largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
-			name, dj.what, sum.InSpec, sum.Sites, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
+		fmt.Fprintf(std.out, "\n%s: %s\n  map    expected in spec %.1f of %d sites (%d with the mean in spec); largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
+			name, dj.what, sum.ExpectedInSpec, sum.Sites, sum.InSpec, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
 		// The sweep of the first section is the curve the map read.
 		if err := writeSweep(out, a, 0, lu); err != nil {
 			return err
@@ -149,9 +149,14 @@ const demoTrials = 4000
 // writeSweep writes sweep.csv and sweep.png of section i's curve in a.
 func writeSweep(dir string, a *drift.Analysis, i int, lu lengthUnit) error {
 	c := a.Curves[i]
-	_, err := writeAll(dir,
+	pic, err := sectionPicture(c.Section, c.Curve, false, lu.units())
+	if err != nil {
+		return err
+	}
+	_, err = writeAll(dir,
 		outFile{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c.Curve, lu.units()) }},
-		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, c.Section, c.Curve, lu.units()) }})
+		outFile{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, c.Section, c.Curve, lu.units()) }},
+		outFile{"section.png", pic})
 	return err
 }
 
@@ -174,7 +179,7 @@ func demoMeasured(ctx context.Context, std stdio, in *drift.Input, targets, name
 	}
 	fmt.Fprintf(std.out, "  fit    %d panel-layer fits of %s, %d mis-measured targets set aside -> %s\n",
 		len(fr.Fits), name, outliers, filepath.Join(fitOut, "fit.png"))
-	model, notes := drift.MeasuredModel(in.Model, fr.Lots, fr.File, false)
+	model, notes := drift.MeasuredModel(in.Model, fr.Fits, fr.Lots, fr.File, false)
 	cmp, err := drift.Compensate(ctx, in, model, &registration.CompSettings{DrillBudget: 3 * unit.Mil, Max: 1000e-6, Step: 5e-6}, set)
 	if err != nil {
 		return err

@@ -16,7 +16,7 @@ The commands are:
 	sweep    solve a section's cross-section over a range of lateral offsets
 	tol      layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study
 	fit      fit each layer's movement (offset, rotation, scale, skew) to measured registration targets
-	comp     recommend per-layer artwork scale compensation that minimises the broadside offsets
+	comp     recommend per-layer artwork scale compensation that maximises the coupler yield
 	yield    coupler and part yield across panels, and the error budget
 	report   write one self-contained HTML report of a job: maps, plots, tables and inputs
 	history  keep lot after lot of fits, chart each construction's movement and recommend the next lot's artwork scale
@@ -53,7 +53,7 @@ with its base foil as the trace height against its finished copper
 
 Usage:
 
-	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin|registration|variation|term:NAME] [--width PX] [--json]
+	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin|window|p|registration|variation|term:NAME] [--width PX] [--strict [--strict-p P]] [--json]
 
 Map the broadside offset and coupling drift of every coupler site on the panel.
 
@@ -61,16 +61,36 @@ Computes, for every coupler site of the job, the mean broadside offset that the
 registration error model produces there (closed form, linear in the terms), its
 standard deviation, and the coupling it gives from the section's solved
 coupling-versus-offset curve: drift against the design offset, margin to the
-spec limits, and the coupling at mean ± 3 sigma.
+spec limits, the coupling at mean ± 3 sigma, and the probability that the site
+is in spec (the closed form yield reports as p_closed).
 
-Writes map.png (heatmap of the panel), sites.csv (one row per site) and
-summary.json to the output directory, and a summary table to stdout.
+The headline is the expected number of sites in spec (the sum of those
+probabilities) beside the count whose mean offset is in spec; the table gives
+both per section with the lowest probability. The ten ringed sites, the
+"worst site" line and the worst list of summary.json are the sites least likely
+to be in spec (lowest probability, then largest |drift|). Offsets in the table
+are from the design offset; summary.json gives offset_m with each section's
+design offset included and offset_from_design_m without it.
+
+--show picks the field: drift (the default when all sites share one section),
+worst, offset, sigma, margin, p (probability in spec) or window, the share of
+the site's allowed offsets that mean ± 3 sigma reaches (1 at the window's
+edge), the default when sections differ, whose drifts in dB do not compare;
+each section's bars then have their own width, named in the legend.
+
+--strict exits with status 3 when any site is in spec with a probability below
+--strict-p (default 0.9973, the share of a normal distribution within ±3
+sigma: every site in spec at three sigma).
+
+Writes map.png (heatmap of the panel), sites.csv (one row per site, with
+p_in_spec) and summary.json to the output directory, and a summary table to
+stdout.
 
 # sweep
 
 Usage:
 
-	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [--sensitivities [--excursions LIST]] [-o DIR] [--json]
+	regdrift sweep JOB [--section NAME] [--offsets FROM:TO:STEP] [--accuracy 0.1%] [--sensitivities [--excursions LIST]] [--mesh] [-o DIR] [--json]
 
 Solve a section's cross-section over a range of lateral offsets.
 
@@ -86,7 +106,22 @@ sigma, with a tenth to spare), doubled while the coupling is still in spec at
 an end.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
-where it leaves the spec; impedances; directivity).
+where it leaves the spec; impedances; directivity), and section.png
+(section-NAME.png when the job has several sections): the cross-section at
+the design offset as the field solver meshes it, to check the input at a
+glance. Each dielectric of the solved region is shaded and labelled with its
+name, kind, thickness and εr; each copper layer with its finished thickness,
+its foil and plating steps when given, and the resin beside its traces; the
+ground planes, the two traces as their trapezoids with the foot and far-face
+widths, the solder mask, and the offset between the trace centres are drawn
+and dimensioned. The picture is to scale in both directions, except that a
+layer too thin to see is drawn at a stated least height and marked; layers
+beyond the grounds, which the solver does not see, are listed. With --mesh
+the mesh solved at the design offset is overlaid, at the level the sweep
+reached (the coarser of its Richardson pair).
+
+--json also lists every copper layer of the stackup ("copper": layer,
+finished_m, and foil_m and plating_m when given as foil plus plating).
 
 With --sensitivities every offset is also solved for the derivative of
 coupling, directivity, each line's impedance and each mode's effective
@@ -118,7 +153,10 @@ coupling meets the lower and upper spec limits, by root-finding on the solved
 coupling curve, and confirms each by a direct field solve at the root (refined
 by the secant method on direct solves until the coupling is within 0.0002 dB of
 the limit). The symmetric tolerance for the drawing is the smaller distance
-from the design offset to the two limits. The curve is the one map and yield
+from the design offset to the two limits. For two traces on one copper layer
+(an edge-coupled pair) the offset is their centre-to-centre spacing, which
+layer registration cannot move: the table and tol.json (offset_is "spacing",
+gap_m) give it as a spacing (gap) tolerance, not a registration tolerance. The curve is the one map and yield
 read (its range doubled, up to four times, while the coupling is still in spec
 at an end); the orientation study uses its allowed offsets, as yield does.
 
@@ -127,8 +165,9 @@ at an end); the orientation study uses its allowed offsets, as yield does.
 job's spec, the tolerance against the spec window re-centred on the widened
 design's own coupling (widening moves the nominal coupling, so the design
 would be re-tuned), the coupling at the design offset and each line's
-impedance, as a table and tol.png (the family of coupling curves with the spec
-band).
+impedance, as a table and tol.png (one plot per section over its own offsets:
+the design's curve in bold, the widened family light to dark by width, the
+spec band, the legend beside the plot).
 
 Also an orientation study per array: the closed-form mean site yield with
 the parts as placed and turned a quarter turn (couplers kept in place; only
@@ -138,7 +177,7 @@ the offset across the coupled lines counts).
 
 Usage:
 
-	regdrift fit TARGETS.csv [--model affine|similarity|translation] [--robust] [-o DIR] [--contributors FILE] [--json]
+	regdrift fit TARGETS.csv [--model affine|similarity|translation] [--robust] [--applied FILE|LAYER:x=S,y=S] [-o DIR] [--contributors FILE] [--json]
 
 Fit each layer's movement (offset, rotation, scale, skew) to measured registration targets.
 
@@ -171,48 +210,87 @@ target), residual-grid-LAYER.csv (the pooled field, in the format a
 contributor's residual = "..." reads) and fit.png (for each layer the targets
 on the panel with the measured displacement and the residual after the fit as
 exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
-TOML [[contributor]] blocks for a job's include = [...].
+TOML [[contributor]] blocks for a job's include = [...] (as measured, the
+applied artwork included).
+
+--applied gives the artwork scale each measured layer was built with: a CSV
+file (layer,scale_x [ppm],scale_y [ppm]) or the compact LAYER:x=+200ppm,y=+180ppm,
+repeatable; a layer not named was built at CAD size, and one the targets lack
+is bad input. fit then also prints, per layer and axis, the material movement
+(the lot mean with the artwork taken out, m = (1+ε)/(1+a) − 1), the setting
+that cancels it, 1/(1+m) − 1, and the change from the applied artwork, with
+the standard error of the lot mean (σ/√panels); "artwork" in the JSON.
 
 # comp
 
 Usage:
 
-	regdrift comp JOB [--targets TARGETS.csv] [--objective worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
+	regdrift comp JOB [--targets TARGETS.csv] [--applied FILE|LAYER:x=S,y=S] [--history DB [--construction KEY]] [--objective yield|worst|rms] [--drill-budget 2mil] [--max 600ppm] [--step 5ppm] [-o DIR] [--json]
 
-Recommend per-layer artwork scale compensation that minimises the broadside offsets.
+Recommend per-layer artwork scale compensation that maximises the coupler yield.
 
-Recommends the artwork scale compensation of each trace layer, X and Y, in ppm
-and as a factor, from the job's registration model: the compensation that
-minimises the worst broadside offset over all sites (--objective worst, a
-linear programme) or its root mean square (--objective rms, least squares).
+Recommends the artwork scale change of each trace layer, X and Y, from the
+artwork the lot was built with, and the new absolute setting (ppm and factor),
+from the job's registration model. Every site is judged against its own
+section's allowed offset interval (from the solved coupling curve), so a panel
+that mixes wide-window hybrids with narrow-window couplers weighs each by its
+window. The default objective (--objective yield) maximises the expected site
+yield, each site's closed-form probability of being in spec (the rule map and
+yield use), by BFGS over the scale differences; site yield rather than good
+parts per panel because it is exact in closed form, while a part's yield needs
+the joint distribution of its sites (yield's Monte Carlo). --objective worst
+minimises the largest share of its window a site uses, (|mean − window centre|
++ 3σ)/half-width (a linear programme); --objective rms the rms of each site's
+mean offset from its window's centre over the half-width (least squares).
 
 With --targets, the measurement file is fitted first (as regdrift fit does,
 about the job's datum) and each measured layer's lot mean and sigma replace
 what the job's contributors say about that layer: the measurement already
 holds every source that moves it. Contributors keep acting on the layers that
 were not measured (--keep-job-terms adds the measurement instead). A layer in
-the targets that the job does not have is skipped with a warning.
+the targets that the job does not have is skipped with a warning. The
+standard error of the recommendation follows from the lot size (σ/√panels of
+each measured layer's mean scale); a --step finer than it is flagged.
+
+--applied gives the artwork scale each layer of the lot was built with (a CSV
+file layer,scale_x [ppm],scale_y [ppm], or LAYER:x=+200ppm,y=+180ppm,
+repeatable). A measured scale already contains it; a layer the job models
+gets it added, so that "no change" keeps today's artwork everywhere. The
+output gives the material movement, the change and the new setting,
+(1 + applied)(1 + change) − 1.
+
+--history DB reads a history database (see regdrift history; --construction
+KEY keeps one construction's lots). Without --targets, each trace layer's
+scale movement for the next lot is the history's EWMA run-to-run estimate
+(the scale table's), with the lot-to-lot σ as its spread and the estimate's
+standard error as the recommendation's; the job's scale terms on those layers
+are set aside. With --targets, each measured layer's movement (the applied
+artwork taken out) is compared with the history's individuals-chart limits
+(centre ± 3σ̂ from the average moving range): "inside" or "OUTSIDE" in the
+notes, "history" in the JSON.
 
 Only the difference of two layers' compensation across the coupled lines moves
 a broadside offset, so the offsets fix the differences and leave a common part
-free. With --drill-budget the common part keeps every trace layer's mean
-registration to the drilled holes within the budget (per axis, at every site)
-and as small as possible; without it the common part is the smallest
-compensation. The output says which. The compensation is what the artwork is
-scaled by before the material moves: a layer whose material shrinks by ε is
-compensated fully by the factor 1/(1+ε).
+free: among equally good answers comp takes the smallest change from the
+applied artwork. --drill-budget (each trace layer's mean registration to the
+drilled holes, per axis, at every site) and --max are constraints only: a
+budget the answer already keeps changes nothing; one that binds moves the
+common part (or, failing that, the differences). comp never recommends a lower
+predicted yield than keeping the applied artwork without saying so (a
+WARNING in the table, below_applied in the JSON). A relative measurement
+(L3-L4) carries no drill registration, and none is shown.
 
-Writes comp.csv (per site, before and after), comp.png (the mean offset maps
-before and after, side by side on one colour scale), compensation.toml (the
-recommendation as [[contributor]] blocks, to include in the job and map again)
-and comp.json. Sites in spec and the predicted site yield use the section's
-solved coupling curve, as map and yield do.
+Writes comp.csv (per site, before and after; the misregistration columns
+exclude the design offset, which has its own column, as in the table),
+comp.png (the mean offset maps before and after, side by side on one colour
+scale), compensation.toml (the change as [[contributor]] blocks, to include
+in the job and map again) and comp.json.
 
 # yield
 
 Usage:
 
-	regdrift yield JOB [--trials N] [--seed S] [-o DIR] [--json]
+	regdrift yield JOB [JOB...] [--trials N] [--seed S] [--closed-form] [--turn-gain PCT] [-o DIR] [--json]
 
 Coupler and part yield across panels, and the error budget.
 
@@ -243,6 +321,34 @@ section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
 site's Monte Carlo yield as a bar), parts.png (good parts per panel), yield.csv
 (per site p_closed, p_mc and its standard error), budget.csv, budget.png and
 yield.json, and a summary table to stdout.
+
+Arrays are named by their name key (a1, a2, ... by position without one) in
+part and site names and in the per-array table. An array with product = false
+is a coupon strip: its couplers are mapped, simulated and reported per array,
+but its parts count in no part yield, good parts per panel or worst parts.
+
+The orientation study turns each array's parts a quarter turn in place and
+compares the closed-form mean site yield. It recommends a turn only when the
+gain exceeds --turn-gain (default 0.5 %: re-stepping a panel costs more than
+one coupler in two hundred) and the Monte Carlo resolution of the array's
+mean site yield (twice its standard error, bounded by the mean of the sites'
+binomial errors); it says "either" when neither orientation wins by that much.
+
+With several job files, typically thin variants that include one base (the
+stackup, sections, parts and error model) and place the arrays differently,
+yield compares them: every variant is drawn with the same seed, so variants
+that share the error model see the same panels and their differences are
+sharper than each figure's own error. One table gives per variant the site
+yield, part yield, good parts per panel (with its 5th percentile and the
+difference from the first variant) and the same per named array, then the
+orientation study of every variant; it writes variants.csv, variants.json
+(printed with --json) and variants.png (parts lost per panel, per variant and
+array). Run yield on one variant for its maps and error budget. --closed-form
+skips the Monte Carlo: site yields are then exact, and part yields and good
+parts are given as bounds from the site yields alone (the Fréchet bounds
+1 − Σ(1 − pᵢ) ≤ P(all sites good) ≤ min pᵢ, whatever the sites' correlation).
+--strict exits 3 when any variant's part yield is below 100 % (with
+--closed-form: its lower bound).
 
 # report
 

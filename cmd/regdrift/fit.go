@@ -8,6 +8,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"text/tabwriter"
 
@@ -32,6 +33,7 @@ type fitFlags struct {
 	width        int
 	origin       string
 	flipY        bool
+	applied      []string
 }
 
 // flags declares the command's flags on fs.
@@ -47,6 +49,7 @@ func (f *fitFlags) flags(fs *pflag.FlagSet) {
 	fs.IntVar(&f.width, "width", 2400, "width of fit.png in pixels")
 	fs.StringVar(&f.origin, "origin", "centre", "where the targets' x,y origin lies on the panel: centre, lower-left, upper-left (these two need --panel) or X,Y in the panel frame")
 	fs.BoolVar(&f.flipY, "flip-y", false, "the targets' y axis points down the panel: y and dy change sign")
+	fs.StringArrayVar(&f.applied, "applied", nil, appliedHelp)
 }
 
 // frame reads --origin and --flip-y; size is --panel's (zero if not given).
@@ -188,9 +191,28 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	if f.applied != nil && args[0] == "-" && slices.Contains(f.applied, "-") {
+		return usageErr("the targets and --applied cannot both be standard input")
+	}
 	r, err := runFitFileIn(args[0], std.in, set, f.grid, fr, size)
 	if err != nil {
 		return err
+	}
+	if len(f.applied) > 0 {
+		applied, src, err := parseApplied(f.applied, std)
+		if err != nil {
+			return err
+		}
+		names := make([]string, 0, len(src))
+		for _, s := range src {
+			if !slices.Contains(names, s) {
+				names = append(names, s)
+			}
+		}
+		slices.Sort(names)
+		if _, err := r.SetApplied(applied, strings.Join(names, ", ")); err != nil {
+			return badInput(fmt.Errorf("--applied: %w", err))
+		}
 	}
 	paths, err := r.writeFiles(f.out, f.contributors, size, f.width, lu)
 	if err != nil {
@@ -312,6 +334,30 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 		fmt.Fprintf(tw, "\n")
 	}
 	tw.Flush()
+	if len(r.Differences) > 0 {
+		fmt.Fprintf(w, "\nper-panel differences of layers measured on the same panels (mean ± sigma; the drill error both share cancels):\n")
+		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+		fmt.Fprintf(tw, "layers\tpanels\t%s\n", termHeader(lu))
+		for _, l := range r.Differences {
+			fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
+			for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+				u, kind := termUnit(k, lu)
+				if !l.Model.Estimates(k) {
+					fmt.Fprintf(tw, "-\t")
+					continue
+				}
+				fmt.Fprintf(tw, "%.2f ± %.2f\t", unit.In(l.Mean[k], kind, u), unit.In(l.SD[k], kind, u))
+			}
+			fmt.Fprintf(tw, "\n")
+		}
+		tw.Flush()
+	}
+	for _, n := range r.Joint.Notes {
+		fmt.Fprintf(w, "note: %s\n", n)
+	}
+	if r.Applied != nil {
+		printArtwork(w, r.Artworks())
+	}
 	n := 0
 	for _, f := range r.Fits {
 		n += len(f.Outliers)
@@ -319,4 +365,24 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 	if n > 0 {
 		fmt.Fprintf(w, "%d target(s) rejected as mis-measured (beyond %.0f sigma of a robust fit); see residuals.csv\n", n, registration.DefaultOutlierLimit)
 	}
+}
+
+// printArtwork prints each lot layer's applied artwork, its material
+// movement and the setting that cancels it.
+func printArtwork(w io.Writer, arts []fitreport.Artwork) {
+	fmt.Fprintf(w, "\nartwork (the movement is the lot mean with the applied artwork taken out; the setting cancels it):\n")
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "layer\taxis\tapplied [ppm]\tmeasured [ppm]\tmovement [ppm]\tsetting [ppm]\tfactor\tchange [ppm]\tstd error [ppm]\t\n")
+	for _, a := range arts {
+		for i, ax := range []string{"X", "Y"} {
+			se := "-"
+			if a.SE[i] > 0 {
+				se = fmt.Sprintf("±%.2f", a.SE[i]*1e6)
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%+.2f\t%+.2f\t%+.2f\t%+.2f\t%.9f\t%+.2f\t%s\t\n", a.Layer, ax, a.Applied[i]*1e6, a.Measured[i]*1e6,
+				a.Movement[i]*1e6, a.Setting[i]*1e6, 1+a.Setting[i], a.Change[i]*1e6, se)
+		}
+	}
+	tw.Flush()
+	fmt.Fprintf(w, "the setting cancels each layer's own movement; comp weighs the layers against each other and the coupling windows\n")
 }

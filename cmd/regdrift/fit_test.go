@@ -87,31 +87,53 @@ func TestFitCommand(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The sample's L3 and L4 are measured against the drilled holes on the
+	// same panels, so they are written jointly: a table of means per layer
+	// and the spread as components over both layers. Read back, each layer
+	// against the holes has its lot's sigma and L3−L4 the sigma of the
+	// per-panel differences.
 	lots := map[string]fitreport.LotJSON{}
 	for _, l := range s.Lot {
 		lots[l.Layer] = l
 	}
+	if len(s.Differences) != 1 || s.Differences[0].Layer != "L3-L4" {
+		t.Fatalf("differences %+v, want one for L3-L4", s.Differences)
+	}
+	lots["L3-L4"] = s.Differences[0]
 	found := 0
 	for _, c := range j.Model.Contributors {
-		if !strings.HasPrefix(c.Name, "measured ") {
-			continue
-		}
-		found++
-		l := lots[c.Layers[0]]
-		mean := l.Mean
-		sd := l.Sigma
-		for k := range mean {
-			tm := c.Terms[k]
-			if math.Abs(tm.Mean-*mean[k]) > 1e-5*math.Abs(*mean[k]) || math.Abs(tm.Spread-*sd[k]) > 1e-5*math.Abs(*sd[k]) {
-				t.Errorf("%s %s: read back %g ± %g, fitted %g ± %g", c.Name, registration.TermKind(k), tm.Mean, tm.Spread, *mean[k], *sd[k])
-			}
-			if tm.Dist != registration.Normal {
-				t.Errorf("%s %s: distribution %v, want normal", c.Name, registration.TermKind(k), tm.Dist)
-			}
+		if strings.HasPrefix(c.Name, "measured ") && c.Weights == nil {
+			found++
 		}
 	}
 	if found != 2 {
-		t.Errorf("%d measured contributors in the job, want 2", found)
+		t.Errorf("%d measured contributors of means in the job, want 2", found)
+	}
+	for _, pair := range [][2]string{{"L3", "none"}, {"L4", "none"}, {"L3", "L4"}} {
+		l := lots[pair[0]]
+		if pair[1] == "L4" {
+			l = lots["L3-L4"]
+		}
+		// The job keeps its own contributors too; collapse the measured ones.
+		m := &registration.Model{Datum: j.Model.Datum}
+		for _, c := range j.Model.Contributors {
+			if strings.HasPrefix(c.Name, "measured ") {
+				m.Contributors = append(m.Contributors, c)
+			}
+		}
+		r := m.Relative(pair[0], pair[1])
+		for k := range l.Mean {
+			if l.Sigma[k] == nil {
+				continue
+			}
+			mean, sd := *l.Mean[k], *l.Sigma[k]
+			// Six digits written: 1e-5 leaves room for the difference of two
+			// rounded means and weights.
+			if math.Abs(r.Mean[k]-mean) > 1e-5*math.Abs(*lots["L3"].Mean[k])+1e-5*math.Abs(*lots["L4"].Mean[k]) ||
+				math.Abs(math.Sqrt(r.Var[k])-sd) > 1e-5*sd {
+				t.Errorf("%s−%s %s: read back %g ± %g, fitted %g ± %g", pair[0], pair[1], registration.TermKind(k), r.Mean[k], math.Sqrt(r.Var[k]), mean, sd)
+			}
+		}
 	}
 }
 
@@ -202,5 +224,61 @@ func TestFitRelativeLayer(t *testing.T) {
 	}
 	if !strings.Contains(string(toml), "measured relative to L4") || !strings.Contains(string(toml), `layers = ["L3"]`) {
 		t.Errorf("contributors file:\n%s", toml)
+	}
+}
+
+// TestFitApplied: a lot built with +200 ppm that measured −10 ppm (three
+// panels at −9, −10 and −11 ppm, exact targets) moved
+// (1 − 10 ppm)/(1 + 200 ppm) − 1 = −209.958 ppm; the setting that cancels it
+// is 1/(1 + m) − 1 = +210.002 ppm, a change of 1/(1 − 10 ppm) − 1 =
+// +10.0001 ppm from the applied artwork, with standard error 1 ppm/√3
+// (calculated here; the README's history section works the same example).
+func TestFitApplied(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n")
+	pts := [][2]float64{{-8, -10}, {8, -10}, {8, 10}, {-8, 10}, {0, -10}, {0, 10}, {-8, 0}, {8, 0}}
+	for p, eps := range []float64{-9e-6, -10e-6, -11e-6} {
+		for i, pt := range pts {
+			fmt.Fprintf(&b, "P%d,L3,T%d,%g,%g,%.9f,%.9f\n", p+1, i+1, pt[0], pt[1], eps*pt[0]*1000, eps*pt[1]*1000)
+		}
+	}
+	targets := filepath.Join(t.TempDir(), "targets.csv")
+	if err := os.WriteFile(targets, []byte(b.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errs := runPlain(t, "", "fit", targets, "-o", t.TempDir(), "--json", "--applied", "L3:x=+200ppm,y=+200ppm")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var s fitreport.Summary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatal(err)
+	}
+	if len(s.Artwork) != 1 {
+		t.Fatalf("artwork %+v", s.Artwork)
+	}
+	a := s.Artwork[0]
+	// The fit of exact targets is exact to rounding: 1e-6 ppm.
+	for _, c := range []struct {
+		name      string
+		got, want float64
+	}{{"movement", a.MovementXPPM, ((1-10e-6)/(1+200e-6) - 1) * 1e6}, {"setting", a.SettingXPPM, ((1+200e-6)/(1-10e-6) - 1) * 1e6},
+		{"change", a.ChangeXPPM, (1/(1-10e-6) - 1) * 1e6}, {"se", a.SEXPPM, 1 / math.Sqrt(3)}, {"applied", a.AppliedYPPM, 200}} {
+		if math.Abs(c.got-c.want) > 1e-6 {
+			t.Errorf("%s %.6f ppm, want %.6f", c.name, c.got, c.want)
+		}
+	}
+	if math.Abs(a.SettingXPPM-210.002) > 0.001 || math.Abs(a.ChangeXPPM-10.000) > 0.001 {
+		t.Errorf("setting %+.4f, change %+.4f; the README says +210.00 and +10.00", a.SettingXPPM, a.ChangeXPPM)
+	}
+	code, out, _ = runPlain(t, "", "fit", targets, "-o", t.TempDir(), "--applied", "L3:x=+200ppm,y=+200ppm")
+	if code != 0 || !strings.Contains(out, "+210.00") || !strings.Contains(out, "movement") {
+		t.Errorf("exit %d, table lacks the artwork:\n%s", code, out)
+	}
+	applied := filepath.Join(t.TempDir(), "applied.csv")
+	os.WriteFile(applied, []byte("layer,scale_x [ppm],scale_y [ppm]\nL3,+200,+200\nL5,+100,+100\n"), 0o644)
+	code, _, errs = runPlain(t, "", "fit", targets, "-o", filepath.Join(t.TempDir(), "out"), "--applied", applied)
+	if code != 2 || !strings.Contains(errs, `row 3, column "layer"`) || !strings.Contains(errs, `"L5"`) {
+		t.Errorf("applied layer the targets lack: exit %d, %s", code, errs)
 	}
 }

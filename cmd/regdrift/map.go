@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 	"io"
-	"math"
 	"slices"
 	"strings"
 	"text/tabwriter"
@@ -17,18 +16,26 @@ import (
 
 type mapFlags struct {
 	outputFlags
-	show   string
-	width  int
-	strict bool
-	solver solverFlags
+	show    string
+	width   int
+	strict  bool
+	strictP float64
+	solver  solverFlags
 }
+
+// defaultStrictP is the default --strict-p: the probability that a normal
+// variable lies within ±3σ of its mean, 2Φ(3) − 1 = 0.9973 (Abramowitz and
+// Stegun, Handbook of Mathematical Functions, table 26.1), so that by default
+// --strict asks every site to be in spec at three sigma.
+const defaultStrictP = 0.9973
 
 // flags declares the command's flags on fs.
 func (f *mapFlags) flags(fs *pflag.FlagSet) {
 	f.outputFlags.add(fs)
-	fs.StringVar(&f.show, "show", "drift", "quantity drawn: drift (at the mean offset, all sources), worst (worst drift within ±3σ), offset, sigma, margin, registration or variation (the drift of one group), or term:NAME (of one [[variation]] term)")
+	fs.StringVar(&f.show, "show", "", "quantity drawn: drift (at the mean offset, all sources), worst (worst drift within ±3σ), offset, sigma, margin, window (share of the allowed offsets mean ± 3σ reaches), p (probability in spec), registration or variation (the drift of one group), or term:NAME (of one [[variation]] term); default drift, window when sections differ")
 	fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
-	addStrict(fs, &f.strict, "any site is out of spec")
+	addStrict(fs, &f.strict, "any site's probability of being in spec is below --strict-p")
+	fs.Float64Var(&f.strictP, "strict-p", defaultStrictP, "with --strict, the lowest probability of being in spec a site may have (0.9973: in spec at ±3σ)")
 	f.solver.add(fs)
 }
 
@@ -41,8 +48,11 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	termName, isTerm := strings.CutPrefix(f.show, "term:")
-	if !isTerm && !slices.Contains(figure.Shows, f.show) {
-		return usageErr("--show: want drift, worst, offset, sigma, margin, registration, variation or term:NAME, not %q", f.show)
+	if f.show != "" && !isTerm && !slices.Contains(figure.Shows, f.show) {
+		return usageErr("--show: want one of %s, or term:NAME, not %q", strings.Join(figure.Shows, ", "), f.show)
+	}
+	if !(f.strictP > 0 && f.strictP <= 1) {
+		return usageErr("--strict-p: want a probability above 0 and at most 1, not %g", f.strictP)
 	}
 	if f.width < 300 || f.width > 20000 {
 		return usageErr("--width: want 300 to 20000 pixels, not %d", f.width)
@@ -73,13 +83,30 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	if err := report(std, f.json, sum, func() { printMap(std.out, a, sum, lu, paths) }); err != nil {
+	if err := report(std, f.json, sum, func() { printMap(std.out, sum, lu, paths) }); err != nil {
 		return err
 	}
-	if f.strict && sum.InSpec < sum.Sites {
-		return fmt.Errorf("%w: %d of %d sites outside the coupling spec", errOutOfSpec, sum.Sites-sum.InSpec, sum.Sites)
+	if f.strict {
+		return strictMap(a, f.strictP)
 	}
 	return nil
+}
+
+// strictMap returns errOutOfSpec when any site of a is less likely than pMin
+// to be in spec, naming how many and the least likely.
+func strictMap(a *drift.Analysis, pMin float64) error {
+	n := 0
+	for i := range a.Sites {
+		if a.Sites[i].PInSpec < pMin {
+			n++
+		}
+	}
+	if n == 0 {
+		return nil
+	}
+	w := &a.Sites[a.Worst(1)[0]]
+	return fmt.Errorf("%w: %d of %d sites are in spec with a probability below %.4g (lowest %s, %.4f)",
+		errOutOfSpec, n, len(a.Sites), pMin, w.Site.Name, w.PInSpec)
 }
 
 // writeMap writes the map's files (sites.csv, summary.json, map.png) into dir.
@@ -94,33 +121,23 @@ func writeMap(dir string, a *drift.Analysis, o figure.MapOptions, lu lengthUnit)
 
 func writeJSON(w io.Writer, v any) error { return drift.WriteJSON(w, v) }
 
-func printMap(w io.Writer, a *drift.Analysis, s *drift.MapSummary, lu lengthUnit, paths []string) {
+func printMap(w io.Writer, s *drift.MapSummary, lu lengthUnit, paths []string) {
 	fmt.Fprintf(w, "%s\n", s.Title)
+	fmt.Fprintf(w, "expected in spec %.1f of %d sites (%d with the mean offset in spec)\n", s.ExpectedInSpec, s.Sites, s.InSpec)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "section\tsites\tin spec\tnominal [dB]\tspec [dB]\tworst offset [%s]\tworst drift [dB]\n", lu.name)
+	fmt.Fprintf(tw, "section\tsites\texpected in spec\tmean in spec\tlowest P\tnominal [dB]\tspec [dB]\tworst offset from design [%s]\tworst drift [dB]\n", lu.name)
 	for _, ss := range s.Sections {
-		var wo, wd float64
-		for k := range a.Sites {
-			r := &a.Sites[k]
-			if a.In.Sections[r.Section].Name != ss.Name {
-				continue
-			}
-			if d := math.Abs(r.Offset - ss.DesignOffsetM); d > math.Abs(wo) {
-				wo = r.Offset - ss.DesignOffsetM
-			}
-			if math.Abs(r.Drift) > math.Abs(wd) {
-				wd = r.Drift
-			}
-		}
-		fmt.Fprintf(tw, "%s\t%d\t%d (%.1f %%)\t%.3f\t%.2f ± %.2f\t%+.3f\t%+.4f\n", ss.Name, ss.Sites, ss.InSpec,
-			100*float64(ss.InSpec)/float64(max(ss.Sites, 1)), ss.NominalCoupling, ss.SpecCouplingDB, ss.SpecToleranceDB,
-			wo/lu.factor, wd)
+		n := float64(max(ss.Sites, 1))
+		fmt.Fprintf(tw, "%s\t%d\t%.1f (%.2f %%)\t%d (%.1f %%)\t%.4f\t%.3f\t%.2f ± %.2f\t%+.3f\t%+.4f\n", ss.Name, ss.Sites,
+			ss.ExpectedInSpec, 100*ss.ExpectedInSpec/n, ss.InSpec, 100*float64(ss.InSpec)/n, ss.LowestPInSpec,
+			ss.NominalCoupling, ss.SpecCouplingDB, ss.SpecToleranceDB, ss.WorstOffsetFromDesignM/lu.factor, ss.WorstDriftDB)
 	}
 	tw.Flush()
 	if len(s.Worst) > 0 {
 		ws := s.Worst[0]
-		fmt.Fprintf(w, "worst site: %s at (%.2f, %.2f) %s: offset %+.3f %s ± %.3f (1σ), coupling %.3f dB, drift %+.4f dB, margin %.3f dB\n",
-			ws.Name, ws.XM/lu.pfac, ws.YM/lu.pfac, lu.panel, ws.OffsetM/lu.factor, lu.name, ws.SigmaM/lu.factor, ws.CouplingDB, ws.DriftDB, ws.MarginDB)
+		fmt.Fprintf(w, "worst site: %s (%s) at (%.2f, %.2f) %s: P(in spec) %.4f, offset from design %+.3f %s ± %.3f (1σ), coupling %.3f dB, drift %+.4f dB, margin %.3f dB\n",
+			ws.Name, ws.Section, ws.XM/lu.pfac, ws.YM/lu.pfac, lu.panel, ws.PInSpec, ws.OffsetFromDesignM/lu.factor, lu.name, ws.SigmaM/lu.factor,
+			ws.CouplingDB, ws.DriftDB, ws.MarginDB)
 		printSources(w, ws.DriftSources) // variation.go
 		printLinearity(w, s.Linearity)
 	}

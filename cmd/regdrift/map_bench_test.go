@@ -10,7 +10,12 @@ import (
 
 // bigJob returns the same-core demo stackup and error model with 100 x 50
 // parts of two couplers each: 10,000 sites on an 18 x 24 in panel.
-func bigJob(b testing.TB) string {
+func bigJob(b testing.TB) string { return bigJobOf(b, false) }
+
+// bigJobOf returns bigJob; with mixed, coupler B of each part is an offset
+// coupler of a second section (the same traces 12 mil apart), so that the
+// map draws the share of each site's window (two kinds per pixel).
+func bigJobOf(b testing.TB, mixed bool) string {
 	src, err := os.ReadFile("../../samples/same-core.toml")
 	if err != nil {
 		b.Fatal(err)
@@ -18,12 +23,29 @@ func bigJob(b testing.TB) string {
 	s := string(src)
 	i := strings.Index(s, "[[part]]")
 	k := strings.Index(s, "[[contributor]]")
-	parts := `[[part]]
+	secB, extra := "hybrid", ""
+	if mixed {
+		secB = "offset"
+		extra = `[[section]]
+name      = "offset"
+traces    = [
+  { layer = "L3", width = "14 mil", etch = "0.6 mil" },
+  { layer = "L4", width = "14 mil", etch = "0.6 mil" },
+]
+grounds   = ["L2", "L5"]
+frequency = "2.45 GHz"
+length    = "quarter-wave"
+spec      = { coupling = "-6.0 dB", tolerance = "1.5 dB" }
+design_offset = "12 mil"
+
+`
+	}
+	parts := extra + `[[part]]
 name     = "tiny"
 size     = ["0.15 in", "0.40 in"]
 couplers = [
   { name = "A", section = "hybrid", at = ["0.04 in", "0.2 in"], angle = "90 deg" },
-  { name = "B", section = "hybrid", at = ["0.11 in", "0.2 in"], angle = "90 deg" },
+  { name = "B", section = "` + secB + `", at = ["0.11 in", "0.2 in"], angle = "90 deg" },
 ]
 
 [[array]]
@@ -44,9 +66,14 @@ center = ["0 in", "0 in"]
 // BenchmarkMap10k times "regdrift map" end to end on 10,000 sites with a
 // 3000-pixel heatmap, the field solve cached: job parsing, site expansion,
 // closed-form statistics, the cached curve, sites.csv, summary.json and the
-// PNG, written to disk.
+// PNG, written to disk. The mixed case draws the window field of two
+// sections.
 func BenchmarkMap10k(b *testing.B) {
-	job := bigJob(b)
+	b.Run("one section", func(b *testing.B) { benchMap(b, bigJobOf(b, false)) })
+	b.Run("two sections", func(b *testing.B) { benchMap(b, bigJobOf(b, true)) })
+}
+
+func benchMap(b *testing.B, job string) {
 	cache := b.TempDir()
 	out := b.TempDir()
 	args := []string{"map", job, "-o", out, "--width", "3000", "--cache-dir", cache}

@@ -208,7 +208,7 @@ func cmplxAbs(z complex128) float64 { return math.Hypot(real(z), imag(z)) }
 
 // TestMapJSON checks the JSON summary against sites.csv of the same run:
 // the counts, the offset and drift ranges and their root mean squares, and
-// the worst sites in order of margin.
+// the worst sites in order of their probability of being in spec.
 func TestMapJSON(t *testing.T) {
 	dir := t.TempDir()
 	code, stdout, stderr := run(t, "map", "testdata/small.toml", "-o", dir, "--width", "600", "--json", "--units", "um")
@@ -224,6 +224,7 @@ func TestMapJSON(t *testing.T) {
 			Name     string  `json:"name"`
 			XM       float64 `json:"x_m"`
 			MarginDB float64 `json:"margin_db"`
+			PInSpec  float64 `json:"p_in_spec"`
 		} `json:"worst"`
 	}
 	if err := json.Unmarshal([]byte(stdout), &s); err != nil {
@@ -280,8 +281,8 @@ func TestMapJSON(t *testing.T) {
 		if math.Abs(w.MarginDB-margin[w.Name]) > dbTol {
 			t.Errorf("worst %d %s: margin %.5f dB, sites.csv %.5f", k+1, w.Name, w.MarginDB, margin[w.Name])
 		}
-		if k > 0 && w.MarginDB < s.Worst[k-1].MarginDB {
-			t.Errorf("worst sites out of order at %d: %.5f after %.5f dB", k+1, w.MarginDB, s.Worst[k-1].MarginDB)
+		if k > 0 && w.PInSpec < s.Worst[k-1].PInSpec {
+			t.Errorf("worst sites out of order at %d: P %.6f after %.6f", k+1, w.PInSpec, s.Worst[k-1].PInSpec)
 		}
 	}
 }

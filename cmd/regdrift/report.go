@@ -73,7 +73,7 @@ func (f *reportFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	r := &reportRun{std: std, job: j, lu: lu, set: set, trials: f.trials, seed: f.seed, width: f.width,
+	r := &reportRun{std: progressStd(std, f.json), job: j, lu: lu, set: set, trials: f.trials, seed: f.seed, width: f.width,
 		targets: f.targets, date: time.Now().UTC()}
 	paths, err := r.write(ctx, f.out)
 	if err != nil {
@@ -144,7 +144,9 @@ type reportSummary struct {
 	Accuracy float64 `json:"solver_accuracy"`
 	Sites    int     `json:"sites"`
 	InSpec   int     `json:"in_spec"`
-	Parts    int     `json:"parts_per_panel"`
+	// ExpectedInSpec is the sum over sites of P(in spec), the map's headline.
+	ExpectedInSpec float64 `json:"expected_in_spec"`
+	Parts          int     `json:"parts_per_panel"`
 	// GoodParts is the Monte Carlo's expected number of parts in spec per panel.
 	GoodParts     float64 `json:"good_parts_per_panel"`
 	PartYield     float64 `json:"part_yield_mean"`
@@ -155,7 +157,10 @@ type reportSummary struct {
 	WorstSecYield float64 `json:"worst_section_site_yield"`
 	WorstSite     string  `json:"worst_site"`
 	WorstMarginDB float64 `json:"worst_site_margin_db"`
-	Sections      int     `json:"report_sections"`
+	// WorstSiteP is the worst site's probability of being in spec: the map
+	// ranks sites by it.
+	WorstSiteP float64 `json:"worst_site_p_in_spec"`
+	Sections   int     `json:"report_sections"`
 }
 
 // reportSections are the report's sections in the order a reader asks;
@@ -179,7 +184,11 @@ var reportSections = []func(*reportRun) (rep.Section, bool, error){
 func (r *reportRun) build(ctx context.Context) (*rep.Document, error) {
 	j := r.job
 	in := input(j)
-	a, err := drift.Analyse(ctx, in, r.set)
+	var a *drift.Analysis
+	err := step(r.std, "field solves", func() (err error) {
+		a, err = drift.Analyse(ctx, in, r.set)
+		return err
+	})
 	if err != nil {
 		return nil, solveErr(j, err)
 	}
@@ -195,7 +204,10 @@ func (r *reportRun) build(ctx context.Context) (*rep.Document, error) {
 		return nil, err
 	}
 	r.yield = a.YieldSummary(r.mc, r.seed)
-	if r.tol, err = drift.Tol(ctx, in, drift.TolStudy{}, r.set); err != nil {
+	if err = step(r.std, "tolerance search", func() (err error) {
+		r.tol, err = drift.Tol(ctx, in, drift.TolStudy{}, r.set)
+		return err
+	}); err != nil {
 		return nil, solveErr(j, err)
 	}
 	if r.targets != "" {
@@ -236,7 +248,7 @@ func (r *reportRun) compensate(ctx context.Context) error {
 	}
 	r.fit = fr
 	lots, fitted := measuredLots(r.std, "report", j, fr)
-	model, notes := drift.MeasuredModel(j.Model, lots, fr.File, false)
+	model, notes := drift.MeasuredModel(j.Model, fr.Fits, lots, fr.File, false)
 	cs := registration.CompSettings{Max: 1000e-6}
 	cmp, err := drift.Compensate(ctx, input(j), model, &cs, r.set)
 	var ce *drift.CompError
@@ -266,18 +278,19 @@ func (r *reportRun) summary() *reportSummary {
 		}
 	}
 	if len(r.mapSum.Worst) > 0 {
-		s.WorstSite, s.WorstMarginDB = r.mapSum.Worst[0].Name, r.mapSum.Worst[0].MarginDB
+		s.WorstSite, s.WorstMarginDB, s.WorstSiteP = r.mapSum.Worst[0].Name, r.mapSum.Worst[0].MarginDB, r.mapSum.Worst[0].PInSpec
 	}
+	s.ExpectedInSpec = r.mapSum.ExpectedInSpec
 	return s
 }
 
 func printReport(w io.Writer, s *reportSummary, paths []string) {
 	fmt.Fprintf(w, "%s\n", s.Title)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "sites in spec\t%d of %d\n", s.InSpec, s.Sites)
+	fmt.Fprintf(tw, "expected sites in spec\t%.1f of %d (%d with the mean offset in spec)\n", s.ExpectedInSpec, s.Sites, s.InSpec)
 	fmt.Fprintf(tw, "good parts per panel\t%.2f of %d (%d panels, seed %d)\n", s.GoodParts, s.Parts, s.Trials, s.Seed)
 	fmt.Fprintf(tw, "worst section\t%s (site yield %.4f %%)\n", s.WorstSection, 100*s.WorstSecYield)
-	fmt.Fprintf(tw, "worst site\t%s (margin %.4f dB)\n", s.WorstSite, s.WorstMarginDB)
+	fmt.Fprintf(tw, "least likely site\t%s (P(in spec) %.4f, margin %.4f dB)\n", s.WorstSite, s.WorstSiteP, s.WorstMarginDB)
 	tw.Flush()
 	for _, p := range paths {
 		fmt.Fprintf(w, "wrote %s\n", p)
@@ -304,9 +317,11 @@ func (r *reportRun) summarySection() (rep.Section, bool, error) {
 		{Label: "solver accuracy (target error in C)", Value: fixed(100*s.Accuracy, 3), Unit: "%", Key: "solver_accuracy"},
 		{Label: "expected parts in spec per panel", Value: fixed(s.GoodParts, 2), Unit: "of " + strconv.Itoa(s.Parts) + " parts",
 			Note: fmt.Sprintf("part yield %s %%, Monte Carlo of %d panels", pct(s.PartYield, 3), s.Trials), Key: "good_parts_per_panel"},
+		{Label: "expected sites in spec", Value: fixed(s.ExpectedInSpec, 1), Unit: "of " + strconv.Itoa(s.Sites) + " sites",
+			Note: "the sum of each site's probability of being in spec", Key: "expected_in_spec"},
 		{Label: "sites in spec (mean offset)", Value: strconv.Itoa(s.InSpec), Unit: "of " + strconv.Itoa(s.Sites) + " sites", Key: "in_spec"},
 		{Label: "worst section", Value: s.WorstSection, Note: "site yield " + pct(s.WorstSecYield, 3) + " %", Key: "worst_section"},
-		{Label: "worst site", Value: s.WorstSite, Note: "margin " + fixed(s.WorstMarginDB, 4) + " dB", Key: "worst_site"},
+		{Label: "least likely site", Value: s.WorstSite, Note: "P(in spec) " + fixed(s.WorstSiteP, 4) + ", margin " + fixed(s.WorstMarginDB, 4) + " dB", Key: "worst_site"},
 	}
 	cols := []rep.Column{{Label: "section"}, {Label: "sites", Unit: "sites", Numeric: true}, {Label: "in spec", Unit: "sites", Numeric: true},
 		{Label: "design coupling", Unit: "dB", Numeric: true}, {Label: "spec", Unit: "dB", Numeric: true}, {Label: "mean site yield", Unit: "%", Numeric: true}}
@@ -395,9 +410,9 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 		return rep.Section{}, false, err
 	}
 	pm := &rep.PanelMap{PNG: b.Bytes(), Transform: rep.ViewTransform(v), Fields: r.siteFields(),
-		Alt: fmt.Sprintf("Panel map of the coupling drift at the mean offset of each of %d sites, with the ten sites of least margin ringed and numbered", len(rows)),
+		Alt: fmt.Sprintf("Panel map of the coupling drift at the mean offset of each of %d sites, with the ten sites least likely to be in spec ringed and numbered", len(rows)),
 		Caption: "Coupling drift at each site's mean offset (the field: over each array its most common coupler direction); each site is a bar along its lines; " +
-			"the ten sites of least margin are ringed and numbered as in the table below. Point at a site to see its values, click to mark it, or find it by name."}
+			"the ten sites least likely to be in spec are ringed and numbered as in the table below. Point at a site to see its values, click to mark it, or find it by name."}
 	for k, row := range rows {
 		s := &r.a.Sites[k]
 		pm.Sites = append(pm.Sites, rep.Site{Name: cell(row, "site"), At: render.Point{X: s.Site.Pos.X, Y: s.Site.Pos.Y}, Values: []string{
@@ -427,8 +442,8 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 			cell(row, "margin [dB]"), pct(r.a.Sites[k].PInSpec, 4)})
 	}
 	return rep.Section{ID: "panel-map", Title: "Panel map", Blocks: []rep.Block{pm,
-		&rep.Table{Caption: "The ten sites of least margin (numbered on the map)", Columns: cols, Rows: worst},
-		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines, design offset included, ± one standard deviation; %d of %d sites have their mean offset in spec.", r.mapSum.InSpec, r.mapSum.Sites)),
+		&rep.Table{Caption: "The ten sites least likely to be in spec (numbered on the map)", Columns: cols, Rows: worst},
+		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines, design offset included, ± one standard deviation; expected in spec %.1f of %d sites (%d have their mean offset in spec).", r.mapSum.ExpectedInSpec, r.mapSum.Sites, r.mapSum.InSpec)),
 	}}, true, nil
 }
 
@@ -572,7 +587,7 @@ func (r *reportRun) compSection() (rep.Section, bool, error) {
 		return []string{name, fixed(c.WorstOffsetM/r.lu.factor, 3), fixed(c.RMSOffsetM/r.lu.factor, 3), strconv.Itoa(c.InSpec) + " of " + strconv.Itoa(c.Sites), pct(c.SiteYield, 4)}
 	}
 	blocks := []rep.Block{
-		rep.Paragraph(fmt.Sprintf("Artwork scale compensation minimising the %s offset; the common part: %s.", s.Objective, s.Common)),
+		rep.Paragraph(fmt.Sprintf("Artwork scale compensation; objective: %s; the common part: %s.", objectiveText(s.Objective), s.Common)),
 		&rep.Figure{PNG: b, Alt: "Panel maps of the offsets before and after the recommended compensation", Caption: "Offsets across the lines before (left) and after (right) compensation."},
 		&rep.Table{Caption: "Recommended compensation per layer", Columns: cols, Rows: rows, RowHeaders: true},
 		&rep.Table{Caption: "Before and after", Columns: state, Rows: [][]string{st("before", s.Before), st("after", s.After)}, RowHeaders: true},
@@ -587,7 +602,7 @@ func (r *reportRun) compSection() (rep.Section, bool, error) {
 // the same).
 var reportAssumptions = []string{
 	"Quasi-static (TEM-like) fields, lossless lines, smooth copper, ideal infinite ground planes for stripline, vertical stacks of flat homogeneous dielectrics, traces as trapezoids standing on the core face they were etched on with the rest of their copper slab filled by the neighbouring prepreg's resin.",
-	"Error terms are independent between contributors.",
+	"Error terms are independent between contributors; layers measured together on the same panels are carried as weighted components of their joint movement.",
 }
 
 var reportCautions = []string{

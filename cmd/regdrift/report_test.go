@@ -170,6 +170,8 @@ func TestReport(t *testing.T) {
 		{"solver accuracy", h["solver_accuracy"].value, 100 * num("solver_accuracy")},
 		{"worst section yield", numberIn(h["worst_section"].note, "site yield "), 100 * num("worst_section_site_yield")},
 		{"worst site margin", numberIn(h["worst_site"].note, "margin "), num("worst_site_margin_db")},
+		{"worst site probability", numberIn(h["worst_site"].note, "P(in spec) "), num("worst_site_p_in_spec")},
+		{"expected in spec", h["expected_in_spec"].value, num("expected_in_spec")},
 	} {
 		if !printedEqual(c.text, c.want) {
 			t.Errorf("headline %s shows %q, the JSON summary %g", c.name, c.text, c.want)
@@ -194,7 +196,7 @@ func TestReport(t *testing.T) {
 	}
 	ms, ys := jsonOf(t, filepath.Join(mapDir, "summary.json")), jsonOf(t, filepath.Join(yieldDir, "yield.json"))
 	gp, _ := ys["good_parts_per_panel"].(map[string]any)
-	if sum["in_spec"] != ms["in_spec"] || sum["sites"] != ms["sites"] || sum["good_parts_per_panel"] != gp["mean"] || sum["part_yield_mean"] != ys["part_yield_mean"] {
+	if sum["in_spec"] != ms["in_spec"] || sum["expected_in_spec"] != ms["expected_in_spec"] || sum["sites"] != ms["sites"] || sum["good_parts_per_panel"] != gp["mean"] || sum["part_yield_mean"] != ys["part_yield_mean"] {
 		t.Errorf("report says %v in spec of %v, %v good parts, part yield %v; map %v of %v, yield %v, %v",
 			sum["in_spec"], sum["sites"], sum["good_parts_per_panel"], sum["part_yield_mean"], ms["in_spec"], ms["sites"], gp["mean"], ys["part_yield_mean"])
 	}

@@ -1,11 +1,15 @@
 package main
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
 	"io"
 	"math"
+	"slices"
+	"strings"
+	"sync"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
@@ -23,6 +27,7 @@ type sweepFlags struct {
 	solver  solverFlags
 	sens    bool
 	excurs  string
+	mesh    bool
 }
 
 // flags declares the command's flags on fs.
@@ -31,6 +36,7 @@ func (f *sweepFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.offsets, "offsets", "", "offsets FROM:TO:STEP, each with a unit, e.g. -5mil:5mil:0.5mil")
 	fs.BoolVar(&f.sens, "sensitivities", false, "also solve the derivative of coupling, directivity, impedances and εeff with respect to every parameter (sensitivity.csv, sensitivity.png)")
 	fs.StringVar(&f.excurs, "excursions", "", "with --sensitivities: the excursions ranked at the design offset, e.g. thickness=5%,er=0.05,width=0.3mil (default thickness=10%,er=0.1,width=0.5mil,etch=0.5mil,copper=0.3mil)")
+	fs.BoolVar(&f.mesh, "mesh", false, "overlay the mesh the solver used at the design offset on the cross-section picture (section.png)")
 	f.outputFlags.add(fs)
 	f.solver.add(fs)
 }
@@ -94,7 +100,11 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	var hit bool
 	if f.offsets == "" {
 		// The curve map, yield, tol and comp read (one range rule, one cache entry).
-		sc, err := drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+		var sc *drift.Curve
+		err := step(progressStd(std, f.json), "field solves of section "+s.Name, func() (err error) {
+			sc, err = drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+			return err
+		})
 		if err != nil {
 			return solveErr(j, err)
 		}
@@ -111,7 +121,10 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		if len(offsets) > maxSweepOffsets {
 			return usageErr("--offsets: %q gives %d offsets; at most %d (the curve is interpolated between them: a step of a tenth of a mil is fine enough for any drift)", f.offsets, len(offsets), maxSweepOffsets)
 		}
-		if c, hit, err = drift.SolveAt(ctx, s, offsets, set); err != nil {
+		if err = step(progressStd(std, f.json), fmt.Sprintf("field solves of section %s at %d offsets", s.Name, len(offsets)), func() (err error) {
+			c, hit, err = drift.SolveAt(ctx, s, offsets, set)
+			return err
+		}); err != nil {
 			var fe *section.FieldError
 			if errors.As(err, &fe) && fe.Key == "offsets" {
 				return usageErr("--offsets: %v", fe.Err)
@@ -123,6 +136,11 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	files := []outFile{
 		{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c, lu.units()) }},
 		{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, s, c, lu.units()) }}}
+	pic, err := sectionPicture(s, c, f.mesh, lu.units())
+	if err != nil {
+		return err
+	}
+	files = append(files, outFile{sectionFile(j, s), pic})
 	if f.sens {
 		res.Sensitivities = drift.SensitivityRows(c)
 		res.Impacts = drift.Impacts(s, c, ex)
@@ -130,11 +148,44 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 			outFile{"sensitivity.csv", func(w io.Writer) error { return drift.WriteSensitivityCSV(w, c, lu.units()) }},
 			outFile{"sensitivity.png", func(w io.Writer) error { return figure.Sensitivity(w, s, res.Impacts, lu.units()) }})
 	}
-	paths, err := writeAll(f.out, files...)
+	paths, err := writeAll(f.out, prerender(files)...)
 	if err != nil {
 		return err
 	}
-	return report(std, f.json, res, func() { printSweep(std.out, s, c, res, lu, paths) })
+	return report(std, f.json, sweepJSON{res, copperBuild(s)}, func() { printSweep(std.out, s, c, res, lu, paths) })
+}
+
+// sweepJSON is the sweep's --json report: the summary and the copper build.
+type sweepJSON struct {
+	*drift.SweepSummary
+	Copper []copperJSON `json:"copper"`
+}
+
+// copperJSON is one copper layer of the stackup: its finished thickness
+// (what the solver uses) and, when it was given as foil plus plating, the
+// foil and each step.
+type copperJSON struct {
+	Layer     string    `json:"layer"`
+	FoilM     *float64  `json:"foil_m,omitempty"`
+	PlatingM  []float64 `json:"plating_m,omitempty"`
+	FinishedM float64   `json:"finished_m"`
+}
+
+// copperBuild lists every copper layer of s's stackup, top to bottom.
+func copperBuild(s *section.Section) []copperJSON {
+	var out []copperJSON
+	for _, l := range s.Stackup.Layers {
+		if l.Kind != section.Copper {
+			continue
+		}
+		c := copperJSON{Layer: l.Name, FinishedM: l.Thickness, PlatingM: l.Plating}
+		if l.Foil != 0 || len(l.Plating) > 0 {
+			foil := l.Foil
+			c.FoilM = &foil
+		}
+		out = append(out, c)
+	}
+	return out
 }
 
 // printImpacts writes the ranked coupling changes at the design offset.
@@ -204,4 +255,75 @@ func printCopperBuild(w io.Writer, s *section.Section, lu lengthUnit) {
 		}
 		fmt.Fprintf(w, " = %.3f %s finished\n", l.Thickness/lu.factor, lu.name)
 	}
+}
+
+// sectionFile names the cross-section picture: section.png, or with several
+// sections in the job section-NAME.png, so that sweeps of each into one
+// directory keep every picture.
+func sectionFile(j *Job, s *section.Section) string {
+	if len(j.Sections) > 1 {
+		return "section-" + fileSafe(s.Name) + ".png"
+	}
+	return "section.png"
+}
+
+// sectionPicture prepares section.png at the design offset: the solver's
+// drawing of the section and, with mesh, the mesh it solved there at the
+// level the curve's points report (Convergence.Coarse).
+func sectionPicture(s *section.Section, c *section.Curve, mesh bool, u unit.Output) (func(io.Writer) error, error) {
+	nom := s.NominalOffset()
+	d, err := s.Drawing(nom)
+	if err != nil {
+		return nil, err
+	}
+	var m *section.DrawnMesh
+	if mesh {
+		offs := make([]float64, len(c.Points))
+		for i, p := range c.Points {
+			offs[i] = p.Offset
+		}
+		if m, err = s.SweepMesh(offs, nom, c.Points[0].Convergence.Coarse.Level); err != nil {
+			return nil, err
+		}
+	}
+	return func(w io.Writer) error { return figure.Section(w, s, d, m, u) }, nil
+}
+
+// prerender draws the figures among files at once, each into memory on its
+// own goroutine (a figure draws on one core; sweep.png and section.png
+// together), and returns files whose writers copy the finished bytes, for
+// writeAll to commit in order.
+func prerender(files []outFile) []outFile {
+	out := slices.Clone(files)
+	var wg sync.WaitGroup
+	panics := make([]any, len(files))
+	for i, f := range files {
+		if !strings.HasSuffix(f.name, ".png") {
+			continue
+		}
+		var buf bytes.Buffer
+		var err error
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			// A figure's panic is re-raised on the caller's goroutine,
+			// where realMain reports it as a crash.
+			defer func() { panics[i] = recover() }()
+			err = f.write(&buf)
+		}()
+		out[i].write = func(w io.Writer) error {
+			if err != nil {
+				return err
+			}
+			_, e := w.Write(buf.Bytes())
+			return e
+		}
+	}
+	wg.Wait()
+	for _, p := range panics {
+		if p != nil {
+			panic(p)
+		}
+	}
+	return out
 }

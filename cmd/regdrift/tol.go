@@ -5,12 +5,14 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strings"
 	"text/tabwriter"
 
 	"github.com/spf13/pflag"
 
 	"github.com/regdrift/regdrift/panel/unit"
+	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/drift"
 	"github.com/regdrift/regdrift/render/figure"
 )
@@ -81,7 +83,11 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 		}
 		study.Sections = []int{si}
 	}
-	res, err := drift.Tol(ctx, input(j), study, set)
+	var res *drift.TolSummary
+	err = step(progressStd(std, f.json), "tolerance search (field solves, roots confirmed by direct solves)", func() (err error) {
+		res, err = drift.Tol(ctx, input(j), study, set)
+		return err
+	})
 	var we *drift.WidenError
 	if errors.As(err, &we) {
 		return usageErr("--widen: %v", err)
@@ -126,7 +132,16 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 			}
 			fmt.Fprintf(w, "  meets the spec limits at %s and %s\n", end(s.OffsetLowM, s.LimitLowDB, s.SolvedLowDB, s.LowAtRangeEnd),
 				end(s.OffsetHighM, s.LimitHighDB, s.SolvedHighDB, s.HighAtRangeEnd))
-			fmt.Fprintf(w, "  drawing tolerance: design offset ± %.3f %s\n", s.ToleranceM/lu.factor, u)
+			if s.GapM != nil {
+				// Both traces on one layer: registration cannot move them
+				// apart, so the offset is their spacing and the tolerance
+				// one on the gap the etch leaves.
+				fmt.Fprintf(w, "  both traces are on %s: the offset is their centre-to-centre spacing, which layer registration cannot move\n", s.Curve.Section.Traces[0].Layer)
+				fmt.Fprintf(w, "  spacing (gap) tolerance, not a registration tolerance: spacing %.3f ± %.3f %s, gap %.3f ± %.3f %s\n",
+					math.Abs(s.DesignOffsetM)/lu.factor, s.ToleranceM/lu.factor, u, *s.GapM/lu.factor, s.ToleranceM/lu.factor, u)
+			} else {
+				fmt.Fprintf(w, "  drawing tolerance: design offset ± %.3f %s\n", s.ToleranceM/lu.factor, u)
+			}
 		}
 		if len(s.Widen) > 0 {
 			tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
@@ -144,13 +159,7 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 		fmt.Fprintln(w)
 	}
 	if len(r.Orientation) > 0 {
-		fmt.Fprintf(w, "orientation (closed-form mean site yield; parts kept in place, lines turned 90 deg):\n")
-		tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
-		fmt.Fprintf(tw, "  array\tpart\tas placed\tturned\t\n")
-		for _, o := range r.Orientation {
-			fmt.Fprintf(tw, "  %d\t%s\t%.4f %%\t%.4f %%\t%s\n", o.Array, o.Part, 100*o.MeanYield, 100*o.MeanYieldTurned, o.Verdict())
-		}
-		tw.Flush()
+		printOrientationOf(w, r.Orientation, nil, registration.OrientMinGain, false, lu)
 		fmt.Fprintln(w)
 	}
 	if len(paths) > 0 {

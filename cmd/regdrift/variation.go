@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"text/tabwriter"
 
 	"github.com/regdrift/regdrift/registration/drift"
 )
@@ -38,4 +39,23 @@ func printLinearity(w io.Writer, l *drift.Linearity) {
 	if l.Warning != "" {
 		fmt.Fprintf(w, "warning: %s\n", l.Warning)
 	}
+}
+
+// printCouplingBudget writes the coupling budget of a yield study with
+// variation terms: registration and variation terms ranked together.
+func printCouplingBudget(w io.Writer, cb *drift.CouplingBudget) {
+	if cb == nil {
+		return
+	}
+	fmt.Fprintf(w, "\ncoupling budget (share of the coupling variance, registration and variation terms together):\n")
+	at := map[string]float64{}
+	for _, r := range cb.AtWorst {
+		at[r.Source+"\x00"+r.Name] = r.Share
+	}
+	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
+	fmt.Fprintf(tw, "  source\tterm\tpanel\tsd [dB]\tat %s\n", cb.WorstSite)
+	for _, r := range cb.Panel[:min(10, len(cb.Panel))] {
+		fmt.Fprintf(tw, "  %s\t%s\t%.1f %%\t%.4f\t%.1f %%\n", r.Source, r.Name, 100*r.Share, r.SDDB, 100*at[r.Source+"\x00"+r.Name])
+	}
+	tw.Flush()
 }

@@ -217,3 +217,31 @@ func BenchmarkMap10kVariation(b *testing.B) {
 	}
 	b.ReportMetric(b.Elapsed().Seconds()*1e3/float64(b.N), "ms/map")
 }
+
+// BenchmarkYieldVariation times "regdrift yield" on the same-core demo
+// (1,456 sites) with the twelve variation terms and 1,000 panels, curves
+// cached: closed form, Monte Carlo, coupling budget and figures.
+func BenchmarkYieldVariation(b *testing.B) {
+	dir := b.TempDir()
+	src, err := os.ReadFile("../../samples/same-core.toml")
+	if err != nil {
+		b.Fatal(err)
+	}
+	base := filepath.Join(dir, "same-core.toml")
+	if err := os.WriteFile(base, src, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	job := processJob(b, base)
+	args := []string{"yield", job, "-o", b.TempDir(), "--trials", "1000", "--cache-dir", b.TempDir()}
+	var o, e bytes.Buffer
+	if code := realMain(args, nil, &o, &e); code != 0 {
+		b.Fatalf("exit %d: %s", code, e.String())
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		o.Reset()
+		if code := realMain(args, nil, &o, &e); code != 0 {
+			b.Fatalf("exit %d: %s", code, e.String())
+		}
+	}
+}

@@ -8,7 +8,6 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
-	"time"
 )
 
 // yieldJob is an invented job whose error model makes the yield visibly less
@@ -204,35 +203,5 @@ func TestYieldDesignOutOfSpec(t *testing.T) {
 	code, _, _ = run(t, "yield", job, "--accuracy", "1%", "--trials", "500", "-o", t.TempDir(), "--strict")
 	if code != exitOutOfSpec {
 		t.Errorf("--strict: exit %d, want %d", code, exitOutOfSpec)
-	}
-}
-
-// TestProgress: the bar appears only on a terminal and only after a second.
-func TestProgress(t *testing.T) {
-	for _, tt := range []struct {
-		name     string
-		tty      bool
-		age      time.Duration
-		wantDraw bool
-	}{
-		{"terminal, long run", true, 2 * time.Second, true},
-		{"terminal, short run", true, 0, false},
-		{"not a terminal", false, 2 * time.Second, false},
-	} {
-		t.Run(tt.name, func(t *testing.T) {
-			var buf bytes.Buffer
-			p := newProgress(stdio{err: &buf, tty: tt.tty}, "Monte Carlo", "panels")
-			p.start = p.start.Add(-tt.age)
-			p.update(256, 1024)
-			p.update(1024, 1024)
-			p.finish()
-			got := buf.String()
-			if tt.wantDraw != (got != "") {
-				t.Fatalf("output %q", got)
-			}
-			if tt.wantDraw && (!strings.Contains(got, " 25%") || !strings.Contains(got, "100%") || !strings.HasSuffix(got, "\n")) {
-				t.Errorf("bar %q", got)
-			}
-		})
 	}
 }

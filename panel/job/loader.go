@@ -78,12 +78,14 @@ type rawCoupler struct {
 }
 
 type rawArray struct {
-	Part   string `toml:"part"`
-	Count  []int  `toml:"count"`
-	Pitch  []any  `toml:"pitch"`
-	Center []any  `toml:"center"`
-	Origin []any  `toml:"origin"`
-	Rotate any    `toml:"rotate"`
+	Name    string `toml:"name"`
+	Part    string `toml:"part"`
+	Product *bool  `toml:"product"` // nil: a product; false: a coupon strip
+	Count   []int  `toml:"count"`
+	Pitch   []any  `toml:"pitch"`
+	Center  []any  `toml:"center"`
+	Origin  []any  `toml:"origin"`
+	Rotate  any    `toml:"rotate"`
 }
 
 type rawSites struct {
@@ -402,6 +404,16 @@ func (l *loader) layoutErr(err error) error {
 		if errors.As(fe.Err, &oe) && oe.A.Array >= 0 && oe.A.Array < len(l.arraySrc) {
 			o := l.arraySrc[oe.A.Array]
 			return src.err(key, fmt.Errorf("%w (the [[array]] at %s:%d)", fe.Err, o.f.name, o.f.line(o.key)))
+		}
+		var de *panel.DuplicateNameError
+		if errors.As(fe.Err, &de) && de.First >= 0 && de.First < len(l.arraySrc) {
+			o := l.arraySrc[de.First]
+			how := ""
+			if de.Default {
+				how = "; an array without a name is called a1, a2, … by its position"
+			}
+			return src.err(key, fmt.Errorf("%w: %w: array name %q is also the name of the [[array]] at %s:%d%s",
+				ErrValue, panel.ErrDuplicateName, de.Name, o.f.name, o.f.line(o.key), how))
 		}
 	case strings.HasPrefix(key, "part["):
 		i, rest := splitIndex(key, "part[")
@@ -805,7 +817,7 @@ func (l *loader) buildLayout() error {
 	}
 	for i, ra := range l.arrays {
 		src := l.arraySrc[i]
-		a := panel.Array{Part: ra.Part}
+		a := panel.Array{Name: ra.Name, Part: ra.Part, Coupon: ra.Product != nil && !*ra.Product}
 		if len(ra.Count) != 2 {
 			return src.errf("count", "%w: want count = [columns, rows]", ErrValue)
 		}
@@ -909,6 +921,23 @@ func (l *loader) buildModel() error {
 					}
 					c.Layers = append(c.Layers, s)
 				}
+			case "weights":
+				arr, ok := v.([]any)
+				if !ok || len(arr) == 0 {
+					return src.errf(k, "%w: want a list of numbers, one per layer, e.g. [1.0, -0.98]", ErrValue)
+				}
+				for n, e := range arr {
+					var w float64
+					switch x := e.(type) {
+					case float64:
+						w = x
+					case int64:
+						w = float64(x)
+					default:
+						return src.errf(fmt.Sprintf("%s[%d]", k, n), "%w: want a plain number (a weight has no unit)", ErrValue)
+					}
+					c.Weights = append(c.Weights, w)
+				}
 			case "site_sigma":
 				x, err := quantity(src, k, v, unit.Length, nil)
 				if err != nil {
@@ -943,7 +972,7 @@ func (l *loader) buildModel() error {
 			default:
 				tk, ok := registration.TermByKey(k)
 				if !ok {
-					return src.errf(k, "%w %q (terms: %s; also name, layers, site_sigma, residual)", ErrUnknownKey, k, termKeys())
+					return src.errf(k, "%w %q (terms: %s; also name, layers, weights, site_sigma, residual)", ErrUnknownKey, k, termKeys())
 				}
 				t, err := parseTerm(src, k, v, tk.Info().Kind)
 				if err != nil {

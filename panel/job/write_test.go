@@ -155,3 +155,58 @@ func TestWriteCompensation(t *testing.T) {
 		}
 	}
 }
+
+// TestWriteJointContributors writes a lot of two layers measured against the
+// drilled holes on the same panels, includes it in a job and checks that the
+// model read back gives the L3−L4 offset and each layer's movement against
+// the holes the spread of the lot's own contributors.
+func TestWriteJointContributors(t *testing.T) {
+	// Invented per-panel terms: a shared drill scale error of tens of ppm and
+	// a few ppm of each layer's own movement.
+	shared := []float64{31e-6, -47e-6, 12e-6, 66e-6, -20e-6, 3e-6}
+	own3 := []float64{2e-6, -4e-6, 5e-6, -1e-6, 3e-6, -6e-6}
+	own4 := []float64{-3e-6, 1e-6, 4e-6, -5e-6, 2e-6, 0.5e-6}
+	var fits []registration.Fit
+	for p := range shared {
+		for _, l := range []struct {
+			name string
+			own  []float64
+		}{{"L3", own3}, {"L4", own4}} {
+			f := registration.Fit{Panel: string(rune('A' + p)), Layer: l.name, Model: registration.Similarity}
+			f.Terms[registration.ScaleX] = 150e-6 + shared[p] + l.own[p]
+			f.Terms[registration.ScaleY] = f.Terms[registration.ScaleX]
+			f.Terms[registration.OffsetX] = 10e-6*float64(p) + l.own[p]
+			fits = append(fits, f)
+		}
+	}
+	lots := registration.LotStats(fits)
+	want := &registration.Model{}
+	for _, c := range registration.LotContributors(fits, lots, LotLabel).Contributors {
+		want.Contributors = append(want.Contributors, c.Contributor)
+	}
+	var buf bytes.Buffer
+	if err := WriteContributors(&buf, "targets.csv", &registration.FitSettings{Model: registration.Similarity}, fits, lots, unit.MilInch); err != nil {
+		t.Fatal(err)
+	}
+	text := buf.String()
+	if !strings.Contains(text, "weights = [") || !strings.Contains(text, "L3, L4 measured on the same 6 panels") {
+		t.Errorf("no joint components written:\n%s", text)
+	}
+	j := includeJob(t, text)
+	for _, pair := range [][2]string{{"L3", "L4"}, {"L3", "drill"}, {"L4", "drill"}} {
+		g, w := j.Model.Relative(pair[0], pair[1]), want.Relative(pair[0], pair[1])
+		a, b := want.Relative(pair[0], "drill"), want.Relative(pair[1], "drill")
+		for k := range w.Var {
+			// Each layer's mean is written on its own, so the difference is
+			// off by up to the rounding of both.
+			meanTol := writtenRel * (math.Abs(a.Mean[k]) + math.Abs(b.Mean[k]))
+			// Each variance is a product of a written weight difference
+			// squared and a written sigma squared: four values rounded to
+			// six digits, so within 4·writtenRel, doubled for the difference
+			// of two nearly equal weights.
+			if math.Abs(g.Var[k]-w.Var[k]) > 8*writtenRel*w.Var[k]+1e-30 || math.Abs(g.Mean[k]-w.Mean[k]) > meanTol {
+				t.Errorf("%s−%s %v: read back mean %g var %g, want %g, %g", pair[0], pair[1], registration.TermKind(k), g.Mean[k], g.Var[k], w.Mean[k], w.Var[k])
+			}
+		}
+	}
+}

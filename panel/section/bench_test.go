@@ -92,3 +92,26 @@ func BenchmarkCoupling(b *testing.B) {
 }
 
 var sink float64
+
+// BenchmarkDrawing times the picture's geometry and mesh (section.png with
+// --mesh) of the demo section at the default level.
+func BenchmarkDrawing(b *testing.B) {
+	s := demoSection()
+	offs := DefaultOffsets(s, 0)
+	b.Run("drawing", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			if _, err := s.Drawing(0); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+	b.Run("mesh", func(b *testing.B) {
+		b.ReportAllocs()
+		for b.Loop() {
+			if _, err := s.SweepMesh(offs, 0, startLevel(DefaultAccuracy)); err != nil {
+				b.Fatal(err)
+			}
+		}
+	})
+}

@@ -11,7 +11,10 @@
 // lossless coupled-line 4-port; [Sweep] solves a range of offsets in parallel
 // and builds a [Curve] with monotone cubic interpolants that the drift map,
 // yield and tolerance commands evaluate millions of times; [CachedSweep] keeps
-// curves on disk. Everything is SI: metres, F/m, H/m, Hz, ohm; coupling in dB.
+// curves on disk. [Section.Drawing] and [Section.SweepMesh] hand out the
+// geometry and the mesh the solver uses, for a picture to check the input
+// against (regdrift sweep's section.png). Everything is SI: metres, F/m,
+// H/m, Hz, ohm; coupling in dB.
 //
 // # Conventions
 //

@@ -199,9 +199,14 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 			if m.er[e] == 0 {
 				continue
 			}
+			ns := elementNodes(i, j, ny)
+			// Only an element with a trace node couples a free node to a
+			// trace; most have none.
+			if max(m.tag[ns[0]], m.tag[ns[1]], m.tag[ns[2]], m.tag[ns[3]]) < tagTrace {
+				continue
+			}
 			s := epsOf(e)
 			ke := w.ke[16*e : 16*e+16]
-			ns := elementNodes(i, j, ny)
 			for a, na := range ns {
 				p := w.idx[na]
 				if p < 0 {

@@ -9,6 +9,7 @@ type band struct {
 	er     float64 // permittivity of the band (resin of the neighbouring prepreg in a trace slab)
 	trace  int     // index of the trace in this slab, or -1; both traces: 2
 	src    int     // stackup index of the dielectric whose εr fills the band; srcAir outside the stack
+	layer  int     // stackup index of the layer the band is (a copper slab's own index); -1 outside the stack
 }
 
 // Permittivity sources of an element that are not a stackup layer.
@@ -31,6 +32,7 @@ type traceGeom struct {
 	yb, yt   float64 // lower and upper face (equal for an ideal zero-thickness strip)
 	hwb, hwt float64 // half widths at the lower and upper face
 	slab     int     // index of the copper layer in the stackup
+	footLow  bool    // the foot (the etched-from face) is the lower face
 }
 
 // halfWidth returns the half width of the trace at height y inside its slab.
@@ -60,6 +62,9 @@ type geometry struct {
 	offLo float64
 	offHi float64
 	mask  *maskGeom // nil without a solder mask
+	// down: domain-up is stackup-down (a microstrip below its ground);
+	// the picture turns it back (drawing.go).
+	down bool
 }
 
 // edgeRef names one side of one trace.
@@ -118,7 +123,7 @@ func (s *Section) buildGeometry() *geometry {
 	y := 0.0
 	for _, i := range order {
 		l := ls[i]
-		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i}
+		b := band{y0: y, y1: y + l.Thickness, er: l.Er, trace: -1, src: i, layer: i}
 		if l.Kind == Copper {
 			// A copper slab: the trace stands on the face of the dielectric it was
 			// etched on, a core face if the slab touches exactly one core, else the
@@ -149,7 +154,7 @@ func (s *Section) buildGeometry() *geometry {
 				}
 				// footLow: the foot is at the lower face in domain coordinates.
 				footLow := footBelow == up
-				tg := traceGeom{yb: b.y0, yt: b.y1, slab: i}
+				tg := traceGeom{yb: b.y0, yt: b.y1, slab: i, footLow: footLow}
 				if footLow {
 					tg.hwb, tg.hwt = foot, far
 				} else {
@@ -169,6 +174,7 @@ func (s *Section) buildGeometry() *geometry {
 		y = b.y1
 	}
 	g.stackH = y
+	g.down = !up
 	if m := s.Stackup.Mask; m != nil && g.micro {
 		mg := &maskGeom{y0: y, tc: m.OverCopper, er: m.Er}
 		if o := order[len(order)-1]; ls[o].Kind == Copper {

@@ -107,16 +107,15 @@ func newMeshPlan(s *Section, g *geometry, lev float64, mult int, floorLev float6
 	feat := g.smallestFeature(s)
 	h0 := floorFrac * feat / floorLev
 	h0base := h0
-	p.wmax = math.Max(s.Traces[0].Width, s.Traces[1].Width)
+	p.wmax = maxFoot(s)
 	H := g.stackH
 	hmax := quietFrac * H
-	p.margin = marginSpans * H
+	p.margin = g.wallMargin(s)
 	p.bands = append([]band(nil), g.bands...)
 	if g.micro {
 		hmax = math.Inf(1)
-		r := g.openSpans * (H + 2*p.wmax + math.Abs(s.NominalOffset()))
-		p.margin = r
-		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1, src: srcAir})
+		r := p.margin
+		p.bands = append(p.bands, band{y0: H, y1: H + r, er: 1, trace: -1, src: srcAir, layer: -1})
 	}
 	p.bands = splitBands(p.bands, g.maskSplits())
 	p.gx = grading{h0: h0, alpha: gradeAlpha, hmax: hmax}
@@ -259,13 +258,32 @@ func (g *geometry) coatEdges() []int {
 	return append(out, -1)
 }
 
-// walls returns the side walls at offset off. The half extent
-// wmax/2 + √((δ/2)² + (wmax/2)²) bounds both traces and is smooth in δ.
+// walls returns the side walls at offset off.
 func (p *meshPlan) walls(off float64) (lo, hi float64) {
-	x0, x1 := p.g.x1+off, p.g.x1
-	xm := (x0 + x1) / 2
-	e := p.wmax/2 + math.Hypot(off/2, p.wmax/2) + p.margin
+	return wallsAt(p.g.x1, p.wmax, p.margin, off)
+}
+
+// wallsAt returns the side walls at offset off for a lower trace centred
+// at x1, the wider foot wmax and a margin beyond the traces. The half extent
+// wmax/2 + √((δ/2)² + (wmax/2)²) bounds both traces and is smooth in δ.
+func wallsAt(x1, wmax, margin, off float64) (lo, hi float64) {
+	xm := (x1 + off + x1) / 2
+	e := wmax/2 + math.Hypot(off/2, wmax/2) + margin
 	return xm - e, xm + e
+}
+
+// maxFoot returns the wider of the two traces' foot widths.
+func maxFoot(s *Section) float64 { return math.Max(s.Traces[0].Width, s.Traces[1].Width) }
+
+// wallMargin returns the distance from the outermost trace edge to a side
+// wall: marginSpans domain heights (stripline), or for a microstrip the
+// Dirichlet box's distance, openSpans·(stack height + 2·widest foot +
+// |nominal offset|), also the height of the air band.
+func (g *geometry) wallMargin(s *Section) float64 {
+	if g.micro {
+		return g.openSpans * (g.stackH + 2*maxFoot(s) + math.Abs(s.NominalOffset()))
+	}
+	return marginSpans * g.stackH
 }
 
 // keysOrdered returns the walls and all four trace edges in the order

@@ -1,12 +1,13 @@
 package section
 
 import (
+	"cmp"
 	"fmt"
 	"math"
+	"slices"
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas64"
-	"gonum.org/v1/gonum/blas/gonum"
 	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
@@ -171,6 +172,22 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 			}
 		}
 	}
+	// Each front's ring in the order of its positions in the parent (root
+	// first, so that a parent's own order is final): the extend-add then
+	// walks the parent's rows and columns in increasing order, with no test
+	// for which triangle an entry falls in. Any order of the ring is an
+	// equally valid elimination; the sums are the same.
+	pos := make([]int32, nfree)
+	for k := len(sym.fronts) - 1; k >= 0; k-- {
+		f := &sym.fronts[k]
+		for l, q := range f.vars {
+			pos[q] = int32(l)
+		}
+		for _, ck := range f.kids {
+			ring := sym.fronts[ck].vars[sym.fronts[ck].p:]
+			slices.SortFunc(ring, func(a, b int32) int { return cmp.Compare(pos[a], pos[b]) })
+		}
+	}
 	local := make([]int32, nfree)
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
@@ -224,6 +241,10 @@ type ndFactor struct {
 	stack []float64   // update matrices waiting for their parent, b×b each
 	saved []float64   // vacuum updates of the uniform subtrees (ndSymbolic.saved)
 	vacOf *ndSymbolic // rows hold the vacuum factorisation of this dissection
+	// scale[k] is √ε of a uniform front k whose rows are still the vacuum
+	// ones (the dielectric rows are √ε times those; solve2 applies it), 1
+	// for a front factored as it stands.
+	scale []float64
 	y     []float64
 }
 
@@ -241,19 +262,17 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 	if vacuum {
 		nf.saved = resize(nf.saved, sym.savedSize)
 	}
+	nf.scale = resize(nf.scale, len(sym.fronts))
 	top := 0 // stack length
 	for k := range sym.fronts {
 		f := &sym.fronts[k]
 		m := len(f.vars)
 		p, b := f.p, m-f.p
+		nf.scale[k] = 1
 		if e := sym.uni[k]; reuse && e >= 0 {
-			se := math.Sqrt(e)
-			rows := nf.rows[f.off : f.off+p*m]
-			for r := range p {
-				for c := r; c < m; c++ {
-					rows[r*m+c] *= se
-				}
-			}
+			// The rows stay the vacuum ones; solve2 scales by √ε (a pass
+			// over the rows here cost a twentieth of the factorisation).
+			nf.scale[k] = math.Sqrt(e)
 			if o := sym.saved[k]; o >= 0 { // the subtree's update, for a mixed parent
 				U := nf.stack[top : top+b*b]
 				for i, v := range nf.saved[o : o+b*b] {
@@ -304,14 +323,11 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 			ext = ext[cb:]
 			U := nf.stack[at : at+cb*cb]
 			at += cb * cb
-			for r, lr := range to {
+			for r, lr := range to { // to is increasing (newNDSymbolic)
 				row := U[r*cb+r : r*cb+cb]
+				dst := F[int(lr)*m : int(lr)*m+m]
 				for cc, lc := range to[r:] {
-					if lr <= lc {
-						F[int(lr)*m+int(lc)] += row[cc]
-					} else {
-						F[int(lc)*m+int(lr)] += row[cc]
-					}
+					dst[lc] += row[cc]
 				}
 			}
 		}
@@ -347,55 +363,6 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 	return true
 }
 
-// solve2 solves K·x = rhs in place for the two right-hand sides interleaved
-// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into two
-// contiguous vectors and works on them row by row of U (gonum's assembly
-// axpy and dot), then scatters back.
-func (nf *ndFactor) solve2(rhs []float64) {
-	sym := nf.sym
-	var impl gonum.Implementation
-	// Forward: Uᵀ·y = b, fronts in post order.
-	for k := range sym.fronts {
-		f := &sym.fronts[k]
-		m, p := len(f.vars), f.p
-		if p == 0 {
-			continue
-		}
-		F := nf.rows[f.off : f.off+p*m]
-		y0, y1 := nf.gather(f.vars, rhs)
-		for i := range p {
-			row := F[i*m+i : i*m+m]
-			y0[i] /= row[0]
-			y1[i] /= row[0]
-			if n := m - i - 1; n > 0 {
-				impl.Daxpy(n, -y0[i], row[1:], 1, y0[i+1:], 1)
-				impl.Daxpy(n, -y1[i], row[1:], 1, y1[i+1:], 1)
-			}
-		}
-		nf.scatter(f.vars, rhs)
-	}
-	// Backward: U·x = y, fronts in reverse post order.
-	for k := len(sym.fronts) - 1; k >= 0; k-- {
-		f := &sym.fronts[k]
-		m, p := len(f.vars), f.p
-		if p == 0 {
-			continue
-		}
-		F := nf.rows[f.off : f.off+p*m]
-		y0, y1 := nf.gather(f.vars, rhs)
-		for i := p - 1; i >= 0; i-- {
-			row := F[i*m+i : i*m+m]
-			if n := m - i - 1; n > 0 {
-				y0[i] -= impl.Ddot(n, row[1:], 1, y0[i+1:], 1)
-				y1[i] -= impl.Ddot(n, row[1:], 1, y1[i+1:], 1)
-			}
-			y0[i] /= row[0]
-			y1[i] /= row[0]
-		}
-		nf.scatter(f.vars[:p], rhs)
-	}
-}
-
 // gather copies the two right-hand sides of vars into nf.y, as two vectors.
 func (nf *ndFactor) gather(vars []int32, rhs []float64) (y0, y1 []float64) {
 	n := len(vars)
@@ -419,4 +386,76 @@ func (nf *ndFactor) scatter(vars []int32, rhs []float64) {
 // errNotPD is the message of a failed factorisation.
 func errNotPD(n int) error {
 	return fmt.Errorf("section: stiffness matrix is not positive definite (%d unknowns)", n)
+}
+
+// solve2 solves K·x = rhs in place for the two right-hand sides interleaved
+// in rhs (rhs[2q], rhs[2q+1]). Each front gathers its variables into two
+// contiguous vectors and works on them row by row of U, both right-hand
+// sides in one pass over each row: the rows of U are read once rather than
+// twice (10 % faster than two gonum axpy or dot calls per row on the fine
+// meshes; the solve streams U from memory).
+func (nf *ndFactor) solve2(rhs []float64) {
+	sym := nf.sym
+	// Forward: Uᵀ·y = b, fronts in post order.
+	for k := range sym.fronts {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.rows[f.off : f.off+p*m]
+		y0, y1 := nf.gather(f.vars, rhs)
+		for i := range p {
+			row := F[i*m+i : i*m+m]
+			a0, a1 := y0[i]/row[0], y1[i]/row[0]
+			y0[i], y1[i] = a0, a1
+			r := row[1:]
+			t0, t1 := y0[i+1:m], y1[i+1:m]
+			t0, t1 = t0[:len(r)], t1[:len(r)]
+			for c, v := range r {
+				t0[c] -= a0 * v
+				t1[c] -= a1 * v
+			}
+		}
+		// Rows σ·U (σ = scale[k]) give the ring the same updates as U
+		// does, and the front's own unknowns 1/σ times U's.
+		if sc := nf.scale[k]; sc != 1 {
+			for i := range p {
+				y0[i] /= sc
+				y1[i] /= sc
+			}
+		}
+		nf.scatter(f.vars, rhs)
+	}
+	// Backward: U·x = y, fronts in reverse post order.
+	for k := len(sym.fronts) - 1; k >= 0; k-- {
+		f := &sym.fronts[k]
+		m, p := len(f.vars), f.p
+		if p == 0 {
+			continue
+		}
+		F := nf.rows[f.off : f.off+p*m]
+		y0, y1 := nf.gather(f.vars, rhs)
+		// σ·U x = y is U x = y/σ.
+		if sc := nf.scale[k]; sc != 1 {
+			for i := range p {
+				y0[i] /= sc
+				y1[i] /= sc
+			}
+		}
+		for i := p - 1; i >= 0; i-- {
+			row := F[i*m+i : i*m+m]
+			r := row[1:]
+			t0, t1 := y0[i+1:m], y1[i+1:m]
+			t0, t1 = t0[:len(r)], t1[:len(r)]
+			var s0, s1 float64
+			for c, v := range r {
+				s0 += v * t0[c]
+				s1 += v * t1[c]
+			}
+			y0[i] = (y0[i] - s0) / row[0]
+			y1[i] = (y1[i] - s1) / row[0]
+		}
+		nf.scatter(f.vars[:p], rhs)
+	}
 }

@@ -282,7 +282,7 @@ func (p *meshPlan) perturbedPlan(sv *solver, idx int, par Param, h float64) (*me
 	bands := append([]band(nil), g2.bands...)
 	if g.micro {
 		air := p.bands[len(p.bands)-1].y1 - g.stackH
-		bands = append(bands, band{y0: g2.stackH, y1: g2.stackH + air, er: 1, trace: -1, src: srcAir})
+		bands = append(bands, band{y0: g2.stackH, y1: g2.stackH + air, er: 1, trace: -1, src: srcAir, layer: -1})
 	}
 	bands = splitBands(bands, g2.maskSplits())
 	if len(bands) != len(p.bands) {

@@ -63,19 +63,7 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		}
 	}
 	nom := s.NominalOffset()
-	// The mirror x → −x maps the section at offset δ onto itself at −δ
-	// (two symmetric trapezoids in a laterally uniform stack, the same
-	// conductor on each side), so C(−δ) = C(δ) and every parameter's
-	// derivative too: only |δ| is solved.
-	need := make([]float64, 0, len(offs)+1)
-	for _, o := range offs {
-		need = append(need, math.Abs(o))
-	}
-	if s.Length == 0 {
-		need = append(need, math.Abs(nom))
-	}
-	slices.Sort(need)
-	todo := slices.Compact(need)
+	todo := s.solvedOffsets(offs)
 	sv, err := newSolver(s, set, todo[0], todo[len(todo)-1])
 	if err != nil {
 		return nil, err
@@ -128,6 +116,23 @@ func Sweep(ctx context.Context, s *Section, offsets []float64, set *Settings) (*
 		return nil, err
 	}
 	return c, nil
+}
+
+// solvedOffsets returns the offsets a sweep of offs solves, ascending. The
+// mirror x → −x maps the section at offset δ onto itself at −δ (two
+// symmetric trapezoids in a laterally uniform stack, the same conductor on
+// each side), so C(−δ) = C(δ) and every parameter's derivative too: only |δ|
+// is solved, and with a quarter-wave length the nominal offset as well.
+func (s *Section) solvedOffsets(offs []float64) []float64 {
+	need := make([]float64, 0, len(offs)+1)
+	for _, o := range offs {
+		need = append(need, math.Abs(o))
+	}
+	if s.Length == 0 {
+		need = append(need, math.Abs(s.NominalOffset()))
+	}
+	slices.Sort(need)
+	return slices.Compact(need)
 }
 
 // solveAll solves the offsets at level lev on workers goroutines.

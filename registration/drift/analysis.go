@@ -64,6 +64,11 @@ func New(in *Input, model *registration.Model) *Analysis {
 		a.used[si] = true
 	}
 	a.Yield = registration.NewYield(model, ys, len(in.Instances))
+	for k := range in.Instances {
+		if in.Instances[k].Coupon {
+			a.Yield.Coupons = append(a.Yield.Coupons, k)
+		}
+	}
 	for k := range a.Sites {
 		r := &a.Sites[k]
 		r.Row = a.Yield.Rows[k]
@@ -173,33 +178,49 @@ func (a *Analysis) InSpec() int {
 	return n
 }
 
-// MeanPInSpec returns the mean closed-form site yield.
+// MeanPInSpec returns the mean closed-form site yield: ExpectedInSpec over
+// the number of sites, summed before dividing (adding 1/n n times overshoots
+// 1 by rounding) and kept within [0, 1].
 func (a *Analysis) MeanPInSpec() float64 {
 	if len(a.Sites) == 0 {
 		return 0
 	}
-	var s float64
-	for i := range a.Sites {
-		s += a.Sites[i].PInSpec
-	}
-	return s / float64(len(a.Sites))
+	return Clamp01(a.ExpectedInSpec() / float64(len(a.Sites)))
 }
 
-// Worst returns the indices of the n sites with the smallest margin (largest
-// |drift| breaking ties), in order.
+// Clamp01 returns p kept within [0, 1], for means of probabilities.
+func Clamp01(p float64) float64 { return math.Max(0, math.Min(1, p)) }
+
+// Worst returns the indices of the n sites least likely to be in spec: the
+// lowest PInSpec first, the largest |drift| breaking ties (sites at a
+// probability of 1, or of 0, are ranked by how far their coupling has moved),
+// then the index. It is the one ranking of the map's ringed sites, its
+// "worst site" line and summary.json.
 func (a *Analysis) Worst(n int) []int {
 	idx := make([]int, len(a.Sites))
 	for i := range idx {
 		idx[i] = i
 	}
-	sort.SliceStable(idx, func(p, q int) bool {
-		sp, sq := &a.Sites[idx[p]], &a.Sites[idx[q]]
-		if sp.Margin != sq.Margin {
-			return sp.Margin < sq.Margin
-		}
-		return math.Abs(sp.Drift) > math.Abs(sq.Drift)
-	})
+	sort.SliceStable(idx, func(p, q int) bool { return worseSite(&a.Sites[idx[p]], &a.Sites[idx[q]]) })
 	return idx[:min(n, len(idx))]
+}
+
+// worseSite reports whether site p ranks before site q in Worst.
+func worseSite(p, q *Site) bool {
+	if p.PInSpec != q.PInSpec {
+		return p.PInSpec < q.PInSpec
+	}
+	return math.Abs(p.Drift) > math.Abs(q.Drift)
+}
+
+// ExpectedInSpec returns the expected number of sites in spec, the sum of
+// every site's PInSpec (the count InSpec judges only the mean offset).
+func (a *Analysis) ExpectedInSpec() float64 {
+	var s float64
+	for i := range a.Sites {
+		s += a.Sites[i].PInSpec
+	}
+	return s
 }
 
 // Warnings says, per used section, when its design is out of spec (its sites

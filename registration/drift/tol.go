@@ -46,10 +46,38 @@ type TolSection struct {
 	LowAtRangeEnd  bool       `json:"low_at_range_end,omitempty"`
 	HighAtRangeEnd bool       `json:"high_at_range_end,omitempty"`
 	ToleranceM     float64    `json:"tolerance_m"`
-	Widen          []WidenRow `json:"widen,omitempty"`
+	// OffsetIs says what the offsets of this section measure (OffsetKind):
+	// "registration" for traces on two layers, "spacing" for two traces on
+	// one layer, whose offset is their centre-to-centre spacing: both are
+	// imaged together, so layer registration cannot move it and its
+	// tolerance is one on the gap (GapM, the design gap between the feet).
+	OffsetIs string     `json:"offset_is"`
+	GapM     *float64   `json:"gap_m,omitempty"`
+	Widen    []WidenRow `json:"widen,omitempty"`
 
 	// Curve is the section's curve the study read.
 	Curve *Curve `json:"-"`
+}
+
+// OffsetKind returns what the offset of s measures: "spacing" when both
+// traces are on one copper layer (an edge-coupled pair, whose offset is the
+// centre-to-centre spacing, moved by etching and artwork, not registration),
+// "registration" otherwise (the offset of the upper trace against the lower).
+func OffsetKind(s *section.Section) string {
+	if s.Traces[0].Layer == s.Traces[1].Layer {
+		return "spacing"
+	}
+	return "registration"
+}
+
+// DesignGap returns the design gap between the feet of two traces on one
+// layer, |offset| − (w₁ + w₂)/2, or nil for traces on two layers.
+func DesignGap(s *section.Section) *float64 {
+	if OffsetKind(s) != "spacing" {
+		return nil
+	}
+	g := math.Abs(s.NominalOffset()) - (s.Traces[0].Width+s.Traces[1].Width)/2
+	return &g
 }
 
 // WidenRow is one widened design of the trace-width study.
@@ -105,7 +133,7 @@ func Tolerance(ctx context.Context, s *section.Section, reach float64, set *Sett
 func tolerance(ctx context.Context, c *Curve, set *Settings, confirm bool) (*TolSection, error) {
 	s := c.Section
 	nom := s.NominalOffset()
-	st := &TolSection{Name: s.Name, DesignOffsetM: nom, SpecCouplingDB: s.Spec.Coupling, SpecTolDB: s.Spec.Tolerance,
+	st := &TolSection{Name: s.Name, DesignOffsetM: nom, SpecCouplingDB: s.Spec.Coupling, SpecTolDB: s.Spec.Tolerance, OffsetIs: OffsetKind(s), GapM: DesignGap(s),
 		CouplingDB: c.Nominal, ZLineOhm: c.Curve.ZLine(nom), DesignInSpec: c.DesignInSpec, Curve: c}
 	if !c.DesignInSpec {
 		return st, nil

@@ -29,8 +29,11 @@ import (
 //
 //	m(δ) = c(δ) + Σ sᵢ(δ)·μᵢ,  v(δ) = Σ sᵢ(δ)²·σᵢ²
 //
-// (uniform panel parts enter by their variance, w²/3: a sum of a dozen
-// terms is close to normal by the central limit theorem; BUG below).
+// (uniform panel parts of the process terms enter by their variance, w²/3:
+// a sum of a dozen terms is close to normal by the central limit theorem;
+// BUG below). The offset's own distribution is the registration yield's,
+// uniform terms exact (registration.SiteProb: its density PDF, its
+// probability CDF).
 //
 // In spec. A realisation is in spec when its coupling is inside the spec
 // window and its offset lies in the section's offset domain: the connected
@@ -52,10 +55,10 @@ import (
 // integrate/quad.Legendre): a sharp step then falls on a piece boundary
 // and each piece is smooth.
 //
-// BUG(variation): with process terms, uniform registration terms enter the
-// offset distribution by their variance (normal of the same σ), not exactly
-// as in registration.SiteProb; and Monte Carlo yield samples registration
-// only.
+// BUG(variation): in the closed form, a uniform panel part of a process
+// term enters the coupling by its variance (normal of the same σ); Monte
+// Carlo draws it uniform. The coupling budget's expectations over the
+// offset take it as normal of its full variance.
 
 // procSigmas is how many standard deviations of the process part the
 // offset domain allows for (see above); a normal tail beyond 6σ holds
@@ -84,21 +87,32 @@ const procMaxCross = 8
 // whether it is sharp, wide or in between.
 var procGrade = [...]float64{1, 3, 9}
 
-// procBisect is the number of bisections of each crossing: the step is
-// placed to 2⁻²⁴ of a scan step (1e-7 of the range), the graded pieces
-// about it resolving the step however wide it is.
-const procBisect = 24
+// procCrossTol is the width, in scan steps, to which a crossing is
+// placed: 1e-7 of a step (below 1e-7 mil), where the P(in spec) error of a
+// misplaced sharp step is that width times the offset density.
+const procCrossTol = 1e-7
+
+// procCrossIter bounds the iterations of crossing; the Illinois method
+// converges superlinearly (order 1.44), so a dozen reach 1e-7 of the step
+// from any bracket of a smooth function, and the bisection fallback
+// guarantees it.
+const procCrossIter = 40
 
 // procNodes is the number of Gauss–Legendre nodes per piece, and
-// procPiece the widest piece in standard deviations of the offset. A
-// piece holds a part of a normal density at most 2σ wide times a smooth
-// window probability; 8 nodes integrate a polynomial of degree 15 exactly,
-// and the Taylor remainder of exp(−z²/2) over a 2σ piece is below 1e-9
-// (the tests check 1e-6 against the registration yield of a step).
+// procPiece the widest piece in standard deviations of the offset. 8 nodes
+// integrate a polynomial of degree 15 exactly; on the normal density they
+// err by 9e-9 over [0, 4σ] and 1.8e-9 over [2σ, 6σ] (measured against
+// erf with gonum's rule), so the three pieces of ±6σ lose about 1e-8 of
+// probability, below the sixth decimal the yield is written with; a
+// window step inside is cut out by its own pieces.
 const (
 	procNodes = 8
-	procPiece = 2
+	procPiece = 4
 )
+
+// procMaxPieces bounds the fixed pieces of the offset range (uniform parts
+// wider than the normal part spread it beyond ±6σ).
+const procMaxPieces = 16
 
 var (
 	legendreOnce   sync.Once
@@ -329,7 +343,7 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	r.CouplingLo = e.mean(r.Offset-3*sd, pr)
 	r.CouplingHi = e.mean(r.Offset+3*sd, pr)
 	r.WorstDrift = e.worstDriftProc(r.Offset, sd, pr)
-	r.PInSpec = e.pInSpecProc(r.Offset, sd, pr)
+	r.PInSpec = e.pInSpecProc(e.Rel.Prob(&r.Row, c.Section.NominalOffset()), pr)
 }
 
 // worstDriftProc is worstDrift with the process terms: the largest
@@ -349,27 +363,31 @@ func (e *Evaluator) worstDriftProc(mean, sd float64, pr *procRow) float64 {
 	return worst
 }
 
-// pInSpecProc returns P(in spec) of a site whose offset is normal with
-// mean mu and standard deviation sd, with process row pr (see the package
-// notes above).
-func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
+// pInSpecProc returns P(in spec) of a site whose offset is distributed as
+// op (a normal part and up to two uniform parts, exactly as in the
+// registration yield), with process row pr (see the package notes above).
+func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 	sp := e.Curve.Section.Spec
 	lo, hi := sp.Coupling-sp.Tolerance, sp.Coupling+sp.Tolerance
 	dom := e.Proc.Domain
-	if sd == 0 {
+	mu, sd := op.Mean, op.SD
+	boxes := op.Uniform + op.Uniform2
+	if sd == 0 && boxes == 0 {
 		if !dom.Contains(mu) {
 			return 0
 		}
 		m, v := e.at(mu, pr)
 		return window(m, v, lo, hi)
 	}
-	a, b := math.Max(mu-procRangeSigmas*sd, dom.Lo), math.Min(mu+procRangeSigmas*sd, dom.Hi)
+	reach := procRangeSigmas*sd + boxes
+	a, b := math.Max(mu-reach, dom.Lo), math.Min(mu+reach, dom.Hi)
 	if !(a < b) {
 		return 0
 	}
 	// Pieces split at the crossings of m(δ) with lo and hi, graded about
-	// each crossing.
-	var cuts [procMaxCross * (1 + 2*len(procGrade))]float64
+	// each crossing, and at the edges of the uniform parts' boxes, graded
+	// when the normal part rounds them over less than the box.
+	var cuts [procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
 	nc := 0
 	add := func(x float64) {
 		if x > a && x < b && nc < len(cuts) {
@@ -389,20 +407,13 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 				continue
 			}
 			cross++
-			l, r, gl := x0, x1, pair[0]
-			for range procBisect {
-				mid := 0.5 * (l + r)
-				gm, gmh := g(mid)
+			xc := crossing(x0, x1, pair[0], pair[1], (x1-x0)*procCrossTol, func(x float64) float64 {
+				gl, gh := g(x)
 				if lim == 1 {
-					gm = gmh
+					return gh
 				}
-				if gm*gl > 0 {
-					l, gl = mid, gm
-				} else {
-					r = mid
-				}
-			}
-			xc := 0.5 * (l + r)
+				return gl
+			})
 			add(xc)
 			// The window steps over a width √v/|m'| about xc.
 			_, v := e.at(xc, pr)
@@ -416,13 +427,30 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 		}
 		x0, g0l, g0h = x1, g1l, g1h
 	}
-	// Pieces of at most procPiece standard deviations of the offset.
-	for k := -procRangeSigmas + procPiece; k < procRangeSigmas; k += procPiece {
-		add(mu + float64(k)*sd)
+	// Pieces of at most procPiece standard deviations of the offset's
+	// normal part, about the mean and about each box edge.
+	var kinks [4]float64
+	ks := op.Kinks(kinks[:0])
+	if sd > 0 {
+		// At most procMaxPieces of them over the range: where boxes make
+		// it wide the density is flat in their middle.
+		step := math.Max(procPiece*sd, (b-a)/procMaxPieces)
+		for x := mu - step*math.Floor((mu-a)/step); x < b; x += step {
+			add(x)
+		}
+	}
+	for _, k := range ks {
+		add(k)
+		if sd > 0 && sd < op.Uniform {
+			for _, f := range procGrade {
+				add(k - f*sd)
+				add(k + f*sd)
+			}
+		}
 	}
 	slices.Sort(cuts[:nc])
 	xs, ws := legendre()
-	norm := 1 / (sd * math.Sqrt(2*math.Pi))
+	norm := 1 / (sd * math.Sqrt(2*math.Pi)) // used without boxes, where sd > 0
 	var p float64
 	left := a
 	wl := e.windowAt(left, pr, lo, hi)
@@ -439,15 +467,20 @@ func (e *Evaluator) pInSpecProc(mu, sd float64, pr *procRow) float64 {
 		wm := e.windowAt(c, pr, lo, hi)
 		switch {
 		case wl >= 1-procSure && wr >= 1-procSure && wm >= 1-procSure:
-			// In spec throughout: the piece's normal probability.
-			p += registration.NormalCDF((right-mu)/sd) - registration.NormalCDF((left-mu)/sd)
+			// In spec throughout: the piece's probability.
+			p += op.CDF(right) - op.CDF(left)
 		case wl <= procSure && wr <= procSure && wm <= procSure:
 			// Out of spec throughout.
-		default:
+		case len(ks) == 0:
 			for k := range xs {
 				x := c + h*xs[k]
 				z := (x - mu) / sd
 				p += h * ws[k] * norm * math.Exp(-0.5*z*z) * e.windowAt(x, pr, lo, hi)
+			}
+		default:
+			for k := range xs {
+				x := c + h*xs[k]
+				p += h * ws[k] * op.PDF(x) * e.windowAt(x, pr, lo, hi)
 			}
 		}
 		left, wl = right, wr
@@ -540,7 +573,7 @@ func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) flo
 	case WorstDrift:
 		return e.worstDriftProc(off, st.SDAcross, &pr)
 	case PInSpec:
-		return e.pInSpecProc(off, st.SDAcross, &pr)
+		return e.pInSpecProc(e.Rel.Prob(&row, c.Section.NominalOffset()), &pr)
 	case ProcessDrift:
 		return e.mean(off, &pr) - c.Coupling(off)
 	case Margin:
@@ -648,12 +681,29 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 	return rec
 }
 
-// processWarnings says, per section with process terms, when the end of the
-// solved offsets cuts its offset domain within procRangeSigmas of some
+// processWarnings names the variation terms that move no parameter of any
+// section used, and says, per section with process terms, when the end of
+// the solved offsets cuts its offset domain within procRangeSigmas of some
 // site: offsets beyond count as out of spec, though a process excursion
 // could keep the coupling in spec there.
 func (a *Analysis) processWarnings() []string {
 	var out []string
+	if a.proc != nil {
+		bound := make([]bool, len(a.In.Process.Terms))
+		for _, pr := range a.proc {
+			if pr != nil {
+				for _, bd := range pr.Bind {
+					bound[bd.Term] = true
+				}
+			}
+		}
+		for t, ok := range bound {
+			if !ok {
+				out = append(out, fmt.Sprintf("variation term %q on %s moves nothing of any section used (its layer is outside every section's field, or it is a quantity the sections lack)",
+					a.In.Process.Terms[t].Name, a.In.Process.Terms[t].On))
+			}
+		}
+	}
 	for i, pr := range a.proc {
 		if pr == nil || !(pr.Clipped[0] || pr.Clipped[1]) {
 			continue
@@ -672,4 +722,35 @@ func (a *Analysis) processWarnings() []string {
 		}
 	}
 	return out
+}
+
+// crossing returns the root of f in [a, b], f(a) = fa and f(b) = fb of
+// opposite signs, to within tol: the Illinois variant of regula falsi
+// (Dowell & Jarratt 1971, BIT 11, 168–174), which halves the retained end's
+// value when the same end is kept twice; every third step (and any
+// false-position point outside the bracket) bisects, so the bracket
+// shrinks at least as 2^(−k/3) whatever f does.
+func crossing(a, b, fa, fb, tol float64, f func(float64) float64) float64 {
+	side := 0
+	for it := 0; it < procCrossIter && math.Abs(b-a) > tol; it++ {
+		c := b - fb*(b-a)/(fb-fa)
+		if it%3 == 2 || !(c > math.Min(a, b) && c < math.Max(a, b)) {
+			c = 0.5 * (a + b) // keep the bracket shrinking
+		}
+		fc := f(c)
+		switch {
+		case fc == 0:
+			return c
+		case fc*fb < 0:
+			a, fa = b, fb
+			side = 0
+		default:
+			if side == 1 {
+				fa /= 2
+			}
+			side = 1
+		}
+		b, fb = c, fc
+	}
+	return 0.5 * (a + b)
 }

@@ -3,6 +3,7 @@ package drift
 import (
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"github.com/regdrift/regdrift/panel"
@@ -171,6 +172,34 @@ func TestEdgeCoupledWidth(t *testing.T) {
 	if r.DriftProcess != r.Drift {
 		t.Errorf("process part %g dB, want all of the drift %g", r.DriftProcess, r.Drift)
 	}
+
+	// The etch: more undercut per side narrows the far faces and widens
+	// the gap there, feet fixed. Coupling is markedly curved in the etch
+	// (measured at 0.1 %: direct against linear 5.6 % apart at ±0.2 mil,
+	// 2.3 % at ±0.05 mil, opposite signs on the two sides), so the
+	// sensitivity is checked against the central difference of direct
+	// solves at ±0.05 mil, where the curvature cancels (measured 0.07 %);
+	// allow linearTol.
+	const de = 0.05 * mil
+	pe := &process.Model{Size: size, Terms: []process.Term{{Name: "etch", Layer: "L1", On: "L1", Quantity: process.Etch, Panel: registration.Term{Mean: de}}}}
+	eve := procEvaluatorAt(t, s, m, pe, []panel.Vec{{}}, linearAccuracy)
+	re := eve.Eval(panel.Vec{X: -3 * inch, Y: 5 * inch}, panel.Vec{Y: 1})
+	etched := func(d float64) float64 {
+		e := microstripPair()
+		for k := range e.Traces {
+			e.Traces[k].Etch += d
+		}
+		e.Length = eve.Curve.Curve.Length
+		return directCoupling(t, e)
+	}
+	central := (etched(de) - etched(-de)) / 2
+	t.Logf("etch ±%.2g mil: central difference %.5f dB, linear %.5f dB", de/mil, central, re.Drift)
+	if math.Abs(re.Drift-central) > linearTol*math.Abs(central) {
+		t.Errorf("etch: linear drift %.5f dB against the central difference %.5f dB", re.Drift, central)
+	}
+	if re.DriftRegistration != 0 {
+		t.Errorf("etch: registration drift %g dB on one layer", re.DriftRegistration)
+	}
 }
 
 // TestPInSpecProcess checks the closed-form P(in spec) with process terms:
@@ -220,10 +249,32 @@ func TestPInSpecProcess(t *testing.T) {
 		want := plain.Eval(p, u).PInSpec
 		t.Logf("P with a 1e-6 mil process term %.9f, registration alone %.9f", got, want)
 		// The step of the window, 1e-6 mil·|s|/|c'| wide, falls on the
-		// cut at the crossing, placed to 2⁻³⁰ of a scan step; the
+		// cut at the crossing, placed to 1e-7 of a scan step; the
 		// difference measured is below 1e-9, allow 1e-8.
 		if math.Abs(got-want) > 1e-8 {
 			t.Errorf("P = %.9f, want the registration yield %.9f", got, want)
+		}
+	})
+	t.Run("tiny process, uniform registration", func(t *testing.T) {
+		// With uniform registration terms (one wider than the normal
+		// part, one narrower) the offset's density is the registration
+		// yield's exactly: a negligible process term reproduces
+		// SiteProb.Prob. Measured below 1e-9; allow 1e-8.
+		s := namedPair("tinyu", section.Spec{Coupling: -3, Tolerance: 0.05})
+		m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+			Terms: [registration.NumTerms]registration.Term{registration.OffsetY: {Spread: 1.3 * mil, Dist: registration.Uniform},
+				registration.ScaleY: {Spread: 30e-6, Dist: registration.Uniform}}},
+			{Name: "L4", Layers: []string{"L4"}, Terms: [registration.NumTerms]registration.Term{registration.OffsetY: term(0.3*mil, 0.4*mil)}}}}
+		pm := &process.Model{Size: size, Terms: []process.Term{{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 1e-6*mil)}}}
+		ev := procEvaluator(t, s, m, pm, []panel.Vec{{}})
+		for _, p := range []panel.Vec{{X: 2 * inch, Y: 3 * inch}, {X: -4 * inch, Y: -8 * inch}} {
+			u := panel.Vec{X: 1}
+			got := ev.Eval(p, u).PInSpec
+			want := Evaluator{Curve: ev.Curve, Rel: ev.Rel}.Eval(p, u).PInSpec
+			t.Logf("at %v: P %.10f, registration alone %.10f", p, got, want)
+			if math.Abs(got-want) > 1e-8 {
+				t.Errorf("at %v: P = %.10f, want the registration yield %.10f", p, got, want)
+			}
 		}
 	})
 	t.Run("quadrature against a fine midpoint rule", func(t *testing.T) {
@@ -250,7 +301,7 @@ func TestPInSpecProcess(t *testing.T) {
 			mm, v := ev.at(x, &row)
 			want += math.Exp(-z*z/2) / (sd * math.Sqrt(2*math.Pi)) * h * window(mm, v, sp.Coupling-sp.Tolerance, sp.Coupling+sp.Tolerance)
 		}
-		got := ev.pInSpecProc(mu, sd, &row)
+		got := ev.pInSpecProc(registration.SiteProb{Mean: mu, SD: sd}, &row)
 		t.Logf("P %.10f, midpoint rule %.10f", got, want)
 		if math.Abs(got-want) > 1e-8 {
 			t.Errorf("P = %.10f, midpoint rule %.10f", got, want)
@@ -332,8 +383,8 @@ func TestSensitivityTable(t *testing.T) {
 	}
 }
 
-// TestYieldProcessMonteCarlo: with registration and process terms (all
-// normal), the closed-form site yield of every site agrees with the Monte
+// TestYieldProcessMonteCarlo: with registration terms (normal and uniform)
+// and normal process terms, the closed-form site yield of every site agrees with the Monte
 // Carlo of registration.Yield, which draws each term as distributed (the
 // panel parts once per panel), within 4 standard errors: a binomial
 // estimate's error is √(p(1−p)/N), and 4 SE is exceeded with probability
@@ -344,7 +395,9 @@ func TestYieldProcessMonteCarlo(t *testing.T) {
 	l, inst, sites := layout(t, "mcy", 90, arr)
 	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
 		Terms:     [registration.NumTerms]registration.Term{registration.OffsetX: term(0.3*mil, 0.6*mil), registration.ScaleY: term(40e-6, 20e-6)},
-		SiteSigma: 0.2 * mil}}}
+		SiteSigma: 0.2 * mil},
+		{Name: "L4", Layers: []string{"L4"}, Terms: [registration.NumTerms]registration.Term{ // uniform terms, the wider exact
+			registration.OffsetX: {Spread: 0.8 * mil, Dist: registration.Uniform}, registration.Rotation: {Spread: 20e-6, Dist: registration.Uniform}}}}}
 	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
 		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil,
 			Shape: process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}},
@@ -453,5 +506,132 @@ func TestProcessValueMatchesEval(t *testing.T) {
 		if r.TermDrifts[1] != 0 {
 			t.Errorf("site %d: a term on a ground plane drifts %g dB", k, r.TermDrifts[1])
 		}
+	}
+}
+
+// TestCrossing checks the root finder on closed-form roots: x³ − 2 (root
+// ∛2), a step tanh((x − 0.3)/1e-6) sharper than any bracket step, and a
+// flat-then-steep (x − 0.7)⁹; each to its tolerance.
+func TestCrossing(t *testing.T) {
+	for _, tt := range []struct {
+		name string
+		f    func(float64) float64
+		a, b float64
+		root float64
+	}{
+		{"cubic", func(x float64) float64 { return x*x*x - 2 }, 0, 2, math.Cbrt(2)},
+		{"sharp step", func(x float64) float64 { return math.Tanh((x - 0.3) / 1e-6) }, 0, 1, 0.3},
+		{"flat", func(x float64) float64 { return math.Pow(x-0.7, 9) }, 0, 1, 0.7},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			const tol = 1e-9
+			n := 0
+			f := func(x float64) float64 { n++; return tt.f(x) }
+			got := crossing(tt.a, tt.b, tt.f(tt.a), tt.f(tt.b), tol, f)
+			// The flat root is where false position crawls; the
+			// bisection of every third step alone shrinks the bracket of
+			// width 1 to 2^(−⌊40/3⌋) = 1.2e-4 in procCrossIter steps.
+			want := tol
+			if tt.name == "flat" {
+				want = math.Ldexp(1, -procCrossIter/3)
+			}
+			if math.Abs(got-tt.root) > want {
+				t.Errorf("root %.12g, want %.12g (%d evaluations)", got, tt.root, n)
+			}
+			t.Logf("%d evaluations", n)
+		})
+	}
+}
+
+// TestCouplingBudget: the coupling budget's shares sum to 1, and its total
+// variance at the worst site (law of total variance, Gauss–Hermite over
+// the offset) equals the sample variance of the coupling of the same
+// linear model drawn by Monte Carlo, within 5 standard errors of a sample
+// variance, σ²·√(2/(N−1)) for a normal sample (a tail heavier than normal
+// widens it; 5 SE leaves room for that).
+func TestCouplingBudget(t *testing.T) {
+	s := namedPair("budget", section.Spec{Coupling: -3, Tolerance: 0.1})
+	arr := panel.Array{Part: "p", Count: [2]int{3, 2}, Pitch: panel.Vec{X: 3 * inch, Y: 5 * inch}}
+	l, inst, sites := layout(t, s.Name, 90, arr)
+	m := &registration.Model{Contributors: []registration.Contributor{{Name: "L3", Layers: []string{"L3"},
+		Terms:     [registration.NumTerms]registration.Term{registration.OffsetX: term(1*mil, 1.2*mil), registration.ScaleY: term(80e-6, 20e-6)},
+		SiteSigma: 0.3 * mil}}}
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0.02*mil, 0.05*mil), SiteSigma: 0.02 * mil, Shape: process.Shape{Kind: process.Dome, Amplitude: 0.1 * mil}},
+		{Name: "w4", Layer: "L4", Quantity: process.Width, Panel: term(0, 0.3*mil)}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: m, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	cb := a.couplingBudget()
+	if cb == nil {
+		t.Fatal("no coupling budget")
+	}
+	for _, rows := range [][]CouplingShare{cb.AtWorst, cb.Panel} {
+		var sum float64
+		for _, r := range rows {
+			sum += r.Share
+		}
+		if math.Abs(sum-1) > 1e-12 {
+			t.Errorf("shares sum to %.15f", sum)
+		}
+	}
+	var total float64
+	for _, r := range cb.AtWorst {
+		total += r.SDDB * r.SDDB
+	}
+	w := a.WorstYieldSite()
+	r := &a.Sites[w]
+	ev := a.Evaluator(0)
+	var row procRow
+	ev.Proc.row(&row, r.Site.Pos)
+	rng := rand.New(rand.NewPCG(3, 4))
+	const n = 200000
+	var sum, sum2 float64
+	for range n {
+		d := r.Offset + r.Stats.SDAcross*rng.NormFloat64()
+		c := ev.Curve.Coupling(d)
+		for b, mu := range row.means() {
+			c += ev.termSens(b, d) * (mu + math.Sqrt(row.vars()[b])*rng.NormFloat64())
+		}
+		sum += c
+		sum2 += c * c
+	}
+	mean := sum / n
+	v := (sum2 - n*mean*mean) / (n - 1)
+	se := v * math.Sqrt(2.0/(n-1))
+	t.Logf("worst site: coupling variance %.4g dB² by quadrature, %.4g ± %.2g by Monte Carlo; %d rows", total, v, se, len(cb.AtWorst))
+	if math.Abs(total-v) > 5*se {
+		t.Errorf("variance %.5g dB², Monte Carlo %.5g ± %.2g", total, v, se)
+	}
+	var reg float64
+	for _, r := range cb.AtWorst {
+		if r.Source == "registration" {
+			reg += r.Share
+		}
+	}
+	if reg < 0.05 || reg > 0.95 {
+		t.Errorf("registration share %.3f: the case should mix both sources", reg)
+	}
+}
+
+// TestProcessWarnings: a term on a dielectric outside the stripline's
+// grounds moves nothing and is named in the warnings.
+func TestProcessWarnings(t *testing.T) {
+	s := namedPair("warn", section.Spec{Coupling: -3, Tolerance: 0.25})
+	s.Stackup.Layers = append([]section.Layer{{Name: "TOP", Kind: section.Dielectric, Thickness: 5 * mil, Er: 3.5, Core: true}}, s.Stackup.Layers...)
+	l, inst, sites := layout(t, s.Name, 90, panel.Array{Part: "p", Count: [2]int{1, 1}, Pitch: panel.Vec{X: inch, Y: inch}})
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "outside", Layer: "TOP", On: "TOP", Quantity: process.Thickness, Panel: term(0, 0.1*mil)},
+		{Name: "core", Layer: "C2", On: "C2", Quantity: process.Thickness, Panel: term(0, 0.05*mil)}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: &registration.Model{}, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ws := a.Warnings()
+	if len(ws) != 1 || !strings.Contains(ws[0], `"outside"`) {
+		t.Errorf("warnings %q, want one naming the term outside", ws)
 	}
 }

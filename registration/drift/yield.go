@@ -17,17 +17,25 @@ type YieldSummary struct {
 	Trials              int            `json:"trials"`
 	Seed                uint64         `json:"seed"`
 	Sites               int            `json:"sites"`
-	Parts               int            `json:"parts"`
+	Parts               int            `json:"parts"`                  // products; coupon parts are not counted
+	Coupons             int            `json:"coupon_parts,omitempty"` // parts of product = false arrays
 	SiteYieldMean       float64        `json:"site_yield_mean"`
 	SiteYieldMeanClosed float64        `json:"site_yield_mean_closed"`
 	PartYieldMean       float64        `json:"part_yield_mean"`
 	GoodPartsPerPanel   GoodParts      `json:"good_parts_per_panel"`
 	WorstParts          []WorstPart    `json:"worst_parts"`
 	WorstSites          []YieldSite    `json:"worst_sites"`
+	Arrays              []YieldArray   `json:"arrays"`
 	Sections            []YieldSection `json:"sections"`
 	Budget              Budget         `json:"budget"`
-	Orientation         []Orient       `json:"orientation,omitempty"`
-	Warnings            []string       `json:"warnings,omitempty"`
+	// CouplingBudget ranks registration and variation terms together by
+	// their share of the coupling variance; absent without variation terms.
+	CouplingBudget *CouplingBudget `json:"coupling_budget,omitempty"`
+	Orientation    []Orient        `json:"orientation,omitempty"`
+	// TurnMinGain is the smallest rise in mean site yield for which the
+	// orientation study recommends a turn (registration.TurnThreshold).
+	TurnMinGain float64  `json:"turn_min_gain"`
+	Warnings    []string `json:"warnings,omitempty"`
 }
 
 // GoodParts is the distribution of good parts per panel over the trials.
@@ -39,6 +47,31 @@ type GoodParts struct {
 	P50  int     `json:"p50"`
 	P95  int     `json:"p95"`
 	Max  int     `json:"max"`
+}
+
+// YieldArray is one array's line of the yield summary (placements from
+// files form one group named "placements"). A coupon array (product = false)
+// is reported like any other, but its parts are in none of the panel's part
+// counts. The Monte Carlo figures are nil in a closed-form comparison.
+type YieldArray struct {
+	Name    string `json:"name"`
+	Part    string `json:"part"`
+	Product bool   `json:"product"`
+	Parts   int    `json:"parts"`
+	Sites   int    `json:"sites"`
+	// SiteYieldMean and SiteYieldMeanClosed are the mean Monte Carlo and
+	// closed-form yields of the array's sites.
+	SiteYieldMean       *float64 `json:"site_yield_mean"`
+	SiteYieldMeanClosed float64  `json:"site_yield_mean_closed"`
+	// PartYieldMean is the mean Monte Carlo yield of its parts, and
+	// GoodPartsMean the expected number of them in spec per panel (for a
+	// coupon array: strips in spec, not counted as good parts).
+	PartYieldMean *float64 `json:"part_yield_mean"`
+	GoodPartsMean *float64 `json:"good_parts_mean"`
+	// PartYieldBounds and GoodPartsBounds bound the same from the
+	// closed-form site yields alone (Analysis.PartBounds).
+	PartYieldBounds [2]float64 `json:"part_yield_bounds"`
+	GoodPartsBounds [2]float64 `json:"good_parts_bounds"`
 }
 
 // WorstPart is one of the parts of lowest Monte Carlo yield.
@@ -93,7 +126,8 @@ type BudgetRow struct {
 
 // Orient is the quarter-turn study of one array.
 type Orient struct {
-	Array           int     `json:"array"`
+	Array           int     `json:"array"` // 1-based position in the job
+	Name            string  `json:"name"`
 	Part            string  `json:"part"`
 	Rotate          int     `json:"rotate_deg"`
 	MeanYield       float64 `json:"site_yield_mean"`
@@ -102,16 +136,24 @@ type Orient struct {
 	WorstTurned     float64 `json:"site_yield_worst_turned"`
 	RMSOffsetM      float64 `json:"rms_offset_m"`
 	RMSOffsetTurned float64 `json:"rms_offset_turned_m"`
-	TurnHelps       bool    `json:"turn_helps"`
+	// Gain is MeanYieldTurned − MeanYield; a turn is recommended when it
+	// exceeds Threshold, the larger of MinGain and Resolution (the Monte
+	// Carlo resolution of the array's mean site yield, 0 without a run).
+	Gain       float64 `json:"gain"`
+	MinGain    float64 `json:"min_gain"`
+	Resolution float64 `json:"mc_resolution"`
+	Threshold  float64 `json:"threshold"`
+	TurnHelps  bool    `json:"turn_helps"`
 }
 
-// Verdict says what the orientation study recommends: "turn", "either" or
-// "keep".
+// Verdict says what the orientation study recommends: "turn" when the gain
+// exceeds the threshold, "keep" when turning loses more than it, "either"
+// in between.
 func (o Orient) Verdict() string {
 	switch {
 	case o.TurnHelps:
 		return "turn"
-	case o.MeanYieldTurned-o.MeanYield > -registration.OrientMinGain:
+	case o.Gain >= -o.Threshold:
 		return "either"
 	}
 	return "keep"
@@ -145,18 +187,31 @@ func (a *Analysis) budgetRows(shares []registration.Share, total float64) []Budg
 }
 
 // YieldSummary summarises a Monte Carlo run res (drawn with seed) of the
-// analysis's yield problem.
+// analysis's yield problem, with the orientation study's default threshold.
 func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldSummary {
+	return a.YieldSummaryTurn(res, seed, 0)
+}
+
+// YieldSummaryTurn is YieldSummary with turnGain the smallest rise in mean
+// site yield for which the orientation study recommends a turn (0 means
+// registration.OrientMinGain).
+func (a *Analysis) YieldSummaryTurn(res *registration.MCResult, seed uint64, turnGain float64) *YieldSummary {
 	in, y := a.In, a.Yield
-	sum := &YieldSummary{Job: in.Source, Trials: res.Trials, Seed: seed, Sites: len(in.Sites), Parts: len(in.Instances),
-		Warnings: a.Warnings()}
+	sum := &YieldSummary{Job: in.Source, Trials: res.Trials, Seed: seed, Sites: len(in.Sites), Parts: y.Products(),
+		Coupons: len(y.Coupons), Warnings: a.Warnings()}
+	// Count the good site-trials, then divide once: adding SiteYield/n n
+	// times reported 1.0000000000000107 for a panel where every site passed.
+	var good float64
 	for i := range a.Sites {
-		sum.SiteYieldMean += res.SiteYield(i) / float64(len(a.Sites))
-		sum.SiteYieldMeanClosed += a.Sites[i].PInSpec / float64(len(a.Sites))
+		good += float64(res.SiteGood[i])
 	}
+	if len(a.Sites) > 0 && res.Trials > 0 {
+		sum.SiteYieldMean = Clamp01(good / (float64(res.Trials) * float64(len(a.Sites))))
+	}
+	sum.SiteYieldMeanClosed = a.MeanPInSpec()
 	mean := res.MeanGoodParts()
-	if len(in.Instances) > 0 {
-		sum.PartYieldMean = mean / float64(len(in.Instances))
+	if y.Products() > 0 {
+		sum.PartYieldMean = mean / float64(y.Products())
 	}
 	var v float64
 	for k, c := range res.GoodParts {
@@ -173,9 +228,12 @@ func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldS
 			sitesOf[s.Instance] = append(sitesOf[s.Instance], i)
 		}
 	}
-	parts := make([]int, len(in.Instances))
-	for i := range parts {
-		parts[i] = i
+	// Coupon strips are reported per array, never among the worst parts.
+	parts := make([]int, 0, y.Products())
+	for i := range in.Instances {
+		if !in.Instances[i].Coupon {
+			parts = append(parts, i)
+		}
 	}
 	sort.SliceStable(parts, func(p, q int) bool { return res.PartGood[parts[p]] < res.PartGood[parts[q]] })
 	for _, p := range parts[:min(10, len(parts))] {
@@ -216,7 +274,7 @@ func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldS
 				ysec.SiteYieldMean += res.SiteYield(i)
 			}
 		}
-		ysec.SiteYieldMean /= float64(ysec.Sites)
+		ysec.SiteYieldMean = Clamp01(ysec.SiteYieldMean / float64(ysec.Sites))
 		sum.Sections = append(sum.Sections, ysec)
 	}
 	if len(a.Sites) > 0 {
@@ -233,12 +291,80 @@ func (a *Analysis) YieldSummary(res *registration.MCResult, seed uint64) *YieldS
 		}
 		sum.Budget.Panel = a.budgetRows(panelShares, tot)
 	}
-	sum.Orientation = a.Orientation()
+	sum.CouplingBudget = a.couplingBudget() // variation_budget.go
+	sum.Arrays = a.yieldArrays(res)
+	sum.TurnMinGain = registration.TurnThreshold(turnGain, 0)
+	sum.Orientation = a.OrientationMC(res, turnGain)
 	return sum
 }
 
-// Orientation runs the quarter-turn study for every array that has sites.
-func (a *Analysis) Orientation() []Orient {
+// yieldArrays returns one line per array that has sites, then one for the
+// placements if there are any; the Monte Carlo figures come from res, and
+// are left nil when res is nil.
+func (a *Analysis) yieldArrays(res *registration.MCResult) []YieldArray {
+	in := a.In
+	na := len(in.Layout.Arrays)
+	rows := make([]YieldArray, na+1)
+	for i, ar := range in.Layout.Arrays {
+		rows[i] = YieldArray{Name: in.Layout.ArrayName(i), Part: ar.Part, Product: !ar.Coupon}
+	}
+	rows[na] = YieldArray{Name: "placements", Product: true}
+	group := func(array int) int {
+		if array < 0 {
+			return na
+		}
+		return array
+	}
+	mc := make([][3]float64, len(rows)) // per group: Σ site yield, Σ part yield
+	lo, hi := a.PartBounds()
+	for k := range in.Instances {
+		g := group(in.Instances[k].Array)
+		rows[g].Parts++
+		rows[g].GoodPartsBounds[0] += lo[k]
+		rows[g].GoodPartsBounds[1] += hi[k]
+		if res != nil {
+			mc[g][1] += res.PartYield(k)
+		}
+	}
+	for i := range a.Sites {
+		g := group(a.Sites[i].Site.Array)
+		rows[g].Sites++
+		rows[g].SiteYieldMeanClosed += a.Sites[i].PInSpec
+		if res != nil {
+			mc[g][0] += res.SiteYield(i)
+		}
+	}
+	var out []YieldArray
+	for gi, g := range rows {
+		if g.Sites == 0 {
+			continue
+		}
+		g.SiteYieldMeanClosed /= float64(g.Sites)
+		if g.Parts > 0 {
+			g.PartYieldBounds = [2]float64{g.GoodPartsBounds[0] / float64(g.Parts), g.GoodPartsBounds[1] / float64(g.Parts)}
+		}
+		if res != nil {
+			sy, good := mc[gi][0]/float64(g.Sites), mc[gi][1]
+			py := 0.0
+			if g.Parts > 0 {
+				py = good / float64(g.Parts)
+			}
+			g.SiteYieldMean, g.PartYieldMean, g.GoodPartsMean = &sy, &py, &good
+		}
+		out = append(out, g)
+	}
+	return out
+}
+
+// Orientation runs the quarter-turn study for every array that has sites,
+// on the closed form alone, with the default threshold.
+func (a *Analysis) Orientation() []Orient { return a.OrientationMC(nil, 0) }
+
+// OrientationMC runs the quarter-turn study for every array that has sites:
+// a turn is recommended when it raises the array's mean site yield by more
+// than minGain (0 means registration.OrientMinGain) and by more than the
+// resolution of the Monte Carlo run res (none when res is nil).
+func (a *Analysis) OrientationMC(res *registration.MCResult, minGain float64) []Orient {
 	var out []Orient
 	for ai, ar := range a.In.Layout.Arrays {
 		var sites []int
@@ -251,10 +377,16 @@ func (a *Analysis) Orientation() []Orient {
 			continue
 		}
 		o := a.Yield.Orient(sites)
-		out = append(out, Orient{Array: ai + 1, Part: ar.Part, Rotate: ar.Rotate,
+		var resolution float64
+		if res != nil {
+			resolution = res.GroupResolution(sites)
+		}
+		out = append(out, Orient{Array: ai + 1, Name: a.In.Layout.ArrayName(ai), Part: ar.Part, Rotate: ar.Rotate,
 			MeanYield: o.AsPlaced.Mean, MeanYieldTurned: o.Turned.Mean,
 			WorstYield: o.AsPlaced.Worst, WorstTurned: o.Turned.Worst,
-			RMSOffsetM: o.AsPlaced.RMSAcross, RMSOffsetTurned: o.Turned.RMSAcross, TurnHelps: o.Better()})
+			RMSOffsetM: o.AsPlaced.RMSAcross, RMSOffsetTurned: o.Turned.RMSAcross,
+			Gain: o.Gain(), MinGain: registration.TurnThreshold(minGain, 0), Resolution: resolution,
+			Threshold: registration.TurnThreshold(minGain, resolution), TurnHelps: o.Recommend(minGain, resolution)})
 	}
 	return out
 }

@@ -21,6 +21,15 @@ type Report struct {
 	Fits     []registration.Fit
 	Lots     []registration.Lot
 	Grids    map[string]*registration.Grid // by layer; nil for a layer without one
+	// Joint is the lots as contributors (registration.LotContributors):
+	// the layers measured together on the same panels and the notes.
+	Joint *registration.LotModel
+	// Differences holds, per pair of layers measured together, the lot
+	// statistics of the per-panel differences ("L3-L4").
+	Differences []registration.Lot
+	// Applied is the artwork each layer was built with (SetApplied); nil
+	// means CAD size and no artwork table in the summary.
+	Applied registration.AppliedSet
 }
 
 // New fits the targets ts (read from file) with set: every panel and layer
@@ -35,6 +44,8 @@ func New(file string, ts []registration.Target, set registration.FitSettings, gr
 	for _, l := range r.Lots {
 		r.Grids[l.Layer] = registration.PooledResiduals(fits, l.Layer, grid, grid)
 	}
+	r.Joint = registration.LotContributors(fits, r.Lots, func(l *registration.Lot) string { return "measured " + l.Layer })
+	r.Differences = r.Joint.Differences(fits)
 	return r, nil
 }
 
@@ -122,6 +133,13 @@ type Summary struct {
 	DatumM [2]float64 `json:"datum_m"`
 	Fits   []FitJSON  `json:"fits"`
 	Lot    []LotJSON  `json:"lot"`
+	// Differences are the per-panel differences of layers measured on the
+	// same panels, "L3-L4", as lot statistics.
+	Differences []LotJSON `json:"differences"`
+	Notes       []string  `json:"notes"`
+	// Artwork is, with an applied artwork, each layer's material movement
+	// and the setting that cancels it (Artwork).
+	Artwork []ArtworkJSON `json:"artwork,omitempty"`
 }
 
 // Summary returns the JSON summary of r.
@@ -145,6 +163,20 @@ func (r *Report) Summary() *Summary {
 	for _, l := range r.Lots {
 		s.Lot = append(s.Lot, LotJSON{Layer: l.Layer, Panels: l.Panels,
 			Mean: newTerms(l.Mean, l.Model, true), Sigma: newTerms(l.SD, l.Model, false)})
+	}
+	s.Differences = []LotJSON{}
+	for _, l := range r.Differences {
+		s.Differences = append(s.Differences, LotJSON{Layer: l.Layer, Panels: l.Panels,
+			Mean: newTerms(l.Mean, l.Model, true), Sigma: newTerms(l.SD, l.Model, false)})
+	}
+	s.Notes = []string{}
+	if r.Joint != nil {
+		s.Notes = append(s.Notes, r.Joint.Notes...)
+	}
+	if r.Applied != nil {
+		for _, a := range r.Artworks() {
+			s.Artwork = append(s.Artwork, a.JSON())
+		}
 	}
 	return s
 }

@@ -39,20 +39,28 @@ func Comp(w io.Writer, c *drift.Comparison, sum *drift.CompSummary, width int, u
 	}
 	var comp []string
 	for _, l := range sum.Layers {
-		comp = append(comp, fmt.Sprintf("%s X %+.1f Y %+.1f ppm", l.Layer, l.ScaleXPPM, l.ScaleYPPM))
+		comp = append(comp, fmt.Sprintf("%s X %+.1f Y %+.1f ppm (change %+.1f, %+.1f)", l.Layer, l.SettingXPPM, l.SettingYPPM, l.ScaleXPPM, l.ScaleYPPM))
 	}
 	title := []string{
 		in.Title,
-		fmt.Sprintf("artwork scale compensation (%s objective): %s", sum.Objective, strings.Join(comp, "; ")),
+		fmt.Sprintf("new artwork scale settings (%s objective): %s", sum.Objective, strings.Join(comp, "; ")),
 		fmt.Sprintf("field: over each array its most common coupler (elsewhere %s, lines at %.0f deg); bars: each site; common part: %s",
 			in.Sections[global.Section].Name, math.Atan2(global.U.Y, global.U.X)*180/math.Pi, strings.SplitN(sum.Common, ":", 2)[0]),
 	}
 	caption := func(name string, v drift.CompState) string {
-		return fmt.Sprintf("%s: worst %.2f %s, rms %.2f %s, %d/%d in spec, site yield %.3f %%",
-			name, v.WorstOffsetM/u.LengthSI(), u.Length(), v.RMSOffsetM/u.LengthSI(), u.Length(), v.InSpec, v.Sites, 100*v.SiteYield)
+		s := fmt.Sprintf("%s: site yield %.3f %%, worst %.2f %s",
+			name, 100*v.SiteYield, v.WorstOffsetM/u.LengthSI(), u.Length())
+		if v.WindowUsed != nil {
+			s += fmt.Sprintf(", window used %.2f", *v.WindowUsed)
+		}
+		return s
+	}
+	after := "recommended"
+	if sum.BelowApplied {
+		after = "recommended (LOWER yield)"
 	}
 	m := newPanelMap(in, u, render.MapSpec{Width: width, Views: 2, Title: title,
-		Captions: []string{caption("before", sum.Before), caption("after", sum.After)}})
+		Captions: []string{caption("keep applied", sum.Before), caption(after, sum.After)}})
 	for vi, a := range states {
 		v := m.Views[vi]
 		drawPanel(v, in, grids[vi], render.Diverging, -lim, lim, false)

@@ -5,7 +5,6 @@ import (
 	"github.com/regdrift/regdrift/panel/unit"
 	"io"
 	"math"
-	"strings"
 
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/registration/drift"
@@ -18,58 +17,90 @@ func specBand(s *section.Section) render.Band {
 		Label: fmt.Sprintf("spec %.2f ± %.2f dB", s.Spec.Coupling, s.Spec.Tolerance)}
 }
 
-// offsetLabel is the x axis title of every plot against offset.
-func offsetLabel(u unit.Output) string {
-	return "offset of the upper trace across the lines [" + u.Length() + "]"
+// offsetLabel is the x axis title of every plot of section s against
+// offset: for two traces on one layer the offset is their centre-to-centre
+// spacing, which registration cannot move, so the label says so.
+func offsetLabel(s *section.Section, u unit.Output) string {
+	if drift.OffsetKind(s) == "spacing" {
+		return "centre-to-centre offset of the first " + s.Traces[0].Layer + " trace against the second (its size is the spacing, gap + width: set by etching, not registration) [" + u.Length() + "]"
+	}
+	return "offset of the upper trace (" + s.Traces[0].Layer + ") against the lower (" + s.Traces[1].Layer + ") across the lines [" + u.Length() + "]"
 }
 
-// Tol plots coupling against offset for each studied section of r (one panel
-// each) with the spec band, the offsets where the design meets the limits,
-// and the widened designs' curves (tol.png).
+// tolPlotWidth and tolPlotHeight are the size of each section's plot in
+// tol.png.
+const tolPlotWidth, tolPlotHeight = 1800, 760
+
+// Tol plots coupling against offset for each studied section of r (tol.png),
+// one plot per section over its own offsets, stacked: the spec band, the
+// offsets where the design meets the limits, and the widened designs'
+// curves, coloured light to dark by the width change in the legend to the
+// right of the data, with the design in bold ink.
 func Tol(w io.Writer, r *drift.TolSummary, u unit.Output) error {
-	p := &render.Plot{XLabel: offsetLabel(u)}
-	var titles []string
-	xlo, xhi := math.Inf(1), math.Inf(-1)
+	var plots []*render.Canvas
 	for k := range r.Sections {
 		st := &r.Sections[k]
 		s := st.Curve.Section
-		a := &render.Axes{YLabel: s.Name + ": coupling [dB]", Bands: []render.Band{specBand(s)}}
-		add := func(c *section.Curve, label string, i int) {
+		a := &render.Axes{YLabel: "coupling [dB]", Bands: []render.Band{specBand(s)}, Legend: render.Outside}
+		xlo, xhi := math.Inf(1), math.Inf(-1)
+		add := func(c *section.Curve, line render.Line) {
 			lo, hi := c.Range()
 			xlo, xhi = math.Min(xlo, lo), math.Max(xhi, hi)
 			const n = 300
-			xs, ys := make([]float64, n+1), make([]float64, n+1)
-			for q := range xs {
+			line.X, line.Y = make([]float64, n+1), make([]float64, n+1)
+			for q := range line.X {
 				x := lo + (hi-lo)*float64(q)/n
-				xs[q], ys[q] = x/u.LengthSI(), c.Coupling(x)
-			}
-			line := render.Line{Label: label, X: xs, Y: ys, Color: render.Series(i)}
-			if i > 0 {
-				line.Dash = []float64{4, 2}
+				line.X[q], line.Y[q] = x/u.LengthSI(), c.Coupling(x)
 			}
 			a.Lines = append(a.Lines, line)
 		}
-		add(st.Curve.Curve, "as designed", 0)
-		for q, row := range st.Widen {
+		add(st.Curve.Curve, render.Line{Label: "as designed", Color: render.Ink, Width: 4})
+		// The widened designs are an ordered family: one hue from light to
+		// dark as the width grows, so that 13 curves stay told apart by
+		// their order rather than by 13 unrelated colours.
+		dlo, dhi := math.Inf(1), math.Inf(-1)
+		for _, row := range st.Widen {
+			dlo, dhi = math.Min(dlo, row.DeltaWM), math.Max(dhi, row.DeltaWM)
+		}
+		for _, row := range st.Widen {
 			if row.DeltaWM == 0 {
 				continue
 			}
-			add(row.Curve.Curve, fmt.Sprintf("%s %+.2f %s", row.Trace, row.DeltaWM/u.LengthSI(), u.Length()), q+1)
+			t := 0.5
+			if dhi > dlo {
+				t = (row.DeltaWM - dlo) / (dhi - dlo)
+			}
+			col := render.Sequential.Map(0.25+0.7*t, 0, 1)
+			label := fmt.Sprintf("%s %+.2f %s", row.Trace, row.DeltaWM/u.LengthSI(), u.Length())
+			if row.DesignInSpec {
+				label += fmt.Sprintf(": ± %.2f", row.ToleranceM/u.LengthSI())
+			} else {
+				label += ": out of spec"
+			}
+			add(row.Curve.Curve, render.Line{Label: label, Color: col})
 		}
 		a.VLines = append(a.VLines, render.VLine{X: s.NominalOffset() / u.LengthSI(), Label: "design", Color: render.Frame})
+		what, note := "drawing tolerance", ""
+		if drift.OffsetKind(s) == "spacing" {
+			what, note = "spacing tolerance", " (both traces on "+s.Traces[0].Layer+": a gap tolerance, not registration)"
+		}
+		title := fmt.Sprintf("%s: coupling against offset, spec %.2f ± %.2f dB; ", s.Name, s.Spec.Coupling, s.Spec.Tolerance)
 		if st.DesignInSpec {
 			for _, x := range []*float64{st.OffsetLowM, st.OffsetHighM} {
 				a.VLines = append(a.VLines, render.VLine{X: *x / u.LengthSI(), Label: fmt.Sprintf("%+.2f %s", *x/u.LengthSI(), u.Length()), Color: render.Series(0)})
 			}
-			titles = append(titles, fmt.Sprintf("%s ± %.2f %s", s.Name, st.ToleranceM/u.LengthSI(), u.Length()))
+			title += fmt.Sprintf("%s ± %.2f %s about %+.2f %s%s", what, st.ToleranceM/u.LengthSI(), u.Length(), s.NominalOffset()/u.LengthSI(), u.Length(), note)
 		} else {
-			titles = append(titles, s.Name+" out of spec")
+			title += "the design is out of spec"
 		}
-		p.Axes = append(p.Axes, a)
+		p := &render.Plot{Title: title, XLabel: offsetLabel(s, u), XMin: xlo / u.LengthSI(), XMax: xhi / u.LengthSI(), Axes: []*render.Axes{a}}
+		plots = append(plots, p.Render(tolPlotWidth, tolPlotHeight))
 	}
-	p.XMin, p.XMax = xlo/u.LengthSI(), xhi/u.LengthSI()
-	p.Title = "Offset tolerance: coupling against lateral offset, spec band; " + strings.Join(titles, ", ")
-	return p.Render(1800, 700+400*len(p.Axes)).EncodePNG(w)
+	if len(plots) == 0 {
+		p := &render.Plot{Title: "Offset tolerance: no section studied"}
+		plots = append(plots, p.Render(tolPlotWidth, 300))
+	}
+	return render.Stack(plots...).EncodePNG(w)
 }
 
 // Sweep plots the curve c of section s (sweep.png): coupling with the spec
@@ -119,7 +150,7 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u unit.Output) err
 	p := &render.Plot{
 		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus lateral offset of %s against %s",
 			s.Name, c.Frequency/1e9, c.Length/u.LengthSI(), u.Length(), s.Traces[0].Layer, s.Traces[1].Layer),
-		XLabel: offsetLabel(u),
+		XLabel: offsetLabel(s, u),
 		Axes:   []*render.Axes{top, mid, bot},
 	}
 	return p.Render(1800, 1500).EncodePNG(w)

@@ -11,4 +11,8 @@
 // over the analysis's zones (drift.Analysis.Zones): over each array its own
 // coupler kinds, elsewhere the most common kind of the panel; the bar drawn
 // for each site takes the same quantity from the site's own evaluation.
+//
+// One colour convention: every panel figure is dark at its bad end (large
+// drift, small margin, low yield, a site's window used up), so that a reader
+// who has learnt one map reads the next.
 package figure

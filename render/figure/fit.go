@@ -53,19 +53,53 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	side := math.Min(ext.Dx(), ext.Dy())
 	exg := niceLength(side / 10 / math.Max(maxD, 1e-9))
 	exr := niceLength(side / 10 / math.Max(maxR, 1e-9))
+	// Each view's caption states its lot's mean movement, the numbers a
+	// process engineer reads off this figure.
 	var captions []string
 	for _, l := range lots {
-		captions = append(captions, fmt.Sprintf("layer %s, %d panels", l.Layer, l.Panels))
+		captions = append(captions, fmt.Sprintf("layer %s, %d panels; lot mean scale x %+.1f ppm, y %+.1f ppm, rotation %+.1f µrad",
+			l.Layer, l.Panels, l.Mean[registration.ScaleX]/1e-6, l.Mean[registration.ScaleY]/1e-6, l.Mean[registration.Rotation]/1e-6))
 	}
 	title := []string{
 		"Registration targets of " + filepath.Base(file),
 		fmt.Sprintf("%s fit per panel and layer about the datum (%.2f, %.2f) %s; robust: %s; all panels overlaid",
 			set.Model, set.Datum.X/u.PanelSI(), set.Datum.Y/u.PanelSI(), u.Panel(), set.Robust),
 	}
-	legend := []render.LegendItem{
-		{Label: "measured displacement, × " + strconv.FormatFloat(exg, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Frame},
-		{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
-		{Label: "target rejected as mis-measured", Kind: render.LegendRing},
+	// The scale key is an arrow of the legend, off the panel, drawn at the
+	// measured arrows' exaggeration to a round length about keyEm long; its
+	// pixel length needs the views' scale, so the map is laid out, measured
+	// and laid out again (the legend's size barely moves the views).
+	legendFor := func(pxPerM, em float64) []render.LegendItem {
+		key := render.LegendItem{Kind: render.LegendArrow, Color: render.Ink, Length: keyEm * em,
+			Label: "key: 0.00 mil measured, 0.000 mil residual"}
+		if pxPerM > 0 {
+			d := niceLength(keyEm*em/pxPerM/exg/u.LengthSI()) * u.LengthSI() // round in the output unit
+			key.Length = d * exg * pxPerM
+			key.Label = fmt.Sprintf("key: this arrow is %s %s measured, %s %s residual",
+				strconv.FormatFloat(d/u.LengthSI(), 'g', 3, 64), u.Length(), strconv.FormatFloat(d*exg/exr/u.LengthSI(), 'g', 3, 64), u.Length())
+		}
+		return []render.LegendItem{
+			{Label: "measured displacement, × " + strconv.FormatFloat(exg, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Frame},
+			{Label: "residual after the fit, × " + strconv.FormatFloat(exr, 'g', 6, 64), Kind: render.LegendArrow, Color: render.Series(0)},
+			{Label: "target rejected as mis-measured", Kind: render.LegendRing},
+			key,
+		}
+	}
+	// Targets outside the panel outline are not drawn (they would cover the
+	// axes); the title says how many.
+	outside := func(p panel.Vec) bool {
+		return size.X > 0 && (math.Abs(p.X) > size.X/2 || math.Abs(p.Y) > size.Y/2)
+	}
+	nOut := 0
+	for _, f := range fits {
+		for _, t := range f.Targets {
+			if outside(t.Pos) {
+				nOut++
+			}
+		}
+	}
+	if nOut > 0 {
+		title = append(title, fmt.Sprintf("%d targets outside the panel outline are not drawn", nOut))
 	}
 	// The figure draws at most maxFitArrows targets (minViewArrows a view):
 	// beyond that the arrows overlap into a solid field and only cost time. A layer with more is
@@ -90,8 +124,18 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 			groupThousands(shown), groupThousands(total)))
 	}
 	cols := min(len(lots), 4)
-	m := render.NewMap(render.MapSpec{Width: width, Extent: ext, Views: len(lots), Columns: cols, Title: title,
-		Captions: captions, Unit: axisUnit(u), NoColorBar: true, Legend: legend})
+	spec := render.MapSpec{Width: width, Extent: ext, Views: len(lots), Columns: cols, Title: title,
+		Captions: captions, Unit: axisUnit(u), NoColorBar: true}
+	spec.Legend = legendFor(0, 0)
+	m := render.NewMap(spec)
+	for range 2 {
+		s := m.Views[0].PixelLen(1)
+		spec.Legend = legendFor(s, m.TextSize())
+		m = render.NewMap(spec)
+		if m.Views[0].PixelLen(1) == s {
+			break
+		}
+	}
 	for li, l := range lots {
 		v := m.Views[li]
 		if size.X > 0 {
@@ -111,6 +155,9 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 				if !sampleTarget(idx-1, th) {
 					continue
 				}
+				if outside(t.Pos) {
+					continue
+				}
 				at := render.Point{X: t.Pos.X, Y: t.Pos.Y}
 				pts = append(pts, at)
 				meas = append(meas, render.Arrow{At: at, D: render.Point{X: t.D.X, Y: t.D.Y}})
@@ -125,14 +172,12 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		v.Arrows(res, render.ArrowStyle{Color: render.Series(0), Exaggeration: exr, Width: 2 * m.Thin()})
 		v.Dots(pts, 0.25*m.TextSize(), render.Ink)
 		v.Markers(ms)
-		bar := niceLength(maxD/2/u.LengthSI()) * u.LengthSI()
-		v.ScaleArrow(bar, fmt.Sprintf("measured: %s %s (× %s); residual: %s %s",
-			strconv.FormatFloat(bar/u.LengthSI(), 'g', 3, 64), u.Length(), strconv.FormatFloat(exg, 'g', 6, 64),
-			strconv.FormatFloat(bar*exg/exr/u.LengthSI(), 'g', 3, 64), u.Length()),
-			render.ArrowStyle{Color: render.Ink, Exaggeration: exg})
 	}
 	return m.EncodePNG(w)
 }
+
+// keyEm is the longest the scale key of fit.png is drawn, in text sizes.
+const keyEm = 5.0
 
 // niceLength returns 1, 2 or 5 times a power of ten not above d, for a
 // scale arrow.

@@ -109,11 +109,20 @@ func evaluators(a *drift.Analysis) []drift.Evaluator {
 // siteBars returns a bar per site of a along its lines (drift.Input.BarLength
 // long), coloured by colour of the site and its index.
 func siteBars(a *drift.Analysis, colour func(k int, r *drift.Site) color.RGBA) []render.Bar {
+	return siteBarsOf(a, nil, colour)
+}
+
+// siteBarsOf returns the bars of siteBars for the sites that keep accepts
+// (every site when keep is nil).
+func siteBarsOf(a *drift.Analysis, keep func(*drift.Site) bool, colour func(k int, r *drift.Site) color.RGBA) []render.Bar {
 	l := a.In.BarLength()
-	bars := make([]render.Bar, len(a.Sites))
+	bars := make([]render.Bar, 0, len(a.Sites))
 	for i := range a.Sites {
 		r := &a.Sites[i]
-		bars[i] = render.Bar{At: render.Point{X: r.Site.Pos.X, Y: r.Site.Pos.Y}, Length: l, Angle: r.Site.Angle, Color: colour(i, r)}
+		if keep != nil && !keep(r) {
+			continue
+		}
+		bars = append(bars, render.Bar{At: render.Point{X: r.Site.Pos.X, Y: r.Site.Pos.Y}, Length: l, Angle: r.Site.Angle, Color: colour(i, r)})
 	}
 	return bars
 }
