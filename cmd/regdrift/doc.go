@@ -314,7 +314,10 @@ for a seed does not depend on --workers.
 The error budget gives each contributor term's share of the across-offset
 variance (squared sensitivity times variance) at the worst site and averaged
 over the panel; its sd column is the standard deviation the term alone causes
-(over the panel, the rms over the sites).
+(over the panel, the rms over the sites). With [[variation]] terms a coupling
+budget follows (in the table, in budget.csv after the offset rows with the
+scopes "coupling, ..." and a sd [dB] column, and as budget.png): registration
+and variation terms ranked together by their share of the coupling variance.
 
 Writes yield.png (closed-form site yield over the panel for the most common
 section and line direction, contours at 99.9, 99 and 95 %, part outlines, each

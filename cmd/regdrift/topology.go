@@ -85,8 +85,8 @@ func demoTopology(ctx context.Context, std stdio, dir, out string, set *drift.Se
 		if msum.Linearity != nil {
 			r.linear = msum.Linearity.MaxErrorDB
 		}
-		if len(y.Budget.Panel) > 0 { // registration alone until the coupling budget
-			r.top, r.topShare = y.Budget.Panel[0].Contributor+": "+y.Budget.Panel[0].Term, y.Budget.Panel[0].Share
+		if cb := y.CouplingBudget; cb != nil && len(cb.Panel) > 0 {
+			r.top, r.topShare = cb.Panel[0].Name, cb.Panel[0].Share
 		}
 		rows = append(rows, r)
 	}
