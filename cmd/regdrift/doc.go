@@ -343,7 +343,10 @@ yield compares them: every variant is drawn with the same seed, so variants
 that share the error model see the same panels and their differences are
 sharper than each figure's own error. One table gives per variant the site
 yield, part yield, good parts per panel (with its 5th percentile and the
-difference from the first variant) and the same per named array, then the
+difference from the first variant), with [[variation]] terms each variant's
+term of the largest share of the coupling variance (dominant_term in the
+JSON; variants may be different builds of one coupler, each with its own
+stackup, sharing a process file), the same per named array, then the
 orientation study of every variant; it writes variants.csv, variants.json
 (printed with --json) and variants.png (parts lost per panel, per variant and
 array). Run yield on one variant for its maps and error budget. --closed-form
