@@ -130,6 +130,10 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 			return err
 		}
 	}
+	// One coupler built three ways on one panel and one process.
+	if err := demoTopology(ctx, std, dir, f.out, set, f.width, lu); err != nil {
+		return err
+	}
 	// The registration history: 60 invented lots in a temporary database.
 	lines, err := demoHistory(ctx, f.out)
 	if err != nil {

@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -27,6 +28,9 @@ func TestDemo(t *testing.T) {
 		"two-core/map.png", "two-core/fit/fit.png", "two-core/fit/measured.toml", "two-core/comp/comp.png",
 		"offset-coupler/map.png", "offset-coupler/parts.png", "offset-coupler/budget.png",
 		"samples/same-core.toml", "samples/twocore-targets.csv",
+		"topology-one-core/map.png", "topology-two-core/budget.png", "topology-microstrip/yield.png",
+		"topology-microstrip/budget.csv", "topology-foil/sweep-foil.png", "topology-foil/sweep-finished.csv",
+		"samples/topology-process.inc.toml",
 	} {
 		if _, err := os.Stat(filepath.Join(dir, f)); err != nil {
 			t.Errorf("demo did not write %s", f)
@@ -35,6 +39,16 @@ func TestDemo(t *testing.T) {
 	if n := strings.Count(stdout, "  map "); n != 3 {
 		t.Errorf("%d map lines in\n%s", n, stdout)
 	}
+	// The topology comparison prints one line per build, and the foil
+	// study shows that a spacing drawn with the base foil as the trace
+	// height misses the spec (common practice: the finished trace height
+	// includes the plating).
+	for _, b := range []string{"broadside, one core", "broadside, two cores", "edge-coupled microstrip", "most parts in spec:", "drawn from the foil sweep"} {
+		if !strings.Contains(stdout, b) {
+			t.Errorf("no %q in\n%s", b, stdout)
+		}
+	}
+	foilMiss(t, stdout)
 	// The shared core's movement cancels between its faces: the two-core
 	// build's largest offset and its largest drift are both well above the
 	// same-core build's.
@@ -59,5 +73,29 @@ func TestDemo(t *testing.T) {
 	}
 	if !(db > 2*da) {
 		t.Errorf("largest drift: same core %.3g dB, two cores %.3g dB; want the two-core build well above", da, db)
+	}
+}
+
+// foilMiss checks the demo's foil line: the finished part drawn from the
+// foil sweep is off the nominal coupling by more than the 0.5 dB spec
+// tolerance of samples/topology-microstrip.toml.
+func foilMiss(t *testing.T, stdout string) {
+	t.Helper()
+	i := strings.Index(stdout, "drawn from the foil sweep")
+	if i < 0 {
+		return
+	}
+	line := stdout[i:]
+	line = line[:strings.IndexByte(line, '\n')]
+	var off float64
+	j := strings.Index(line, "dB (")
+	if j < 0 {
+		t.Fatalf("foil line %q", line)
+	}
+	if _, err := fmt.Sscanf(line[j+len("dB ("):], "%g", &off); err != nil {
+		t.Fatalf("foil line %q: %v", line, err)
+	}
+	if math.Abs(off) <= 0.5 {
+		t.Errorf("the foil-drawn part misses by %+.3f dB, within the 0.5 dB tolerance: %q", off, line)
 	}
 }

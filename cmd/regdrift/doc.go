@@ -42,7 +42,12 @@ Copies the embedded demo jobs into DIR/samples (so that you can edit and rerun
 them) and maps each one into DIR/<job>/: a same-core 3 dB hybrid build, the same
 hybrids on two cores (which drift more toward the corners), and a panel of
 10 dB offset-broadside couplers whose coupling moves linearly with offset.
-All demo data are invented.
+Then the topology comparison: one 20 dB coupler designed three ways (broadside
+on one core, broadside across two cores, edge-coupled microstrip under mask)
+on one panel and one process file, mapped and yielded into
+DIR/topology-<build>/ and compared side by side, and the microstrip solved
+with its base foil as the trace height against its finished copper
+(DIR/topology-foil/). All demo data are invented.
 
 # map
 
@@ -309,7 +314,10 @@ for a seed does not depend on --workers.
 The error budget gives each contributor term's share of the across-offset
 variance (squared sensitivity times variance) at the worst site and averaged
 over the panel; its sd column is the standard deviation the term alone causes
-(over the panel, the rms over the sites).
+(over the panel, the rms over the sites). With [[variation]] terms a coupling
+budget follows (in the table, in budget.csv after the offset rows with the
+scopes "coupling, ..." and a sd [dB] column, and as budget.png): registration
+and variation terms ranked together by their share of the coupling variance.
 
 Writes yield.png (closed-form site yield over the panel for the most common
 section and line direction, contours at 99.9, 99 and 95 %, part outlines, each
@@ -335,7 +343,10 @@ yield compares them: every variant is drawn with the same seed, so variants
 that share the error model see the same panels and their differences are
 sharper than each figure's own error. One table gives per variant the site
 yield, part yield, good parts per panel (with its 5th percentile and the
-difference from the first variant) and the same per named array, then the
+difference from the first variant), with [[variation]] terms each variant's
+term of the largest share of the coupling variance (dominant_term in the
+JSON; variants may be different builds of one coupler, each with its own
+stackup, sharing a process file), the same per named array, then the
 orientation study of every variant; it writes variants.csv, variants.json
 (printed with --json) and variants.png (parts lost per panel, per variant and
 array). Run yield on one variant for its maps and error budget. --closed-form

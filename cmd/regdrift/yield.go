@@ -416,6 +416,15 @@ func printVariants(w io.Writer, cmp *drift.VariantComparison, lu lengthUnit, pat
 		}
 	}
 	tw.Flush()
+	for k, v := range cmp.Variants {
+		if v.Dominant == nil {
+			continue
+		}
+		if k == 0 || cmp.Variants[k-1].Dominant == nil {
+			fmt.Fprintf(w, "\nlargest share of the coupling variance over the panel:\n")
+		}
+		fmt.Fprintf(w, "  %s: %s %s (%.1f %%, %.4f dB)\n", v.Name, v.Dominant.Source, v.Dominant.Name, 100*v.Dominant.Share, v.Dominant.SDDB)
+	}
 	fmt.Fprintf(w, "\nper array:\n")
 	tw = tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 	fmt.Fprintf(tw, "  variant\tarray\tpart\tsites\tparts\tsite yield\tpart yield\tgood parts per panel\t\n")

@@ -111,6 +111,14 @@ func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *r
 	before.Evaluate(curves)
 	after.Evaluate(curves)
 	cmp := &Comparison{Result: res, Before: before, After: after}
+	if !in.Process.Empty() {
+		n := len(in.Process.Terms)
+		// The process terms move the cross-section, not the layers: no
+		// artwork scale reaches them. Both analyses carry them unchanged
+		// (one Input, one set of curves), so both yields include them.
+		cmp.Notes = append(cmp.Notes, fmt.Sprintf("%d variation %s (thickness, εr, width, copper, mask) move the coupling, not the offsets: artwork scale does not compensate %s; the site yields before and after include %s",
+			n, pick(n, "term", "terms"), pick(n, "it", "them"), pick(n, "it", "them")))
+	}
 	for _, c := range curves {
 		if c != nil && !c.DesignInSpec {
 			s := c.Section
@@ -297,4 +305,12 @@ func (c *Comparison) WriteCSV(w io.Writer, u unit.Output) error {
 	}
 	cw.Flush()
 	return cw.Error()
+}
+
+// pick returns one when n is 1, else many.
+func pick(n int, one, many string) string {
+	if n == 1 {
+		return one
+	}
+	return many
 }

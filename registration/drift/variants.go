@@ -37,6 +37,9 @@ type Variant struct {
 	GoodPartsBounds [2]float64   `json:"good_parts_per_panel_bounds"`
 	Arrays          []YieldArray `json:"arrays"`
 	Orientation     []Orient     `json:"orientation,omitempty"`
+	// Dominant is, with variation terms, the term of the largest share of
+	// the coupling variance over the panel (the coupling budget's first).
+	Dominant *CouplingShare `json:"dominant_term,omitempty"`
 }
 
 // PartBounds returns, per part instance, bounds on the probability that all
@@ -83,6 +86,16 @@ func (a *Analysis) Variant(name string, sum *YieldSummary, turnGain float64) Var
 		v.Arrays, v.Orientation = sum.Arrays, sum.Orientation
 	} else {
 		v.Arrays, v.Orientation = a.yieldArrays(nil), a.OrientationMC(nil, turnGain)
+	}
+	cb := (*CouplingBudget)(nil)
+	if sum != nil {
+		cb = sum.CouplingBudget
+	} else {
+		cb = a.couplingBudget()
+	}
+	if cb != nil && len(cb.Panel) > 0 {
+		d := cb.Panel[0]
+		v.Dominant = &d
 	}
 	// The panel's bounds are the sums over its product arrays: a sum of
 	// bounds bounds the sum.

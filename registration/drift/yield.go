@@ -7,6 +7,7 @@ import (
 	"math"
 	"sort"
 	"strconv"
+	"strings"
 
 	"github.com/regdrift/regdrift/registration"
 )
@@ -423,7 +424,7 @@ func (a *Analysis) WriteYieldCSV(w io.Writer, res *registration.MCResult, u unit
 // WriteBudgetCSV writes the error budget rows of sum (budget.csv).
 func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u unit.Output) error {
 	cw := csv.NewWriter(w)
-	if err := cw.Write([]string{"scope", "rank", "contributor", "term", "share", "sd [" + u.Length() + "]"}); err != nil {
+	if err := cw.Write([]string{"scope", "rank", "contributor", "term", "share", "sd [" + u.Length() + "]", "source", "sd [dB]"}); err != nil {
 		return err
 	}
 	for _, part := range []struct {
@@ -432,8 +433,27 @@ func WriteBudgetCSV(w io.Writer, sum *YieldSummary, u unit.Output) error {
 	}{{"worst site: " + sum.Budget.WorstSite, sum.Budget.AtWorst}, {"panel", sum.Budget.Panel}} {
 		for k, r := range part.rows {
 			if err := cw.Write([]string{part.scope, strconv.Itoa(k + 1), r.Contributor, r.Term,
-				fixed(r.Share, 5), fixed(r.SDM/u.LengthSI(), 4)}); err != nil {
+				fixed(r.Share, 5), fixed(r.SDM/u.LengthSI(), 4), "offset", ""}); err != nil {
 				return err
+			}
+		}
+	}
+	// With variation terms, the coupling budget follows: registration and
+	// variation terms together by their share of the coupling variance.
+	if cb := sum.CouplingBudget; cb != nil {
+		for _, part := range []struct {
+			scope string
+			rows  []CouplingShare
+		}{{"coupling, worst site: " + cb.WorstSite, cb.AtWorst}, {"coupling, panel", cb.Panel}} {
+			for k, r := range part.rows {
+				name, term := r.Name, ""
+				if i := strings.LastIndex(name, ": "); i >= 0 && r.Source == "registration" {
+					name, term = name[:i], name[i+2:]
+				}
+				if err := cw.Write([]string{part.scope, strconv.Itoa(k + 1), name, term,
+					fixed(r.Share, 5), "", r.Source, fixed(r.SDDB, 5)}); err != nil {
+					return err
+				}
 			}
 		}
 	}

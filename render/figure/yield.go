@@ -135,6 +135,9 @@ func allGood(res *registration.MCResult, parts int) float64 {
 // Budget draws the panel's error budget as horizontal bars, with the share at
 // the worst site beside each (budget.png).
 func Budget(w io.Writer, sum *drift.YieldSummary) error {
+	if cb := sum.CouplingBudget; cb != nil && len(cb.Panel) > 0 {
+		return couplingBudget(w, cb)
+	}
 	atWorst := map[string]float64{}
 	for _, r := range sum.Budget.AtWorst {
 		atWorst[r.Contributor+"\x00"+r.Term] = r.Share
@@ -151,6 +154,36 @@ func Budget(w io.Writer, sum *drift.YieldSummary) error {
 		b.Labels = append(b.Labels, r.Contributor+": "+r.Term)
 		b.Values = append(b.Values, 100*r.Share)
 		b.Texts = append(b.Texts, fmt.Sprintf("%.1f %% (%.1f %%)", 100*r.Share, 100*atWorst[r.Contributor+"\x00"+r.Term]))
+	}
+	return b.Render(2000, 0).EncodePNG(w)
+}
+
+// couplingBudget draws a yield study's coupling budget (with variation
+// terms): registration and variation terms ranked together by their share
+// of the coupling variance, coloured by source, the share at the worst
+// site beside each.
+func couplingBudget(w io.Writer, cb *drift.CouplingBudget) error {
+	atWorst := map[string]float64{}
+	for _, r := range cb.AtWorst {
+		atWorst[r.Source+"\x00"+r.Name] = r.Share
+	}
+	const rows = 12
+	b := render.BarChart{
+		Title:  fmt.Sprintf("Coupling variance by term over the panel; in brackets: at the worst site, %s", cb.WorstSite),
+		XLabel: "share of the coupling variance over the panel [%]; blue: registration, orange: variation",
+	}
+	if n := len(cb.Panel); n > rows {
+		b.Title += fmt.Sprintf(" (the %d largest of %d terms)", rows, n)
+	}
+	for _, r := range cb.Panel[:min(rows, len(cb.Panel))] {
+		b.Labels = append(b.Labels, r.Name)
+		b.Values = append(b.Values, 100*r.Share)
+		b.Texts = append(b.Texts, fmt.Sprintf("%.1f %% (%.1f %%)", 100*r.Share, 100*atWorst[r.Source+"\x00"+r.Name]))
+		c := render.Qualitative[1]
+		if r.Source == "registration" {
+			c = render.Qualitative[0]
+		}
+		b.Colors = append(b.Colors, c)
 	}
 	return b.Render(2000, 0).EncodePNG(w)
 }
