@@ -80,14 +80,22 @@ func (r *MCResult) GroupResolution(sites []int) float64 {
 }
 
 // Orient evaluates the group of sites as placed and turned a quarter turn.
-func (y *Yield) Orient(sites []int) Orientation {
+func (y *Yield) Orient(sites []int) Orientation { return y.OrientBy(sites, nil) }
+
+// OrientBy is Orient with prob giving site i's probability of being in spec
+// for the sensitivity row row (its own or the turned one's); nil is the
+// closed form of the across offset against the site's allowed interval. A
+// caller whose coupling depends on more than the offset (process variation
+// terms) passes its own evaluator, so that the study judges a site as the
+// yield does.
+func (y *Yield) OrientBy(sites []int, prob func(i int, row *Row) float64) Orientation {
 	o := Orientation{Sites: sites}
-	o.AsPlaced = y.orientYield(sites, false)
-	o.Turned = y.orientYield(sites, true)
+	o.AsPlaced = y.orientYield(sites, false, prob)
+	o.Turned = y.orientYield(sites, true, prob)
 	return o
 }
 
-func (y *Yield) orientYield(sites []int, turned bool) OrientYield {
+func (y *Yield) orientYield(sites []int, turned bool, prob func(i int, row *Row) float64) OrientYield {
 	oy := OrientYield{Worst: 1}
 	if len(sites) == 0 {
 		return OrientYield{}
@@ -100,7 +108,12 @@ func (y *Yield) orientYield(sites []int, turned bool) OrientYield {
 		if turned {
 			row = r.Row(s.Pos, s.U.Perp())
 		}
-		p := r.Prob(&row, s.Nominal).Prob(s.Allowed)
+		var p float64
+		if prob != nil {
+			p = prob(i, &row)
+		} else {
+			p = r.Prob(&row, s.Nominal).Prob(s.Allowed)
+		}
 		sum += p
 		oy.Worst = math.Min(oy.Worst, p)
 		st := r.Stats(row)

@@ -367,6 +367,21 @@ func (a *Analysis) Orientation() []Orient { return a.OrientationMC(nil, 0) }
 // resolution of the Monte Carlo run res (none when res is nil).
 func (a *Analysis) OrientationMC(res *registration.MCResult, minGain float64) []Orient {
 	var out []Orient
+	// Judge each site, as placed and turned, by the one evaluator: with
+	// process variation terms its coupling depends on more than the offset.
+	var prob func(int, *registration.Row) float64
+	if a.proc != nil {
+		ev := make([]Evaluator, len(a.Curves))
+		for i := range a.Curves {
+			if a.used[i] {
+				ev[i] = a.Evaluator(i)
+			}
+		}
+		prob = func(i int, row *registration.Row) float64 {
+			r := &a.Sites[i]
+			return ev[r.Section].EvalSite(*row, r.Site.Pos).PInSpec
+		}
+	}
 	for ai, ar := range a.In.Layout.Arrays {
 		var sites []int
 		for i := range a.Sites {
@@ -377,7 +392,7 @@ func (a *Analysis) OrientationMC(res *registration.MCResult, minGain float64) []
 		if len(sites) == 0 {
 			continue
 		}
-		o := a.Yield.Orient(sites)
+		o := a.Yield.OrientBy(sites, prob)
 		var resolution float64
 		if res != nil {
 			resolution = res.GroupResolution(sites)
