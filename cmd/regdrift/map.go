@@ -72,12 +72,19 @@ func (f *mapFlags) run(ctx context.Context, std stdio, args []string) error {
 		}
 		o.Show, o.TermName = "term", termName
 	}
-	a, err := drift.Analyse(ctx, input(j), set)
+	var a *drift.Analysis
+	err = step(progressStd(std, f.json), "field solves", func() (err error) {
+		a, err = drift.Analyse(ctx, input(j), set)
+		if err != nil {
+			return err
+		}
+		return a.CheckLinearity(ctx, set, 10) // only with [[variation]] terms
+	})
 	if err != nil {
 		return solveErr(j, err)
 	}
-	if err := a.CheckLinearity(ctx, set, 10); err != nil { // only with [[variation]] terms
-		return solveErr(j, err)
+	for _, w := range a.Warnings() {
+		fmt.Fprintf(std.err, "regdrift map: warning: %s\n", w)
 	}
 	sum, paths, err := writeMap(f.out, a, o, lu)
 	if err != nil {

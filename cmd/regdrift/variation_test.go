@@ -245,3 +245,36 @@ func BenchmarkYieldVariation(b *testing.B) {
 		}
 	}
 }
+
+// TestMapIdleVariationTerms: a process file shared by several jobs names
+// etched widths and a mask coat that this job lacks (no trace on L1, no
+// mask on a stripline): the terms load, move nothing, and map says so in
+// one warning line naming them all.
+func TestMapIdleVariationTerms(t *testing.T) {
+	dir := t.TempDir()
+	src, _ := os.ReadFile("../../samples/same-core.toml")
+	job := filepath.Join(dir, "job.toml")
+	idle := `
+[[variation]]
+name = "L1 etch"
+on = "L1"
+quantity = "width"
+panel = { sigma = "0.2 mil" }
+
+[[variation]]
+name = "mask coat"
+on = "mask"
+quantity = "mask"
+panel = { sigma = "0.1 mil" }
+`
+	if err := os.WriteFile(job, append(src, idle...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, errs := run(t, "map", job, "--accuracy", "1%", "-o", t.TempDir(), "--width", "600")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if n := strings.Count(errs, "move nothing of any section used"); n != 1 || !strings.Contains(errs, `"L1 etch" on L1, "mask coat" on mask`) {
+		t.Errorf("want one warning naming both idle terms, got:\n%s", errs)
+	}
+}

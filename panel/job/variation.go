@@ -142,7 +142,16 @@ func (l *loader) variationTarget(src source, t *process.Term) (float64, error) {
 	st := l.job.Stackup
 	if t.On == "mask" {
 		if st.Mask == nil {
-			return 0, src.errf("on", "%w: the stackup has no mask (add mask = { thickness, over_copper, er } to [stackup])", ErrValue)
+			// A shared process file may describe the mask for the jobs that
+			// have one; here the term moves nothing (the analysis says so).
+			switch t.Quantity {
+			case process.Thickness, process.Mask:
+				t.Quantity = process.Mask
+				return math.Inf(1), nil
+			case process.Er:
+				return math.Inf(1), nil
+			}
+			return 0, src.errf("quantity", "%w: the mask takes quantity \"mask\" (its coat) or \"er\", not %q", ErrValue, t.Quantity)
 		}
 		switch t.Quantity {
 		case process.Thickness, process.Mask:
@@ -203,7 +212,10 @@ func (l *loader) variationTarget(src source, t *process.Term) (float64, error) {
 			}
 		}
 		if math.IsInf(w, 1) {
-			return 0, src.errf("on", "%w: no section has a trace on %s, so it has no etched width to vary", ErrValue, name)
+			// No section etches a trace on this layer: a shared process file
+			// may carry every layer's etch, and here the term moves nothing
+			// (the analysis says so). Nothing can turn non-positive.
+			return math.Inf(1), nil
 		}
 		if t.Quantity == process.Width {
 			return w, nil

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strings"
 	"sync"
 
 	"gonum.org/v1/gonum/integrate/quad"
@@ -697,11 +698,20 @@ func (a *Analysis) processWarnings() []string {
 				}
 			}
 		}
+		// One line for all of them: a process file shared by several jobs
+		// names layers and quantities that some jobs lack.
+		var idle []string
 		for t, ok := range bound {
 			if !ok {
-				out = append(out, fmt.Sprintf("variation term %q on %s moves nothing of any section used (its layer is outside every section's field, or it is a quantity the sections lack)",
-					a.In.Process.Terms[t].Name, a.In.Process.Terms[t].On))
+				idle = append(idle, fmt.Sprintf("%q on %s", a.In.Process.Terms[t].Name, a.In.Process.Terms[t].On))
 			}
+		}
+		switch len(idle) {
+		case 0:
+		case 1:
+			out = append(out, fmt.Sprintf("variation term %s moves nothing of any section used (its layer is outside every section's field, or it is a quantity the sections lack)", idle[0]))
+		default:
+			out = append(out, fmt.Sprintf("%d variation terms move nothing of any section used (their layers are outside every section's field, or they are quantities the sections lack): %s", len(idle), strings.Join(idle, ", ")))
 		}
 	}
 	for i, pr := range a.proc {
