@@ -111,8 +111,7 @@ func Compensate(ctx context.Context, in *Input, model *registration.Model, cs *r
 	before.Evaluate(curves)
 	after.Evaluate(curves)
 	cmp := &Comparison{Result: res, Before: before, After: after}
-	if !in.Process.Empty() {
-		n := len(in.Process.Terms)
+	if n := before.activeTerms(); n > 0 {
 		// The process terms move the cross-section, not the layers: no
 		// artwork scale reaches them. Both analyses carry them unchanged
 		// (one Input, one set of curves), so both yields include them.

@@ -687,6 +687,29 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 // the solved offsets cuts its offset domain within procRangeSigmas of some
 // site: offsets beyond count as out of spec, though a process excursion
 // could keep the coupling in spec there.
+// activeTerms returns how many process terms move something of a section
+// the analysis uses.
+func (a *Analysis) activeTerms() int {
+	if a.proc == nil {
+		return 0
+	}
+	bound := make([]bool, len(a.In.Process.Terms))
+	for _, pr := range a.proc {
+		if pr != nil {
+			for _, bd := range pr.Bind {
+				bound[bd.Term] = true
+			}
+		}
+	}
+	n := 0
+	for _, ok := range bound {
+		if ok {
+			n++
+		}
+	}
+	return n
+}
+
 func (a *Analysis) processWarnings() []string {
 	var out []string
 	if a.proc != nil {
