@@ -213,6 +213,15 @@ exaggerated arrows, outliers ringed). --contributors FILE writes the lot as
 TOML [[contributor]] blocks for a job's include = [...] (as measured, the
 applied artwork included).
 
+Layers measured against the drilled holes on the same panels share each
+panel's drill error. fit keeps that pairing: it prints the per-panel
+differences of each such pair ("L3-L4", mean ± sigma, the drill error
+cancelled; "differences" in the JSON), and --contributors writes the group
+as one table of means per layer plus weighted components of each term's
+layer-to-layer covariance over the panels, so that an offset between two of
+the layers has the spread of the per-panel differences. A lot of fewer than
+five panels is flagged (its sigma is poorly known); one panel gives means only.
+
 --applied gives the artwork scale each measured layer was built with: a CSV
 file (layer,scale_x [ppm],scale_y [ppm]) or the compact LAYER:x=+200ppm,y=+180ppm,
 repeatable; a layer not named was built at CAD size, and one the targets lack
