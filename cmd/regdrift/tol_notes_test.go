@@ -199,3 +199,53 @@ func TestTolNotesAllocationMeetsTarget(t *testing.T) {
 		}
 	}
 }
+
+// TestTolNotesTarget: a --target that is not a yield between 0 and 100 % is
+// a usage error (exit 2, nothing written); without variation terms the
+// notes hold the registration line alone.
+func TestTolNotesTarget(t *testing.T) {
+	job := writeJob(t, yieldJob)
+	for _, bad := range []string{"100%", "0%", "-5%", "99.73", "abc%"} {
+		dir := filepath.Join(t.TempDir(), "out")
+		code, _, errs := run(t, "tol", job, "--accuracy", "1%", "--target", bad, "-o", dir)
+		if code != 2 || !strings.Contains(errs, "--target") {
+			t.Errorf("--target %s: exit %d: %s", bad, code, errs)
+		}
+		if _, err := os.Stat(dir); err == nil {
+			t.Errorf("--target %s: %s written", bad, dir)
+		}
+	}
+	dir := t.TempDir()
+	code, _, errs := run(t, "tol", job, "--accuracy", "1%", "--target", "95%", "-o", dir)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	notes, err := os.ReadFile(filepath.Join(dir, "notes.txt"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(notes), "layer-to-layer registration ±") || !strings.Contains(string(notes), "target 95.00 %") {
+		t.Errorf("notes.txt:\n%s", notes)
+	}
+}
+
+// BenchmarkTolNotesAllocate: the allocation of the one-core demo job on
+// its solved curves (each step of the root find is a full closed-form
+// evaluation of every site).
+func BenchmarkTolNotesAllocate(b *testing.B) {
+	j, err := loadJob(noteJobs[0], nil)
+	if err != nil {
+		b.Fatal(err)
+	}
+	in := input(j)
+	curves, err := drift.SolveCurves(b.Context(), &drift.Settings{Accuracy: noteAccuracy, CacheDir: b.TempDir(), Sensitivities: true}, drift.New(in, nil))
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if al := drift.Allocate(in, curves, drift.DefaultTarget); !al.Feasible {
+			b.Fatal("no allocation")
+		}
+	}
+}
