@@ -170,7 +170,13 @@ func tolerance(ctx context.Context, c *Curve, set *Settings, confirm bool) (*Tol
 // at offset, for the curve's frequency, coupled length and reference
 // impedance.
 func SolvedCoupling(c *Curve, set *Settings, offset float64) (float64, error) {
-	sol, err := section.Solve(c.Section, offset, set.Solver())
+	return solvedCouplingOf(c.Section, c, set, offset)
+}
+
+// solvedCouplingOf is SolvedCoupling for section s (c's section or a
+// perturbed copy of it) under c's frequency, length and reference impedance.
+func solvedCouplingOf(s *section.Section, c *Curve, set *Settings, offset float64) (float64, error) {
+	sol, err := section.Solve(s, offset, set.Solver())
 	if err != nil {
 		return 0, err
 	}

@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 	"math"
-	"math/cmplx"
 
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/registration"
@@ -188,13 +187,7 @@ func termLimit(ctx context.Context, c *Curve, set *Settings, m *process.Model, b
 		if err != nil {
 			return 0, err
 		}
-		sol, err := section.Solve(ps2, nom, set.Solver())
-		if err != nil {
-			return 0, err
-		}
-		sc := c.Curve
-		sp := section.NewLines(sol.C, sol.C0).SParams(sc.Frequency, sc.Length, sc.ZRef)
-		return 20 * math.Log10(cmplx.Abs(sp.S31)), nil
+		return solvedCouplingOf(ps2, c, set, nom)
 	}
 	for _, sign := range []float64{-1, 1} {
 		limit := s.Spec.Coupling + sign*s.Spec.Tolerance
@@ -327,13 +320,6 @@ func bindsTerm(p *Proc, ti int) bool {
 		}
 	}
 	return false
-}
-
-// WorstP returns the lowest site PInSpec of in with every σ scaled by k, on
-// curves: the quantity Allocate drives to its target.
-func WorstP(in *Input, curves []*Curve, k float64) float64 {
-	_, p := worstP(in, curves, k)
-	return p
 }
 
 // Notes returns the drawing notes of in on the studied curves (per section;
