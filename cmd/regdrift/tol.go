@@ -253,7 +253,7 @@ func printNotes(w io.Writer, n *drift.DrawingNotes, lu lengthUnit) {
 		return
 	}
 	if !a.Feasible {
-		fmt.Fprintf(w, "drawing notes, all together: no common scale of the sigmas reaches %.2f %% at the worst site (the means and across-panel shapes alone take it below)\n", 100*a.Target)
+		fmt.Fprintf(w, "drawing notes, all together: no common scale of the sigmas reaches %.2f %% at the worst site: the means and across-panel shapes alone leave it at %.3f %%\n", 100*a.Target, 100*a.WorstP)
 		return
 	}
 	fmt.Fprintf(w, "drawing notes, all together (every sigma x %.3f; worst site P(in spec) %.3f %%, target %.2f %%; ±3 sigma):\n", a.K, 100*a.WorstP, 100*a.Target)

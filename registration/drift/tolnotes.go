@@ -271,6 +271,7 @@ func Allocate(in *Input, curves []*Curve, target float64) *Allocation {
 		glo = g(lo)
 	}
 	if glo < 0 {
+		al.K, al.WorstP = lo, glo+target // the best the means and shapes allow
 		return al
 	}
 	k := lo
