@@ -144,7 +144,7 @@ non-positive (or an εr below 1) is bad input. --json carries the same numbers
 
 Usage:
 
-	regdrift tol JOB [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [-o DIR] [--json]
+	regdrift tol JOB [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [--target PCT] [-o DIR] [--json]
 
 Layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study.
 
@@ -172,6 +172,23 @@ spec band, the legend beside the plot).
 Also an orientation study per array: the closed-form mean site yield with
 the parts as placed and turned a quarter turn (couplers kept in place; only
 the offset across the coupled lines counts).
+
+Drawing notes (notes.txt, "notes" in tol.json, and the table). Each
+parameter alone: for the layer-to-layer registration of a broadside pair the
+offset tolerance above; for every parameter a [[variation]] term acts on
+(others nominal, traces at the design offset) the change at which the
+coupling meets each spec limit, first from the sensitivity at the design
+offset, then confirmed by direct solves of the perturbed section (the same
+secant and 0.0002 dB as the offset roots). All together: every σ of the
+registration model and of the variation terms (means and across-panel
+shapes kept) scaled by one factor k, found by regula falsi so that the worst
+site's P(in spec), the one evaluator's, reaches --target (default 99.73%);
+each note then carries ±3·k·σ (a term's site σ, a pair's largest across-line
+σ). The notes use a drawing's words: "L6–L7 layer-to-layer registration
+±0.692 mil", "core KC 36.000 ± 0.646 mil", "etched width on L6 15.800 ±
+0.258 mil", "εr of KC 3.480 ± 0.039". When the means and shapes alone keep
+the worst site below the target, the notes say that no scale reaches it.
+Without variation terms the notes hold the registration line.
 
 # fit
 

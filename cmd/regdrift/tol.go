@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"strconv"
 	"strings"
 	"text/tabwriter"
 
@@ -23,6 +24,7 @@ type tolFlags struct {
 	widen      string
 	widenTrace string
 	strict     bool
+	target     string
 	solver     solverFlags
 }
 
@@ -31,6 +33,7 @@ func (f *tolFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.section, "section", "", "section to study (default: all)")
 	fs.StringVar(&f.widen, "widen", "", "width differences FROM:TO:STEP, each with a unit, e.g. 0mil:4mil:1mil")
 	fs.StringVar(&f.widenTrace, "widen-trace", "lower", "trace the width study widens: upper or lower")
+	fs.StringVar(&f.target, "target", "99.73%", "worst-site yield the drawing notes' allocation scales every sigma to")
 	f.outputFlags.add(fs)
 	addStrict(fs, &f.strict, "a design is outside its spec")
 	f.solver.add(fs)
@@ -51,6 +54,10 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 	set, err := f.solver.settings(std)
 	if err != nil {
 		return err
+	}
+	target, err := parseTarget(f.target)
+	if err != nil {
+		return usageErr("--target: %v", err)
 	}
 	trace := 1
 	switch f.widenTrace {
@@ -75,7 +82,7 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	study := drift.TolStudy{Deltas: deltas, Trace: trace}
+	study := drift.TolStudy{Deltas: deltas, Trace: trace, Target: target}
 	if f.section != "" {
 		si, err := pickSection(j, f.section)
 		if err != nil {
@@ -99,7 +106,8 @@ func (f *tolFlags) run(ctx context.Context, std stdio, args []string) error {
 	}
 	paths, err := writeAll(f.out,
 		outFile{"tol.json", func(w io.Writer) error { return writeJSON(w, res) }},
-		outFile{"tol.png", func(w io.Writer) error { return figure.Tol(w, res, lu.units()) }})
+		outFile{"tol.png", func(w io.Writer) error { return figure.Tol(w, res, lu.units()) }},
+		outFile{"notes.txt", func(w io.Writer) error { return writeNotes(w, j.Title, res.Notes, lu) }})
 	if err != nil {
 		return err
 	}
@@ -158,6 +166,10 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 		}
 		fmt.Fprintln(w)
 	}
+	if r.Notes != nil && (len(r.Notes.Alone) > 0 || r.Notes.Allocation != nil) {
+		printNotes(w, r.Notes, lu)
+		fmt.Fprintln(w)
+	}
 	if len(r.Orientation) > 0 {
 		printOrientationOf(w, r.Orientation, nil, registration.OrientMinGain, false, lu)
 		fmt.Fprintln(w)
@@ -165,4 +177,97 @@ func printTol(w io.Writer, j *Job, r *drift.TolSummary, lu lengthUnit, paths []s
 	if len(paths) > 0 {
 		fmt.Fprintf(w, "wrote %s\n", strings.Join(paths, ", "))
 	}
+}
+
+// parseTarget reads a yield target such as "99.73%": a percentage strictly
+// between 0 and 100.
+func parseTarget(s string) (float64, error) {
+	num, ok := strings.CutSuffix(strings.TrimSpace(s), "%")
+	v, err := strconv.ParseFloat(strings.TrimSpace(num), 64)
+	if !ok || err != nil {
+		return 0, fmt.Errorf("%q: want a percentage such as 99.73%%", s)
+	}
+	if !(v > 0 && v < 100) {
+		return 0, fmt.Errorf("%q: want a yield above 0 and below 100%%", s)
+	}
+	return v / 100, nil
+}
+
+// noteValue formats a design value or a tolerance of a parameter measured
+// per ("m" or "er") in the drawing's units.
+func noteValue(v float64, per string, lu lengthUnit) string {
+	if per == "er" {
+		return fmt.Sprintf("%.3f", v)
+	}
+	return fmt.Sprintf("%.3f", v/lu.factor)
+}
+
+func noteUnit(per string, lu lengthUnit) string {
+	if per == "er" {
+		return ""
+	}
+	return " " + lu.name
+}
+
+// noteWords returns a drawing note: "core KC 36.000 ± 0.646 mil", or for
+// registration (no value) "L6–L7 layer-to-layer registration ±8.684 mil".
+func noteWords(param string, nominal float64, per string, tol float64, lu lengthUnit) string {
+	if nominal == 0 && per == "m" && strings.HasSuffix(param, "registration") {
+		return fmt.Sprintf("%s ±%s%s", param, noteValue(tol, per, lu), noteUnit(per, lu))
+	}
+	return fmt.Sprintf("%s %s ± %s%s", param, noteValue(nominal, per, lu), noteValue(tol, per, lu), noteUnit(per, lu))
+}
+
+// printNotes prints the drawing notes: each parameter's range alone, then
+// the allocation for all together.
+func printNotes(w io.Writer, n *drift.DrawingNotes, lu lengthUnit) {
+	if len(n.Alone) > 0 {
+		fmt.Fprintln(w, "drawing notes, each parameter alone (the others nominal, at the design offset; limits confirmed by direct solves):")
+		sec := ""
+		for _, l := range n.Alone {
+			if l.Section != sec {
+				fmt.Fprintf(w, "  section %s\n", l.Section)
+				sec = l.Section
+			}
+			tol := l.Tolerance()
+			if math.IsInf(tol, 1) {
+				fmt.Fprintf(w, "    %s: the coupling reaches no spec limit within the parameter's physical range\n", l.Parameter)
+				continue
+			}
+			ends := ""
+			for k, d := range []*float64{l.LowDelta, l.HighDelta} {
+				if k > 0 {
+					ends += " / "
+				}
+				if d == nil {
+					ends += "none"
+				} else {
+					ends += fmt.Sprintf("%+.3f", *d/map[bool]float64{true: 1, false: lu.factor}[l.Per == "er"])
+				}
+			}
+			fmt.Fprintf(w, "    %s   (limits at %s%s)\n", noteWords(l.Parameter, l.Nominal, l.Per, tol, lu), ends, noteUnit(l.Per, lu))
+		}
+	}
+	a := n.Allocation
+	if a == nil {
+		return
+	}
+	if !a.Feasible {
+		fmt.Fprintf(w, "drawing notes, all together: no common scale of the sigmas reaches %.2f %% at the worst site: the means and across-panel shapes alone leave it at %.3f %%\n", 100*a.Target, 100*a.WorstP)
+		return
+	}
+	fmt.Fprintf(w, "drawing notes, all together (every sigma x %.3f; worst site P(in spec) %.3f %%, target %.2f %%; ±3 sigma):\n", a.K, 100*a.WorstP, 100*a.Target)
+	for _, t := range a.Terms {
+		fmt.Fprintf(w, "    %s\n", noteWords(t.Parameter, t.Nominal, t.Per, t.PlusMinus, lu))
+	}
+}
+
+// writeNotes writes notes.txt: the drawing notes alone, in a fabrication
+// drawing's words.
+func writeNotes(w io.Writer, title string, n *drift.DrawingNotes, lu lengthUnit) error {
+	fmt.Fprintf(w, "%s\n\n", title)
+	if n != nil {
+		printNotes(w, n, lu)
+	}
+	return nil
 }

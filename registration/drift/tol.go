@@ -26,6 +26,8 @@ type TolSummary struct {
 	Sections    []TolSection `json:"sections"`
 	Orientation []Orient     `json:"orientation,omitempty"`
 	Warnings    []string     `json:"warnings,omitempty"`
+	// Notes are the drawing notes (tolnotes.go).
+	Notes *DrawingNotes `json:"notes,omitempty"`
 }
 
 // TolSection is the offset tolerance of one section.
@@ -168,7 +170,13 @@ func tolerance(ctx context.Context, c *Curve, set *Settings, confirm bool) (*Tol
 // at offset, for the curve's frequency, coupled length and reference
 // impedance.
 func SolvedCoupling(c *Curve, set *Settings, offset float64) (float64, error) {
-	sol, err := section.Solve(c.Section, offset, set.Solver())
+	return solvedCouplingOf(c.Section, c, set, offset)
+}
+
+// solvedCouplingOf is SolvedCoupling for section s (c's section or a
+// perturbed copy of it) under c's frequency, length and reference impedance.
+func solvedCouplingOf(s *section.Section, c *Curve, set *Settings, offset float64) (float64, error) {
+	sol, err := section.Solve(s, offset, set.Solver())
 	if err != nil {
 		return 0, err
 	}
@@ -182,15 +190,24 @@ func SolvedCoupling(c *Curve, set *Settings, offset float64) (float64, error) {
 // refines x by the secant method on direct solves (the curve's slope gives
 // the first step). It returns the refined offset and its solved coupling.
 func ConfirmRoot(ctx context.Context, c *Curve, set *Settings, x, limit float64) (float64, float64, error) {
-	g0, err := SolvedCoupling(c, set, x)
+	h := 0.01 * unit.Mil
+	slope := (c.Coupling(x+h) - c.Coupling(x-h)) / (2 * h)
+	return confirmWith(ctx, func(x float64) (float64, error) { return SolvedCoupling(c, set, x) }, x, slope, limit)
+}
+
+// confirmWith is ConfirmRoot for any directly solved coupling solve(x): it
+// solves at x, the first-order root against limit, and refines x by the
+// secant method on direct solves when the solved coupling is further than
+// ConfirmDB from the limit (slope, the first-order dC/dx, gives the first
+// step). The drawing notes use it for a parameter change (tolnotes.go).
+func confirmWith(ctx context.Context, solve func(float64) (float64, error), x, slope, limit float64) (float64, float64, error) {
+	g0, err := solve(x)
 	if err != nil {
 		return 0, 0, err
 	}
 	if math.Abs(g0-limit) <= ConfirmDB {
 		return x, g0, nil
 	}
-	h := 0.01 * unit.Mil
-	slope := (c.Coupling(x+h) - c.Coupling(x-h)) / (2 * h)
 	if slope == 0 {
 		return x, g0, errors.New("the coupling curve is flat at the root")
 	}
@@ -200,7 +217,7 @@ func ConfirmRoot(ctx context.Context, c *Curve, set *Settings, x, limit float64)
 		if err := ctx.Err(); err != nil {
 			return 0, 0, err
 		}
-		g1, err := SolvedCoupling(c, set, x1)
+		g1, err := solve(x1)
 		if err != nil {
 			return 0, 0, err
 		}
@@ -245,6 +262,9 @@ type TolStudy struct {
 	// empty), applied to trace Trace (0 upper, 1 lower).
 	Deltas []float64
 	Trace  int
+	// Target is the worst-site yield of the drawing notes' allocation; 0
+	// means DefaultTarget.
+	Target float64
 }
 
 // Tol runs the tolerance study of in: per section its confirmed spec
@@ -270,6 +290,8 @@ func Tol(ctx context.Context, in *Input, study TolStudy, set *Settings) (*TolSum
 			widened[si] = append(widened[si], w)
 		}
 	}
+	// Process terms need the sensitivities, for the evaluator and the notes.
+	set = withSensitivities(set, in)
 	a := New(in, nil)
 	reach := Reach(a)
 	curves := make([]*Curve, len(in.Sections))
@@ -311,6 +333,15 @@ func Tol(ctx context.Context, in *Input, study TolStudy, set *Settings) (*TolSum
 		a.Evaluate(curves)
 		res.Orientation = a.Orientation()
 	}
+	target := study.Target
+	if target == 0 {
+		target = DefaultTarget
+	}
+	notes, err := Notes(ctx, in, curves, res.Sections, set, target, complete)
+	if err != nil {
+		return nil, err
+	}
+	res.Notes = notes
 	return res, nil
 }
 

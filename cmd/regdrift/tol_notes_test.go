@@ -1,0 +1,251 @@
+package main
+
+import (
+	"encoding/json"
+	"math"
+	"math/cmplx"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/registration"
+	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/registration/process"
+)
+
+// noteJobs are the demo jobs with process terms the drawing-note tests run
+// on: broadside stripline (dielectric thickness, εr, etched width) and
+// edge-coupled microstrip (finished copper and plating, mask, width).
+var noteJobs = []string{"../../samples/topology-one-core.toml", "../../samples/topology-microstrip.toml"}
+
+// noteAccuracy is a coarse solver accuracy, for speed: both the tool and
+// the checks below solve at it, so they test the root-finding and the
+// perturbation, not the solver.
+const noteAccuracy = 0.02
+
+func runTolNotes(t *testing.T, job string) (*drift.TolSummary, string) {
+	t.Helper()
+	out := t.TempDir()
+	code, stdout, errs := run(t, "tol", job, "--accuracy", "2%", "-o", out, "--json")
+	if code != 0 {
+		t.Fatalf("%s: exit %d: %s", job, code, errs)
+	}
+	var r drift.TolSummary
+	if err := json.Unmarshal([]byte(stdout), &r); err != nil {
+		t.Fatal(err)
+	}
+	if r.Notes == nil {
+		t.Fatalf("%s: no drawing notes", job)
+	}
+	return &r, out
+}
+
+// TestTolNotesDirectSolveOnSpecEdge: a direct solve of the section with one
+// process term's parameters moved by its reported limit (the others
+// nominal, at the design offset) lands on the spec edge within 0.005 dB,
+// the bound the feature is held to (25 times the 2e-4 dB the confirmation
+// asks for, so it leaves room for nothing but the confirmation itself). The
+// coupling is |S31| of the coupled-line section (Pozar, Microwave
+// Engineering, 4th ed., sec. 7.6).
+func TestTolNotesDirectSolveOnSpecEdge(t *testing.T) {
+	for _, job := range noteJobs {
+		r, _ := runTolNotes(t, job)
+		j, err := loadJob(job, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		checked := 0
+		for _, l := range r.Notes.Alone {
+			if l.Term == "" {
+				continue // the registration line: TestTolRoundTrip checks the offset roots
+			}
+			var term *process.Term
+			for i := range j.Process.Terms {
+				if j.Process.Terms[i].Name == l.Term {
+					term = &j.Process.Terms[i]
+				}
+			}
+			s := j.Sections[sectionIndex(t, j.Sections, l.Section)]
+			if term == nil {
+				t.Fatalf("%s: note for unknown term %q", job, l.Term)
+			}
+			c, _, err := section.CachedSweep(t.Context(), s, section.DefaultOffsets(s, 0), &section.Settings{Accuracy: noteAccuracy}, cacheDir(t), false)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for k, d := range []*float64{l.LowDelta, l.HighDelta} {
+				if d == nil {
+					continue
+				}
+				limit := *[]*float64{l.LimitLowDB, l.LimitHighDB}[k]
+				if limit != s.Spec.Coupling-s.Spec.Tolerance && limit != s.Spec.Coupling+s.Spec.Tolerance {
+					t.Errorf("%s %q: limit %g dB is not a spec limit", job, l.Term, limit)
+				}
+				ps := s
+				for _, kind := range term.Kinds() {
+					if p, ok := s.FindParam(term.Layer, kind); ok {
+						ps = ps.Perturbed(p, *d)
+					}
+				}
+				sol, err := section.Solve(ps, s.NominalOffset(), &section.Settings{Accuracy: noteAccuracy})
+				if err != nil {
+					t.Fatal(err)
+				}
+				got := 20 * math.Log10(cmplx.Abs(section.NewLines(sol.C, sol.C0).SParams(c.Frequency, c.Length, c.ZRef).S31))
+				if math.Abs(got-limit) > 0.005 {
+					t.Errorf("%s %q moved by %+.4g: solved %.5f dB, spec edge %.3f dB", job, l.Term, *d, got, limit)
+				}
+				checked++
+			}
+		}
+		if checked < 4 {
+			t.Errorf("%s: only %d limits checked", job, checked)
+		}
+	}
+}
+
+// sectionIndex returns the index of the section named name.
+func sectionIndex(t *testing.T, secs []*section.Section, name string) int {
+	t.Helper()
+	for i, s := range secs {
+		if s.Name == name {
+			return i
+		}
+	}
+	t.Fatalf("no section %q", name)
+	return -1
+}
+
+// worstScaled analyses job afresh with every registration and process σ
+// multiplied by k (done here by hand, apart from the tool's own scaling)
+// and returns the lowest site P(in spec).
+func worstScaled(t *testing.T, job string, k float64) float64 {
+	t.Helper()
+	j, err := loadJob(job, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	in := input(j)
+	m := *in.Model
+	m.Contributors = append([]registration.Contributor(nil), m.Contributors...)
+	for i := range m.Contributors {
+		for q := range m.Contributors[i].Terms {
+			m.Contributors[i].Terms[q].Spread *= k
+		}
+		m.Contributors[i].SiteSigma *= k
+	}
+	pm := *in.Process
+	pm.Terms = append([]process.Term(nil), pm.Terms...)
+	for i := range pm.Terms {
+		pm.Terms[i].Panel.Spread *= k
+		pm.Terms[i].SiteSigma *= k
+	}
+	in.Model, in.Process = &m, &pm
+	a, err := drift.Analyse(t.Context(), in, &drift.Settings{Accuracy: noteAccuracy, CacheDir: cacheDir(t)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	worst := 1.0
+	for i := range a.Sites {
+		worst = math.Min(worst, a.Sites[i].PInSpec)
+	}
+	return worst
+}
+
+// TestTolNotesAllocationMeetsTarget: scaling every σ by the reported k and
+// analysing the job afresh gives a worst-site P(in spec) equal to the
+// target within 1e-4. The bracket on k closes to 1e-6 of k, and the
+// worst-site P moves by a few per cent per unit of k here, so the root
+// itself is good to ~1e-7; the fresh analysis solves its curves over the
+// reach of the scaled model, and 1e-4 leaves room for that difference in
+// the curves' interpolation. On the microstrip job the edge plating's
+// across-panel shape alone takes the worst site out of spec: the tool says
+// no scale reaches the target, and a thousandth of every σ indeed does not.
+func TestTolNotesAllocationMeetsTarget(t *testing.T) {
+	for _, job := range noteJobs {
+		r, out := runTolNotes(t, job)
+		al := r.Notes.Allocation
+		if al == nil || math.Abs(al.Target-drift.DefaultTarget) > 1e-12 {
+			t.Fatalf("%s: allocation %+v", job, al)
+		}
+		notes, err := os.ReadFile(filepath.Join(out, "notes.txt"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !strings.Contains(string(notes), "all together") {
+			t.Errorf("%s: notes.txt:\n%s", job, notes)
+		}
+		if !al.Feasible {
+			if strings.Contains(job, "one-core") {
+				t.Errorf("%s: no allocation", job)
+			}
+			if p := worstScaled(t, job, 1e-3); p >= al.Target {
+				t.Errorf("%s: said infeasible, yet σ × 0.001 gives a worst site P %.6f", job, p)
+			}
+			continue
+		}
+		worst := worstScaled(t, job, al.K)
+		t.Logf("%s: k %.6f, worst site P %.7f afresh, %.7f by the tool", job, al.K, worst, al.WorstP)
+		if math.Abs(worst-al.Target) > 1e-4 {
+			t.Errorf("%s: k %.6f gives a worst site P %.6f, target %.4f (tool said %.6f)", job, al.K, worst, al.Target, al.WorstP)
+		}
+		// Each process term's note is ±3·k·σ of its site σ.
+		for _, n := range al.Terms {
+			if n.Term != "" && math.Abs(n.PlusMinus-3*al.K*n.SigmaIn) > 1e-12*n.PlusMinus {
+				t.Errorf("%s %q: ±%g, 3kσ %g", job, n.Term, n.PlusMinus, 3*al.K*n.SigmaIn)
+			}
+		}
+	}
+}
+
+// TestTolNotesTarget: a --target that is not a yield between 0 and 100 % is
+// a usage error (exit 2, nothing written); without variation terms the
+// notes hold the registration line alone.
+func TestTolNotesTarget(t *testing.T) {
+	job := writeJob(t, yieldJob)
+	for _, bad := range []string{"100%", "0%", "-5%", "99.73", "abc%"} {
+		dir := filepath.Join(t.TempDir(), "out")
+		code, _, errs := run(t, "tol", job, "--accuracy", "1%", "--target", bad, "-o", dir)
+		if code != 2 || !strings.Contains(errs, "--target") {
+			t.Errorf("--target %s: exit %d: %s", bad, code, errs)
+		}
+		if _, err := os.Stat(dir); err == nil {
+			t.Errorf("--target %s: %s written", bad, dir)
+		}
+	}
+	dir := t.TempDir()
+	code, _, errs := run(t, "tol", job, "--accuracy", "1%", "--target", "95%", "-o", dir)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	notes, err := os.ReadFile(filepath.Join(dir, "notes.txt"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(notes), "layer-to-layer registration ±") || !strings.Contains(string(notes), "target 95.00 %") {
+		t.Errorf("notes.txt:\n%s", notes)
+	}
+}
+
+// BenchmarkTolNotesAllocate: the allocation of the one-core demo job on
+// its solved curves (each step of the root find is a full closed-form
+// evaluation of every site).
+func BenchmarkTolNotesAllocate(b *testing.B) {
+	j, err := loadJob(noteJobs[0], nil)
+	if err != nil {
+		b.Fatal(err)
+	}
+	in := input(j)
+	curves, err := drift.SolveCurves(b.Context(), &drift.Settings{Accuracy: noteAccuracy, CacheDir: b.TempDir(), Sensitivities: true}, drift.New(in, nil))
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	for b.Loop() {
+		if al := drift.Allocate(in, curves, drift.DefaultTarget); !al.Feasible {
+			b.Fatal("no allocation")
+		}
+	}
+}
