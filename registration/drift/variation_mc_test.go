@@ -32,7 +32,9 @@ func TestMCTab(t *testing.T) {
 			Shape: process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}},
 		{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.4*mil), SiteSigma: 0.1 * mil,
 			Shape: process.Shape{Kind: process.Tilt, Amplitude: 0.6 * mil}},
-		{Name: "e4", Layer: "L4", Quantity: process.Etch, Panel: term(0, 0.1*mil)}}}
+		{Name: "e4", Layer: "L4", Quantity: process.Etch, Panel: term(0, 0.1*mil)},
+		// A second dome: one shape group of two terms.
+		{Name: "er2", Layer: "C2", Quantity: process.Er, Panel: term(0, 0.02), Shape: process.Shape{Kind: process.Dome, Amplitude: 0.04}}}}
 	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: &registration.Model{}, Process: pm}
 	a, err := Analyse(t.Context(), in, testSettings(t))
 	if err != nil {
@@ -42,29 +44,38 @@ func TestMCTab(t *testing.T) {
 	if pc == nil {
 		t.Fatal("no process check")
 	}
+	if mt := pc.tabs[0]; mt.nb != 4 || len(mt.groups) != 3 {
+		t.Fatalf("%d bindings in %d shape groups, want 4 in 3 (dome, tilt, flat)", mt.nb, len(mt.groups))
+	}
 	const (
 		meanBound = 1e-12 // dB
 		varBound  = 1e-12 // relative
 	)
 	rng := rand.New(rand.NewPCG(1, 2))
+	w := pc.NewWorker().(*procCheckWorker)
 	var worstM, worstV float64
-	for k := range pc.sites {
-		ps := &pc.sites[k]
-		ev, mt := ps.ev, ps.tab
-		nb := len(ps.mu)
-		db := make([]float64, nb)
-		for range 500 {
-			for b := range db {
-				db[b] = 0.2 * mil * rng.NormFloat64()
+	var row procRow
+	for range 200 {
+		for t := range w.dev {
+			w.dev[t] = 0.2 * mil * rng.NormFloat64()
+		}
+		w.newPanel()
+		for k := range pc.sites {
+			ps := &pc.sites[k]
+			if ps.tab == nil {
+				t.Fatalf("site %d unclaimed", k)
 			}
+			mt := ps.tab
+			ev := mt.ev
 			x := rng.Float64() * mt.last
 			off := mt.lo + x*mt.step
-			m, v := mt.at(x, ps.mu, db)
+			m, v := w.at(ps, x)
+			ev.Proc.row(&row, a.Sites[k].Site.Pos)
 			wm, wv := ev.Curve.Coupling(off), 0.0
-			for b := range nb {
+			for b, mu := range row.means() {
 				sb := ev.termSens(b, off)
-				wm += sb * (ps.mu[b] + db[b])
-				wv += sb * sb * ps.sv[b]
+				wm += sb * (mu + w.dev[ev.Proc.Bind[b].Term])
+				wv += sb * sb * mt.sv[b]
 			}
 			worstM = math.Max(worstM, math.Abs(m-wm))
 			if wv > 0 {
