@@ -216,7 +216,11 @@ func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
 	var v float64
 	for b := range wb {
 		s := r0[b] + f*(r1[b]-r0[b])
-		m += s * (wb[b] + mt.amp[b]*mt.groups[mt.group[b]].At(pos, size))
+		mb := wb[b]
+		if q := mt.group[b]; q >= 0 {
+			mb += mt.amp[b] * mt.groups[q].At(pos, size)
+		}
+		m += s * mb
 		v += s * s * mt.sv[b]
 	}
 	if mt.site {
@@ -263,7 +267,7 @@ type mcTab struct {
 	section       int
 	sv            []float64 // per binding, the variance of the per-site part
 	mean, amp     []float64 // per binding, Mᵦ and Aᵦ
-	group         []int     // per binding, its group
+	group         []int     // per binding, its group (−1 for a flat term)
 	groups        []process.Shape
 	nb, n, stride int
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
@@ -281,7 +285,7 @@ func unitShape(s process.Shape) (process.Shape, float64) {
 	case process.Grid:
 		return s, 1
 	case process.Flat:
-		return process.Shape{}, 0
+		return s, 0
 	}
 	a := s.Amplitude
 	s.Amplitude = 1
@@ -302,7 +306,10 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		mt.site = mt.site || mt.sv[b] > 0
 		mt.mean[b] = t.Panel.Mean
 		u, a := unitShape(t.Shape)
-		mt.amp[b] = a
+		mt.amp[b], mt.group[b] = a, -1
+		if t.Shape.Kind == process.Flat {
+			continue // no shape part: in no group
+		}
 		q := len(mt.groups)
 		for k, g := range mt.groups {
 			if g == u {
@@ -338,9 +345,10 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
 			sd[2*b], sd[2*b+1] = s, ds
-			q := mt.group[b]
-			row[mcTabExtra+2*q] += mt.amp[b] * s
-			row[mcTabExtra+2*q+1] += mt.amp[b] * ds
+			if q := mt.group[b]; q >= 0 {
+				row[mcTabExtra+2*q] += mt.amp[b] * s
+				row[mcTabExtra+2*q+1] += mt.amp[b] * ds
+			}
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds
 			k[6] += mt.sv[b] * ds * ds

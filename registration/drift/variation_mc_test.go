@@ -44,8 +44,8 @@ func TestMCTab(t *testing.T) {
 	if pc == nil {
 		t.Fatal("no process check")
 	}
-	if mt := pc.tabs[0]; mt.nb != 4 || len(mt.groups) != 3 {
-		t.Fatalf("%d bindings in %d shape groups, want 4 in 3 (dome, tilt, flat)", mt.nb, len(mt.groups))
+	if mt := pc.tabs[0]; mt.nb != 4 || len(mt.groups) != 2 {
+		t.Fatalf("%d bindings in %d shape groups, want 4 in 2 (dome, tilt; the flat term in none)", mt.nb, len(mt.groups))
 	}
 	const (
 		meanBound = 1e-12 // dB
