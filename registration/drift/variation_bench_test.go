@@ -114,3 +114,24 @@ func cpuSeconds(b *testing.B) float64 {
 	}
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano()).Seconds()
 }
+
+// BenchmarkMonteCarloProcessMemory shows that memory is flat in the number
+// of trials with process terms: B/op and allocs/op are the same for two
+// blocks of panels (one per worker) and for ten.
+func BenchmarkMonteCarloProcessMemory(b *testing.B) {
+	in := bigProcessInput(b)
+	a, err := Analyse(b.Context(), in, &Settings{Accuracy: 0.01, CacheDir: b.TempDir()})
+	if err != nil {
+		b.Fatal(err)
+	}
+	for _, blocks := range []int{2, 10} {
+		b.Run(map[int]string{2: "trials=512", 10: "trials=2560"}[blocks], func(b *testing.B) {
+			b.ReportAllocs()
+			for b.Loop() {
+				if _, err := a.Yield.MonteCarlo(b.Context(), registration.MCSettings{Trials: blocks * registration.MCBlock, Seed: 1, Workers: 2}); err != nil {
+					b.Fatal(err)
+				}
+			}
+		})
+	}
+}
