@@ -208,12 +208,25 @@ func (mt *mcTab) flat(sp *pcPanel, j int) {
 // it draws as InSpec does.
 func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
 	mt := w.pc.sites[i].tab
+	m, v := w.slowAt(i, off)
+	if mt.site {
+		n := rng.NormFloat64()
+		if v > 0 {
+			m += math.Sqrt(v) * n
+		}
+	}
+	sp := mt.ev.Curve.Section.Spec
+	return mt.ev.Proc.Domain.Contains(off) && math.Abs(m-sp.Coupling) <= sp.Tolerance
+}
+
+// slowAt is at for site i at offset off from the curve and Proc.rows.
+func (w *procCheckWorker) slowAt(i int, off float64) (m, v float64) {
+	mt := w.pc.sites[i].tab
 	ev := mt.ev
-	m := ev.Curve.Coupling(off)
+	m = ev.Curve.Coupling(off)
 	r0, r1, f := ev.Proc.rows(off)
 	pos, size := w.pc.a.Sites[i].Site.Pos, ev.Proc.Model.Size
 	wb := w.sec[mt.section].w[:mt.nb]
-	var v float64
 	for b := range wb {
 		s := r0[b] + f*(r1[b]-r0[b])
 		mb := wb[b]
@@ -223,14 +236,7 @@ func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
 		m += s * mb
 		v += s * s * mt.sv[b]
 	}
-	if mt.site {
-		n := rng.NormFloat64()
-		if v > 0 {
-			m += math.Sqrt(v) * n
-		}
-	}
-	sp := ev.Curve.Section.Spec
-	return ev.Proc.Domain.Contains(off) && math.Abs(m-sp.Coupling) <= sp.Tolerance
+	return m, v
 }
 
 // mcTabExtra is the number of values before the shape groups in an mcTab

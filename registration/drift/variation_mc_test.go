@@ -11,7 +11,8 @@ import (
 	"github.com/regdrift/regdrift/registration/process"
 )
 
-// TestMCTab: the Monte Carlo table's mean and per-site variance agree
+// TestMCTab: the Monte Carlo table's mean and per-site variance (and
+// those of the fallback outside the table, slowAt) agree
 // with the same quantities from the curve itself (section.Curve.Coupling,
 // the monotone cubic the closed form reads) and Proc.rows (the
 // sensitivities' linear interpolation) at random offsets over the whole
@@ -76,6 +77,10 @@ func TestMCTab(t *testing.T) {
 				sb := ev.termSens(b, off)
 				wm += sb * (mu + w.dev[ev.Proc.Bind[b].Term])
 				wv += sb * sb * mt.sv[b]
+			}
+			// The fallback for offsets outside the table is the same sum.
+			if sm, sv := w.slowAt(k, off); math.Abs(sm-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
+				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sm, sv, wm, wv)
 			}
 			worstM = math.Max(worstM, math.Abs(m-wm))
 			if wv > 0 {
