@@ -11,9 +11,20 @@ import (
 	"github.com/regdrift/regdrift/panel/unit"
 )
 
-// ConfirmDB is how close a confirmed root's directly solved coupling must
+// ConfirmDB is how close a confirmed root's directly solved coupling should
 // come to the spec limit.
 const ConfirmDB = 2e-4
+
+// ConfirmNoiseDB is how close it must come when the direct solves jitter
+// on a scale finer than ConfirmDB allows. Each direct solve meshes its own
+// geometry, and moving a trace edge by a few ten-thousandths of a mil moves
+// the mesh lines that follow it: for an edge-coupled microstrip pair under
+// mask the solved coupling jitters by about 5e-4 dB over such steps
+// (measured on samples/topology-microstrip.toml at 0.1 %), so the secant
+// can circle the root without landing within ConfirmDB. The best iterate
+// is then kept if it is within 2e-3 dB, a hundredth of a 0.2 dB tolerance
+// and below the solver's own error at the default accuracy.
+const ConfirmNoiseDB = 2e-3
 
 // MaxWidthStacks bounds a widened trace to this many stackup thicknesses:
 // far beyond any coupler (whose width is a fraction of the ground spacing),
@@ -213,6 +224,7 @@ func confirmWith(ctx context.Context, solve func(float64) (float64, error), x, s
 	}
 	x0, f0 := x, g0-limit
 	x1 := x0 - f0/slope
+	bestX, bestG := x0, g0
 	for range 8 {
 		if err := ctx.Err(); err != nil {
 			return 0, 0, err
@@ -225,12 +237,18 @@ func confirmWith(ctx context.Context, solve func(float64) (float64, error), x, s
 		if math.Abs(f1) <= ConfirmDB {
 			return x1, g1, nil
 		}
+		if math.Abs(f1) < math.Abs(bestG-limit) {
+			bestX, bestG = x1, g1
+		}
 		if f1 == f0 {
 			break
 		}
 		x0, f0, x1 = x1, f1, x1-f1*(x1-x0)/(f1-f0)
 	}
-	return x1, 0, fmt.Errorf("direct solves do not meet the limit %.3f dB within %.4f dB", limit, ConfirmDB)
+	if math.Abs(bestG-limit) <= ConfirmNoiseDB {
+		return bestX, bestG, nil
+	}
+	return x1, 0, fmt.Errorf("direct solves do not meet the limit %.3f dB within %.4f dB (the nearest came to %.4f dB)", limit, ConfirmNoiseDB, bestG-limit)
 }
 
 // retunedTolerance returns the smaller distance from the design offset to the
