@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strings"
 
 	"github.com/regdrift/regdrift/panel/unit"
@@ -152,4 +153,43 @@ func ReadApplied(r io.Reader, file string) (AppliedSet, error) {
 		return nil, &CSVError{File: file, Err: errors.New("no layers after the header")}
 	}
 	return set, nil
+}
+
+// ParseAppliedFlag reads the compact form of one layer's applied artwork,
+// LAYER:x=SCALE[,y=SCALE], with a strain unit on each scale ("L3:x=+200ppm,
+// y=+180ppm"); an axis left out is zero. An artwork belongs to one layer, not
+// a pair, and a scale must lie within ±50 %.
+func ParseAppliedFlag(v string) (Applied, error) {
+	const want = "want LAYER:x=SCALE,y=SCALE such as L3:x=+200ppm,y=+180ppm"
+	layer, rest, ok := strings.Cut(v, ":")
+	layer = strings.TrimSpace(layer)
+	a := Applied{Layer: layer}
+	if !ok || layer == "" || rest == "" {
+		return a, errors.New(want)
+	}
+	if _, _, rel := SplitLayer(layer); rel || strings.Contains(layer, "-") {
+		return a, errors.New("the artwork belongs to one layer, not a pair")
+	}
+	seen := map[string]bool{}
+	for _, kv := range strings.Split(rest, ",") {
+		k, val, ok := strings.Cut(kv, "=")
+		k = strings.ToLower(strings.TrimSpace(k))
+		if !ok || (k != "x" && k != "y") || seen[k] {
+			return a, errors.New(want)
+		}
+		seen[k] = true
+		s, err := unit.Parse(strings.TrimSpace(val), unit.Strain)
+		if err != nil {
+			return a, fmt.Errorf("%s: %w", k, err)
+		}
+		if !(math.Abs(s) < 0.5) {
+			return a, fmt.Errorf("%s: an artwork scale must lie within ±50 %%", k)
+		}
+		if k == "x" {
+			a.ScaleX = s
+		} else {
+			a.ScaleY = s
+		}
+	}
+	return a, nil
 }

@@ -2,6 +2,7 @@ package registration
 
 import (
 	"errors"
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -119,4 +120,59 @@ func FuzzReadApplied(f *testing.F) {
 			}
 		}
 	})
+}
+
+// FuzzParseAppliedFlag: the compact --applied form never panics, and
+// whatever it accepts prints back (in ppm) to the same layer and scales.
+func FuzzParseAppliedFlag(f *testing.F) {
+	for _, s := range []string{"L3:x=+200ppm,y=+180ppm", "L4:y=-0.15mil/in", "L3:x=1%", ":x=1ppm", "L3:", "L3:x=", "L3-L4:x=1ppm", "L3:x=1ppm,x=2ppm", "L3:X = 5 ppm"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		a, err := ParseAppliedFlag(s)
+		if err != nil {
+			return
+		}
+		if !(math.Abs(a.ScaleX) < 0.5 && math.Abs(a.ScaleY) < 0.5) {
+			t.Fatalf("%q: accepted %g, %g beyond ±50 %%", s, a.ScaleX, a.ScaleY)
+		}
+		back := fmt.Sprintf("%s:x=%.17gppm,y=%.17gppm", a.Layer, a.ScaleX*1e6, a.ScaleY*1e6)
+		b, err := ParseAppliedFlag(back)
+		if err != nil {
+			t.Fatalf("%q → %q: %v", s, back, err)
+		}
+		if b.Layer != a.Layer || math.Abs(b.ScaleX-a.ScaleX) > 1e-15 || math.Abs(b.ScaleY-a.ScaleY) > 1e-15 {
+			t.Fatalf("%q → %+v, back %q → %+v", s, a, back, b)
+		}
+	})
+}
+
+// TestParseAppliedFlag: the compact form's accepted and refused values.
+func TestParseAppliedFlag(t *testing.T) {
+	for _, c := range []struct {
+		in     string
+		x, y   float64
+		errHas string
+	}{
+		{"L3:x=+200ppm,y=+180ppm", 200e-6, 180e-6, ""},
+		{"L4:y=-15ppm", 0, -15e-6, ""},
+		{"L3: X = 0.01 % ", 100e-6, 0, ""},
+		{"L3-L4:x=1ppm", 0, 0, "not a pair"},
+		{"L3:x=1ppm,x=2ppm", 0, 0, "want LAYER"},
+		{"L3:x=60%", 0, 0, "±50 %"},
+		{"L3:x=2mil", 0, 0, "x:"},
+		{"L3", 0, 0, "want LAYER"},
+	} {
+		a, err := ParseAppliedFlag(c.in)
+		switch {
+		case c.errHas != "":
+			if err == nil || !strings.Contains(err.Error(), c.errHas) {
+				t.Errorf("%q: error %v, want one saying %q", c.in, err, c.errHas)
+			}
+		case err != nil:
+			t.Errorf("%q: %v", c.in, err)
+		case math.Abs(a.ScaleX-c.x) > 1e-18 || math.Abs(a.ScaleY-c.y) > 1e-18 || a.Layer != strings.TrimSpace(strings.Split(c.in, ":")[0]):
+			t.Errorf("%q: read %+v, want x %g y %g", c.in, a, c.x, c.y)
+		}
+	}
 }

@@ -2,10 +2,8 @@ package main
 
 import (
 	"fmt"
-	"math"
 	"strings"
 
-	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
 
@@ -51,38 +49,12 @@ func parseApplied(values []string, std stdio) (set registration.AppliedSet, src 
 	return set, src, nil
 }
 
-// parseAppliedFlag reads LAYER:x=SCALE[,y=SCALE].
+// parseAppliedFlag reads LAYER:x=SCALE[,y=SCALE] (registration.ParseAppliedFlag);
+// an error is a usage error naming the value.
 func parseAppliedFlag(v string) (registration.Applied, error) {
-	const want = "want LAYER:x=SCALE,y=SCALE such as L3:x=+200ppm,y=+180ppm"
-	layer, rest, ok := strings.Cut(v, ":")
-	layer = strings.TrimSpace(layer)
-	a := registration.Applied{Layer: layer}
-	if !ok || layer == "" || rest == "" {
-		return a, usageErr("--applied %q: %s", v, want)
-	}
-	if strings.Contains(layer, "-") {
-		return a, usageErr("--applied %q: the artwork belongs to one layer, not a pair", v)
-	}
-	seen := map[string]bool{}
-	for _, kv := range strings.Split(rest, ",") {
-		k, val, ok := strings.Cut(kv, "=")
-		k = strings.ToLower(strings.TrimSpace(k))
-		if !ok || (k != "x" && k != "y") || seen[k] {
-			return a, usageErr("--applied %q: %s", v, want)
-		}
-		seen[k] = true
-		s, err := unit.Parse(strings.TrimSpace(val), unit.Strain)
-		if err != nil {
-			return a, usageErr("--applied %q: %s: %v", v, k, err)
-		}
-		if !(math.Abs(s) < 0.5) {
-			return a, usageErr("--applied %q: %s: an artwork scale must lie within ±50 %%", v, k)
-		}
-		if k == "x" {
-			a.ScaleX = s
-		} else {
-			a.ScaleY = s
-		}
+	a, err := registration.ParseAppliedFlag(v)
+	if err != nil {
+		return a, usageErr("--applied %q: %v", v, err)
 	}
 	return a, nil
 }

@@ -413,7 +413,7 @@ The history is one SQLite file: --db PATH, else $REGDRIFT_DB, else
 regdrift-history.db in the working directory. Several engineers may add lots
 to it at once; each lot is stored whole or not at all.
 
-	regdrift history add TARGETS.csv --lot ID [--date YYYY-MM-DD] --construction FILE|KEY [--applied FILE] [--robust]
+	regdrift history add TARGETS.csv --lot ID [--date YYYY-MM-DD] --construction FILE|KEY [--applied FILE|LAYER:x=S,y=S] [--robust]
 
 fits the lot as 'regdrift fit' does (the same --model, --robust, --weight and
 --datum) and stores each panel's and layer's terms, standard errors, residual
@@ -421,8 +421,8 @@ RMS and maximum and the targets set aside. --construction names the build of
 each layer: a CSV file "layer,construction,role" (for example "L3,5 mil
 high-Tg core 1/1 oz,core top"), or one key for every layer, each layer then
 its own role. --applied gives the artwork scale each layer was built with
-("layer,scale_x [ppm],scale_y [ppm]"; layers not named were built at CAD
-size). A lot already stored is refused unless --replace.
+(a CSV file "layer,scale_x [ppm],scale_y [ppm]", or one layer's
+LAYER:x=+200ppm,y=+180ppm; layers not named were built at CAD size). A lot already stored is refused unless --replace.
 
 Sign convention: a scale is positive when a length grows. A layer built with
 artwork a that measured ε moved m = (1+ε)/(1+a) − 1 ≈ ε − a; the artwork

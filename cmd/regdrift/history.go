@@ -61,7 +61,7 @@ func (f *historyFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.lot, "lot", "", "add: the lot's name (unique in the history)")
 	fs.StringVar(&f.date, "date", "", "add: the lot's build date, YYYY-MM-DD (default today)")
 	fs.StringVar(&f.construction, "construction", "", "add: a constructions file (CSV: layer, construction, role) or one construction key for every layer; trend, table: only this construction")
-	fs.StringVar(&f.applied, "applied", "", "add: the artwork scale each layer was built with (CSV: layer, scale_x [ppm], scale_y [ppm]); layers not named were built at CAD size")
+	fs.StringVar(&f.applied, "applied", "", "add: the artwork scale each layer was built with: a CSV file (layer, scale_x [ppm], scale_y [ppm]) or LAYER:x=SCALE,y=SCALE; layers not named were built at CAD size")
 	fs.BoolVar(&f.replace, "replace", false, "add, import: store a lot again that is already stored")
 	fs.StringVar(&f.model, "model", "affine", "add: terms fitted: affine (6), similarity (4) or translation (2)")
 	fs.BoolVar(&f.robust, "robust", false, "add: reweight iteratively and reject mis-measured targets")
@@ -212,14 +212,16 @@ func (f *historyFlags) add(ctx context.Context, std stdio, path string, args []s
 	applied := registration.AppliedSet{}
 	appliedName := ""
 	if f.applied != "" {
-		data, name, err := readFile(f.applied, nil)
-		if err != nil {
-			return badInput(fmt.Errorf("--applied: %w", err))
+		// Standard input is the targets' ("-"), never the artwork's.
+		noStdin := std
+		noStdin.in = nil
+		var src map[string]string
+		if applied, src, err = parseApplied([]string{f.applied}, noStdin); err != nil {
+			return err
 		}
-		if applied, err = registration.ReadApplied(strings.NewReader(string(data)), name); err != nil {
-			return badInput(err)
+		for _, n := range src {
+			appliedName = n
 		}
-		appliedName = name
 	}
 	r, err := runFitFile(args[0], std.in, set, 2)
 	if err != nil {

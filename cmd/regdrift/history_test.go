@@ -124,6 +124,7 @@ func TestHistoryBadInput(t *testing.T) {
 		{"lot already stored", []string{"add", targets, "--db", db, "--lot", h.Name, "--construction", "K"}, []string{h.Name, "already stored"}},
 		{"fit not determined", []string{"add", few, "--db", db, "--lot", "X2", "--construction", "K"}, []string{"few.csv", `"L3"`, "too few targets"}},
 		{"applied layer not measured", []string{"add", targets, "--db", db, "--lot", "X3", "--construction", "K", "--applied", appliedL9}, []string{"applied-l9.csv", "row 3", `"L9"`}},
+		{"applied compact form, layer not measured", []string{"add", targets, "--db", db, "--lot", "X6", "--construction", "K", "--applied", "L9:x=+100ppm"}, []string{"--applied", `"L9"`}},
 		{"database is a directory", []string{"add", targets, "--db", filepath.Join(dir, "adir"), "--lot", "X4", "--construction", "K"}, []string{"adir", "directory"}},
 		{"database directory missing", []string{"add", targets, "--db", filepath.Join(dir, "no", "h.db"), "--lot", "X5", "--construction", "K"}, []string{"does not exist"}},
 		{"unknown construction", []string{"table", "--db", db, "--construction", "nope"}, []string{`"nope"`, `"K"`}},
