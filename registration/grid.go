@@ -127,8 +127,7 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 			return nil, &CSVError{File: file, Row: 1, Err: fmt.Errorf("missing column %q (want x, y, dx, dy with units, e.g. \"dx [mil]\")", need)}
 		}
 	}
-	type node struct{ x, y, dx, dy float64 }
-	var nodes []node
+	var nodes []GridNode
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -146,12 +145,23 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 				return nil, err
 			}
 		}
-		nodes = append(nodes, node{v[0], v[1], v[2], v[3]})
+		nodes = append(nodes, GridNode{v[0], v[1], v[2], v[3]})
 	}
+	return NewGrid(file, nodes)
+}
+
+// GridNode is one node of a grid as read from a file: its position and the
+// values it holds (DY is unused by a grid of one value per node).
+type GridNode struct{ X, Y, DX, DY float64 }
+
+// NewGrid assembles nodes, in any order, into a complete regular grid; file
+// names the file they came from, for the errors (no nodes, not a regular
+// grid, a node given twice).
+func NewGrid(file string, nodes []GridNode) (*Grid, error) {
 	if len(nodes) == 0 {
 		return nil, &CSVError{File: file, Err: errors.New("no grid nodes")}
 	}
-	xs, ys := distinct(nodes, func(n node) float64 { return n.x }), distinct(nodes, func(n node) float64 { return n.y })
+	xs, ys := distinct(nodes, func(n GridNode) float64 { return n.X }), distinct(nodes, func(n GridNode) float64 { return n.Y })
 	if len(xs)*len(ys) != len(nodes) {
 		return nil, &CSVError{File: file, Err: fmt.Errorf("%d nodes do not form a regular %d x %d grid", len(nodes), len(xs), len(ys))}
 	}
@@ -161,12 +171,12 @@ func ReadGrid(r io.Reader, file string) (*Grid, error) {
 		g.DX[j], g.DY[j], seen[j] = make([]float64, len(xs)), make([]float64, len(xs)), make([]bool, len(xs))
 	}
 	for _, n := range nodes {
-		i, j := sort.SearchFloat64s(xs, n.x), sort.SearchFloat64s(ys, n.y)
+		i, j := sort.SearchFloat64s(xs, n.X), sort.SearchFloat64s(ys, n.Y)
 		if seen[j][i] {
-			return nil, &CSVError{File: file, Err: fmt.Errorf("node (%g, %g) m given twice", n.x, n.y)}
+			return nil, &CSVError{File: file, Err: fmt.Errorf("node (%g, %g) m given twice", n.X, n.Y)}
 		}
 		seen[j][i] = true
-		g.DX[j][i], g.DY[j][i] = n.dx, n.dy
+		g.DX[j][i], g.DY[j][i] = n.DX, n.DY
 	}
 	return g, nil
 }

@@ -318,39 +318,9 @@ func (r *fitRun) printTable(w io.Writer, lu lengthUnit) {
 		fmt.Fprintf(tw, "%.3f\t%.3f\t%s\t\n", f.RMS/lu.factor, f.Max/lu.factor, strings.Join(f.Outliers, " "))
 	}
 	tw.Flush()
-	fmt.Fprintf(w, "\nlot (mean ± panel-to-panel sigma):\n")
-	tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-	fmt.Fprintf(tw, "layer\tpanels\t%s\n", termHeader(lu))
-	for _, l := range r.Lots {
-		fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
-		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-			u, kind := termUnit(k, lu)
-			if !l.Model.Estimates(k) {
-				fmt.Fprintf(tw, "-\t")
-				continue
-			}
-			fmt.Fprintf(tw, "%.2f ± %.2f\t", unit.In(l.Mean[k], kind, u), unit.In(l.SD[k], kind, u))
-		}
-		fmt.Fprintf(tw, "\n")
-	}
-	tw.Flush()
+	printLots(w, "lot (mean ± panel-to-panel sigma)", "layer", r.Lots, lu)
 	if len(r.Differences) > 0 {
-		fmt.Fprintf(w, "\nper-panel differences of layers measured on the same panels (mean ± sigma; the drill error both share cancels):\n")
-		tw = tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
-		fmt.Fprintf(tw, "layers\tpanels\t%s\n", termHeader(lu))
-		for _, l := range r.Differences {
-			fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
-			for k := registration.TermKind(0); k < registration.NumTerms; k++ {
-				u, kind := termUnit(k, lu)
-				if !l.Model.Estimates(k) {
-					fmt.Fprintf(tw, "-\t")
-					continue
-				}
-				fmt.Fprintf(tw, "%.2f ± %.2f\t", unit.In(l.Mean[k], kind, u), unit.In(l.SD[k], kind, u))
-			}
-			fmt.Fprintf(tw, "\n")
-		}
-		tw.Flush()
+		printLots(w, "per-panel differences of layers measured on the same panels (mean ± sigma; the drill error both share cancels)", "layers", r.Differences, lu)
 	}
 	for _, n := range r.Joint.Notes {
 		fmt.Fprintf(w, "note: %s\n", n)
@@ -385,4 +355,25 @@ func printArtwork(w io.Writer, arts []fitreport.Artwork) {
 	}
 	tw.Flush()
 	fmt.Fprintf(w, "the setting cancels each layer's own movement; comp weighs the layers against each other and the coupling windows\n")
+}
+
+// printLots writes a table of lot statistics under title: per lot, its
+// panels and each estimated term's mean ± standard deviation.
+func printLots(w io.Writer, title, first string, lots []registration.Lot, lu lengthUnit) {
+	fmt.Fprintf(w, "\n%s:\n", title)
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
+	fmt.Fprintf(tw, "%s\tpanels\t%s\n", first, termHeader(lu))
+	for _, l := range lots {
+		fmt.Fprintf(tw, "%s\t%d\t", l.Layer, l.Panels)
+		for k := registration.TermKind(0); k < registration.NumTerms; k++ {
+			u, kind := termUnit(k, lu)
+			if !l.Model.Estimates(k) {
+				fmt.Fprintf(tw, "-\t")
+				continue
+			}
+			fmt.Fprintf(tw, "%.2f ± %.2f\t", unit.In(l.Mean[k], kind, u), unit.In(l.SD[k], kind, u))
+		}
+		fmt.Fprintf(tw, "\n")
+	}
+	tw.Flush()
 }

@@ -116,18 +116,11 @@ func (e Evaluator) EvalRow(row registration.Row) Eval {
 // steps as Eval but computing only what q needs.
 func (e Evaluator) Value(q Quantity, p, u panel.Vec) float64 {
 	row := e.Rel.Row(p, u)
-	if e.hasProc() {
-		return e.valueProc(q, row, p)
-	}
-	if q >= termDriftBase || q == ProcessDrift {
-		return 0
-	}
-	if q == PInSpec {
-		return e.pInSpec(&row)
-	}
 	st := e.Rel.Stats(row)
 	c := e.Curve
 	off := c.Section.NominalOffset() + st.MeanAcross
+	// The offset statistics and the registration drift do not depend on
+	// the process terms.
 	switch q {
 	case Offset:
 		return off
@@ -135,9 +128,20 @@ func (e Evaluator) Value(q Quantity, p, u panel.Vec) float64 {
 		return st.SDAcross
 	case Misregistration:
 		return st.MeanAcross
-	case Margin:
+	case RegistrationDrift:
+		return c.Coupling(off) - c.Nominal
+	}
+	if e.hasProc() {
+		return e.valueProc(q, &row, st, off, p)
+	}
+	switch {
+	case q >= termDriftBase || q == ProcessDrift:
+		return 0
+	case q == PInSpec:
+		return e.pInSpec(&row)
+	case q == Margin:
 		return c.Margin(off, c.Coupling(off))
-	case WorstDrift:
+	case q == WorstDrift:
 		return worstDrift(c, off, st.SDAcross)
 	}
 	return c.Coupling(off) - c.Nominal

@@ -545,21 +545,10 @@ func withSensitivities(set *Settings, in *Input) *Settings {
 	return &s
 }
 
-// valueProc is Evaluator.Value with process terms.
-func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) float64 {
-	st := e.Rel.Stats(row)
+// valueProc is Evaluator.Value with process terms, for the quantities that
+// depend on them; st and off are row's offset statistics and mean offset.
+func (e *Evaluator) valueProc(q Quantity, row *registration.Row, st registration.Stats, off float64, p panel.Vec) float64 {
 	c := e.Curve
-	off := c.Section.NominalOffset() + st.MeanAcross
-	switch q {
-	case Offset:
-		return off
-	case Sigma:
-		return st.SDAcross
-	case Misregistration:
-		return st.MeanAcross
-	case RegistrationDrift:
-		return c.Coupling(off) - c.Nominal
-	}
 	var pr procRow
 	e.Proc.row(&pr, p)
 	if q >= termDriftBase {
@@ -574,7 +563,7 @@ func (e *Evaluator) valueProc(q Quantity, row registration.Row, p panel.Vec) flo
 	case WorstDrift:
 		return e.worstDriftProc(off, st.SDAcross, &pr)
 	case PInSpec:
-		return e.pInSpecProc(e.Rel.Prob(&row, c.Section.NominalOffset()), &pr)
+		return e.pInSpecProc(e.Rel.Prob(row, c.Section.NominalOffset()), &pr)
 	case ProcessDrift:
 		return e.mean(off, &pr) - c.Coupling(off)
 	case Margin:
@@ -687,11 +676,11 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 // the solved offsets cuts its offset domain within procRangeSigmas of some
 // site: offsets beyond count as out of spec, though a process excursion
 // could keep the coupling in spec there.
-// activeTerms returns how many process terms move something of a section
-// the analysis uses.
-func (a *Analysis) activeTerms() int {
+// boundTerms reports, per process term of the input, whether it moves
+// something of a section the analysis uses; nil without process terms.
+func (a *Analysis) boundTerms() []bool {
 	if a.proc == nil {
-		return 0
+		return nil
 	}
 	bound := make([]bool, len(a.In.Process.Terms))
 	for _, pr := range a.proc {
@@ -701,8 +690,14 @@ func (a *Analysis) activeTerms() int {
 			}
 		}
 	}
+	return bound
+}
+
+// activeTerms returns how many process terms move something of a section
+// the analysis uses.
+func (a *Analysis) activeTerms() int {
 	n := 0
-	for _, ok := range bound {
+	for _, ok := range a.boundTerms() {
 		if ok {
 			n++
 		}
@@ -712,15 +707,7 @@ func (a *Analysis) activeTerms() int {
 
 func (a *Analysis) processWarnings() []string {
 	var out []string
-	if a.proc != nil {
-		bound := make([]bool, len(a.In.Process.Terms))
-		for _, pr := range a.proc {
-			if pr != nil {
-				for _, bd := range pr.Bind {
-					bound[bd.Term] = true
-				}
-			}
-		}
+	if bound := a.boundTerms(); bound != nil {
 		// One line for all of them: a process file shared by several jobs
 		// names layers and quantities that some jobs lack.
 		var idle []string

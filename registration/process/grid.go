@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"sort"
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/unit"
@@ -43,8 +42,7 @@ func ReadGrid(r io.Reader, file string, length bool) (*registration.Grid, error)
 			return nil, &registration.CSVError{File: file, Row: 1, Err: fmt.Errorf("missing column %q (want x, y, value, e.g. \"value [mil]\")", need)}
 		}
 	}
-	type node struct{ x, y, v float64 }
-	var nodes []node
+	var nodes []registration.GridNode
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -71,29 +69,9 @@ func ReadGrid(r io.Reader, file string, length bool) (*registration.Grid, error)
 				return nil, err
 			}
 		}
-		nodes = append(nodes, node{v[0], v[1], v[2]})
+		nodes = append(nodes, registration.GridNode{X: v[0], Y: v[1], DX: v[2]})
 	}
-	if len(nodes) == 0 {
-		return nil, &registration.CSVError{File: file, Err: errors.New("no grid nodes")}
-	}
-	xs, ys := distinct(nodes, func(n node) float64 { return n.x }), distinct(nodes, func(n node) float64 { return n.y })
-	if len(xs)*len(ys) != len(nodes) {
-		return nil, &registration.CSVError{File: file, Err: fmt.Errorf("%d nodes do not form a regular %d x %d grid", len(nodes), len(xs), len(ys))}
-	}
-	g := &registration.Grid{X: xs, Y: ys, DX: make([][]float64, len(ys)), DY: make([][]float64, len(ys))}
-	seen := make([][]bool, len(ys))
-	for j := range ys {
-		g.DX[j], g.DY[j], seen[j] = make([]float64, len(xs)), make([]float64, len(xs)), make([]bool, len(xs))
-	}
-	for _, n := range nodes {
-		i, j := sort.SearchFloat64s(xs, n.x), sort.SearchFloat64s(ys, n.y)
-		if seen[j][i] {
-			return nil, &registration.CSVError{File: file, Err: fmt.Errorf("node (%g, %g) m given twice", n.x, n.y)}
-		}
-		seen[j][i] = true
-		g.DX[j][i] = n.v
-	}
-	return g, nil
+	return registration.NewGrid(file, nodes)
 }
 
 // Covers reports whether the grid's nodes reach the rectangle |x| ≤ half.X,
@@ -103,19 +81,4 @@ func Covers(g *registration.Grid, half panel.Vec) bool {
 	const slack = 1e-6 // m: a node written at the border to a micrometre still covers it
 	return g.X[0] <= -half.X+slack && g.X[len(g.X)-1] >= half.X-slack &&
 		g.Y[0] <= -half.Y+slack && g.Y[len(g.Y)-1] >= half.Y-slack
-}
-
-func distinct[T any](items []T, f func(T) float64) []float64 {
-	v := make([]float64, 0, len(items))
-	for _, it := range items {
-		v = append(v, f(it))
-	}
-	sort.Float64s(v)
-	out := v[:0]
-	for i, x := range v {
-		if i == 0 || x != out[len(out)-1] {
-			out = append(out, x)
-		}
-	}
-	return out
 }
