@@ -104,8 +104,8 @@ func (f *demoFlags) run(ctx context.Context, std stdio, args []string) error {
 			dev = math.Max(dev, math.Abs(r.Stats.MeanAcross))
 			worst3 = math.Max(worst3, math.Abs(r.WorstDrift))
 		}
-		fmt.Fprintf(std.out, "\n%s: %s\n  map    expected in spec %.1f of %d sites (%d with the mean in spec); largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
-			name, dj.what, sum.ExpectedInSpec, sum.Sites, sum.InSpec, dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
+		fmt.Fprintf(std.out, "\n%s: %s\n  map    expected in spec %.1f of %d sites (%s); largest mean offset from design %.2f mil; drift at the mean down to %+.3f dB, within ±3σ %.3f dB\n",
+			name, dj.what, sum.ExpectedInSpec, sum.Sites, sum.InSpecPhrase(), dev/lu.factor, signedMax(sum.DriftDB.Min, sum.DriftDB.Max), worst3)
 		// The sweep of the first section is the curve the map read.
 		if err := writeSweep(out, a, 0, lu); err != nil {
 			return err

@@ -130,7 +130,7 @@ func writeJSON(w io.Writer, v any) error { return drift.WriteJSON(w, v) }
 
 func printMap(w io.Writer, s *drift.MapSummary, lu lengthUnit, paths []string) {
 	fmt.Fprintf(w, "%s\n", s.Title)
-	fmt.Fprintf(w, "expected in spec %.1f of %d sites (%d with the mean offset in spec)\n", s.ExpectedInSpec, s.Sites, s.InSpec)
+	fmt.Fprintf(w, "expected in spec %.1f of %d sites (%s)\n", s.ExpectedInSpec, s.Sites, s.InSpecPhrase())
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(tw, "section\tsites\texpected in spec\tmean in spec\tlowest P\tnominal [dB]\tspec [dB]\tworst offset from design [%s]\tworst drift [dB]\n", lu.name)
 	for _, ss := range s.Sections {

@@ -144,6 +144,7 @@ type reportSummary struct {
 	Accuracy float64 `json:"solver_accuracy"`
 	Sites    int     `json:"sites"`
 	InSpec   int     `json:"in_spec"`
+	InSpecAt string  `json:"in_spec_at"` // what InSpec judges a site at (drift.MapSummary.InSpecAt)
 	// ExpectedInSpec is the sum over sites of P(in spec), the map's headline.
 	ExpectedInSpec float64 `json:"expected_in_spec"`
 	Parts          int     `json:"parts_per_panel"`
@@ -265,7 +266,7 @@ func (r *reportRun) compensate(ctx context.Context) error {
 
 func (r *reportRun) summary() *reportSummary {
 	s := &reportSummary{Title: r.job.Title, Job: r.job.File, Date: r.date.Format(time.RFC3339), Version: versionString(),
-		Accuracy: r.set.Accuracy, Sites: r.mapSum.Sites, InSpec: r.mapSum.InSpec, Parts: r.yield.Parts,
+		Accuracy: r.set.Accuracy, Sites: r.mapSum.Sites, InSpec: r.mapSum.InSpec, InSpecAt: r.mapSum.InSpecAt, Parts: r.yield.Parts,
 		GoodParts: r.yield.GoodPartsPerPanel.Mean, PartYield: r.yield.PartYieldMean, SiteYield: r.yield.SiteYieldMean,
 		Trials: r.yield.Trials, Seed: r.yield.Seed}
 	if s.Accuracy == 0 {
@@ -287,7 +288,7 @@ func (r *reportRun) summary() *reportSummary {
 func printReport(w io.Writer, s *reportSummary, paths []string) {
 	fmt.Fprintf(w, "%s\n", s.Title)
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(tw, "expected sites in spec\t%.1f of %d (%d with the mean offset in spec)\n", s.ExpectedInSpec, s.Sites, s.InSpec)
+	fmt.Fprintf(tw, "expected sites in spec\t%.1f of %d (%s)\n", s.ExpectedInSpec, s.Sites, (&drift.MapSummary{InSpec: s.InSpec, InSpecAt: s.InSpecAt}).InSpecPhrase())
 	fmt.Fprintf(tw, "good parts per panel\t%.2f of %d (%d panels, seed %d)\n", s.GoodParts, s.Parts, s.Trials, s.Seed)
 	fmt.Fprintf(tw, "worst section\t%s (site yield %.4f %%)\n", s.WorstSection, 100*s.WorstSecYield)
 	fmt.Fprintf(tw, "least likely site\t%s (P(in spec) %.4f, margin %.4f dB)\n", s.WorstSite, s.WorstSiteP, s.WorstMarginDB)

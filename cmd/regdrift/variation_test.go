@@ -138,6 +138,11 @@ func TestMapVariation(t *testing.T) {
 	if !strings.Contains(stdout, "its drift: registration") {
 		t.Errorf("the table does not split the worst drift:\n%s", stdout)
 	}
+	// With process terms the count beside the expected one judges each
+	// site at its mean offset and every term at its mean, and says so.
+	if !strings.Contains(stdout, "in spec at the mean offset and mean process)") {
+		t.Errorf("the headline does not say what the count of sites in spec judges:\n%s", stdout)
+	}
 	rows := readCSV(t, filepath.Join(out, "sites.csv"))
 	col := map[string]int{}
 	for i, h := range rows[0] {

@@ -2,6 +2,7 @@ package drift
 
 import (
 	"encoding/csv"
+	"fmt"
 	"io"
 	"math"
 	"strconv"
@@ -94,9 +95,12 @@ type MapSummary struct {
 	Title string `json:"title"`
 	Job   string `json:"job"`
 	Sites int    `json:"sites"`
-	// InSpec counts the sites whose mean offset is in spec; ExpectedInSpec
-	// is the expected number in spec, the sum of every site's probability.
+	// InSpec counts the sites in spec at their mean (the mean offset, and
+	// with process terms every term at its mean at the site: InSpecAt
+	// says which); ExpectedInSpec is the expected number in spec, the sum
+	// of every site's probability.
 	InSpec         int     `json:"in_spec"`
+	InSpecAt       string  `json:"in_spec_at"`
 	ExpectedInSpec float64 `json:"expected_in_spec"`
 	// OffsetM ranges over the sites' mean offsets with each section's
 	// design offset included; OffsetFromDesignM with it excluded.
@@ -111,6 +115,23 @@ type MapSummary struct {
 	Linearity *Linearity `json:"linearity,omitempty"`
 }
 
+// What MapSummary.InSpec judges a site at.
+const (
+	InSpecAtOffset        = "mean offset"
+	InSpecAtOffsetProcess = "mean offset and mean process"
+)
+
+// InSpecPhrase is the count of sites in spec at their mean in words, for
+// the headlines beside the expected count: "216 in spec at the mean
+// offset".
+func (s *MapSummary) InSpecPhrase() string {
+	at := s.InSpecAt
+	if at == "" {
+		at = InSpecAtOffset
+	}
+	return fmt.Sprintf("%d in spec at the %s", s.InSpec, at)
+}
+
 // Summary notes, in summary.json and under the map's table.
 const (
 	NoteOffsets = "offset_m includes each section's design offset; offset_from_design_m excludes it"
@@ -120,8 +141,11 @@ const (
 // Summary returns the map summary with the n sites least likely to be in
 // spec (Worst).
 func (a *Analysis) Summary(n int) *MapSummary {
-	s := &MapSummary{Title: a.In.Title, Job: a.In.Source, Sites: len(a.Sites), InSpec: a.InSpec(),
+	s := &MapSummary{Title: a.In.Title, Job: a.In.Source, Sites: len(a.Sites), InSpec: a.InSpec(), InSpecAt: InSpecAtOffset,
 		ExpectedInSpec: a.ExpectedInSpec(), Notes: []string{NoteOffsets, NoteWorst}}
+	if !a.In.Process.Empty() {
+		s.InSpecAt = InSpecAtOffsetProcess
+	}
 	off := make([]float64, len(a.Sites))
 	mis := make([]float64, len(a.Sites))
 	drift := make([]float64, len(a.Sites))

@@ -238,7 +238,7 @@ func MapView(w io.Writer, a *drift.Analysis, sum *drift.MapSummary, o MapOptions
 				Kind: render.LegendLine, Width: barWidth * float64(n+1)})
 		}
 	}
-	title = append(title, fmt.Sprintf("expected in spec %.1f of %d sites (%d with the mean offset in spec)", sum.ExpectedInSpec, sum.Sites, sum.InSpec))
+	title = append(title, fmt.Sprintf("expected in spec %.1f of %d sites (%s)", sum.ExpectedInSpec, sum.Sites, sum.InSpecPhrase()))
 	if len(sum.Worst) > 0 {
 		ws := sum.Worst[0]
 		title = append(title, fmt.Sprintf("least likely in spec: %s (%s), P(in spec) %.4f, offset from design %+.2f %s, drift %+.3f dB, margin %.3f dB",
