@@ -259,7 +259,7 @@ func printNotes(w io.Writer, n *drift.DrawingNotes, lu lengthUnit) {
 	fmt.Fprintf(w, "drawing notes, all together (every deviation from nominal scaled by one k: panel means, across-panel shapes and sigmas alike; each note the range over the sites ±%g sigma):\n", a.Coverage)
 	room := fmt.Sprintf("every deviation must shrink to %.3f of the model's", a.K)
 	if a.K >= 1 {
-		room = fmt.Sprintf("the process as modelled meets the target with room: k = %.3f", a.K)
+		room = "the process as modelled meets the target with room"
 	}
 	fmt.Fprintf(w, "  k = %.3f: worst site %s P(in spec) %.3f %%, target %.2f %%; %s\n", a.K, a.WorstSite, 100*a.WorstP, 100*a.Target, room)
 	for _, t := range a.Terms {

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/regdrift/regdrift/panel/section"
+	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/drift"
 	"github.com/regdrift/regdrift/registration/process"
@@ -265,6 +266,64 @@ func TestTolNotesTarget(t *testing.T) {
 	}
 	if !strings.Contains(string(notes), "layer-to-layer registration ±") || !strings.Contains(string(notes), "target 95.00 %") {
 		t.Errorf("notes.txt:\n%s", notes)
+	}
+}
+
+// TestTolNotesRoom: a target the process as modelled beats gives k ≥ 1
+// and says so; a target it misses, k < 1.
+func TestTolNotesRoom(t *testing.T) {
+	job := writeJob(t, yieldJob)
+	for _, tt := range []struct {
+		target string
+		room   bool
+	}{{"50%", true}, {"95%", false}} {
+		dir := t.TempDir()
+		code, stdout, errs := run(t, "tol", job, "--accuracy", "1%", "--target", tt.target, "-o", dir, "--json")
+		if code != 0 {
+			t.Fatalf("--target %s: exit %d: %s", tt.target, code, errs)
+		}
+		var r drift.TolSummary
+		if err := json.Unmarshal([]byte(stdout), &r); err != nil {
+			t.Fatal(err)
+		}
+		al := r.Notes.Allocation
+		notes, err := os.ReadFile(filepath.Join(dir, "notes.txt"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		said := strings.Contains(string(notes), "meets the target with room")
+		if !al.Feasible || (al.K >= 1) != tt.room || said != tt.room {
+			t.Errorf("--target %s: k %.3f, feasible %v, notes:\n%s", tt.target, al.K, al.Feasible, notes)
+		}
+	}
+}
+
+// TestNoteRange: the drawing words of an allocated range, symmetric where
+// the two ends print alike, "+upper/-lower" (each signed) where not.
+func TestNoteRange(t *testing.T) {
+	lu, err := parseUnits("mil")
+	if err != nil {
+		t.Fatal(err)
+	}
+	const mil = unit.Mil
+	for _, tt := range []struct {
+		param     string
+		nominal   float64
+		per       string
+		low, high float64
+		want      string
+	}{
+		{"L3–L4 layer-to-layer registration", 0, "m", -1.5 * mil, 1.5 * mil, "L3–L4 layer-to-layer registration ±1.500 mil"},
+		{"L3–L4 layer-to-layer registration", 0, "m", -1.2 * mil, 1.5 * mil, "L3–L4 layer-to-layer registration +1.500/-1.200 mil"},
+		{"core K2", 12 * mil, "m", -0.3 * mil, 0.3 * mil, "core K2 12.000 ± 0.300 mil"},
+		{"finished copper L1", 2.1 * mil, "m", -0.12 * mil, 0.52 * mil, "finished copper L1 2.100 +0.520/-0.120 mil"},
+		{"finished copper L1", 2.1 * mil, "m", 0.1 * mil, 0.52 * mil, "finished copper L1 2.100 +0.520/+0.100 mil"},
+		{"etched width on L1", 8 * mil, "m", -0.9 * mil, -0.2 * mil, "etched width on L1 8.000 -0.200/-0.900 mil"},
+		{"εr of P2", 3.45, "er", -0.047, 0.047, "εr of P2 3.450 ± 0.047"},
+	} {
+		if got := noteRange(tt.param, tt.nominal, tt.per, tt.low, tt.high, lu); got != tt.want {
+			t.Errorf("%s %g..%g: %q, want %q", tt.param, tt.low, tt.high, got, tt.want)
+		}
 	}
 }
 
