@@ -33,7 +33,7 @@ func (f *tolFlags) flags(fs *pflag.FlagSet) {
 	fs.StringVar(&f.section, "section", "", "section to study (default: all)")
 	fs.StringVar(&f.widen, "widen", "", "width differences FROM:TO:STEP, each with a unit, e.g. 0mil:4mil:1mil")
 	fs.StringVar(&f.widenTrace, "widen-trace", "lower", "trace the width study widens: upper or lower")
-	fs.StringVar(&f.target, "target", "99.73%", "worst-site yield the drawing notes' allocation scales every sigma to")
+	fs.StringVar(&f.target, "target", "99.73%", "worst-site yield the drawing notes' allocation scales every deviation from nominal to")
 	f.outputFlags.add(fs)
 	addStrict(fs, &f.strict, "a design is outside its spec")
 	f.solver.add(fs)
@@ -212,7 +212,7 @@ func noteUnit(per string, lu lengthUnit) string {
 // noteWords returns a drawing note: "core KC 36.000 ± 0.646 mil", or for
 // registration (no value) "L6–L7 layer-to-layer registration ±8.684 mil".
 func noteWords(param string, nominal float64, per string, tol float64, lu lengthUnit) string {
-	if nominal == 0 && per == "m" && strings.HasSuffix(param, "registration") {
+	if isRegistration(param, nominal, per) {
 		return fmt.Sprintf("%s ±%s%s", param, noteValue(tol, per, lu), noteUnit(per, lu))
 	}
 	return fmt.Sprintf("%s %s ± %s%s", param, noteValue(nominal, per, lu), noteValue(tol, per, lu), noteUnit(per, lu))
@@ -253,13 +253,52 @@ func printNotes(w io.Writer, n *drift.DrawingNotes, lu lengthUnit) {
 		return
 	}
 	if !a.Feasible {
-		fmt.Fprintf(w, "drawing notes, all together: no common scale of the sigmas reaches %.2f %% at the worst site: the means and across-panel shapes alone leave it at %.3f %%\n", 100*a.Target, 100*a.WorstP)
+		fmt.Fprintf(w, "drawing notes, all together: no allocation reaches %.2f %% at the worst site: %s\n", 100*a.Target, a.Reason)
 		return
 	}
-	fmt.Fprintf(w, "drawing notes, all together (every sigma x %.3f; worst site P(in spec) %.3f %%, target %.2f %%; ±3 sigma):\n", a.K, 100*a.WorstP, 100*a.Target)
-	for _, t := range a.Terms {
-		fmt.Fprintf(w, "    %s\n", noteWords(t.Parameter, t.Nominal, t.Per, t.PlusMinus, lu))
+	fmt.Fprintf(w, "drawing notes, all together (every deviation from nominal scaled by one k: panel means, across-panel shapes and sigmas alike; each note the range over the sites ±%g sigma):\n", a.Coverage)
+	room := fmt.Sprintf("every deviation must shrink to %.3f of the model's", a.K)
+	if a.K >= 1 {
+		room = "the process as modelled meets the target with room"
 	}
+	fmt.Fprintf(w, "  k = %.3f: worst site %s P(in spec) %.3f %%, target %.2f %%; %s\n", a.K, a.WorstSite, 100*a.WorstP, 100*a.Target, room)
+	for _, t := range a.Terms {
+		fmt.Fprintf(w, "    %s\n", noteRange(t.Parameter, t.Nominal, t.Per, t.Low, t.High, lu))
+	}
+}
+
+// noteRange returns an allocation's drawing note: "core KC 36.000 ± 0.646
+// mil" where the range is symmetric to the digits shown, "finished copper
+// L1 2.270 +0.520/-0.120 mil" where it is not (upper deviation first, each
+// signed: "+0.520/+0.120" is a range wholly above nominal); a registration
+// line carries no value: "L6–L7 layer-to-layer registration ±8.684 mil".
+func noteRange(param string, nominal float64, per string, low, high float64, lu lengthUnit) string {
+	hi, lo := noteValue(high, per, lu), noteValue(-low, per, lu)
+	var tol string
+	if hi == lo {
+		tol = "±" + hi
+		if !isRegistration(param, nominal, per) {
+			tol = "± " + hi
+		}
+	} else {
+		signed := func(v float64) string {
+			if strings.HasPrefix(noteValue(v, per, lu), "-") {
+				return noteValue(v, per, lu)
+			}
+			return "+" + noteValue(v, per, lu)
+		}
+		tol = signed(high) + "/" + signed(low)
+	}
+	if isRegistration(param, nominal, per) {
+		return fmt.Sprintf("%s %s%s", param, tol, noteUnit(per, lu))
+	}
+	return fmt.Sprintf("%s %s %s%s", param, noteValue(nominal, per, lu), tol, noteUnit(per, lu))
+}
+
+// isRegistration reports whether a note is a registration line (no design
+// value of its own).
+func isRegistration(param string, nominal float64, per string) bool {
+	return nominal == 0 && per == "m" && strings.HasSuffix(param, "registration")
 }
 
 // writeNotes writes notes.txt: the drawing notes alone, in a fabrication
