@@ -38,6 +38,10 @@ type ndFront struct {
 	elems  []int32 // elements assembled into this front
 	locals []int32 // per element, the 4 local positions (−1: fixed node)
 	ext    []int32 // per child, its ring's local positions here, children in order
+	// runEnd[c], parallel to ext, is the end (in the child's ring) of the
+	// run of consecutive local positions that ext[c] starts or continues:
+	// the extend-add copies runs rather than single entries.
+	runEnd []int32
 }
 
 // ndSymbolic is the dissection of one mesh plan.
@@ -199,8 +203,18 @@ func newNDSymbolic(m *mesh, idx []int32, nfree int) *ndSymbolic {
 		}
 		for _, ck := range f.kids {
 			c := &sym.fronts[ck]
-			for _, q := range c.vars[c.p:] {
+			ring := c.vars[c.p:]
+			base := len(f.ext)
+			for _, q := range ring {
 				f.ext = append(f.ext, local[q])
+			}
+			f.runEnd = append(f.runEnd, make([]int32, len(ring))...)
+			to, end := f.ext[base:], f.runEnd[base:]
+			for r := len(ring) - 1; r >= 0; r-- {
+				end[r] = int32(r + 1)
+				if r+1 < len(ring) && to[r+1] == to[r]+1 {
+					end[r] = end[r+1]
+				}
 			}
 		}
 		f.locals = make([]int32, 4*len(f.elems))
@@ -320,19 +334,24 @@ func (nf *ndFactor) factor(sym *ndSymbolic, ke []float64, eps func(e int) float6
 			cb := len(c.vars) - c.p
 			base -= cb * cb
 		}
-		ext, at := f.ext, base
+		ext, runEnd, at := f.ext, f.runEnd, base
 		for _, ck := range f.kids {
 			c := &sym.fronts[ck]
 			cb := len(c.vars) - c.p
-			to := ext[:cb]
-			ext = ext[cb:]
+			to, end := ext[:cb], runEnd[:cb]
+			ext, runEnd = ext[cb:], runEnd[cb:]
 			U := nf.stack[at : at+cb*cb]
 			at += cb * cb
 			for r, lr := range to { // to is increasing (newNDSymbolic)
-				row := U[r*cb+r : r*cb+cb]
+				row := U[r*cb : r*cb+cb]
 				dst := F[int(lr)*m : int(lr)*m+m]
-				for cc, lc := range to[r:] {
-					dst[lc] += row[cc]
+				for cc := r; cc < cb; {
+					e := int(end[cc])
+					d, src := dst[to[cc]:][:e-cc], row[cc:e]
+					for k, v := range src {
+						d[k] += v
+					}
+					cc = e
 				}
 			}
 		}
