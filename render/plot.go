@@ -433,6 +433,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 
 	dc.DrawRectangle(fb.x0, fb.y0, fb.x1-fb.x0, fb.y1-fb.y0)
 	dc.Clip()
+	c.clipped = true
 	var legend []LegendItem
 	for _, b := range a.Bands {
 		col := b.Color
@@ -610,6 +611,7 @@ func (c *Canvas) drawAxesPanel(a *Axes, f plotFrame, yt []float64, ystep float64
 	// Text is drawn after the clip is lifted: gg draws text under a clip
 	// mask through a scratch image the size of the whole canvas.
 	dc.ResetClip()
+	c.clipped = false
 	for _, l := range labels {
 		l()
 	}

@@ -1,13 +1,9 @@
 package render
 
 import (
-	"image"
 	"image/color"
-	"math"
 
 	"github.com/fogleman/gg"
-	"golang.org/x/image/font"
-	"golang.org/x/image/math/fixed"
 )
 
 // A Sketch is a Canvas for a figure that lays itself out (a drawing to
@@ -37,54 +33,17 @@ func (ts TextStyle) internal() textStyle {
 
 // Text draws str anchored at (x, y): ax = 0, 0.5, 1 puts x at the left,
 // centre or right of the text; ay = 0, 0.5, 1 puts y at the top, middle or
-// base of the capital letters. It draws the glyphs with a font.Drawer
-// straight into the pixels (image/draw's glyph path), five times faster
-// than gg's DrawString, which resamples every glyph through a bilinear
-// transform even when nothing is rotated or scaled.
+// base of the capital letters (the glyphs go straight into the pixels, see
+// Canvas.drawText).
 func (s *Sketch) Text(str string, x, y, ax, ay float64, ts TextStyle) {
-	size := ts.Size
-	if size == 0 {
-		size = 1
-	}
-	px := size * s.em
-	face := s.face(px, ts.Bold)
-	w := fixedToFloat(font.MeasureString(face, str))
-	x -= ax * w
-	base := y + (1-ay)*capHeight*px
-	draw := func(col color.Color, dx, dy float64) {
-		d := font.Drawer{Dst: s.img, Src: image.NewUniform(col), Face: face,
-			Dot: fixed.Point26_6{X: fixed.Int26_6(math.Round((x + dx) * 64)), Y: fixed.Int26_6(math.Round((base + dy) * 64))}}
-		d.DrawString(str)
-	}
-	if ts.Halo {
-		r := math.Max(1, 0.09*px)
-		for k := range 12 {
-			a := float64(k) * math.Pi / 6
-			draw(Halo, r*math.Cos(a), r*math.Sin(a))
-		}
-	}
-	draw(orInk(ts.Color), 0, 0)
+	s.text(str, x, y, ax, ay, ts.internal())
 }
-
-func fixedToFloat(v fixed.Int26_6) float64 { return float64(v) / 64 }
 
 // TextUp draws str reading upwards, centred on (x, y).
 func (s *Sketch) TextUp(str string, x, y float64, ts TextStyle) { s.textUp(str, x, y, ts.internal()) }
 
 // TextWidth returns the advance width of str in pixels.
-func (s *Sketch) TextWidth(str string, ts TextStyle) float64 {
-	size := ts.Size
-	if size == 0 {
-		size = 1
-	}
-	return fixedToFloat(font.MeasureString(s.face(size*s.em, ts.Bold), str))
-}
+func (s *Sketch) TextWidth(str string, ts TextStyle) float64 { return s.measure(str, ts.internal()) }
 
 // CapHeight returns the height of a capital letter in pixels at the size ts.
-func (s *Sketch) CapHeight(ts TextStyle) float64 {
-	size := ts.Size
-	if size == 0 {
-		size = 1
-	}
-	return capHeight * size * s.em
-}
+func (s *Sketch) CapHeight(ts TextStyle) float64 { return capHeight * ts.internal().px(s.em) }

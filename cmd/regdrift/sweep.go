@@ -96,6 +96,13 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 			return usageErr("--excursions: section %q: %v", s.Name, err)
 		}
 	}
+	// Without the mesh the cross-section picture does not depend on the
+	// solve: it is drawn on the side while the offsets solve, which leaves
+	// both cores to the sweep plot afterwards.
+	var early *drawnAhead
+	if !f.mesh {
+		early = drawAhead(s, lu.units())
+	}
 	var c *section.Curve
 	var hit bool
 	if f.offsets == "" {
@@ -136,7 +143,12 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 	files := []outFile{
 		{"sweep.csv", func(w io.Writer) error { return drift.WriteSweepCSV(w, c, lu.units()) }},
 		{"sweep.png", func(w io.Writer) error { return figure.Sweep(w, s, c, lu.units()) }}}
-	pic, err := sectionPicture(s, c, f.mesh, lu.units())
+	var pic func(io.Writer) error
+	if early != nil {
+		pic, err = early.result()
+	} else {
+		pic, err = sectionPicture(s, c, f.mesh, lu.units())
+	}
 	if err != nil {
 		return err
 	}
@@ -287,6 +299,48 @@ func sectionPicture(s *section.Section, c *section.Curve, mesh bool, u unit.Outp
 		}
 	}
 	return func(w io.Writer) error { return figure.Section(w, s, d, m, u) }, nil
+}
+
+// drawnAhead is section.png without the mesh, drawn into memory on its own
+// goroutine (drawAhead) while the sweep solves.
+type drawnAhead struct {
+	done  chan struct{}
+	buf   bytes.Buffer
+	err   error
+	panic any
+}
+
+// drawAhead starts drawing s's cross-section picture without the mesh, as
+// sectionPicture would.
+func drawAhead(s *section.Section, u unit.Output) *drawnAhead {
+	a := &drawnAhead{done: make(chan struct{})}
+	go func() {
+		defer close(a.done)
+		// A panic is re-raised on the caller's goroutine (result), where
+		// realMain reports it as a crash.
+		defer func() { a.panic = recover() }()
+		var pic func(io.Writer) error
+		if pic, a.err = sectionPicture(s, nil, false, u); a.err == nil {
+			a.err = pic(&a.buf)
+		}
+	}()
+	return a
+}
+
+// result waits for the picture and returns a writer of its bytes, or the
+// error that stopped it.
+func (a *drawnAhead) result() (func(io.Writer) error, error) {
+	<-a.done
+	if a.panic != nil {
+		panic(a.panic)
+	}
+	if a.err != nil {
+		return nil, a.err
+	}
+	return func(w io.Writer) error {
+		_, err := w.Write(a.buf.Bytes())
+		return err
+	}, nil
 }
 
 // prerender draws the figures among files at once, each into memory on its

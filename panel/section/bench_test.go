@@ -2,9 +2,14 @@ package section
 
 import (
 	"context"
+	"fmt"
 	"syscall"
 	"testing"
 	"time"
+
+	"gonum.org/v1/gonum/blas"
+	"gonum.org/v1/gonum/blas/blas64"
+	"gonum.org/v1/gonum/lapack/lapack64"
 )
 
 // cpuTime returns the user plus system CPU time of the process.
@@ -114,4 +119,34 @@ func BenchmarkDrawing(b *testing.B) {
 			}
 		}
 	})
+}
+
+// BenchmarkFront times the partial factorisation of one front, U11 by gonum
+// Potrf and the rest by schur, against gonum's Trsm and Syrk for the rest.
+func BenchmarkFront(b *testing.B) {
+	for _, sz := range frontSizes {
+		p, m := sz[0], sz[0]+sz[1]
+		f0 := randomFront(m, 1)
+		F := make([]float64, m*m)
+		for _, v := range []struct {
+			name string
+			fn   func([]float64, int, int)
+		}{
+			{"schur", func(F []float64, m, p int) {
+				lapack64.Potrf(blas64.Symmetric{Uplo: blas.Upper, N: p, Data: F, Stride: m})
+				if m > p {
+					schur(F, m, p)
+				}
+			}},
+			{"gonum-trsm-syrk", gonumFront},
+		} {
+			b.Run(fmt.Sprintf("%s/%d+%d", v.name, p, m-p), func(b *testing.B) {
+				b.ReportAllocs()
+				for b.Loop() {
+					copy(F, f0)
+					v.fn(F, m, p)
+				}
+			})
+		}
+	}
 }

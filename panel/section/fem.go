@@ -220,16 +220,16 @@ func (w *femWork) capacitance(vacuum bool) (c [2][2]float64, resid float64, err 
 			}
 		}
 	}
-	sym := m.p.dissection(m, w.idx, n)
-	if !w.nd.factor(sym, w.ke, epsOf, vacuum) {
-		return c, 0, errNotPD(n)
-	}
 	bnorm := [2]float64{}
 	for p := range n {
 		bnorm[0] += w.rhs[2*p] * w.rhs[2*p]
 		bnorm[1] += w.rhs[2*p+1] * w.rhs[2*p+1]
 	}
-	w.nd.solve2(w.rhs)
+	sym := m.p.dissection(m, w.idx, n)
+	if !w.nd.factor(sym, w.ke, epsOf, vacuum, w.rhs) { // and the forward half of the solve
+		return c, 0, errNotPD(n)
+	}
+	w.nd.backward(w.rhs)
 	// Full potentials.
 	nn := len(m.tag)
 	for k := range 2 {
