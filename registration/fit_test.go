@@ -220,12 +220,12 @@ func TestHelmertGhilaniWolf(t *testing.T) {
 				name      string
 				got, want float64
 				tol       float64
-			}{fmt.Sprintf("vE%d", i+1), -f.Residuals[i].X, v[0], 6e-4},
+			}{fmt.Sprintf("vE%d", i+1), -f.Residual(i).X, v[0], 6e-4},
 			struct {
 				name      string
 				got, want float64
 				tol       float64
-			}{fmt.Sprintf("vN%d", i+1), -f.Residuals[i].Y, v[1], 6e-4})
+			}{fmt.Sprintf("vN%d", i+1), -f.Residual(i).Y, v[1], 6e-4})
 	}
 	for _, ch := range checks {
 		if math.Abs(ch.got-ch.want) > ch.tol {
@@ -372,10 +372,11 @@ func TestLotStats(t *testing.T) {
 func TestPooledResiduals(t *testing.T) {
 	var fits []Fit
 	for p := 0; p < 4; p++ {
-		ts := gridTargets(fmt.Sprint(p), "L3", 5, 5, 16*in, 20*in, truth, panel.Vec{}, 0, nil)
-		f := Fit{Layer: "L3", Targets: ts, Residuals: make([]panel.Vec, len(ts))}
-		f.Residuals[12] = panel.Vec{X: 5 * um} // the centre target
-		fits = append(fits, f)
+		// A fit with all parameters zero leaves each target's displacement
+		// as its residual.
+		ts := gridTargets(fmt.Sprint(p), "L3", 5, 5, 16*in, 20*in, [NumTerms]float64{}, panel.Vec{}, 0, nil)
+		ts[12].D = panel.Vec{X: 5 * um} // the centre target
+		fits = append(fits, Fit{Layer: "L3", Group: GroupTargets(ts).Groups[0]})
 	}
 	g := PooledResiduals(fits, "L3", 5, 5)
 	if d := g.At(panel.Vec{}); math.Abs(d.X-5*um) > 0.5*um {

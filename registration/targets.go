@@ -1,10 +1,13 @@
 package registration
 
 import (
+	"bytes"
+	"cmp"
 	"errors"
 	"fmt"
-	"hash/maphash"
 	"io"
+	"math"
+	"slices"
 	"strings"
 
 	"github.com/regdrift/regdrift/panel"
@@ -39,15 +42,121 @@ func SplitLayer(s string) (upper, lower string, relative bool) {
 	return s, "", false
 }
 
-// ReadTargets reads a measurement file (CSV). The header carries units:
+// TargetSet is a measurement file held in memory compactly: its targets
+// grouped by panel and layer, the groups in order of first appearance and
+// the targets of a group in file order.
+//
+// A target costs what it needs and no more: its nominal position and its
+// displacement (four float64, 32 bytes, kept at full precision so that a
+// fit of a set is the same to the bit as one of the []Target it came
+// from), its file row (int32) and its name (its bytes in the group's
+// arena and an int32 end offset), about 46 bytes for a six-letter name.
+// The panel and layer names are stored once per group. A []Target holds
+// the same target in 88 bytes plus a string header and allocation per
+// name, and a file of millions of targets is what fit is asked to read.
+type TargetSet struct {
+	Groups []*TargetGroup
+}
+
+// TargetGroup is the targets of one panel and layer, columnwise: target i
+// is at Pos[i], measured displacement D[i], on file row Rows[i], named
+// Name(i).
+type TargetGroup struct {
+	Panel, Layer string
+	Pos, D       []panel.Vec // m
+	Rows         []int32     // 1-based line of the file (header = 1), for messages
+	names        []byte      // the names, back to back
+	nameEnd      []uint32    // the end of name i in names
+}
+
+// Len returns the number of targets in the group.
+func (g *TargetGroup) Len() int { return len(g.Pos) }
+
+// name returns target i's name as bytes of the arena (not a copy).
+func (g *TargetGroup) name(i int) []byte {
+	var a uint32
+	if i > 0 {
+		a = g.nameEnd[i-1]
+	}
+	return g.names[a:g.nameEnd[i]]
+}
+
+// Name returns the name of target i.
+func (g *TargetGroup) Name(i int) string { return string(g.name(i)) }
+
+// Target returns target i as a Target.
+func (g *TargetGroup) Target(i int) Target {
+	return Target{Panel: g.Panel, Layer: g.Layer, Name: g.Name(i), Pos: g.Pos[i], D: g.D[i], Row: int(g.Rows[i])}
+}
+
+// add appends a target to the group.
+func (g *TargetGroup) add(name string, pos, d panel.Vec, row int) {
+	g.Pos = append(g.Pos, pos)
+	g.D = append(g.D, d)
+	g.Rows = append(g.Rows, int32(row))
+	g.names = append(g.names, name...)
+	g.nameEnd = append(g.nameEnd, uint32(len(g.names)))
+}
+
+// Len returns the number of targets in the set.
+func (s *TargetSet) Len() int {
+	n := 0
+	for _, g := range s.Groups {
+		n += g.Len()
+	}
+	return n
+}
+
+// GroupTargets returns ts as a set: grouped by panel and layer in order of
+// first appearance, each group in the order of ts.
+func GroupTargets(ts []Target) *TargetSet {
+	type key struct{ panel, layer string }
+	index := map[key]*TargetGroup{}
+	s := &TargetSet{}
+	for _, t := range ts {
+		g := index[key{t.Panel, t.Layer}]
+		if g == nil {
+			g = &TargetGroup{Panel: t.Panel, Layer: t.Layer}
+			index[key{t.Panel, t.Layer}] = g
+			s.Groups = append(s.Groups, g)
+		}
+		g.add(t.Name, t.Pos, t.D, t.Row)
+	}
+	return s
+}
+
+// Targets returns the set as a []Target in file order (by row).
+func (s *TargetSet) Targets() []Target {
+	out := make([]Target, 0, s.Len())
+	for _, g := range s.Groups {
+		for i := range g.Len() {
+			out = append(out, g.Target(i))
+		}
+	}
+	slices.SortStableFunc(out, func(a, b Target) int { return cmp.Compare(a.Row, b.Row) })
+	return out
+}
+
+// ReadTargets reads a measurement file (CSV) as ReadTargetSet does and
+// returns its targets in file order.
+func ReadTargets(r io.Reader, file string) ([]Target, error) {
+	s, err := ReadTargetSet(r, file)
+	if err != nil {
+		return nil, err
+	}
+	return s.Targets(), nil
+}
+
+// ReadTargetSet reads a measurement file (CSV). The header carries units:
 //
 //	panel,layer,target,x [in],y [in],dx [mil],dy [mil]
 //
 // gives the nominal target position and the measured displacement; the columns
 // x_meas [unit], y_meas [unit] (the measured position) may stand instead of dx
 // and dy. Lines starting with '#' are comments; other columns are ignored.
-// Errors are *CSVError values naming the row and column.
-func ReadTargets(r io.Reader, file string) ([]Target, error) {
+// Errors are *CSVError values naming the row and column; of several, the
+// one on the earliest row.
+func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 	cr, err := NewCSVReader(r, file)
 	if err != nil {
 		return nil, err
@@ -95,34 +204,16 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 	if !disp {
 		numeric = []string{"x", "y", "x_meas", "y_meas"}
 	}
+	iPanel, iLayer, iTarget := idx["panel"], idx["layer"], idx["target"]
 	// Memory is per target, so nothing here may keep a row alive: the
-	// reader reuses its record, a panel or layer name is stored once
-	// (intern), a target name is copied out of the row's string, and the
-	// duplicate check keys on the group's number rather than on its names.
+	// reader reuses its record and a target's name is copied into its
+	// group's arena. The duplicate check runs per group once the file is
+	// read (duplicate), so that it needs no map of every name.
 	cr.ReuseRecord = true
-	names := map[string]string{}
-	intern := func(v string) string {
-		if s, ok := names[v]; ok {
-			return s
-		}
-		v = strings.Clone(v)
-		names[v] = v
-		return v
-	}
-	type group struct{ panel, layer string }
-	groups := map[group]int32{}
-	// seen maps a hash of (group, name) to the index of the first target
-	// with it; a hit is confirmed against that target, and the rare distinct
-	// targets with one hash go to exact, so a slot costs 12 bytes, not a
-	// string and a row per target.
-	type key struct {
-		group int32
-		name  string
-	}
-	seed := maphash.MakeSeed()
-	seen := map[uint64]int32{}
-	exact := map[key]int32{}
-	var out []Target
+	type key struct{ panel, layer string }
+	index := map[key]*TargetGroup{}
+	set := &TargetSet{}
+	var failed *CSVError // the first error of a row, which ends the reading
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -130,30 +221,38 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 		}
 		if err != nil {
 			// FieldPos is only valid after a successful Read.
-			return nil, ReadError(file, err)
+			failed = ReadError(file, err)
+			break
 		}
 		line, _ := cr.FieldPos(0)
 		if len(rec) != len(header) {
-			return nil, &CSVError{File: file, Row: line, Err: fmt.Errorf("%d fields, the header has %d", len(rec), len(header))}
+			failed = &CSVError{File: file, Row: line, Err: fmt.Errorf("%d fields, the header has %d", len(rec), len(header))}
+			break
 		}
-		var t Target
-		t.Row = line
-		for _, c := range []string{"panel", "layer", "target"} {
-			v := strings.TrimSpace(rec[idx[c]])
-			if v == "" {
-				return nil, &CSVError{File: file, Row: line, Column: c, Err: ErrEmptyCell}
-			}
-			switch c {
-			case "panel":
-				t.Panel = intern(v)
-			case "layer":
-				t.Layer = intern(v)
-			case "target":
-				t.Name = strings.Clone(v)
+		if line > math.MaxInt32 {
+			failed = &CSVError{File: file, Row: line, Err: fmt.Errorf("more than %d lines", math.MaxInt32)}
+			break
+		}
+		var names [3]string
+		for k, c := range [...]int{iPanel, iLayer, iTarget} {
+			if names[k] = strings.TrimSpace(rec[c]); names[k] == "" {
+				failed = &CSVError{File: file, Row: line, Column: [...]string{"panel", "layer", "target"}[k], Err: ErrEmptyCell}
+				break
 			}
 		}
-		if a, b, rel := SplitLayer(t.Layer); rel && (a == "" || b == "" || strings.Contains(b, "-") || a == b) {
-			return nil, &CSVError{File: file, Row: line, Column: "layer", Err: fmt.Errorf("%q: want a layer (\"L3\") or a pair of different layers (\"L3-L4\")", t.Layer)}
+		if failed != nil {
+			break
+		}
+		g := index[key{names[0], names[1]}]
+		if g == nil {
+			layer := names[1]
+			if a, b, rel := SplitLayer(layer); rel && (a == "" || b == "" || strings.Contains(b, "-") || a == b) {
+				failed = &CSVError{File: file, Row: line, Column: "layer", Err: fmt.Errorf("%q: want a layer (\"L3\") or a pair of different layers (\"L3-L4\")", layer)}
+				break
+			}
+			g = &TargetGroup{Panel: strings.Clone(names[0]), Layer: strings.Clone(layer)}
+			index[key{g.Panel, g.Layer}] = g
+			set.Groups = append(set.Groups, g)
 		}
 		var v [4]float64
 		for k, name := range numeric {
@@ -161,44 +260,84 @@ func ReadTargets(r io.Reader, file string) ([]Target, error) {
 			// Positions (nominal, and measured ones) lie on a panel; a
 			// displacement is a registration movement.
 			if v[k], err = boundedCell(file, line, cols[c], rec[c], k < 2 || !disp); err != nil {
-				return nil, err
+				if !errors.As(err, &failed) {
+					failed = &CSVError{File: file, Row: line, Column: name, Err: err}
+				}
+				break
 			}
 		}
-		t.Pos = panel.Vec{X: v[0], Y: v[1]}
-		t.D = panel.Vec{X: v[2], Y: v[3]}
+		if failed != nil {
+			break
+		}
+		pos := panel.Vec{X: v[0], Y: v[1]}
+		d := panel.Vec{X: v[2], Y: v[3]}
 		if !disp {
-			t.D = t.D.Sub(t.Pos)
-			for k, d := range []float64{t.D.X, t.D.Y} {
-				if err := CheckTerm(d, unit.Length); err != nil {
-					return nil, &CSVError{File: file, Row: line, Column: numeric[2+k], Err: fmt.Errorf("measured minus nominal: %w", err)}
+			d = d.Sub(pos)
+			for k, x := range []float64{d.X, d.Y} {
+				if err := CheckTerm(x, unit.Length); err != nil {
+					failed = &CSVError{File: file, Row: line, Column: numeric[2+k], Err: fmt.Errorf("measured minus nominal: %w", err)}
+					break
 				}
 			}
+			if failed != nil {
+				break
+			}
 		}
-		g, ok := groups[group{t.Panel, t.Layer}]
-		if !ok {
-			g = int32(len(groups))
-			groups[group{t.Panel, t.Layer}] = g
+		if len(g.names)+len(names[2]) > math.MaxUint32 {
+			failed = &CSVError{File: file, Row: line, Column: "target", Err: errors.New("more than 4 GB of target names on one panel and layer")}
+			break
 		}
-		h := maphash.Comparable(seed, key{g, t.Name})
-		first := -1
-		if i, hit := seen[h]; !hit {
-			seen[h] = int32(len(out))
-		} else if o := &out[i]; o.Panel == t.Panel && o.Layer == t.Layer && o.Name == t.Name {
-			first = o.Row
-		} else if j, dup := exact[key{g, t.Name}]; dup {
-			first = out[j].Row
-		} else {
-			exact[key{g, t.Name}] = int32(len(out))
-		}
-		if first >= 0 {
-			return nil, &CSVError{File: file, Row: line, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, t.Name, t.Panel, t.Layer, first)}
-		}
-		out = append(out, t)
+		g.add(names[2], pos, d, line)
 	}
-	if len(out) == 0 {
+	// A duplicate before the row that failed is the earlier error, as it
+	// would have been reported first by a check row by row.
+	if dup := set.duplicate(file); dup != nil && (failed == nil || dup.Row < failed.Row || failed.Row == 0) {
+		return nil, dup
+	}
+	if failed != nil {
+		return nil, failed
+	}
+	if len(set.Groups) == 0 {
 		return nil, &CSVError{File: file, Err: errors.New("no targets after the header")}
 	}
-	return out, nil
+	return set, nil
+}
+
+// duplicate returns the error of the earliest row whose target repeats the
+// name of an earlier one on the same panel and layer, or nil. Each group's
+// targets are sorted by name (ties by row), so the check costs a sort of one
+// group's indices at a time rather than a map of every name in the file.
+func (s *TargetSet) duplicate(file string) *CSVError {
+	var best *CSVError
+	var idx []int32
+	for _, g := range s.Groups {
+		idx = idx[:0]
+		for i := range g.Len() {
+			idx = append(idx, int32(i))
+		}
+		slices.SortFunc(idx, func(a, b int32) int {
+			if c := bytes.Compare(g.name(int(a)), g.name(int(b))); c != 0 {
+				return c
+			}
+			return cmp.Compare(a, b)
+		})
+		// In a run of equal names the first is the original and the
+		// second the earliest repeat, the row a row-by-row check stops at.
+		for k := 0; k+1 < len(idx); {
+			j := k + 1
+			for j < len(idx) && bytes.Equal(g.name(int(idx[j])), g.name(int(idx[k]))) {
+				j++
+			}
+			if j-k > 1 {
+				first, again := int(idx[k]), int(idx[k+1])
+				if row := int(g.Rows[again]); best == nil || row < best.Row {
+					best = &CSVError{File: file, Row: row, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, g.Name(again), g.Panel, g.Layer, g.Rows[first])}
+				}
+			}
+			k = j
+		}
+	}
+	return best
 }
 
 // Frame maps target positions from the frame a measuring machine exports
@@ -217,32 +356,43 @@ type Frame struct {
 
 // Apply maps the targets' positions and displacements into the panel frame,
 // in place: p_panel = Origin + (x, ±y) and d_panel = (dx, ±dy).
-func (f Frame) Apply(ts []Target) {
-	for i := range ts {
-		t := &ts[i]
-		if f.FlipY {
-			t.Pos.Y, t.D.Y = -t.Pos.Y, -t.D.Y
+func (f Frame) Apply(s *TargetSet) {
+	for _, g := range s.Groups {
+		for i := range g.Pos {
+			p, d := &g.Pos[i], &g.D[i]
+			if f.FlipY {
+				p.Y, d.Y = -p.Y, -d.Y
+			}
+			*p = f.Origin.Add(*p)
 		}
-		t.Pos = f.Origin.Add(t.Pos)
 	}
 }
 
 // CheckOutline returns a *CSVError naming the row and column of the first
-// target (in the panel frame) outside outline, the panel's outer rectangle:
-// a target off the panel is a frame or unit given wrongly.
-func CheckOutline(ts []Target, outline panel.Rect, file string) error {
-	for _, t := range ts {
-		col := ""
-		switch {
-		case t.Pos.X < outline.Min.X || t.Pos.X > outline.Max.X:
-			col = "x"
-		case t.Pos.Y < outline.Min.Y || t.Pos.Y > outline.Max.Y:
-			col = "y"
-		default:
-			continue
+// target (in file order, in the panel frame) outside outline, the panel's
+// outer rectangle: a target off the panel is a frame or unit given wrongly.
+func CheckOutline(s *TargetSet, outline panel.Rect, file string) error {
+	var first *CSVError
+	for _, g := range s.Groups {
+		for i, p := range g.Pos {
+			col := ""
+			switch {
+			case p.X < outline.Min.X || p.X > outline.Max.X:
+				col = "x"
+			case p.Y < outline.Min.Y || p.Y > outline.Max.Y:
+				col = "y"
+			default:
+				continue
+			}
+			if row := int(g.Rows[i]); first == nil || row < first.Row {
+				first = &CSVError{File: file, Row: row, Column: col, Err: fmt.Errorf("target %q at (%.4g, %.4g) mm in the panel frame is off the %.4g x %.4g mm panel (centre origin, y up; see the frame options)",
+					g.Name(i), p.X*1e3, p.Y*1e3, (outline.Max.X-outline.Min.X)*1e3, (outline.Max.Y-outline.Min.Y)*1e3)}
+			}
+			break // later targets of the group are on later rows
 		}
-		return &CSVError{File: file, Row: t.Row, Column: col, Err: fmt.Errorf("target %q at (%.4g, %.4g) mm in the panel frame is off the %.4g x %.4g mm panel (centre origin, y up; see the frame options)",
-			t.Name, t.Pos.X*1e3, t.Pos.Y*1e3, (outline.Max.X-outline.Min.X)*1e3, (outline.Max.Y-outline.Min.Y)*1e3)}
 	}
-	return nil
+	if first == nil {
+		return nil
+	}
+	return first
 }

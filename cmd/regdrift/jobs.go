@@ -49,10 +49,10 @@ func readFile(path string, stdin io.Reader) ([]byte, string, error) {
 }
 
 // readTargets reads a measurement file ("-" for stdin) with
-// registration.ReadTargets, maps it into the panel frame by fr and, for a
+// registration.ReadTargetSet, maps it into the panel frame by fr and, for a
 // panel size that is not zero, refuses a target off the panel. Its errors
 // are bad input. It returns the name messages use for the file.
-func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) ([]registration.Target, string, error) {
+func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) (*registration.TargetSet, string, error) {
 	var src io.Reader
 	name := path
 	// A regular file is read as a stream, so that the file's bytes are not
@@ -73,7 +73,7 @@ func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel
 		}
 		src, name = bytes.NewReader(data), n
 	}
-	ts, err := registration.ReadTargets(src, name)
+	ts, err := registration.ReadTargetSet(src, name)
 	if err != nil {
 		return nil, name, badInput(err)
 	}

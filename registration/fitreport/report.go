@@ -33,10 +33,11 @@ type Report struct {
 }
 
 // New fits the targets ts (read from file) with set: every panel and layer
-// (registration.FitAll), the lot statistics, and per layer the pooled
-// residuals on grid × grid nodes.
-func New(file string, ts []registration.Target, set registration.FitSettings, grid int) (*Report, error) {
-	fits, err := registration.FitAll(ts, &set)
+// (registration.FitSet), the lot statistics, and per layer the pooled
+// residuals on grid × grid nodes. The report keeps ts: the fits refer to
+// its groups for their per-target results.
+func New(file string, ts *registration.TargetSet, set registration.FitSettings, grid int) (*Report, error) {
+	fits, err := registration.FitSet(ts, &set)
 	if err != nil {
 		return nil, err
 	}
@@ -234,6 +235,8 @@ func (r *Report) WriteFitCSV(w io.Writer, u unit.Output) error {
 
 // WriteResidualsCSV writes one row per target (residuals.csv): position,
 // measured, fitted and residual displacement, and whether it was rejected.
+// The rows are made one at a time from the fits' groups, so the file costs
+// no memory per target.
 func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
 	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
@@ -243,13 +246,17 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 		return err
 	}
 	lf, pf := u.LengthSI(), u.PanelSI()
-	for _, f := range r.Fits {
-		for i, t := range f.Targets {
-			out := f.Weights[i] == 0 && len(f.Outliers) > 0
-			rec := []string{f.Panel, f.Layer, t.Name, cell(t.Pos.X/pf, 4), cell(t.Pos.Y/pf, 4),
-				cell(t.D.X/lf, 4), cell(t.D.Y/lf, 4),
-				cell(f.Fitted[i].X/lf, 4), cell(f.Fitted[i].Y/lf, 4),
-				cell(f.Residuals[i].X/lf, 4), cell(f.Residuals[i].Y/lf, 4), strconv.FormatBool(out)}
+	rec := make([]string, 0, len(header))
+	for k := range r.Fits {
+		f := &r.Fits[k]
+		g := f.Group
+		for i := range f.Len() {
+			p, d, m := g.Pos[i], g.D[i], f.Fitted(i)
+			res := f.Residual(i)
+			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i), cell(p.X/pf, 4), cell(p.Y/pf, 4),
+				cell(d.X/lf, 4), cell(d.Y/lf, 4),
+				cell(m.X/lf, 4), cell(m.Y/lf, 4),
+				cell(res.X/lf, 4), cell(res.Y/lf, 4), strconv.FormatBool(f.Outlier(i)))
 			if err := cw.Write(rec); err != nil {
 				return err
 			}
