@@ -4,7 +4,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
+	"sync"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -146,6 +149,9 @@ type FitSettings struct {
 	OutlierLimit float64
 	// MaxIter bounds the reweighting iterations of each phase; zero means 50.
 	MaxIter int
+	// Workers is the number of panel-and-layer fits made at once; zero
+	// means GOMAXPROCS. The fits do not depend on it.
+	Workers int
 }
 
 // Fit is the fitted movement of one layer on one panel.
@@ -195,13 +201,13 @@ func (f *Fit) Target(i int) Target { return f.Group.Target(i) }
 
 // Fitted returns the model's displacement at target i.
 func (f *Fit) Fitted(i int) panel.Vec {
-	ax, ay := columns(f.Model, f.Group.Pos[i], f.datum)
+	ax, ay := columns(f.Model, f.Group.Pos(i), f.datum)
 	return fitted(&ax, &ay, &f.beta, f.Model.Params())
 }
 
 // Residual returns target i's measured minus fitted displacement.
 func (f *Fit) Residual(i int) panel.Vec {
-	d, m := f.Group.D[i], f.Fitted(i)
+	d, m := f.Group.d[i], f.Fitted(i)
 	return panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
 }
 
@@ -245,16 +251,49 @@ func FitAll(ts []Target, set *FitSettings) ([]Fit, error) {
 	return FitSet(GroupTargets(ts), set)
 }
 
-// FitSet fits each group of s, in order.
+// FitSet fits each group of s, the fits in the order of the groups. Of
+// several groups that cannot be fitted, the error names the first.
+//
+// The groups are independent, so set.Workers goroutines take them in turn,
+// each with its own work storage (memory for one group's design rows, not
+// for the set).
 func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
-	fits := make([]Fit, 0, len(s.Groups))
-	var w fitWork
-	for _, g := range s.Groups {
-		f, err := w.fit(g, set)
-		if err != nil {
-			return nil, err
-		}
-		fits = append(fits, *f)
+	n := len(s.Groups)
+	fits := make([]Fit, n)
+	errs := make([]error, n)
+	workers := runtime.GOMAXPROCS(0)
+	if set != nil && set.Workers > 0 {
+		workers = set.Workers
+	}
+	workers = max(1, min(workers, n))
+	var next, failed atomic.Int64 // the next group to fit; the first that failed
+	failed.Store(int64(n))
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Go(func() {
+			var w fitWork
+			for {
+				i := next.Add(1) - 1
+				if i >= failed.Load() {
+					return // groups after a failed one need no fit: its error is the one reported
+				}
+				f, err := w.fit(s.Groups[i], set)
+				if err != nil {
+					errs[i] = err
+					for {
+						if old := failed.Load(); i >= old || failed.CompareAndSwap(old, i) {
+							break
+						}
+					}
+					continue
+				}
+				fits[i] = *f
+			}
+		})
+	}
+	wg.Wait()
+	if i := failed.Load(); i < int64(n) {
+		return nil, errs[i]
 	}
 	return fits, nil
 }
@@ -262,7 +301,7 @@ func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
 // FitTargets fits the targets of one panel and layer (taken from the first
 // target).
 func FitTargets(ts []Target, set *FitSettings) (*Fit, error) {
-	g := &TargetGroup{}
+	g := &TargetGroup{sites: newSiteTable()}
 	if len(ts) > 0 {
 		g.Panel, g.Layer = ts[0].Panel, ts[0].Layer
 	}
@@ -321,8 +360,8 @@ func (w *fitWork) fit(g *TargetGroup, set *FitSettings) (*Fit, error) {
 		return nil, &FitError{f.Panel, f.Layer, fmt.Errorf("%w: %d target(s), the %s model needs at least %d", ErrTooFewTargets, n, m, m.MinTargets())}
 	}
 	w.ax, w.ay = w.ax[:0], w.ay[:0]
-	for _, p := range g.Pos {
-		ax, ay := columns(m, p, set.Datum)
+	for i := range n {
+		ax, ay := columns(m, g.Pos(i), set.Datum)
 		w.ax, w.ay = append(w.ax, ax), append(w.ay, ay)
 	}
 	if w.nm == nil || w.nm.SymmetricDim() != np {
@@ -521,7 +560,7 @@ func (w *fitWork) robustScale(np int, lim float64) float64 {
 func (w *fitWork) solve(g *TargetGroup, f *Fit, np int, beta, scale *[NumTerms]float64, checkCond bool) error {
 	var nm [NumTerms][NumTerms]float64
 	var rhs [NumTerms]float64
-	for i, d := range g.D {
+	for i, d := range g.d {
 		wt := w.weights[i]
 		if wt == 0 {
 			continue
@@ -561,7 +600,7 @@ func (w *fitWork) solve(g *TargetGroup, f *Fit, np int, beta, scale *[NumTerms]f
 	for a := 0; a < np; a++ {
 		beta[a] = w.bt.AtVec(a) * scale[a]
 	}
-	for i, d := range g.D {
+	for i, d := range g.d {
 		m := fitted(&w.ax[i], &w.ay[i], beta, np)
 		w.residuals[i] = panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
 	}
@@ -731,7 +770,7 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 			if f.Outlier(j) {
 				continue
 			}
-			p := f.Group.Pos[j]
+			p := f.Group.Pos(j)
 			lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
 			hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
 			n++
@@ -780,7 +819,7 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 			if f.Outlier(t) {
 				continue
 			}
-			p, r := f.Group.Pos[t], f.Residual(t)
+			p, r := f.Group.Pos(t), f.Residual(t)
 			for j, y := range g.Y {
 				for i, x := range g.X {
 					ex, ey := (p.X-x)/hx, (p.Y-y)/hy

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"slices"
 	"testing"
 
@@ -412,5 +413,47 @@ func BenchmarkFitLot(b *testing.B) {
 			}
 			b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N), "ms/lot")
 		})
+	}
+}
+
+// TestFitSetWorkers checks that the fits of a lot do not depend on how many
+// groups are fitted at once, and that of two groups that cannot be fitted
+// the error names the earlier one whatever finishes first.
+func TestFitSetWorkers(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	var ts []Target
+	for p := 0; p < 12; p++ {
+		for l := 0; l < 3; l++ {
+			g := gridTargets(fmt.Sprint("P", p), fmt.Sprint("L", l+1), 6, 5, 16*in, 22*in, truth, panel.Vec{}, 2*um, rng)
+			g[7].D.X += 40 * um // a mis-measured target for the robust fit to reject
+			ts = append(ts, g...)
+		}
+	}
+	s := GroupTargets(ts)
+	one, err := FitSet(s, &FitSettings{Robust: Tukey, Workers: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, w := range []int{2, 5, 64} {
+		many, err := FitSet(s, &FitSettings{Robust: Tukey, Workers: w})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(one, many) {
+			t.Errorf("%d workers: the fits differ from one worker's", w)
+		}
+	}
+	// Groups 5 and 30 have one target each: too few for an affine fit.
+	bad := GroupTargets(ts)
+	for _, k := range []int{5, 30} {
+		g := bad.Groups[k]
+		g.site, g.d, g.rows = g.site[:1], g.d[:1], g.rows[:1]
+	}
+	for _, w := range []int{1, 2, 64} {
+		_, err := FitSet(bad, &FitSettings{Workers: w})
+		var fe *FitError
+		if !errors.As(err, &fe) || fe.Panel != bad.Groups[5].Panel || fe.Layer != bad.Groups[5].Layer {
+			t.Errorf("%d workers: error %v, want one naming group 5 (%s, %s)", w, err, bad.Groups[5].Panel, bad.Groups[5].Layer)
+		}
 	}
 }

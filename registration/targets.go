@@ -5,6 +5,7 @@ import (
 	"cmp"
 	"errors"
 	"fmt"
+	"hash/maphash"
 	"io"
 	"math"
 	"slices"
@@ -46,57 +47,137 @@ func SplitLayer(s string) (upper, lower string, relative bool) {
 // grouped by panel and layer, the groups in order of first appearance and
 // the targets of a group in file order.
 //
-// A target costs what it needs and no more: its nominal position and its
-// displacement (four float64, 32 bytes, kept at full precision so that a
-// fit of a set is the same to the bit as one of the []Target it came
-// from), its file row (int32) and its name (its bytes in the group's
-// arena and an int32 end offset), about 46 bytes for a six-letter name.
-// The panel and layer names are stored once per group. A []Target holds
-// the same target in 88 bytes plus a string header and allocation per
-// name, and a file of millions of targets is what fit is asked to read.
+// Why in memory, and why this form. A robust fit reweights every target
+// of its panel and layer on each of up to a hundred iterations, and the
+// reader must refuse a duplicate target anywhere in the file before any
+// output is written, so the targets have to be at hand; re-reading a file
+// of 100 MB for each iteration would cost a hundred times its parse, and a
+// file need not list a panel and layer in one run of rows. So the set keeps
+// each target in what it really needs:
+//
+//   - its measured displacement, two float64 (16 bytes);
+//   - its file row, an int32 (4 bytes), for the messages;
+//   - its site, an int32 index (4 bytes) into a table of the distinct
+//     (name, nominal position) pairs of the file. A lot measures the same
+//     target layout on every panel and layer, so that table is one panel's
+//     layout, not a copy per target; a file whose layout does not repeat
+//     stops being indexed (siteTable.add) and costs about 26 bytes more a
+//     target, name bytes included.
+//
+// That is 24 bytes a target where the layout repeats. Positions and
+// displacements stay float64, as parsed, so a fit of a set is the same to
+// the bit as one of the []Target it came from; float32 would keep 7 digits,
+// 0.03 µm on a 600 mm panel, harmless but not identical.
 type TargetSet struct {
 	Groups []*TargetGroup
+	sites  *siteTable
 }
 
 // TargetGroup is the targets of one panel and layer, columnwise: target i
-// is at Pos[i], measured displacement D[i], on file row Rows[i], named
-// Name(i).
+// is named Name(i), at nominal position Pos(i), displaced by D(i) and read
+// from file row Row(i).
 type TargetGroup struct {
 	Panel, Layer string
-	Pos, D       []panel.Vec // m
-	Rows         []int32     // 1-based line of the file (header = 1), for messages
-	names        []byte      // the names, back to back
-	nameEnd      []uint32    // the end of name i in names
+	sites        *siteTable
+	site         []int32     // the site of each target
+	d            []panel.Vec // the measured displacement, m
+	rows         []int32     // 1-based line of the file (header = 1), for messages
 }
 
 // Len returns the number of targets in the group.
-func (g *TargetGroup) Len() int { return len(g.Pos) }
-
-// name returns target i's name as bytes of the arena (not a copy).
-func (g *TargetGroup) name(i int) []byte {
-	var a uint32
-	if i > 0 {
-		a = g.nameEnd[i-1]
-	}
-	return g.names[a:g.nameEnd[i]]
-}
+func (g *TargetGroup) Len() int { return len(g.d) }
 
 // Name returns the name of target i.
 func (g *TargetGroup) Name(i int) string { return string(g.name(i)) }
 
+// name returns target i's name as bytes of the site table (not a copy).
+func (g *TargetGroup) name(i int) []byte { return g.sites.name(g.site[i]) }
+
+// Pos returns the nominal position of target i, m.
+func (g *TargetGroup) Pos(i int) panel.Vec { return g.sites.pos[g.site[i]] }
+
+// D returns the measured displacement of target i, m.
+func (g *TargetGroup) D(i int) panel.Vec { return g.d[i] }
+
+// Row returns the file row of target i (header = 1).
+func (g *TargetGroup) Row(i int) int { return int(g.rows[i]) }
+
 // Target returns target i as a Target.
 func (g *TargetGroup) Target(i int) Target {
-	return Target{Panel: g.Panel, Layer: g.Layer, Name: g.Name(i), Pos: g.Pos[i], D: g.D[i], Row: int(g.Rows[i])}
+	return Target{Panel: g.Panel, Layer: g.Layer, Name: g.Name(i), Pos: g.Pos(i), D: g.d[i], Row: g.Row(i)}
 }
 
 // add appends a target to the group.
 func (g *TargetGroup) add(name string, pos, d panel.Vec, row int) {
-	g.Pos = append(g.Pos, pos)
-	g.D = append(g.D, d)
-	g.Rows = append(g.Rows, int32(row))
-	g.names = append(g.names, name...)
-	g.nameEnd = append(g.nameEnd, uint32(len(g.names)))
+	g.site = append(g.site, g.sites.add(name, pos))
+	g.d = append(g.d, d)
+	g.rows = append(g.rows, int32(row))
 }
+
+// siteTable holds the distinct (name, nominal position) pairs of a set,
+// names back to back in one arena.
+type siteTable struct {
+	pos     []panel.Vec
+	names   []byte
+	nameEnd []uint32 // the end of site i's name in names
+	// index maps a hash of (name, position bits) to the site first seen
+	// with it, 12 bytes a site; nil once the sites stopped repeating.
+	index map[uint64]int32
+	seed  maphash.Seed
+	refs  int // targets added
+}
+
+func newSiteTable() *siteTable {
+	return &siteTable{index: map[uint64]int32{}, seed: maphash.MakeSeed()}
+}
+
+func (s *siteTable) name(i int32) []byte {
+	var a uint32
+	if i > 0 {
+		a = s.nameEnd[i-1]
+	}
+	return s.names[a:s.nameEnd[i]]
+}
+
+// Sharing stops paying when, after siteProbe targets, more than half of
+// them have had a site of their own: then the index is dropped and every
+// later target gets its own site without a look-up.
+const siteProbe = 1 << 16
+
+// add returns the site of (name, pos), new or shared. Positions are
+// compared by their bits, so that −0 and +0 stay what the file said.
+func (s *siteTable) add(name string, pos panel.Vec) int32 {
+	s.refs++
+	var h uint64
+	if s.index != nil {
+		h = maphash.Comparable(s.seed, struct {
+			name string
+			x, y uint64
+		}{name, math.Float64bits(pos.X), math.Float64bits(pos.Y)})
+		if i, ok := s.index[h]; ok {
+			if q := s.pos[i]; math.Float64bits(q.X) == math.Float64bits(pos.X) && math.Float64bits(q.Y) == math.Float64bits(pos.Y) && string(s.name(i)) == name {
+				return i
+			}
+		}
+	}
+	id := int32(len(s.pos))
+	s.pos = append(s.pos, pos)
+	s.names = append(s.names, name...)
+	s.nameEnd = append(s.nameEnd, uint32(len(s.names)))
+	if s.index != nil {
+		if _, taken := s.index[h]; !taken {
+			s.index[h] = id
+		}
+		if s.refs >= siteProbe && 2*len(s.pos) > s.refs {
+			s.index = nil
+		}
+	}
+	return id
+}
+
+// full reports whether adding name would overflow the name arena's
+// uint32 offsets.
+func (s *siteTable) full(name string) bool { return len(s.names)+len(name) > math.MaxUint32 }
 
 // Len returns the number of targets in the set.
 func (s *TargetSet) Len() int {
@@ -107,22 +188,39 @@ func (s *TargetSet) Len() int {
 	return n
 }
 
+// setBuilder groups targets into a set as they come.
+type setBuilder struct {
+	set   *TargetSet
+	index map[[2]string]*TargetGroup
+}
+
+func newSetBuilder() *setBuilder {
+	return &setBuilder{set: &TargetSet{sites: newSiteTable()}, index: map[[2]string]*TargetGroup{}}
+}
+
+// group returns the group of panel and layer, or nil.
+func (b *setBuilder) group(panel, layer string) *TargetGroup { return b.index[[2]string{panel, layer}] }
+
+// newGroup starts the group of panel and layer (strings the group may keep).
+func (b *setBuilder) newGroup(panel, layer string) *TargetGroup {
+	g := &TargetGroup{Panel: panel, Layer: layer, sites: b.set.sites}
+	b.index[[2]string{panel, layer}] = g
+	b.set.Groups = append(b.set.Groups, g)
+	return g
+}
+
 // GroupTargets returns ts as a set: grouped by panel and layer in order of
 // first appearance, each group in the order of ts.
 func GroupTargets(ts []Target) *TargetSet {
-	type key struct{ panel, layer string }
-	index := map[key]*TargetGroup{}
-	s := &TargetSet{}
+	b := newSetBuilder()
 	for _, t := range ts {
-		g := index[key{t.Panel, t.Layer}]
+		g := b.group(t.Panel, t.Layer)
 		if g == nil {
-			g = &TargetGroup{Panel: t.Panel, Layer: t.Layer}
-			index[key{t.Panel, t.Layer}] = g
-			s.Groups = append(s.Groups, g)
+			g = b.newGroup(t.Panel, t.Layer)
 		}
 		g.add(t.Name, t.Pos, t.D, t.Row)
 	}
-	return s
+	return b.set
 }
 
 // Targets returns the set as a []Target in file order (by row).
@@ -210,9 +308,8 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 	// group's arena. The duplicate check runs per group once the file is
 	// read (duplicate), so that it needs no map of every name.
 	cr.ReuseRecord = true
-	type key struct{ panel, layer string }
-	index := map[key]*TargetGroup{}
-	set := &TargetSet{}
+	b := newSetBuilder()
+	set := b.set
 	var failed *CSVError // the first error of a row, which ends the reading
 	for {
 		rec, err := cr.Read()
@@ -243,16 +340,14 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 		if failed != nil {
 			break
 		}
-		g := index[key{names[0], names[1]}]
+		g := b.group(names[0], names[1])
 		if g == nil {
 			layer := names[1]
 			if a, b, rel := SplitLayer(layer); rel && (a == "" || b == "" || strings.Contains(b, "-") || a == b) {
 				failed = &CSVError{File: file, Row: line, Column: "layer", Err: fmt.Errorf("%q: want a layer (\"L3\") or a pair of different layers (\"L3-L4\")", layer)}
 				break
 			}
-			g = &TargetGroup{Panel: strings.Clone(names[0]), Layer: strings.Clone(layer)}
-			index[key{g.Panel, g.Layer}] = g
-			set.Groups = append(set.Groups, g)
+			g = b.newGroup(strings.Clone(names[0]), strings.Clone(layer))
 		}
 		var v [4]float64
 		for k, name := range numeric {
@@ -283,8 +378,8 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 				break
 			}
 		}
-		if len(g.names)+len(names[2]) > math.MaxUint32 {
-			failed = &CSVError{File: file, Row: line, Column: "target", Err: errors.New("more than 4 GB of target names on one panel and layer")}
+		if set.sites.full(names[2]) {
+			failed = &CSVError{File: file, Row: line, Column: "target", Err: errors.New("more than 4 GB of target names")}
 			break
 		}
 		g.add(names[2], pos, d, line)
@@ -316,8 +411,10 @@ func (s *TargetSet) duplicate(file string) *CSVError {
 			idx = append(idx, int32(i))
 		}
 		slices.SortFunc(idx, func(a, b int32) int {
-			if c := bytes.Compare(g.name(int(a)), g.name(int(b))); c != 0 {
-				return c
+			if sa, sb := g.site[a], g.site[b]; sa != sb {
+				if c := bytes.Compare(g.sites.name(sa), g.sites.name(sb)); c != 0 {
+					return c
+				}
 			}
 			return cmp.Compare(a, b)
 		})
@@ -330,8 +427,8 @@ func (s *TargetSet) duplicate(file string) *CSVError {
 			}
 			if j-k > 1 {
 				first, again := int(idx[k]), int(idx[k+1])
-				if row := int(g.Rows[again]); best == nil || row < best.Row {
-					best = &CSVError{File: file, Row: row, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, g.Name(again), g.Panel, g.Layer, g.Rows[first])}
+				if row := g.Row(again); best == nil || row < best.Row {
+					best = &CSVError{File: file, Row: row, Column: "target", Err: fmt.Errorf("%w: %q on panel %q, layer %q is also on row %d", ErrDuplicate, g.Name(again), g.Panel, g.Layer, g.Row(first))}
 				}
 			}
 			k = j
@@ -357,13 +454,19 @@ type Frame struct {
 // Apply maps the targets' positions and displacements into the panel frame,
 // in place: p_panel = Origin + (x, ±y) and d_panel = (dx, ±dy).
 func (f Frame) Apply(s *TargetSet) {
-	for _, g := range s.Groups {
-		for i := range g.Pos {
-			p, d := &g.Pos[i], &g.D[i]
-			if f.FlipY {
-				p.Y, d.Y = -p.Y, -d.Y
+	// The groups share the site table: each position is mapped once.
+	for i := range s.sites.pos {
+		p := &s.sites.pos[i]
+		if f.FlipY {
+			p.Y = -p.Y
+		}
+		*p = f.Origin.Add(*p)
+	}
+	if f.FlipY {
+		for _, g := range s.Groups {
+			for i := range g.d {
+				g.d[i].Y = -g.d[i].Y
 			}
-			*p = f.Origin.Add(*p)
 		}
 	}
 }
@@ -374,7 +477,8 @@ func (f Frame) Apply(s *TargetSet) {
 func CheckOutline(s *TargetSet, outline panel.Rect, file string) error {
 	var first *CSVError
 	for _, g := range s.Groups {
-		for i, p := range g.Pos {
+		for i := range g.Len() {
+			p := g.Pos(i)
 			col := ""
 			switch {
 			case p.X < outline.Min.X || p.X > outline.Max.X:
@@ -384,7 +488,7 @@ func CheckOutline(s *TargetSet, outline panel.Rect, file string) error {
 			default:
 				continue
 			}
-			if row := int(g.Rows[i]); first == nil || row < first.Row {
+			if row := g.Row(i); first == nil || row < first.Row {
 				first = &CSVError{File: file, Row: row, Column: col, Err: fmt.Errorf("target %q at (%.4g, %.4g) mm in the panel frame is off the %.4g x %.4g mm panel (centre origin, y up; see the frame options)",
 					g.Name(i), p.X*1e3, p.Y*1e3, (outline.Max.X-outline.Min.X)*1e3, (outline.Max.Y-outline.Min.Y)*1e3)}
 			}

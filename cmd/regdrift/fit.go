@@ -110,7 +110,7 @@ func runFitFileIn(path string, stdin io.Reader, set registration.FitSettings, gr
 	}
 	for _, g := range ts.Groups {
 		if _, lower, rel := registration.SplitLayer(g.Layer); rel && lower == "" {
-			return nil, badInput(&registration.CSVError{File: name, Row: int(g.Rows[0]), Column: "layer", Err: fmt.Errorf("%q: bad layer pair", g.Layer)})
+			return nil, badInput(&registration.CSVError{File: name, Row: g.Row(0), Column: "layer", Err: fmt.Errorf("%q: bad layer pair", g.Layer)})
 		}
 	}
 	r, err := fitreport.New(name, ts, set, grid)

@@ -6,8 +6,10 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"runtime"
 	"strconv"
 	"strings"
+	"sync"
 
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
@@ -42,8 +44,21 @@ func New(file string, ts *registration.TargetSet, set registration.FitSettings, 
 		return nil, err
 	}
 	r := &Report{File: file, Settings: set, Fits: fits, Lots: registration.LotStats(fits), Grids: map[string]*registration.Grid{}}
-	for _, l := range r.Lots {
-		r.Grids[l.Layer] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+	// The layers' grids are independent: one goroutine each, at most
+	// GOMAXPROCS at once.
+	grids := make([]*registration.Grid, len(r.Lots))
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	var wg sync.WaitGroup
+	for i, l := range r.Lots {
+		wg.Go(func() {
+			sem <- struct{}{}
+			defer func() { <-sem }()
+			grids[i] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+		})
+	}
+	wg.Wait()
+	for i, l := range r.Lots {
+		r.Grids[l.Layer] = grids[i]
 	}
 	r.Joint = registration.LotContributors(fits, r.Lots, func(l *registration.Lot) string { return "measured " + l.Layer })
 	r.Differences = r.Joint.Differences(fits)
@@ -251,7 +266,7 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 		f := &r.Fits[k]
 		g := f.Group
 		for i := range f.Len() {
-			p, d, m := g.Pos[i], g.D[i], f.Fitted(i)
+			p, d, m := g.Pos(i), g.D(i), f.Fitted(i)
 			res := f.Residual(i)
 			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i), cell(p.X/pf, 4), cell(p.Y/pf, 4),
 				cell(d.X/lf, 4), cell(d.Y/lf, 4),

@@ -30,7 +30,7 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
 		for _, f := range fits {
 			for i := range f.Len() {
-				p := f.Group.Pos[i]
+				p := f.Group.Pos(i)
 				lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
 				hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
 			}
@@ -47,7 +47,7 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 			if f.Outlier(i) {
 				continue // an outlier must not shrink every other arrow
 			}
-			d, r := f.Group.D[i], f.Residual(i)
+			d, r := f.Group.D(i), f.Residual(i)
 			maxD = math.Max(maxD, math.Hypot(d.X, d.Y))
 			maxR = math.Max(maxR, math.Hypot(r.X, r.Y))
 		}
@@ -94,8 +94,8 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	}
 	nOut := 0
 	for _, f := range fits {
-		for _, p := range f.Group.Pos {
-			if outside(p) {
+		for i := range f.Len() {
+			if outside(f.Group.Pos(i)) {
 				nOut++
 			}
 		}
@@ -157,7 +157,7 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 				if !sampleTarget(idx-1, th) {
 					continue
 				}
-				p, d := f.Group.Pos[i], f.Group.D[i]
+				p, d := f.Group.Pos(i), f.Group.D(i)
 				if outside(p) {
 					continue
 				}
