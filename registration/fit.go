@@ -1,6 +1,7 @@
 package registration
 
 import (
+	"cmp"
 	"errors"
 	"fmt"
 	"math"
@@ -319,7 +320,9 @@ type fitWork struct {
 	chol    mat.Cholesky
 	rhs, bt *mat.VecDense
 	inv     mat.SymDense
-	radial  []float64
+	// radial is the targets' radial residuals in ascending order, each
+	// with its target; a new group starts it empty (see robustScale).
+	radial []radialResidual
 	// Per target of the group being fitted, reused from group to group:
 	// the weights, the fitted displacements and the residuals.
 	weights   []float64
@@ -369,6 +372,7 @@ func (w *fitWork) fit(g *TargetGroup, set *FitSettings) (*Fit, error) {
 		w.rhs = mat.NewVecDense(np, nil)
 		w.bt = mat.NewVecDense(np, nil)
 	}
+	w.radial = w.radial[:0]
 	w.weights = slices.Grow(w.weights[:0], n)[:n]
 	for i := range w.weights {
 		w.weights[i] = 1
@@ -519,16 +523,30 @@ func robustWeight(r Robust, u, c float64) float64 {
 // lim·σ̂, σ̂² = Σ|r|²/(2n' − p) over those n' targets, until that set is
 // stable. Truncating a Rayleigh distribution at 4σ biases σ² by 0.3 % only.
 // The floor of 1 pm keeps an exact fit from dividing by zero.
+//
+// The residuals move little from one reweighting to the next, so the
+// targets are sorted in the order the last call left them in, where an
+// insertion sort has little to do; it hands over to a full sort once it has
+// moved more than a few entries per target. Either way the values come out
+// in the same ascending order, and so do the sums over them.
 func (w *fitWork) robustScale(np int, lim float64) float64 {
-	w.radial = w.radial[:0]
-	for _, r := range w.residuals {
-		w.radial = append(w.radial, math.Hypot(r.X, r.Y))
+	n := len(w.residuals)
+	if len(w.radial) != n {
+		w.radial = w.radial[:0]
+		for i, r := range w.residuals {
+			w.radial = append(w.radial, radialResidual{math.Hypot(r.X, r.Y), int32(i)})
+		}
+		slices.SortFunc(w.radial, compareRadial)
+	} else {
+		for k := range w.radial {
+			r := w.residuals[w.radial[k].i]
+			w.radial[k].r = math.Hypot(r.X, r.Y)
+		}
+		sortNearlySorted(w.radial)
 	}
-	slices.Sort(w.radial)
-	n := len(w.radial)
-	med := w.radial[n/2]
+	med := w.radial[n/2].r
 	if n%2 == 0 {
-		med = (w.radial[n/2-1] + w.radial[n/2]) / 2
+		med = (w.radial[n/2-1].r + w.radial[n/2].r) / 2
 	}
 	s := med / rayleighMedian
 	if dof := 2*n - np; dof > 0 {
@@ -539,8 +557,8 @@ func (w *fitWork) robustScale(np int, lim float64) float64 {
 	for it := 0; it < 10; it++ {
 		var ss float64
 		k := 0
-		for _, r := range w.radial {
-			if r <= lim*s {
+		for _, e := range w.radial {
+			if r := e.r; r <= lim*s {
 				ss += r * r
 				k++
 			}
@@ -552,6 +570,33 @@ func (w *fitWork) robustScale(np int, lim float64) float64 {
 		s = math.Max(math.Sqrt(ss/float64(2*k-np)), 1e-12)
 	}
 	return s
+}
+
+// radialResidual is a target's radial residual |r| and its index.
+type radialResidual struct {
+	r float64
+	i int32
+}
+
+func compareRadial(a, b radialResidual) int { return cmp.Compare(a.r, b.r) }
+
+// sortNearlySorted sorts a by r: by insertion while that has moved at most
+// 4 entries per element, then by slices.SortFunc.
+func sortNearlySorted(a []radialResidual) {
+	moves, budget := 0, 4*len(a)
+	for i := 1; i < len(a); i++ {
+		x := a[i]
+		j := i
+		for j > 0 && a[j-1].r > x.r {
+			a[j] = a[j-1]
+			j--
+		}
+		a[j] = x
+		if moves += i - j; moves > budget {
+			slices.SortFunc(a, compareRadial)
+			return
+		}
+	}
 }
 
 // solve forms the weighted normal equations, equilibrates their columns,

@@ -457,3 +457,40 @@ func TestFitSetWorkers(t *testing.T) {
 		}
 	}
 }
+
+// TestSortNearlySorted checks the robust scale's sort on the inputs it
+// meets (nearly sorted: a few neighbours swapped) and on ones it hands over
+// (shuffled, reversed): the values come out ascending, none lost.
+func TestSortNearlySorted(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	for _, kind := range []string{"nearly sorted", "shuffled", "reversed", "one", "empty"} {
+		n := 3000
+		switch kind {
+		case "one":
+			n = 1
+		case "empty":
+			n = 0
+		}
+		a := make([]radialResidual, n)
+		for i := range a {
+			a[i] = radialResidual{float64(i) + 0.5*rng.Float64(), int32(i)}
+		}
+		switch kind {
+		case "nearly sorted":
+			for range n / 20 {
+				i := rng.IntN(n - 1)
+				a[i], a[i+1] = a[i+1], a[i]
+			}
+		case "shuffled":
+			rng.Shuffle(n, func(i, j int) { a[i], a[j] = a[j], a[i] })
+		case "reversed":
+			slices.Reverse(a)
+		}
+		want := slices.Clone(a)
+		slices.SortFunc(want, compareRadial)
+		sortNearlySorted(a)
+		if !slices.Equal(a, want) {
+			t.Errorf("%s: not sorted as slices.SortFunc sorts", kind)
+		}
+	}
+}

@@ -311,6 +311,7 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 	b := newSetBuilder()
 	set := b.set
 	var failed *CSVError // the first error of a row, which ends the reading
+	var last *TargetGroup
 	for {
 		rec, err := cr.Read()
 		if err == io.EOF {
@@ -340,7 +341,12 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 		if failed != nil {
 			break
 		}
-		g := b.group(names[0], names[1])
+		// A file lists a panel and layer in runs of rows, mostly: the last
+		// group is tried before the map.
+		g := last
+		if g == nil || g.Panel != names[0] || g.Layer != names[1] {
+			g = b.group(names[0], names[1])
+		}
 		if g == nil {
 			layer := names[1]
 			if a, b, rel := SplitLayer(layer); rel && (a == "" || b == "" || strings.Contains(b, "-") || a == b) {
@@ -383,6 +389,7 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 			break
 		}
 		g.add(names[2], pos, d, line)
+		last = g
 	}
 	// A duplicate before the row that failed is the earlier error, as it
 	// would have been reported first by a check row by row.

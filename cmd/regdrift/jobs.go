@@ -55,10 +55,13 @@ func readFile(path string, stdin io.Reader) ([]byte, string, error) {
 func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) (*registration.TargetSet, string, error) {
 	var src io.Reader
 	name := path
-	// A regular file is read as a stream, so that the file's bytes are not
-	// held beside the targets parsed from them; anything else (stdin, a
-	// directory, a pipe) goes through readFile and its messages.
-	if path != "-" {
+	// A regular file and standard input are read as a stream, so that the
+	// file's bytes are not held beside the targets parsed from them;
+	// anything else (a directory, a named pipe, no standard input) goes
+	// through readFile and its messages.
+	if path == "-" && stdin != nil {
+		src, name = bufio.NewReaderSize(stdin, 1<<16), "<stdin>"
+	} else if path != "-" {
 		if f, err := os.Open(path); err == nil {
 			defer f.Close()
 			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {

@@ -1,6 +1,7 @@
 package fitreport
 
 import (
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
@@ -11,6 +12,7 @@ import (
 	"strings"
 	"sync"
 
+	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -250,8 +252,11 @@ func (r *Report) WriteFitCSV(w io.Writer, u unit.Output) error {
 
 // WriteResidualsCSV writes one row per target (residuals.csv): position,
 // measured, fitted and residual displacement, and whether it was rejected.
-// The rows are made one at a time from the fits' groups, so the file costs
-// no memory per target.
+//
+// The rows are made from the fits' groups, never held for the whole file:
+// runs of residualChunk rows are formatted into buffers by GOMAXPROCS
+// goroutines and written in order, a few runs per worker at a time, so the
+// memory is that of those buffers and the bytes are those of one writer.
 func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
 	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
@@ -260,26 +265,69 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	if err := cw.Write(header); err != nil {
 		return err
 	}
-	lf, pf := u.LengthSI(), u.PanelSI()
-	rec := make([]string, 0, len(header))
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	type chunk struct {
+		f      *registration.Fit
+		lo, hi int
+		buf    bytes.Buffer
+	}
+	var chunks []*chunk
 	for k := range r.Fits {
 		f := &r.Fits[k]
-		g := f.Group
-		for i := range f.Len() {
+		for lo := 0; lo < f.Len(); lo += residualChunk {
+			chunks = append(chunks, &chunk{f: f, lo: lo, hi: min(lo+residualChunk, f.Len())})
+		}
+	}
+	lf, pf := u.LengthSI(), u.PanelSI()
+	format := func(c *chunk) {
+		cw := csv.NewWriter(&c.buf)
+		f, g := c.f, c.f.Group
+		rec := make([]string, 0, len(header))
+		for i := c.lo; i < c.hi; i++ {
 			p, d, m := g.Pos(i), g.D(i), f.Fitted(i)
-			res := f.Residual(i)
+			res := panel.Vec{X: d.X - m.X, Y: d.Y - m.Y} // Fit.Residual, without fitting twice
 			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i), cell(p.X/pf, 4), cell(p.Y/pf, 4),
 				cell(d.X/lf, 4), cell(d.Y/lf, 4),
 				cell(m.X/lf, 4), cell(m.Y/lf, 4),
 				cell(res.X/lf, 4), cell(res.Y/lf, 4), strconv.FormatBool(f.Outlier(i)))
-			if err := cw.Write(rec); err != nil {
+			cw.Write(rec) // a bytes.Buffer does not fail
+		}
+		cw.Flush()
+	}
+	workers := runtime.GOMAXPROCS(0)
+	batch := 2 * workers
+	for b := 0; b < len(chunks); b += batch {
+		part := chunks[b:min(b+batch, len(chunks))]
+		var wg sync.WaitGroup
+		next := make(chan *chunk)
+		for range min(workers, len(part)) {
+			wg.Go(func() {
+				for c := range next {
+					format(c)
+				}
+			})
+		}
+		for _, c := range part {
+			next <- c
+		}
+		close(next)
+		wg.Wait()
+		for _, c := range part {
+			if _, err := w.Write(c.buf.Bytes()); err != nil {
 				return err
 			}
+			c.buf = bytes.Buffer{}
 		}
 	}
-	cw.Flush()
-	return cw.Error()
+	return nil
 }
+
+// residualChunk is the number of residuals.csv rows one goroutine formats
+// at a time: about 0.5 MB of text.
+const residualChunk = 4096
 
 // WriteGridCSV writes a residual grid in the format registration.ReadGrid
 // reads.
