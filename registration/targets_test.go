@@ -4,7 +4,9 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -120,6 +122,20 @@ func FuzzReadTargets(f *testing.F) {
 				t.Fatalf("target %+v lacks a name or row", tg)
 			}
 		}
+		// The duplicate check runs after the reading: what it lets through
+		// must have no two targets of one name on a panel and layer, and
+		// the rows must be in file order.
+		seen := map[[3]string]int{}
+		for i, tg := range ts {
+			k := [3]string{tg.Panel, tg.Layer, tg.Name}
+			if r, dup := seen[k]; dup {
+				t.Fatalf("target %q on panel %q, layer %q read twice (rows %d and %d)", tg.Name, tg.Panel, tg.Layer, r, tg.Row)
+			}
+			seen[k] = tg.Row
+			if i > 0 && tg.Row <= ts[i-1].Row {
+				t.Fatalf("rows %d, %d out of file order", ts[i-1].Row, tg.Row)
+			}
+		}
 	})
 }
 
@@ -167,3 +183,49 @@ func TestTargetSetSites(t *testing.T) {
 		t.Error("unique targets read back differ")
 	}
 }
+
+// BenchmarkReadTargetSet reads an invented file of 100 panels × 8 layers ×
+// 300 targets (240,000 rows, the layout repeated on every panel and layer)
+// and reports the heap a read set keeps per target (retained-B/target),
+// the figure TargetSet's layout is designed for.
+func BenchmarkReadTargetSet(b *testing.B) {
+	var csv strings.Builder
+	csv.WriteString("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n")
+	rng := rand.New(rand.NewPCG(1, 2))
+	for p := range 100 {
+		for l := range 8 {
+			for t := range 300 {
+				fmt.Fprintf(&csv, "P%03d,L%d,T%05d,%.4f,%.4f,%.4f,%.4f\n", p, l+1, t+1,
+					-8+16*float64(t%20)/19, -11+22*float64(t/20)/14, 0.05*rng.NormFloat64(), 0.05*rng.NormFloat64())
+			}
+		}
+	}
+	data := csv.String()
+	perTarget := retainedPerTarget(data)
+	b.SetBytes(int64(len(data)))
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := ReadTargetSet(strings.NewReader(data), "b.csv"); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(perTarget, "retained-B/target")
+}
+
+// retainedPerTarget returns the live heap a set read from data adds, per
+// target. It runs before any other set exists, so the difference is the
+// set's.
+func retainedPerTarget(data string) float64 {
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	benchSet, _ = ReadTargetSet(strings.NewReader(data), "b.csv")
+	runtime.GC()
+	runtime.ReadMemStats(&after)
+	n := benchSet.Len()
+	benchSet = nil
+	return float64(int64(after.HeapAlloc)-int64(before.HeapAlloc)) / float64(n)
+}
+
+// benchSet keeps the set BenchmarkReadTargetSet measures alive.
+var benchSet *TargetSet

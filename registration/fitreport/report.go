@@ -200,11 +200,14 @@ func (r *Report) Summary() *Summary {
 }
 
 // cell formats v with d decimals, "" for NaN.
-func cell(v float64, d int) string {
+func cell(v float64, d int) string { return string(appendCell(nil, v, d)) }
+
+// appendCell appends cell(v, d) to b.
+func appendCell(b []byte, v float64, d int) []byte {
 	if math.IsNaN(v) {
-		return ""
+		return b
 	}
-	return strconv.FormatFloat(v, 'f', d, 64)
+	return strconv.AppendFloat(b, v, 'f', d, 64)
 }
 
 // WriteFitCSV writes one row per fit (fit.csv): terms and their standard
@@ -272,7 +275,7 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	type chunk struct {
 		f      *registration.Fit
 		lo, hi int
-		buf    bytes.Buffer
+		buf    *bytes.Buffer
 	}
 	var chunks []*chunk
 	for k := range r.Fits {
@@ -283,24 +286,44 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	}
 	lf, pf := u.LengthSI(), u.PanelSI()
 	format := func(c *chunk) {
-		cw := csv.NewWriter(&c.buf)
+		cw := csv.NewWriter(c.buf)
 		f, g := c.f, c.f.Group
 		rec := make([]string, 0, len(header))
+		var num []byte
 		for i := c.lo; i < c.hi; i++ {
 			p, d, m := g.Pos(i), g.D(i), f.Fitted(i)
 			res := panel.Vec{X: d.X - m.X, Y: d.Y - m.Y} // Fit.Residual, without fitting twice
-			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i), cell(p.X/pf, 4), cell(p.Y/pf, 4),
-				cell(d.X/lf, 4), cell(d.Y/lf, 4),
-				cell(m.X/lf, 4), cell(m.Y/lf, 4),
-				cell(res.X/lf, 4), cell(res.Y/lf, 4), strconv.FormatBool(f.Outlier(i)))
+			// The eight numbers are formatted into one string and cut
+			// into cells: one allocation a row, not eight.
+			var ends [8]int
+			num = num[:0]
+			for k, v := range [8]float64{p.X / pf, p.Y / pf, d.X / lf, d.Y / lf, m.X / lf, m.Y / lf, res.X / lf, res.Y / lf} {
+				num = appendCell(num, v, 4)
+				ends[k] = len(num)
+			}
+			str := string(num)
+			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i))
+			for k, e := range ends {
+				a := 0
+				if k > 0 {
+					a = ends[k-1]
+				}
+				rec = append(rec, str[a:e])
+			}
+			rec = append(rec, strconv.FormatBool(f.Outlier(i)))
 			cw.Write(rec) // a bytes.Buffer does not fail
 		}
 		cw.Flush()
 	}
 	workers := runtime.GOMAXPROCS(0)
 	batch := 2 * workers
+	bufs := make([]bytes.Buffer, batch) // reused from batch to batch
 	for b := 0; b < len(chunks); b += batch {
 		part := chunks[b:min(b+batch, len(chunks))]
+		for j, c := range part {
+			bufs[j].Reset()
+			c.buf = &bufs[j]
+		}
 		var wg sync.WaitGroup
 		next := make(chan *chunk)
 		for range min(workers, len(part)) {
@@ -319,7 +342,7 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 			if _, err := w.Write(c.buf.Bytes()); err != nil {
 				return err
 			}
-			c.buf = bytes.Buffer{}
+			c.buf = nil
 		}
 	}
 	return nil
