@@ -1,10 +1,14 @@
 package registration
 
 import (
+	"cmp"
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
+	"sync"
+	"sync/atomic"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -146,6 +150,9 @@ type FitSettings struct {
 	OutlierLimit float64
 	// MaxIter bounds the reweighting iterations of each phase; zero means 50.
 	MaxIter int
+	// Workers is the number of panel-and-layer fits made at once; zero
+	// means GOMAXPROCS. The fits do not depend on it.
+	Workers int
 }
 
 // Fit is the fitted movement of one layer on one panel.
@@ -164,15 +171,62 @@ type Fit struct {
 	Sigma0 float64 // a-posteriori standard error of unit weight (per axis), m
 	// RMS and Max are the root mean square and the largest radial residual
 	// over the targets not reported as outliers, m.
-	RMS, Max  float64
-	Targets   []Target
-	Fitted    []panel.Vec // the model's displacement at each target
-	Residuals []panel.Vec // measured minus fitted, parallel to Targets
-	Weights   []float64   // 1, or 0 for a target rejected as an outlier
-	Outliers  []string    // names of the targets reported as outliers
+	RMS, Max float64
+	// Group holds the targets fitted; Target, Fitted, Residual and
+	// Outlier give each one's part of the fit.
+	Group    *TargetGroup
+	Outliers []string // names of the targets reported as outliers
 	// Scale is the residual scale σ the outlier test used, m (0 for ordinary
 	// least squares).
 	Scale float64
+
+	// A fit keeps no array per target beside its group: the fitted
+	// displacement is recomputed from the parameters by the expression
+	// the solver used (fitted), so it is the same to the bit, and the
+	// outliers are their sorted indices.
+	beta    [NumTerms]float64 // the parameters of the model (not the terms: a similarity has one scale)
+	datum   panel.Vec
+	outlier []int32 // indices in Group of the outliers, ascending
+}
+
+// Len returns the number of targets fitted.
+func (f *Fit) Len() int {
+	if f.Group == nil {
+		return 0
+	}
+	return f.Group.Len()
+}
+
+// Target returns target i of the fit.
+func (f *Fit) Target(i int) Target { return f.Group.Target(i) }
+
+// Fitted returns the model's displacement at target i.
+func (f *Fit) Fitted(i int) panel.Vec {
+	ax, ay := columns(f.Model, f.Group.Pos(i), f.datum)
+	return fitted(&ax, &ay, &f.beta, f.Model.Params())
+}
+
+// Residual returns target i's measured minus fitted displacement.
+func (f *Fit) Residual(i int) panel.Vec {
+	d, m := f.Group.d[i], f.Fitted(i)
+	return panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
+}
+
+// Outlier reports whether target i was rejected as an outlier.
+func (f *Fit) Outlier(i int) bool {
+	_, ok := slices.BinarySearch(f.outlier, int32(i))
+	return ok
+}
+
+// fitted returns the displacement of parameters beta on design rows ax, ay:
+// the one expression for a fitted value, in the solver and after it.
+func fitted(ax, ay, beta *[NumTerms]float64, np int) panel.Vec {
+	var fx, fy float64
+	for a := 0; a < np; a++ {
+		fx += ax[a] * beta[a]
+		fy += ay[a] * beta[a]
+	}
+	return panel.Vec{X: fx, Y: fy}
 }
 
 // Errors of a fit, for errors.Is.
@@ -195,48 +249,52 @@ func (e *FitError) Unwrap() error { return e.Err }
 // FitAll groups targets by panel and layer, in order of first appearance, and
 // fits each group.
 func FitAll(ts []Target, set *FitSettings) ([]Fit, error) {
-	type key struct{ panel, layer string }
-	var order []key
-	groups := map[key][]Target{}
-	// A file written panel by panel and layer by layer holds each group in
-	// one run of rows; then every fit takes its run of ts itself and no
-	// target is copied.
-	runs := map[key]bool{}
-	contiguous := true
-	for i := 0; i < len(ts); {
-		k := key{ts[i].Panel, ts[i].Layer}
-		j := i + 1
-		for j < len(ts) && ts[j].Panel == k.panel && ts[j].Layer == k.layer {
-			j++
-		}
-		if runs[k] {
-			contiguous = false
-			break
-		}
-		runs[k] = true
-		order = append(order, k)
-		groups[k] = ts[i:j:j]
-		i = j
+	return FitSet(GroupTargets(ts), set)
+}
+
+// FitSet fits each group of s, the fits in the order of the groups. Of
+// several groups that cannot be fitted, the error names the first.
+//
+// The groups are independent, so set.Workers goroutines take them in turn,
+// each with its own work storage (memory for one group's design rows, not
+// for the set).
+func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
+	n := len(s.Groups)
+	fits := make([]Fit, n)
+	errs := make([]error, n)
+	workers := runtime.GOMAXPROCS(0)
+	if set != nil && set.Workers > 0 {
+		workers = set.Workers
 	}
-	if !contiguous {
-		order = order[:0]
-		clear(groups)
-		for _, t := range ts {
-			k := key{t.Panel, t.Layer}
-			if _, ok := groups[k]; !ok {
-				order = append(order, k)
+	workers = max(1, min(workers, n))
+	var next, failed atomic.Int64 // the next group to fit; the first that failed
+	failed.Store(int64(n))
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Go(func() {
+			var w fitWork
+			for {
+				i := next.Add(1) - 1
+				if i >= failed.Load() {
+					return // groups after a failed one need no fit: its error is the one reported
+				}
+				f, err := w.fit(s.Groups[i], set)
+				if err != nil {
+					errs[i] = err
+					for {
+						if old := failed.Load(); i >= old || failed.CompareAndSwap(old, i) {
+							break
+						}
+					}
+					continue
+				}
+				fits[i] = *f
 			}
-			groups[k] = append(groups[k], t)
-		}
+		})
 	}
-	fits := make([]Fit, 0, len(order))
-	var w fitWork
-	for _, k := range order {
-		f, err := w.fit(groups[k], set)
-		if err != nil {
-			return nil, err
-		}
-		fits = append(fits, *f)
+	wg.Wait()
+	if i := failed.Load(); i < int64(n) {
+		return nil, errs[i]
 	}
 	return fits, nil
 }
@@ -244,8 +302,15 @@ func FitAll(ts []Target, set *FitSettings) ([]Fit, error) {
 // FitTargets fits the targets of one panel and layer (taken from the first
 // target).
 func FitTargets(ts []Target, set *FitSettings) (*Fit, error) {
+	g := &TargetGroup{sites: newSiteTable()}
+	if len(ts) > 0 {
+		g.Panel, g.Layer = ts[0].Panel, ts[0].Layer
+	}
+	for _, t := range ts {
+		g.add(t.Name, t.Pos, t.D, t.Row)
+	}
 	var w fitWork
-	return w.fit(ts, set)
+	return w.fit(g, set)
 }
 
 // fitWork holds the storage one fit reuses.
@@ -255,7 +320,13 @@ type fitWork struct {
 	chol    mat.Cholesky
 	rhs, bt *mat.VecDense
 	inv     mat.SymDense
-	radial  []float64
+	// radial is the targets' radial residuals in ascending order, each
+	// with its target; a new group starts it empty (see robustScale).
+	radial []radialResidual
+	// Per target of the group being fitted, reused from group to group:
+	// the weights, the fitted displacements and the residuals.
+	weights   []float64
+	residuals []panel.Vec
 }
 
 // columns fills the design rows of the model at r = p − p0: the displacement
@@ -280,22 +351,20 @@ func columns(m FitModel, p, p0 panel.Vec) (ax, ay [NumTerms]float64) {
 	return ax, ay
 }
 
-func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
+func (w *fitWork) fit(g *TargetGroup, set *FitSettings) (*Fit, error) {
 	if set == nil {
 		set = &FitSettings{}
 	}
 	m := set.Model
 	np := m.Params()
-	f := &Fit{Model: m, N: len(ts), Targets: ts}
-	if len(ts) > 0 {
-		f.Panel, f.Layer = ts[0].Panel, ts[0].Layer
-	}
-	if len(ts) < m.MinTargets() {
-		return nil, &FitError{f.Panel, f.Layer, fmt.Errorf("%w: %d target(s), the %s model needs at least %d", ErrTooFewTargets, len(ts), m, m.MinTargets())}
+	n := g.Len()
+	f := &Fit{Model: m, N: n, Group: g, Panel: g.Panel, Layer: g.Layer, datum: set.Datum}
+	if n < m.MinTargets() {
+		return nil, &FitError{f.Panel, f.Layer, fmt.Errorf("%w: %d target(s), the %s model needs at least %d", ErrTooFewTargets, n, m, m.MinTargets())}
 	}
 	w.ax, w.ay = w.ax[:0], w.ay[:0]
-	for _, t := range ts {
-		ax, ay := columns(m, t.Pos, set.Datum)
+	for i := range n {
+		ax, ay := columns(m, g.Pos(i), set.Datum)
 		w.ax, w.ay = append(w.ax, ax), append(w.ay, ay)
 	}
 	if w.nm == nil || w.nm.SymmetricDim() != np {
@@ -303,15 +372,15 @@ func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
 		w.rhs = mat.NewVecDense(np, nil)
 		w.bt = mat.NewVecDense(np, nil)
 	}
-	f.Weights = make([]float64, len(ts))
-	for i := range f.Weights {
-		f.Weights[i] = 1
+	w.radial = w.radial[:0]
+	w.weights = slices.Grow(w.weights[:0], n)[:n]
+	for i := range w.weights {
+		w.weights[i] = 1
 	}
-	f.Residuals = make([]panel.Vec, len(ts))
-	f.Fitted = make([]panel.Vec, len(ts))
+	w.residuals = slices.Grow(w.residuals[:0], n)[:n]
 	var beta [NumTerms]float64
 	var scale [NumTerms]float64
-	if err := w.solve(ts, f, np, &beta, &scale, true); err != nil {
+	if err := w.solve(g, f, np, &beta, &scale, true); err != nil {
 		return nil, err
 	}
 	if set.Robust != NoRobust {
@@ -336,16 +405,16 @@ func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
 				c = set.Tuning
 			}
 			for it := 0; it < maxIter; it++ {
-				s := w.robustScale(f, np, lim)
+				s := w.robustScale(np, lim)
 				f.Scale = s
-				for i, r := range f.Residuals {
+				for i, r := range w.residuals {
 					u := math.Hypot(r.X, r.Y) / s
-					f.Weights[i] = robustWeight(ph, u, c)
+					w.weights[i] = robustWeight(ph, u, c)
 				}
 				prev := beta
 				// The condition was checked with full weights; the reweighted
 				// systems only need to stay positive definite here.
-				if err := w.solve(ts, f, np, &beta, &scale, false); err != nil {
+				if err := w.solve(g, f, np, &beta, &scale, false); err != nil {
 					var fe *FitError
 					if errors.As(err, &fe) {
 						fe.Err = fmt.Errorf("robust %s reweighting kept too few targets: %w", ph, fe.Err)
@@ -372,22 +441,22 @@ func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
 		// squares and re-test every target against the new σ0 until the set
 		// is stable. The reported terms, σ0 and standard errors are those of
 		// that final fit, so they keep their usual meaning.
-		out := make([]bool, len(ts))
-		s := w.robustScale(f, np, lim)
-		for i, r := range f.Residuals {
+		out := make([]bool, n)
+		s := w.robustScale(np, lim)
+		for i, r := range w.residuals {
 			out[i] = math.Hypot(r.X, r.Y) > lim*s
 		}
 		for it := 0; it < 10; it++ {
 			kept := 0
 			for i := range out {
-				f.Weights[i] = 1
+				w.weights[i] = 1
 				if out[i] {
-					f.Weights[i] = 0
+					w.weights[i] = 0
 				} else {
 					kept++
 				}
 			}
-			if err := w.solve(ts, f, np, &beta, &scale, true); err != nil {
+			if err := w.solve(g, f, np, &beta, &scale, true); err != nil {
 				var fe *FitError
 				if errors.As(err, &fe) {
 					fe.Err = fmt.Errorf("after rejecting outliers: %w", fe.Err)
@@ -398,14 +467,14 @@ func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
 				break
 			}
 			var ss float64
-			for i, r := range f.Residuals {
+			for i, r := range w.residuals {
 				if !out[i] {
 					ss += r.X*r.X + r.Y*r.Y
 				}
 			}
 			s = math.Max(math.Sqrt(ss/float64(2*kept-np)), 1e-12)
 			same := true
-			for i, r := range f.Residuals {
+			for i, r := range w.residuals {
 				o := math.Hypot(r.X, r.Y) > lim*s
 				if o != out[i] {
 					same = false
@@ -418,8 +487,9 @@ func (w *fitWork) fit(ts []Target, set *FitSettings) (*Fit, error) {
 		}
 		f.Scale = s
 		for i := range out {
-			if f.Weights[i] == 0 {
-				f.Outliers = append(f.Outliers, ts[i].Name)
+			if w.weights[i] == 0 {
+				f.Outliers = append(f.Outliers, g.Name(i))
+				f.outlier = append(f.outlier, int32(i))
 			}
 		}
 	}
@@ -453,16 +523,30 @@ func robustWeight(r Robust, u, c float64) float64 {
 // lim·σ̂, σ̂² = Σ|r|²/(2n' − p) over those n' targets, until that set is
 // stable. Truncating a Rayleigh distribution at 4σ biases σ² by 0.3 % only.
 // The floor of 1 pm keeps an exact fit from dividing by zero.
-func (w *fitWork) robustScale(f *Fit, np int, lim float64) float64 {
-	w.radial = w.radial[:0]
-	for _, r := range f.Residuals {
-		w.radial = append(w.radial, math.Hypot(r.X, r.Y))
+//
+// The residuals move little from one reweighting to the next, so the
+// targets are sorted in the order the last call left them in, where an
+// insertion sort has little to do; it hands over to a full sort once it has
+// moved more than a few entries per target. Either way the values come out
+// in the same ascending order, and so do the sums over them.
+func (w *fitWork) robustScale(np int, lim float64) float64 {
+	n := len(w.residuals)
+	if len(w.radial) != n {
+		w.radial = w.radial[:0]
+		for i, r := range w.residuals {
+			w.radial = append(w.radial, radialResidual{math.Hypot(r.X, r.Y), int32(i)})
+		}
+		slices.SortFunc(w.radial, compareRadial)
+	} else {
+		for k := range w.radial {
+			r := w.residuals[w.radial[k].i]
+			w.radial[k].r = math.Hypot(r.X, r.Y)
+		}
+		sortNearlySorted(w.radial)
 	}
-	slices.Sort(w.radial)
-	n := len(w.radial)
-	med := w.radial[n/2]
+	med := w.radial[n/2].r
 	if n%2 == 0 {
-		med = (w.radial[n/2-1] + w.radial[n/2]) / 2
+		med = (w.radial[n/2-1].r + w.radial[n/2].r) / 2
 	}
 	s := med / rayleighMedian
 	if dof := 2*n - np; dof > 0 {
@@ -473,8 +557,8 @@ func (w *fitWork) robustScale(f *Fit, np int, lim float64) float64 {
 	for it := 0; it < 10; it++ {
 		var ss float64
 		k := 0
-		for _, r := range w.radial {
-			if r <= lim*s {
+		for _, e := range w.radial {
+			if r := e.r; r <= lim*s {
 				ss += r * r
 				k++
 			}
@@ -488,20 +572,47 @@ func (w *fitWork) robustScale(f *Fit, np int, lim float64) float64 {
 	return s
 }
 
+// radialResidual is a target's radial residual |r| and its index.
+type radialResidual struct {
+	r float64
+	i int32
+}
+
+func compareRadial(a, b radialResidual) int { return cmp.Compare(a.r, b.r) }
+
+// sortNearlySorted sorts a by r: by insertion while that has moved at most
+// 4 entries per element, then by slices.SortFunc.
+func sortNearlySorted(a []radialResidual) {
+	moves, budget := 0, 4*len(a)
+	for i := 1; i < len(a); i++ {
+		x := a[i]
+		j := i
+		for j > 0 && a[j-1].r > x.r {
+			a[j] = a[j-1]
+			j--
+		}
+		a[j] = x
+		if moves += i - j; moves > budget {
+			slices.SortFunc(a, compareRadial)
+			return
+		}
+	}
+}
+
 // solve forms the weighted normal equations, equilibrates their columns,
 // checks the condition and solves by Cholesky. It leaves the parameters in
 // beta, the column scales 1/√N_kk in scale and the residuals in f.
-func (w *fitWork) solve(ts []Target, f *Fit, np int, beta, scale *[NumTerms]float64, checkCond bool) error {
+func (w *fitWork) solve(g *TargetGroup, f *Fit, np int, beta, scale *[NumTerms]float64, checkCond bool) error {
 	var nm [NumTerms][NumTerms]float64
 	var rhs [NumTerms]float64
-	for i, t := range ts {
-		wt := f.Weights[i]
+	for i, d := range g.d {
+		wt := w.weights[i]
 		if wt == 0 {
 			continue
 		}
 		ax, ay := &w.ax[i], &w.ay[i]
 		for a := 0; a < np; a++ {
-			rhs[a] += wt * (ax[a]*t.D.X + ay[a]*t.D.Y)
+			rhs[a] += wt * (ax[a]*d.X + ay[a]*d.Y)
 			for b := a; b < np; b++ {
 				nm[a][b] += wt * (ax[a]*ax[b] + ay[a]*ay[b])
 			}
@@ -534,14 +645,9 @@ func (w *fitWork) solve(ts []Target, f *Fit, np int, beta, scale *[NumTerms]floa
 	for a := 0; a < np; a++ {
 		beta[a] = w.bt.AtVec(a) * scale[a]
 	}
-	for i, t := range ts {
-		var fx, fy float64
-		for a := 0; a < np; a++ {
-			fx += w.ax[i][a] * beta[a]
-			fy += w.ay[i][a] * beta[a]
-		}
-		f.Fitted[i] = panel.Vec{X: fx, Y: fy}
-		f.Residuals[i] = panel.Vec{X: t.D.X - fx, Y: t.D.Y - fy}
+	for i, d := range g.d {
+		m := fitted(&w.ax[i], &w.ay[i], beta, np)
+		w.residuals[i] = panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
 	}
 	return nil
 }
@@ -558,8 +664,8 @@ func paramName(m FitModel, a int) string {
 func (w *fitWork) finish(f *Fit, np int, beta *[NumTerms]float64) {
 	var scale [NumTerms]float64
 	var sw, swr float64
-	for i, r := range f.Residuals {
-		wt := f.Weights[i]
+	for i, r := range w.residuals {
+		wt := w.weights[i]
 		sw += 2 * wt
 		swr += wt * (r.X*r.X + r.Y*r.Y)
 	}
@@ -592,15 +698,12 @@ func (w *fitWork) finish(f *Fit, np int, beta *[NumTerms]float64) {
 			f.Terms[a], f.StdErr[a] = beta[a], se[a]
 		}
 	}
-	out := map[string]bool{}
-	for _, n := range f.Outliers {
-		out[n] = true
-	}
+	f.beta = *beta
 	var ss float64
 	n := 0
 	f.Max = 0
-	for i, r := range f.Residuals {
-		if out[f.Targets[i].Name] {
+	for i, r := range w.residuals {
+		if f.Outlier(i) {
 			continue
 		}
 		d := math.Hypot(r.X, r.Y)
@@ -616,8 +719,8 @@ func (w *fitWork) finish(f *Fit, np int, beta *[NumTerms]float64) {
 // nmDiag returns the weighted normal matrix's diagonal entry a.
 func (w *fitWork) nmDiag(f *Fit, a int) float64 {
 	var s float64
-	for i := range f.Residuals {
-		s += f.Weights[i] * (w.ax[i][a]*w.ax[i][a] + w.ay[i][a]*w.ay[i][a])
+	for i := range w.residuals {
+		s += w.weights[i] * (w.ax[i][a]*w.ax[i][a] + w.ay[i][a]*w.ay[i][a])
 	}
 	return s
 }
@@ -695,33 +798,30 @@ func (l *Lot) Contributor(name string) Contributor {
 // targets not reported as outliers. It returns nil when the layer has no
 // targets. The grid is what the affine model leaves unexplained and is ready
 // for a contributor's residual.
+//
+// The grid is accumulated target by target into every node's sums, in the
+// order of the fits and of their targets, so it needs memory for the nodes
+// only, not a copy of every residual.
 func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
-	type pt struct{ p, r panel.Vec }
-	var pts []pt
 	lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
 	hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
+	n := 0
 	for i := range fits {
 		f := &fits[i]
 		if f.Layer != layer {
 			continue
 		}
-		var out map[string]bool
-		if len(f.Outliers) > 0 {
-			out = make(map[string]bool, len(f.Outliers))
-			for _, n := range f.Outliers {
-				out[n] = true
-			}
-		}
-		for j, t := range f.Targets {
-			if out[t.Name] {
+		for j := range f.Len() {
+			if f.Outlier(j) {
 				continue
 			}
-			pts = append(pts, pt{t.Pos, f.Residuals[j]})
-			lo = panel.Vec{X: math.Min(lo.X, t.Pos.X), Y: math.Min(lo.Y, t.Pos.Y)}
-			hi = panel.Vec{X: math.Max(hi.X, t.Pos.X), Y: math.Max(hi.Y, t.Pos.Y)}
+			p := f.Group.Pos(j)
+			lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
+			hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
+			n++
 		}
 	}
-	if len(pts) == 0 {
+	if n == 0 {
 		return nil
 	}
 	nx, ny = max(nx, 2), max(ny, 2)
@@ -751,18 +851,36 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 	}
 	for j := range g.Y {
 		g.Y[j] = lo.Y + float64(j)*sy
+	}
+	sw := make([]float64, nx*ny)
+	dx := make([]float64, nx*ny)
+	dy := make([]float64, nx*ny)
+	for fi := range fits {
+		f := &fits[fi]
+		if f.Layer != layer {
+			continue
+		}
+		for t := range f.Len() {
+			if f.Outlier(t) {
+				continue
+			}
+			p, r := f.Group.Pos(t), f.Residual(t)
+			for j, y := range g.Y {
+				for i, x := range g.X {
+					ex, ey := (p.X-x)/hx, (p.Y-y)/hy
+					k := math.Exp(-0.5 * (ex*ex + ey*ey))
+					sw[j*nx+i] += k
+					dx[j*nx+i] += k * r.X
+					dy[j*nx+i] += k * r.Y
+				}
+			}
+		}
+	}
+	for j := range g.Y {
 		g.DX[j], g.DY[j] = make([]float64, nx), make([]float64, nx)
 		for i := range g.X {
-			var sw, dx, dy float64
-			for _, q := range pts {
-				ex, ey := (q.p.X-g.X[i])/hx, (q.p.Y-g.Y[j])/hy
-				k := math.Exp(-0.5 * (ex*ex + ey*ey))
-				sw += k
-				dx += k * q.r.X
-				dy += k * q.r.Y
-			}
-			if sw > 1e-12 {
-				g.DX[j][i], g.DY[j][i] = dx/sw, dy/sw
+			if q := j*nx + i; sw[q] > 1e-12 {
+				g.DX[j][i], g.DY[j][i] = dx[q]/sw[q], dy[q]/sw[q]
 			}
 		}
 	}

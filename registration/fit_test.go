@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"reflect"
 	"slices"
 	"testing"
 
@@ -220,12 +221,12 @@ func TestHelmertGhilaniWolf(t *testing.T) {
 				name      string
 				got, want float64
 				tol       float64
-			}{fmt.Sprintf("vE%d", i+1), -f.Residuals[i].X, v[0], 6e-4},
+			}{fmt.Sprintf("vE%d", i+1), -f.Residual(i).X, v[0], 6e-4},
 			struct {
 				name      string
 				got, want float64
 				tol       float64
-			}{fmt.Sprintf("vN%d", i+1), -f.Residuals[i].Y, v[1], 6e-4})
+			}{fmt.Sprintf("vN%d", i+1), -f.Residual(i).Y, v[1], 6e-4})
 	}
 	for _, ch := range checks {
 		if math.Abs(ch.got-ch.want) > ch.tol {
@@ -372,10 +373,11 @@ func TestLotStats(t *testing.T) {
 func TestPooledResiduals(t *testing.T) {
 	var fits []Fit
 	for p := 0; p < 4; p++ {
-		ts := gridTargets(fmt.Sprint(p), "L3", 5, 5, 16*in, 20*in, truth, panel.Vec{}, 0, nil)
-		f := Fit{Layer: "L3", Targets: ts, Residuals: make([]panel.Vec, len(ts))}
-		f.Residuals[12] = panel.Vec{X: 5 * um} // the centre target
-		fits = append(fits, f)
+		// A fit with all parameters zero leaves each target's displacement
+		// as its residual.
+		ts := gridTargets(fmt.Sprint(p), "L3", 5, 5, 16*in, 20*in, [NumTerms]float64{}, panel.Vec{}, 0, nil)
+		ts[12].D = panel.Vec{X: 5 * um} // the centre target
+		fits = append(fits, Fit{Layer: "L3", Group: GroupTargets(ts).Groups[0]})
 	}
 	g := PooledResiduals(fits, "L3", 5, 5)
 	if d := g.At(panel.Vec{}); math.Abs(d.X-5*um) > 0.5*um {
@@ -411,5 +413,84 @@ func BenchmarkFitLot(b *testing.B) {
 			}
 			b.ReportMetric(float64(b.Elapsed().Milliseconds())/float64(b.N), "ms/lot")
 		})
+	}
+}
+
+// TestFitSetWorkers checks that the fits of a lot do not depend on how many
+// groups are fitted at once, and that of two groups that cannot be fitted
+// the error names the earlier one whatever finishes first.
+func TestFitSetWorkers(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 4))
+	var ts []Target
+	for p := 0; p < 12; p++ {
+		for l := 0; l < 3; l++ {
+			g := gridTargets(fmt.Sprint("P", p), fmt.Sprint("L", l+1), 6, 5, 16*in, 22*in, truth, panel.Vec{}, 2*um, rng)
+			g[7].D.X += 40 * um // a mis-measured target for the robust fit to reject
+			ts = append(ts, g...)
+		}
+	}
+	s := GroupTargets(ts)
+	one, err := FitSet(s, &FitSettings{Robust: Tukey, Workers: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, w := range []int{2, 5, 64} {
+		many, err := FitSet(s, &FitSettings{Robust: Tukey, Workers: w})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(one, many) {
+			t.Errorf("%d workers: the fits differ from one worker's", w)
+		}
+	}
+	// Groups 5 and 30 have one target each: too few for an affine fit.
+	bad := GroupTargets(ts)
+	for _, k := range []int{5, 30} {
+		g := bad.Groups[k]
+		g.site, g.d, g.rows = g.site[:1], g.d[:1], g.rows[:1]
+	}
+	for _, w := range []int{1, 2, 64} {
+		_, err := FitSet(bad, &FitSettings{Workers: w})
+		var fe *FitError
+		if !errors.As(err, &fe) || fe.Panel != bad.Groups[5].Panel || fe.Layer != bad.Groups[5].Layer {
+			t.Errorf("%d workers: error %v, want one naming group 5 (%s, %s)", w, err, bad.Groups[5].Panel, bad.Groups[5].Layer)
+		}
+	}
+}
+
+// TestSortNearlySorted checks the robust scale's sort on the inputs it
+// meets (nearly sorted: a few neighbours swapped) and on ones it hands over
+// (shuffled, reversed): the values come out ascending, none lost.
+func TestSortNearlySorted(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	for _, kind := range []string{"nearly sorted", "shuffled", "reversed", "one", "empty"} {
+		n := 3000
+		switch kind {
+		case "one":
+			n = 1
+		case "empty":
+			n = 0
+		}
+		a := make([]radialResidual, n)
+		for i := range a {
+			a[i] = radialResidual{float64(i) + 0.5*rng.Float64(), int32(i)}
+		}
+		switch kind {
+		case "nearly sorted":
+			for range n / 20 {
+				i := rng.IntN(n - 1)
+				a[i], a[i+1] = a[i+1], a[i]
+			}
+		case "shuffled":
+			rng.Shuffle(n, func(i, j int) { a[i], a[j] = a[j], a[i] })
+		case "reversed":
+			slices.Reverse(a)
+		}
+		want := slices.Clone(a)
+		slices.SortFunc(want, compareRadial)
+		sortNearlySorted(a)
+		if !slices.Equal(a, want) {
+			t.Errorf("%s: not sorted as slices.SortFunc sorts", kind)
+		}
 	}
 }

@@ -2,7 +2,11 @@ package registration
 
 import (
 	"errors"
+	"fmt"
 	"math"
+	"math/rand/v2"
+	"reflect"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -69,6 +73,12 @@ func TestReadTargetsErrors(t *testing.T) {
 		{"same pair", h + "P,L3-L3,T1,1,2,0.1,0.2\n", 2, "layer", "pair"},
 		{"short row", h + "P,L3,T1,1,2,0.1\n", 2, "", "fields"},
 		{"header only", h, 0, "", "no targets"},
+		// The duplicate check runs once the file is read; it must still
+		// report whichever error a check row by row meets first.
+		{"duplicate before a bad cell", h + "P,L3,T1,1,2,0.1,0.2\nP,L3,T1,1,2,0.1,0.2\nP,L3,T2,1,2,abc,0.2\n", 3, "target", "row 2"},
+		{"bad cell before a duplicate", h + "P,L3,T1,1,2,0.1,0.2\nP,L3,T2,1,2,abc,0.2\nP,L3,T1,1,2,0.1,0.2\n", 3, "dx", "not a finite number"},
+		{"earliest duplicate of interleaved groups", h + "P,L3,A,1,2,0.1,0.2\nP,L4,B,1,2,0.1,0.2\nP,L4,B,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\n", 4, "target", "row 3"},
+		{"third of a name", h + "P,L3,A,1,2,0.1,0.2\nP,L3,B,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\n", 4, "target", "also on row 2"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -112,7 +122,110 @@ func FuzzReadTargets(f *testing.F) {
 				t.Fatalf("target %+v lacks a name or row", tg)
 			}
 		}
+		// The duplicate check runs after the reading: what it lets through
+		// must have no two targets of one name on a panel and layer, and
+		// the rows must be in file order.
+		seen := map[[3]string]int{}
+		for i, tg := range ts {
+			k := [3]string{tg.Panel, tg.Layer, tg.Name}
+			if r, dup := seen[k]; dup {
+				t.Fatalf("target %q on panel %q, layer %q read twice (rows %d and %d)", tg.Name, tg.Panel, tg.Layer, r, tg.Row)
+			}
+			seen[k] = tg.Row
+			if i > 0 && tg.Row <= ts[i-1].Row {
+				t.Fatalf("rows %d, %d out of file order", ts[i-1].Row, tg.Row)
+			}
+		}
 	})
 }
 
 func vec(x, y float64) panel.Vec { return panel.Vec{X: x, Y: y} }
+
+// TestTargetSetSites checks that sharing sites (name and nominal position)
+// between panels and layers changes nothing a reader of the set sees: every
+// target reads back exactly, −0 stays −0, a repeated layout is stored once
+// and a file whose sites do not repeat stops being indexed.
+func TestTargetSetSites(t *testing.T) {
+	var ts []Target
+	for p := range 3 {
+		for l := range 2 {
+			for i := range 50 {
+				pos := vec(float64(i%10)*in, float64(i/10)*in)
+				if i == 0 {
+					pos = vec(math.Copysign(0, -1), 0)
+				}
+				ts = append(ts, Target{Panel: fmt.Sprint("P", p), Layer: fmt.Sprint("L", l), Name: fmt.Sprint("T", i),
+					Pos: pos, D: vec(float64(p)*um, float64(l*i)*um), Row: len(ts) + 2})
+			}
+		}
+	}
+	// Same name, other position: a site of its own.
+	ts = append(ts, Target{Panel: "P9", Layer: "L0", Name: "T1", Pos: vec(5*in, 5*in), Row: len(ts) + 2})
+	s := GroupTargets(ts)
+	if n := len(s.sites.pos); n != 51 {
+		t.Errorf("%d sites, want the layout's 50 and one more", n)
+	}
+	if got := s.Targets(); !reflect.DeepEqual(got, ts) {
+		t.Error("targets read back differ")
+	}
+	if p := s.Groups[0].Pos(0); !math.Signbit(p.X) {
+		t.Errorf("position %v lost the sign of -0", p)
+	}
+	var uniq []Target
+	for i := range siteProbe + 100 {
+		uniq = append(uniq, Target{Panel: "P", Layer: "L", Name: fmt.Sprint(i), Pos: vec(float64(i)*um, 0), Row: i + 2})
+	}
+	s = GroupTargets(uniq)
+	if s.sites.index != nil {
+		t.Error("the site index is kept for sites that do not repeat")
+	}
+	if got := s.Targets(); !reflect.DeepEqual(got, uniq) {
+		t.Error("unique targets read back differ")
+	}
+}
+
+// BenchmarkReadTargetSet reads an invented file of 100 panels × 8 layers ×
+// 300 targets (240,000 rows, the layout repeated on every panel and layer)
+// and reports the heap a read set keeps per target (retained-B/target),
+// the figure TargetSet's layout is designed for.
+func BenchmarkReadTargetSet(b *testing.B) {
+	var csv strings.Builder
+	csv.WriteString("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n")
+	rng := rand.New(rand.NewPCG(1, 2))
+	for p := range 100 {
+		for l := range 8 {
+			for t := range 300 {
+				fmt.Fprintf(&csv, "P%03d,L%d,T%05d,%.4f,%.4f,%.4f,%.4f\n", p, l+1, t+1,
+					-8+16*float64(t%20)/19, -11+22*float64(t/20)/14, 0.05*rng.NormFloat64(), 0.05*rng.NormFloat64())
+			}
+		}
+	}
+	data := csv.String()
+	perTarget := retainedPerTarget(data)
+	b.SetBytes(int64(len(data)))
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := ReadTargetSet(strings.NewReader(data), "b.csv"); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(perTarget, "retained-B/target")
+}
+
+// retainedPerTarget returns the live heap a set read from data adds, per
+// target. It runs before any other set exists, so the difference is the
+// set's.
+func retainedPerTarget(data string) float64 {
+	var before, after runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&before)
+	benchSet, _ = ReadTargetSet(strings.NewReader(data), "b.csv")
+	runtime.GC()
+	runtime.ReadMemStats(&after)
+	n := benchSet.Len()
+	benchSet = nil
+	return float64(int64(after.HeapAlloc)-int64(before.HeapAlloc)) / float64(n)
+}
+
+// benchSet keeps the set BenchmarkReadTargetSet measures alive.
+var benchSet *TargetSet

@@ -108,9 +108,9 @@ func runFitFileIn(path string, stdin io.Reader, set registration.FitSettings, gr
 	if err != nil {
 		return nil, err
 	}
-	for _, t := range ts {
-		if _, lower, rel := registration.SplitLayer(t.Layer); rel && lower == "" {
-			return nil, badInput(&registration.CSVError{File: name, Row: t.Row, Column: "layer", Err: fmt.Errorf("%q: bad layer pair", t.Layer)})
+	for _, g := range ts.Groups {
+		if _, lower, rel := registration.SplitLayer(g.Layer); rel && lower == "" {
+			return nil, badInput(&registration.CSVError{File: name, Row: g.Row(0), Column: "layer", Err: fmt.Errorf("%q: bad layer pair", g.Layer)})
 		}
 	}
 	r, err := fitreport.New(name, ts, set, grid)

@@ -49,16 +49,19 @@ func readFile(path string, stdin io.Reader) ([]byte, string, error) {
 }
 
 // readTargets reads a measurement file ("-" for stdin) with
-// registration.ReadTargets, maps it into the panel frame by fr and, for a
+// registration.ReadTargetSet, maps it into the panel frame by fr and, for a
 // panel size that is not zero, refuses a target off the panel. Its errors
 // are bad input. It returns the name messages use for the file.
-func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) ([]registration.Target, string, error) {
+func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel.Vec) (*registration.TargetSet, string, error) {
 	var src io.Reader
 	name := path
-	// A regular file is read as a stream, so that the file's bytes are not
-	// held beside the targets parsed from them; anything else (stdin, a
-	// directory, a pipe) goes through readFile and its messages.
-	if path != "-" {
+	// A regular file and standard input are read as a stream, so that the
+	// file's bytes are not held beside the targets parsed from them;
+	// anything else (a directory, a named pipe, no standard input) goes
+	// through readFile and its messages.
+	if path == "-" && stdin != nil {
+		src, name = bufio.NewReaderSize(stdin, 1<<16), "<stdin>"
+	} else if path != "-" {
 		if f, err := os.Open(path); err == nil {
 			defer f.Close()
 			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
@@ -73,7 +76,7 @@ func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel
 		}
 		src, name = bytes.NewReader(data), n
 	}
-	ts, err := registration.ReadTargets(src, name)
+	ts, err := registration.ReadTargetSet(src, name)
 	if err != nil {
 		return nil, name, badInput(err)
 	}

@@ -1,14 +1,18 @@
 package fitreport
 
 import (
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
 	"io"
 	"math"
+	"runtime"
 	"strconv"
 	"strings"
+	"sync"
 
+	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -33,16 +37,30 @@ type Report struct {
 }
 
 // New fits the targets ts (read from file) with set: every panel and layer
-// (registration.FitAll), the lot statistics, and per layer the pooled
-// residuals on grid × grid nodes.
-func New(file string, ts []registration.Target, set registration.FitSettings, grid int) (*Report, error) {
-	fits, err := registration.FitAll(ts, &set)
+// (registration.FitSet), the lot statistics, and per layer the pooled
+// residuals on grid × grid nodes. The report keeps ts: the fits refer to
+// its groups for their per-target results.
+func New(file string, ts *registration.TargetSet, set registration.FitSettings, grid int) (*Report, error) {
+	fits, err := registration.FitSet(ts, &set)
 	if err != nil {
 		return nil, err
 	}
 	r := &Report{File: file, Settings: set, Fits: fits, Lots: registration.LotStats(fits), Grids: map[string]*registration.Grid{}}
-	for _, l := range r.Lots {
-		r.Grids[l.Layer] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+	// The layers' grids are independent: one goroutine each, at most
+	// GOMAXPROCS at once.
+	grids := make([]*registration.Grid, len(r.Lots))
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	var wg sync.WaitGroup
+	for i, l := range r.Lots {
+		wg.Go(func() {
+			sem <- struct{}{}
+			defer func() { <-sem }()
+			grids[i] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+		})
+	}
+	wg.Wait()
+	for i, l := range r.Lots {
+		r.Grids[l.Layer] = grids[i]
 	}
 	r.Joint = registration.LotContributors(fits, r.Lots, func(l *registration.Lot) string { return "measured " + l.Layer })
 	r.Differences = r.Joint.Differences(fits)
@@ -182,11 +200,14 @@ func (r *Report) Summary() *Summary {
 }
 
 // cell formats v with d decimals, "" for NaN.
-func cell(v float64, d int) string {
+func cell(v float64, d int) string { return string(appendCell(nil, v, d)) }
+
+// appendCell appends cell(v, d) to b.
+func appendCell(b []byte, v float64, d int) []byte {
 	if math.IsNaN(v) {
-		return ""
+		return b
 	}
-	return strconv.FormatFloat(v, 'f', d, 64)
+	return strconv.AppendFloat(b, v, 'f', d, 64)
 }
 
 // WriteFitCSV writes one row per fit (fit.csv): terms and their standard
@@ -234,6 +255,11 @@ func (r *Report) WriteFitCSV(w io.Writer, u unit.Output) error {
 
 // WriteResidualsCSV writes one row per target (residuals.csv): position,
 // measured, fitted and residual displacement, and whether it was rejected.
+//
+// The rows are made from the fits' groups, never held for the whole file:
+// runs of residualChunk rows are formatted into buffers by GOMAXPROCS
+// goroutines and written in order, a few runs per worker at a time, so the
+// memory is that of those buffers and the bytes are those of one writer.
 func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
 	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
@@ -242,22 +268,89 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	if err := cw.Write(header); err != nil {
 		return err
 	}
-	lf, pf := u.LengthSI(), u.PanelSI()
-	for _, f := range r.Fits {
-		for i, t := range f.Targets {
-			out := f.Weights[i] == 0 && len(f.Outliers) > 0
-			rec := []string{f.Panel, f.Layer, t.Name, cell(t.Pos.X/pf, 4), cell(t.Pos.Y/pf, 4),
-				cell(t.D.X/lf, 4), cell(t.D.Y/lf, 4),
-				cell(f.Fitted[i].X/lf, 4), cell(f.Fitted[i].Y/lf, 4),
-				cell(f.Residuals[i].X/lf, 4), cell(f.Residuals[i].Y/lf, 4), strconv.FormatBool(out)}
-			if err := cw.Write(rec); err != nil {
-				return err
-			}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return err
+	}
+	type chunk struct {
+		f      *registration.Fit
+		lo, hi int
+		buf    *bytes.Buffer
+	}
+	var chunks []*chunk
+	for k := range r.Fits {
+		f := &r.Fits[k]
+		for lo := 0; lo < f.Len(); lo += residualChunk {
+			chunks = append(chunks, &chunk{f: f, lo: lo, hi: min(lo+residualChunk, f.Len())})
 		}
 	}
-	cw.Flush()
-	return cw.Error()
+	lf, pf := u.LengthSI(), u.PanelSI()
+	format := func(c *chunk) {
+		cw := csv.NewWriter(c.buf)
+		f, g := c.f, c.f.Group
+		rec := make([]string, 0, len(header))
+		var num []byte
+		for i := c.lo; i < c.hi; i++ {
+			p, d, m := g.Pos(i), g.D(i), f.Fitted(i)
+			res := panel.Vec{X: d.X - m.X, Y: d.Y - m.Y} // Fit.Residual, without fitting twice
+			// The eight numbers are formatted into one string and cut
+			// into cells: one allocation a row, not eight.
+			var ends [8]int
+			num = num[:0]
+			for k, v := range [8]float64{p.X / pf, p.Y / pf, d.X / lf, d.Y / lf, m.X / lf, m.Y / lf, res.X / lf, res.Y / lf} {
+				num = appendCell(num, v, 4)
+				ends[k] = len(num)
+			}
+			str := string(num)
+			rec = append(rec[:0], f.Panel, f.Layer, g.Name(i))
+			for k, e := range ends {
+				a := 0
+				if k > 0 {
+					a = ends[k-1]
+				}
+				rec = append(rec, str[a:e])
+			}
+			rec = append(rec, strconv.FormatBool(f.Outlier(i)))
+			cw.Write(rec) // a bytes.Buffer does not fail
+		}
+		cw.Flush()
+	}
+	workers := runtime.GOMAXPROCS(0)
+	batch := 2 * workers
+	bufs := make([]bytes.Buffer, batch) // reused from batch to batch
+	for b := 0; b < len(chunks); b += batch {
+		part := chunks[b:min(b+batch, len(chunks))]
+		for j, c := range part {
+			bufs[j].Reset()
+			c.buf = &bufs[j]
+		}
+		var wg sync.WaitGroup
+		next := make(chan *chunk)
+		for range min(workers, len(part)) {
+			wg.Go(func() {
+				for c := range next {
+					format(c)
+				}
+			})
+		}
+		for _, c := range part {
+			next <- c
+		}
+		close(next)
+		wg.Wait()
+		for _, c := range part {
+			if _, err := w.Write(c.buf.Bytes()); err != nil {
+				return err
+			}
+			c.buf = nil
+		}
+	}
+	return nil
 }
+
+// residualChunk is the number of residuals.csv rows one goroutine formats
+// at a time: about 0.5 MB of text.
+const residualChunk = 4096
 
 // WriteGridCSV writes a residual grid in the format registration.ReadGrid
 // reads.

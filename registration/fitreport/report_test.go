@@ -32,7 +32,7 @@ func testReport(t *testing.T) *Report {
 				D: panel.Vec{X: 0.5*mil + 100e-6*pos.X, Y: -0.3 * mil}})
 		}
 	}
-	r, err := New("targets.csv", ts, registration.FitSettings{}, 3)
+	r, err := New("targets.csv", registration.GroupTargets(ts), registration.FitSettings{}, 3)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -29,9 +29,10 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
 		hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
 		for _, f := range fits {
-			for _, t := range f.Targets {
-				lo = panel.Vec{X: math.Min(lo.X, t.Pos.X), Y: math.Min(lo.Y, t.Pos.Y)}
-				hi = panel.Vec{X: math.Max(hi.X, t.Pos.X), Y: math.Max(hi.Y, t.Pos.Y)}
+			for i := range f.Len() {
+				p := f.Group.Pos(i)
+				lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
+				hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
 			}
 		}
 		pad := 0.1*math.Max(hi.X-lo.X, hi.Y-lo.Y) + 0.01
@@ -42,12 +43,13 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	// arrow (outliers aside) a tenth of the panel's shorter side long.
 	var maxD, maxR float64
 	for _, f := range fits {
-		for i, t := range f.Targets {
-			if f.Weights[i] == 0 && len(f.Outliers) > 0 {
+		for i := range f.Len() {
+			if f.Outlier(i) {
 				continue // an outlier must not shrink every other arrow
 			}
-			maxD = math.Max(maxD, math.Hypot(t.D.X, t.D.Y))
-			maxR = math.Max(maxR, math.Hypot(f.Residuals[i].X, f.Residuals[i].Y))
+			d, r := f.Group.D(i), f.Residual(i)
+			maxD = math.Max(maxD, math.Hypot(d.X, d.Y))
+			maxR = math.Max(maxR, math.Hypot(r.X, r.Y))
 		}
 	}
 	side := math.Min(ext.Dx(), ext.Dy())
@@ -92,8 +94,8 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	}
 	nOut := 0
 	for _, f := range fits {
-		for _, t := range f.Targets {
-			if outside(t.Pos) {
+		for i := range f.Len() {
+			if outside(f.Group.Pos(i)) {
 				nOut++
 			}
 		}
@@ -108,8 +110,8 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	perLayer := map[string]int{}
 	total := 0
 	for _, f := range fits {
-		perLayer[f.Layer] += len(f.Targets)
-		total += len(f.Targets)
+		perLayer[f.Layer] += f.Len()
+		total += f.Len()
 	}
 	keep := map[string]uint32{}
 	shown := 0
@@ -150,22 +152,24 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 			if f.Layer != l.Layer {
 				continue
 			}
-			for i, t := range f.Targets {
+			for i := range f.Len() {
 				idx++
 				if !sampleTarget(idx-1, th) {
 					continue
 				}
-				if outside(t.Pos) {
+				p, d := f.Group.Pos(i), f.Group.D(i)
+				if outside(p) {
 					continue
 				}
-				at := render.Point{X: t.Pos.X, Y: t.Pos.Y}
+				at := render.Point{X: p.X, Y: p.Y}
 				pts = append(pts, at)
-				meas = append(meas, render.Arrow{At: at, D: render.Point{X: t.D.X, Y: t.D.Y}})
-				if f.Weights[i] == 0 && len(f.Outliers) > 0 {
-					ms = append(ms, render.Marker{At: at, Label: f.Panel + " " + t.Name})
+				meas = append(meas, render.Arrow{At: at, D: render.Point{X: d.X, Y: d.Y}})
+				if f.Outlier(i) {
+					ms = append(ms, render.Marker{At: at, Label: f.Panel + " " + f.Group.Name(i)})
 					continue
 				}
-				res = append(res, render.Arrow{At: at, D: render.Point{X: f.Residuals[i].X, Y: f.Residuals[i].Y}})
+				r := f.Residual(i)
+				res = append(res, render.Arrow{At: at, D: render.Point{X: r.X, Y: r.Y}})
 			}
 		}
 		v.Arrows(meas, render.ArrowStyle{Color: render.Frame, Exaggeration: exg})
