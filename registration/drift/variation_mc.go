@@ -25,8 +25,9 @@ type procCheck struct {
 
 // pcSite is the hot-loop form of a site with process terms: its
 // section's table and the value at the site of each of the section's
-// shape groups (mcTab). The values of all sites are one array, so that
-// the loop over the sites reads them in order.
+// shape groups (mcTab), padded with zeros to mt.ngp. The values of all
+// sites are one array, so that the loop over the sites reads them in
+// order.
 type pcSite struct {
 	tab *mcTab // nil when the site's section has no process terms
 	phi []float64
@@ -53,7 +54,7 @@ func newProcCheck(a *Analysis) *procCheck {
 	n, any := 0, false
 	for k := range a.Sites {
 		if mt := pc.tabs[a.Sites[k].Section]; mt != nil {
-			n += len(mt.groups)
+			n += mt.ngp
 			any = true
 		}
 	}
@@ -68,9 +69,8 @@ func newProcCheck(a *Analysis) *procCheck {
 		if mt == nil {
 			continue
 		}
-		ng := len(mt.groups)
-		ps := pcSite{tab: mt, phi: flat[:ng:ng]}
-		flat = flat[ng:]
+		ps := pcSite{tab: mt, phi: flat[:mt.ngp:mt.ngp]}
+		flat = flat[mt.ngp:]
 		for g := range mt.groups {
 			ps.phi[g] = mt.groups[g].At(r.Site.Pos, size)
 		}
@@ -82,167 +82,203 @@ func newProcCheck(a *Analysis) *procCheck {
 func (pc *procCheck) Claims(i int) bool { return pc.sites[i].tab != nil }
 
 func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
-	w := &procCheckWorker{pc: pc, dev: make([]float64, len(pc.a.In.Process.Terms)), sec: make([]pcPanel, len(pc.terms))}
+	w := &procCheckWorker{pc: pc, dev: make([]float64, len(pc.a.In.Process.Terms)), sec: make([]pcSection, len(pc.terms))}
 	for i, mt := range pc.tabs {
 		if mt != nil {
-			w.sec[i] = pcPanel{w: make([]float64, mt.nb), k: make([]float64, 2*mt.n), stamp: make([]int64, mt.n)}
+			for p := range registration.MCGroup {
+				w.sec[i].w[p] = make([]float64, mt.nb)
+				w.sec[i].flat[p] = make([]pcFlat, mt.n)
+			}
 		}
 	}
 	return w
 }
 
-// procCheckWorker holds one goroutine's panel draws.
+// procCheckWorker holds one goroutine's panel draws, one slot per panel
+// of a group (registration.MCGroup).
 type procCheckWorker struct {
 	pc     *procCheck
-	dev    []float64 // per process term, this panel's deviation from its mean
-	sec    []pcPanel // per section
-	serial int64     // panels drawn so far
+	dev    []float64   // per process term, the deviation from its mean being drawn
+	sec    []pcSection // per section
+	serial int64       // panels drawn so far
+	// panel holds per slot the serial number of its panel (from 1).
+	panel [registration.MCGroup]int64
 }
 
-// pcPanel is one section's panel part in a worker: per binding the panel
-// mean plus this panel's deviation, and per table interval the flat part
-// of the coupling it adds, Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ, filled when a site first
-// needs the interval in a panel (stamp holds the panel, +1), so that a
-// panel costs what its sites read and not the whole table.
-type pcPanel struct {
-	w     []float64
-	k     []float64
-	stamp []int64
+// pcSection is one section's panel parts, per slot of the group: per
+// binding the panel mean plus the panel's deviation, and per table
+// interval the flat part of the coupling it adds (pcFlat), filled when a
+// site first needs the interval on the panel, so that a panel costs what
+// its sites read and not the whole table.
+type pcSection struct {
+	w    [registration.MCGroup][]float64
+	flat [registration.MCGroup][]pcFlat
 }
 
-// Panel draws every term's panel part: its deviation from the mean.
-func (w *procCheckWorker) Panel(rng *rand.Rand) {
+// pcFlat is the flat part of one table interval on one panel: Σ sᵦ·wᵦ and
+// Σ dsᵦ·wᵦ over the bindings, valid when panel is the slot's serial (side
+// by side, so that one cache line holds the test and the values).
+type pcFlat struct {
+	a, g  float64
+	panel int64
+}
+
+// Panel draws every term's panel part, its deviation from the mean, into
+// slot p.
+func (w *procCheckWorker) Panel(p int, rng *rand.Rand) {
 	for t := range w.dev {
-		p := w.pc.a.In.Process.Terms[t].Panel
-		switch p.Dist {
+		pt := w.pc.a.In.Process.Terms[t].Panel
+		switch pt.Dist {
 		case registration.Normal:
-			w.dev[t] = p.Spread * rng.NormFloat64()
+			w.dev[t] = pt.Spread * rng.NormFloat64()
 		case registration.Uniform:
-			w.dev[t] = p.Spread * (2*rng.Float64() - 1)
+			w.dev[t] = pt.Spread * (2*rng.Float64() - 1)
 		default:
 			w.dev[t] = 0
 		}
 	}
-	w.newPanel()
+	w.newPanel(p)
 }
 
-// newPanel takes the deviations in w.dev as the next panel's.
-func (w *procCheckWorker) newPanel() {
+// newPanel takes the deviations in w.dev as slot p's next panel.
+func (w *procCheckWorker) newPanel(p int) {
 	w.serial++
+	w.panel[p] = w.serial
 	for i, ts := range w.pc.terms {
 		if mt := w.pc.tabs[i]; mt != nil {
+			wp := w.sec[i].w[p]
 			for b, t := range ts {
-				w.sec[i].w[b] = mt.mean[b] + w.dev[t]
+				wp[b] = mt.mean[b] + w.dev[t]
 			}
 		}
 	}
 }
 
-// InSpec draws site i's per-site parts and applies the rule. The per-site
-// parts are independent normals that enter linearly, so their sum
-// Σ sᵢ·σᵢ·Nᵢ is drawn as one normal of variance Σ sᵢ²·σᵢ²: the same
-// distribution with one draw. Inside the curve's range everything is read
-// from the section's mcTab with one interval index; outside it (far
-// tails) the site takes inSpecSlow, the curve itself.
-func (w *procCheckWorker) InSpec(i int, off float64, rng *rand.Rand) bool {
+// InSpec decides site i on the group's panels: bit p of the mask for
+// slot p, at offset off[p]. An offset outside the section's domain is out
+// of spec whatever the process terms do, and nothing is drawn for it (the
+// per-site draw is independent of everything else, so skipping it leaves
+// the distribution as it is). Inside, everything is read from the
+// section's mcTab with one interval index (at); an offset in the domain
+// but outside the table (a curve of one solved offset) takes inSpecSlow,
+// the curve itself.
+func (w *procCheckWorker) InSpec(i int, off []float64, rng *rand.Rand) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
-	x := (off - mt.lo) * mt.inv
-	if !(x >= 0 && x <= mt.last) {
-		return w.inSpecSlow(i, off, rng)
-	}
-	m, v := w.at(ps, x)
-	if mt.site {
-		n := rng.NormFloat64()
-		if v > 0 {
-			m += math.Sqrt(v) * n
+	var in uint32
+	for p, o := range off {
+		if !mt.domain.Contains(o) {
+			continue
+		}
+		x := (o - mt.lo) * mt.inv
+		var ok bool
+		if x >= 0 && x <= mt.last {
+			c, lin, v := w.at(p, ps, x)
+			ok = mt.inSpec(c, lin, v, rng)
+		} else {
+			ok = w.inSpecSlow(p, i, o, rng)
+		}
+		if ok {
+			in |= 1 << p
 		}
 	}
-	return mt.domain.Contains(off) && math.Abs(m-mt.spec) <= mt.tol
+	return in
 }
 
-// at returns the mean and the per-site variance of the coupling at table
-// position x (0 ≤ x ≤ mt.last) for site ps on this panel:
-// c(δ) + Σ sᵦ(δ)·(Mᵦ + dᵦ + Aᵦ·φᵦ(site)) and Σ σᵦ²·sᵦ(δ)², with the
-// shape part summed by group.
-func (w *procCheckWorker) at(ps *pcSite, x float64) (m, v float64) {
-	mt := ps.tab
-	j := int(x)
-	if j >= mt.n {
-		j = mt.n - 1
+// inSpec is the rule for an offset in the domain whose coupling is
+// c + lin + √v·N: c the curve, lin the linear process part without the
+// per-site parts, v the variance of the per-site parts. They are
+// independent normals that enter linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is
+// drawn as one normal √v·N: the same distribution with one draw.
+func (mt *mcTab) inSpec(c, lin, v float64, rng *rand.Rand) bool {
+	if v > 0 {
+		lin += math.Sqrt(v) * rng.NormFloat64()
 	}
+	return math.Abs(c+lin-mt.spec) <= mt.tol
+}
+
+// at returns, at table position x (0 ≤ x ≤ mt.last) for site ps on the
+// panel of slot p, the curve c(δ), the linear process part
+// Σ sᵦ(δ)·(Mᵦ + dᵦ + Aᵦ·φᵦ(site)) (the shape part summed by group) and
+// the per-site variance Σ σᵦ²·sᵦ(δ)².
+func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
+	mt := ps.tab
+	j := min(int(x), mt.n-1)
 	f := x - float64(j)
 	sp := &w.sec[mt.section]
-	if sp.stamp[j] != w.serial {
-		mt.flat(sp, j)
-		sp.stamp[j] = w.serial
+	kf := &sp.flat[p][j]
+	if kf.panel != w.panel[p] {
+		kf.a, kf.g = mt.flat(sp.w[p], j)
+		kf.panel = w.panel[p]
 	}
-	ng := len(ps.phi)
-	row := mt.t[j*mt.stride : (j+1)*mt.stride]
-	k, gd := row[:mcTabExtra], row[mcTabExtra:mcTabExtra+2*ng]
+	phi := ps.phi
+	row := mt.t[j*mt.stride:][:mt.stride]
+	k := (*[mcTabHead]float64)(row)
+	gs := row[mcTabHead:][:len(phi)]
+	gd := row[mcTabHead+len(phi):][:len(phi)]
 	var a, g float64
-	for q, p := range ps.phi {
-		a += gd[2*q] * p
-		g += gd[2*q+1] * p
+	for q := 0; q+mcChunk <= len(phi); q += mcChunk {
+		p4, s4, d4 := (*[mcChunk]float64)(phi[q:]), (*[mcChunk]float64)(gs[q:]), (*[mcChunk]float64)(gd[q:])
+		a += s4[0]*p4[0] + s4[1]*p4[1] + s4[2]*p4[2] + s4[3]*p4[3]
+		g += d4[0]*p4[0] + d4[1]*p4[1] + d4[2]*p4[2] + d4[3]*p4[3]
 	}
-	kf := sp.k[2*j : 2*j+2]
-	m = k[0] + f*(k[1]+f*(k[2]+f*k[3])) + (kf[0] + a) + f*(kf[1]+g)
+	c = k[0] + f*(k[1]+f*(k[2]+f*k[3]))
+	lin = (kf.a + a) + f*(kf.g+g)
 	v = k[4] + f*(2*k[5]+f*k[6])
-	return m, v
+	return c, lin, v
 }
 
-// flat fills interval j of sp: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ over the bindings.
-func (mt *mcTab) flat(sp *pcPanel, j int) {
+// flat returns the flat part of interval j for the panel whose bindings
+// take the values wb: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
+func (mt *mcTab) flat(wb []float64, j int) (a, g float64) {
 	nb := mt.nb
 	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
-	var a, g float64
-	for b, wb := range sp.w[:nb] {
-		a += sd[2*b] * wb
-		g += sd[2*b+1] * wb
+	for b, x := range wb[:nb] {
+		a += sd[2*b] * x
+		g += sd[2*b+1] * x
 	}
-	sp.k[2*j], sp.k[2*j+1] = a, g
+	return a, g
 }
 
-// inSpecSlow is InSpec from the curve and Proc.rows directly, for offsets
-// outside the table (the coupling extends along its end slopes there);
-// it draws as InSpec does.
-func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
-	mt := w.pc.sites[i].tab
-	m, v := w.slowAt(i, off)
-	if mt.site {
-		n := rng.NormFloat64()
-		if v > 0 {
-			m += math.Sqrt(v) * n
-		}
-	}
-	sp := mt.ev.Curve.Section.Spec
-	return mt.ev.Proc.Domain.Contains(off) && math.Abs(m-sp.Coupling) <= sp.Tolerance
+// inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
+// on the panel of slot p at an offset in the domain but outside the
+// table; it draws as InSpec does.
+func (w *procCheckWorker) inSpecSlow(p, i int, off float64, rng *rand.Rand) bool {
+	c, lin, v := w.slowAt(p, i, off)
+	return w.pc.sites[i].tab.inSpec(c, lin, v, rng)
 }
 
-// slowAt is at for site i at offset off from the curve and Proc.rows.
-func (w *procCheckWorker) slowAt(i int, off float64) (m, v float64) {
+// slowAt is at for site i on the panel of slot p at offset off from the
+// curve and Proc.rows.
+func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 	mt := w.pc.sites[i].tab
 	ev := mt.ev
-	m = ev.Curve.Coupling(off)
+	c = ev.Curve.Coupling(off)
 	r0, r1, f := ev.Proc.rows(off)
 	pos, size := w.pc.a.Sites[i].Site.Pos, ev.Proc.Model.Size
-	wb := w.sec[mt.section].w[:mt.nb]
+	wb := w.sec[mt.section].w[p][:mt.nb]
 	for b := range wb {
 		s := r0[b] + f*(r1[b]-r0[b])
 		mb := wb[b]
 		if q := mt.group[b]; q >= 0 {
 			mb += mt.amp[b] * mt.groups[q].At(pos, size)
 		}
-		m += s * mb
+		lin += s * mb
 		v += s * s * mt.sv[b]
 	}
-	return m, v
+	return c, lin, v
 }
 
-// mcTabExtra is the number of values before the shape groups in an mcTab
-// row: the coupling cubic's four coefficients and the three of the
-// per-site variance's quadratic.
-const mcTabExtra = 7
+// mcTabHead is the number of values before the shape groups in an mcTab
+// row: the coupling cubic's four coefficients, the three of the per-site
+// variance's quadratic and one unused, so that a row of four groups is
+// 128 bytes.
+const mcTabHead = 8
+
+// mcChunk is the number of shape groups the loop over a site's groups
+// takes at a time, unrolled: a section's groups are padded with zeros to
+// a multiple of it (mcTab.ngp).
+const mcChunk = 4
 
 // mcTab is one section's Monte Carlo table over the intervals of its Proc
 // table (same offsets, same index). A binding's mean at a site is
@@ -262,12 +298,14 @@ const mcTabExtra = 7
 //     up to rounding (TestMCTab measures it);
 //   - A, B, C, the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf²
 //     expanded exactly (σᵦ is the term's, the same at every site);
-//   - per group q, Gq and dGq side by side: Σ over its bindings of Aᵦ·sᵦ
-//     and Aᵦ·dsᵦ, with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation
-//     of the binding's sensitivity.
+//   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and after all the
+//     groups' Gq their dGq: Σ Aᵦ·dsᵦ, with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows'
+//     linear interpolation of the binding's sensitivity (two runs of ngp,
+//     the groups padded with zeros to a multiple of mcChunk, which the
+//     loop over a site's groups takes unrolled).
 //
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
-// fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcPanel).
+// fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcSection, pcFlat).
 type mcTab struct {
 	ev            *Evaluator
 	section       int
@@ -276,6 +314,7 @@ type mcTab struct {
 	group         []int     // per binding, its group (−1 for a flat term)
 	groups        []process.Shape
 	nb, n, stride int
+	ngp           int     // the number of groups padded to a multiple of mcChunk
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
 	t, sd         []float64
@@ -328,8 +367,8 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		}
 		mt.group[b] = q
 	}
-	ng := len(mt.groups)
-	mt.stride = mcTabExtra + 2*ng
+	mt.ngp = (len(mt.groups) + mcChunk - 1) / mcChunk * mcChunk
+	mt.stride = mcTabHead + 2*mt.ngp
 	if mt.n < 1 {
 		// One solved offset: no interval, every site takes inSpecSlow.
 		mt.n, mt.last = 1, -1
@@ -347,13 +386,13 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		row := mt.t[j*mt.stride : (j+1)*mt.stride]
 		sd := mt.sd[j*2*nb : (j+1)*2*nb]
 		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[(j+1)*nb:(j+2)*nb]
-		k := row[:mcTabExtra]
+		k := row[:mcTabHead]
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
 			sd[2*b], sd[2*b+1] = s, ds
 			if q := mt.group[b]; q >= 0 {
-				row[mcTabExtra+2*q] += mt.amp[b] * s
-				row[mcTabExtra+2*q+1] += mt.amp[b] * ds
+				row[mcTabHead+q] += mt.amp[b] * s
+				row[mcTabHead+mt.ngp+q] += mt.amp[b] * ds
 			}
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds

@@ -60,7 +60,7 @@ func TestMCTab(t *testing.T) {
 		for t := range w.dev {
 			w.dev[t] = 0.2 * mil * rng.NormFloat64()
 		}
-		w.newPanel()
+		w.newPanel(0)
 		for k := range pc.sites {
 			ps := &pc.sites[k]
 			if ps.tab == nil {
@@ -70,7 +70,8 @@ func TestMCTab(t *testing.T) {
 			ev := mt.ev
 			x := rng.Float64() * mt.last
 			off := mt.lo + x*mt.step
-			m, v := w.at(ps, x)
+			c, lin, v := w.at(0, ps, x)
+			m := c + lin
 			ev.Proc.row(&row, a.Sites[k].Site.Pos)
 			wm, wv := ev.Curve.Coupling(off), 0.0
 			for b, mu := range row.means() {
@@ -79,8 +80,8 @@ func TestMCTab(t *testing.T) {
 				wv += sb * sb * mt.sv[b]
 			}
 			// The fallback for offsets outside the table is the same sum.
-			if sm, sv := w.slowAt(k, off); math.Abs(sm-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
-				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sm, sv, wm, wv)
+			if sc, sl, sv := w.slowAt(0, k, off); math.Abs(sc+sl-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
+				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sc+sl, sv, wm, wv)
 			}
 			worstM = math.Max(worstM, math.Abs(m-wm))
 			if wv > 0 {
