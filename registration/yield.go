@@ -333,12 +333,12 @@ type SiteChecker interface {
 type SiteCheckWorker interface {
 	// Panel draws what one panel shares (panel-to-panel terms) into slot
 	// p of the next group, once per trial after the registration terms.
-	Panel(p int, rng *rand.Rand)
+	Panel(p int, r *Stream)
 	// InSpec reports on which panels of the group claimed site i meets
 	// its spec, as a mask with bit p for slot p, given its across offset
 	// off[p] on each (design offset included; len(off) panels, slots
 	// 0 to len(off)−1), drawing its per-site parts.
-	InSpec(i int, off []float64, rng *rand.Rand) uint32
+	InSpec(i int, off []float64, r *Stream) uint32
 }
 
 // Products returns the number of part instances that are products.
@@ -453,7 +453,7 @@ func SortShares(s []Share) {
 // Trials must be positive.
 type MCSettings struct {
 	Trials int    // number of panels drawn
-	Seed   uint64 // seed of the PCG streams
+	Seed   uint64 // seed of the random streams (Stream)
 	// Workers is the number of goroutines; 0 means GOMAXPROCS. The result does
 	// not depend on it.
 	Workers int
@@ -463,8 +463,8 @@ type MCSettings struct {
 }
 
 // MCBlock is the number of panels in one block of a Monte Carlo run. Block b
-// draws from its own stream rand.NewPCG(seed, b), so that the result is the
-// same whatever the number of workers and their scheduling.
+// draws from its own stream (Stream.Seed(seed, b)), so that the result is
+// the same whatever the number of workers and their scheduling.
 const MCBlock = 256
 
 // MCGroup is the number of panels a worker draws at once: it draws the
@@ -616,8 +616,8 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 type mcWorker struct {
 	y     *Yield
 	sites []mcSite
-	pcg   *rand.PCG
-	rng   *rand.Rand
+	str   *Stream
+	rng   *rand.Rand // str, for Model.Sample
 	draw  Draw
 	v     [][NumTerms]float64 // per pair and group slot: v[pair·MCGroup + slot]
 	// failed holds per part the mask of the group's panels on which one
@@ -634,8 +634,8 @@ type mcWorker struct {
 }
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
-	pcg := rand.NewPCG(0, 0)
-	w := &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, MCGroup*len(y.Pairs)),
+	str := new(Stream)
+	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, MCGroup*len(y.Pairs)),
 		failed: make([]uint32, y.Parts), dirty: make([]int32, 0, y.Parts), coupon: make([]bool, y.Parts), siteGood: make([]int64, len(sites)),
 		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
 	for _, c := range y.Coupons {
@@ -651,10 +651,9 @@ func newCheckWorker(y *Yield) SiteCheckWorker {
 	return y.Check.NewWorker()
 }
 
-// block runs n trials from stream (seed, b): the worker's generator is
-// reseeded, which is the same as rand.NewPCG(seed, b) without allocating.
+// block runs n trials from stream (seed, b).
 func (w *mcWorker) block(seed, b uint64, n int) {
-	w.pcg.Seed(seed, b)
+	w.str.Seed(seed, b)
 	for t := 0; t < n; t += MCGroup {
 		w.group(min(MCGroup, n-t))
 	}
@@ -664,14 +663,14 @@ func (w *mcWorker) block(seed, b uint64, n int) {
 // group runs g ≤ MCGroup trials: their panel draws, in order, then every
 // site on each of them, then the parts.
 func (w *mcWorker) group(g int) {
-	rng := w.rng
+	str := w.str
 	for p := range g {
-		w.y.Model.Sample(rng, w.draw)
+		w.y.Model.Sample(w.rng, w.draw)
 		for q, r := range w.y.Pairs {
 			w.v[q*MCGroup+p] = r.Collapse(w.draw)
 		}
 		if w.check != nil {
-			w.check.Panel(p, rng)
+			w.check.Panel(p, str)
 		}
 	}
 	sites := w.sites
@@ -688,17 +687,17 @@ func (w *mcWorker) group(g int) {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
 				if s.sd > 0 {
-					d += s.sd * rng.NormFloat64()
+					d += s.sd * str.Norm()
 				}
 				off[p] = d + s.base
 			}
-			in = w.check.InSpec(i, off, rng)
+			in = w.check.InSpec(i, off, str)
 		} else {
 			for p := range vs {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
 				if s.sd > 0 {
-					d += s.sd * rng.NormFloat64()
+					d += s.sd * str.Norm()
 				}
 				if d >= s.lo && d <= s.hi {
 					in |= 1 << p

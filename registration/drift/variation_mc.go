@@ -2,7 +2,6 @@ package drift
 
 import (
 	"math"
-	"math/rand/v2"
 
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/process"
@@ -25,12 +24,12 @@ type procCheck struct {
 
 // pcSite is the hot-loop form of a site with process terms: its
 // section's table and the value at the site of each of the section's
-// shape groups (mcTab), padded with zeros to mt.ngp. The values of all
-// sites are one array, so that the loop over the sites reads them in
-// order.
+// shape groups (mcTab), the first mcChunk in phi and the others, if any,
+// in more, in chunks of mcChunk padded with zeros.
 type pcSite struct {
-	tab *mcTab // nil when the site's section has no process terms
-	phi []float64
+	tab  *mcTab // nil when the site's section has no process terms
+	phi  [mcChunk]float64
+	more [][mcChunk]float64
 }
 
 var _ registration.SiteChecker = (*procCheck)(nil)
@@ -54,14 +53,14 @@ func newProcCheck(a *Analysis) *procCheck {
 	n, any := 0, false
 	for k := range a.Sites {
 		if mt := pc.tabs[a.Sites[k].Section]; mt != nil {
-			n += mt.ngp
+			n += mt.nx
 			any = true
 		}
 	}
 	if !any {
 		return nil
 	}
-	flat := make([]float64, n)
+	more := make([][mcChunk]float64, n)
 	size := a.In.Process.Size
 	for k := range a.Sites {
 		r := &a.Sites[k]
@@ -69,10 +68,17 @@ func newProcCheck(a *Analysis) *procCheck {
 		if mt == nil {
 			continue
 		}
-		ps := pcSite{tab: mt, phi: flat[:mt.ngp:mt.ngp]}
-		flat = flat[mt.ngp:]
+		ps := pcSite{tab: mt}
+		if mt.nx > 0 {
+			ps.more, more = more[:mt.nx:mt.nx], more[mt.nx:]
+		}
 		for g := range mt.groups {
-			ps.phi[g] = mt.groups[g].At(r.Site.Pos, size)
+			v := mt.groups[g].At(r.Site.Pos, size)
+			if g < mcChunk {
+				ps.phi[g] = v
+			} else {
+				ps.more[g/mcChunk-1][g%mcChunk] = v
+			}
 		}
 		pc.sites[k] = ps
 	}
@@ -125,14 +131,14 @@ type pcFlat struct {
 
 // Panel draws every term's panel part, its deviation from the mean, into
 // slot p.
-func (w *procCheckWorker) Panel(p int, rng *rand.Rand) {
+func (w *procCheckWorker) Panel(p int, r *registration.Stream) {
 	for t := range w.dev {
 		pt := w.pc.a.In.Process.Terms[t].Panel
 		switch pt.Dist {
 		case registration.Normal:
-			w.dev[t] = pt.Spread * rng.NormFloat64()
+			w.dev[t] = pt.Spread * r.Norm()
 		case registration.Uniform:
-			w.dev[t] = pt.Spread * (2*rng.Float64() - 1)
+			w.dev[t] = pt.Spread * (2*r.Float64() - 1)
 		default:
 			w.dev[t] = 0
 		}
@@ -162,7 +168,7 @@ func (w *procCheckWorker) newPanel(p int) {
 // section's mcTab with one interval index (at); an offset in the domain
 // but outside the table (a curve of one solved offset) takes inSpecSlow,
 // the curve itself.
-func (w *procCheckWorker) InSpec(i int, off []float64, rng *rand.Rand) uint32 {
+func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
 	var in uint32
@@ -174,9 +180,9 @@ func (w *procCheckWorker) InSpec(i int, off []float64, rng *rand.Rand) uint32 {
 		var ok bool
 		if x >= 0 && x <= mt.last {
 			c, lin, v := w.at(p, ps, x)
-			ok = mt.inSpec(c, lin, v, rng)
+			ok = mt.inSpec(c, lin, v, r)
 		} else {
-			ok = w.inSpecSlow(p, i, o, rng)
+			ok = w.inSpecSlow(p, i, o, r)
 		}
 		if ok {
 			in |= 1 << p
@@ -190,9 +196,9 @@ func (w *procCheckWorker) InSpec(i int, off []float64, rng *rand.Rand) uint32 {
 // per-site parts, v the variance of the per-site parts. They are
 // independent normals that enter linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is
 // drawn as one normal √v·N: the same distribution with one draw.
-func (mt *mcTab) inSpec(c, lin, v float64, rng *rand.Rand) bool {
+func (mt *mcTab) inSpec(c, lin, v float64, r *registration.Stream) bool {
 	if v > 0 {
-		lin += math.Sqrt(v) * rng.NormFloat64()
+		lin += math.Sqrt(v) * r.Norm()
 	}
 	return math.Abs(c+lin-mt.spec) <= mt.tol
 }
@@ -205,47 +211,57 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
 	f := x - float64(j)
+	r := &mt.rows[j]
 	sp := &w.sec[mt.section]
 	kf := &sp.flat[p][j]
 	if kf.panel != w.panel[p] {
-		kf.a, kf.g = mt.flat(sp.w[p], j)
-		kf.panel = w.panel[p]
+		mt.fill(kf, sp.w[p], j, w.panel[p])
 	}
-	phi := ps.phi
-	row := mt.t[j*mt.stride:][:mt.stride]
-	k := (*[mcTabHead]float64)(row)
-	gs := row[mcTabHead:][:len(phi)]
-	gd := row[mcTabHead+len(phi):][:len(phi)]
-	var a, g float64
-	for q := 0; q+mcChunk <= len(phi); q += mcChunk {
-		p4, s4, d4 := (*[mcChunk]float64)(phi[q:]), (*[mcChunk]float64)(gs[q:]), (*[mcChunk]float64)(gd[q:])
-		a += s4[0]*p4[0] + s4[1]*p4[1] + s4[2]*p4[2] + s4[3]*p4[3]
-		g += d4[0]*p4[0] + d4[1]*p4[1] + d4[2]*p4[2] + d4[3]*p4[3]
+	ph := &ps.phi
+	a := r.gs[0]*ph[0] + r.gs[1]*ph[1] + r.gs[2]*ph[2] + r.gs[3]*ph[3]
+	g := r.gd[0]*ph[0] + r.gd[1]*ph[1] + r.gd[2]*ph[2] + r.gd[3]*ph[3]
+	if len(ps.more) > 0 {
+		ma, mg := mt.moreAt(j, ps.more)
+		a, g = a+ma, g+mg
 	}
-	c = k[0] + f*(k[1]+f*(k[2]+f*k[3]))
+	c = r.k[0] + f*(r.k[1]+f*(r.k[2]+f*r.k[3]))
 	lin = (kf.a + a) + f*(kf.g+g)
-	v = k[4] + f*(2*k[5]+f*k[6])
+	v = r.k[4] + f*(2*r.k[5]+f*r.k[6])
 	return c, lin, v
 }
 
-// flat returns the flat part of interval j for the panel whose bindings
+// moreAt returns the shape part of the groups beyond the first mcChunk
+// in interval j for a site whose values of them are more: the sums of
+// Gq·φq and dGq·φq.
+func (mt *mcTab) moreAt(j int, more [][mcChunk]float64) (a, g float64) {
+	ext := mt.more[j*mt.nx : (j+1)*mt.nx]
+	for q := range more {
+		e, ph := &ext[q], &more[q]
+		a += e.gs[0]*ph[0] + e.gs[1]*ph[1] + e.gs[2]*ph[2] + e.gs[3]*ph[3]
+		g += e.gd[0]*ph[0] + e.gd[1]*ph[1] + e.gd[2]*ph[2] + e.gd[3]*ph[3]
+	}
+	return a, g
+}
+
+// fill sets kf, interval j's flat part on the panel serial whose bindings
 // take the values wb: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
-func (mt *mcTab) flat(wb []float64, j int) (a, g float64) {
+func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
 	nb := mt.nb
 	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
+	var a, g float64
 	for b, x := range wb[:nb] {
 		a += sd[2*b] * x
 		g += sd[2*b+1] * x
 	}
-	return a, g
+	kf.a, kf.g, kf.panel = a, g, serial
 }
 
 // inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
 // on the panel of slot p at an offset in the domain but outside the
 // table; it draws as InSpec does.
-func (w *procCheckWorker) inSpecSlow(p, i int, off float64, rng *rand.Rand) bool {
+func (w *procCheckWorker) inSpecSlow(p, i int, off float64, r *registration.Stream) bool {
 	c, lin, v := w.slowAt(p, i, off)
-	return w.pc.sites[i].tab.inSpec(c, lin, v, rng)
+	return w.pc.sites[i].tab.inSpec(c, lin, v, r)
 }
 
 // slowAt is at for site i on the panel of slot p at offset off from the
@@ -269,16 +285,25 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 	return c, lin, v
 }
 
-// mcTabHead is the number of values before the shape groups in an mcTab
-// row: the coupling cubic's four coefficients, the three of the per-site
-// variance's quadratic and one unused, so that a row of four groups is
-// 128 bytes.
-const mcTabHead = 8
-
-// mcChunk is the number of shape groups the loop over a site's groups
-// takes at a time, unrolled: a section's groups are padded with zeros to
-// a multiple of it (mcTab.ngp).
+// mcChunk is the number of shape groups an mcTab row holds, and the
+// number the loop over a site's groups takes at a time, unrolled; a
+// section with more groups holds the others in mcTab.more, in chunks of
+// mcChunk padded with zeros.
 const mcChunk = 4
+
+// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, B, C
+// and one unused value, so that a row is 128 bytes; gs and gd the first
+// mcChunk groups' Gq and dGq.
+type mcRow struct {
+	k      [8]float64
+	gs, gd [mcChunk]float64
+}
+
+// mcMore is one chunk of the groups beyond the first mcChunk in one
+// interval: their Gq and dGq.
+type mcMore struct {
+	gs, gd [mcChunk]float64
+}
 
 // mcTab is one section's Monte Carlo table over the intervals of its Proc
 // table (same offsets, same index). A binding's mean at a site is
@@ -298,11 +323,10 @@ const mcChunk = 4
 //     up to rounding (TestMCTab measures it);
 //   - A, B, C, the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf²
 //     expanded exactly (σᵦ is the term's, the same at every site);
-//   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and after all the
-//     groups' Gq their dGq: Σ Aᵦ·dsᵦ, with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows'
-//     linear interpolation of the binding's sensitivity (two runs of ngp,
-//     the groups padded with zeros to a multiple of mcChunk, which the
-//     loop over a site's groups takes unrolled).
+//   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and dGq: Σ Aᵦ·dsᵦ,
+//     with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation of the
+//     binding's sensitivity (mcRow; the groups beyond the first mcChunk
+//     in nx chunks per interval in more).
 //
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
 // fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcSection, pcFlat).
@@ -313,11 +337,13 @@ type mcTab struct {
 	mean, amp     []float64 // per binding, Mᵦ and Aᵦ
 	group         []int     // per binding, its group (−1 for a flat term)
 	groups        []process.Shape
-	nb, n, stride int
-	ngp           int     // the number of groups padded to a multiple of mcChunk
+	nb, n         int
+	nx            int     // chunks of groups beyond the first mcChunk
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
-	t, sd         []float64
+	rows          []mcRow
+	more          []mcMore // nx per interval
+	sd            []float64
 	site          bool // some bound term has a per-site part
 	domain        registration.Interval
 	spec, tol     float64
@@ -367,8 +393,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		}
 		mt.group[b] = q
 	}
-	mt.ngp = (len(mt.groups) + mcChunk - 1) / mcChunk * mcChunk
-	mt.stride = mcTabHead + 2*mt.ngp
+	mt.nx = max(0, (len(mt.groups)+mcChunk-1)/mcChunk-1)
 	if mt.n < 1 {
 		// One solved offset: no interval, every site takes inSpecSlow.
 		mt.n, mt.last = 1, -1
@@ -379,20 +404,26 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	if x := (hi - lo) / mt.step; x < mt.last {
 		mt.last = x
 	}
-	mt.t = make([]float64, mt.n*mt.stride)
+	mt.rows = make([]mcRow, mt.n)
+	mt.more = make([]mcMore, mt.n*mt.nx)
 	mt.sd = make([]float64, mt.n*2*nb)
 	at := func(x float64) float64 { return ev.Curve.Curve.Coupling(math.Min(hi, lo+x*mt.step)) }
 	for j := range mt.n {
-		row := mt.t[j*mt.stride : (j+1)*mt.stride]
+		row := &mt.rows[j]
 		sd := mt.sd[j*2*nb : (j+1)*2*nb]
 		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[(j+1)*nb:(j+2)*nb]
-		k := row[:mcTabHead]
+		k := &row.k
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
 			sd[2*b], sd[2*b+1] = s, ds
-			if q := mt.group[b]; q >= 0 {
-				row[mcTabHead+q] += mt.amp[b] * s
-				row[mcTabHead+mt.ngp+q] += mt.amp[b] * ds
+			switch q := mt.group[b]; {
+			case q >= mcChunk:
+				m := &mt.more[j*mt.nx+q/mcChunk-1]
+				m.gs[q%mcChunk] += mt.amp[b] * s
+				m.gd[q%mcChunk] += mt.amp[b] * ds
+			case q >= 0:
+				row.gs[q] += mt.amp[b] * s
+				row.gd[q] += mt.amp[b] * ds
 			}
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds
