@@ -15,7 +15,7 @@ import (
 // layers.
 //
 // They are written here rather than taken from math/rand/v2 so that a
-// draw inlines into the site loops of the Monte Carlo: rand.Rand reaches
+// draw runs inside the site loops of the Monte Carlo: rand.Rand reaches
 // its generator through the Source interface, and that call and the
 // generator behind it made up about half of the 130 instructions a
 // NormFloat64 took in the loop (measured with cachegrind). Stream is a
@@ -49,45 +49,75 @@ func splitMix(x uint64) uint64 {
 
 // Uint64 returns the next 64 random bits (xoshiro256**).
 func (r *Stream) Uint64() uint64 {
-	s0, s1, s2, s3 := r.s0, r.s1, r.s2, r.s3
-	out := bits.RotateLeft64(s1*5, 7) * 9
+	var out uint64
+	out, r.s0, r.s1, r.s2, r.s3 = xoshiro(r.s0, r.s1, r.s2, r.s3)
+	return out
+}
+
+// xoshiro is one step of xoshiro256** (Blackman & Vigna 2021): the output
+// of state s0…s3 and the next state.
+func xoshiro(s0, s1, s2, s3 uint64) (out, n0, n1, n2, n3 uint64) {
+	out = bits.RotateLeft64(s1*5, 7) * 9
 	t := s1 << 17
 	s2 ^= s0
 	s3 ^= s1
 	s1 ^= s2
 	s0 ^= s3
 	s2 ^= t
-	s3 = bits.RotateLeft64(s3, 45)
-	r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
-	return out
+	return out, s0, s1, s2, bits.RotateLeft64(s3, 45)
 }
 
 // Float64 returns a uniform number in [0, 1): the top 53 bits of a draw.
 func (r *Stream) Float64() float64 { return float64(r.Uint64()>>11) * 0x1p-53 }
 
-// Norm returns a standard normal number. One 64-bit draw gives the layer
-// (its low 7 bits) and a signed 53-bit position in it (its top bits), so
-// that the two are independent (Doornik, "An improved ziggurat method to
-// generate normal random samples", 2005, shows what taking both from the
-// same bits costs); a position inside the next layer's rectangle, the
-// case of about 98.8 % of draws, is returned at once, the rest goes to
-// normTail.
+// Norm returns a standard normal number (see zigFast and normTail).
 func (r *Stream) Norm() float64 {
 	u := r.Uint64()
-	i := u & (zigLayers - 1)
-	j := int64(u) >> 11
-	if uint64(j+zigK[i]) < uint64(2*zigK[i]) { // |j| < k, in one comparison
-		return float64(j) * zigW[i]
+	if x, ok := zigFast(u); ok {
+		return x
 	}
-	return r.normTail(i, j)
+	return r.normTail(u)
 }
 
-// normTail finishes a ziggurat draw outside the inner rectangle: in the
+// Norms fills dst with independent standard normal numbers, the same as
+// calling Norm for each, with the generator's state held in registers
+// over the loop.
+func (r *Stream) Norms(dst []float64) {
+	s0, s1, s2, s3 := r.s0, r.s1, r.s2, r.s3
+	for k := range dst {
+		var u uint64
+		u, s0, s1, s2, s3 = xoshiro(s0, s1, s2, s3)
+		x, ok := zigFast(u)
+		if !ok {
+			r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
+			x = r.normTail(u)
+			s0, s1, s2, s3 = r.s0, r.s1, r.s2, r.s3
+		}
+		dst[k] = x
+	}
+	r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
+}
+
+// zigFast is the ziggurat's first step on draw u: its low 7 bits pick the
+// layer and its top 53 bits a signed position in it, so that the two are
+// independent (Doornik, "An improved ziggurat method to generate normal
+// random samples", 2005, shows what taking both from the same bits
+// costs). A position inside the next layer's rectangle, the case of about
+// 98.8 % of draws, is the result (ok); the rest goes to normTail.
+func zigFast(u uint64) (x float64, ok bool) {
+	i := u & (zigLayers - 1)
+	j := int64(u) >> 11
+	k := zigK[i]
+	return float64(j) * zigW[i], uint64(j+k) < uint64(2*k) // |j| < k, in one comparison
+}
+
+// normTail finishes a ziggurat draw u that zigFast did not take: in the
 // base layer a draw beyond R from the normal tail (Marsaglia 1964: x =
 // −ln(U₁)/R, accepted when −2·ln(U₂) > x²), elsewhere the wedge test
 // under exp(−x²/2), and on rejection a new draw.
-func (r *Stream) normTail(i uint64, j int64) float64 {
+func (r *Stream) normTail(u uint64) float64 {
 	for {
+		i, j := u&(zigLayers-1), int64(u)>>11
 		x := float64(j) * zigW[i]
 		if i == 0 {
 			for {
@@ -105,11 +135,9 @@ func (r *Stream) normTail(i uint64, j int64) float64 {
 		if zigF[i]+r.Float64()*(zigF[i-1]-zigF[i]) < math.Exp(-0.5*x*x) {
 			return x
 		}
-		u := r.Uint64()
-		i = u & (zigLayers - 1)
-		j = int64(u) >> 11
-		if uint64(j+zigK[i]) < uint64(2*zigK[i]) {
-			return float64(j) * zigW[i]
+		u = r.Uint64()
+		if x, ok := zigFast(u); ok {
+			return x
 		}
 	}
 }

@@ -624,8 +624,8 @@ type mcWorker struct {
 	// of its sites failed; dirty lists the parts whose mask is not 0.
 	failed    []uint32
 	dirty     []int32
-	coupon    []bool // per part, whether it is a coupon (Yield.Coupons)
-	off       [MCGroup]float64
+	coupon    []bool           // per part, whether it is a coupon (Yield.Coupons)
+	off, nrm  [MCGroup]float64 // per slot: a site's offsets, its per-site normals
 	siteGood  []int64
 	partBad   []int64
 	goodParts []int64
@@ -682,23 +682,22 @@ func (w *mcWorker) group(g int) {
 		a := &s.a
 		vs := w.v[int(s.pair)*MCGroup:][:g]
 		var in uint32
+		nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
+		if s.sd > 0 {
+			str.Norms(nrm)
+		}
 		if s.checked {
-			for p := range off {
+			for p, n := range nrm {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
-				if s.sd > 0 {
-					d += s.sd * str.Norm()
-				}
-				off[p] = d + s.base
+				off[p] = d + s.sd*n + s.base
 			}
 			in = w.check.InSpec(i, off, str)
 		} else {
-			for p := range vs {
+			for p, n := range nrm {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
-				if s.sd > 0 {
-					d += s.sd * str.Norm()
-				}
+				d += s.sd * n
 				if d >= s.lo && d <= s.hi {
 					in |= 1 << p
 				}

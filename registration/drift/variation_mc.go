@@ -93,8 +93,8 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 		if mt != nil {
 			for p := range registration.MCGroup {
 				w.sec[i].w[p] = make([]float64, mt.nb)
-				w.sec[i].flat[p] = make([]pcFlat, mt.n)
 			}
+			w.sec[i].flat = make([]pcFlat, mt.n*registration.MCGroup)
 		}
 	}
 	return w
@@ -109,16 +109,18 @@ type procCheckWorker struct {
 	serial int64       // panels drawn so far
 	// panel holds per slot the serial number of its panel (from 1).
 	panel [registration.MCGroup]int64
+	nrm   [registration.MCGroup]float64 // per slot, a site's normal draw
 }
 
-// pcSection is one section's panel parts, per slot of the group: per
+// pcSection is one section's panel parts: per slot of the group and
 // binding the panel mean plus the panel's deviation, and per table
-// interval the flat part of the coupling it adds (pcFlat), filled when a
-// site first needs the interval on the panel, so that a panel costs what
-// its sites read and not the whole table.
+// interval and slot (flat[j·MCGroup + p]) the flat part of the coupling
+// it adds (pcFlat), filled when a site first needs the interval on the
+// panel, so that a panel costs what its sites read and not the whole
+// table.
 type pcSection struct {
 	w    [registration.MCGroup][]float64
-	flat [registration.MCGroup][]pcFlat
+	flat []pcFlat
 }
 
 // pcFlat is the flat part of one table interval on one panel: Σ sᵦ·wᵦ and
@@ -165,24 +167,63 @@ func (w *procCheckWorker) newPanel(p int) {
 // of spec whatever the process terms do, and nothing is drawn for it (the
 // per-site draw is independent of everything else, so skipping it leaves
 // the distribution as it is). Inside, everything is read from the
-// section's mcTab with one interval index (at); an offset in the domain
-// but outside the table (a curve of one solved offset) takes inSpecSlow,
-// the curve itself.
+// section's mcTab with one interval index (mcRow.at, the section's
+// values hoisted out of the loop over the panels); a site with more than
+// mcChunk shape groups, or an offset in the domain but outside the table
+// (a curve of one solved offset), takes inSpecAt.
 func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
+	if len(off) > registration.MCGroup {
+		panic("drift: more panels than a group holds")
+	}
+	if len(ps.more) > 0 {
+		return w.inSpecAt(i, off, r)
+	}
+	dom, lo, inv, last, top := mt.domain, mt.lo, mt.inv, mt.last, mt.n-1
+	rows, sec, ph := mt.rows, &w.sec[mt.section], &ps.phi
+	nrm := w.norms(off, mt, r)
+	var in uint32
+	for p, o := range off {
+		if !dom.Contains(o) {
+			continue
+		}
+		x := (o - lo) * inv
+		if !(x >= 0 && x <= last) {
+			if w.inSpecSlow(p, i, o, nrm[p]) {
+				in |= 1 << p
+			}
+			continue
+		}
+		j := min(int(x), top)
+		kf := &sec.flat[j*registration.MCGroup+p]
+		if kf.panel != w.panel[p] {
+			mt.fill(kf, sec.w[p], j, w.panel[p])
+		}
+		c, lin, v := rows[j].at(kf, ph, x-float64(j))
+		if mt.inSpec(c, lin, v, nrm[p]) {
+			in |= 1 << p
+		}
+	}
+	return in
+}
+
+// inSpecAt is InSpec through at, for any number of shape groups.
+func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream) uint32 {
+	ps := &w.pc.sites[i]
+	mt := ps.tab
+	nrm := w.norms(off, mt, r)
 	var in uint32
 	for p, o := range off {
 		if !mt.domain.Contains(o) {
 			continue
 		}
-		x := (o - mt.lo) * mt.inv
 		var ok bool
-		if x >= 0 && x <= mt.last {
+		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
 			c, lin, v := w.at(p, ps, x)
-			ok = mt.inSpec(c, lin, v, r)
+			ok = mt.inSpec(c, lin, v, nrm[p])
 		} else {
-			ok = w.inSpecSlow(p, i, o, r)
+			ok = w.inSpecSlow(p, i, o, nrm[p])
 		}
 		if ok {
 			in |= 1 << p
@@ -191,14 +232,29 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 	return in
 }
 
+// norms draws a site's standard normals for its per-site parts, one per
+// panel of the group, when mt's terms have any (0 otherwise). A draw
+// whose panel turns out not to need it (an offset outside the domain) is
+// left unused: the draws are independent of everything else.
+func (w *procCheckWorker) norms(off []float64, mt *mcTab, r *registration.Stream) []float64 {
+	nrm := w.nrm[:len(off)]
+	if mt.site {
+		r.Norms(nrm)
+	} else {
+		clear(nrm)
+	}
+	return nrm
+}
+
 // inSpec is the rule for an offset in the domain whose coupling is
-// c + lin + √v·N: c the curve, lin the linear process part without the
-// per-site parts, v the variance of the per-site parts. They are
-// independent normals that enter linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is
-// drawn as one normal √v·N: the same distribution with one draw.
-func (mt *mcTab) inSpec(c, lin, v float64, r *registration.Stream) bool {
+// c + lin + √v·n: c the curve, lin the linear process part without the
+// per-site parts, v the variance of the per-site parts and n a standard
+// normal draw. The per-site parts are independent normals that enter
+// linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is drawn as one normal √v·n: the same
+// distribution with one draw.
+func (mt *mcTab) inSpec(c, lin, v, n float64) bool {
 	if v > 0 {
-		lin += math.Sqrt(v) * r.Norm()
+		lin += math.Sqrt(v) * n
 	}
 	return math.Abs(c+lin-mt.spec) <= mt.tol
 }
@@ -210,20 +266,28 @@ func (mt *mcTab) inSpec(c, lin, v float64, r *registration.Stream) bool {
 func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
-	f := x - float64(j)
-	r := &mt.rows[j]
-	sp := &w.sec[mt.section]
-	kf := &sp.flat[p][j]
+	sec := &w.sec[mt.section]
+	kf := &sec.flat[j*registration.MCGroup+p]
 	if kf.panel != w.panel[p] {
-		mt.fill(kf, sp.w[p], j, w.panel[p])
+		mt.fill(kf, sec.w[p], j, w.panel[p])
 	}
-	ph := &ps.phi
+	f := x - float64(j)
+	c, lin, v = mt.rows[j].at(kf, &ps.phi, f)
+	if len(ps.more) > 0 {
+		a, g := mt.moreAt(j, ps.more)
+		lin += a + f*g
+	}
+	return c, lin, v
+}
+
+// at is the sum at position f (0 to 1) in the interval of row r, with its
+// flat part kf on the panel, for a site whose first mcChunk groups take
+// the values ph: the curve c₀ + c₁f + c₂f² + c₃f³, the linear process
+// part (kf.a + Σ Gq·φq) + f·(kf.g + Σ dGq·φq) and the per-site variance
+// A + 2Bf + Cf² (mcTab).
+func (r *mcRow) at(kf *pcFlat, ph *[mcChunk]float64, f float64) (c, lin, v float64) {
 	a := r.gs[0]*ph[0] + r.gs[1]*ph[1] + r.gs[2]*ph[2] + r.gs[3]*ph[3]
 	g := r.gd[0]*ph[0] + r.gd[1]*ph[1] + r.gd[2]*ph[2] + r.gd[3]*ph[3]
-	if len(ps.more) > 0 {
-		ma, mg := mt.moreAt(j, ps.more)
-		a, g = a+ma, g+mg
-	}
 	c = r.k[0] + f*(r.k[1]+f*(r.k[2]+f*r.k[3]))
 	lin = (kf.a + a) + f*(kf.g+g)
 	v = r.k[4] + f*(2*r.k[5]+f*r.k[6])
@@ -258,10 +322,10 @@ func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
 
 // inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
 // on the panel of slot p at an offset in the domain but outside the
-// table; it draws as InSpec does.
-func (w *procCheckWorker) inSpecSlow(p, i int, off float64, r *registration.Stream) bool {
+// table, with n its normal draw as in InSpec.
+func (w *procCheckWorker) inSpecSlow(p, i int, off, n float64) bool {
 	c, lin, v := w.slowAt(p, i, off)
-	return w.pc.sites[i].tab.inSpec(c, lin, v, r)
+	return w.pc.sites[i].tab.inSpec(c, lin, v, n)
 }
 
 // slowAt is at for site i on the panel of slot p at offset off from the
