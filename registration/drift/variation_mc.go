@@ -164,41 +164,34 @@ func (w *procCheckWorker) newPanel(p int) {
 
 // InSpec decides site i on the group's panels: bit p of the mask for
 // slot p, at offset off[p]. An offset outside the section's domain is out
-// of spec whatever the process terms do, and nothing is drawn for it (the
-// per-site draw is independent of everything else, so skipping it leaves
-// the distribution as it is). Inside, everything is read from the
-// section's mcTab with one interval index (mcRow.at, the section's
-// values hoisted out of the loop over the panels); a site with more than
-// mcChunk shape groups, or an offset in the domain but outside the table
-// (a curve of one solved offset), takes inSpecAt.
+// of spec whatever the process terms do (its normal draw is left unused:
+// the draws are independent of everything else). Inside, everything is
+// read from the section's mcTab with one interval index (mcRow.at, the
+// section's values hoisted out of the loop over the panels) when the
+// table covers the domain (mcTab.covers) and the site has at most mcChunk
+// shape groups; otherwise the site takes inSpecAt.
 func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
 	if len(off) > registration.MCGroup {
 		panic("drift: more panels than a group holds")
 	}
-	if len(ps.more) > 0 {
+	if len(ps.more) > 0 || !mt.covers {
 		return w.inSpecAt(i, off, r)
 	}
-	dom, lo, inv, last, top := mt.domain, mt.lo, mt.inv, mt.last, mt.n-1
-	rows, sec, ph := mt.rows, &w.sec[mt.section], &ps.phi
 	nrm := w.norms(off, mt, r)
+	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
+	rows, flat, ph := mt.rows, w.sec[mt.section].flat, &ps.phi
 	var in uint32
 	for p, o := range off {
 		if !dom.Contains(o) {
 			continue
 		}
-		x := (o - lo) * inv
-		if !(x >= 0 && x <= last) {
-			if w.inSpecSlow(p, i, o, nrm[p]) {
-				in |= 1 << p
-			}
-			continue
-		}
+		x := (o - lo) * inv // in [0, mt.last]: the table covers the domain
 		j := min(int(x), top)
-		kf := &sec.flat[j*registration.MCGroup+p]
+		kf := &flat[j*registration.MCGroup+p]
 		if kf.panel != w.panel[p] {
-			mt.fill(kf, sec.w[p], j, w.panel[p])
+			mt.fill(kf, w.sec[mt.section].w[p], j, w.panel[p])
 		}
 		c, lin, v := rows[j].at(kf, ph, x-float64(j))
 		if mt.inSpec(c, lin, v, nrm[p]) {
@@ -409,8 +402,11 @@ type mcTab struct {
 	more          []mcMore // nx per interval
 	sd            []float64
 	site          bool // some bound term has a per-site part
-	domain        registration.Interval
-	spec, tol     float64
+	// covers says that every offset of the domain has its x in [0, last]:
+	// x = (off − lo)·inv rounds monotonically in off, so the ends decide.
+	covers    bool
+	domain    registration.Interval
+	spec, tol float64
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the
@@ -467,6 +463,9 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	mt.last = float64(mt.n)
 	if x := (hi - lo) / mt.step; x < mt.last {
 		mt.last = x
+	}
+	if d := mt.domain; !d.Empty() {
+		mt.covers = (d.Lo-mt.lo)*mt.inv >= 0 && (d.Hi-mt.lo)*mt.inv <= mt.last
 	}
 	mt.rows = make([]mcRow, mt.n)
 	mt.more = make([]mcMore, mt.n*mt.nx)
