@@ -166,8 +166,9 @@ func (w *procCheckWorker) newPanel(p int) {
 // slot p, at offset off[p]. An offset outside the section's domain is out
 // of spec whatever the process terms do (its normal draw is left unused:
 // the draws are independent of everything else). Inside, everything is
-// read from the section's mcTab with one interval index (mcRow.at, the
-// section's values hoisted out of the loop over the panels) when the
+// read from the section's mcTab with one interval index (mcRow.curve and
+// mcRow.lin, the section's values hoisted out of the loop over the
+// panels) when the
 // table covers the domain (mcTab.covers) and the site has at most mcChunk
 // shape groups; otherwise the site takes inSpecAt.
 func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
@@ -193,8 +194,9 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 		if kf.panel != w.panel[p] {
 			mt.fill(kf, w.sec[mt.section].w[p], j, w.panel[p])
 		}
-		c, lin, v := rows[j].at(kf, ph, x-float64(j))
-		if mt.inSpec(c, lin, v, nrm[p]) {
+		rw, f := &rows[j], x-float64(j)
+		c, v := rw.curve(f)
+		if mt.inSpec(c, kf.at(f)+rw.sh.at(ph, f), v, nrm[p]) {
 			in |= 1 << p
 		}
 	}
@@ -265,39 +267,43 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
 		mt.fill(kf, sec.w[p], j, w.panel[p])
 	}
 	f := x - float64(j)
-	c, lin, v = mt.rows[j].at(kf, &ps.phi, f)
+	rw := &mt.rows[j]
+	c, v = rw.curve(f)
+	lin = kf.at(f) + rw.sh.at(&ps.phi, f)
 	if len(ps.more) > 0 {
-		a, g := mt.moreAt(j, ps.more)
-		lin += a + f*g
+		lin += mt.moreAt(j, ps.more, f)
 	}
 	return c, lin, v
 }
 
-// at is the sum at position f (0 to 1) in the interval of row r, with its
-// flat part kf on the panel, for a site whose first mcChunk groups take
-// the values ph: the curve c₀ + c₁f + c₂f² + c₃f³, the linear process
-// part (kf.a + Σ Gq·φq) + f·(kf.g + Σ dGq·φq) and the per-site variance
-// A + 2Bf + Cf² (mcTab).
-func (r *mcRow) at(kf *pcFlat, ph *[mcChunk]float64, f float64) (c, lin, v float64) {
-	a := r.gs[0]*ph[0] + r.gs[1]*ph[1] + r.gs[2]*ph[2] + r.gs[3]*ph[3]
-	g := r.gd[0]*ph[0] + r.gd[1]*ph[1] + r.gd[2]*ph[2] + r.gd[3]*ph[3]
-	c = r.k[0] + f*(r.k[1]+f*(r.k[2]+f*r.k[3]))
-	lin = (kf.a + a) + f*(kf.g+g)
-	v = r.k[4] + f*(2*r.k[5]+f*r.k[6])
-	return c, lin, v
+// The sums at position f (0 to 1) in the interval of row r (mcTab), in
+// parts small enough to be inlined into the loop over the panels: curve
+// returns the curve c₀ + c₁f + c₂f² + c₃f³ and the per-site variance
+// A + 2Bf + Cf²; the linear process part is the flat part on the panel,
+// kf.at(f) = kf.a + f·kf.g, plus the shape part, Σ (Gq + f·dGq)·φq over
+// the groups in chunks of mcChunk (mcShapes.at).
+func (r *mcRow) curve(f float64) (c, v float64) {
+	k := &r.k
+	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(2*k[5]+f*k[6])
+}
+
+func (kf *pcFlat) at(f float64) float64 { return kf.a + f*kf.g }
+
+// at returns Σ (Gq + f·dGq)·φq over the chunk's groups, ph the site's
+// values of them.
+func (s *mcShapes) at(ph *[mcChunk]float64, f float64) float64 {
+	return (s[0]+f*s[4])*ph[0] + (s[1]+f*s[5])*ph[1] + (s[2]+f*s[6])*ph[2] + (s[3]+f*s[7])*ph[3]
 }
 
 // moreAt returns the shape part of the groups beyond the first mcChunk
-// in interval j for a site whose values of them are more: the sums of
-// Gq·φq and dGq·φq.
-func (mt *mcTab) moreAt(j int, more [][mcChunk]float64) (a, g float64) {
+// at position f in interval j for a site whose values of them are more.
+func (mt *mcTab) moreAt(j int, more [][mcChunk]float64, f float64) float64 {
 	ext := mt.more[j*mt.nx : (j+1)*mt.nx]
+	var a float64
 	for q := range more {
-		e, ph := &ext[q], &more[q]
-		a += e.gs[0]*ph[0] + e.gs[1]*ph[1] + e.gs[2]*ph[2] + e.gs[3]*ph[3]
-		g += e.gd[0]*ph[0] + e.gd[1]*ph[1] + e.gd[2]*ph[2] + e.gd[3]*ph[3]
+		a += ext[q].at(&more[q], f)
 	}
-	return a, g
+	return a
 }
 
 // fill sets kf, interval j's flat part on the panel serial whose bindings
@@ -349,18 +355,16 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 const mcChunk = 4
 
 // mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, B, C
-// and one unused value, so that a row is 128 bytes; gs and gd the first
-// mcChunk groups' Gq and dGq.
+// and one unused value, and sh the first mcChunk groups' Gq and dGq, so
+// that a row is 128 bytes.
 type mcRow struct {
-	k      [8]float64
-	gs, gd [mcChunk]float64
+	k  [8]float64
+	sh mcShapes
 }
 
-// mcMore is one chunk of the groups beyond the first mcChunk in one
-// interval: their Gq and dGq.
-type mcMore struct {
-	gs, gd [mcChunk]float64
-}
+// mcShapes is one chunk of shape groups in one interval: their Gq
+// (q < mcChunk), then their dGq.
+type mcShapes [2 * mcChunk]float64
 
 // mcTab is one section's Monte Carlo table over the intervals of its Proc
 // table (same offsets, same index). A binding's mean at a site is
@@ -383,7 +387,7 @@ type mcMore struct {
 //   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and dGq: Σ Aᵦ·dsᵦ,
 //     with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation of the
 //     binding's sensitivity (mcRow; the groups beyond the first mcChunk
-//     in nx chunks per interval in more).
+//     in nx chunks per interval in more, mcShapes).
 //
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
 // fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcSection, pcFlat).
@@ -399,7 +403,7 @@ type mcTab struct {
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
 	rows          []mcRow
-	more          []mcMore // nx per interval
+	more          []mcShapes // nx per interval
 	sd            []float64
 	site          bool // some bound term has a per-site part
 	// covers says that every offset of the domain has its x in [0, last]:
@@ -468,7 +472,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		mt.covers = (d.Lo-mt.lo)*mt.inv >= 0 && (d.Hi-mt.lo)*mt.inv <= mt.last
 	}
 	mt.rows = make([]mcRow, mt.n)
-	mt.more = make([]mcMore, mt.n*mt.nx)
+	mt.more = make([]mcShapes, mt.n*mt.nx)
 	mt.sd = make([]float64, mt.n*2*nb)
 	at := func(x float64) float64 { return ev.Curve.Curve.Coupling(math.Min(hi, lo+x*mt.step)) }
 	for j := range mt.n {
@@ -482,11 +486,11 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 			switch q := mt.group[b]; {
 			case q >= mcChunk:
 				m := &mt.more[j*mt.nx+q/mcChunk-1]
-				m.gs[q%mcChunk] += mt.amp[b] * s
-				m.gd[q%mcChunk] += mt.amp[b] * ds
+				m[q%mcChunk] += mt.amp[b] * s
+				m[mcChunk+q%mcChunk] += mt.amp[b] * ds
 			case q >= 0:
-				row.gs[q] += mt.amp[b] * s
-				row.gd[q] += mt.amp[b] * ds
+				row.sh[q] += mt.amp[b] * s
+				row.sh[mcChunk+q] += mt.amp[b] * ds
 			}
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds
