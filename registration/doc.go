@@ -42,7 +42,7 @@
 // probability of landing inside it in closed form (SiteProb: normal terms and
 // site_sigma exactly, the two widest uniform terms exactly, further ones by
 // their variance). MonteCarlo draws every term once per panel and site_sigma
-// once per site, in fixed blocks of panels with one PCG stream per block, so
+// once per site, in fixed blocks of panels with one Stream per block, so
 // that a seed gives the same counts whatever the number of workers, in memory
 // that does not grow with the number of trials. Budget splits each site's
 // offset variance among the contributor terms.

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/bits"
 	"math/rand/v2"
 	"runtime"
 	"sort"
@@ -325,14 +326,19 @@ type SiteChecker interface {
 
 // SiteCheckWorker is one goroutine's side of a SiteChecker. Its calls draw
 // from the trial's stream, so that a run is the same whatever the number
-// of workers.
+// of workers. The Monte Carlo draws its panels in groups of at most
+// MCGroup (slots 0, 1, …) and decides each site on every panel of the
+// group before it moves to the next site, so that a site's constants are
+// read once per group.
 type SiteCheckWorker interface {
-	// Panel draws what one panel shares (panel-to-panel terms), once per
-	// trial after the registration terms.
-	Panel(rng *rand.Rand)
-	// InSpec reports whether claimed site i meets its spec at the across
-	// offset offset (design offset included), drawing its per-site parts.
-	InSpec(i int, offset float64, rng *rand.Rand) bool
+	// Panel draws what one panel shares (panel-to-panel terms) into slot
+	// p of the next group, once per trial after the registration terms.
+	Panel(p int, r *Stream)
+	// InSpec reports on which panels of the group claimed site i meets
+	// its spec, as a mask with bit p for slot p, given its across offset
+	// off[p] on each (design offset included; len(off) panels, slots
+	// 0 to len(off)−1), drawing its per-site parts.
+	InSpec(i int, off []float64, r *Stream) uint32
 }
 
 // Products returns the number of part instances that are products.
@@ -447,7 +453,7 @@ func SortShares(s []Share) {
 // Trials must be positive.
 type MCSettings struct {
 	Trials int    // number of panels drawn
-	Seed   uint64 // seed of the PCG streams
+	Seed   uint64 // seed of the random streams (Stream)
 	// Workers is the number of goroutines; 0 means GOMAXPROCS. The result does
 	// not depend on it.
 	Workers int
@@ -457,9 +463,17 @@ type MCSettings struct {
 }
 
 // MCBlock is the number of panels in one block of a Monte Carlo run. Block b
-// draws from its own stream rand.NewPCG(seed, b), so that the result is the
-// same whatever the number of workers and their scheduling.
+// draws from its own stream (Stream.Seed(seed, b)), so that the result is
+// the same whatever the number of workers and their scheduling.
 const MCBlock = 256
+
+// MCGroup is the number of panels a worker draws at once: it draws the
+// panel terms of MCGroup panels, then runs through the sites once,
+// deciding each on all of them, so that the sites' constants (about 170
+// bytes a site with process terms: ten thousand sites are more than a
+// core's cache) stream from memory once per group instead of once per
+// panel. It divides MCBlock; at most 32 (a uint32 mask of the panels).
+const MCGroup = 8
 
 // MCResult holds the counts of a Monte Carlo yield run. Counts are integers,
 // so merging the workers' tallies is exact and order-independent.
@@ -600,26 +614,34 @@ func (y *Yield) MonteCarlo(ctx context.Context, set MCSettings) (*MCResult, erro
 
 // mcWorker holds one goroutine's tallies and scratch space.
 type mcWorker struct {
-	y         *Yield
-	sites     []mcSite
-	pcg       *rand.PCG
-	rng       *rand.Rand
-	draw      Draw
-	v         [][NumTerms]float64
-	stamp     []int64 // per part, the last trial in which it failed, +1
+	y     *Yield
+	sites []mcSite
+	str   *Stream
+	rng   *rand.Rand // str, for Model.Sample
+	draw  Draw
+	v     [][NumTerms]float64 // per pair and group slot: v[pair·MCGroup + slot]
+	// failed holds per part the mask of the group's panels on which one
+	// of its sites failed; dirty lists the parts whose mask is not 0.
+	failed    []uint32
+	dirty     []int32
+	coupon    []bool           // per part, whether it is a coupon (Yield.Coupons)
+	off, nrm  [MCGroup]float64 // per slot: a site's offsets, its per-site normals
 	siteGood  []int64
 	partBad   []int64
 	goodParts []int64
 	trials    int64
-	serial    int64
 	check     SiteCheckWorker // nil without Yield.Check
 }
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
-	pcg := rand.NewPCG(0, 0)
-	return &mcWorker{y: y, sites: sites, pcg: pcg, rng: rand.New(pcg), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, len(y.Pairs)),
-		stamp: make([]int64, y.Parts), siteGood: make([]int64, len(sites)),
+	str := new(Stream)
+	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, MCGroup*len(y.Pairs)),
+		failed: make([]uint32, y.Parts), dirty: make([]int32, 0, y.Parts), coupon: make([]bool, y.Parts), siteGood: make([]int64, len(sites)),
 		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
+	for _, c := range y.Coupons {
+		w.coupon[c] = true
+	}
+	return w
 }
 
 func newCheckWorker(y *Yield) SiteCheckWorker {
@@ -629,52 +651,82 @@ func newCheckWorker(y *Yield) SiteCheckWorker {
 	return y.Check.NewWorker()
 }
 
-// block runs n trials from stream (seed, b): the worker's generator is
-// reseeded, which is the same as rand.NewPCG(seed, b) without allocating.
+// block runs n trials from stream (seed, b).
 func (w *mcWorker) block(seed, b uint64, n int) {
-	w.pcg.Seed(seed, b)
-	rng := w.rng
-	sites := w.sites
-	good := w.siteGood[:len(sites)]
-	for range n {
-		w.serial++
-		t := w.serial
-		w.y.Model.Sample(rng, w.draw)
-		for p, r := range w.y.Pairs {
-			w.v[p] = r.Collapse(w.draw)
-		}
-		if w.check != nil {
-			w.check.Panel(rng)
-		}
-		bad := 0
-		for i := range sites {
-			s := &sites[i]
-			v := &w.v[s.pair]
-			d := s.a[0]*v[0] + s.a[1]*v[1] + s.a[2]*v[2] + s.a[3]*v[3] + s.a[4]*v[4] + s.a[5]*v[5]
-			if s.sd > 0 {
-				d += s.sd * rng.NormFloat64()
-			}
-			in := d >= s.lo && d <= s.hi
-			if s.checked {
-				in = w.check.InSpec(i, d+s.base, rng)
-			}
-			if in {
-				good[i]++
-			} else if s.part >= 0 && w.stamp[s.part] != t {
-				w.stamp[s.part] = t
-				w.partBad[s.part]++
-				bad++
-			}
-		}
-		// Coupon parts failed in this trial were counted in bad; they are
-		// few (a strip or two), so taking them out here keeps the site
-		// loop free of the product test.
-		for _, c := range w.y.Coupons {
-			if w.stamp[c] == t {
-				bad--
-			}
-		}
-		w.goodParts[w.y.Products()-bad]++
+	w.str.Seed(seed, b)
+	for t := 0; t < n; t += MCGroup {
+		w.group(min(MCGroup, n-t))
 	}
 	w.trials += int64(n)
+}
+
+// group runs g ≤ MCGroup trials: their panel draws, in order, then every
+// site on each of them, then the parts.
+func (w *mcWorker) group(g int) {
+	str := w.str
+	for p := range g {
+		w.y.Model.Sample(w.rng, w.draw)
+		for q, r := range w.y.Pairs {
+			w.v[q*MCGroup+p] = r.Collapse(w.draw)
+		}
+		if w.check != nil {
+			w.check.Panel(p, str)
+		}
+	}
+	sites := w.sites
+	good := w.siteGood[:len(sites)]
+	all := uint32(1)<<g - 1
+	off := w.off[:g]
+	for i := range sites {
+		s := &sites[i]
+		a := &s.a
+		vs := w.v[int(s.pair)*MCGroup:][:g]
+		var in uint32
+		nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
+		if s.sd > 0 {
+			str.Norms(nrm)
+		}
+		if s.checked {
+			for p, n := range nrm {
+				v := &vs[p]
+				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
+				off[p] = d + s.sd*n + s.base
+			}
+			in = w.check.InSpec(i, off, str)
+		} else {
+			for p, n := range nrm {
+				v := &vs[p]
+				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
+				d += s.sd * n
+				if d >= s.lo && d <= s.hi {
+					in |= 1 << p
+				}
+			}
+		}
+		good[i] += int64(bits.OnesCount32(in))
+		if in != all && s.part >= 0 {
+			if w.failed[s.part] == 0 {
+				w.dirty = append(w.dirty, s.part)
+			}
+			w.failed[s.part] |= all &^ in
+		}
+	}
+	// Each failed part once per panel it failed on; coupons are not
+	// products, so they leave the good products per panel alone.
+	var bad [MCGroup]int
+	for _, k := range w.dirty {
+		m := w.failed[k]
+		w.failed[k] = 0
+		w.partBad[k] += int64(bits.OnesCount32(m))
+		if w.coupon[k] {
+			continue
+		}
+		for ; m != 0; m &= m - 1 {
+			bad[bits.TrailingZeros32(m)]++
+		}
+	}
+	w.dirty = w.dirty[:0]
+	for p := range g {
+		w.goodParts[w.y.Products()-bad[p]]++
+	}
 }

@@ -85,12 +85,24 @@ func BenchmarkValueProcess(b *testing.B) {
 
 // BenchmarkMonteCarloProcess times the Monte Carlo yield of the 10,000
 // sites with 12 process terms on one worker: 256 panels (one block) per
-// iteration, reported as site evaluations per second.
+// iteration, reported as site evaluations (one site on one panel) per
+// second and per CPU second. Every site is decided by the process check:
+// 12 bound terms in 4 shape groups (the three domes, the two edges, the
+// two tilts), 7 of them with a per-site part.
 func BenchmarkMonteCarloProcess(b *testing.B) {
 	in := bigProcessInput(b)
 	a, err := Analyse(b.Context(), in, &Settings{Accuracy: 0.01, CacheDir: b.TempDir()})
 	if err != nil {
 		b.Fatal(err)
+	}
+	pc, _ := a.Yield.Check.(*procCheck)
+	if pc == nil || pc.tabs[0].nb != 12 || len(pc.tabs[0].groups) != 4 || !pc.tabs[0].covers {
+		b.Fatal("not 12 bound terms in 4 shape groups on the table's fast path")
+	}
+	for i := range a.Sites {
+		if !pc.Claims(i) {
+			b.Fatalf("site %d not decided by the process check", i)
+		}
 	}
 	b.ReportAllocs()
 	cpu0 := cpuSeconds(b)

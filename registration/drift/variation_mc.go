@@ -2,7 +2,6 @@ package drift
 
 import (
 	"math"
-	"math/rand/v2"
 
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/process"
@@ -25,11 +24,12 @@ type procCheck struct {
 
 // pcSite is the hot-loop form of a site with process terms: its
 // section's table and the value at the site of each of the section's
-// shape groups (mcTab). The values of all sites are one array, so that
-// the loop over the sites reads them in order.
+// shape groups (mcTab), the first mcChunk in phi and the others, if any,
+// in more, in chunks of mcChunk padded with zeros.
 type pcSite struct {
-	tab *mcTab // nil when the site's section has no process terms
-	phi []float64
+	tab  *mcTab // nil when the site's section has no process terms
+	phi  [mcChunk]float64
+	more [][mcChunk]float64
 }
 
 var _ registration.SiteChecker = (*procCheck)(nil)
@@ -53,14 +53,14 @@ func newProcCheck(a *Analysis) *procCheck {
 	n, any := 0, false
 	for k := range a.Sites {
 		if mt := pc.tabs[a.Sites[k].Section]; mt != nil {
-			n += len(mt.groups)
+			n += mt.nx
 			any = true
 		}
 	}
 	if !any {
 		return nil
 	}
-	flat := make([]float64, n)
+	more := make([][mcChunk]float64, n)
 	size := a.In.Process.Size
 	for k := range a.Sites {
 		r := &a.Sites[k]
@@ -68,11 +68,17 @@ func newProcCheck(a *Analysis) *procCheck {
 		if mt == nil {
 			continue
 		}
-		ng := len(mt.groups)
-		ps := pcSite{tab: mt, phi: flat[:ng:ng]}
-		flat = flat[ng:]
+		ps := pcSite{tab: mt}
+		if mt.nx > 0 {
+			ps.more, more = more[:mt.nx:mt.nx], more[mt.nx:]
+		}
 		for g := range mt.groups {
-			ps.phi[g] = mt.groups[g].At(r.Site.Pos, size)
+			v := mt.groups[g].At(r.Site.Pos, size)
+			if g < mcChunk {
+				ps.phi[g] = v
+			} else {
+				ps.more[g/mcChunk-1][g%mcChunk] = v
+			}
 		}
 		pc.sites[k] = ps
 	}
@@ -82,167 +88,283 @@ func newProcCheck(a *Analysis) *procCheck {
 func (pc *procCheck) Claims(i int) bool { return pc.sites[i].tab != nil }
 
 func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
-	w := &procCheckWorker{pc: pc, dev: make([]float64, len(pc.a.In.Process.Terms)), sec: make([]pcPanel, len(pc.terms))}
+	w := &procCheckWorker{pc: pc, dev: make([]float64, len(pc.a.In.Process.Terms)), sec: make([]pcSection, len(pc.terms))}
 	for i, mt := range pc.tabs {
 		if mt != nil {
-			w.sec[i] = pcPanel{w: make([]float64, mt.nb), k: make([]float64, 2*mt.n), stamp: make([]int64, mt.n)}
+			for p := range registration.MCGroup {
+				w.sec[i].w[p] = make([]float64, mt.nb)
+			}
+			w.sec[i].flat = make([]pcFlat, mt.n*registration.MCGroup)
 		}
 	}
 	return w
 }
 
-// procCheckWorker holds one goroutine's panel draws.
+// procCheckWorker holds one goroutine's panel draws, one slot per panel
+// of a group (registration.MCGroup).
 type procCheckWorker struct {
 	pc     *procCheck
-	dev    []float64 // per process term, this panel's deviation from its mean
-	sec    []pcPanel // per section
-	serial int64     // panels drawn so far
+	dev    []float64   // per process term, the deviation from its mean being drawn
+	sec    []pcSection // per section
+	serial int64       // panels drawn so far
+	// panel holds per slot the serial number of its panel (from 1).
+	panel [registration.MCGroup]int64
+	nrm   [registration.MCGroup]float64 // per slot, a site's normal draw
 }
 
-// pcPanel is one section's panel part in a worker: per binding the panel
-// mean plus this panel's deviation, and per table interval the flat part
-// of the coupling it adds, Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ, filled when a site first
-// needs the interval in a panel (stamp holds the panel, +1), so that a
-// panel costs what its sites read and not the whole table.
-type pcPanel struct {
-	w     []float64
-	k     []float64
-	stamp []int64
+// pcSection is one section's panel parts: per slot of the group and
+// binding the panel mean plus the panel's deviation, and per table
+// interval and slot (flat[j·MCGroup + p]) the flat part of the coupling
+// it adds (pcFlat), filled when a site first needs the interval on the
+// panel, so that a panel costs what its sites read and not the whole
+// table.
+type pcSection struct {
+	w    [registration.MCGroup][]float64
+	flat []pcFlat
 }
 
-// Panel draws every term's panel part: its deviation from the mean.
-func (w *procCheckWorker) Panel(rng *rand.Rand) {
+// pcFlat is the flat part of one table interval on one panel: Σ sᵦ·wᵦ and
+// Σ dsᵦ·wᵦ over the bindings, valid when panel is the slot's serial (side
+// by side, so that one cache line holds the test and the values).
+type pcFlat struct {
+	a, g  float64
+	panel int64
+}
+
+// Panel draws every term's panel part, its deviation from the mean, into
+// slot p.
+func (w *procCheckWorker) Panel(p int, r *registration.Stream) {
 	for t := range w.dev {
-		p := w.pc.a.In.Process.Terms[t].Panel
-		switch p.Dist {
+		pt := w.pc.a.In.Process.Terms[t].Panel
+		switch pt.Dist {
 		case registration.Normal:
-			w.dev[t] = p.Spread * rng.NormFloat64()
+			w.dev[t] = pt.Spread * r.Norm()
 		case registration.Uniform:
-			w.dev[t] = p.Spread * (2*rng.Float64() - 1)
+			w.dev[t] = pt.Spread * (2*r.Float64() - 1)
 		default:
 			w.dev[t] = 0
 		}
 	}
-	w.newPanel()
+	w.newPanel(p)
 }
 
-// newPanel takes the deviations in w.dev as the next panel's.
-func (w *procCheckWorker) newPanel() {
+// newPanel takes the deviations in w.dev as slot p's next panel.
+func (w *procCheckWorker) newPanel(p int) {
 	w.serial++
+	w.panel[p] = w.serial
 	for i, ts := range w.pc.terms {
 		if mt := w.pc.tabs[i]; mt != nil {
+			wp := w.sec[i].w[p]
 			for b, t := range ts {
-				w.sec[i].w[b] = mt.mean[b] + w.dev[t]
+				wp[b] = mt.mean[b] + w.dev[t]
 			}
 		}
 	}
 }
 
-// InSpec draws site i's per-site parts and applies the rule. The per-site
-// parts are independent normals that enter linearly, so their sum
-// Σ sᵢ·σᵢ·Nᵢ is drawn as one normal of variance Σ sᵢ²·σᵢ²: the same
-// distribution with one draw. Inside the curve's range everything is read
-// from the section's mcTab with one interval index; outside it (far
-// tails) the site takes inSpecSlow, the curve itself.
-func (w *procCheckWorker) InSpec(i int, off float64, rng *rand.Rand) bool {
+// InSpec decides site i on the group's panels: bit p of the mask for
+// slot p, at offset off[p]. An offset outside the section's domain is out
+// of spec whatever the process terms do (its normal draw is left unused:
+// the draws are independent of everything else). Inside, everything is
+// read from the section's mcTab with one interval index (mcRow.curve and
+// mcRow.lin, the section's values hoisted out of the loop over the
+// panels) when the
+// table covers the domain (mcTab.covers) and the site has at most mcChunk
+// shape groups; otherwise the site takes inSpecAt.
+func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
-	x := (off - mt.lo) * mt.inv
-	if !(x >= 0 && x <= mt.last) {
-		return w.inSpecSlow(i, off, rng)
+	if len(off) > registration.MCGroup {
+		panic("drift: more panels than a group holds")
 	}
-	m, v := w.at(ps, x)
-	if mt.site {
-		n := rng.NormFloat64()
-		if v > 0 {
-			m += math.Sqrt(v) * n
+	if len(ps.more) > 0 || !mt.covers {
+		return w.inSpecAt(i, off, r)
+	}
+	nrm := w.norms(off, mt, r)
+	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
+	rows, flat, ph := mt.rows, w.sec[mt.section].flat, &ps.phi
+	var in uint32
+	for p, o := range off {
+		if !dom.Contains(o) {
+			continue
+		}
+		x := (o - lo) * inv // in [0, mt.last]: the table covers the domain
+		j := min(int(x), top)
+		kf := &flat[j*registration.MCGroup+p]
+		if kf.panel != w.panel[p] {
+			mt.fill(kf, w.sec[mt.section].w[p], j, w.panel[p])
+		}
+		rw, f := &rows[j], x-float64(j)
+		c, v := rw.curve(f)
+		if mt.inSpec(c, kf.at(f)+rw.sh.at(ph, f), v, nrm[p]) {
+			in |= 1 << p
 		}
 	}
-	return mt.domain.Contains(off) && math.Abs(m-mt.spec) <= mt.tol
+	return in
 }
 
-// at returns the mean and the per-site variance of the coupling at table
-// position x (0 ≤ x ≤ mt.last) for site ps on this panel:
-// c(δ) + Σ sᵦ(δ)·(Mᵦ + dᵦ + Aᵦ·φᵦ(site)) and Σ σᵦ²·sᵦ(δ)², with the
-// shape part summed by group.
-func (w *procCheckWorker) at(ps *pcSite, x float64) (m, v float64) {
+// inSpecAt is InSpec through at, for any number of shape groups.
+func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream) uint32 {
+	ps := &w.pc.sites[i]
 	mt := ps.tab
-	j := int(x)
-	if j >= mt.n {
-		j = mt.n - 1
+	nrm := w.norms(off, mt, r)
+	var in uint32
+	for p, o := range off {
+		if !mt.domain.Contains(o) {
+			continue
+		}
+		var ok bool
+		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
+			c, lin, v := w.at(p, ps, x)
+			ok = mt.inSpec(c, lin, v, nrm[p])
+		} else {
+			ok = w.inSpecSlow(p, i, o, nrm[p])
+		}
+		if ok {
+			in |= 1 << p
+		}
+	}
+	return in
+}
+
+// norms draws a site's standard normals for its per-site parts, one per
+// panel of the group, when mt's terms have any (0 otherwise). A draw
+// whose panel turns out not to need it (an offset outside the domain) is
+// left unused: the draws are independent of everything else.
+func (w *procCheckWorker) norms(off []float64, mt *mcTab, r *registration.Stream) []float64 {
+	nrm := w.nrm[:len(off)]
+	if mt.site {
+		r.Norms(nrm)
+	} else {
+		clear(nrm)
+	}
+	return nrm
+}
+
+// inSpec is the rule for an offset in the domain whose coupling is
+// c + lin + √v·n: c the curve, lin the linear process part without the
+// per-site parts, v the variance of the per-site parts and n a standard
+// normal draw. The per-site parts are independent normals that enter
+// linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is drawn as one normal √v·n: the same
+// distribution with one draw.
+func (mt *mcTab) inSpec(c, lin, v, n float64) bool {
+	if v > 0 {
+		lin += math.Sqrt(v) * n
+	}
+	return math.Abs(c+lin-mt.spec) <= mt.tol
+}
+
+// at returns, at table position x (0 ≤ x ≤ mt.last) for site ps on the
+// panel of slot p, the curve c(δ), the linear process part
+// Σ sᵦ(δ)·(Mᵦ + dᵦ + Aᵦ·φᵦ(site)) (the shape part summed by group) and
+// the per-site variance Σ σᵦ²·sᵦ(δ)².
+func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
+	mt := ps.tab
+	j := min(int(x), mt.n-1)
+	sec := &w.sec[mt.section]
+	kf := &sec.flat[j*registration.MCGroup+p]
+	if kf.panel != w.panel[p] {
+		mt.fill(kf, sec.w[p], j, w.panel[p])
 	}
 	f := x - float64(j)
-	sp := &w.sec[mt.section]
-	if sp.stamp[j] != w.serial {
-		mt.flat(sp, j)
-		sp.stamp[j] = w.serial
+	rw := &mt.rows[j]
+	c, v = rw.curve(f)
+	lin = kf.at(f) + rw.sh.at(&ps.phi, f)
+	if len(ps.more) > 0 {
+		lin += mt.moreAt(j, ps.more, f)
 	}
-	ng := len(ps.phi)
-	row := mt.t[j*mt.stride : (j+1)*mt.stride]
-	k, gd := row[:mcTabExtra], row[mcTabExtra:mcTabExtra+2*ng]
-	var a, g float64
-	for q, p := range ps.phi {
-		a += gd[2*q] * p
-		g += gd[2*q+1] * p
-	}
-	kf := sp.k[2*j : 2*j+2]
-	m = k[0] + f*(k[1]+f*(k[2]+f*k[3])) + (kf[0] + a) + f*(kf[1]+g)
-	v = k[4] + f*(2*k[5]+f*k[6])
-	return m, v
+	return c, lin, v
 }
 
-// flat fills interval j of sp: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ over the bindings.
-func (mt *mcTab) flat(sp *pcPanel, j int) {
+// The sums at position f (0 to 1) in the interval of row r (mcTab), in
+// parts small enough to be inlined into the loop over the panels: curve
+// returns the curve c₀ + c₁f + c₂f² + c₃f³ and the per-site variance
+// A + 2Bf + Cf²; the linear process part is the flat part on the panel,
+// kf.at(f) = kf.a + f·kf.g, plus the shape part, Σ (Gq + f·dGq)·φq over
+// the groups in chunks of mcChunk (mcShapes.at).
+func (r *mcRow) curve(f float64) (c, v float64) {
+	k := &r.k
+	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(2*k[5]+f*k[6])
+}
+
+func (kf *pcFlat) at(f float64) float64 { return kf.a + f*kf.g }
+
+// at returns Σ (Gq + f·dGq)·φq over the chunk's groups, ph the site's
+// values of them.
+func (s *mcShapes) at(ph *[mcChunk]float64, f float64) float64 {
+	return (s[0]+f*s[4])*ph[0] + (s[1]+f*s[5])*ph[1] + (s[2]+f*s[6])*ph[2] + (s[3]+f*s[7])*ph[3]
+}
+
+// moreAt returns the shape part of the groups beyond the first mcChunk
+// at position f in interval j for a site whose values of them are more.
+func (mt *mcTab) moreAt(j int, more [][mcChunk]float64, f float64) float64 {
+	ext := mt.more[j*mt.nx : (j+1)*mt.nx]
+	var a float64
+	for q := range more {
+		a += ext[q].at(&more[q], f)
+	}
+	return a
+}
+
+// fill sets kf, interval j's flat part on the panel serial whose bindings
+// take the values wb: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
+func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
 	nb := mt.nb
 	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
 	var a, g float64
-	for b, wb := range sp.w[:nb] {
-		a += sd[2*b] * wb
-		g += sd[2*b+1] * wb
+	for b, x := range wb[:nb] {
+		a += sd[2*b] * x
+		g += sd[2*b+1] * x
 	}
-	sp.k[2*j], sp.k[2*j+1] = a, g
+	kf.a, kf.g, kf.panel = a, g, serial
 }
 
-// inSpecSlow is InSpec from the curve and Proc.rows directly, for offsets
-// outside the table (the coupling extends along its end slopes there);
-// it draws as InSpec does.
-func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
-	mt := w.pc.sites[i].tab
-	m, v := w.slowAt(i, off)
-	if mt.site {
-		n := rng.NormFloat64()
-		if v > 0 {
-			m += math.Sqrt(v) * n
-		}
-	}
-	sp := mt.ev.Curve.Section.Spec
-	return mt.ev.Proc.Domain.Contains(off) && math.Abs(m-sp.Coupling) <= sp.Tolerance
+// inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
+// on the panel of slot p at an offset in the domain but outside the
+// table, with n its normal draw as in InSpec.
+func (w *procCheckWorker) inSpecSlow(p, i int, off, n float64) bool {
+	c, lin, v := w.slowAt(p, i, off)
+	return w.pc.sites[i].tab.inSpec(c, lin, v, n)
 }
 
-// slowAt is at for site i at offset off from the curve and Proc.rows.
-func (w *procCheckWorker) slowAt(i int, off float64) (m, v float64) {
+// slowAt is at for site i on the panel of slot p at offset off from the
+// curve and Proc.rows.
+func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 	mt := w.pc.sites[i].tab
 	ev := mt.ev
-	m = ev.Curve.Coupling(off)
+	c = ev.Curve.Coupling(off)
 	r0, r1, f := ev.Proc.rows(off)
 	pos, size := w.pc.a.Sites[i].Site.Pos, ev.Proc.Model.Size
-	wb := w.sec[mt.section].w[:mt.nb]
+	wb := w.sec[mt.section].w[p][:mt.nb]
 	for b := range wb {
 		s := r0[b] + f*(r1[b]-r0[b])
 		mb := wb[b]
 		if q := mt.group[b]; q >= 0 {
 			mb += mt.amp[b] * mt.groups[q].At(pos, size)
 		}
-		m += s * mb
+		lin += s * mb
 		v += s * s * mt.sv[b]
 	}
-	return m, v
+	return c, lin, v
 }
 
-// mcTabExtra is the number of values before the shape groups in an mcTab
-// row: the coupling cubic's four coefficients and the three of the
-// per-site variance's quadratic.
-const mcTabExtra = 7
+// mcChunk is the number of shape groups an mcTab row holds, and the
+// number the loop over a site's groups takes at a time, unrolled; a
+// section with more groups holds the others in mcTab.more, in chunks of
+// mcChunk padded with zeros.
+const mcChunk = 4
+
+// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, B, C
+// and one unused value, and sh the first mcChunk groups' Gq and dGq, so
+// that a row is 128 bytes.
+type mcRow struct {
+	k  [8]float64
+	sh mcShapes
+}
+
+// mcShapes is one chunk of shape groups in one interval: their Gq
+// (q < mcChunk), then their dGq.
+type mcShapes [2 * mcChunk]float64
 
 // mcTab is one section's Monte Carlo table over the intervals of its Proc
 // table (same offsets, same index). A binding's mean at a site is
@@ -262,12 +384,13 @@ const mcTabExtra = 7
 //     up to rounding (TestMCTab measures it);
 //   - A, B, C, the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf²
 //     expanded exactly (σᵦ is the term's, the same at every site);
-//   - per group q, Gq and dGq side by side: Σ over its bindings of Aᵦ·sᵦ
-//     and Aᵦ·dsᵦ, with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation
-//     of the binding's sensitivity.
+//   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and dGq: Σ Aᵦ·dsᵦ,
+//     with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation of the
+//     binding's sensitivity (mcRow; the groups beyond the first mcChunk
+//     in nx chunks per interval in more, mcShapes).
 //
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
-// fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcPanel).
+// fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcSection, pcFlat).
 type mcTab struct {
 	ev            *Evaluator
 	section       int
@@ -275,13 +398,19 @@ type mcTab struct {
 	mean, amp     []float64 // per binding, Mᵦ and Aᵦ
 	group         []int     // per binding, its group (−1 for a flat term)
 	groups        []process.Shape
-	nb, n, stride int
+	nb, n         int
+	nx            int     // chunks of groups beyond the first mcChunk
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
-	t, sd         []float64
+	rows          []mcRow
+	more          []mcShapes // nx per interval
+	sd            []float64
 	site          bool // some bound term has a per-site part
-	domain        registration.Interval
-	spec, tol     float64
+	// covers says that every offset of the domain has its x in [0, last]:
+	// x = (off − lo)·inv rounds monotonically in off, so the ends decide.
+	covers    bool
+	domain    registration.Interval
+	spec, tol float64
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the
@@ -328,8 +457,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		}
 		mt.group[b] = q
 	}
-	ng := len(mt.groups)
-	mt.stride = mcTabExtra + 2*ng
+	mt.nx = max(0, (len(mt.groups)+mcChunk-1)/mcChunk-1)
 	if mt.n < 1 {
 		// One solved offset: no interval, every site takes inSpecSlow.
 		mt.n, mt.last = 1, -1
@@ -340,20 +468,29 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	if x := (hi - lo) / mt.step; x < mt.last {
 		mt.last = x
 	}
-	mt.t = make([]float64, mt.n*mt.stride)
+	if d := mt.domain; !d.Empty() {
+		mt.covers = (d.Lo-mt.lo)*mt.inv >= 0 && (d.Hi-mt.lo)*mt.inv <= mt.last
+	}
+	mt.rows = make([]mcRow, mt.n)
+	mt.more = make([]mcShapes, mt.n*mt.nx)
 	mt.sd = make([]float64, mt.n*2*nb)
 	at := func(x float64) float64 { return ev.Curve.Curve.Coupling(math.Min(hi, lo+x*mt.step)) }
 	for j := range mt.n {
-		row := mt.t[j*mt.stride : (j+1)*mt.stride]
+		row := &mt.rows[j]
 		sd := mt.sd[j*2*nb : (j+1)*2*nb]
 		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[(j+1)*nb:(j+2)*nb]
-		k := row[:mcTabExtra]
+		k := &row.k
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
 			sd[2*b], sd[2*b+1] = s, ds
-			if q := mt.group[b]; q >= 0 {
-				row[mcTabExtra+2*q] += mt.amp[b] * s
-				row[mcTabExtra+2*q+1] += mt.amp[b] * ds
+			switch q := mt.group[b]; {
+			case q >= mcChunk:
+				m := &mt.more[j*mt.nx+q/mcChunk-1]
+				m[q%mcChunk] += mt.amp[b] * s
+				m[mcChunk+q%mcChunk] += mt.amp[b] * ds
+			case q >= 0:
+				row.sh[q] += mt.amp[b] * s
+				row.sh[mcChunk+q] += mt.amp[b] * ds
 			}
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds

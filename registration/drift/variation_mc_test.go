@@ -16,26 +16,50 @@ import (
 // with the same quantities from the curve itself (section.Curve.Coupling,
 // the monotone cubic the closed form reads) and Proc.rows (the
 // sensitivities' linear interpolation) at random offsets over the whole
-// table, for random panel deviations. The cubic is refitted from four
+// table, for random panel deviations, with the shape groups in one row
+// (two groups) and beyond it (six: mcMore). The cubic is refitted from four
 // samples per table interval, which reproduces it up to rounding; the
 // variance is the exact expansion of the same sums. Measured here: 2.2e-15
 // dB and 4.7e-16 relative, double rounding (a -3 dB coupling carries
 // 4.4e-16 dB per operation); the bounds of 1e-12 are about 500 times that,
 // room for other curves' rounding, and still ten orders below any spec
 // tolerance (0.01 dB and up), so a real mismatch (a wrong cubic, a wrong
-// interval) fails them.
+// interval) fails them. The hot path of InSpec and its general form
+// (inSpecAt, through at) decide alike on the same draws.
 func TestMCTab(t *testing.T) {
+	dome := process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}
+	tilt := func(y bool) process.Shape { return process.Shape{Kind: process.Tilt, Amplitude: 0.6 * mil, AlongY: y} }
+	edge := func(l float64) process.Shape {
+		return process.Shape{Kind: process.Edge, Amplitude: 0.1 * mil, Decay: l}
+	}
+	for _, c := range []struct {
+		name       string
+		terms      []process.Term
+		nb, groups int
+	}{
+		{"two groups", []process.Term{
+			{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil, Shape: dome},
+			{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.4*mil), SiteSigma: 0.1 * mil, Shape: tilt(false)},
+			{Name: "e4", Layer: "L4", Quantity: process.Etch, Panel: term(0, 0.1*mil)},
+			// A second dome: one shape group of two terms.
+			{Name: "er2", Layer: "C2", Quantity: process.Er, Panel: term(0, 0.02), Shape: process.Shape{Kind: process.Dome, Amplitude: 0.04}}}, 4, 2},
+		{"six groups", []process.Term{
+			{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil, Shape: dome},
+			{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.4*mil), SiteSigma: 0.1 * mil, Shape: tilt(false)},
+			{Name: "w4", Layer: "L4", Quantity: process.Width, Panel: term(0, 0.4*mil), Shape: tilt(true)},
+			{Name: "cu3", Layer: "L3", Quantity: process.Copper, Panel: term(0, 0.1*mil), SiteSigma: 0.02 * mil, Shape: edge(1 * inch)},
+			{Name: "cu4", Layer: "L4", Quantity: process.Copper, Panel: term(0, 0.1*mil), Shape: edge(2 * inch)},
+			{Name: "e3", Layer: "L3", Quantity: process.Etch, Panel: term(0, 0.1*mil), Shape: edge(3 * inch)}}, 6, 6},
+	} {
+		t.Run(c.name, func(t *testing.T) { testMCTab(t, c.terms, c.nb, c.groups) })
+	}
+}
+
+func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 	s := namedPair("mct", section.Spec{Coupling: -3, Tolerance: 0.08})
 	arr := panel.Array{Part: "p", Count: [2]int{2, 2}, Pitch: panel.Vec{X: 4 * inch, Y: 6 * inch}}
 	l, inst, sites := layout(t, "mct", 90, arr)
-	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
-		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.06*mil), SiteSigma: 0.03 * mil,
-			Shape: process.Shape{Kind: process.Dome, Amplitude: 0.12 * mil}},
-		{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.4*mil), SiteSigma: 0.1 * mil,
-			Shape: process.Shape{Kind: process.Tilt, Amplitude: 0.6 * mil}},
-		{Name: "e4", Layer: "L4", Quantity: process.Etch, Panel: term(0, 0.1*mil)},
-		// A second dome: one shape group of two terms.
-		{Name: "er2", Layer: "C2", Quantity: process.Er, Panel: term(0, 0.02), Shape: process.Shape{Kind: process.Dome, Amplitude: 0.04}}}}
+	pm := &process.Model{Size: l.Panel.Size, Terms: terms}
 	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{s}, Model: &registration.Model{}, Process: pm}
 	a, err := Analyse(t.Context(), in, testSettings(t))
 	if err != nil {
@@ -45,8 +69,8 @@ func TestMCTab(t *testing.T) {
 	if pc == nil {
 		t.Fatal("no process check")
 	}
-	if mt := pc.tabs[0]; mt.nb != 4 || len(mt.groups) != 2 {
-		t.Fatalf("%d bindings in %d shape groups, want 4 in 2 (dome, tilt; the flat term in none)", mt.nb, len(mt.groups))
+	if mt := pc.tabs[0]; mt.nb != nb || len(mt.groups) != groups {
+		t.Fatalf("%d bindings in %d shape groups, want %d in %d", mt.nb, len(mt.groups), nb, groups)
 	}
 	const (
 		meanBound = 1e-12 // dB
@@ -54,13 +78,15 @@ func TestMCTab(t *testing.T) {
 	)
 	rng := rand.New(rand.NewPCG(1, 2))
 	w := pc.NewWorker().(*procCheckWorker)
+	var r1, r2 registration.Stream
+	offs := make([]float64, registration.MCGroup)
 	var worstM, worstV float64
 	var row procRow
 	for range 200 {
 		for t := range w.dev {
 			w.dev[t] = 0.2 * mil * rng.NormFloat64()
 		}
-		w.newPanel()
+		w.newPanel(0)
 		for k := range pc.sites {
 			ps := &pc.sites[k]
 			if ps.tab == nil {
@@ -70,7 +96,8 @@ func TestMCTab(t *testing.T) {
 			ev := mt.ev
 			x := rng.Float64() * mt.last
 			off := mt.lo + x*mt.step
-			m, v := w.at(ps, x)
+			c, lin, v := w.at(0, ps, x)
+			m := c + lin
 			ev.Proc.row(&row, a.Sites[k].Site.Pos)
 			wm, wv := ev.Curve.Coupling(off), 0.0
 			for b, mu := range row.means() {
@@ -79,8 +106,20 @@ func TestMCTab(t *testing.T) {
 				wv += sb * sb * mt.sv[b]
 			}
 			// The fallback for offsets outside the table is the same sum.
-			if sm, sv := w.slowAt(k, off); math.Abs(sm-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
-				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sm, sv, wm, wv)
+			if sc, sl, sv := w.slowAt(0, k, off); math.Abs(sc+sl-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
+				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sc+sl, sv, wm, wv)
+			}
+			// One panel in every slot: the hot path and the general one
+			// alike on the same draws, for offsets about the table's
+			// middle (where the window is met and missed).
+			for p := range offs {
+				w.panel[p] = w.panel[0]
+				offs[p] = mt.lo + (0.5+0.3*rng.NormFloat64())*mt.last*mt.step
+			}
+			r1.Seed(3, uint64(k))
+			r2.Seed(3, uint64(k))
+			if hot, gen := w.InSpec(k, offs, &r1), w.inSpecAt(k, offs, &r2); hot != gen {
+				t.Fatalf("site %d: InSpec %08b, inSpecAt %08b", k, hot, gen)
 			}
 			worstM = math.Max(worstM, math.Abs(m-wm))
 			if wv > 0 {
