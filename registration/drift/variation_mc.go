@@ -152,11 +152,16 @@ func (w *procCheckWorker) InSpec(i int, off float64, rng *rand.Rand) bool {
 		return w.inSpecSlow(i, off, rng)
 	}
 	m, v := w.at(ps, x)
+	var dev float64
 	if mt.site {
 		n := rng.NormFloat64()
 		if v > 0 {
-			m += math.Sqrt(v) * n
+			dev = math.Sqrt(v) * n
+			m += dev
 		}
+	}
+	if mt.second != nil {
+		m = w.second(mt, x, m, dev) // variation_quad_mc.go
 	}
 	return mt.domain.Contains(off) && math.Abs(m-mt.spec) <= mt.tol
 }
@@ -209,11 +214,16 @@ func (mt *mcTab) flat(sp *pcPanel, j int) {
 func (w *procCheckWorker) inSpecSlow(i int, off float64, rng *rand.Rand) bool {
 	mt := w.pc.sites[i].tab
 	m, v := w.slowAt(i, off)
+	var dev float64
 	if mt.site {
 		n := rng.NormFloat64()
 		if v > 0 {
-			m += math.Sqrt(v) * n
+			dev = math.Sqrt(v) * n
+			m += dev
 		}
+	}
+	if mt.ev.Proc.second != nil {
+		m = w.slowSecond(i, off, m, dev) // variation_quad_mc.go
 	}
 	sp := mt.ev.Curve.Section.Spec
 	return mt.ev.Proc.Domain.Contains(off) && math.Abs(m-sp.Coupling) <= sp.Tolerance
@@ -282,6 +292,9 @@ type mcTab struct {
 	site          bool // some bound term has a per-site part
 	domain        registration.Interval
 	spec, tol     float64
+	// second holds per interval the second-order term (fillSecond,
+	// variation_quad_mc.go); nil without one.
+	second []float64
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the
@@ -370,5 +383,6 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		k[2] = 9 * (d2/2 - d3/2)
 		k[3] = 27 * (d3 / 6)
 	}
+	mt.fillSecond() // variation_quad_mc.go
 	return mt
 }
