@@ -36,6 +36,15 @@ import (
 // uniform terms exact (registration.SiteProb: its density PDF, its
 // probability CDF).
 //
+// Second order. The evaluator adds to this a second-order term along the
+// direction of steepest change, fitted per section by direct solves
+// (variation_quad.go): m(δ) gains the shift e₀(δ), the linear part's
+// standard deviation is κ(δ)·√v(δ), and the coupling gains q(δ)·t², t the
+// standardised linear part; conditional on δ it is then m + √v·t + q·t²
+// (at), whose window probability windowQuad gives in closed form. Every
+// command reads it; a curve without the term (solved by SolveSection
+// alone, as some tests do) evaluates the first-order model below.
+//
 // In spec. A realisation is in spec when its coupling is inside the spec
 // window and its offset lies in the section's offset domain: the connected
 // interval about the design offset over which the curve stays inside the
@@ -47,7 +56,8 @@ import (
 // it in spec) still counts as out of spec, as before.
 //
 // P(in spec) = ∫ φ_δ(δ)·[Φ((hi − m)/√v) − Φ((lo − m)/√v)] dδ over the
-// domain, δ normal (its registration mean and standard deviation). The
+// domain (first order; windowQuad with the second-order term), δ normal
+// (its registration mean and standard deviation). The
 // integrand steps where m(δ) crosses a spec limit, with a width √v/|m'|
 // that is anything from the whole range to nothing; Gauss–Hermite nodes
 // spread over the line cannot sit on such a step, so the range mean ± 6σ
@@ -199,21 +209,36 @@ func (pr *Proc) secondAt(off float64) (e0, kappa, rho float64) {
 	if pr.second == nil {
 		return 0, 1, 0
 	}
-	i, f := pr.rowAt(off)
-	r0, r1 := pr.second[3*i:3*i+3], pr.second[3*min(i+1, pr.tabRows-1):]
-	return r0[0] + f*(r1[0]-r0[0]), r0[1] + f*(r1[1]-r0[1]), r0[2] + f*(r1[2]-r0[2])
+	return pr.secondRow(pr.rowAt(off))
 }
 
 // rows returns the two table rows about off and the weight of the second,
 // clamped to the table (the sensitivities are clamped to the curve's
 // range, as CouplingSensitivity's).
 func (pr *Proc) rows(off float64) (r0, r1 []float64, f float64) {
+	r0, r1, _, f = pr.rowsAt(off)
+	return r0, r1, f
+}
+
+// rowsAt is rows with the index of the first row.
+func (pr *Proc) rowsAt(off float64) (r0, r1 []float64, i int, f float64) {
 	nb := len(pr.Bind)
 	if pr.tabRows < 2 {
-		return pr.tab[:nb], pr.tab[:nb], 0
+		return pr.tab[:nb], pr.tab[:nb], 0, 0
 	}
-	i, f := pr.rowAt(off)
-	return pr.tab[i*nb : i*nb+nb], pr.tab[(i+1)*nb : (i+1)*nb+nb], f
+	i, f = pr.rowAt(off)
+	return pr.tab[i*nb : i*nb+nb], pr.tab[(i+1)*nb : (i+1)*nb+nb], i, f
+}
+
+// secondRow returns e₀, κ and ρ between table rows i and i + 1 at weight
+// f (rowsAt); 0, 1, 0 without a second-order term.
+func (pr *Proc) secondRow(i int, f float64) (e0, kappa, rho float64) {
+	if pr.second == nil {
+		return 0, 1, 0
+	}
+	j := min(i+1, pr.tabRows-1)
+	r0, r1 := pr.second[3*i:3*i+3], pr.second[3*j:3*j+3]
+	return r0[0] + f*(r1[0]-r0[0]), r0[1] + f*(r1[1]-r0[1]), r0[2] + f*(r1[2]-r0[2])
 }
 
 // rowAt returns the index of the table row at or below off and the weight
@@ -291,7 +316,7 @@ func (e *Evaluator) termSens(b int, off float64) float64 {
 // (variation_quad.go), of mean m + q and variance v + 2q².
 func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	m = e.Curve.Coupling(off)
-	r0, r1, f := e.Proc.rows(off)
+	r0, r1, i, f := e.Proc.rowsAt(off)
 	mus, va := r.means(), r.vars()
 	r0, r1, va = r0[:len(mus)], r1[:len(mus)], va[:len(mus)]
 	for b, mu := range mus {
@@ -299,7 +324,10 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 		m += s * mu
 		v += s * s * va[b]
 	}
-	e0, kappa, rho := e.Proc.secondAt(off)
+	if e.Proc.second == nil {
+		return m, v, 0
+	}
+	e0, kappa, rho := e.Proc.secondRow(i, f)
 	return m + e0, kappa * kappa * v, rho * v
 }
 
@@ -312,14 +340,17 @@ func (e *Evaluator) meanCoupling(off float64, r *procRow) float64 {
 // mean returns m(δ) only: the coupling at the site's mean parameters.
 func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	m := e.Curve.Coupling(off)
-	r0, r1, f := e.Proc.rows(off)
+	r0, r1, i, f := e.Proc.rowsAt(off)
 	mus := r.means()
 	r0, r1 = r0[:len(mus)], r1[:len(mus)]
 	for b, mu := range mus {
 		m += (r0[b] + f*(r1[b]-r0[b])) * mu
 	}
-	e0, _, _ := e.Proc.secondAt(off)
-	return m + e0
+	if sec := e.Proc.second; sec != nil {
+		j := min(i+1, e.Proc.tabRows-1)
+		m += sec[3*i] + f*(sec[3*j]-sec[3*i])
+	}
+	return m
 }
 
 // window returns P(lo ≤ coupling ≤ hi) for a normal coupling of mean m and
