@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"runtime"
+	"sync"
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
@@ -196,8 +198,10 @@ func fitSecond(ctx context.Context, set *Settings, m *process.Model, c *Curve, p
 	}
 	plain.Sensitivities = false
 	e := Evaluator{Curve: c, Proc: pr}
-	so := &SecondOrder{}
-	dp := make([]float64, nb)
+	// Per node its offset, |a|, Σ sᵢμ̄ᵢ and the parameters of its three
+	// solves; the solves (independent, one offset each) run in parallel.
+	offs, norms, lins := make([]float64, n), make([]float64, n), make([]float64, n)
+	dps := make([][3][]float64, n)
 	for k := range n {
 		off := lo
 		if n > 1 {
@@ -212,34 +216,95 @@ func fitSecond(ctx context.Context, set *Settings, m *process.Model, c *Curve, p
 			lin += s * base[b]
 		}
 		na = math.Sqrt(na)
-		var cs [3]float64
+		offs[k], norms[k], lins[k] = off, na, lin
 		for j, t := range [3]float64{-secondT, 0, secondT} {
+			if t != 0 && na == 0 {
+				continue // no direction: the centre solve only
+			}
+			dp := make([]float64, nb)
 			for b := range dp {
 				dp[b] = base[b]
 				if na > 0 {
 					dp[b] += t * sigma[b] * a[b] / na
 				}
 			}
-			if t != 0 && na == 0 {
-				continue
-			}
-			v, err := directAt(ctx, c, pr.Bind, dp, off, &plain)
-			if err != nil {
-				return nil, fmt.Errorf("offset %.4g mil, %+g sigma along the steepest direction: %w", off/unit.Mil, t, err)
-			}
-			cs[j] = v
+			dps[k][j] = dp
 		}
+	}
+	cs, err := solveNodes(ctx, c, pr.Bind, offs, dps, &plain)
+	if err != nil {
+		return nil, err
+	}
+	so := &SecondOrder{}
+	for k, off := range offs {
+		na, lin := norms[k], lins[k]
 		kappa, rho := 1.0, 0.0
 		if na > 0 {
-			kappa = (cs[2] - cs[0]) / (2 * secondT) / na
-			rho = (cs[2] + cs[0] - 2*cs[1]) / (2 * secondT * secondT) / (na * na)
+			kappa = (cs[k][2] - cs[k][0]) / (2 * secondT) / na
+			rho = (cs[k][2] + cs[k][0] - 2*cs[k][1]) / (2 * secondT * secondT) / (na * na)
 		}
 		so.Offsets = append(so.Offsets, off)
-		so.Shift = append(so.Shift, cs[1]-(c.Coupling(off)+lin))
+		so.Shift = append(so.Shift, cs[k][1]-(c.Coupling(off)+lin))
 		so.Slope = append(so.Slope, kappa)
 		so.Curv = append(so.Curv, rho)
 	}
 	return so, nil
+}
+
+// solveNodes solves, for every node k and excursion j with dps[k][j] set,
+// the section of c moved by dps[k][j] at offs[k] (directAt), on up to
+// set.Workers (default one per CPU) goroutines; the first error in node
+// order is returned.
+func solveNodes(ctx context.Context, c *Curve, bind []process.Binding, offs []float64, dps [][3][]float64, set *Settings) ([][3]float64, error) {
+	type job struct{ k, j int }
+	var jobs []job
+	for k := range dps {
+		for j, dp := range dps[k] {
+			if dp != nil {
+				jobs = append(jobs, job{k, j})
+			}
+		}
+	}
+	cs := make([][3]float64, len(dps))
+	errs := make([]error, len(jobs))
+	one := *set
+	one.Workers = 1
+	if w := set.CacheWarning; w != nil {
+		var mu sync.Mutex
+		one.CacheWarning = func(err error) { mu.Lock(); defer mu.Unlock(); w(err) }
+	}
+	workers := set.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for range min(workers, len(jobs)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				jb := jobs[i]
+				v, err := directAt(ctx, c, bind, dps[jb.k][jb.j], offs[jb.k], &one)
+				if err != nil {
+					errs[i] = fmt.Errorf("offset %.4g mil, %+g sigma along the steepest direction: %w", offs[jb.k]/unit.Mil, float64(jb.j-1)*secondT, err)
+					continue
+				}
+				cs[jb.k][jb.j] = v
+			}
+		}()
+	}
+	for i := range jobs {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return nil, err
+		}
+	}
+	return cs, nil
 }
 
 // directAt solves the section of c with binding b's parameters moved by
