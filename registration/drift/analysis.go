@@ -115,7 +115,8 @@ func Reach(as ...*Analysis) []float64 {
 }
 
 // SolveCurves solves every section that a site of any of the analyses uses,
-// over Reach(as...), and returns the curves per section (nil where unused).
+// over Reach(as...), and returns the curves per section (nil where unused),
+// with process terms fitted with their second-order term (FitSecondOrder).
 func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve, error) {
 	reach := Reach(as...)
 	secs := as[0].In.Sections
@@ -133,6 +134,9 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 			return nil, err
 		}
 		curves[i] = c
+	}
+	if err := FitSecondOrder(ctx, set, curves, as...); err != nil {
+		return nil, err
 	}
 	return curves, nil
 }

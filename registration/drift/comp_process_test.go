@@ -71,9 +71,9 @@ func TestCompensateWithProcess(t *testing.T) {
 		eb.Proc.row(&rb, p)
 		ea.Proc.row(&ra, p)
 		for _, off := range []float64{cw.Before.Sites[k].Offset, cw.After.Sites[k].Offset} {
-			mb, vb := eb.at(off, &rb)
-			ma, va := ea.at(off, &ra)
-			if mb != ma || vb != va {
+			mb, vb, qb := eb.at(off, &rb)
+			ma, va, qa := ea.at(off, &ra)
+			if mb != ma || vb != va || qb != qa {
 				t.Errorf("site %d at offset %.3f mil: process coupling %.6f ± %.6f before, %.6f ± %.6f after", k, off/mil, mb, vb, ma, va)
 			}
 		}

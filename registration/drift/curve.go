@@ -68,6 +68,10 @@ type Curve struct {
 	// Retuned is the allowed interval against the spec window re-centred on
 	// Nominal (the window a design tuned to its own coupling would have).
 	Retuned registration.Interval
+	// Second is the second-order term of the process model fitted for the
+	// sites that use the curve (FitSecondOrder, variation_quad.go); nil
+	// without process terms.
+	Second *SecondOrder
 }
 
 // Coupling returns the coupling in dB at the across offset off (design

@@ -30,8 +30,10 @@
 // for the per-pixel fields of the figures. With process variation terms
 // (Input.Process, package registration/process) the same evaluator adds
 // Σ sᵢ(δ)·Δpᵢ to the curve, first order in the terms and exact in the
-// offset, and P(in spec) integrates the offset (variation.go); without them
-// every number is the registration-only one.
+// offset, with a second-order term along the direction of steepest change
+// fitted by direct solves (variation_quad.go), and P(in spec) integrates
+// the offset (variation.go); without them every number is the
+// registration-only one.
 //
 // In spec. A site is in spec when its mean across offset lies in the allowed
 // interval: the connected interval of offsets about the design offset over

@@ -39,6 +39,9 @@ type Eval struct {
 	// DriftProcess (indexed as process.Model.Terms; 0 for a term that moves
 	// nothing of the section); nil without them.
 	TermDrifts []float64
+	// DriftSecondOrder is the part of DriftProcess beyond the terms' sum:
+	// the second-order term's shift and curvature (variation_quad.go), dB.
+	DriftSecondOrder float64
 }
 
 // Evaluator evaluates sites of one kind: a section's curve and the relative

@@ -347,6 +347,9 @@ func Tol(ctx context.Context, in *Input, study TolStudy, set *Settings) (*TolSum
 			complete = false
 		}
 	}
+	if err := FitSecondOrder(ctx, set, curves, a); err != nil {
+		return nil, err
+	}
 	if complete {
 		a.Evaluate(curves)
 		res.Orientation = a.Orientation()

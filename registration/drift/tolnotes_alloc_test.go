@@ -106,6 +106,14 @@ func TestAllocateDeterministicAlone(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// The reference is the first-order model's exact normal; the
+	// second-order term (tested in variation_quad_test.go, its scaling in
+	// TestSecondOrderScaled) is taken out so that the rule alone is tested.
+	for _, c := range curves {
+		if c != nil {
+			c.Second = nil
+		}
+	}
 	al := Allocate(in, curves, DefaultTarget)
 	if !al.Feasible {
 		t.Fatalf("no allocation: %s", al.Reason)
@@ -221,5 +229,37 @@ func TestAllocateDesignOutOfSpec(t *testing.T) {
 	}
 	if al := Allocate(in, curves, DefaultTarget); al.Feasible || al.Reason == "" {
 		t.Errorf("allocation %+v", al)
+	}
+}
+
+// TestSecondOrderScaled: for a coupling exactly quadratic in one
+// parameter, f(Δp) = s·Δp + ½·h·Δp², the second-order term fitted by the
+// package's definitions (variation_quad.go: the parabola through t = −3, 0,
+// +3 about the mean μ, e₀ = C₀ − s·μ, κ = b/|a|, ρ = q/|a|², |a| = |s|·σ)
+// at k·μ and k·σ equals the term fitted at μ and σ scaled by
+// SecondOrder.Scaled(k), to rounding. The quadratic and its numbers are
+// invented for the test; the parabola through three points is Newton's
+// divided differences (Abramowitz & Stegun 25.2.4).
+func TestSecondOrderScaled(t *testing.T) {
+	const s, h = -0.8, 0.35 // dB per unit, dB per unit²
+	f := func(dp float64) float64 { return s*dp + h*dp*dp/2 }
+	fit := func(mu, sigma float64) *SecondOrder {
+		u := math.Copysign(1, s*sigma)
+		cm, c0, cp := f(mu-secondT*sigma*u), f(mu), f(mu+secondT*sigma*u)
+		a := math.Abs(s) * sigma
+		b, q := (cp-cm)/(2*secondT), (cp+cm-2*c0)/(2*secondT*secondT)
+		return &SecondOrder{Offsets: []float64{0}, Shift: []float64{c0 - s*mu}, Slope: []float64{b / a}, Curv: []float64{q / (a * a)}}
+	}
+	for _, c := range []struct{ mu, sigma, k float64 }{{0.4, 0.1, 0.3}, {-0.7, 0.25, 2.5}, {1.2, 0.05, 1}} {
+		got, want := fit(c.mu, c.sigma).Scaled(c.k), fit(c.k*c.mu, c.k*c.sigma)
+		const tol = 1e-12 // rounding of a few products of numbers near 1
+		for _, v := range []struct {
+			name string
+			g, w float64
+		}{{"e0", got.Shift[0], want.Shift[0]}, {"kappa", got.Slope[0], want.Slope[0]}, {"rho", got.Curv[0], want.Curv[0]}} {
+			if math.Abs(v.g-v.w) > tol {
+				t.Errorf("μ %g σ %g k %g: %s scaled %.15g, fitted at the scaled model %.15g", c.mu, c.sigma, c.k, v.name, v.g, v.w)
+			}
+		}
 	}
 }

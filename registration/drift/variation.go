@@ -36,6 +36,15 @@ import (
 // uniform terms exact (registration.SiteProb: its density PDF, its
 // probability CDF).
 //
+// Second order. The evaluator adds to this a second-order term along the
+// direction of steepest change, fitted per section by direct solves
+// (variation_quad.go): m(δ) gains the shift e₀(δ), the linear part's
+// standard deviation is κ(δ)·√v(δ), and the coupling gains q(δ)·t², t the
+// standardised linear part; conditional on δ it is then m + √v·t + q·t²
+// (at), whose window probability windowQuad gives in closed form. Every
+// command reads it; a curve without the term (solved by SolveSection
+// alone, as some tests do) evaluates the first-order model below.
+//
 // In spec. A realisation is in spec when its coupling is inside the spec
 // window and its offset lies in the section's offset domain: the connected
 // interval about the design offset over which the curve stays inside the
@@ -47,7 +56,8 @@ import (
 // it in spec) still counts as out of spec, as before.
 //
 // P(in spec) = ∫ φ_δ(δ)·[Φ((hi − m)/√v) − Φ((lo − m)/√v)] dδ over the
-// domain, δ normal (its registration mean and standard deviation). The
+// domain (first order; windowQuad with the second-order term), δ normal
+// (its registration mean and standard deviation). The
 // integrand steps where m(δ) crosses a spec limit, with a width √v/|m'|
 // that is anything from the whole range to nothing; Gauss–Hermite nodes
 // spread over the line cannot sit on such a step, so the range mean ± 6σ
@@ -146,6 +156,10 @@ type Proc struct {
 	tab            []float64
 	tabLo, tabStep float64
 	tabRows        int
+	// second holds per table row e₀, κ and ρ of the curve's second-order
+	// term (variation_quad.go); nil for a curve without one, which
+	// evaluates first order (e₀ = 0, κ = 1, ρ = 0).
+	second []float64
 }
 
 // procTabPerSpan is the number of table intervals per interval of the
@@ -177,15 +191,63 @@ func (pr *Proc) tabulate(c *Curve) {
 			pr.tab[i*nb+b] = v
 		}
 	}
+	if so := c.Second; so != nil {
+		pr.second = make([]float64, 3*(n+1))
+		for i := 0; i <= n; i++ {
+			off := lo + float64(i)*pr.tabStep
+			if i == n {
+				off = hi
+			}
+			pr.second[3*i], pr.second[3*i+1], pr.second[3*i+2] = so.at(off)
+		}
+	}
+}
+
+// secondAt returns e₀, κ and ρ at offset off from the table (rows' index
+// and weight); 0, 1, 0 without a second-order term.
+func (pr *Proc) secondAt(off float64) (e0, kappa, rho float64) {
+	if pr.second == nil {
+		return 0, 1, 0
+	}
+	return pr.secondRow(pr.rowAt(off))
 }
 
 // rows returns the two table rows about off and the weight of the second,
 // clamped to the table (the sensitivities are clamped to the curve's
 // range, as CouplingSensitivity's).
 func (pr *Proc) rows(off float64) (r0, r1 []float64, f float64) {
+	r0, r1, _, f = pr.rowsAt(off)
+	return r0, r1, f
+}
+
+// rowsAt is rows with the index of the first row.
+func (pr *Proc) rowsAt(off float64) (r0, r1 []float64, i int, f float64) {
 	nb := len(pr.Bind)
+	if pr.tabRows < 2 {
+		return pr.tab[:nb], pr.tab[:nb], 0, 0
+	}
+	i, f = pr.rowAt(off)
+	return pr.tab[i*nb : i*nb+nb], pr.tab[(i+1)*nb : (i+1)*nb+nb], i, f
+}
+
+// secondRow returns e₀, κ and ρ between table rows i and i + 1 at weight
+// f (rowsAt); 0, 1, 0 without a second-order term.
+func (pr *Proc) secondRow(i int, f float64) (e0, kappa, rho float64) {
+	if pr.second == nil {
+		return 0, 1, 0
+	}
+	j := min(i+1, pr.tabRows-1)
+	r0, r1 := pr.second[3*i:3*i+3], pr.second[3*j:3*j+3]
+	return r0[0] + f*(r1[0]-r0[0]), r0[1] + f*(r1[1]-r0[1]), r0[2] + f*(r1[2]-r0[2])
+}
+
+// rowAt returns the index of the table row at or below off and the weight
+// of the next, clamped to the table.
+func (pr *Proc) rowAt(off float64) (i int, f float64) {
+	if pr.tabRows < 2 {
+		return 0, 0
+	}
 	x := (off - pr.tabLo) / pr.tabStep
-	i := 0
 	switch {
 	case !(x > 0):
 	case x >= float64(pr.tabRows-1):
@@ -194,10 +256,7 @@ func (pr *Proc) rows(off float64) (r0, r1 []float64, f float64) {
 		i = int(x)
 		f = x - float64(i)
 	}
-	if pr.tabRows < 2 {
-		return pr.tab[:nb], pr.tab[:nb], 0
-	}
-	return pr.tab[i*nb : i*nb+nb], pr.tab[(i+1)*nb : (i+1)*nb+nb], f
+	return i, f
 }
 
 // maxStackTerms is the number of bound terms a site is evaluated with on
@@ -250,11 +309,14 @@ func (e *Evaluator) termSens(b int, off float64) float64 {
 	return r0[b] + f*(r1[b]-r0[b])
 }
 
-// at returns the mean m(δ) and variance v(δ) of the coupling at offset off
-// for process row r.
-func (e *Evaluator) at(off float64, r *procRow) (m, v float64) {
+// at returns, at offset off for process row r, the coupling at the site's
+// mean parameters m(δ) = c + Σ sᵢμᵢ + e₀, the variance v = κ²·Σ sᵢ²σᵢ²
+// of its linear part s·t and its curvature q = ρ·Σ sᵢ²σᵢ²: conditional
+// on δ the coupling is m + √v·t + q·t², t standard normal
+// (variation_quad.go), of mean m + q and variance v + 2q².
+func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	m = e.Curve.Coupling(off)
-	r0, r1, f := e.Proc.rows(off)
+	r0, r1, i, f := e.Proc.rowsAt(off)
 	mus, va := r.means(), r.vars()
 	r0, r1, va = r0[:len(mus)], r1[:len(mus)], va[:len(mus)]
 	for b, mu := range mus {
@@ -262,17 +324,31 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v float64) {
 		m += s * mu
 		v += s * s * va[b]
 	}
-	return m, v
+	if e.Proc.second == nil {
+		return m, v, 0
+	}
+	e0, kappa, rho := e.Proc.secondRow(i, f)
+	return m + e0, kappa * kappa * v, rho * v
 }
 
-// mean returns m(δ) only.
+// meanCoupling returns the conditional mean m(δ) + q(δ) of the coupling.
+func (e *Evaluator) meanCoupling(off float64, r *procRow) float64 {
+	m, _, q := e.at(off, r)
+	return m + q
+}
+
+// mean returns m(δ) only: the coupling at the site's mean parameters.
 func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	m := e.Curve.Coupling(off)
-	r0, r1, f := e.Proc.rows(off)
+	r0, r1, i, f := e.Proc.rowsAt(off)
 	mus := r.means()
 	r0, r1 = r0[:len(mus)], r1[:len(mus)]
 	for b, mu := range mus {
 		m += (r0[b] + f*(r1[b]-r0[b])) * mu
+	}
+	if sec := e.Proc.second; sec != nil {
+		j := min(i+1, e.Proc.tabRows-1)
+		m += sec[3*i] + f*(sec[3*j]-sec[3*i])
 	}
 	return m
 }
@@ -305,8 +381,8 @@ const windowFar = 8.3
 
 // windowAt returns the window probability at offset off.
 func (e *Evaluator) windowAt(off float64, pr *procRow, lo, hi float64) float64 {
-	m, v := e.at(off, pr)
-	return window(m, v, lo, hi)
+	m, v, q := e.at(off, pr)
+	return windowQuad(m, math.Sqrt(v), q, lo, hi)
 }
 
 // procSure is how close to 1 (or 0) the window probability must be at both
@@ -325,37 +401,42 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	c := e.Curve
 	sp := c.Section.Spec
 	sd := r.Stats.SDAcross
-	m, v := e.at(r.Offset, pr)
+	m0, v, q := e.at(r.Offset, pr)
+	m := m0 + q // the mean coupling
 	creg := c.Coupling(r.Offset)
 	r.Coupling = m
 	r.Drift = m - c.Nominal
 	r.DriftRegistration = creg - c.Nominal
 	r.DriftProcess = m - creg
-	r.ProcessSD = math.Sqrt(v)
+	r.ProcessSD = math.Sqrt(v + 2*q*q)
 	r.TermDrifts = make([]float64, len(e.Proc.Model.Terms))
+	var sum float64
 	for b, bd := range e.Proc.Bind {
 		r.TermDrifts[bd.Term] = e.termSens(b, r.Offset) * pr.means()[b]
+		sum += r.TermDrifts[bd.Term]
 	}
+	r.DriftSecondOrder = r.DriftProcess - sum
 	r.InSpec = e.Proc.Domain.Contains(r.Offset) && math.Abs(m-sp.Coupling) <= sp.Tolerance
 	r.Margin = sp.Tolerance - math.Abs(m-sp.Coupling)
 	if !r.InSpec {
 		r.Margin = -math.Abs(r.Margin)
 	}
-	r.CouplingLo = e.mean(r.Offset-3*sd, pr)
-	r.CouplingHi = e.mean(r.Offset+3*sd, pr)
+	r.CouplingLo = e.meanCoupling(r.Offset-3*sd, pr)
+	r.CouplingHi = e.meanCoupling(r.Offset+3*sd, pr)
 	r.WorstDrift = e.worstDriftProc(r.Offset, sd, pr)
 	r.PInSpec = e.pInSpecProc(e.Rel.Prob(&r.Row, c.Section.NominalOffset()), pr)
 }
 
 // worstDriftProc is worstDrift with the process terms: the largest
-// |m(δ) ± 3√v(δ) − nominal| over the offsets within mean ± 3σ.
+// |m(δ) + √v(δ)·t + q(δ)·t² − nominal| over |t| ≤ 3 and the offsets
+// within mean ± 3σ.
 func (e *Evaluator) worstDriftProc(mean, sd float64, pr *procRow) float64 {
 	lo, hi := mean-3*sd, mean+3*sd
 	worst := 0.0
 	for k := 0; k <= worstDriftSamples; k++ {
-		m, v := e.at(lo+(hi-lo)*float64(k)/worstDriftSamples, pr)
-		s := 3 * math.Sqrt(v)
-		for _, d := range [2]float64{m - s - e.Curve.Nominal, m + s - e.Curve.Nominal} {
+		m, v, q := e.at(lo+(hi-lo)*float64(k)/worstDriftSamples, pr)
+		cl, ch := quadExtremes(m, math.Sqrt(v), q, 3)
+		for _, d := range [2]float64{cl - e.Curve.Nominal, ch - e.Curve.Nominal} {
 			if math.Abs(d) > math.Abs(worst) {
 				worst = d
 			}
@@ -377,8 +458,7 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 		if !dom.Contains(mu) {
 			return 0
 		}
-		m, v := e.at(mu, pr)
-		return window(m, v, lo, hi)
+		return e.windowAt(mu, pr, lo, hi)
 	}
 	reach := procRangeSigmas*sd + boxes
 	a, b := math.Max(mu-reach, dom.Lo), math.Min(mu+reach, dom.Hi)
@@ -416,8 +496,11 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 				return gl
 			})
 			add(xc)
-			// The window steps over a width √v/|m'| about xc.
-			_, v := e.at(xc, pr)
+			// The window steps over a width √(v + 2q²)/|m'| about xc
+			// (the conditional standard deviation; the step's centre
+			// is within |q|/|m'| of xc).
+			_, v, q := e.at(xc, pr)
+			v += 2 * q * q
 			slope := math.Abs(pair[1]-pair[0]) / (x1 - x0)
 			if w := math.Sqrt(v) / slope; w > 0 && slope > 0 {
 				for _, f := range procGrade {
@@ -511,15 +594,12 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 	nom := c.Section.NominalOffset()
 	var reach float64
 	var row procRow
+	cn := c.Coupling(nom)
 	for _, p := range positions {
 		pr.row(&row, p)
-		var shift, v float64
-		for b := range bind {
-			s := e.termSens(b, nom)
-			shift += s * row.means()[b]
-			v += s * s * row.vars()[b]
-		}
-		reach = math.Max(reach, math.Abs(shift)+procSigmas*math.Sqrt(v))
+		m, v, q := e.at(nom, &row)
+		xl, xh := quadExtremes(m-cn, math.Sqrt(v), q, procSigmas)
+		reach = math.Max(reach, math.Max(math.Abs(xl), math.Abs(xh)))
 	}
 	sp := c.Section.Spec
 	lo, hi := c.Curve.Range()
@@ -565,16 +645,16 @@ func (e *Evaluator) valueProc(q Quantity, row *registration.Row, st registration
 	case PInSpec:
 		return e.pInSpecProc(e.Rel.Prob(row, c.Section.NominalOffset()), &pr)
 	case ProcessDrift:
-		return e.mean(off, &pr) - c.Coupling(off)
+		return e.meanCoupling(off, &pr) - c.Coupling(off)
 	case Margin:
 		sp := c.Section.Spec
-		m := sp.Tolerance - math.Abs(e.mean(off, &pr)-sp.Coupling)
+		m := sp.Tolerance - math.Abs(e.meanCoupling(off, &pr)-sp.Coupling)
 		if !e.Proc.Domain.Contains(off) || m < 0 {
 			return -math.Abs(m)
 		}
 		return m
 	}
-	return e.mean(off, &pr) - c.Nominal
+	return e.meanCoupling(off, &pr) - c.Nominal
 }
 
 // bindProcess binds the input's process terms to every used section's
@@ -619,6 +699,9 @@ type DriftSources struct {
 	// Terms is each process term's part of VariationDB, by name, in the
 	// order of the job.
 	Terms []TermDriftDB `json:"terms"`
+	// SecondOrderDB is the rest of VariationDB: the second-order term's
+	// (variation_quad.go).
+	SecondOrderDB float64 `json:"second_order_db"`
 }
 
 // TermDriftDB is one process term's drift at a site.
@@ -633,7 +716,7 @@ func (a *Analysis) splitWorst(w *WorstSite, r *Site) {
 	if a.In.Process.Empty() {
 		return
 	}
-	ds := &DriftSources{RegistrationDB: r.DriftRegistration, VariationDB: r.DriftProcess, VariationSDDB: r.ProcessSD}
+	ds := &DriftSources{RegistrationDB: r.DriftRegistration, VariationDB: r.DriftProcess, VariationSDDB: r.ProcessSD, SecondOrderDB: r.DriftSecondOrder}
 	for i, t := range a.In.Process.Terms {
 		ds.Terms = append(ds.Terms, TermDriftDB{Name: t.Name, DriftDB: r.Value(TermDrift(i))})
 	}

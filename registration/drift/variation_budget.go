@@ -12,12 +12,15 @@ import (
 
 // The coupling budget: with process terms, coupling (not offset) is the
 // common currency of registration and process terms. By the law of total
-// variance, conditional on the offset δ the coupling is normal with mean
-// m(δ) and variance v(δ) = Σ sᵢ(δ)²·σᵢ² (variation.go), so
+// variance, conditional on the offset δ the coupling m + s·t + q·t²
+// (variation_quad.go) has mean M(δ) = m(δ) + q(δ) and variance
+// V(δ) = s² + 2q² = v₁·(κ² + 2ρ²·v₁), v₁ = Σ sᵢ(δ)²·σᵢ², so
 //
-//	Var C = Var_δ m(δ) + Σᵢ σᵢ²·E_δ[sᵢ(δ)²],
+//	Var C = Var_δ M(δ) + Σᵢ σᵢ²·E_δ[sᵢ(δ)²·(κ² + 2ρ²·v₁)],
 //
-// the first part registration's, each term of the sum one process term's.
+// the first part registration's, each term of the sum one process term's:
+// the second-order term's part of V is shared among the terms in
+// proportion to their shares of v₁, the direction it lies along.
 // Both expectations are over δ's normal distribution, with smooth
 // integrands, which Gauss–Hermite quadrature integrates (gonum
 // integrate/quad.Hermite). Registration's part is shared among its
@@ -75,16 +78,27 @@ func (a *Analysis) couplingParts(k int, ev *Evaluator, terms []float64) float64 
 	}
 	mAt := func(x float64) float64 {
 		if ev.hasProc() {
-			return ev.mean(x, &pr)
+			return ev.meanCoupling(x, &pr)
 		}
 		return ev.Curve.Coupling(x)
 	}
+	// addTerms adds weight w times each term's part of V at x.
+	addTerms := func(w, x float64) {
+		_, kappa, rho := ev.Proc.secondAt(x)
+		var v1 float64
+		for b := range ev.Proc.Bind {
+			s := ev.termSens(b, x)
+			v1 += s * s * pr.vars()[b]
+		}
+		f := kappa*kappa + 2*rho*rho*v1
+		for b, bd := range ev.Proc.Bind {
+			s := ev.termSens(b, x)
+			terms[bd.Term] += w * s * s * pr.vars()[b] * f
+		}
+	}
 	if sd == 0 {
 		if ev.hasProc() {
-			for b, bd := range ev.Proc.Bind {
-				s := ev.termSens(b, mu)
-				terms[bd.Term] += s * s * pr.vars()[b]
-			}
+			addTerms(1, mu)
 		}
 		return 0
 	}
@@ -96,10 +110,7 @@ func (a *Analysis) couplingParts(k int, ev *Evaluator, terms []float64) float64 
 		ms[j] = mAt(x)
 		mean += ws[j] * ms[j]
 		if ev.hasProc() {
-			for b, bd := range ev.Proc.Bind {
-				s := ev.termSens(b, x)
-				terms[bd.Term] += ws[j] * s * s * pr.vars()[b]
-			}
+			addTerms(ws[j], x)
 		}
 	}
 	var reg float64

@@ -196,7 +196,12 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 		}
 		rw, f := &rows[j], x-float64(j)
 		c, v := rw.curve(f)
-		if mt.inSpec(c, kf.at(f)+rw.sh.at(ph, f), v, nrm[p]) {
+		flat := kf.at(f)
+		if mt.second == nil {
+			if mt.inSpec(c, flat+rw.sh.at(ph, f), v, nrm[p]) {
+				in |= 1 << p
+			}
+		} else if mt.inSpecSecond(j, f, c, flat+rw.sh.at(ph, f), flat, v, nrm[p]) { // variation_quad_mc.go
 			in |= 1 << p
 		}
 	}
@@ -216,7 +221,14 @@ func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream)
 		var ok bool
 		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
 			c, lin, v := w.at(p, ps, x)
-			ok = mt.inSpec(c, lin, v, nrm[p])
+			if mt.second == nil {
+				ok = mt.inSpec(c, lin, v, nrm[p])
+			} else {
+				j := min(int(x), mt.n-1)
+				f := x - float64(j)
+				flat := w.sec[mt.section].flat[j*registration.MCGroup+p].at(f) // filled by at
+				ok = mt.inSpecSecond(j, f, c, lin, flat, v, nrm[p])
+			}
 		} else {
 			ok = w.inSpecSlow(p, i, o, nrm[p])
 		}
@@ -323,8 +335,12 @@ func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
 // on the panel of slot p at an offset in the domain but outside the
 // table, with n its normal draw as in InSpec.
 func (w *procCheckWorker) inSpecSlow(p, i int, off, n float64) bool {
+	mt := w.pc.sites[i].tab
 	c, lin, v := w.slowAt(p, i, off)
-	return w.pc.sites[i].tab.inSpec(c, lin, v, n)
+	if mt.ev.Proc.second == nil {
+		return mt.inSpec(c, lin, v, n)
+	}
+	return w.inSpecSlowSecond(p, i, off, c, lin, v, n) // variation_quad_mc.go
 }
 
 // slowAt is at for site i on the panel of slot p at offset off from the
@@ -411,6 +427,9 @@ type mcTab struct {
 	covers    bool
 	domain    registration.Interval
 	spec, tol float64
+	// second holds per interval the second-order term (fillSecond,
+	// variation_quad_mc.go); nil without one.
+	second []float64
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the
@@ -507,5 +526,6 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		k[2] = 9 * (d2/2 - d3/2)
 		k[3] = 27 * (d3 / 6)
 	}
+	mt.fillSecond() // variation_quad_mc.go
 	return mt
 }
