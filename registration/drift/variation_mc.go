@@ -429,7 +429,7 @@ type mcTab struct {
 	spec, tol float64
 	// second holds per interval the second-order term (fillSecond,
 	// variation_quad_mc.go); nil without one.
-	second []float64
+	second []mcSecond
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the

@@ -12,6 +12,10 @@ import "math"
 // part of the panel means, Σ sᵦ·Mᵦ and Σ dsᵦ·Mᵦ.
 const secondStride = 8
 
+// mcSecond is one interval's second-order values (secondStride of them),
+// a fixed array so that the hot loop reads it with one bounds check.
+type mcSecond [secondStride]float64
+
 // fillSecond fills mt.second from the evaluator's table (same intervals).
 func (mt *mcTab) fillSecond() {
 	pr := mt.ev.Proc
@@ -19,9 +23,9 @@ func (mt *mcTab) fillSecond() {
 		return
 	}
 	nb := mt.nb
-	mt.second = make([]float64, mt.n*secondStride)
+	mt.second = make([]mcSecond, mt.n)
 	for j := range mt.n {
-		q := mt.second[j*secondStride : (j+1)*secondStride]
+		q := &mt.second[j]
 		r0, r1 := pr.second[3*j:3*j+3], pr.second[3*(j+1):3*(j+1)+3]
 		for k := range 3 {
 			q[2*k], q[2*k+1] = r0[k], r1[k]-r0[k]
@@ -45,7 +49,7 @@ func (mt *mcTab) inSpecSecond(j int, f, c, lin, flat, v, n float64) bool {
 	if v > 0 {
 		dev = math.Sqrt(v) * n
 	}
-	q := mt.second[j*secondStride : (j+1)*secondStride]
+	q := &mt.second[j]
 	l := dev + flat - (q[6] + f*q[7])
 	m := c + lin + dev + q[0] + f*q[1] + (q[2]+f*q[3]-1)*l + (q[4]+f*q[5])*l*l
 	return math.Abs(m-mt.spec) <= mt.tol
