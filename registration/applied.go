@@ -4,7 +4,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 	"math"
+	"slices"
 	"strings"
 
 	"github.com/regdrift/regdrift/panel/unit"
@@ -63,6 +65,9 @@ func RelativeScale(upper, lower float64) float64 {
 
 // AppliedSet is the compensation of every layer of a lot, by layer name.
 type AppliedSet map[string]Applied
+
+// Layers returns the layers s names, sorted.
+func (s AppliedSet) Layers() []string { return slices.Sorted(maps.Keys(s)) }
 
 // For returns the applied artwork scale of a measured layer, which may be a
 // relative pair "L3-L4"; a layer the set does not name was built at CAD

@@ -772,6 +772,20 @@ func LotStats(fits []Fit) []Lot {
 	return lots
 }
 
+// MeasuredLayers returns the layers the lots measure, both of a relative
+// pair ("L3-L4").
+func MeasuredLayers(lots []Lot) map[string]bool {
+	measured := map[string]bool{}
+	for _, l := range lots {
+		u, lo, rel := SplitLayer(l.Layer)
+		measured[u] = true
+		if rel {
+			measured[lo] = true
+		}
+	}
+	return measured
+}
+
 // Contributor returns the lot as a contributor naming its layer: normal terms
 // with the lot means and standard deviations. A relative lot ("L3-L4") names
 // its first layer only, so that it moves the pair by the measured amount.

@@ -323,19 +323,8 @@ func withApplied(j *Job, model *registration.Model, lots []registration.Lot, app
 			copper[l.Name] = true
 		}
 	}
-	measured := map[string]bool{}
-	for _, l := range lots {
-		u, lo, rel := registration.SplitLayer(l.Layer)
-		measured[u] = true
-		if rel {
-			measured[lo] = true
-		}
-	}
-	names := make([]string, 0, len(applied))
-	for l := range applied {
-		names = append(names, l)
-	}
-	slices.Sort(names)
+	measured := registration.MeasuredLayers(lots)
+	names := applied.Layers()
 	out := &registration.Model{Datum: model.Datum, Contributors: slices.Clone(model.Contributors)}
 	var notes []string
 	for _, l := range names {

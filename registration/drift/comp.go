@@ -23,14 +23,7 @@ import (
 // changed.
 func MeasuredModel(m *registration.Model, fits []registration.Fit, lots []registration.Lot, file string, keep bool) (*registration.Model, []string) {
 	out := &registration.Model{Datum: m.Datum}
-	measured := map[string]bool{}
-	for _, l := range lots {
-		u, lo, rel := registration.SplitLayer(l.Layer)
-		measured[u] = true
-		if rel {
-			measured[lo] = true
-		}
-	}
+	measured := registration.MeasuredLayers(lots)
 	var notes []string
 	for _, c := range m.Contributors {
 		c.Layers = slices.Clone(c.Layers)

@@ -363,21 +363,23 @@ func window(m, v, lo, hi float64) float64 {
 		return 0
 	}
 	s := math.Sqrt(v)
-	u, l := (hi-m)/s, (lo-m)/s
-	// Beyond windowFar standard deviations Φ is 0 or 1 in float64.
-	pu, pl := 1.0, 0.0
-	if u < windowFar {
-		pu = registration.NormalCDF(u)
-	}
-	if l > -windowFar {
-		pl = registration.NormalCDF(l)
-	}
-	return math.Max(0, pu-pl)
+	return math.Max(0, normCDF((hi-m)/s)-normCDF((lo-m)/s))
 }
 
 // windowFar is where Φ(x) rounds to 1 in float64: 1 − Φ(8.3) = 5.2e-17 <
 // 2⁻⁵³ (Abramowitz & Stegun 26.2.29), so a limit that far is skipped.
 const windowFar = 8.3
+
+// normCDF is Φ, 0 or 1 beyond windowFar.
+func normCDF(x float64) float64 {
+	switch {
+	case x <= -windowFar:
+		return 0
+	case x >= windowFar:
+		return 1
+	}
+	return registration.NormalCDF(x)
+}
 
 // windowAt returns the window probability at offset off.
 func (e *Evaluator) windowAt(off float64, pr *procRow, lo, hi float64) float64 {

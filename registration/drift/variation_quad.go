@@ -10,7 +10,6 @@ import (
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
-	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/process"
 )
 
@@ -379,15 +378,7 @@ func windowQuad(m, s, q, lo, hi float64) float64 {
 		qh, ql := -(s+math.Sqrt(dh))/2, -(s+math.Sqrt(dl))/2
 		lim := -windowFar * math.Abs(q) // Q ≤ 0: the far root beyond windowFar when Q ≤ lim
 		if qh <= lim && ql <= lim {
-			u, l := (m-hi)/qh, (m-lo)/ql
-			pu, pl := 1.0, 0.0
-			if u < windowFar {
-				pu = registration.NormalCDF(u)
-			}
-			if l > -windowFar {
-				pl = registration.NormalCDF(l)
-			}
-			return math.Max(0, pu-pl)
+			return math.Max(0, normCDF((m-hi)/qh)-normCDF((m-lo)/ql))
 		}
 	}
 	return math.Min(1, math.Max(0, quadBelow(m, s, q, hi)-quadBelow(m, s, q, lo)))
@@ -438,17 +429,6 @@ func normBetween(a, b float64) float64 {
 		return normCDF(-a) - normCDF(-b)
 	}
 	return normCDF(b) - normCDF(a)
-}
-
-// normCDF is Φ, 0 or 1 beyond windowFar.
-func normCDF(x float64) float64 {
-	switch {
-	case x <= -windowFar:
-		return 0
-	case x >= windowFar:
-		return 1
-	}
-	return registration.NormalCDF(x)
 }
 
 // quadExtremes returns the smallest and largest of m + s·t + q·t² over

@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"slices"
 
 	"github.com/regdrift/regdrift/registration"
 )
@@ -32,20 +31,8 @@ var ErrAppliedLayer = errors.New("the targets have no such layer")
 // per-layer artwork table. A layer of applied that no lot measures (alone or
 // in a pair) is an error naming its row of file.
 func (r *Report) SetApplied(applied registration.AppliedSet, file string) ([]Artwork, error) {
-	measured := map[string]bool{}
-	for _, l := range r.Lots {
-		u, lo, rel := registration.SplitLayer(l.Layer)
-		measured[u] = true
-		if rel {
-			measured[lo] = true
-		}
-	}
-	names := make([]string, 0, len(applied))
-	for l := range applied {
-		names = append(names, l)
-	}
-	slices.Sort(names)
-	for _, l := range names {
+	measured := registration.MeasuredLayers(r.Lots)
+	for _, l := range applied.Layers() {
 		if !measured[l] {
 			a := applied[l]
 			if a.Row > 0 {
