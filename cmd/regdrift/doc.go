@@ -1,9 +1,12 @@
 /*
-Regdrift maps layer-to-layer misregistration across a PCB production panel onto
-the coupling of broadside-coupled stripline couplers: the broadside offset at
-every coupler site, the coupling drift it causes, yield, error budget, the
-offset tolerance for the fabrication drawing, and artwork scale compensation
-from measured registration targets.
+Regdrift maps what moves across a PCB production panel onto the coupling of RF
+couplers, broadside-coupled striplines and edge-coupled microstrips: the
+layer-to-layer misregistration (offset, rotation, scale and skew of each layer)
+and the process variation terms (dielectric thickness and permittivity,
+finished copper, etched width, mask) at every coupler site. It solves the
+cross-section with its own field solver and reports the coupling drift, margin,
+yield, error budget and drawing tolerances, fits layer movement to measured
+registration targets and recommends artwork scale compensation.
 
 Usage:
 
@@ -12,9 +15,9 @@ Usage:
 The commands are:
 
 	demo     run the embedded demo jobs end to end
-	map      map the broadside offset and coupling drift of every coupler site on the panel
+	map      map the coupling drift of every coupler site on the panel, by source (registration, process)
 	sweep    solve a section's cross-section over a range of lateral offsets
-	tol      layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study
+	tol      drawing tolerances (registration, dielectric, copper, width) for the target yield, and a trace-width study
 	fit      fit each layer's movement (offset, rotation, scale, skew) to measured registration targets
 	comp     recommend per-layer artwork scale compensation that maximises the coupler yield
 	yield    coupler and part yield across panels, and the error budget
@@ -25,10 +28,12 @@ The commands are:
 Run 'regdrift COMMAND -h' for a command's flags.
 
 Exit status: 0 success (also for -h), 1 a failure while running, 2 bad input
-or usage, 3 out of spec (only with --strict).
+or usage, 3 out of spec (only with --strict), 70 an internal error (a defect,
+never bad input), 130, 143 or 129 stopped by SIGINT, SIGTERM or SIGHUP.
 
-Results are engineering estimates: check them against coupon measurements and
-the fabricator's qualified process data.
+Results are engineering estimates: defer to coupon measurements, the
+fabricator's qualified process data, the applicable standards and the
+customer's drawing.
 
 # demo
 
@@ -55,7 +60,7 @@ Usage:
 
 	regdrift map JOB [-o DIR] [--units mil|um] [--show drift|worst|offset|sigma|margin|window|p|registration|variation|term:NAME] [--width PX] [--strict [--strict-p P]] [--json]
 
-Map the broadside offset and coupling drift of every coupler site on the panel.
+Map the coupling drift of every coupler site on the panel, by source (registration, process).
 
 Computes, for every coupler site of the job, the mean broadside offset that the
 registration error model produces there (closed form, linear in the terms), its
@@ -146,7 +151,7 @@ Usage:
 
 	regdrift tol JOB [--section NAME] [--widen FROM:TO:STEP] [--widen-trace upper|lower] [--target PCT] [-o DIR] [--json]
 
-Layer-to-layer offset tolerance for the fabrication drawing, and a trace-width study.
+Drawing tolerances (registration, dielectric, copper, width) for the target yield, and a trace-width study.
 
 For each section (or the one named), finds the lateral offsets at which the
 coupling meets the lower and upper spec limits, by root-finding on the solved
@@ -179,15 +184,19 @@ offset tolerance above; for every parameter a [[variation]] term acts on
 (others nominal, traces at the design offset) the change at which the
 coupling meets each spec limit, first from the sensitivity at the design
 offset, then confirmed by direct solves of the perturbed section (the same
-secant and 0.0002 dB as the offset roots). All together: every σ of the
-registration model and of the variation terms (means and across-panel
-shapes kept) scaled by one factor k, found by regula falsi so that the worst
+secant and 0.0002 dB as the offset roots). All together: a drawing
+tolerance bounds the whole deviation from nominal wherever the part sits, so
+every deviation is scaled by one factor k (each variation term's panel mean,
+across-panel shape and σ; each registration contributor's means, fixed ones
+too, spreads and residual grid), found by regula falsi so that the worst
 site's P(in spec), the one evaluator's, reaches --target (default 99.73%);
-each note then carries ±3·k·σ (a term's site σ, a pair's largest across-line
-σ). The notes use a drawing's words: "L6–L7 layer-to-layer registration
-±0.692 mil", "core KC 36.000 ± 0.646 mil", "etched width on L6 15.800 ±
-0.258 mil", "εr of KC 3.480 ± 0.039". When the means and shapes alone keep
-the worst site below the target, the notes say that no scale reaches it.
+the second-order process term is refitted by direct solves at k until k
+settles. k below 1 says how much tighter the process must be, k at or above
+1 that it meets the target with room. Each note is then the range the scaled
+term covers over the sites, mean ± 3σ, in a drawing's words: "L6–L7
+layer-to-layer registration ±0.692 mil", "core KC 36.000 ± 0.646 mil",
+"prepreg P2 36.000 +1.409/-1.088 mil" (where a press dome keeps it off
+nominal), "etched width on L6 15.800 ± 0.258 mil", "εr of KC 3.480 ± 0.039".
 Without variation terms the notes hold the registration line.
 
 # fit
