@@ -307,3 +307,27 @@ func TestTermKeys(t *testing.T) {
 		})
 	}
 }
+
+// TestMaskOutsideStripline checks that a board's solder mask leaves a
+// stripline section's stackup alone: the field of a stripline ends at its
+// two grounds, so the outer coat is outside it, and a job may hold
+// stripline and microstrip sections under one mask.
+func TestMaskOutsideStripline(t *testing.T) {
+	data, _ := samples.FS.ReadFile("same-core.toml")
+	src := strings.Replace(string(data), "]\n\n[[section]]", "]\nmask = { thickness = \"0.8 mil\", over_copper = \"0.5 mil\", er = 3.8 }\n\n[[section]]", 1)
+	if src == string(data) {
+		t.Fatal("the sample's stackup no longer ends where the test adds its mask")
+	}
+	j, err := Load("-", strings.NewReader(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if j.Stackup.Mask == nil {
+		t.Fatal("the job lost its mask")
+	}
+	for _, s := range j.Sections {
+		if s.Stackup.Mask != nil {
+			t.Errorf("stripline section %q carries the board's mask", s.Name)
+		}
+	}
+}

@@ -684,6 +684,12 @@ func (l *loader) buildSections() error {
 		}
 		seen[rs.Name] = true
 		s := &section.Section{Name: rs.Name, Stackup: j.Stackup, Grounds: rs.Grounds}
+		if len(rs.Grounds) != 1 {
+			// The board's solder mask coats its outer layers; a stripline's
+			// field ends at its two grounds, so the mask is outside it
+			// (and a job may hold stripline and microstrip sections alike).
+			s.Stackup.Mask = nil
+		}
 		if len(rs.Traces) != 2 {
 			return src.errf("traces", "%w: a section has two traces, upper first", ErrValue)
 		}

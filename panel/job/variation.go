@@ -345,7 +345,12 @@ func (l *loader) variationShape(src source, v any, length bool, read func(string
 	sort.Strings(keys)
 	for _, k := range keys {
 		if !allowed[k] {
-			return s, src.errf("shape."+k, "%w %q for a %s shape", ErrUnknownKey, k, kind)
+			want := make([]string, 0, len(allowed))
+			for a := range allowed {
+				want = append(want, a)
+			}
+			sort.Strings(want)
+			return s, src.errf("shape."+k, "%w %q for the shape %q (its keys: %s)", ErrUnknownKey, k, kind.String(), strings.Join(want, ", "))
 		}
 	}
 	if a, ok := shapeAmplitude[kind]; ok {

@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
+	"strings"
 )
 
 // LinearCheck is one direct solve against the first-order prediction: a
@@ -11,7 +13,11 @@ import (
 // 3σ in the direction that moves the coupling that way, solved at the
 // site's mean offset.
 type LinearCheck struct {
-	Site     string  `json:"site"`
+	Site    string `json:"site"`
+	Section string `json:"section"`
+	// LimitDB is the section's limit: 0.05 dB or a tenth of its spec
+	// tolerance, whichever is smaller.
+	LimitDB  float64 `json:"limit_db"`
 	OffsetM  float64 `json:"offset_m"`
 	Sigmas   float64 `json:"sigmas"` // −3 or +3
 	LinearDB float64 `json:"linear_db"`
@@ -32,9 +38,9 @@ type Linearity struct {
 	// that of the model used.
 	MaxErrorDB      float64 `json:"max_error_db"`
 	MaxModelErrorDB float64 `json:"max_model_error_db"`
-	// LimitDB is the error of the model used above which the report warns:
-	// 0.05 dB or a tenth of the tightest spec tolerance checked, whichever
-	// is smaller.
+	// LimitDB is the smallest of the checks' limits: the model used errs
+	// beyond a check's own limit (its section's) is what the report warns
+	// about.
 	LimitDB float64 `json:"limit_db"`
 	Warning string  `json:"warning,omitempty"`
 }
@@ -45,16 +51,18 @@ const LinearSigmas = 3
 // linearLimit is the largest first-order error not warned about, dB.
 const linearLimit = 0.05
 
-// CheckLinearity solves, at the n sites of least margin that have process
-// terms, each section with all its terms at mean ± LinearSigmas·σ (each in
-// the direction that moves the coupling the same way, so the two
-// extremes of the coupling) at the site's mean offset, and compares the
-// coupling with the first-order prediction c(δ) + Σ sᵢ(δ)·Δpᵢ and with the
-// model the evaluator uses, which adds e₀ + (κ − 1)·L + ρ·L² with
-// L = Σ sᵢ·(Δpᵢ − μᵢ) (variation_quad.go); the warning is on the latter.
-// It keeps the report for Summary (MapSummary.Linearity). Without process
-// terms it does nothing. The direct solves go through the cache like every
-// curve.
+// CheckLinearity solves, at the n sites of least margin of each section
+// that has process terms (each section: a job's sections differ in how
+// far their terms reach, and the worst sites of one would hide another),
+// each section with all its terms at mean ± LinearSigmas·σ (each in the
+// direction that moves the coupling the same way, so the two extremes of
+// the coupling) at the site's mean offset, and compares the coupling with
+// the first-order prediction c(δ) + Σ sᵢ(δ)·Δpᵢ and with the model the
+// evaluator uses, which adds e₀ + (κ − 1)·L + ρ·L² with L = Σ sᵢ·(Δpᵢ − μᵢ)
+// (variation_quad.go); the warning is on the latter, against each
+// section's own limit. It keeps the report for Summary
+// (MapSummary.Linearity). Without process terms it does nothing. The
+// direct solves go through the cache like every curve.
 func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) error {
 	a.linearity = nil
 	if a.In.Process.Empty() {
@@ -66,19 +74,21 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 	}
 	plain.Sensitivities = false
 	lin := &Linearity{LimitDB: linearLimit}
-	count := 0
+	count := make([]int, len(a.In.Sections))
+	worst := -1 // the check furthest beyond its limit, relative to it
 	for _, k := range a.Worst(len(a.Sites)) {
-		if count == n {
-			break
-		}
 		r := &a.Sites[k]
+		if count[r.Section] == n {
+			continue
+		}
 		ev := a.Evaluator(r.Section)
 		if !ev.hasProc() {
 			continue
 		}
-		count++
+		count[r.Section]++
 		c := ev.Curve
-		lin.LimitDB = math.Min(lin.LimitDB, c.Section.Spec.Tolerance/10)
+		limit := math.Min(linearLimit, c.Section.Spec.Tolerance/10)
+		lin.LimitDB = math.Min(lin.LimitDB, limit)
 		var row procRow
 		ev.Proc.row(&row, r.Site.Pos)
 		params := c.Curve.Params()
@@ -106,25 +116,54 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 			}
 			d := sc.Coupling(r.Offset)
 			model := pred + e0 + (kappa-1)*l + rho*l*l
-			lin.Checks = append(lin.Checks, LinearCheck{Site: r.Site.Name, OffsetM: r.Offset, Sigmas: z, LinearDB: pred, DirectDB: d, ErrorDB: pred - d,
-				ModelDB: model, ModelErrorDB: model - d})
+			lin.Checks = append(lin.Checks, LinearCheck{Site: r.Site.Name, Section: c.Section.Name, LimitDB: limit, OffsetM: r.Offset, Sigmas: z,
+				LinearDB: pred, DirectDB: d, ErrorDB: pred - d, ModelDB: model, ModelErrorDB: model - d})
 			lin.MaxErrorDB = math.Max(lin.MaxErrorDB, math.Abs(pred-d))
 			lin.MaxModelErrorDB = math.Max(lin.MaxModelErrorDB, math.Abs(model-d))
+			if i := len(lin.Checks) - 1; math.Abs(model-d) > limit && (worst < 0 || math.Abs(model-d)/limit > math.Abs(lin.Checks[worst].ModelErrorDB)/lin.Checks[worst].LimitDB) {
+				worst = i
+			}
 		}
 	}
-	if lin.MaxModelErrorDB > lin.LimitDB {
-		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) errs by up to %.3f dB at the combined ±%g sigma extremes of the worst sites (above %.3f dB): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
-			lin.MaxModelErrorDB, float64(LinearSigmas), lin.LimitDB)
+	if worst >= 0 {
+		w := lin.Checks[worst]
+		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) of section %q errs by up to %.3f dB at the combined ±%g sigma extremes of its worst sites (above its %.3f dB): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
+			w.Section, math.Abs(w.ModelErrorDB), float64(LinearSigmas), w.LimitDB)
 	}
 	a.linearity = lin
 	return nil
 }
 
-// String is the one-line form of l for tables.
+// String is the one-line form of l for tables: per section checked, the
+// largest error of the model used against its limit and of the first order.
 func (l *Linearity) String() string {
 	if l == nil || len(l.Checks) == 0 {
 		return ""
 	}
-	return fmt.Sprintf("process model against direct solves at ±%g sigma of every term, at the %d worst site(s): largest error %.4f dB with the second-order term (limit %.3f dB), %.4f dB first order",
-		float64(LinearSigmas), len(l.Checks)/2, l.MaxModelErrorDB, l.LimitDB, l.MaxErrorDB)
+	type sec struct {
+		name                  string
+		sites                 int
+		model, first, limitDB float64
+	}
+	var secs []*sec
+	for _, c := range l.Checks {
+		i := slices.IndexFunc(secs, func(s *sec) bool { return s.name == c.Section })
+		if i < 0 {
+			i = len(secs)
+			secs = append(secs, &sec{name: c.Section, limitDB: c.LimitDB})
+		}
+		s := secs[i]
+		s.sites++
+		s.model = math.Max(s.model, math.Abs(c.ModelErrorDB))
+		s.first = math.Max(s.first, math.Abs(c.ErrorDB))
+	}
+	var b strings.Builder
+	fmt.Fprintf(&b, "process model against direct solves at ±%g sigma of every term, at the worst sites:", float64(LinearSigmas))
+	for i, s := range secs {
+		if i > 0 {
+			b.WriteString(";")
+		}
+		fmt.Fprintf(&b, " %q (%d sites) largest error %.4f dB with the second-order term (limit %.3f dB), %.4f dB first order", s.name, s.sites/2, s.model, s.limitDB, s.first)
+	}
+	return b.String()
 }
