@@ -80,8 +80,9 @@ design offset included and offset_from_design_m without it.
 --show picks the field: drift (the default when all sites share one section),
 worst, offset, sigma, margin, p (probability in spec) or window, the share of
 the site's allowed offsets that mean ± 3 sigma reaches (1 at the window's
-edge), the default when sections differ, whose drifts in dB do not compare;
-each section's bars then have their own width, named in the legend.
+edge), the default when sections differ, whose drifts in dB do not compare
+(with [[variation]] terms p is, since the window share sees the offset
+alone); each section's bars then have their own width, named in the legend.
 
 --strict exits with status 3 when any site is in spec with a probability below
 --strict-p (default 0.9973, the share of a normal distribution within ±3

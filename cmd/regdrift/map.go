@@ -32,7 +32,7 @@ const defaultStrictP = 0.9973
 // flags declares the command's flags on fs.
 func (f *mapFlags) flags(fs *pflag.FlagSet) {
 	f.outputFlags.add(fs)
-	fs.StringVar(&f.show, "show", "", "quantity drawn: drift (at the mean offset, all sources), worst (worst drift within ±3σ), offset, sigma, margin, window (share of the allowed offsets mean ± 3σ reaches), p (probability in spec), registration or variation (the drift of one group), or term:NAME (of one [[variation]] term); default drift, window when sections differ")
+	fs.StringVar(&f.show, "show", "", "quantity drawn: drift (at the mean offset, all sources), worst (worst drift within ±3σ), offset, sigma, margin, window (share of the allowed offsets mean ± 3σ reaches), p (probability in spec), registration or variation (the drift of one group), or term:NAME (of one [[variation]] term); default drift; when sections differ window, or p with [[variation]] terms")
 	fs.IntVar(&f.width, "width", 2400, "width of map.png in pixels")
 	addStrict(fs, &f.strict, "any site's probability of being in spec is below --strict-p")
 	fs.Float64Var(&f.strictP, "strict-p", defaultStrictP, "with --strict, the lowest probability of being in spec a site may have (0.9973: in spec at ±3σ)")

@@ -93,8 +93,11 @@ func (s show) scale(u unit.Output) float64 {
 // MapOptions say what a drift map draws.
 type MapOptions struct {
 	// Show is one of Shows; "" means "drift" when the sites use one section
-	// and "window" when they use several, whose drifts in dB and offsets
-	// do not compare.
+	// and, when they use several, whose drifts in dB and offsets do not
+	// compare, "window" (registration only) or, with process terms, "p":
+	// the window share is of the allowed offsets alone, blind to what the
+	// process does to a microstrip, and the probability in spec counts
+	// every source on one scale.
 	Show  string
 	Width int         // pixels; 0 means 2400
 	Units unit.Output // zero means unit.MilInch
@@ -127,6 +130,9 @@ func (o MapOptions) norm(a *drift.Analysis) (MapOptions, show, error) {
 		o.Show = "drift"
 		if len(usedSections(a)) > 1 {
 			o.Show = "window"
+			if !a.In.Process.Empty() {
+				o.Show = "p"
+			}
 		}
 	}
 	s, ok := showOf(o.Show, o.Units)
