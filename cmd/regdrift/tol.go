@@ -240,7 +240,7 @@ func printNotes(w io.Writer, n *drift.DrawingNotes, lu lengthUnit) {
 					ends += " / "
 				}
 				if d == nil {
-					ends += "none"
+					ends += [...]string{"none (in spec down to the physical range's end)", "none (in spec up to the physical range's end)"}[k]
 				} else {
 					ends += fmt.Sprintf("%+.3f", *d/map[bool]float64{true: 1, false: lu.factor}[l.Per == "er"])
 				}
