@@ -7,6 +7,7 @@ import (
 	"sort"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -135,11 +136,7 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 		if !used {
 			continue
 		}
-		var wider func(*Curve) (bool, error)
-		if !as[0].In.Process.Empty() {
-			wider = func(c *Curve) (bool, error) { return processCut(ctx, set, i, c, as) }
-		}
-		c, err := solveSection(ctx, s, reach[i], withSensitivities(set, as[0].In), wider)
+		c, err := solveFor(ctx, set, s, i, reach[i], as)
 		if err != nil {
 			return nil, err
 		}
@@ -149,6 +146,19 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 		return nil, err
 	}
 	return curves, nil
+}
+
+// solveFor solves section s, index i, for the sites of the analyses over
+// reach as SolveCurves does: with process terms (and their sensitivities)
+// the span also doubles while processCut finds the domain cut. Tol solves
+// its sections by it too.
+func solveFor(ctx context.Context, set *Settings, s *section.Section, i int, reach float64, as []*Analysis) (*Curve, error) {
+	in := as[0].In
+	var wider func(*Curve) (bool, error)
+	if !in.Process.Empty() {
+		wider = func(c *Curve) (bool, error) { return processCut(ctx, set, i, c, as) }
+	}
+	return solveSection(ctx, s, reach, withSensitivities(set, in), wider)
 }
 
 // processCut fits the second-order term of curve c of section i for the

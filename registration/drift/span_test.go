@@ -99,6 +99,14 @@ func TestSpanProcessDomain(t *testing.T) {
 	if ws := after.Warnings(); len(ws) != 0 {
 		t.Errorf("widened: warnings %q, want none", ws)
 	}
+	// tol reads the same curve.
+	ts, err := Tol(t.Context(), in, TolStudy{}, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if tlo, thi := ts.Sections[0].Curve.Curve.Range(); tlo != lo || thi != hi {
+		t.Errorf("tol solved %.3g to %.3g mil, the yield %.3g to %.3g", tlo/mil, thi/mil, lo/mil, hi/mil)
+	}
 	for _, tt := range []struct {
 		name string
 		a    *Analysis
