@@ -202,3 +202,34 @@ func TestIdleTermsIncluded(t *testing.T) {
 		t.Errorf("warnings %q, want the job's idle term named and the included file's two counted", ws)
 	}
 }
+
+// TestSolveSectionWider: the doubling loop asks wider only once the spec
+// windows are inside the range, doubles the span as the spec windows do
+// while it answers yes, and stops at MaxDoublings without asking.
+func TestSolveSectionWider(t *testing.T) {
+	s := namedPair("wider", section.Spec{Coupling: -3, Tolerance: 0.1})
+	for _, tt := range []struct {
+		name  string
+		yes   int     // how many times wider answers yes
+		asked int     // how many times it is asked
+		span  float64 // the half-span solved, mil
+	}{{"no", 0, 1, 5}, {"once", 1, 2, 10}, {"always", 100, MaxDoublings, 5 << MaxDoublings}} {
+		t.Run(tt.name, func(t *testing.T) {
+			asked := 0
+			c, err := solveSection(t.Context(), s, 0, testSettings(t), func(c *Curve) (bool, error) {
+				if c.Limits.Clipped[0] || c.Limits.Clipped[1] {
+					t.Errorf("asked with the spec window cut at %v", c.Allowed)
+				}
+				asked++
+				return asked <= tt.yes, nil
+			})
+			if err != nil {
+				t.Fatal(err)
+			}
+			lo, hi := c.Curve.Range()
+			if asked != tt.asked || lo != -tt.span*mil || hi != tt.span*mil {
+				t.Errorf("asked %d times, range %.4g to %.4g mil; want %d, ±%g", asked, lo/mil, hi/mil, tt.asked, tt.span)
+			}
+		})
+	}
+}
