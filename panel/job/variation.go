@@ -61,6 +61,9 @@ func (l *loader) buildVariation() error {
 		if t.Name == "" {
 			t.Name = fmt.Sprintf("variation %d", i+1)
 		}
+		if f := l.variationSrc[i].f.name; f != j.File {
+			t.File = f // a shared process file: the analysis folds its idle terms into one line
+		}
 		m.Terms = append(m.Terms, t)
 	}
 	j.Process = m

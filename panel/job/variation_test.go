@@ -59,6 +59,11 @@ func TestVariationInclude(t *testing.T) {
 		t.Fatalf("process %+v, want 4 terms", j.Process)
 	}
 	ts := j.Process.Terms
+	for i := range ts {
+		if filepath.Base(ts[i].File) != "fab.toml" {
+			t.Errorf("term %d: file %q, want the included fab.toml", i, ts[i].File)
+		}
+	}
 	eq := func(name string, got, want float64) {
 		t.Helper()
 		if math.Abs(got-want) > 1e-12*math.Max(1, math.Abs(want)) {

@@ -7,6 +7,7 @@ import (
 	"sort"
 
 	"github.com/regdrift/regdrift/panel"
+	"github.com/regdrift/regdrift/panel/section"
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 )
@@ -117,6 +118,12 @@ func Reach(as ...*Analysis) []float64 {
 // SolveCurves solves every section that a site of any of the analyses uses,
 // over Reach(as...), and returns the curves per section (nil where unused),
 // with process terms fitted with their second-order term (FitSecondOrder).
+// With process terms the span doubles by SolveSection's rule also while the
+// end of the solved offsets cuts a section's offset domain (the spec window
+// widened by the process reach, bindProc) within reach of its sites
+// (domainCut), the term refitted at each span: offsets beyond the solved
+// ones count as out of spec, so the range must hold every offset a process
+// excursion could keep in spec.
 func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve, error) {
 	reach := Reach(as...)
 	secs := as[0].In.Sections
@@ -129,7 +136,7 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 		if !used {
 			continue
 		}
-		c, err := SolveSection(ctx, s, reach[i], withSensitivities(set, as[0].In))
+		c, err := solveFor(ctx, set, s, i, reach[i], as)
 		if err != nil {
 			return nil, err
 		}
@@ -139,6 +146,65 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 		return nil, err
 	}
 	return curves, nil
+}
+
+// solveFor solves section s, index i, for the sites of the analyses over
+// reach as SolveCurves does: with process terms (and their sensitivities)
+// the span also doubles while processCut finds the domain cut. Tol solves
+// its sections by it too.
+func solveFor(ctx context.Context, set *Settings, s *section.Section, i int, reach float64, as []*Analysis) (*Curve, error) {
+	in := as[0].In
+	var wider func(*Curve) (bool, error)
+	if !in.Process.Empty() {
+		wider = func(c *Curve) (bool, error) { return processCut(ctx, set, i, c, as) }
+	}
+	return solveSection(ctx, s, reach, withSensitivities(set, in), wider)
+}
+
+// processCut fits the second-order term of curve c of section i for the
+// sites of the analyses (FitSecondOrder) and reports whether, for the sites
+// of any of them, the end of the solved offsets cuts the section's offset
+// domain within their reach (domainCut).
+func processCut(ctx context.Context, set *Settings, i int, c *Curve, as []*Analysis) (bool, error) {
+	one := make([]*Curve, len(as[0].In.Sections))
+	one[i] = c
+	if err := FitSecondOrder(ctx, set, one, as...); err != nil {
+		return false, err
+	}
+	for _, a := range as {
+		var pos []panel.Vec
+		for k := range a.Sites {
+			if a.Sites[k].Section == i {
+				pos = append(pos, a.Sites[k].Site.Pos)
+			}
+		}
+		if pr := bindProc(a.In.Process, c, pos); pr != nil && a.domainCut(i, pr) {
+			return true, nil
+		}
+	}
+	return false, nil
+}
+
+// domainCut reports whether the end of the solved offsets cuts pr's offset
+// domain of section i within procRangeSigmas standard deviations of the mean
+// offset of one of its sites: the offsets the closed form integrates over
+// reach past a cut end, where a process excursion could keep the coupling in
+// spec but the rule counts it out.
+func (a *Analysis) domainCut(i int, pr *Proc) bool {
+	if !(pr.Clipped[0] || pr.Clipped[1]) {
+		return false
+	}
+	for k := range a.Sites {
+		r := &a.Sites[k]
+		if r.Section != i {
+			continue
+		}
+		w := procRangeSigmas * r.Stats.SDAcross
+		if (pr.Clipped[0] && r.Offset-w < pr.Domain.Lo) || (pr.Clipped[1] && r.Offset+w > pr.Domain.Hi) {
+			return true
+		}
+	}
+	return false
 }
 
 // Evaluate joins the analysis to curves (per section; every used section

@@ -111,6 +111,15 @@ func roundSpan(span float64) float64 {
 // the range stops growing). A solver error is returned wrapped, naming the
 // section; a *section.FieldError in it means the section itself is bad input.
 func SolveSection(ctx context.Context, s *section.Section, reach float64, set *Settings) (*Curve, error) {
+	return solveSection(ctx, s, reach, set, nil)
+}
+
+// solveSection is SolveSection, doubling the span also while wider reports
+// that the range cuts a wider window than the spec's (the offset domain of
+// the process terms, SolveCurves): one doubling rule, asked of wider only
+// once the spec windows are inside the range. wider may fill in the curve
+// it is given (its second-order term); nil asks nothing more.
+func solveSection(ctx context.Context, s *section.Section, reach float64, set *Settings, wider func(*Curve) (bool, error)) (*Curve, error) {
 	nom := s.NominalOffset()
 	dir, noCache := set.cache()
 	span := roundSpan(reach)
@@ -139,7 +148,15 @@ func SolveSection(ctx context.Context, s *section.Section, reach float64, set *S
 		c.Retuned = riv
 		clipped := lim.Clipped[0] || lim.Clipped[1] || rlim.Clipped[0] || rlim.Clipped[1]
 		grew := k == 0 || lo < lastLo || hi > lastHi
-		if !clipped || k == MaxDoublings || !grew {
+		if k == MaxDoublings || !grew {
+			return c, nil
+		}
+		if !clipped && wider != nil {
+			if clipped, err = wider(c); err != nil {
+				return nil, err
+			}
+		}
+		if !clipped {
 			return c, nil
 		}
 		lastLo, lastHi = lo, hi

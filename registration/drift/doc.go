@@ -21,7 +21,10 @@
 // range, for the spec and for the spec re-centred on the design's own
 // coupling. The doubling brings the ends of the allowed interval inside the
 // range, so the yield integral over it is exact however far the tails reach;
-// Warnings says when an end stays cut within YieldSigmas of a site. Map,
+// Warnings says when an end stays cut within YieldSigmas of a site. With
+// process terms the window widened by the sites' process reach (the offset
+// domain, bindProc) is one more window the same doubling holds, where a
+// site reaches the cut end (SolveCurves). Map,
 // yield, tolerance, comparison and sweep read the same curve (the same cache
 // key).
 //

@@ -317,7 +317,11 @@ func Tol(ctx context.Context, in *Input, study TolStudy, set *Settings) (*TolSum
 	trace := [2]string{"upper", "lower"}[study.Trace]
 	for _, si := range secs {
 		s := in.Sections[si]
-		st, err := Tolerance(ctx, s, reach[si], set, true)
+		c, err := solveFor(ctx, set, s, si, reach[si], []*Analysis{a}) // the curve SolveCurves solves
+		if err != nil {
+			return nil, err
+		}
+		st, err := tolerance(ctx, c, set, true)
 		if err != nil {
 			return nil, err
 		}

@@ -592,25 +592,36 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 	}
 	pr := &Proc{Model: m, Bind: bind, Domain: c.Allowed}
 	pr.tabulate(c)
-	e := Evaluator{Curve: c, Proc: pr}
-	nom := c.Section.NominalOffset()
-	var reach float64
-	var row procRow
-	cn := c.Coupling(nom)
-	for _, p := range positions {
-		pr.row(&row, p)
-		m, v, q := e.at(nom, &row)
-		xl, xh := quadExtremes(m-cn, math.Sqrt(v), q, procSigmas)
-		reach = math.Max(reach, math.Max(math.Abs(xl), math.Abs(xh)))
-	}
 	sp := c.Section.Spec
+	nom := c.Section.NominalOffset()
 	lo, hi := c.Curve.Range()
-	iv, lim, err := registration.SpecInterval(c.Coupling, lo, hi, nom, sp.Coupling, sp.Tolerance+reach)
+	iv, lim, err := registration.SpecInterval(c.Coupling, lo, hi, nom, sp.Coupling, sp.Tolerance+pr.reach(c, positions))
 	if err != nil {
 		iv = registration.EmptyInterval()
 	}
 	pr.Domain, pr.Clipped = iv, lim.Clipped
 	return pr
+}
+
+// reach returns the largest process reach W of the sites at positions on
+// curve c (tabulated in pr): the farthest the coupling at the design offset
+// moves from the curve's, |Σ sᵢμᵢ + e₀ + q·t² + √v·t| over |t| ≤ procSigmas
+// (quadExtremes). The offset domain is the allowed interval of the spec
+// window widened by it, and SolveCurves solves far enough to hold that
+// domain: one rule for both.
+func (pr *Proc) reach(c *Curve, positions []panel.Vec) float64 {
+	e := Evaluator{Curve: c, Proc: pr}
+	nom := c.Section.NominalOffset()
+	cn := c.Coupling(nom)
+	var w float64
+	var row procRow
+	for _, p := range positions {
+		pr.row(&row, p)
+		m, v, q := e.at(nom, &row)
+		xl, xh := quadExtremes(m-cn, math.Sqrt(v), q, procSigmas)
+		w = math.Max(w, math.Max(math.Abs(xl), math.Abs(xh)))
+	}
+	return w
 }
 
 // withSensitivities returns set asking for sensitivities when in has
@@ -756,11 +767,6 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 	return rec
 }
 
-// processWarnings names the variation terms that move no parameter of any
-// section used, and says, per section with process terms, when the end of
-// the solved offsets cuts its offset domain within procRangeSigmas of some
-// site: offsets beyond count as out of spec, though a process excursion
-// could keep the coupling in spec there.
 // boundTerms reports, per process term of the input, whether it moves
 // something of a section the analysis uses; nil without process terms.
 func (a *Analysis) boundTerms() []bool {
@@ -790,16 +796,36 @@ func (a *Analysis) activeTerms() int {
 	return n
 }
 
+// processWarnings names the variation terms of the job file that move no
+// parameter of any section used, counts those of each included file in one
+// line (a fab's shared process file describes layers and quantities that
+// most jobs lack), and says, per section with process terms, when the end of
+// the solved offsets cuts its offset domain within procRangeSigmas of some
+// site: offsets beyond count as out of spec, though a process excursion
+// could keep the coupling in spec there.
 func (a *Analysis) processWarnings() []string {
 	var out []string
 	if bound := a.boundTerms(); bound != nil {
-		// One line for all of them: a process file shared by several jobs
-		// names layers and quantities that some jobs lack.
 		var idle []string
+		var files []string           // the included files with idle terms, in the job's order
+		count := map[string][2]int{} // per included file: idle terms, terms
 		for t, ok := range bound {
-			if !ok {
-				idle = append(idle, fmt.Sprintf("%q on %s", a.In.Process.Terms[t].Name, a.In.Process.Terms[t].On))
+			term := &a.In.Process.Terms[t]
+			if term.File == "" {
+				if !ok {
+					idle = append(idle, fmt.Sprintf("%q on %s", term.Name, term.On))
+				}
+				continue
 			}
+			n := count[term.File]
+			if !ok {
+				if n[0] == 0 {
+					files = append(files, term.File)
+				}
+				n[0]++
+			}
+			n[1]++
+			count[term.File] = n
 		}
 		switch len(idle) {
 		case 0:
@@ -808,22 +834,17 @@ func (a *Analysis) processWarnings() []string {
 		default:
 			out = append(out, fmt.Sprintf("%d variation terms move nothing of any section used (their layers are outside every section's field, or they are quantities the sections lack): %s", len(idle), strings.Join(idle, ", ")))
 		}
+		for _, f := range files {
+			n := count[f]
+			out = append(out, fmt.Sprintf("%d of the %d variation terms of the included file %s move nothing of any section used", n[0], n[1], f))
+		}
 	}
 	for i, pr := range a.proc {
-		if pr == nil || !(pr.Clipped[0] || pr.Clipped[1]) {
-			continue
-		}
-		for k := range a.Sites {
-			r := &a.Sites[k]
-			if r.Section != i {
-				continue
-			}
-			w := procRangeSigmas * r.Stats.SDAcross
-			if (pr.Clipped[0] && r.Offset-w < pr.Domain.Lo) || (pr.Clipped[1] && r.Offset+w > pr.Domain.Hi) {
-				out = append(out, fmt.Sprintf("section %q: with the variation terms the coupling can still be in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
-					a.In.Sections[i].Name, pr.Domain.Lo/unit.Mil, pr.Domain.Hi/unit.Mil, procRangeSigmas))
-				break
-			}
+		// Cut only where SolveCurves's doubling stopped short (MaxDoublings)
+		// or a caller solved the curve otherwise.
+		if pr != nil && a.domainCut(i, pr) {
+			out = append(out, fmt.Sprintf("section %q: with the variation terms the coupling can still be in spec at the end of the solved offsets (%.3f to %.3f mil), within %d sigma of some sites; offsets beyond count as out of spec",
+				a.In.Sections[i].Name, pr.Domain.Lo/unit.Mil, pr.Domain.Hi/unit.Mil, procRangeSigmas))
 		}
 	}
 	return out

@@ -199,6 +199,9 @@ type Term struct {
 	Shape Shape
 	// SiteSigma is the standard deviation of the independent per-site part.
 	SiteSigma float64
+	// File is the included file the term was read from, as messages name
+	// it; "" for a term of the job file itself (or one built in code).
+	File string
 }
 
 // Mean returns the term's mean at p on a panel of size size.
