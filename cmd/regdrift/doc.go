@@ -109,7 +109,8 @@ permittivity. The default offsets are those every command solves the section
 over, so that this is the curve map, yield, tol and comp read: at least ±5 mil
 about the design offset and as far as any site reaches (its mean offset ± 3
 sigma, with a tenth to spare), doubled while the coupling is still in spec at
-an end.
+an end or, with [[variation]] terms, while the offset domain a process
+excursion could keep in spec reaches an end within 6 sigma of a site.
 
 Writes sweep.csv and sweep.png (coupling with the spec band and the offsets
 where it leaves the spec; impedances; directivity), and section.png
@@ -164,7 +165,7 @@ from the design offset to the two limits. For two traces on one copper layer
 layer registration cannot move: the table and tol.json (offset_is "spacing",
 gap_m) give it as a spacing (gap) tolerance, not a registration tolerance. The curve is the one map and yield
 read (its range doubled, up to four times, while the coupling is still in spec
-at an end); the orientation study uses its allowed offsets, as yield does.
+at an end, or the process domain reaches one); the orientation study uses its allowed offsets, as yield does.
 
 --widen FROM:TO:STEP studies making one trace (the lower by default, see
 --widen-trace) wider by each width difference: the tolerance against the

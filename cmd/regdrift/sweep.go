@@ -109,7 +109,7 @@ func (f *sweepFlags) run(ctx context.Context, std stdio, args []string) error {
 		// The curve map, yield, tol and comp read (one range rule, one cache entry).
 		var sc *drift.Curve
 		err := step(progressStd(std, f.json), "field solves of section "+s.Name, func() (err error) {
-			sc, err = drift.SolveSection(ctx, s, drift.Reach(drift.New(input(j), nil))[si], set)
+			sc, err = drift.SolveCurve(ctx, set, si, drift.New(input(j), nil))
 			return err
 		})
 		if err != nil {

@@ -148,6 +148,13 @@ func SolveCurves(ctx context.Context, set *Settings, as ...*Analysis) ([]*Curve,
 	return curves, nil
 }
 
+// SolveCurve solves section i alone by SolveCurves's rule, for the sites of
+// the analyses (every one of them, whether or not a site uses section i):
+// the curve every command reads, for a command that shows one section.
+func SolveCurve(ctx context.Context, set *Settings, i int, as ...*Analysis) (*Curve, error) {
+	return solveFor(ctx, set, as[0].In.Sections[i], i, Reach(as...)[i], as)
+}
+
 // solveFor solves section s, index i, for the sites of the analyses over
 // reach as SolveCurves does: with process terms (and their sensitivities)
 // the span also doubles while processCut finds the domain cut. Tol solves
