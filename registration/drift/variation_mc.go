@@ -188,8 +188,12 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 	second, win := mt.second, mt.window
 	rows, flat, ph := mt.rows[:top+1], w.sec[mt.section].flat, &ps.phi
 	panel := &w.panel
+	// The panels in reverse, so that each one's bit enters the mask by a
+	// shift of it (no shift by a variable count).
 	var in uint32
-	for p, o := range off {
+	for p := len(off) - 1; p >= 0; p-- {
+		o := off[p]
+		in <<= 1
 		if !dom.Contains(o) {
 			continue
 		}
@@ -209,7 +213,7 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 		} else {
 			m = firstOrder(c, lin, v, nrm[p])
 		}
-		in |= win.bit(m) << p
+		in |= win.bit(m)
 	}
 	return in
 }
@@ -330,7 +334,7 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
 // the groups in chunks of mcChunk (mcShapes.at).
 func (r *mcRow) curve(f float64) (c, v float64) {
 	k := &r.k
-	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(2*k[5]+f*k[6])
+	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(k[5]+f*k[6])
 }
 
 func (kf *pcFlat) at(f float64) float64 { return kf.a + f*kf.g }
@@ -404,7 +408,7 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 // mcChunk padded with zeros.
 const mcChunk = 4
 
-// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, B, C
+// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, 2B, C
 // and one unused value, sh the first mcChunk groups' Gq and dGq, and q
 // the second-order term's values (mcSecond; zero without one), so that
 // one interval's values lie together in three cache lines.
@@ -551,6 +555,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 			k[5] += mt.sv[b] * s * ds
 			k[6] += mt.sv[b] * ds * ds
 		}
+		k[5] *= 2 // 2B, exact: curve reads it without the product
 		// The cubic through the curve at f = 0, 1/3, 2/3, 1 by Newton's
 		// forward differences in u = 3f (Abramowitz & Stegun, Handbook of
 		// Mathematical Functions, 25.2.4), expanded into powers of f.
