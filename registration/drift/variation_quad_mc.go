@@ -59,6 +59,11 @@ func (q *mcSecond) coupling(f, c, lin, flat, dev float64) float64 {
 // offset off outside the table, from the evaluator's rows (c, lin and v
 // from slowAt).
 func (w *procCheckWorker) inSpecSlowSecond(p, i int, off, c, lin, v, n float64) bool {
+	return w.pc.sites[i].tab.window.bit(w.slowSecond(p, i, off, c, lin, v, n)) == 1
+}
+
+// slowSecond returns the coupling inSpecSlowSecond tests.
+func (w *procCheckWorker) slowSecond(p, i int, off, c, lin, v, n float64) float64 {
 	mt := w.pc.sites[i].tab
 	pr := mt.ev.Proc
 	dev := siteDev(v, n)
@@ -68,6 +73,5 @@ func (w *procCheckWorker) inSpecSlowSecond(p, i int, off, c, lin, v, n float64) 
 		l += (r0[b] + f*(r1[b]-r0[b])) * (wb - mt.mean[b])
 	}
 	e0, kappa, rho := pr.secondAt(off)
-	m := c + lin + dev + e0 + (kappa-1)*l + rho*l*l
-	return mt.window.bit(m) == 1
+	return c + lin + dev + e0 + (kappa-1)*l + rho*l*l
 }
