@@ -107,3 +107,18 @@ func BenchmarkStreamNorm(b *testing.B) {
 	}
 	_ = s
 }
+
+// BenchmarkStreamNorms times normal draws from Stream in the Monte Carlo's
+// batches of MCGroup, reported per draw.
+func BenchmarkStreamNorms(b *testing.B) {
+	var r Stream
+	r.Seed(1, 0)
+	var dst [MCGroup]float64
+	var s float64
+	for b.Loop() {
+		r.Norms(dst[:])
+		s += dst[0]
+	}
+	_ = s
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*MCGroup), "ns/draw")
+}

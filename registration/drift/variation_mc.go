@@ -181,29 +181,39 @@ func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) u
 		return w.inSpecAt(i, off, r)
 	}
 	nrm := w.norms(off, mt, r)
+	// Everything the loop reads of mt and w is held in locals: the loop
+	// calls nothing on its hot path (fill runs once per interval and
+	// panel), so that they stay in registers.
 	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
-	rows, flat, ph := mt.rows, w.sec[mt.section].flat, &ps.phi
+	second, win := mt.second, mt.window
+	rows, flat, ph := mt.rows[:top+1], w.sec[mt.section].flat, &ps.phi
+	panel := &w.panel
+	// The panels in reverse, so that each one's bit enters the mask by a
+	// shift of it (no shift by a variable count).
 	var in uint32
-	for p, o := range off {
+	for p := len(off) - 1; p >= 0; p-- {
+		o := off[p]
+		in <<= 1
 		if !dom.Contains(o) {
 			continue
 		}
 		x := (o - lo) * inv // in [0, mt.last]: the table covers the domain
 		j := min(int(x), top)
 		kf := &flat[j*registration.MCGroup+p]
-		if kf.panel != w.panel[p] {
-			mt.fill(kf, w.sec[mt.section].w[p], j, w.panel[p])
+		if kf.panel != panel[p] {
+			mt.fill(kf, w.sec[mt.section].w[p], j, panel[p])
 		}
 		rw, f := &rows[j], x-float64(j)
 		c, v := rw.curve(f)
 		flat := kf.at(f)
-		if mt.second == nil {
-			if mt.inSpec(c, flat+rw.sh.at(ph, f), v, nrm[p]) {
-				in |= 1 << p
-			}
-		} else if mt.inSpecSecond(j, f, c, flat+rw.sh.at(ph, f), flat, v, nrm[p]) { // variation_quad_mc.go
-			in |= 1 << p
+		lin := flat + rw.sh.at(ph, f)
+		var m float64
+		if second {
+			m = rw.q.coupling(f, c, lin, flat, siteDev(v, nrm[p])) // variation_quad_mc.go
+		} else {
+			m = firstOrder(c, lin, v, nrm[p])
 		}
+		in |= win.bit(m)
 	}
 	return in
 }
@@ -221,7 +231,7 @@ func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream)
 		var ok bool
 		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
 			c, lin, v := w.at(p, ps, x)
-			if mt.second == nil {
+			if !mt.second {
 				ok = mt.inSpec(c, lin, v, nrm[p])
 			} else {
 				j := min(int(x), mt.n-1)
@@ -256,14 +266,42 @@ func (w *procCheckWorker) norms(off []float64, mt *mcTab, r *registration.Stream
 // inSpec is the rule for an offset in the domain whose coupling is
 // c + lin + √v·n: c the curve, lin the linear process part without the
 // per-site parts, v the variance of the per-site parts and n a standard
-// normal draw. The per-site parts are independent normals that enter
-// linearly, so their sum Σ sᵢ·σᵢ·Nᵢ is drawn as one normal √v·n: the same
-// distribution with one draw.
+// normal draw (firstOrder), inside the spec window.
 func (mt *mcTab) inSpec(c, lin, v, n float64) bool {
+	return mt.window.bit(firstOrder(c, lin, v, n)) == 1
+}
+
+// firstOrder returns the coupling c + lin + √v·n of inSpec. The per-site
+// parts are independent normals that enter linearly, so their sum
+// Σ sᵢ·σᵢ·Nᵢ is drawn as one normal √v·n: the same distribution with one
+// draw.
+func firstOrder(c, lin, v, n float64) float64 {
 	if v > 0 {
 		lin += math.Sqrt(v) * n
 	}
-	return math.Abs(c+lin-mt.spec) <= mt.tol
+	return c + lin
+}
+
+// siteDev returns the per-site parts' deviation √v·n (0 when v is 0).
+func siteDev(v, n float64) float64 {
+	if v > 0 {
+		return math.Sqrt(v) * n
+	}
+	return 0
+}
+
+// specWindow is a section's spec window, |m − spec| ≤ tol, the one test
+// of "in spec" in Monte Carlo.
+type specWindow struct{ spec, tol float64 }
+
+// bit returns 1 when coupling m is inside the window, 0 otherwise: a
+// value, not a branch, for the mask of InSpec, since a site's draws fall
+// out of spec at random.
+func (sw specWindow) bit(m float64) uint32 {
+	if math.Abs(m-sw.spec) <= sw.tol {
+		return 1
+	}
+	return 0
 }
 
 // at returns, at table position x (0 ≤ x ≤ mt.last) for site ps on the
@@ -296,7 +334,7 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
 // the groups in chunks of mcChunk (mcShapes.at).
 func (r *mcRow) curve(f float64) (c, v float64) {
 	k := &r.k
-	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(2*k[5]+f*k[6])
+	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(k[5]+f*k[6])
 }
 
 func (kf *pcFlat) at(f float64) float64 { return kf.a + f*kf.g }
@@ -370,12 +408,14 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 // mcChunk padded with zeros.
 const mcChunk = 4
 
-// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, B, C
-// and one unused value, and sh the first mcChunk groups' Gq and dGq, so
-// that a row is 128 bytes.
+// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, 2B, C
+// and one unused value, sh the first mcChunk groups' Gq and dGq, and q
+// the second-order term's values (mcSecond; zero without one), so that
+// one interval's values lie together in three cache lines.
 type mcRow struct {
 	k  [8]float64
 	sh mcShapes
+	q  mcSecond
 }
 
 // mcShapes is one chunk of shape groups in one interval: their Gq
@@ -424,12 +464,12 @@ type mcTab struct {
 	site          bool // some bound term has a per-site part
 	// covers says that every offset of the domain has its x in [0, last]:
 	// x = (off − lo)·inv rounds monotonically in off, so the ends decide.
-	covers    bool
-	domain    registration.Interval
-	spec, tol float64
-	// second holds per interval the second-order term (fillSecond,
-	// variation_quad_mc.go); nil without one.
-	second []mcSecond
+	covers bool
+	domain registration.Interval
+	window specWindow
+	// second says that the rows hold a second-order term (mcRow.q,
+	// fillSecond, variation_quad_mc.go).
+	second bool
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the
@@ -453,7 +493,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	nb := len(pr.Bind)
 	mt := &mcTab{ev: ev, section: i, sv: make([]float64, nb), mean: make([]float64, nb), amp: make([]float64, nb), group: make([]int, nb),
 		nb: nb, n: pr.tabRows - 1, lo: pr.tabLo, step: pr.tabStep, inv: 1 / pr.tabStep,
-		domain: pr.Domain, spec: ev.Curve.Section.Spec.Coupling, tol: ev.Curve.Section.Spec.Tolerance}
+		domain: pr.Domain, window: specWindow{ev.Curve.Section.Spec.Coupling, ev.Curve.Section.Spec.Tolerance}}
 	for b, bd := range pr.Bind {
 		t := &pr.Model.Terms[bd.Term]
 		mt.sv[b] = t.SiteSigma * t.SiteSigma
@@ -515,6 +555,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 			k[5] += mt.sv[b] * s * ds
 			k[6] += mt.sv[b] * ds * ds
 		}
+		k[5] *= 2 // 2B, exact: curve reads it without the product
 		// The cubic through the curve at f = 0, 1/3, 2/3, 1 by Newton's
 		// forward differences in u = 3f (Abramowitz & Stegun, Handbook of
 		// Mathematical Functions, 25.2.4), expanded into powers of f.

@@ -132,3 +132,70 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 		t.Errorf("table against the curve: mean %.3g dB (bound %g), variance %.3g (bound %g)", worstM, meanBound, worstV, varBound)
 	}
 }
+
+// TestMCSecondHotSlow: with a strong second-order term (curvedInput) the
+// hot path of InSpec, which reads the table (mcRow with its mcSecond),
+// and the slow path, which reads the curve, Proc.rows and Proc.secondAt
+// (inSpecSlow, inSpecSlowSecond), decide alike on the same panels,
+// offsets and normal draws over the whole domain. The two sum the same
+// model in different orders, so a draw whose coupling lies within
+// edgeBound of a window edge may go either way and is left out; TestMCTab
+// measures the table's difference from the curve at 2.2e-15 dB, and
+// edgeBound is a million times that, still far below any tolerance.
+func TestMCSecondHotSlow(t *testing.T) {
+	const edgeBound = 1e-9 // dB
+	in := curvedInput(t, "hotslow", 0.15)
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	pc := newProcCheck(a)
+	if pc == nil || !pc.tabs[0].second || !pc.tabs[0].covers || !pc.tabs[0].site {
+		t.Fatal("no second-order term on the table's hot path with per-site parts")
+	}
+	mt := pc.tabs[0]
+	w := pc.NewWorker().(*procCheckWorker)
+	rng := rand.New(rand.NewPCG(5, 6))
+	offs := make([]float64, registration.MCGroup)
+	nrm := make([]float64, registration.MCGroup)
+	var r registration.Stream
+	var in1, out, near int
+	for trial := range 400 {
+		for p := range registration.MCGroup {
+			for t := range w.dev {
+				w.dev[t] = 0.8 * mil * rng.NormFloat64()
+			}
+			w.newPanel(p)
+		}
+		for k := range pc.sites {
+			for p := range offs {
+				offs[p] = mt.domain.Lo + rng.Float64()*(mt.domain.Hi-mt.domain.Lo)
+			}
+			r.Seed(9, uint64(trial*len(pc.sites)+k))
+			same := r // the same normals for the slow path
+			same.Norms(nrm)
+			hot := w.InSpec(k, offs, &r)
+			for p, o := range offs {
+				c, lin, v := w.slowAt(p, k, o)
+				m := w.slowSecond(p, k, o, c, lin, v, nrm[p])
+				if math.Abs(math.Abs(m-mt.window.spec)-mt.window.tol) < edgeBound {
+					near++
+					continue
+				}
+				slow := w.inSpecSlow(p, k, o, nrm[p])
+				if slow != (hot>>p&1 == 1) {
+					t.Fatalf("trial %d, site %d, slot %d at %.4f mil: hot path %v, slow path %v (coupling %.6f dB)", trial, k, p, o/mil, !slow, slow, m)
+				}
+				if slow {
+					in1++
+				} else {
+					out++
+				}
+			}
+		}
+	}
+	t.Logf("%d draws in spec, %d out, %d within %g dB of an edge", in1, out, near, edgeBound)
+	if in1 < 1000 || out < 1000 {
+		t.Errorf("%d draws in spec and %d out: the case should meet and miss the window", in1, out)
+	}
+}
