@@ -3,6 +3,7 @@ package drift
 import (
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"testing"
 
 	"gonum.org/v1/gonum/integrate/quad"
@@ -336,5 +337,109 @@ func BenchmarkSiteUniform(b *testing.B) {
 				ev.worstDriftProc(r.Offset, r.Stats.SDAcross, &row)
 			}
 		})
+	}
+}
+
+// TestUniformEdgeCoupled works an edge-coupled pair (its offset fixed)
+// whose width varies from panel to panel uniformly over ±w and nothing
+// else, first order, by hand from the uniform distribution: the coupling
+// c₀ + s·U is uniform over c₀ ± |s|·w, so P(in spec) is the share of that
+// interval inside the window; the worst drift is at U = ±(2Φ(3) − 1)·w,
+// the points a normal part reaches at 3σ with the same probability
+// (Abramowitz & Stegun 26.2.29); and the offset domain is the spec
+// interval widened by |s|·w, the box edge, not 6·|s|·w/√3. Then with a
+// per-site normal part beside it, P(in spec) against the Gil-Pelaez
+// inversion of the same sum.
+func TestUniformEdgeCoupled(t *testing.T) {
+	const w = 0.6 * mil
+	s := microstripPair()
+	size := panel.Vec{X: 18 * inch, Y: 24 * inch}
+	box := registration.Term{Spread: w, Dist: registration.Uniform}
+	pm := &process.Model{Size: size, Terms: []process.Term{{Name: "w", Layer: "L1", Quantity: process.Width, Panel: box}}}
+	// A first solve for the sensitivity, to place the window inside the
+	// coupling's box.
+	ev := procEvaluator(t, s, &registration.Model{}, pm, []panel.Vec{{}})
+	nom := s.NominalOffset()
+	sw := ev.termSens(0, nom)
+	c0 := ev.Curve.Coupling(nom)
+	half := math.Abs(sw) * w // the coupling's half-width
+	if half < 0.05 {
+		t.Fatalf("sensitivity %g dB/mil: too small for the case", sw*mil)
+	}
+	// A window from c₀ − 0.3·half to c₀ + 0.5·half: centre c₀ + 0.1·half.
+	s.Spec = section.Spec{Coupling: c0 + 0.1*half, Tolerance: 0.4 * half}
+	ev = procEvaluator(t, s, &registration.Model{}, pm, []panel.Vec{{}})
+	// The solve for the new spec reaches other offsets: the curve and
+	// its sensitivities move by the solver's accuracy. Take them anew.
+	sw, c0 = ev.termSens(0, nom), ev.Curve.Coupling(nom)
+	half = math.Abs(sw) * w
+	lim := [2]float64{s.Spec.Coupling - s.Spec.Tolerance, s.Spec.Coupling + s.Spec.Tolerance}
+	r := ev.Eval(panel.Vec{}, panel.Vec{X: 1})
+	want := (math.Min(lim[1], c0+half) - math.Max(lim[0], c0-half)) / (2 * half)
+	t.Logf("P %.3g from the box share, worst drift %.3g dB from the 3σ point", r.PInSpec-want, math.Abs(r.WorstDrift)-half*(1-2*normCDF(-3)))
+	// Measured: P exact, the worst drift 2.7e-11 dB off (its point is
+	// placed to boxQuantileTol, 1e-10 relative); bounds boxExact and
+	// 1e-9 of the box, ten times the quantile's tolerance.
+	if math.Abs(r.PInSpec-want) > boxExact {
+		t.Errorf("P = %.12f, want the share of the box inside the window %.12f", r.PInSpec, want)
+	}
+	if want := half * (1 - 2*normCDF(-3)); math.Abs(math.Abs(r.WorstDrift)-want) > 1e-9*half {
+		t.Errorf("worst drift %.9f dB, want ±%.9f", r.WorstDrift, want)
+	}
+	lo, hi := ev.Curve.Curve.Range()
+	iv, _, err := registration.SpecInterval(ev.Curve.Coupling, lo, hi, nom, s.Spec.Coupling, s.Spec.Tolerance+half)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := ev.Proc.Domain; math.Abs(d.Lo-iv.Lo) > 1e-12 || math.Abs(d.Hi-iv.Hi) > 1e-12 {
+		t.Errorf("domain %v, want %v (the window widened by the box edge)", d, iv)
+	}
+	t.Logf("P %.6f, worst drift %.5f dB of a %.5f dB box", r.PInSpec, r.WorstDrift, half)
+
+	// With a per-site normal part of a third of the box.
+	pm.Terms[0].SiteSigma = w / 3
+	ev = procEvaluator(t, s, &registration.Model{}, pm, []panel.Vec{{}})
+	r = ev.Eval(panel.Vec{}, panel.Vec{X: 1})
+	sd := math.Abs(sw) * w / 3
+	want = gilPelaez(lim[1]-c0, sd, []float64{half}) - gilPelaez(lim[0]-c0, sd, []float64{half})
+	t.Logf("with a site part: P %.3g from Gil-Pelaez", r.PInSpec-want)
+	if math.Abs(r.PInSpec-want) > boxExact { // measured 1.1e-16
+		t.Errorf("with a site part: P = %.12f, Gil-Pelaez %.12f", r.PInSpec, want)
+	}
+}
+
+// TestWindowQuadBoxes: the window of m + s·X + q·X², X a normal plus two
+// uniforms, against a Monte Carlo of 10⁶ draws within 4 standard errors
+// (binomial, as TestWindowQuad).
+func TestWindowQuadBoxes(t *testing.T) {
+	var d boxNormal
+	const sn, a1, a2 = 0.4, 1.2, 0.5
+	v := sn*sn + (a1*a1+a2*a2)/3
+	d.set(sn*sn, []float64{a1, a2}, v)
+	rng := rand.New(rand.NewPCG(5, 6))
+	const n = 1000000
+	xs := make([]float64, n)
+	for i := range xs {
+		xs[i] = (sn*rng.NormFloat64() + a1*(2*rng.Float64()-1) + a2*(2*rng.Float64()-1)) / math.Sqrt(v)
+	}
+	for _, tt := range []struct{ m, s, q, lo, hi float64 }{
+		{0, 1, 0, -0.8, 1.1},
+		{0.1, 1, 0.2, -0.8, 1.1},
+		{0.1, 1, -0.3, -0.8, 0.6},
+		{0, 0.2, 0.5, 0.1, 0.9},
+		{-0.2, 0.5, -0.4, -1, 0},
+	} {
+		good := 0
+		for _, x := range xs {
+			if c := tt.m + tt.s*x + tt.q*x*x; c >= tt.lo && c <= tt.hi {
+				good++
+			}
+		}
+		p := float64(good) / n
+		se := math.Sqrt(p * (1 - p) / n)
+		got := windowQuadOf(&d, tt.m, tt.s, tt.q, tt.lo, tt.hi)
+		if math.Abs(got-p) > 4*se {
+			t.Errorf("m %g s %g q %g: closed form %.5f, Monte Carlo %.5f ± %.5f", tt.m, tt.s, tt.q, got, p, se)
+		}
 	}
 }
