@@ -32,13 +32,14 @@ import (
 //
 // and is normal when every panel part is normal or fixed. A uniform panel
 // part (half-width w, variance w²/3 in v) is held as it is distributed:
-// the deviation is then a normal part plus up to maxBoxes boxes, whose CDF
-// has a closed form in the repeated integrals of erfc
-// (variation_uniform.go); the window, the worst drift (the deviation's
-// 0.135 % points, where a normal one's 3σ lie) and the reach of the offset
-// domain (the box edge) read it, and a job without uniform panel parts
-// takes the normal path unchanged. Beyond maxBoxes uniform parts at a site
-// the narrowest are taken by their variance (measured error below 1e-3).
+// the deviation is then a normal part plus boxes, whose CDF has a closed
+// form in the repeated integrals of erfc (variation_uniform.go); the
+// window, the worst drift (the deviation's 0.135 % points, where a normal
+// one's 3σ lie) and the reach of the offset domain (the box edge) read it,
+// and a job without uniform panel parts takes the normal path unchanged.
+// Beyond maxBoxes uniform parts wide against the normal part, the
+// narrowest of them are taken by their variance (measured error below
+// 1e-3).
 // The offset's own distribution is the registration yield's, uniform terms
 // exact (registration.SiteProb: its density PDF, its probability CDF).
 //
@@ -552,7 +553,7 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 	// Pieces split at the crossings of m(δ) with lo and hi, graded about
 	// each crossing, and at the edges of the uniform parts' boxes, graded
 	// when the normal part rounds them over less than the box.
-	var cuts [procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
+	var cuts [2*procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
 	nc := 0
 	add := func(x float64) {
 		if x > a && x < b && nc < len(cuts) {
@@ -594,6 +595,9 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 			}
 		}
 		x0, g0l, g0h = x1, g1l, g1h
+	}
+	if pr.boxes > 0 {
+		e.boxCuts(a, b, pr, lo, hi, add)
 	}
 	// Pieces of at most procPiece standard deviations of the offset's
 	// normal part, about the mean and about each box edge.
@@ -654,6 +658,55 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 		left, wl = right, wr
 	}
 	return math.Min(1, math.Max(0, p))
+}
+
+// boxCuts adds the cuts about the kinks that wide uniform parts put in
+// the window over [a, b]: where an edge of the coupling's box,
+// m(δ) ± √v·A + q·A² at X = ±A, A = Σ aⱼ over boxNormal's wide boxes,
+// meets a limit, found as the
+// crossings of m(δ) as in pInSpecProc, and graded by the normal part's
+// width in δ when it rounds the kink over less than the box.
+func (e *Evaluator) boxCuts(a, b float64, pr *procRow, lo, hi float64, add func(float64)) {
+	// edge returns the four edges' distances to the limits at x and the
+	// normal part's width in coupling.
+	edge := func(x float64) (f [4]float64, r, sdc float64) {
+		var d boxNormal
+		m, v, q := e.atBoxes(x, pr, &d)
+		var ax float64
+		for _, w := range d.a[:d.n] {
+			ax += w
+		}
+		r = math.Sqrt(v) * ax
+		m += q * ax * ax // the coupling at X = ±Σ aⱼ is m ± r + q·(Σ aⱼ)²
+		return [4]float64{m + r - lo, m - r - lo, m + r - hi, m - r - hi}, r, math.Sqrt(v) * d.sd
+	}
+	x0 := a
+	f0, _, _ := edge(x0)
+	cross := 0
+	for k := 1; k <= procScan; k++ {
+		x1 := a + (b-a)*float64(k)/procScan
+		f1, r1, _ := edge(x1)
+		for j := range f1 {
+			if f0[j]*f1[j] >= 0 || r1 == 0 || cross == procMaxCross {
+				continue
+			}
+			cross++
+			xc := crossing(x0, x1, f0[j], f1[j], (x1-x0)*procCrossTol, func(x float64) float64 {
+				f, _, _ := edge(x)
+				return f[j]
+			})
+			add(xc)
+			_, r, sdc := edge(xc)
+			slope := math.Abs(f1[j]-f0[j]) / (x1 - x0)
+			if sdc < r && slope > 0 {
+				for _, g := range procGrade {
+					add(xc - g*sdc/slope)
+					add(xc + g*sdc/slope)
+				}
+			}
+		}
+		x0, f0 = x1, f1
+	}
 }
 
 // bindProc returns the process side of the evaluator of curve c under
