@@ -26,15 +26,22 @@ import (
 // terms (sᵢ the solver's coupling sensitivity curves, section.Curve.
 // CouplingSensitivity). A site's terms are independent, each with mean
 // μᵢ(p) = panel mean + shape(p) and variance σᵢ² = panel + site variance,
-// so conditional on δ the coupling is normal with
+// so conditional on δ the coupling has mean and variance
 //
 //	m(δ) = c(δ) + Σ sᵢ(δ)·μᵢ,  v(δ) = Σ sᵢ(δ)²·σᵢ²
 //
-// (uniform panel parts of the process terms enter by their variance, w²/3:
-// a sum of a dozen terms is close to normal by the central limit theorem;
-// BUG below). The offset's own distribution is the registration yield's,
-// uniform terms exact (registration.SiteProb: its density PDF, its
-// probability CDF).
+// and is normal when every panel part is normal or fixed. A uniform panel
+// part (half-width w, variance w²/3 in v) is held as it is distributed:
+// the deviation is then a normal part plus boxes, whose CDF has a closed
+// form in the repeated integrals of erfc (variation_uniform.go); the
+// window, the worst drift (the deviation's 0.135 % points, where a normal
+// one's 3σ lie) and the reach of the offset domain (the box edge) read it,
+// and a job without uniform panel parts takes the normal path unchanged.
+// Beyond maxBoxes uniform parts wide against the normal part, the
+// narrowest of them are taken by their variance (measured error below
+// 1e-3).
+// The offset's own distribution is the registration yield's, uniform terms
+// exact (registration.SiteProb: its density PDF, its probability CDF).
 //
 // Second order. The evaluator adds to this a second-order term along the
 // direction of steepest change, fitted per section by direct solves
@@ -49,14 +56,17 @@ import (
 // window and its offset lies in the section's offset domain: the connected
 // interval about the design offset over which the curve stays inside the
 // window widened by the largest process reach W of the section's sites
-// (|Σ sᵢμᵢ| + 6·√v at the design offset). Without process terms W = 0,
+// (|Σ sᵢμᵢ| + 6·√v at the design offset; with uniform parts 6σ of the
+// normal part plus each box's half-width). Without process terms W = 0,
 // the domain is the allowed interval and the rule is the registration
 // rule (Curve.InSpec); with them, a coupling that re-enters the window far
 // from the design (through offsets where no process excursion could keep
 // it in spec) still counts as out of spec, as before.
 //
 // P(in spec) = ∫ φ_δ(δ)·[Φ((hi − m)/√v) − Φ((lo − m)/√v)] dδ over the
-// domain (first order; windowQuad with the second-order term), δ normal
+// domain (first order with normal parts; windowQuadOf with the
+// second-order term, and the deviation's own CDF for Φ with uniform
+// parts), δ normal
 // (its registration mean and standard deviation). The
 // integrand steps where m(δ) crosses a spec limit, with a width √v/|m'|
 // that is anything from the whole range to nothing; Gauss–Hermite nodes
@@ -66,10 +76,9 @@ import (
 // integrate/quad.Legendre): a sharp step then falls on a piece boundary
 // and each piece is smooth.
 //
-// BUG(variation): in the closed form, a uniform panel part of a process
-// term enters the coupling by its variance (normal of the same σ); Monte
-// Carlo draws it uniform. The coupling budget's expectations over the
-// offset take it as normal of its full variance.
+// The coupling budget (variation_budget.go) shares variances, where a
+// uniform part's w²/3 is exact; only its second-order part, 2q², is the
+// normal's Var t² (a uniform part's is smaller).
 
 // procSigmas is how many standard deviations of the process part the
 // offset domain allows for (see above); a normal tail beyond 6σ holds
@@ -263,13 +272,16 @@ func (pr *Proc) rowAt(off float64) (i int, f float64) {
 // the stack; more take one allocation per evaluation.
 const maxStackTerms = 24
 
-// procRow is a site's process terms: per binding its mean and variance,
+// procRow is a site's process terms: per binding its mean, variance and
+// the half-width of its uniform panel part (0 for a normal or fixed one),
 // held in the row itself up to maxStackTerms bindings (so that a row on
-// the stack does not escape), on the heap beyond.
+// the stack does not escape), on the heap beyond; boxes counts the
+// bindings with a uniform part.
 type procRow struct {
-	n        int
-	mu, va   [maxStackTerms]float64
-	muH, vaH []float64
+	n            int
+	mu, va, w    [maxStackTerms]float64
+	muH, vaH, wH []float64
+	boxes        int
 }
 
 // means and vars return the row's means and variances per binding.
@@ -287,18 +299,31 @@ func (r *procRow) vars() []float64 {
 	return r.va[:r.n]
 }
 
+// halfWidths returns the row's uniform half-widths per binding.
+func (r *procRow) halfWidths() []float64 {
+	if r.wH != nil {
+		return r.wH
+	}
+	return r.w[:r.n]
+}
+
 // row fills r with the process terms of a site at p.
 func (pr *Proc) row(r *procRow, p panel.Vec) {
 	n := len(pr.Bind)
-	r.n, r.muH, r.vaH = n, nil, nil
+	r.n, r.muH, r.vaH, r.wH, r.boxes = n, nil, nil, nil, 0
 	if n > maxStackTerms {
-		r.muH, r.vaH = make([]float64, n), make([]float64, n)
+		r.muH, r.vaH, r.wH = make([]float64, n), make([]float64, n), make([]float64, n)
 	}
-	mu, va := r.means(), r.vars()
+	mu, va, w := r.means(), r.vars(), r.halfWidths()
 	for b, bd := range pr.Bind {
 		t := &pr.Model.Terms[bd.Term]
 		mu[b] = t.Mean(p, pr.Model.Size)
 		va[b] = t.Variance()
+		w[b] = 0
+		if t.Panel.Dist == registration.Uniform && t.Panel.Spread > 0 {
+			w[b] = t.Panel.Spread
+			r.boxes++
+		}
 	}
 }
 
@@ -331,6 +356,41 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	return m + e0, kappa * kappa * v, rho * v
 }
 
+// atBoxes is at for a row with uniform parts (r.boxes > 0): it fills d
+// with the distribution of X = L/√v₁, L the first-order deviation and
+// v₁ = Σ sᵢ²σᵢ² its variance (variation_uniform.go); conditional on δ the
+// coupling is m + √v·X + q·X².
+func (e *Evaluator) atBoxes(off float64, r *procRow, d *boxNormal) (m, v, q float64) {
+	m = e.Curve.Coupling(off)
+	r0, r1, i, f := e.Proc.rowsAt(off)
+	mus, va, ws := r.means(), r.vars(), r.halfWidths()
+	r0, r1, va, ws = r0[:len(mus)], r1[:len(mus)], va[:len(mus)], ws[:len(mus)]
+	var buf [maxStackTerms]float64
+	a := buf[:0]
+	var vn float64
+	for b, mu := range mus {
+		s := r0[b] + f*(r1[b]-r0[b])
+		m += s * mu
+		v += s * s * va[b]
+		if w := ws[b]; w > 0 {
+			vn += s * s * (va[b] - w*w/3)
+			a = append(a, math.Abs(s)*w)
+		} else {
+			vn += s * s * va[b]
+		}
+	}
+	if v > 0 {
+		d.set(vn, a, v)
+	} else {
+		*d = boxNormal{sd: 1, sd0: 1}
+	}
+	if e.Proc.second == nil {
+		return m, v, 0
+	}
+	e0, kappa, rho := e.Proc.secondRow(i, f)
+	return m + e0, kappa * kappa * v, rho * v
+}
+
 // meanCoupling returns the conditional mean m(δ) + q(δ) of the coupling.
 func (e *Evaluator) meanCoupling(off float64, r *procRow) float64 {
 	m, _, q := e.at(off, r)
@@ -355,7 +415,11 @@ func (e *Evaluator) mean(off float64, r *procRow) float64 {
 
 // window returns P(lo ≤ coupling ≤ hi) for a normal coupling of mean m and
 // variance v.
-func window(m, v, lo, hi float64) float64 {
+func window(m, v, lo, hi float64) float64 { return windowOf(nil, m, v, lo, hi) }
+
+// windowOf returns P(lo ≤ m + √v·X ≤ hi) for X distributed as d (nil:
+// standard normal).
+func windowOf(d *boxNormal, m, v, lo, hi float64) float64 {
 	if v <= 0 {
 		if m >= lo && m <= hi {
 			return 1
@@ -363,7 +427,7 @@ func window(m, v, lo, hi float64) float64 {
 		return 0
 	}
 	s := math.Sqrt(v)
-	return math.Max(0, normCDF((hi-m)/s)-normCDF((lo-m)/s))
+	return math.Max(0, d.cdf((hi-m)/s)-d.cdf((lo-m)/s))
 }
 
 // windowFar is where Φ(x) rounds to 1 in float64: 1 − Φ(8.3) = 5.2e-17 <
@@ -381,10 +445,17 @@ func normCDF(x float64) float64 {
 	return registration.NormalCDF(x)
 }
 
-// windowAt returns the window probability at offset off.
+// windowAt returns the window probability at offset off: with uniform
+// parts in the row, of the coupling m + √v·X + q·X² with X as distributed
+// (atBoxes); without, X standard normal.
 func (e *Evaluator) windowAt(off float64, pr *procRow, lo, hi float64) float64 {
-	m, v, q := e.at(off, pr)
-	return windowQuad(m, math.Sqrt(v), q, lo, hi)
+	if pr.boxes == 0 {
+		m, v, q := e.at(off, pr)
+		return windowQuad(m, math.Sqrt(v), q, lo, hi)
+	}
+	var d boxNormal
+	m, v, q := e.atBoxes(off, pr, &d)
+	return windowQuadOf(&d, m, math.Sqrt(v), q, lo, hi)
 }
 
 // procSure is how close to 1 (or 0) the window probability must be at both
@@ -431,13 +502,25 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 
 // worstDriftProc is worstDrift with the process terms: the largest
 // |m(δ) + √v(δ)·t + q(δ)·t² − nominal| over |t| ≤ 3 and the offsets
-// within mean ± 3σ.
+// within mean ± 3σ. With uniform parts t ranges over |t| ≤ z, z the point
+// the deviation passes with the probability of a normal one's 3σ,
+// Φ(−3) = 0.135 % each side (boxNormal.quantileSigmas): a uniform alone
+// reaches 0.9973 of its half-width, a normal part its 3σ.
 func (e *Evaluator) worstDriftProc(mean, sd float64, pr *procRow) float64 {
 	lo, hi := mean-3*sd, mean+3*sd
 	worst := 0.0
+	z := 3.0
 	for k := 0; k <= worstDriftSamples; k++ {
-		m, v, q := e.at(lo+(hi-lo)*float64(k)/worstDriftSamples, pr)
-		cl, ch := quadExtremes(m, math.Sqrt(v), q, 3)
+		off := lo + (hi-lo)*float64(k)/worstDriftSamples
+		var m, v, q float64
+		if pr.boxes == 0 {
+			m, v, q = e.at(off, pr)
+		} else {
+			var d boxNormal
+			m, v, q = e.atBoxes(off, pr, &d)
+			z = d.quantileSigmas(3, z)
+		}
+		cl, ch := quadExtremes(m, math.Sqrt(v), q, z)
 		for _, d := range [2]float64{cl - e.Curve.Nominal, ch - e.Curve.Nominal} {
 			if math.Abs(d) > math.Abs(worst) {
 				worst = d
@@ -470,7 +553,7 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 	// Pieces split at the crossings of m(δ) with lo and hi, graded about
 	// each crossing, and at the edges of the uniform parts' boxes, graded
 	// when the normal part rounds them over less than the box.
-	var cuts [procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
+	var cuts [2*procMaxCross*(1+2*len(procGrade)) + 4*(1+2*len(procGrade)) + procMaxPieces + 1]float64
 	nc := 0
 	add := func(x float64) {
 		if x > a && x < b && nc < len(cuts) {
@@ -512,6 +595,9 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 			}
 		}
 		x0, g0l, g0h = x1, g1l, g1h
+	}
+	if pr.boxes > 0 {
+		e.boxCuts(a, b, pr, lo, hi, add)
 	}
 	// Pieces of at most procPiece standard deviations of the offset's
 	// normal part, about the mean and about each box edge.
@@ -574,6 +660,55 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 	return math.Min(1, math.Max(0, p))
 }
 
+// boxCuts adds the cuts about the kinks that wide uniform parts put in
+// the window over [a, b]: where an edge of the coupling's box,
+// m(δ) ± √v·A + q·A² at X = ±A, A = Σ aⱼ over boxNormal's wide boxes,
+// meets a limit, found as the
+// crossings of m(δ) as in pInSpecProc, and graded by the normal part's
+// width in δ when it rounds the kink over less than the box.
+func (e *Evaluator) boxCuts(a, b float64, pr *procRow, lo, hi float64, add func(float64)) {
+	// edge returns the four edges' distances to the limits at x and the
+	// normal part's width in coupling.
+	edge := func(x float64) (f [4]float64, r, sdc float64) {
+		var d boxNormal
+		m, v, q := e.atBoxes(x, pr, &d)
+		var ax float64
+		for _, w := range d.a[:d.n] {
+			ax += w
+		}
+		r = math.Sqrt(v) * ax
+		m += q * ax * ax // the coupling at X = ±Σ aⱼ is m ± r + q·(Σ aⱼ)²
+		return [4]float64{m + r - lo, m - r - lo, m + r - hi, m - r - hi}, r, math.Sqrt(v) * d.sd
+	}
+	x0 := a
+	f0, _, _ := edge(x0)
+	cross := 0
+	for k := 1; k <= procScan; k++ {
+		x1 := a + (b-a)*float64(k)/procScan
+		f1, r1, _ := edge(x1)
+		for j := range f1 {
+			if f0[j]*f1[j] >= 0 || r1 == 0 || cross == procMaxCross {
+				continue
+			}
+			cross++
+			xc := crossing(x0, x1, f0[j], f1[j], (x1-x0)*procCrossTol, func(x float64) float64 {
+				f, _, _ := edge(x)
+				return f[j]
+			})
+			add(xc)
+			_, r, sdc := edge(xc)
+			slope := math.Abs(f1[j]-f0[j]) / (x1 - x0)
+			if sdc < r && slope > 0 {
+				for _, g := range procGrade {
+					add(xc - g*sdc/slope)
+					add(xc + g*sdc/slope)
+				}
+			}
+		}
+		x0, f0 = x1, f1
+	}
+}
+
 // bindProc returns the process side of the evaluator of curve c under
 // model m for the sites at the positions given: the bindings and the
 // offset domain. It panics when a term moves a parameter whose sensitivity
@@ -606,7 +741,7 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 // reach returns the largest process reach W of the sites at positions on
 // curve c (tabulated in pr): the farthest the coupling at the design offset
 // moves from the curve's, |Σ sᵢμᵢ + e₀ + q·t² + √v·t| over |t| ≤ procSigmas
-// (quadExtremes). The offset domain is the allowed interval of the spec
+// (quadExtremes), a uniform part reaching its box edge (boxNormal.reach). The offset domain is the allowed interval of the spec
 // window widened by it, and SolveCurves solves far enough to hold that
 // domain: one rule for both.
 func (pr *Proc) reach(c *Curve, positions []panel.Vec) float64 {
@@ -618,7 +753,14 @@ func (pr *Proc) reach(c *Curve, positions []panel.Vec) float64 {
 	for _, p := range positions {
 		pr.row(&row, p)
 		m, v, q := e.at(nom, &row)
-		xl, xh := quadExtremes(m-cn, math.Sqrt(v), q, procSigmas)
+		z := float64(procSigmas)
+		if row.boxes > 0 {
+			// A uniform part reaches its box edge, not 6σ.
+			var d boxNormal
+			m, v, q = e.atBoxes(nom, &row, &d)
+			z = d.reach(procSigmas)
+		}
+		xl, xh := quadExtremes(m-cn, math.Sqrt(v), q, z)
 		w = math.Max(w, math.Max(math.Abs(xl), math.Abs(xh)))
 	}
 	return w

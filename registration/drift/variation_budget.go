@@ -18,7 +18,10 @@ import (
 //
 //	Var C = Var_δ M(δ) + Σᵢ σᵢ²·E_δ[sᵢ(δ)²·(κ² + 2ρ²·v₁)],
 //
-// the first part registration's, each term of the sum one process term's:
+// σᵢ² a term's variance at a site (a uniform panel part's w²/3, exact for
+// the first-order part whatever the distribution; the 2ρ² part takes
+// Var t² = 2, the normal's, which a uniform part lowers), the first part
+// registration's, each term of the sum one process term's:
 // the second-order term's part of V is shared among the terms in
 // proportion to their shares of v₁, the direction it lies along.
 // Both expectations are over δ's normal distribution, with smooth

@@ -366,29 +366,36 @@ func perturbedSection(c *Curve, bind []process.Binding, dp []float64) *section.S
 // quadratics, by the roots' stable form (Press et al., Numerical Recipes,
 // 3rd ed., §5.6: Q = −(s + √D)/2, roots Q/q and c/Q), which keeps the root
 // near (L − m)/s exact as q → 0, where the function becomes window.
-func windowQuad(m, s, q, lo, hi float64) float64 {
+func windowQuad(m, s, q, lo, hi float64) float64 { return windowQuadOf(nil, m, s, q, lo, hi) }
+
+// windowQuadOf is windowQuad for t distributed as d, symmetric about 0
+// (nil: standard normal; variation_uniform.go): the roots do not depend
+// on t's distribution, only the probabilities between them.
+func windowQuadOf(d *boxNormal, m, s, q, lo, hi float64) float64 {
 	if q == 0 {
-		return window(m, s*s, lo, hi)
+		return windowOf(d, m, s*s, lo, hi)
 	}
-	// The common case: both far roots (Q/q, beyond windowFar when the
-	// curvature is small against the slope) leave Φ there 0 or 1, and
-	// P(coupling ≤ L) = Φ(near root): window's own form.
+	// The common case: both far roots (Q/q, beyond far when the
+	// curvature is small against the slope) leave the CDF there 0 or 1,
+	// and P(coupling ≤ L) = F(near root): window's own form.
+	far := d.far()
 	dh, dl := s*s-4*q*(m-hi), s*s-4*q*(m-lo)
 	if dh >= 0 && dl >= 0 {
 		qh, ql := -(s+math.Sqrt(dh))/2, -(s+math.Sqrt(dl))/2
-		lim := -windowFar * math.Abs(q) // Q ≤ 0: the far root beyond windowFar when Q ≤ lim
+		lim := -far * math.Abs(q) // Q ≤ 0: the far root beyond far when Q ≤ lim
 		if qh <= lim && ql <= lim {
-			return math.Max(0, normCDF((m-hi)/qh)-normCDF((m-lo)/ql))
+			return math.Max(0, d.cdf((m-hi)/qh)-d.cdf((m-lo)/ql))
 		}
 	}
-	return math.Min(1, math.Max(0, quadBelow(m, s, q, hi)-quadBelow(m, s, q, lo)))
+	return math.Min(1, math.Max(0, quadBelow(d, m, s, q, hi)-quadBelow(d, m, s, q, lo)))
 }
 
-// quadBelow returns P(m + s·t + q·t² ≤ l), q ≠ 0, s ≥ 0.
-func quadBelow(m, s, q, l float64) float64 {
+// quadBelow returns P(m + s·t + q·t² ≤ l), q ≠ 0, s ≥ 0, t distributed
+// as d (nil: standard normal).
+func quadBelow(d *boxNormal, m, s, q, l float64) float64 {
 	c := m - l
-	d := s*s - 4*q*c
-	if d < 0 {
+	disc := s*s - 4*q*c
+	if disc < 0 {
 		// The parabola does not reach l: wholly above it (q > 0) or
 		// wholly below it (q < 0).
 		if q > 0 {
@@ -396,19 +403,20 @@ func quadBelow(m, s, q, l float64) float64 {
 		}
 		return 1
 	}
-	qq := -(s + math.Sqrt(d)) / 2
-	if qq == 0 { // s = 0 and d = 0: the vertex touches l
+	qq := -(s + math.Sqrt(disc)) / 2
+	if qq == 0 { // s = 0 and disc = 0: the vertex touches l
 		return 0.5 - math.Copysign(0.5, q)
 	}
 	near := c / qq
-	// The far root Q/q beyond windowFar leaves Φ there 0 or 1: a
+	// The far root Q/q beyond far leaves the CDF there 0 or 1: a
 	// product decides it without the quotient.
+	lim := d.far()
 	var far float64
 	switch {
-	case qq >= windowFar*math.Abs(q):
-		far = math.Copysign(windowFar, q)
-	case qq <= -windowFar*math.Abs(q):
-		far = -math.Copysign(windowFar, q)
+	case qq >= lim*math.Abs(q):
+		far = math.Copysign(lim, q)
+	case qq <= -lim*math.Abs(q):
+		far = -math.Copysign(lim, q)
 	default:
 		far = qq / q
 	}
@@ -417,18 +425,21 @@ func quadBelow(m, s, q, l float64) float64 {
 		r1, r2 = r2, r1
 	}
 	if q > 0 {
-		return normBetween(r1, r2) // below l between the roots
+		return between(d, r1, r2) // below l between the roots
 	}
-	return normCDF(r1) + normCDF(-r2) // below l outside them
+	return d.cdf(r1) + d.cdf(-r2) // below l outside them
 }
 
 // normBetween returns Φ(b) − Φ(a), a ≤ b, from the tail nearer both (no
 // cancellation when both lie in one tail).
-func normBetween(a, b float64) float64 {
+func normBetween(a, b float64) float64 { return between(nil, a, b) }
+
+// between is normBetween for t distributed as d, symmetric about 0.
+func between(d *boxNormal, a, b float64) float64 {
 	if a > 0 {
-		return normCDF(-a) - normCDF(-b)
+		return d.cdf(-a) - d.cdf(-b)
 	}
-	return normCDF(b) - normCDF(a)
+	return d.cdf(b) - d.cdf(a)
 }
 
 // quadExtremes returns the smallest and largest of m + s·t + q·t² over
