@@ -307,6 +307,18 @@ func (r *procRow) halfWidths() []float64 {
 	return r.w[:r.n]
 }
 
+// extreme returns how far binding b's deviation reaches at z standard
+// deviations: z·σ, a uniform panel part of half-width w counted to its box
+// edge instead (z·σₙ + w, σₙ the normal parts' standard deviation), since
+// a box holds nothing beyond its edge.
+func (r *procRow) extreme(b int, z float64) float64 {
+	va, w := r.vars()[b], r.halfWidths()[b]
+	if w == 0 {
+		return z * math.Sqrt(va)
+	}
+	return z*math.Sqrt(math.Max(0, va-w*w/3)) + w
+}
+
 // row fills r with the process terms of a site at p.
 func (pr *Proc) row(r *procRow, p panel.Vec) {
 	n := len(pr.Bind)

@@ -10,8 +10,9 @@ import (
 
 // LinearCheck is one direct solve against the first-order prediction: a
 // site's section with every process term at its combined extreme, mean ±
-// 3σ in the direction that moves the coupling that way, solved at the
-// site's mean offset.
+// 3σ in the direction that moves the coupling that way (a uniform panel
+// part at its box edge, procRow.extreme), solved at the site's mean
+// offset.
 type LinearCheck struct {
 	Site    string `json:"site"`
 	Section string `json:"section"`
@@ -100,7 +101,7 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 			var l float64 // the first-order deviation from the site's means
 			for b, bd := range ev.Proc.Bind {
 				sens := ev.termSens(b, r.Offset)
-				dev := z * math.Copysign(math.Sqrt(row.vars()[b]), sens)
+				dev := math.Copysign(row.extreme(b, LinearSigmas), z*sens)
 				dp := row.means()[b] + dev
 				dps[b] = dp
 				pred += sens * dp
