@@ -173,12 +173,19 @@ type Fit struct {
 	// over the targets not reported as outliers, m.
 	RMS, Max float64
 	// Group holds the targets fitted; Target, Fitted, Residual and
-	// Outlier give each one's part of the fit.
+	// Outlier give each one's part of the fit, with the group loaded
+	// (TargetGroup.Load).
 	Group    *TargetGroup
 	Outliers []string // names of the targets reported as outliers
 	// Scale is the residual scale σ the outlier test used, m (0 for ordinary
 	// least squares).
 	Scale float64
+	// Extent is the smallest rectangle holding every target's nominal
+	// position, and MaxMeasured the largest measured displacement |d| of
+	// the targets not reported as outliers, m: what a figure of all the
+	// fits needs before it loads any group.
+	Extent      panel.Rect
+	MaxMeasured float64
 
 	// A fit keeps no array per target beside its group: the fitted
 	// displacement is recomputed from the parameters by the expression
@@ -208,7 +215,7 @@ func (f *Fit) Fitted(i int) panel.Vec {
 
 // Residual returns target i's measured minus fitted displacement.
 func (f *Fit) Residual(i int) panel.Vec {
-	d, m := f.Group.d[i], f.Fitted(i)
+	d, m := f.Group.D(i), f.Fitted(i)
 	return panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
 }
 
@@ -253,11 +260,13 @@ func FitAll(ts []Target, set *FitSettings) ([]Fit, error) {
 }
 
 // FitSet fits each group of s, the fits in the order of the groups. Of
-// several groups that cannot be fitted, the error names the first.
+// several groups that cannot be fitted, the error names the first (a
+// *FitError); an error loading a group is returned as it is.
 //
 // The groups are independent, so set.Workers goroutines take them in turn,
-// each with its own work storage (memory for one group's design rows, not
-// for the set).
+// each loading its group, fitting it and releasing it, with its own work
+// storage: memory for one group's targets and design rows a worker, not for
+// the set. A fit keeps only its parameters and its outliers' indices.
 func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
 	n := len(s.Groups)
 	fits := make([]Fit, n)
@@ -278,7 +287,13 @@ func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
 				if i >= failed.Load() {
 					return // groups after a failed one need no fit: its error is the one reported
 				}
-				f, err := w.fit(s.Groups[i], set)
+				g := s.Groups[i]
+				err := g.Load()
+				var f *Fit
+				if err == nil {
+					f, err = w.fit(g, set)
+					g.Release()
+				}
 				if err != nil {
 					errs[i] = err
 					for {
@@ -302,12 +317,13 @@ func FitSet(s *TargetSet, set *FitSettings) ([]Fit, error) {
 // FitTargets fits the targets of one panel and layer (taken from the first
 // target).
 func FitTargets(ts []Target, set *FitSettings) (*Fit, error) {
-	g := &TargetGroup{sites: newSiteTable()}
+	b := newSetBuilder(0)
+	g := b.newGroup("", "")
 	if len(ts) > 0 {
 		g.Panel, g.Layer = ts[0].Panel, ts[0].Layer
 	}
 	for _, t := range ts {
-		g.add(t.Name, t.Pos, t.D, t.Row)
+		b.add(g, t.Name, t.Pos, t.D, t.Row) // does not fail without a budget
 	}
 	var w fitWork
 	return w.fit(g, set)
@@ -605,7 +621,7 @@ func sortNearlySorted(a []radialResidual) {
 func (w *fitWork) solve(g *TargetGroup, f *Fit, np int, beta, scale *[NumTerms]float64, checkCond bool) error {
 	var nm [NumTerms][NumTerms]float64
 	var rhs [NumTerms]float64
-	for i, d := range g.d {
+	for i, d := range g.loaded().d {
 		wt := w.weights[i]
 		if wt == 0 {
 			continue
@@ -645,7 +661,7 @@ func (w *fitWork) solve(g *TargetGroup, f *Fit, np int, beta, scale *[NumTerms]f
 	for a := 0; a < np; a++ {
 		beta[a] = w.bt.AtVec(a) * scale[a]
 	}
-	for i, d := range g.d {
+	for i, d := range g.loaded().d {
 		m := fitted(&w.ax[i], &w.ay[i], beta, np)
 		w.residuals[i] = panel.Vec{X: d.X - m.X, Y: d.Y - m.Y}
 	}
@@ -701,8 +717,14 @@ func (w *fitWork) finish(f *Fit, np int, beta *[NumTerms]float64) {
 	f.beta = *beta
 	var ss float64
 	n := 0
-	f.Max = 0
+	f.Max, f.MaxMeasured = 0, 0
+	g := f.Group
+	lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
+	hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
 	for i, r := range w.residuals {
+		p := g.Pos(i)
+		lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
+		hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
 		if f.Outlier(i) {
 			continue
 		}
@@ -710,7 +732,10 @@ func (w *fitWork) finish(f *Fit, np int, beta *[NumTerms]float64) {
 		ss += d * d
 		n++
 		f.Max = math.Max(f.Max, d)
+		dm := g.D(i)
+		f.MaxMeasured = math.Max(f.MaxMeasured, math.Hypot(dm.X, dm.Y))
 	}
+	f.Extent = panel.Rect{Min: lo, Max: hi}
 	if n > 0 {
 		f.RMS = math.Sqrt(ss / float64(n))
 	}
@@ -814,16 +839,20 @@ func (l *Lot) Contributor(name string) Contributor {
 // for a contributor's residual.
 //
 // The grid is accumulated target by target into every node's sums, in the
-// order of the fits and of their targets, so it needs memory for the nodes
-// only, not a copy of every residual.
-func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
+// order of the fits and of their targets, each fit's group loaded in turn,
+// so it needs memory for the nodes and one group, not a copy of every
+// residual. The error is that of a group that could not be loaded.
+func PooledResiduals(fits []Fit, layer string, nx, ny int) (*Grid, error) {
 	lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
 	hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
 	n := 0
 	for i := range fits {
 		f := &fits[i]
-		if f.Layer != layer {
+		if f.Layer != layer || f.Len() == 0 {
 			continue
+		}
+		if err := f.Group.Load(); err != nil {
+			return nil, err
 		}
 		for j := range f.Len() {
 			if f.Outlier(j) {
@@ -834,9 +863,10 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 			hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
 			n++
 		}
+		f.Group.Release()
 	}
 	if n == 0 {
-		return nil
+		return nil, nil
 	}
 	nx, ny = max(nx, 2), max(ny, 2)
 	if hi.X == lo.X {
@@ -871,8 +901,11 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 	dy := make([]float64, nx*ny)
 	for fi := range fits {
 		f := &fits[fi]
-		if f.Layer != layer {
+		if f.Layer != layer || f.Len() == 0 {
 			continue
+		}
+		if err := f.Group.Load(); err != nil {
+			return nil, err
 		}
 		for t := range f.Len() {
 			if f.Outlier(t) {
@@ -889,6 +922,7 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 				}
 			}
 		}
+		f.Group.Release()
 	}
 	for j := range g.Y {
 		g.DX[j], g.DY[j] = make([]float64, nx), make([]float64, nx)
@@ -898,5 +932,5 @@ func PooledResiduals(fits []Fit, layer string, nx, ny int) *Grid {
 			}
 		}
 	}
-	return g
+	return g, nil
 }

@@ -379,14 +379,17 @@ func TestPooledResiduals(t *testing.T) {
 		ts[12].D = panel.Vec{X: 5 * um} // the centre target
 		fits = append(fits, Fit{Layer: "L3", Group: GroupTargets(ts).Groups[0]})
 	}
-	g := PooledResiduals(fits, "L3", 5, 5)
+	g, err := PooledResiduals(fits, "L3", 5, 5)
+	if err != nil {
+		t.Fatal(err)
+	}
 	if d := g.At(panel.Vec{}); math.Abs(d.X-5*um) > 0.5*um {
 		t.Errorf("centre %v, want 5 µm in x", d)
 	}
 	if d := g.At(panel.Vec{X: 8 * in, Y: 10 * in}); math.Abs(d.X) > 0.01*um {
 		t.Errorf("corner %v, want 0", d)
 	}
-	if PooledResiduals(fits, "L9", 5, 5) != nil {
+	if g, _ := PooledResiduals(fits, "L9", 5, 5); g != nil {
 		t.Error("grid for a layer without targets")
 	}
 }
@@ -447,7 +450,7 @@ func TestFitSetWorkers(t *testing.T) {
 	bad := GroupTargets(ts)
 	for _, k := range []int{5, 30} {
 		g := bad.Groups[k]
-		g.site, g.d, g.rows = g.site[:1], g.d[:1], g.rows[:1]
+		g.buf.site, g.buf.d, g.buf.rows, g.n = g.buf.site[:1], g.buf.d[:1], g.buf.rows[:1], 1
 	}
 	for _, w := range []int{1, 2, 64} {
 		_, err := FitSet(bad, &FitSettings{Workers: w})

@@ -80,23 +80,30 @@ func TestReadTargetsErrors(t *testing.T) {
 		{"earliest duplicate of interleaved groups", h + "P,L3,A,1,2,0.1,0.2\nP,L4,B,1,2,0.1,0.2\nP,L4,B,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\n", 4, "target", "row 3"},
 		{"third of a name", h + "P,L3,A,1,2,0.1,0.2\nP,L3,B,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\nP,L3,A,1,2,0.1,0.2\n", 4, "target", "also on row 2"},
 	}
-	for _, tt := range tests {
-		t.Run(tt.name, func(t *testing.T) {
-			_, err := ReadTargets(strings.NewReader(tt.csv), "m.csv")
-			var ce *CSVError
-			if !errors.As(err, &ce) {
-				t.Fatalf("error %v, want a *CSVError", err)
-			}
-			if ce.File != "m.csv" || ce.Row != tt.row || ce.Column != tt.column || !strings.Contains(err.Error(), tt.contains) {
-				t.Errorf("error %q (row %d, column %q), want row %d, column %q, containing %q", err, ce.Row, ce.Column, tt.row, tt.column, tt.contains)
-			}
-		})
+	// A budget of one byte spills after every target: the errors must be
+	// those of the set held in memory.
+	for _, budget := range []int{SpillBudget, 1} {
+		for _, tt := range tests {
+			t.Run(fmt.Sprint(tt.name, "/budget ", budget), func(t *testing.T) {
+				withBudget(t, budget)
+				_, err := ReadTargets(strings.NewReader(tt.csv), "m.csv")
+				var ce *CSVError
+				if !errors.As(err, &ce) {
+					t.Fatalf("error %v, want a *CSVError", err)
+				}
+				if ce.File != "m.csv" || ce.Row != tt.row || ce.Column != tt.column || !strings.Contains(err.Error(), tt.contains) {
+					t.Errorf("error %q (row %d, column %q), want row %d, column %q, containing %q", err, ce.Row, ce.Column, tt.row, tt.column, tt.contains)
+				}
+			})
+		}
 	}
 }
 
 // FuzzReadTargets feeds arbitrary bytes to the reader: it must not panic,
 // must return targets or a *CSVError, and every target it returns must be
-// finite with its names set.
+// finite with its names set. Each input is read twice, in memory and with a
+// budget of a few bytes that spills the groups after almost every target
+// and freezes the site table: the two must agree.
 func FuzzReadTargets(f *testing.F) {
 	f.Add("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\nP1,L3,T1,-7.5,10.5,0.25,-1.5\n")
 	f.Add("panel,layer,target,x [mm],y [mm],x_meas [mm],y_meas [mm]\n2,L3-L4,A,100,-50,100.01,-50.02\n")
@@ -105,6 +112,13 @@ func FuzzReadTargets(f *testing.F) {
 	f.Add("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n\"0000") // found by fuzzing: FieldPos after a failed Read
 	f.Fuzz(func(t *testing.T, s string) {
 		ts, err := ReadTargets(strings.NewReader(s), "fuzz.csv")
+		old := SpillBudget
+		SpillBudget = 48
+		spilled, serr := ReadTargets(strings.NewReader(s), "fuzz.csv")
+		SpillBudget = old
+		if fmt.Sprint(err) != fmt.Sprint(serr) || !reflect.DeepEqual(ts, spilled) {
+			t.Fatalf("in memory: %v, %d targets; spilled: %v, %d targets", err, len(ts), serr, len(spilled))
+		}
 		if err != nil {
 			var ce *CSVError
 			if !errors.As(err, &ce) {
@@ -165,7 +179,7 @@ func TestTargetSetSites(t *testing.T) {
 	if n := len(s.sites.pos); n != 51 {
 		t.Errorf("%d sites, want the layout's 50 and one more", n)
 	}
-	if got := s.Targets(); !reflect.DeepEqual(got, ts) {
+	if got, err := s.Targets(); err != nil || !reflect.DeepEqual(got, ts) {
 		t.Error("targets read back differ")
 	}
 	if p := s.Groups[0].Pos(0); !math.Signbit(p.X) {
@@ -179,7 +193,7 @@ func TestTargetSetSites(t *testing.T) {
 	if s.sites.index != nil {
 		t.Error("the site index is kept for sites that do not repeat")
 	}
-	if got := s.Targets(); !reflect.DeepEqual(got, uniq) {
+	if got, err := s.Targets(); err != nil || !reflect.DeepEqual(got, uniq) {
 		t.Error("unique targets read back differ")
 	}
 }
@@ -187,8 +201,22 @@ func TestTargetSetSites(t *testing.T) {
 // BenchmarkReadTargetSet reads an invented file of 100 panels × 8 layers ×
 // 300 targets (240,000 rows, the layout repeated on every panel and layer)
 // and reports the heap a read set keeps per target (retained-B/target),
-// the figure TargetSet's layout is designed for.
+// the figure TargetSet's layout is designed for: held in memory (the
+// file's 5.8 MB of columns are below SpillBudget) and with a budget of
+// 1 MB, where what stays is the buffers, the site table and the groups.
 func BenchmarkReadTargetSet(b *testing.B) {
+	for _, c := range []struct {
+		name   string
+		budget int
+	}{{"memory", SpillBudget}, {"spill1MB", 1 << 20}} {
+		b.Run(c.name, func(b *testing.B) {
+			withBudget(b, c.budget)
+			benchmarkReadTargetSet(b)
+		})
+	}
+}
+
+func benchmarkReadTargetSet(b *testing.B) {
 	var csv strings.Builder
 	csv.WriteString("panel,layer,target,x [in],y [in],dx [mil],dy [mil]\n")
 	rng := rand.New(rand.NewPCG(1, 2))
@@ -205,9 +233,11 @@ func BenchmarkReadTargetSet(b *testing.B) {
 	b.SetBytes(int64(len(data)))
 	b.ReportAllocs()
 	for b.Loop() {
-		if _, err := ReadTargetSet(strings.NewReader(data), "b.csv"); err != nil {
+		s, err := ReadTargetSet(strings.NewReader(data), "b.csv")
+		if err != nil {
 			b.Fatal(err)
 		}
+		s.Close()
 	}
 	b.ReportMetric(perTarget, "retained-B/target")
 }
@@ -223,6 +253,7 @@ func retainedPerTarget(data string) float64 {
 	runtime.GC()
 	runtime.ReadMemStats(&after)
 	n := benchSet.Len()
+	benchSet.Close()
 	benchSet = nil
 	return float64(int64(after.HeapAlloc)-int64(before.HeapAlloc)) / float64(n)
 }

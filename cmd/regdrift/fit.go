@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"github.com/regdrift/regdrift/registration/fitreport"
 	"io"
@@ -110,12 +111,19 @@ func runFitFileIn(path string, stdin io.Reader, set registration.FitSettings, gr
 	}
 	for _, g := range ts.Groups {
 		if _, lower, rel := registration.SplitLayer(g.Layer); rel && lower == "" {
-			return nil, badInput(&registration.CSVError{File: name, Row: g.Row(0), Column: "layer", Err: fmt.Errorf("%q: bad layer pair", g.Layer)})
+			ts.Close()
+			return nil, badInput(&registration.CSVError{File: name, Row: g.FirstRow(), Column: "layer", Err: fmt.Errorf("%q: bad layer pair", g.Layer)})
 		}
 	}
 	r, err := fitreport.New(name, ts, set, grid)
 	if err != nil {
-		return nil, badInput(fmt.Errorf("%s: %w", name, err))
+		ts.Close()
+		// A fit the targets cannot make is bad input; a failure of the
+		// targets' temporary file is not.
+		if fe := (*registration.FitError)(nil); errors.As(err, &fe) {
+			return nil, badInput(fmt.Errorf("%s: %w", name, err))
+		}
+		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	return &fitRun{r}, nil
 }
@@ -198,6 +206,7 @@ func (f *fitFlags) run(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	defer r.Close()
 	if len(f.applied) > 0 {
 		applied, src, err := parseApplied(f.applied, std)
 		if err != nil {

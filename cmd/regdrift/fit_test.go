@@ -282,3 +282,83 @@ func TestFitApplied(t *testing.T) {
 		t.Errorf("applied layer the targets lack: exit %d, %s", code, errs)
 	}
 }
+
+// TestFitSpillSameOutputs runs fit on the same files with the targets held
+// in memory and spilled to the temporary file after every few targets
+// (registration.SpillBudget): every output, fit.csv, residuals.csv, the
+// grids, fit.png, the contributors file and the JSON or the table, must be
+// the same to the byte, under every option that touches the targets, and
+// no temporary file may be left behind, after success or bad input.
+func TestFitSpillSameOutputs(t *testing.T) {
+	tmp := t.TempDir()
+	t.Setenv("TMPDIR", tmp)
+	big := writeBigTargets(t, t.TempDir(), 6, 2, 400)
+	inputs := []struct{ path, applied string }{{twoCoreTargets, "L3:x=+200ppm,y=+150ppm"}, {big, "L1:x=+200ppm,y=+150ppm"}}
+	options := [][]string{
+		nil,
+		{"--robust", "--json"},
+		{"--robust", "--weight", "huber", "--model", "similarity", "--origin", "0.5in,-0.25in", "--panel", "18in,24in"},
+		{"--model", "translation", "--flip-y", "--datum", "1in,2in", "--json"},
+		{"--robust", "--applied", ""},
+	}
+	run := func(budget int, in string, args []string) (string, string) {
+		t.Helper()
+		old := registration.SpillBudget
+		registration.SpillBudget = budget
+		defer func() { registration.SpillBudget = old }()
+		out := filepath.Join(t.TempDir(), "out")
+		all := append([]string{"fit", in, "-o", out, "--contributors", filepath.Join(out, "lot.toml"), "--width", "600"}, args...)
+		code, stdout, errs := runPlain(t, "", all...)
+		if code != 0 {
+			t.Fatalf("%v: exit %d: %s", all, code, errs)
+		}
+		if ents, _ := os.ReadDir(tmp); len(ents) != 0 {
+			t.Errorf("%v: %d files left in the temporary directory", all, len(ents))
+		}
+		return out, strings.ReplaceAll(stdout, out, "OUT")
+	}
+	for _, in := range inputs {
+		for _, opt := range options {
+			opt = slices.Clone(opt)
+			if k := slices.Index(opt, ""); k >= 0 {
+				opt[k] = in.applied
+			}
+			memDir, memOut := run(1<<30, in.path, opt)
+			spillDir, spillOut := run(64, in.path, opt)
+			if memOut != spillOut {
+				t.Errorf("%s %v: standard output differs:\n%s\n%s", in.path, opt, memOut, spillOut)
+			}
+			ents, err := os.ReadDir(memDir)
+			if err != nil || len(ents) < 5 {
+				t.Fatalf("%s %v: outputs %v, %v", in.path, opt, ents, err)
+			}
+			for _, e := range ents {
+				a, _ := os.ReadFile(filepath.Join(memDir, e.Name()))
+				b, err := os.ReadFile(filepath.Join(spillDir, e.Name()))
+				if err != nil || !bytes.Equal(a, b) {
+					t.Errorf("%s %v: %s differs when the targets are spilled (%v)", in.path, opt, e.Name(), err)
+				}
+			}
+		}
+	}
+	// Bad input found after the spill (a duplicate at the end of the file)
+	// leaves neither outputs nor the temporary file.
+	data, err := os.ReadFile(big)
+	if err != nil {
+		t.Fatal(err)
+	}
+	old := registration.SpillBudget
+	registration.SpillBudget, data = 64, append(data, "P001,L1,T00001,1,1,0,0\n"...)
+	defer func() { registration.SpillBudget = old }()
+	out := filepath.Join(t.TempDir(), "out")
+	code, _, errs := runPlain(t, string(data), "fit", "-", "-o", out)
+	if code != exitBadInput || !strings.Contains(errs, "duplicate target") {
+		t.Errorf("duplicate after the spill: exit %d, %s", code, errs)
+	}
+	if ents, _ := os.ReadDir(out); len(ents) != 0 {
+		t.Errorf("bad input left %d outputs", len(ents))
+	}
+	if ents, _ := os.ReadDir(tmp); len(ents) != 0 {
+		t.Errorf("bad input left %d files in the temporary directory", len(ents))
+	}
+}

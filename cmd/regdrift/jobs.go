@@ -76,14 +76,23 @@ func readTargets(path string, stdin io.Reader, fr registration.Frame, size panel
 		}
 		src, name = bytes.NewReader(data), n
 	}
+	// The file's errors are bad input; a failure of the set's temporary
+	// file is not.
 	ts, err := registration.ReadTargetSet(src, name)
 	if err != nil {
-		return nil, name, badInput(err)
+		if ce := (*registration.CSVError)(nil); errors.As(err, &ce) {
+			return nil, name, badInput(err)
+		}
+		return nil, name, err
 	}
 	fr.Apply(ts)
 	if size.X > 0 && size.Y > 0 {
 		if err := registration.CheckOutline(ts, panel.Panel{Size: size}.Outline(), name); err != nil {
-			return nil, name, badInput(err)
+			ts.Close()
+			if ce := (*registration.CSVError)(nil); errors.As(err, &ce) {
+				return nil, name, badInput(err)
+			}
+			return nil, name, err
 		}
 	}
 	return ts, name, nil

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/csv"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -34,7 +35,13 @@ type Report struct {
 	// Applied is the artwork each layer was built with (SetApplied); nil
 	// means CAD size and no artwork table in the summary.
 	Applied registration.AppliedSet
+	// Set is the targets fitted, whose groups the fits refer to.
+	Set *registration.TargetSet
 }
+
+// Close closes the report's target set (registration.TargetSet.Close):
+// the per-target outputs can no longer be written.
+func (r *Report) Close() error { return r.Set.Close() }
 
 // New fits the targets ts (read from file) with set: every panel and layer
 // (registration.FitSet), the lot statistics, and per layer the pooled
@@ -45,20 +52,24 @@ func New(file string, ts *registration.TargetSet, set registration.FitSettings, 
 	if err != nil {
 		return nil, err
 	}
-	r := &Report{File: file, Settings: set, Fits: fits, Lots: registration.LotStats(fits), Grids: map[string]*registration.Grid{}}
+	r := &Report{File: file, Settings: set, Fits: fits, Lots: registration.LotStats(fits), Grids: map[string]*registration.Grid{}, Set: ts}
 	// The layers' grids are independent: one goroutine each, at most
 	// GOMAXPROCS at once.
 	grids := make([]*registration.Grid, len(r.Lots))
+	errs := make([]error, len(r.Lots))
 	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
 	var wg sync.WaitGroup
 	for i, l := range r.Lots {
 		wg.Go(func() {
 			sem <- struct{}{}
 			defer func() { <-sem }()
-			grids[i] = registration.PooledResiduals(fits, l.Layer, grid, grid)
+			grids[i], errs[i] = registration.PooledResiduals(fits, l.Layer, grid, grid)
 		})
 	}
 	wg.Wait()
+	if err := errors.Join(errs...); err != nil {
+		return nil, err
+	}
 	for i, l := range r.Lots {
 		r.Grids[l.Layer] = grids[i]
 	}
@@ -259,7 +270,8 @@ func (r *Report) WriteFitCSV(w io.Writer, u unit.Output) error {
 // The rows are made from the fits' groups, never held for the whole file:
 // runs of residualChunk rows are formatted into buffers by GOMAXPROCS
 // goroutines and written in order, a few runs per worker at a time, so the
-// memory is that of those buffers and the bytes are those of one writer.
+// memory is that of those buffers and of the groups of those runs, loaded
+// for them and released after, and the bytes are those of one writer.
 func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	cw := csv.NewWriter(w)
 	L, P := "["+u.Length()+"]", "["+u.Panel()+"]"
@@ -318,11 +330,25 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 	workers := runtime.GOMAXPROCS(0)
 	batch := 2 * workers
 	bufs := make([]bytes.Buffer, batch) // reused from batch to batch
+	// The groups of the batch's chunks are loaded here, in order, and each
+	// is released after the batch that holds its last chunk.
+	var held []*registration.TargetGroup
+	defer func() {
+		for _, g := range held {
+			g.Release()
+		}
+	}()
 	for b := 0; b < len(chunks); b += batch {
 		part := chunks[b:min(b+batch, len(chunks))]
 		for j, c := range part {
 			bufs[j].Reset()
 			c.buf = &bufs[j]
+			if g := c.f.Group; len(held) == 0 || held[len(held)-1] != g {
+				if err := g.Load(); err != nil {
+					return err
+				}
+				held = append(held, g)
+			}
 		}
 		var wg sync.WaitGroup
 		next := make(chan *chunk)
@@ -344,6 +370,11 @@ func (r *Report) WriteResidualsCSV(w io.Writer, u unit.Output) error {
 			}
 			c.buf = nil
 		}
+		// Only the group of the batch's last chunk can have chunks left.
+		for _, g := range held[:len(held)-1] {
+			g.Release()
+		}
+		held = append(held[:0], held[len(held)-1])
 	}
 	return nil
 }

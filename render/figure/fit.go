@@ -18,6 +18,11 @@ import (
 // (coloured), each exaggerated by one stated factor, outliers ringed. file
 // names the measurement file, set the fit; size is the panel size, or zero to
 // frame the targets' extent; width is in pixels, 0 meaning 2400.
+//
+// The figure never needs every target at once: the extent and the arrows'
+// scales come from each fit's summary (registration.Fit's Extent, Max and
+// MaxMeasured), and the views are drawn a fit's group at a time, loaded and
+// released, from a sample of at most maxFitArrows targets.
 func Fit(w io.Writer, file string, set registration.FitSettings, fits []registration.Fit, lots []registration.Lot, size panel.Vec, width int, u unit.Output) error {
 	if width == 0 {
 		width = 2400
@@ -29,10 +34,9 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		lo := panel.Vec{X: math.Inf(1), Y: math.Inf(1)}
 		hi := panel.Vec{X: math.Inf(-1), Y: math.Inf(-1)}
 		for _, f := range fits {
-			for i := range f.Len() {
-				p := f.Group.Pos(i)
-				lo = panel.Vec{X: math.Min(lo.X, p.X), Y: math.Min(lo.Y, p.Y)}
-				hi = panel.Vec{X: math.Max(hi.X, p.X), Y: math.Max(hi.Y, p.Y)}
+			if f.Len() > 0 {
+				lo = panel.Vec{X: math.Min(lo.X, f.Extent.Min.X), Y: math.Min(lo.Y, f.Extent.Min.Y)}
+				hi = panel.Vec{X: math.Max(hi.X, f.Extent.Max.X), Y: math.Max(hi.Y, f.Extent.Max.Y)}
 			}
 		}
 		pad := 0.1*math.Max(hi.X-lo.X, hi.Y-lo.Y) + 0.01
@@ -41,16 +45,12 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	// Two exaggerations: the measured displacements are mils, the residuals
 	// a tenth of that; each gets the round factor that draws its largest
 	// arrow (outliers aside) a tenth of the panel's shorter side long.
+	// Outliers are left out of both (an outlier must not shrink every
+	// other arrow), as they are of the fits' Max and MaxMeasured.
 	var maxD, maxR float64
 	for _, f := range fits {
-		for i := range f.Len() {
-			if f.Outlier(i) {
-				continue // an outlier must not shrink every other arrow
-			}
-			d, r := f.Group.D(i), f.Residual(i)
-			maxD = math.Max(maxD, math.Hypot(d.X, d.Y))
-			maxR = math.Max(maxR, math.Hypot(r.X, r.Y))
-		}
+		maxD = math.Max(maxD, f.MaxMeasured)
+		maxR = math.Max(maxR, f.Max)
 	}
 	side := math.Min(ext.Dx(), ext.Dy())
 	exg := niceLength(side / 10 / math.Max(maxD, 1e-9))
@@ -92,13 +92,22 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 	outside := func(p panel.Vec) bool {
 		return size.X > 0 && (math.Abs(p.X) > size.X/2 || math.Abs(p.Y) > size.Y/2)
 	}
+	// Only a fit whose extent crosses the outline has its group loaded to
+	// count them.
 	nOut := 0
 	for _, f := range fits {
+		if f.Len() == 0 || !outside(f.Extent.Min) && !outside(f.Extent.Max) {
+			continue
+		}
+		if err := f.Group.Load(); err != nil {
+			return err
+		}
 		for i := range f.Len() {
 			if outside(f.Group.Pos(i)) {
 				nOut++
 			}
 		}
+		f.Group.Release()
 	}
 	if nOut > 0 {
 		title = append(title, fmt.Sprintf("%d targets outside the panel outline are not drawn", nOut))
@@ -149,8 +158,11 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 		th := keep[l.Layer]
 		var idx uint32 // the target's index within its layer, for the sample
 		for _, f := range fits {
-			if f.Layer != l.Layer {
+			if f.Layer != l.Layer || f.Len() == 0 {
 				continue
+			}
+			if err := f.Group.Load(); err != nil {
+				return err
 			}
 			for i := range f.Len() {
 				idx++
@@ -171,6 +183,7 @@ func Fit(w io.Writer, file string, set registration.FitSettings, fits []registra
 				r := f.Residual(i)
 				res = append(res, render.Arrow{At: at, D: render.Point{X: r.X, Y: r.Y}})
 			}
+			f.Group.Release()
 		}
 		v.Arrows(meas, render.ArrowStyle{Color: render.Frame, Exaggeration: exg})
 		v.Arrows(res, render.ArrowStyle{Color: render.Series(0), Exaggeration: exr, Width: 2 * m.Thin()})
