@@ -442,18 +442,7 @@ func BenchmarkReport10k(b *testing.B) {
 
 func benchReport(b *testing.B, job string) {
 	cache, out := b.TempDir(), b.TempDir()
-	args := []string{"report", job, "-o", out, "--cache-dir", cache}
-	var o, e bytes.Buffer
-	if code := realMain(args, nil, &o, &e); code != 0 { // solves and fills the cache
-		b.Fatalf("exit %d: %s", code, e.String())
-	}
-	b.ReportAllocs()
-	for b.Loop() {
-		o.Reset()
-		if code := realMain(args, nil, &o, &e); code != 0 {
-			b.Fatalf("exit %d: %s", code, e.String())
-		}
-	}
+	benchCommand(b, "report", job, "-o", out, "--cache-dir", cache)
 	fi, err := os.Stat(filepath.Join(out, "report.html"))
 	if err != nil {
 		b.Fatal(err)

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -223,23 +222,7 @@ func BenchmarkMap10kVariation(b *testing.B) {
 		b.Fatal(err)
 	}
 	for _, c := range []struct{ name, job string }{{"uniform", uniform}, {"normal", normal}} {
-		b.Run(c.name, func(b *testing.B) {
-			cache := b.TempDir()
-			out := b.TempDir()
-			args := []string{"map", c.job, "-o", out, "--width", "3000", "--cache-dir", cache}
-			var o, e bytes.Buffer
-			if code := realMain(args, nil, &o, &e); code != 0 { // solves and fills the cache
-				b.Fatalf("exit %d: %s", code, e.String())
-			}
-			b.ReportAllocs()
-			for b.Loop() {
-				o.Reset()
-				if code := realMain(args, nil, &o, &e); code != 0 {
-					b.Fatalf("exit %d: %s", code, e.String())
-				}
-			}
-			b.ReportMetric(b.Elapsed().Seconds()*1e3/float64(b.N), "ms/map")
-		})
+		b.Run(c.name, func(b *testing.B) { benchMap(b, c.job) })
 	}
 }
 
@@ -257,18 +240,7 @@ func BenchmarkYieldVariation(b *testing.B) {
 		b.Fatal(err)
 	}
 	job := processJob(b, base)
-	args := []string{"yield", job, "-o", b.TempDir(), "--trials", "1000", "--cache-dir", b.TempDir()}
-	var o, e bytes.Buffer
-	if code := realMain(args, nil, &o, &e); code != 0 {
-		b.Fatalf("exit %d: %s", code, e.String())
-	}
-	b.ReportAllocs()
-	for b.Loop() {
-		o.Reset()
-		if code := realMain(args, nil, &o, &e); code != 0 {
-			b.Fatalf("exit %d: %s", code, e.String())
-		}
-	}
+	benchCommand(b, "yield", job, "-o", b.TempDir(), "--trials", "1000", "--cache-dir", b.TempDir())
 }
 
 // TestMapIdleVariationTerms: a process file shared by several jobs names

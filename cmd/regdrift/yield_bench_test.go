@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -57,18 +56,7 @@ func BenchmarkYieldVariants10k(b *testing.B) {
 		args []string
 	}{{"closed-form", []string{"--closed-form"}}, {"trials=1000", []string{"--trials", "1000"}}} {
 		b.Run(mode.name, func(b *testing.B) {
-			args := append(append(append([]string{"yield"}, paths...), "-o", b.TempDir(), "--cache-dir", cache), mode.args...)
-			var o, e bytes.Buffer
-			if code := realMain(args, nil, &o, &e); code != 0 { // solves and fills the cache
-				b.Fatalf("exit %d: %s", code, e.String())
-			}
-			b.ReportAllocs()
-			for b.Loop() {
-				o.Reset()
-				if code := realMain(args, nil, &o, &e); code != 0 {
-					b.Fatalf("exit %d: %s", code, e.String())
-				}
-			}
+			benchCommand(b, append(append(append([]string{"yield"}, paths...), "-o", b.TempDir(), "--cache-dir", cache), mode.args...)...)
 			b.ReportMetric(b.Elapsed().Seconds()/float64(b.N), "s/comparison")
 		})
 	}
