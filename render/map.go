@@ -4,6 +4,7 @@ import (
 	"image"
 	"image/color"
 	"math"
+	"strings"
 )
 
 // LengthUnit is the unit the axes of a map are labelled in.
@@ -140,9 +141,19 @@ func NewMap(spec MapSpec) *Map {
 		legend = box{float64(w) - margin - lw, margin, float64(w) - margin, margin + lh}
 		top = math.Max(top, legend.y1+0.8*em)
 	}
+	// A caption wider than its view is broken at "; " into lines that fit
+	// (each still shrunk or cut by fitLine if one part alone is too wide).
+	captionStyle := textStyle{size: 1.1, bold: true}
+	captions := make([][]string, len(spec.Captions))
+	lines := 0
+	for i, cp := range spec.Captions {
+		captions[i] = wrapCaption(probe, cp, captionStyle, pw)
+		lines = max(lines, len(captions[i]))
+	}
+	captionStep := 1.45 * em * captionStyle.size
 	captionH := 0.0
 	if len(spec.Captions) > 0 {
-		captionH = 1.9 * em
+		captionH = 1.9*em + float64(lines-1)*captionStep
 	}
 	xAxisH := 3.8 * em
 	rowH := captionH + ph + xAxisH + 0.6*em
@@ -187,7 +198,10 @@ func NewMap(spec MapSpec) *Map {
 		v.area = image.Rect(int(x), int(rowTop+captionH), int(x+pw), int(rowTop+captionH+ph))
 		m.Views = append(m.Views, v)
 		if i < len(spec.Captions) {
-			c.text(spec.Captions[i], x+pw/2, rowTop, 0.5, 0, textStyle{size: 1.1, bold: true})
+			for k, line := range captions[i] {
+				line, ts := fitLine(c, line, captionStyle, pw)
+				c.text(line, x+pw/2, rowTop+float64(k)*captionStep, 0.5, 0, ts)
+			}
 		}
 		v.drawAxes(xt, xstep, yt, ystep, unit, col == 0)
 	}
@@ -491,4 +505,42 @@ func (v *View) Polyline(pts []Point, s LineStyle) {
 func (v *View) Label(at Point, text string) {
 	x, y := v.Pixel(at)
 	v.c.text(text, x, y, 0.5, 0.5, textStyle{size: 0.9, halo: true})
+}
+
+// wrapCaption breaks caption after its "; " and ", " into the fewest
+// lines, filled greedily, that fit room in style ts; a caption that fits
+// is one line.
+func wrapCaption(c *Canvas, caption string, ts textStyle, room float64) []string {
+	if c.measure(caption, ts) <= room {
+		return []string{caption}
+	}
+	// The pieces, each ending in its separator's punctuation.
+	var pieces []string
+	rest := caption
+	for {
+		i := strings.Index(rest, "; ")
+		if j := strings.Index(rest, ", "); j >= 0 && (i < 0 || j < i) {
+			i = j
+		}
+		if i < 0 {
+			pieces = append(pieces, rest)
+			break
+		}
+		pieces = append(pieces, rest[:i+1])
+		rest = rest[i+2:]
+	}
+	var out []string
+	line := ""
+	for _, p := range pieces {
+		switch {
+		case line == "":
+			line = p
+		case c.measure(line+" "+p, ts) <= room:
+			line += " " + p
+		default:
+			out = append(out, line)
+			line = p
+		}
+	}
+	return append(out, line)
 }
