@@ -11,6 +11,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -306,6 +307,31 @@ func TestAdler32Combine(t *testing.T) {
 		got := adler32Combine(adler32.Checksum(a), adler32.Checksum(b), len(b))
 		if want := adler32.Checksum(data); got != want {
 			t.Errorf("cut %d: %08x, want %08x", cut, got, want)
+		}
+	}
+}
+
+// TestWrapCaption checks that a caption too wide for its view is broken
+// after its separators into lines that each fit, and that one that fits
+// stays whole.
+func TestWrapCaption(t *testing.T) {
+	c := newCanvas(1, 1, 20)
+	ts := textStyle{size: 1.1, bold: true}
+	long := "layer L2, 100 panels; lot mean scale x +300.0 ppm, y -200.0 ppm, rotation -0.6 µrad"
+	for _, room := range []float64{300, 500, 800, 5000} {
+		lines := wrapCaption(c, long, ts, room)
+		if got := strings.Join(lines, " "); got != long {
+			t.Errorf("room %g: lines %q do not rejoin to the caption", room, lines)
+		}
+		for _, l := range lines {
+			// A line still too wide must be one piece: no separator inside
+			// it that the break could have used.
+			if w := c.measure(l, ts); w > room && (strings.Contains(l, "; ") || strings.Contains(l, ", ")) {
+				t.Errorf("room %g: line %q is %.0f wide", room, l, w)
+			}
+		}
+		if c.measure(long, ts) <= room && len(lines) != 1 {
+			t.Errorf("room %g: a caption that fits was broken into %q", room, lines)
 		}
 	}
 }
