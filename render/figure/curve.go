@@ -138,18 +138,26 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u unit.Output) err
 	for _, x := range drift.SpecCrossings(c, s.Spec) {
 		top.VLines = append(top.VLines, render.VLine{X: x / u.LengthSI(), Label: fmt.Sprintf("%+.2f %s", x/u.LengthSI(), u.Length()), Color: render.Series(3)})
 	}
+	names := [2]string{"upper line (" + s.Traces[0].Layer + ")", "lower line (" + s.Traces[1].Layer + ")"}
+	if drift.OffsetKind(s) == "spacing" {
+		names = [2]string{"first line (" + s.Traces[0].Layer + ")", "second line (" + s.Traces[1].Layer + ")"}
+	}
 	mid := &render.Axes{YLabel: "line impedance [ohm]",
 		Lines: []render.Line{
-			{Label: "upper line (" + s.Traces[0].Layer + ")", X: xs, Y: z1, Color: render.Series(1)},
-			{Label: "lower line (" + s.Traces[1].Layer + ")", X: xs, Y: z2, Color: render.Series(2), Dash: []float64{3, 2}},
+			{Label: names[0], X: xs, Y: z1, Color: render.Series(1)},
+			{Label: names[1], X: xs, Y: z2, Color: render.Series(2), Dash: []float64{3, 2}},
 		},
 		HLines: []render.HLine{{Y: s.ZRef, Label: fmt.Sprintf("z_ref %.0f ohm", s.ZRef), Dash: []float64{6, 4}}},
 	}
 	bot := &render.Axes{YLabel: "directivity [dB]",
 		Lines: []render.Line{{Label: "directivity", X: xs, Y: dir, Color: render.Series(4)}}}
+	against := fmt.Sprintf("lateral offset of %s against %s", s.Traces[0].Layer, s.Traces[1].Layer)
+	if drift.OffsetKind(s) == "spacing" {
+		against = "centre-to-centre spacing of the two " + s.Traces[0].Layer + " traces"
+	}
 	p := &render.Plot{
-		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus lateral offset of %s against %s",
-			s.Name, c.Frequency/1e9, c.Length/u.LengthSI(), u.Length(), s.Traces[0].Layer, s.Traces[1].Layer),
+		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus %s",
+			s.Name, c.Frequency/1e9, c.Length/u.LengthSI(), u.Length(), against),
 		XLabel: offsetLabel(s, u),
 		Axes:   []*render.Axes{top, mid, bot},
 	}
