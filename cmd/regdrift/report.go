@@ -359,8 +359,9 @@ func (r *reportRun) curveSection() (rep.Section, bool, error) {
 		blocks = append(blocks, rep.Subheading("Section "+s.Name), &rep.Figure{PNG: b,
 			Alt: fmt.Sprintf("Coupling, directivity and impedances of section %s against the lateral offset from %s to %s %s, with the spec band %s ± %s dB",
 				s.Name, fixed(lo/r.lu.factor, 2), fixed(hi/r.lu.factor, 2), r.lu.name, fixed(s.Spec.Coupling, 2), fixed(s.Spec.Tolerance, 2)),
-			Caption: fmt.Sprintf("Section %s: coupling against the offset of the upper trace across the lines, design offset included; the band is the spec, %s ± %s dB; coupling at the design offset %s dB.",
-				s.Name, fixed(s.Spec.Coupling, 2), fixed(s.Spec.Tolerance, 2), fixed(c.Nominal, 3))})
+			Caption: fmt.Sprintf("Section %s: coupling against %s, design offset included; the band is the spec, %s ± %s dB; coupling at the design offset %s dB.",
+				s.Name, map[bool]string{false: "the offset of the upper trace across the lines", true: "the centre-to-centre spacing of its two traces on " + s.Traces[0].Layer}[drift.OffsetKind(s) == "spacing"],
+				fixed(s.Spec.Coupling, 2), fixed(s.Spec.Tolerance, 2), fixed(c.Nominal, 3))})
 	}
 	return rep.Section{ID: "coupling", Title: "Coupling against offset", Blocks: blocks}, len(blocks) > 0, nil
 }
@@ -410,9 +411,17 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 	if err != nil {
 		return rep.Section{}, false, err
 	}
+	// What the map draws: the drift for one section; with several, whose
+	// drifts do not compare, the window share or the probability in spec
+	// (figure.DefaultShow).
+	what := map[string][2]string{
+		"drift":  {"the coupling drift at the mean offset", "Coupling drift at each site's mean offset"},
+		"window": {"the share of its section's allowed offsets that mean ± 3σ reaches", "The share of its section's allowed offsets that each site's mean offset ± 3σ reaches (1 at the window's edge)"},
+		"p":      {"the probability of being in spec, every source counted", "Each site's probability of being in spec, registration and process together"},
+	}[figure.DefaultShow(r.a)]
 	pm := &rep.PanelMap{PNG: b.Bytes(), Transform: rep.ViewTransform(v), Fields: r.siteFields(),
-		Alt: fmt.Sprintf("Panel map of the coupling drift at the mean offset of each of %d sites, with the ten sites least likely to be in spec ringed and numbered", len(rows)),
-		Caption: "Coupling drift at each site's mean offset (the field: over each array its most common coupler direction); each site is a bar along its lines; " +
+		Alt: fmt.Sprintf("Panel map of %s of each of %d sites, with the ten sites least likely to be in spec ringed and numbered", what[0], len(rows)),
+		Caption: what[1] + " (the field: over each array its most common coupler direction); each site is a bar along its lines; " +
 			"the ten sites least likely to be in spec are ringed and numbered as in the table below. Point at a site to see its values, click to mark it, or find it by name."}
 	for k, row := range rows {
 		s := &r.a.Sites[k]

@@ -92,12 +92,10 @@ func (s show) scale(u unit.Output) float64 {
 
 // MapOptions say what a drift map draws.
 type MapOptions struct {
-	// Show is one of Shows; "" means "drift" when the sites use one section
-	// and, when they use several, whose drifts in dB and offsets do not
-	// compare, "window" (registration only) or, with process terms, "p":
-	// the window share is of the allowed offsets alone, blind to what the
-	// process does to a microstrip, and the probability in spec counts
-	// every source on one scale.
+	// Show is one of Shows; "" means DefaultShow's: the window share is of
+	// the allowed offsets alone, blind to what the process does to a
+	// microstrip, and the probability in spec counts every source on one
+	// scale.
 	Show  string
 	Width int         // pixels; 0 means 2400
 	Units unit.Output // zero means unit.MilInch
@@ -122,18 +120,26 @@ func usedSections(a *drift.Analysis) []int {
 	return out
 }
 
+// DefaultShow is the field a map of a draws when MapOptions.Show is "":
+// "drift" when the sites use one section; when they use several, whose
+// drifts in dB and offsets do not compare, "window" (registration only)
+// or, with process terms, "p".
+func DefaultShow(a *drift.Analysis) string {
+	switch {
+	case len(usedSections(a)) <= 1:
+		return "drift"
+	case a.In.Process.Empty():
+		return "window"
+	}
+	return "p"
+}
+
 func (o MapOptions) norm(a *drift.Analysis) (MapOptions, show, error) {
 	if o.Width == 0 {
 		o.Width = 2400
 	}
 	if o.Show == "" {
-		o.Show = "drift"
-		if len(usedSections(a)) > 1 {
-			o.Show = "window"
-			if !a.In.Process.Empty() {
-				o.Show = "p"
-			}
-		}
+		o.Show = DefaultShow(a)
 	}
 	s, ok := showOf(o.Show, o.Units)
 	if o.Show == "term" {
