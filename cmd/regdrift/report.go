@@ -453,7 +453,7 @@ func (r *reportRun) mapSection() (rep.Section, bool, error) {
 	}
 	return rep.Section{ID: "panel-map", Title: "Panel map", Blocks: []rep.Block{pm,
 		&rep.Table{Caption: "The ten sites least likely to be in spec (numbered on the map)", Columns: cols, Rows: worst},
-		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines, design offset included, ± one standard deviation; expected in spec %.1f of %d sites (%d have their mean offset in spec).", r.mapSum.ExpectedInSpec, r.mapSum.Sites, r.mapSum.InSpec)),
+		rep.Paragraph(fmt.Sprintf("Offsets are the mean offset of the upper trace across the lines (for an edge-coupled pair its spacing), design offset included, ± one standard deviation; expected in spec %.1f of %d sites (%s).", r.mapSum.ExpectedInSpec, r.mapSum.Sites, r.mapSum.InSpecPhrase())),
 	}}, true, nil
 }
 
@@ -478,7 +478,7 @@ func (r *reportRun) yieldSection() (rep.Section, bool, error) {
 	return rep.Section{ID: "yield", Title: "Yield", Blocks: []rep.Block{
 		rep.Paragraph(fmt.Sprintf("Monte Carlo of %d panels (seed %d): site yield %s %% (closed form %s %%), part yield %s %%; good parts per panel: expected %s of %d, 5th percentile %d, median %d, fewest %d.",
 			y.Trials, y.Seed, pct(y.SiteYieldMean, 4), pct(y.SiteYieldMeanClosed, 4), pct(y.PartYieldMean, 4), fixed(gp.Mean, 2), y.Parts, gp.P05, gp.P50, gp.Min)),
-		&rep.Figure{PNG: ymap, Alt: "Panel map of each site's probability of being in spec", Caption: "Probability that each site's offset lies in its allowed interval (closed form)."},
+		&rep.Figure{PNG: ymap, Alt: "Panel map of each site's probability of being in spec", Caption: yieldMapCaption(r.a)},
 		&rep.Figure{PNG: parts, Alt: "Histogram of the number of good parts per panel over the Monte Carlo trials, and the parts of lowest yield", Caption: "Good parts per panel over the trials."},
 		&rep.Table{Caption: "Parts of lowest yield", Columns: cols, Rows: rows, RowHeaders: true},
 	}}, true, nil
@@ -500,10 +500,38 @@ func (r *reportRun) budgetSection() (rep.Section, bool, error) {
 	for _, row := range y.Budget.Panel {
 		rows = append(rows, []string{row.Contributor, row.Term, pct(row.Share, 1), fixed(row.SDM/r.lu.factor, 3), pct(at[row.Contributor+"\x00"+row.Term], 1)})
 	}
-	return rep.Section{ID: "budget", Title: "Error budget", Blocks: []rep.Block{
+	blocks := []rep.Block{
 		&rep.Figure{PNG: b, Alt: "Bar chart of each contributor term's share of the variance of the offset across the lines", Caption: "Share of the across-offset variance by contributor and term, over the panel and at the worst site (" + y.Budget.WorstSite + ")."},
-		&rep.Table{Caption: "Error budget", Columns: cols, Rows: rows},
-	}}, true, nil
+		&rep.Table{Caption: "Error budget of the offset", Columns: cols, Rows: rows},
+	}
+	if cb := y.CouplingBudget; cb != nil && len(cb.Panel) > 0 {
+		// With process terms the figure is the coupling budget (figure.Budget),
+		// registration and variation terms together; the offset's table
+		// follows it.
+		blocks[0] = &rep.Figure{PNG: b, Alt: "Bar chart of each registration and variation term's share of the coupling variance",
+			Caption: "Share of the coupling variance by term, registration and variation together, over the panel and at the worst site (" + cb.WorstSite + ")."}
+		at := map[string]float64{}
+		for _, c := range cb.AtWorst {
+			at[c.Source+"\x00"+c.Name] = c.Share
+		}
+		var crows [][]string
+		for _, c := range cb.Panel {
+			crows = append(crows, []string{c.Source, c.Name, pct(c.Share, 1), fixed(c.SDDB, 4), pct(at[c.Source+"\x00"+c.Name], 1)})
+		}
+		ccols := []rep.Column{{Label: "source"}, {Label: "term"}, {Label: "share over the panel", Unit: "%", Numeric: true},
+			{Label: "σ", Unit: "dB", Numeric: true}, {Label: "share at " + cb.WorstSite, Unit: "%", Numeric: true}}
+		blocks = []rep.Block{blocks[0], &rep.Table{Caption: "Coupling budget", Columns: ccols, Rows: crows}, blocks[1]}
+	}
+	return rep.Section{ID: "budget", Title: "Error budget", Blocks: blocks}, true, nil
+}
+
+// yieldMapCaption says what the yield map's field is: the probability of
+// being in spec, of the offset alone or with the process terms.
+func yieldMapCaption(a *drift.Analysis) string {
+	if a.In.Process.Empty() {
+		return "Probability that each site's offset lies in its allowed interval (closed form)."
+	}
+	return "Probability that each site is in spec, registration and the variation terms together (closed form)."
 }
 
 func (r *reportRun) tolSection() (rep.Section, bool, error) {
