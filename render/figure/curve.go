@@ -22,7 +22,7 @@ func specBand(s *section.Section) render.Band {
 // spacing, which registration cannot move, so the label says so.
 func offsetLabel(s *section.Section, u unit.Output) string {
 	if drift.OffsetKind(s) == "spacing" {
-		return "centre-to-centre offset of the first " + s.Traces[0].Layer + " trace against the second (its size is the spacing, gap + width: set by etching, not registration) [" + u.Length() + "]"
+		return "centre-to-centre spacing of the two " + s.Traces[0].Layer + " traces (gap + width; set by etching, not registration) [" + u.Length() + "]"
 	}
 	return "offset of the upper trace (" + s.Traces[0].Layer + ") against the lower (" + s.Traces[1].Layer + ") across the lines [" + u.Length() + "]"
 }
