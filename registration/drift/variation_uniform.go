@@ -146,8 +146,21 @@ func (d *boxNormal) set(vn float64, a []float64, v float64) { d.setOf(vn, a, v, 
 // the normal part d.sd, all boxCuts reads, but not the distribution.
 func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 	sc := 1 / math.Sqrt(v)
-	vn = math.Max(vn, 0) * sc * sc
-	slices.Sort(a)
+	if !(vn > 0) {
+		vn = 0
+	}
+	vn = vn * sc * sc
+	if len(a) <= 8 {
+		// Insertion sort: as slices.Sort, without its setup for the
+		// one or two boxes of most jobs.
+		for i := 1; i < len(a); i++ {
+			for j := i; j > 0 && a[j] < a[j-1]; j-- {
+				a[j], a[j-1] = a[j-1], a[j]
+			}
+		}
+	} else {
+		slices.Sort(a)
+	}
 	d.sd0, d.sumA, d.sumA4 = math.Sqrt(vn), 0, 0
 	for _, w := range a {
 		d.sumA += w * sc
@@ -194,16 +207,22 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 	for k, w := range a[i:narrow] {
 		// Multiply by the box's sinh(w·u)/(w·u) = Σ w²ᵐ·u²ᵐ/(2m + 1)!.
 		w2 := w * sc * w * sc
+		// (The running product in a register: through d.c each step
+		// waited for the last one's store.)
 		if k == 0 {
+			c := 1.0
 			for m := 1; m <= d.m; m++ {
-				d.c[m] = d.c[m-1] * w2 * sinhSeries[m]
+				c = c * w2 * sinhSeries[m]
+				d.c[m] = c
 			}
 			continue
 		}
 		var t [boxSeries + 1]float64
 		t[0] = 1
+		c := 1.0
 		for m := 1; m <= d.m; m++ {
-			t[m] = t[m-1] * w2 * sinhSeries[m]
+			c = c * w2 * sinhSeries[m]
+			t[m] = c
 		}
 		for m := d.m; m > 0; m-- {
 			cm := d.c[m]
@@ -282,7 +301,18 @@ func (d *boxNormal) below(x float64) (p, dens float64) {
 		p += sign * f
 		dens += sign * g
 	}
-	return math.Min(1, math.Max(0, p*d.inv)), math.Max(0, dens*d.inv)
+	// Clamped by comparisons: math.Min and math.Max are calls, for the
+	// NaN and signed zeros that do not arise here.
+	p, dens = p*d.inv, dens*d.inv
+	if p < 0 {
+		p = 0
+	} else if p > 1 {
+		p = 1
+	}
+	if dens < 0 {
+		dens = 0
+	}
+	return p, dens
 }
 
 // corner returns Σₘ cₘ·G_{n−2m}(y) and Σₘ cₘ·G_{n−2m−1}(y), n the wide
@@ -328,19 +358,26 @@ func (d *boxNormal) corner(y float64) (f, g float64) {
 	// h_j = G_{−j}/φ(y/σ) = (−1)^{j−1}·He_{j−1}(z)/σʲ follows from the
 	// Hermite recurrence as h_{j+1} = −(z/σ)·h_j − (j − 1)/σ²·h_{j−1},
 	// h₁ = 1/σ; order −j goes to f or g by the parity of n + j, at the
-	// term m = ⌊(n + j)/2⌋.
+	// term m = ⌊(n + j)/2⌋: taken in pairs, the odd j to one sum and the
+	// even to the other.
 	if low := 2*d.m + 1 - n; low >= 1 && sd > 0 {
 		inv := 1 / sd
 		zi, inv2 := y*inv*inv, inv*inv
 		h0, h1 := 0.0, inv
-		var acc [2]float64 // orders with n + j even (f) and odd (g)
-		for j := 1; j <= low; j++ {
-			nj := uint(n + j)
-			acc[nj&1] += d.c[nj>>1] * h1
+		var odd, even float64
+		for j := 1; j <= low; j += 2 {
+			odd += d.c[uint(n+j)>>1] * h1
 			h0, h1 = h1, -zi*h1-float64(j-1)*inv2*h0
+			if j < low {
+				even += d.c[uint(n+j+1)>>1] * h1
+				h0, h1 = h1, -zi*h1-float64(j)*inv2*h0
+			}
 		}
-		f += ph * acc[0]
-		g += ph * acc[1]
+		if n&1 == 0 { // n + j odd for odd j: g
+			odd, even = even, odd
+		}
+		f += ph * odd
+		g += ph * even
 	}
 	return f, g
 }
