@@ -88,10 +88,22 @@ import (
 // and 3.6e-6 when the folded box is the narrowest of unequal ones.
 //
 // Cost (BenchmarkSiteUniform, one site of 12 process terms, two with
-// narrow uniform parts: P(in spec) and the worst drift; best of five at
-// -cpu 1 on a loaded machine): 55 µs against 14 µs with the parts taken
-// as normal, the erfc and exp of every CDF, the series, and the quantile
-// of the worst drift at each of its offsets.
+// narrow uniform parts: P(in spec) and the worst drift; the least
+// cpu-µs/op of four runs at -cpu 1, alternating with the code before, on
+// a machine at load 4–5): 29 µs against 13 µs with the parts taken as
+// normal (54 µs before: the quantile of the worst drift started from
+// Cornish–Fisher and stopping after a small Newton step, one CDF per
+// offset instead of two or three; the Hermite orders and the series'
+// products held in registers; boxCuts splitting the boxes without the
+// series). Per site P(in spec) takes 43 windows of two CDFs each, every
+// one an erfc, an exp and the series' recurrence (about 85 ns), and a set
+// (about 75 ns); the normal path takes the erfc alone. In
+// BenchmarkMap10kVariation (cmd/regdrift, 10,000 sites, -benchtime 4x,
+// three runs each alternating, load 4–5) /uniform took 1.40 to 1.53
+// times /normal (1.56 to 1.58 s against 1.03 to 1.11 s; one outlier at
+// 2.1) against 1.58 to 1.93 before (1.88 to 2.03 s). Left: the
+// per-offset work (set) is the same for every site of a section at one
+// offset, but the sites' integration nodes differ, so it is not shared.
 
 // maxBoxes is the number of wide uniform parts boxNormal holds exactly
 // by its corners.
