@@ -373,6 +373,12 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 // v₁ = Σ sᵢ²σᵢ² its variance (variation_uniform.go); conditional on δ the
 // coupling is m + √v·X + q·X².
 func (e *Evaluator) atBoxes(off float64, r *procRow, d *boxNormal) (m, v, q float64) {
+	return e.atBoxesOf(off, r, d, true)
+}
+
+// atBoxesOf is atBoxes; without series d holds only the split of the boxes
+// (boxNormal.setOf).
+func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool) (m, v, q float64) {
 	m = e.Curve.Coupling(off)
 	r0, r1, i, f := e.Proc.rowsAt(off)
 	mus, va, ws := r.means(), r.vars(), r.halfWidths()
@@ -392,7 +398,7 @@ func (e *Evaluator) atBoxes(off float64, r *procRow, d *boxNormal) (m, v, q floa
 		}
 	}
 	if v > 0 {
-		d.set(vn, a, v)
+		d.setOf(vn, a, v, series)
 	} else {
 		*d = boxNormal{sd: 1, sd0: 1}
 	}
@@ -521,16 +527,25 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 func (e *Evaluator) worstDriftProc(mean, sd float64, pr *procRow) float64 {
 	lo, hi := mean-3*sd, mean+3*sd
 	worst := 0.0
-	z := 3.0
+	z, cf0 := 3.0, 3.0
 	for k := 0; k <= worstDriftSamples; k++ {
 		off := lo + (hi-lo)*float64(k)/worstDriftSamples
 		var m, v, q float64
 		if pr.boxes == 0 {
 			m, v, q = e.at(off, pr)
 		} else {
+			// The point starts where the last offset's lay, moved as
+			// its Cornish–Fisher expansion moved (at the first, that
+			// expansion): Newton then settles it in a step or two.
 			var d boxNormal
 			m, v, q = e.atBoxes(off, pr, &d)
-			z = d.quantileSigmas(3, z)
+			cf := d.cornishFisher(3)
+			if k == 0 {
+				z = cf
+			} else {
+				z += cf - cf0
+			}
+			z, cf0 = d.quantileSigmas(3, z), cf
 		}
 		cl, ch := quadExtremes(m, math.Sqrt(v), q, z)
 		for _, d := range [2]float64{cl - e.Curve.Nominal, ch - e.Curve.Nominal} {
@@ -683,7 +698,7 @@ func (e *Evaluator) boxCuts(a, b float64, pr *procRow, lo, hi float64, add func(
 	// normal part's width in coupling.
 	edge := func(x float64) (f [4]float64, r, sdc float64) {
 		var d boxNormal
-		m, v, q := e.atBoxes(x, pr, &d)
+		m, v, q := e.atBoxesOf(x, pr, &d, false)
 		var ax float64
 		for _, w := range d.a[:d.n] {
 			ax += w

@@ -233,6 +233,20 @@ func TestBoxNormalQuantile(t *testing.T) {
 	if got, _ := d.upper(z); math.Abs(got-normCDF(-3)) > 1e-12 {
 		t.Errorf("mixture: P(X > %g) = %.3g, want Φ(−3) = %.3g", z, got, normCDF(-3))
 	}
+	// Narrow boxes (the series): from its Cornish–Fisher start the point
+	// takes one Newton step; the stopping rule leaves P(X > z) at Φ(−3)
+	// to rounding (measured 2e-18; allowed boxExact, the CDF's own bound).
+	// The start errs by the order of κ₄² (measured 8e-9).
+	a := []float64{0.1, 0.08}
+	d.set(1, a, 1+(0.01+0.0064)/3)
+	if got, want := d.cornishFisher(3), 3.0; !(got < want) || got < want-1e-4 {
+		t.Errorf("narrow boxes: Cornish–Fisher start %.9f, want just below 3", got)
+	}
+	z = d.quantileSigmas(3, d.cornishFisher(3))
+	if got, _ := d.upper(z); math.Abs(got-normCDF(-3)) > boxExact {
+		t.Errorf("narrow boxes: P(X > %.15f) = %.17g, want Φ(−3) = %.17g", z, got, normCDF(-3))
+	}
+	t.Logf("narrow boxes: Cornish–Fisher %.12f, point %.12f, P − Φ(−3) = %.2g", d.cornishFisher(3), z, func() float64 { u, _ := d.upper(z); return u - normCDF(-3) }())
 	// A box of no width (a term whose sensitivity vanishes) is no box:
 	// a uniform alone of half-width 1, scaled by √3.
 	d.set(0, []float64{0, 1}, 1.0/3)
@@ -332,10 +346,14 @@ func BenchmarkSiteUniform(b *testing.B) {
 				b.Fatalf("%d uniform parts, want 2", row.boxes)
 			}
 			b.ReportAllocs()
+			cpu0 := cpuSeconds(b)
 			for b.Loop() {
 				ev.pInSpecProc(op, &row)
 				ev.worstDriftProc(r.Offset, r.Stats.SDAcross, &row)
 			}
+			// Per CPU second too: on a shared machine the wall figure
+			// counts the time the benchmark waited for a core.
+			b.ReportMetric((cpuSeconds(b)-cpu0)*1e6/float64(b.N), "cpu-µs/op")
 		})
 	}
 }
