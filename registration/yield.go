@@ -337,8 +337,11 @@ type SiteCheckWorker interface {
 	// InSpec reports on which panels of the group claimed site i meets
 	// its spec, as a mask with bit p for slot p, given its across offset
 	// off[p] on each (design offset included; len(off) panels, slots
-	// 0 to len(off)−1), drawing its per-site parts.
-	InSpec(i int, off []float64, r *Stream) uint32
+	// 0 to len(off)−1) and nrm[p], a standard normal independent of
+	// everything else for the site's own per-site parts on that panel
+	// (unused if it has none). The Monte Carlo draws nrm with the site's
+	// registration normals in one Norms call.
+	InSpec(i int, off, nrm []float64) uint32
 }
 
 // Products returns the number of part instances that are products.
@@ -624,8 +627,9 @@ type mcWorker struct {
 	// of its sites failed; dirty lists the parts whose mask is not 0.
 	failed    []uint32
 	dirty     []int32
-	coupon    []bool           // per part, whether it is a coupon (Yield.Coupons)
-	off, nrm  [MCGroup]float64 // per slot: a site's offsets, its per-site normals
+	coupon    []bool               // per part, whether it is a coupon (Yield.Coupons)
+	off       [MCGroup]float64     // per slot, a site's offsets
+	nrm       [2 * MCGroup]float64 // per slot, a site's registration normals, then its checker's (InSpec)
 	siteGood  []int64
 	partBad   []int64
 	goodParts []int64
@@ -682,18 +686,22 @@ func (w *mcWorker) group(g int) {
 		a := &s.a
 		vs := w.v[int(s.pair)*MCGroup:][:g]
 		var in uint32
-		nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
-		if s.sd > 0 {
-			str.Norms(nrm)
-		}
 		if s.checked {
-			for p, n := range nrm {
+			// One Norms call for the site's registration normals and its
+			// checker's.
+			nrm := w.nrm[:2*len(vs)]
+			str.Norms(nrm)
+			for p, n := range nrm[:len(vs)] {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
 				off[p] = d + s.sd*n + s.base
 			}
-			in = w.check.InSpec(i, off, str)
+			in = w.check.InSpec(i, off, nrm[len(vs):])
 		} else {
+			nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
+			if s.sd > 0 {
+				str.Norms(nrm)
+			}
 			for p, n := range nrm {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
