@@ -622,7 +622,7 @@ type mcWorker struct {
 	str   *Stream
 	rng   *rand.Rand // str, for Model.Sample
 	draw  Draw
-	v     [][NumTerms]float64 // per pair and group slot: v[pair·MCGroup + slot]
+	v     [][MCGroup][NumTerms]float64 // per pair and group slot: v[pair][slot]
 	// failed holds per part the mask of the group's panels on which one
 	// of its sites failed; dirty lists the parts whose mask is not 0.
 	failed    []uint32
@@ -639,7 +639,7 @@ type mcWorker struct {
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	str := new(Stream)
-	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, MCGroup*len(y.Pairs)),
+	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][MCGroup][NumTerms]float64, len(y.Pairs)),
 		failed: make([]uint32, y.Parts), dirty: make([]int32, 0, y.Parts), coupon: make([]bool, y.Parts), siteGood: make([]int64, len(sites)),
 		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
 	for _, c := range y.Coupons {
@@ -671,7 +671,7 @@ func (w *mcWorker) group(g int) {
 	for p := range g {
 		w.y.Model.Sample(w.rng, w.draw)
 		for q, r := range w.y.Pairs {
-			w.v[q*MCGroup+p] = r.Collapse(w.draw)
+			w.v[q][p] = r.Collapse(w.draw)
 		}
 		if w.check != nil {
 			w.check.Panel(p, str)
@@ -684,7 +684,7 @@ func (w *mcWorker) group(g int) {
 	for i := range sites {
 		s := &sites[i]
 		a := &s.a
-		vs := w.v[int(s.pair)*MCGroup:][:g]
+		vs := w.v[s.pair][:g]
 		var in uint32
 		if s.checked {
 			// One Norms call for the site's registration normals and its
