@@ -94,7 +94,7 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 			for p := range registration.MCGroup {
 				w.sec[i].w[p] = make([]float64, mt.nb)
 			}
-			w.sec[i].flat = make([]pcFlat, mt.n*registration.MCGroup)
+			w.sec[i].flat = make([][registration.MCGroup]pcFlat, mt.n)
 		}
 	}
 	return w
@@ -113,13 +113,13 @@ type procCheckWorker struct {
 
 // pcSection is one section's panel parts: per slot of the group and
 // binding the panel's deviation dᵦ from the binding's mean, and per table
-// interval and slot (flat[j·MCGroup + p]) the flat part of the coupling
+// interval and slot (flat[j][p]) the flat part of the coupling
 // it adds (pcFlat), filled when a site first needs the interval on the
 // panel, so that a panel costs what its sites read and not the whole
 // table.
 type pcSection struct {
 	w    [registration.MCGroup][]float64
-	flat []pcFlat
+	flat [][registration.MCGroup]pcFlat
 }
 
 // pcFlat is the flat part of one table interval on one panel: Σ sᵦ·dᵦ and
@@ -185,32 +185,42 @@ func (w *procCheckWorker) InSpec(i int, off, nrm []float64) uint32 {
 	// panel), so that they stay in registers.
 	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
 	second, win := mt.second, mt.window
-	rows, flat, ph := mt.rows[:top+1], w.sec[mt.section].flat, &ps.phi
-	panel := &w.panel
+	rows, ph := mt.rows[:top+1], &ps.phi
+	flat := w.sec[mt.section].flat[:len(rows)]
+	panel := w.panel[:len(off)] // len(off) ≤ MCGroup: slot p indexes a group's arrays unchecked
 	// The panels in reverse, so that each one's bit enters the mask by a
-	// shift of it (no shift by a variable count).
+	// shift of it (no shift by a variable count). The inner loop stops at
+	// an interval whose flat part the panel has not filled yet, and the
+	// outer one fills it and goes on: with no call inside it, the inner
+	// loop keeps its values in registers.
 	var in uint32
-	for p := len(off) - 1; p >= 0; p-- {
-		o := off[p]
-		in <<= 1
-		if !dom.Contains(o) {
-			continue
+	for p := len(off) - 1; p >= 0; {
+		for ; p >= 0; p-- {
+			o := off[p]
+			if !dom.Contains(o) {
+				in <<= 1
+				continue
+			}
+			x := (o - lo) * inv               // in [0, mt.last]: the table covers the domain
+			j := min(uint(int(x)), uint(top)) // unsigned: one bounds check for flat and rows
+			kf := &flat[j][p]
+			if kf.panel != panel[p] {
+				break
+			}
+			rw, f := &rows[j], x-float64(int(j))
+			c, v := rw.curve(f)
+			// L, the draw's first-order deviation from the site's mean:
+			// the panel deviations' flat part plus the per-site parts'.
+			l := kf.at(f) + siteDev(v, nrm[p])
+			if second {
+				l = rw.q.deviation(f, l) // variation_quad_mc.go
+			}
+			in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
 		}
-		x := (o - lo) * inv // in [0, mt.last]: the table covers the domain
-		j := min(int(x), top)
-		kf := &flat[j*registration.MCGroup+p]
-		if kf.panel != panel[p] {
-			mt.fill(kf, w.sec[mt.section].w[p], j, panel[p])
+		if p >= 0 {
+			j := min(int((off[p]-lo)*inv), top)
+			mt.fill(&flat[j][p], w.sec[mt.section].w[p], j, panel[p])
 		}
-		rw, f := &rows[j], x-float64(j)
-		c, v := rw.curve(f)
-		// L, the draw's first-order deviation from the site's mean: the
-		// panel deviations' flat part plus the per-site parts'.
-		l := kf.at(f) + siteDev(v, nrm[p])
-		if second {
-			l = rw.q.deviation(f, l) // variation_quad_mc.go
-		}
-		in |= win.bit(c + rw.sh.at(ph, f) + l)
 	}
 	return in
 }
@@ -295,7 +305,7 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, shape, flat, v fl
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
 	sec := &w.sec[mt.section]
-	kf := &sec.flat[j*registration.MCGroup+p]
+	kf := &sec.flat[j][p]
 	if kf.panel != w.panel[p] {
 		mt.fill(kf, sec.w[p], j, w.panel[p])
 	}
