@@ -179,50 +179,56 @@ func (w *procCheckWorker) InSpec(i int, off, nrm []float64) uint32 {
 	if len(ps.more) > 0 || !mt.covers {
 		return w.inSpecAt(i, off, nrm)
 	}
-	nrm = nrm[:len(off)]
-	// Everything the loop reads of mt and w is held in locals: the loop
-	// calls nothing on its hot path (fill runs once per interval and
-	// panel), so that they stay in registers.
+	// The panels in reverse, so that each one's bit enters the mask by a
+	// shift of it (no shift by a variable count). inSpecRun stops at an
+	// interval whose flat part the panel has not filled yet (once per
+	// interval and panel); it is filled here and the run goes on.
+	p, in := len(off)-1, uint32(0)
+	for {
+		if p, in = w.inSpecRun(ps, off, nrm, p, in); p < 0 {
+			return in
+		}
+		j := min(int((off[p]-mt.lo)*mt.inv), mt.n-1)
+		mt.fill(&w.sec[mt.section].flat[j][p], w.sec[mt.section].w[p], j, w.panel[p])
+	}
+}
+
+// inSpecRun is InSpec's loop over the panels p, p − 1, … 0 with the mask
+// in of those after p: it returns the mask and −1, or the panel whose
+// interval is not filled and the mask so far. Everything the loop reads
+// of mt and w is held in locals, and it calls nothing, so that they stay
+// in registers.
+func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in uint32) (int, uint32) {
+	mt := ps.tab
 	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
 	second, win := mt.second, mt.window
 	rows, ph := mt.rows[:top+1], &ps.phi
 	flat := w.sec[mt.section].flat[:len(rows)]
-	panel := w.panel[:len(off)] // len(off) ≤ MCGroup: slot p indexes a group's arrays unchecked
-	// The panels in reverse, so that each one's bit enters the mask by a
-	// shift of it (no shift by a variable count). The inner loop stops at
-	// an interval whose flat part the panel has not filled yet, and the
-	// outer one fills it and goes on: with no call inside it, the inner
-	// loop keeps its values in registers.
-	var in uint32
-	for p := len(off) - 1; p >= 0; {
-		for ; p >= 0; p-- {
-			o := off[p]
-			if !dom.Contains(o) {
-				in <<= 1
-				continue
-			}
-			x := (o - lo) * inv               // in [0, mt.last]: the table covers the domain
-			j := min(uint(int(x)), uint(top)) // unsigned: one bounds check for flat and rows
-			kf := &flat[j][p]
-			if kf.panel != panel[p] {
-				break
-			}
-			rw, f := &rows[j], x-float64(int(j))
-			c, v := rw.curve(f)
-			// L, the draw's first-order deviation from the site's mean:
-			// the panel deviations' flat part plus the per-site parts'.
-			l := kf.at(f) + siteDev(v, nrm[p])
-			if second {
-				l = rw.q.deviation(f, l) // variation_quad_mc.go
-			}
-			in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
+	off = off[:min(len(off), registration.MCGroup)] // slot p indexes a group's arrays unchecked
+	nrm, panel := nrm[:len(off)], w.panel[:len(off)]
+	for ; p >= 0 && p < len(off); p-- {
+		o := off[p]
+		if !dom.Contains(o) {
+			in <<= 1
+			continue
 		}
-		if p >= 0 {
-			j := min(int((off[p]-lo)*inv), top)
-			mt.fill(&flat[j][p], w.sec[mt.section].w[p], j, panel[p])
+		x := (o - lo) * inv               // in [0, mt.last]: the table covers the domain
+		j := min(uint(int(x)), uint(top)) // unsigned: one bounds check for flat and rows
+		kf := &flat[j][p]
+		if kf.panel != panel[p] {
+			return p, in
 		}
+		rw, f := &rows[j], x-float64(int(j))
+		c, v := rw.curve(f)
+		// L, the draw's first-order deviation from the site's mean: the
+		// panel deviations' flat part plus the per-site parts'.
+		l := kf.at(f) + siteDev(v, nrm[p])
+		if second {
+			l = rw.q.deviation(f, l) // variation_quad_mc.go
+		}
+		in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
 	}
-	return in
+	return -1, in
 }
 
 // inSpecAt is InSpec through at, for any number of shape groups.
