@@ -12,7 +12,8 @@ import (
 // splittable pseudorandom number generators", OOPSLA 2014), and standard
 // normals by the ziggurat of Marsaglia & Tsang ("The ziggurat method for
 // generating random variables", J. Stat. Softw. 5(8), 2000) with 256
-// layers.
+// layers: Norm from a 64-bit word, Norms two from each word's 32-bit
+// halves, the word size of Marsaglia & Tsang's own code.
 //
 // They are written here rather than taken from math/rand/v2 so that a
 // draw runs inside the site loops of the Monte Carlo: rand.Rand reaches
@@ -79,23 +80,86 @@ func (r *Stream) Norm() float64 {
 	return r.normTail(u)
 }
 
-// Norms fills dst with independent standard normal numbers, the same as
-// calling Norm for each, with the generator's state held in registers
-// over the loop.
+// Norms fills dst with independent standard normal numbers, two from
+// each 64-bit word (zigFast32 on its low and its high half): half the
+// generator steps of Norm a number. A lone last number is Norm's.
 func (r *Stream) Norms(dst []float64) {
+	for len(dst) >= 2 {
+		var u uint64
+		if dst, u = r.normsFast(dst); len(dst) < 2 {
+			break
+		}
+		// zigFast32 left one or both halves of u, the word of dst[0:2].
+		x, okx := zigFast32(uint32(u))
+		if !okx {
+			x = r.normTail32(uint32(u))
+		}
+		y, oky := zigFast32(uint32(u >> 32))
+		if !oky {
+			y = r.normTail32(uint32(u >> 32))
+		}
+		dst[0], dst[1] = x, y
+		dst = dst[2:]
+	}
+	if len(dst) == 1 {
+		dst[0] = r.Norm()
+	}
+}
+
+// normsFast is Norms' loop: it fills dst two numbers a word as long as
+// zigFast32 takes both halves, with the generator's state in registers
+// and no call (a call inside would make the compiler keep the loop's
+// values on the stack), and returns the part of dst left and the word
+// that stopped it, if any.
+func (r *Stream) normsFast(dst []float64) ([]float64, uint64) {
 	s0, s1, s2, s3 := r.s0, r.s1, r.s2, r.s3
-	for k := range dst {
+	for len(dst) >= 2 {
 		var u uint64
 		u, s0, s1, s2, s3 = xoshiro(s0, s1, s2, s3)
-		x, ok := zigFast(u)
+		x, ok := zigFast32(uint32(u))
 		if !ok {
 			r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
-			x = r.normTail(u)
-			s0, s1, s2, s3 = r.s0, r.s1, r.s2, r.s3
+			return dst, u
 		}
-		dst[k] = x
+		y, ok := zigFast32(uint32(u >> 32))
+		if !ok {
+			r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
+			return dst, u
+		}
+		dst[0], dst[1] = x, y
+		dst = dst[2:]
 	}
 	r.s0, r.s1, r.s2, r.s3 = s0, s1, s2, s3
+	return dst, 0
+}
+
+// zigFast32 is zigFast on a 32-bit half-word h, the word size of
+// Marsaglia & Tsang's own generator: its low 8 bits pick the layer and
+// its top 24 a signed position in it (independent bits, as in zigFast),
+// which places a number on a grid of 2⁻²³ of its layer's width (4.4e-7
+// at the widest), far below anything a Monte Carlo of 10⁶ trials
+// resolves.
+func zigFast32(h uint32) (x float64, ok bool) {
+	i := h & (zigLayers - 1)
+	j := int64(int32(h) >> 8)
+	k := zigK32[i]
+	return float64(j) * zigW32[i], uint64(j+k) < uint64(2*k)
+}
+
+// normTail32 is normTail for a half-word h that zigFast32 did not take:
+// the base layer's tail draw and the wedge test as there, and on
+// rejection a new draw by Norm (a rejection starts the ziggurat afresh,
+// and any exact normal draw may stand for that).
+func (r *Stream) normTail32(h uint32) float64 {
+	i, j := h&(zigLayers-1), int64(int32(h)>>8)
+	x := float64(j) * zigW32[i]
+	if i == 0 {
+		return r.baseTail(j > 0)
+	}
+	if zigF[i]+r.Float64()*(zigF[i-1]-zigF[i]) < math.Exp(-0.5*x*x) {
+		return x
+	}
+	return r.Norm()
 }
 
 // zigFast is the ziggurat's first step on draw u: its low 8 bits pick the
@@ -120,17 +184,7 @@ func (r *Stream) normTail(u uint64) float64 {
 		i, j := u&(zigLayers-1), int64(u)>>11
 		x := float64(j) * zigW[i]
 		if i == 0 {
-			for {
-				x = -math.Log(1-r.Float64()) / zigR
-				y := -math.Log(1 - r.Float64())
-				if y+y >= x*x {
-					break
-				}
-			}
-			if j > 0 {
-				return zigR + x
-			}
-			return -zigR - x
+			return r.baseTail(j > 0)
 		}
 		if zigF[i]+r.Float64()*(zigF[i-1]-zigF[i]) < math.Exp(-0.5*x*x) {
 			return x
@@ -138,6 +192,22 @@ func (r *Stream) normTail(u uint64) float64 {
 		u = r.Uint64()
 		if x, ok := zigFast(u); ok {
 			return x
+		}
+	}
+}
+
+// baseTail returns a draw of the ziggurat's base layer beyond R, from the
+// normal tail (Marsaglia 1964: x = −ln(U₁)/R, accepted when
+// −2·ln(U₂) > x²), on the positive side if pos.
+func (r *Stream) baseTail(pos bool) float64 {
+	for {
+		x := -math.Log(1-r.Float64()) / zigR
+		y := -math.Log(1 - r.Float64())
+		if y+y >= x*x {
+			if pos {
+				return zigR + x
+			}
+			return -zigR - x
 		}
 	}
 }
@@ -164,6 +234,10 @@ var (
 	zigK [zigLayers]int64
 	zigW [zigLayers]float64
 	zigF [zigLayers]float64
+	// zigK32 and zigW32 are zigK and zigW for zigFast32's positions j in
+	// [−2²³, 2²³): zigK32[i] = 2²³·xᵢ₋₁/xᵢ, zigW32[i] = xᵢ/2²³.
+	zigK32 [zigLayers]int64
+	zigW32 [zigLayers]float64
 )
 
 func init() {
@@ -182,5 +256,11 @@ func init() {
 		tn = dn
 		zigF[i] = f(dn)
 		zigW[i] = dn / zigScale
+	}
+	for i := range zigLayers {
+		// zigK[i] is ⌊2⁵²·ratio⌋, so the shift is ⌊2²³·ratio⌋; the
+		// product by a power of two is exact.
+		zigK32[i] = zigK[i] >> (52 - 23)
+		zigW32[i] = zigW[i] * (zigScale >> 23)
 	}
 }

@@ -21,6 +21,13 @@ import (
 //     with probability above 1 − 6·6.8e-6).
 //   - Mean and variance within 4.5 standard errors (1/√n and √(2/n)).
 //
+// Both Norm and Norms (two numbers from each word, zigFast32), the latter
+// in the Monte Carlo's batches of 2·MCGroup and in batches of 7 (a lone
+// last number from Norm); for Norms also the correlation of the two
+// numbers of one word, of their values and of their squares (a shared
+// layer would show in the squares), each within 4.5 standard errors 1/√m
+// of m pairs.
+//
 // The draws are from a fixed seed, so the test is deterministic; the
 // bounds say how unlikely a failure of a correct generator would be.
 func TestStreamNormal(t *testing.T) {
@@ -28,14 +35,59 @@ func TestStreamNormal(t *testing.T) {
 	if testing.Short() {
 		n = 400_000
 	}
-	var r Stream
-	r.Seed(1, 0)
-	x := make([]float64, n)
+	for _, c := range []struct {
+		name  string
+		batch int // 0: Norm
+	}{{"Norm", 0}, {"Norms16", 2 * MCGroup}, {"Norms7", 7}} {
+		t.Run(c.name, func(t *testing.T) {
+			var r Stream
+			r.Seed(1, 0)
+			x := make([]float64, n)
+			if c.batch == 0 {
+				for i := range x {
+					x[i] = r.Norm()
+				}
+			} else {
+				for i := 0; i < n; i += c.batch {
+					r.Norms(x[i:min(n, i+c.batch)])
+				}
+				if c.batch%2 == 0 {
+					testPairs(t, x)
+				}
+			}
+			testNormal(t, x)
+		})
+	}
+}
+
+// testPairs checks that x[2k] and x[2k+1], the two numbers of one word in
+// Norms, are uncorrelated in value and in square (TestStreamNormal).
+func testPairs(t *testing.T, x []float64) {
+	const seBound = 4.5
+	m := float64(len(x) / 2)
+	var sxy, sq float64
+	for k := 0; k+1 < len(x); k += 2 {
+		a, b := x[k], x[k+1]
+		sxy += a * b
+		// (a² − 1)(b² − 1) has mean 0 and variance 2·2 = 4 for
+		// independent standard normals (E[(a² − 1)²] = 2).
+		sq += (a*a - 1) * (b*b - 1) / 2
+	}
+	if rho := sxy / m; math.Abs(rho) > seBound/math.Sqrt(m) {
+		t.Errorf("correlation of the pairs %.2e, bound %.2e", rho, seBound/math.Sqrt(m))
+	}
+	if rho := sq / m; math.Abs(rho) > seBound/math.Sqrt(m) {
+		t.Errorf("correlation of the pairs' squares %.2e, bound %.2e", rho, seBound/math.Sqrt(m))
+	}
+}
+
+// testNormal is TestStreamNormal's test of draws x.
+func testNormal(t *testing.T, x []float64) {
+	n := len(x)
 	var sum, sum2 float64
-	for i := range x {
-		x[i] = r.Norm()
-		sum += x[i]
-		sum2 += x[i] * x[i]
+	for _, v := range x {
+		sum += v
+		sum2 += v * v
 	}
 	const ksCrit, seBound = 1.63, 4.5
 	fn := float64(n)

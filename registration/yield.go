@@ -337,8 +337,11 @@ type SiteCheckWorker interface {
 	// InSpec reports on which panels of the group claimed site i meets
 	// its spec, as a mask with bit p for slot p, given its across offset
 	// off[p] on each (design offset included; len(off) panels, slots
-	// 0 to len(off)−1), drawing its per-site parts.
-	InSpec(i int, off []float64, r *Stream) uint32
+	// 0 to len(off)−1) and nrm[p], a standard normal independent of
+	// everything else for the site's own per-site parts on that panel
+	// (unused if it has none). The Monte Carlo draws nrm with the site's
+	// registration normals in one Norms call.
+	InSpec(i int, off, nrm []float64) uint32
 }
 
 // Products returns the number of part instances that are products.
@@ -619,13 +622,14 @@ type mcWorker struct {
 	str   *Stream
 	rng   *rand.Rand // str, for Model.Sample
 	draw  Draw
-	v     [][NumTerms]float64 // per pair and group slot: v[pair·MCGroup + slot]
+	v     [][MCGroup][NumTerms]float64 // per pair and group slot: v[pair][slot]
 	// failed holds per part the mask of the group's panels on which one
 	// of its sites failed; dirty lists the parts whose mask is not 0.
 	failed    []uint32
 	dirty     []int32
-	coupon    []bool           // per part, whether it is a coupon (Yield.Coupons)
-	off, nrm  [MCGroup]float64 // per slot: a site's offsets, its per-site normals
+	coupon    []bool               // per part, whether it is a coupon (Yield.Coupons)
+	off       [MCGroup]float64     // per slot, a site's offsets
+	nrm       [2 * MCGroup]float64 // per slot, a site's registration normals, then its checker's (InSpec)
 	siteGood  []int64
 	partBad   []int64
 	goodParts []int64
@@ -635,7 +639,7 @@ type mcWorker struct {
 
 func newMCWorker(y *Yield, sites []mcSite) *mcWorker {
 	str := new(Stream)
-	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][NumTerms]float64, MCGroup*len(y.Pairs)),
+	w := &mcWorker{y: y, sites: sites, str: str, rng: rand.New(str), draw: y.Model.NewDraw(), v: make([][MCGroup][NumTerms]float64, len(y.Pairs)),
 		failed: make([]uint32, y.Parts), dirty: make([]int32, 0, y.Parts), coupon: make([]bool, y.Parts), siteGood: make([]int64, len(sites)),
 		partBad: make([]int64, y.Parts), goodParts: make([]int64, y.Products()+1), check: newCheckWorker(y)}
 	for _, c := range y.Coupons {
@@ -667,7 +671,7 @@ func (w *mcWorker) group(g int) {
 	for p := range g {
 		w.y.Model.Sample(w.rng, w.draw)
 		for q, r := range w.y.Pairs {
-			w.v[q*MCGroup+p] = r.Collapse(w.draw)
+			w.v[q][p] = r.Collapse(w.draw)
 		}
 		if w.check != nil {
 			w.check.Panel(p, str)
@@ -680,20 +684,24 @@ func (w *mcWorker) group(g int) {
 	for i := range sites {
 		s := &sites[i]
 		a := &s.a
-		vs := w.v[int(s.pair)*MCGroup:][:g]
+		vs := w.v[s.pair][:g]
 		var in uint32
-		nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
-		if s.sd > 0 {
-			str.Norms(nrm)
-		}
 		if s.checked {
-			for p, n := range nrm {
+			// One Norms call for the site's registration normals and its
+			// checker's.
+			nrm := w.nrm[:2*len(vs)]
+			str.Norms(nrm)
+			for p, n := range nrm[:len(vs)] {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]
 				off[p] = d + s.sd*n + s.base
 			}
-			in = w.check.InSpec(i, off, str)
+			in = w.check.InSpec(i, off, nrm[len(vs):])
 		} else {
+			nrm := w.nrm[:len(vs)] // without per-site sigma, sd·n = 0 for any earlier n
+			if s.sd > 0 {
+				str.Norms(nrm)
+			}
 			for p, n := range nrm {
 				v := &vs[p]
 				d := a[0]*v[0] + a[1]*v[1] + a[2]*v[2] + a[3]*v[3] + a[4]*v[4] + a[5]*v[5]

@@ -94,7 +94,7 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 			for p := range registration.MCGroup {
 				w.sec[i].w[p] = make([]float64, mt.nb)
 			}
-			w.sec[i].flat = make([]pcFlat, mt.n*registration.MCGroup)
+			w.sec[i].flat = make([][registration.MCGroup]pcFlat, mt.n)
 		}
 	}
 	return w
@@ -109,22 +109,21 @@ type procCheckWorker struct {
 	serial int64       // panels drawn so far
 	// panel holds per slot the serial number of its panel (from 1).
 	panel [registration.MCGroup]int64
-	nrm   [registration.MCGroup]float64 // per slot, a site's normal draw
 }
 
 // pcSection is one section's panel parts: per slot of the group and
-// binding the panel mean plus the panel's deviation, and per table
-// interval and slot (flat[j·MCGroup + p]) the flat part of the coupling
+// binding the panel's deviation dᵦ from the binding's mean, and per table
+// interval and slot (flat[j][p]) the flat part of the coupling
 // it adds (pcFlat), filled when a site first needs the interval on the
 // panel, so that a panel costs what its sites read and not the whole
 // table.
 type pcSection struct {
 	w    [registration.MCGroup][]float64
-	flat []pcFlat
+	flat [][registration.MCGroup]pcFlat
 }
 
-// pcFlat is the flat part of one table interval on one panel: Σ sᵦ·wᵦ and
-// Σ dsᵦ·wᵦ over the bindings, valid when panel is the slot's serial (side
+// pcFlat is the flat part of one table interval on one panel: Σ sᵦ·dᵦ and
+// Σ dsᵦ·dᵦ over the bindings (the means' part is in the row's cubic, mcRow), valid when panel is the slot's serial (side
 // by side, so that one cache line holds the test and the values).
 type pcFlat struct {
 	a, g  float64
@@ -156,73 +155,87 @@ func (w *procCheckWorker) newPanel(p int) {
 		if mt := w.pc.tabs[i]; mt != nil {
 			wp := w.sec[i].w[p]
 			for b, t := range ts {
-				wp[b] = mt.mean[b] + w.dev[t]
+				wp[b] = w.dev[t]
 			}
 		}
 	}
 }
 
 // InSpec decides site i on the group's panels: bit p of the mask for
-// slot p, at offset off[p]. An offset outside the section's domain is out
-// of spec whatever the process terms do (its normal draw is left unused:
-// the draws are independent of everything else). Inside, everything is
-// read from the section's mcTab with one interval index (mcRow.curve and
-// mcRow.lin, the section's values hoisted out of the loop over the
-// panels) when the
-// table covers the domain (mcTab.covers) and the site has at most mcChunk
-// shape groups; otherwise the site takes inSpecAt.
-func (w *procCheckWorker) InSpec(i int, off []float64, r *registration.Stream) uint32 {
+// slot p, at offset off[p], with nrm[p] the standard normal of its
+// per-site parts (their sum, firstOrder). An offset outside the section's
+// domain is out of spec whatever the process terms do (its normal draw is
+// left unused: the draws are independent of everything else). Inside,
+// everything is read from the section's mcTab with one interval index
+// (mcRow, the section's values hoisted out of the loop over the panels)
+// when the table covers the domain (mcTab.covers) and the site has at
+// most mcChunk shape groups; otherwise the site takes inSpecAt.
+func (w *procCheckWorker) InSpec(i int, off, nrm []float64) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
 	if len(off) > registration.MCGroup {
 		panic("drift: more panels than a group holds")
 	}
 	if len(ps.more) > 0 || !mt.covers {
-		return w.inSpecAt(i, off, r)
+		return w.inSpecAt(i, off, nrm)
 	}
-	nrm := w.norms(off, mt, r)
-	// Everything the loop reads of mt and w is held in locals: the loop
-	// calls nothing on its hot path (fill runs once per interval and
-	// panel), so that they stay in registers.
+	// The panels in reverse, so that each one's bit enters the mask by a
+	// shift of it (no shift by a variable count). inSpecRun stops at an
+	// interval whose flat part the panel has not filled yet (once per
+	// interval and panel); it is filled here and the run goes on.
+	p, in := len(off)-1, uint32(0)
+	for {
+		if p, in = w.inSpecRun(ps, off, nrm, p, in); p < 0 {
+			return in
+		}
+		j := min(int((off[p]-mt.lo)*mt.inv), mt.n-1)
+		mt.fill(&w.sec[mt.section].flat[j][p], w.sec[mt.section].w[p], j, w.panel[p])
+	}
+}
+
+// inSpecRun is InSpec's loop over the panels p, p − 1, … 0 with the mask
+// in of those after p: it returns the mask and −1, or the panel whose
+// interval is not filled and the mask so far. Everything the loop reads
+// of mt and w is held in locals, and it calls nothing, so that they stay
+// in registers.
+func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in uint32) (int, uint32) {
+	mt := ps.tab
 	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
 	second, win := mt.second, mt.window
-	rows, flat, ph := mt.rows[:top+1], w.sec[mt.section].flat, &ps.phi
-	panel := &w.panel
-	// The panels in reverse, so that each one's bit enters the mask by a
-	// shift of it (no shift by a variable count).
-	var in uint32
-	for p := len(off) - 1; p >= 0; p-- {
+	rows, ph := mt.rows[:top+1], &ps.phi
+	flat := w.sec[mt.section].flat[:len(rows)]
+	off = off[:min(len(off), registration.MCGroup)] // slot p indexes a group's arrays unchecked
+	nrm, panel := nrm[:len(off)], w.panel[:len(off)]
+	for ; p >= 0 && p < len(off); p-- {
 		o := off[p]
-		in <<= 1
 		if !dom.Contains(o) {
+			in <<= 1
 			continue
 		}
-		x := (o - lo) * inv // in [0, mt.last]: the table covers the domain
-		j := min(int(x), top)
-		kf := &flat[j*registration.MCGroup+p]
+		x := (o - lo) * inv               // in [0, mt.last]: the table covers the domain
+		j := min(uint(int(x)), uint(top)) // unsigned: one bounds check for flat and rows
+		kf := &flat[j][p]
 		if kf.panel != panel[p] {
-			mt.fill(kf, w.sec[mt.section].w[p], j, panel[p])
+			return p, in
 		}
-		rw, f := &rows[j], x-float64(j)
+		rw, f := &rows[j], x-float64(int(j))
 		c, v := rw.curve(f)
-		flat := kf.at(f)
-		lin := flat + rw.sh.at(ph, f)
-		var m float64
+		// L, the draw's first-order deviation from the site's mean: the
+		// panel deviations' flat part plus the per-site parts'.
+		l := kf.at(f) + siteDev(v, nrm[p])
 		if second {
-			m = rw.q.coupling(f, c, lin, flat, siteDev(v, nrm[p])) // variation_quad_mc.go
-		} else {
-			m = firstOrder(c, lin, v, nrm[p])
+			l = rw.q.deviation(f, l) // variation_quad_mc.go
 		}
-		in |= win.bit(m)
+		in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
 	}
-	return in
+	return -1, in
 }
 
 // inSpecAt is InSpec through at, for any number of shape groups.
-func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream) uint32 {
+func (w *procCheckWorker) inSpecAt(i int, off, nrm []float64) uint32 {
 	ps := &w.pc.sites[i]
 	mt := ps.tab
-	nrm := w.norms(off, mt, r)
+	nrm = nrm[:len(off)]
 	var in uint32
 	for p, o := range off {
 		if !mt.domain.Contains(o) {
@@ -230,15 +243,13 @@ func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream)
 		}
 		var ok bool
 		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
-			c, lin, v := w.at(p, ps, x)
-			if !mt.second {
-				ok = mt.inSpec(c, lin, v, nrm[p])
-			} else {
+			c, shape, flat, v := w.at(p, ps, x)
+			l := flat + siteDev(v, nrm[p])
+			if mt.second {
 				j := min(int(x), mt.n-1)
-				f := x - float64(j)
-				flat := w.sec[mt.section].flat[j*registration.MCGroup+p].at(f) // filled by at
-				ok = mt.inSpecSecond(j, f, c, lin, flat, v, nrm[p])
+				l = mt.rows[j].q.deviation(x-float64(j), l)
 			}
+			ok = mt.window.bit(c+shape+l) == 1
 		} else {
 			ok = w.inSpecSlow(p, i, o, nrm[p])
 		}
@@ -249,22 +260,9 @@ func (w *procCheckWorker) inSpecAt(i int, off []float64, r *registration.Stream)
 	return in
 }
 
-// norms draws a site's standard normals for its per-site parts, one per
-// panel of the group, when mt's terms have any (0 otherwise). A draw
-// whose panel turns out not to need it (an offset outside the domain) is
-// left unused: the draws are independent of everything else.
-func (w *procCheckWorker) norms(off []float64, mt *mcTab, r *registration.Stream) []float64 {
-	nrm := w.nrm[:len(off)]
-	if mt.site {
-		r.Norms(nrm)
-	} else {
-		clear(nrm)
-	}
-	return nrm
-}
-
 // inSpec is the rule for an offset in the domain whose coupling is
-// c + lin + √v·n: c the curve, lin the linear process part without the
+// c + lin + √v·n: c the coupling at the panel means (the curve and the
+// means' part), lin the rest of the linear process part without the
 // per-site parts, v the variance of the per-site parts and n a standard
 // normal draw (firstOrder), inside the spec window.
 func (mt *mcTab) inSpec(c, lin, v, n float64) bool {
@@ -305,33 +303,34 @@ func (sw specWindow) bit(m float64) uint32 {
 }
 
 // at returns, at table position x (0 ≤ x ≤ mt.last) for site ps on the
-// panel of slot p, the curve c(δ), the linear process part
-// Σ sᵦ(δ)·(Mᵦ + dᵦ + Aᵦ·φᵦ(site)) (the shape part summed by group) and
-// the per-site variance Σ σᵦ²·sᵦ(δ)².
-func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, lin, v float64) {
+// panel of slot p, the row's cubic c (mcRow: the curve c(δ), the means'
+// part Σ sᵦ(δ)·Mᵦ and, with a second-order term, e₀(δ)), the shape part
+// Σ sᵦ(δ)·Aᵦ·φᵦ(site) (summed by group), the flat part of the panel's
+// deviations Σ sᵦ(δ)·dᵦ and the per-site variance Σ σᵦ²·sᵦ(δ)².
+func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, shape, flat, v float64) {
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
 	sec := &w.sec[mt.section]
-	kf := &sec.flat[j*registration.MCGroup+p]
+	kf := &sec.flat[j][p]
 	if kf.panel != w.panel[p] {
 		mt.fill(kf, sec.w[p], j, w.panel[p])
 	}
 	f := x - float64(j)
 	rw := &mt.rows[j]
 	c, v = rw.curve(f)
-	lin = kf.at(f) + rw.sh.at(&ps.phi, f)
+	shape = rw.sh.at(&ps.phi, f)
 	if len(ps.more) > 0 {
-		lin += mt.moreAt(j, ps.more, f)
+		shape += mt.moreAt(j, ps.more, f)
 	}
-	return c, lin, v
+	return c, shape, kf.at(f), v
 }
 
 // The sums at position f (0 to 1) in the interval of row r (mcTab), in
 // parts small enough to be inlined into the loop over the panels: curve
-// returns the curve c₀ + c₁f + c₂f² + c₃f³ and the per-site variance
-// A + 2Bf + Cf²; the linear process part is the flat part on the panel,
-// kf.at(f) = kf.a + f·kf.g, plus the shape part, Σ (Gq + f·dGq)·φq over
-// the groups in chunks of mcChunk (mcShapes.at).
+// returns the cubic c₀ + c₁f + c₂f² + c₃f³ and the per-site variance
+// A + 2Bf + Cf²; the rest of the linear process part is the flat part of
+// the panel's deviations, kf.at(f) = kf.a + f·kf.g, plus the shape part,
+// Σ (Gq + f·dGq)·φq over the groups in chunks of mcChunk (mcShapes.at).
 func (r *mcRow) curve(f float64) (c, v float64) {
 	k := &r.k
 	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(k[5]+f*k[6])
@@ -357,7 +356,7 @@ func (mt *mcTab) moreAt(j int, more [][mcChunk]float64, f float64) float64 {
 }
 
 // fill sets kf, interval j's flat part on the panel serial whose bindings
-// take the values wb: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
+// deviate by wb from their means: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
 func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
 	nb := mt.nb
 	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
@@ -392,7 +391,7 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 	wb := w.sec[mt.section].w[p][:mt.nb]
 	for b := range wb {
 		s := r0[b] + f*(r1[b]-r0[b])
-		mb := wb[b]
+		mb := mt.mean[b] + wb[b]
 		if q := mt.group[b]; q >= 0 {
 			mb += mt.amp[b] * mt.groups[q].At(pos, size)
 		}
@@ -410,12 +409,13 @@ const mcChunk = 4
 
 // mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, 2B, C
 // and one unused value, sh the first mcChunk groups' Gq and dGq, and q
-// the second-order term's values (mcSecond; zero without one), so that
-// one interval's values lie together in three cache lines.
+// the second-order term's values (mcSecond; zero without one), padded so
+// that one interval's values lie together in three cache lines.
 type mcRow struct {
 	k  [8]float64
 	sh mcShapes
 	q  mcSecond
+	_  [8 - secondStride]float64
 }
 
 // mcShapes is one chunk of shape groups in one interval: their Gq
@@ -432,12 +432,14 @@ type mcShapes [2 * mcChunk]float64
 // interval j, starting at offset lo + j·step, with f the position in the
 // interval (0 to 1), a row holds
 //
-//   - c₀…c₃, the coupling c₀ + c₁f + c₂f² + c₃f³: the curve's monotone
-//     cubic (section.Curve.Coupling) is one cubic between its solved
-//     offsets, and an interval of the table lies inside one of them when
-//     the solved offsets are evenly spaced (every interval of the table is
-//     a 1/procTabPerSpan part of one), so the four-point fit reproduces it
-//     up to rounding (TestMCTab measures it);
+//   - c₀…c₃, the coupling at the panel means c₀ + c₁f + c₂f² + c₃f³: the
+//     curve's monotone cubic (section.Curve.Coupling) is one cubic between
+//     its solved offsets, and an interval of the table lies inside one of
+//     them when the solved offsets are evenly spaced (every interval of
+//     the table is a 1/procTabPerSpan part of one), so the four-point fit
+//     reproduces it up to rounding (TestMCTab measures it); to it are
+//     added the means' part Σ sᵦ(f)·Mᵦ and, with a second-order term, e₀
+//     (linear in f, fillSecond), so that the loop adds only deviations;
 //   - A, B, C, the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf²
 //     expanded exactly (σᵦ is the term's, the same at every site);
 //   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and dGq: Σ Aᵦ·dsᵦ,
@@ -446,7 +448,8 @@ type mcShapes [2 * mcChunk]float64
 //     in nx chunks per interval in more, mcShapes).
 //
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
-// fills the flat part Σ sᵦ(f)·(Mᵦ + dᵦ) of each panel (pcSection, pcFlat).
+// fills the flat part Σ sᵦ(f)·dᵦ of each panel's deviations (pcSection,
+// pcFlat).
 type mcTab struct {
 	ev            *Evaluator
 	section       int
@@ -551,6 +554,8 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 				row.sh[q] += mt.amp[b] * s
 				row.sh[mcChunk+q] += mt.amp[b] * ds
 			}
+			k[0] += mt.mean[b] * s // the means' part; the cubic's below
+			k[1] += mt.mean[b] * ds
 			k[4] += mt.sv[b] * s * s
 			k[5] += mt.sv[b] * s * ds
 			k[6] += mt.sv[b] * ds * ds
@@ -562,8 +567,8 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		x := float64(j)
 		y0, y1, y2, y3 := at(x), at(x+1.0/3), at(x+2.0/3), at(x+1)
 		d1, d2, d3 := y1-y0, y2-2*y1+y0, y3-3*y2+3*y1-y0
-		k[0] = y0
-		k[1] = 3 * (d1 - d2/2 + d3/3)
+		k[0] += y0
+		k[1] += 3 * (d1 - d2/2 + d3/3)
 		k[2] = 9 * (d2/2 - d3/2)
 		k[3] = 27 * (d3 / 6)
 	}

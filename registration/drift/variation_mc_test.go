@@ -78,8 +78,9 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 	)
 	rng := rand.New(rand.NewPCG(1, 2))
 	w := pc.NewWorker().(*procCheckWorker)
-	var r1, r2 registration.Stream
+	var r registration.Stream
 	offs := make([]float64, registration.MCGroup)
+	nrm := make([]float64, registration.MCGroup)
 	var worstM, worstV float64
 	var row procRow
 	for range 200 {
@@ -96,17 +97,20 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 			ev := mt.ev
 			x := rng.Float64() * mt.last
 			off := mt.lo + x*mt.step
-			c, lin, v := w.at(0, ps, x)
-			m := c + lin
+			c, shape, flat, v := w.at(0, ps, x)
+			m := c + shape + flat
 			ev.Proc.row(&row, a.Sites[k].Site.Pos)
-			wm, wv := ev.Curve.Coupling(off), 0.0
+			// The row's cubic holds e₀ too, with a second-order term (0
+			// without).
+			e0, _, _ := ev.Proc.secondAt(off)
+			wm, wv := ev.Curve.Coupling(off)+e0, 0.0
 			for b, mu := range row.means() {
 				sb := ev.termSens(b, off)
 				wm += sb * (mu + w.dev[ev.Proc.Bind[b].Term])
 				wv += sb * sb * mt.sv[b]
 			}
 			// The fallback for offsets outside the table is the same sum.
-			if sc, sl, sv := w.slowAt(0, k, off); math.Abs(sc+sl-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
+			if sc, sl, sv := w.slowAt(0, k, off); math.Abs(sc+sl+e0-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
 				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sc+sl, sv, wm, wv)
 			}
 			// One panel in every slot: the hot path and the general one
@@ -116,9 +120,9 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 				w.panel[p] = w.panel[0]
 				offs[p] = mt.lo + (0.5+0.3*rng.NormFloat64())*mt.last*mt.step
 			}
-			r1.Seed(3, uint64(k))
-			r2.Seed(3, uint64(k))
-			if hot, gen := w.InSpec(k, offs, &r1), w.inSpecAt(k, offs, &r2); hot != gen {
+			r.Seed(3, uint64(k))
+			r.Norms(nrm)
+			if hot, gen := w.InSpec(k, offs, nrm), w.inSpecAt(k, offs, nrm); hot != gen {
 				t.Fatalf("site %d: InSpec %08b, inSpecAt %08b", k, hot, gen)
 			}
 			worstM = math.Max(worstM, math.Abs(m-wm))
@@ -172,9 +176,8 @@ func TestMCSecondHotSlow(t *testing.T) {
 				offs[p] = mt.domain.Lo + rng.Float64()*(mt.domain.Hi-mt.domain.Lo)
 			}
 			r.Seed(9, uint64(trial*len(pc.sites)+k))
-			same := r // the same normals for the slow path
-			same.Norms(nrm)
-			hot := w.InSpec(k, offs, &r)
+			r.Norms(nrm) // the same normals for the slow path
+			hot := w.InSpec(k, offs, nrm)
 			for p, o := range offs {
 				c, lin, v := w.slowAt(p, k, o)
 				m := w.slowSecond(p, k, o, c, lin, v, nrm[p])

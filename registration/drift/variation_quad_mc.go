@@ -5,57 +5,43 @@ package drift
 // deviations' part Σ sᵦ·dᵦ plus the per-site normal, and the coupling is
 // the first-order draw plus e₀ + (κ − 1)·L + ρ·L², the closed form's model.
 
-// secondStride is the number of values per interval of mcTab.second: e₀,
-// κ and ρ at the interval's start and their steps over it, and the flat
-// part of the panel means, Σ sᵦ·Mᵦ and Σ dsᵦ·Mᵦ.
-const secondStride = 8
+// secondStride is the number of values per interval of mcTab.second: κ
+// and ρ at the interval's start and their steps over it (e₀ and the
+// panel means' part are in the row's cubic, mcRow).
+const secondStride = 4
 
 // mcSecond is one interval's second-order values (secondStride of them),
 // held in the interval's mcRow so that the hot loop reads them from the
 // cache lines it reads the rest from.
 type mcSecond [secondStride]float64
 
-// fillSecond fills mt.second from the evaluator's table (same intervals).
+// fillSecond fills mt.second from the evaluator's table (same intervals)
+// and adds e₀ to the rows' cubics.
 func (mt *mcTab) fillSecond() {
 	pr := mt.ev.Proc
 	if pr.second == nil || mt.rows == nil {
 		return
 	}
-	nb := mt.nb
 	mt.second = true
 	for j := range mt.n {
-		q := &mt.rows[j].q
+		row := &mt.rows[j]
 		r0, r1 := pr.second[3*j:3*j+3], pr.second[3*(j+1):3*(j+1)+3]
-		for k := range 3 {
-			q[2*k], q[2*k+1] = r0[k], r1[k]-r0[k]
-		}
-		sd := mt.sd[j*2*nb : (j+1)*2*nb]
-		for b := range nb {
-			q[6] += sd[2*b] * mt.mean[b]
-			q[7] += sd[2*b+1] * mt.mean[b]
-		}
+		row.k[0] += r0[0]
+		row.k[1] += r1[0] - r0[0]
+		row.q = mcSecond{r0[1], r1[1] - r0[1], r0[2], r1[2] - r0[2]}
 	}
 }
 
-// inSpecSecond is mcTab.inSpec with the second-order term, in interval j
-// at position f: c the curve, lin the linear process part without the
-// per-site parts, flat its flat part on the panel (Σ sᵦ·(Mᵦ + dᵦ)), v the
-// per-site variance and n the site's normal draw. L is the per-site part
-// plus the panel deviations' Σ sᵦ·dᵦ (the flat part less the panel
-// means'), and the coupling the first-order draw plus e₀ + (κ − 1)·L + ρ·L².
-func (mt *mcTab) inSpecSecond(j int, f, c, lin, flat, v, n float64) bool {
-	return mt.window.bit(mt.rows[j].q.coupling(f, c, lin, flat, siteDev(v, n))) == 1
+// deviation returns, at position f in the interval, the coupling's
+// deviation κ·L + ρ·L² from the row's cubic and shape part for a draw
+// whose first-order deviation is l: with the first-order draw and e₀ the
+// closed form's e₀ + L + (κ − 1)·L + ρ·L², written so that InSpec's loop
+// reads three products (small enough to be inlined into it).
+func (q *mcSecond) deviation(f, l float64) float64 {
+	return l * (q[0] + f*q[1] + (q[2]+f*q[3])*l)
 }
 
-// coupling returns the coupling of inSpecSecond at position f in the
-// interval, dev the per-site parts' deviation (siteDev), small enough to
-// be inlined into InSpec's loop.
-func (q *mcSecond) coupling(f, c, lin, flat, dev float64) float64 {
-	l := dev + flat - (q[6] + f*q[7])
-	return c + lin + dev + q[0] + f*q[1] + (q[2]+f*q[3]-1)*l + (q[4]+f*q[5])*l*l
-}
-
-// inSpecSlowSecond is inSpecSecond for site i on the panel of slot p at
+// inSpecSlowSecond is InSpec with the second-order term for site i on the panel of slot p at
 // offset off outside the table, from the evaluator's rows (c, lin and v
 // from slowAt).
 func (w *procCheckWorker) inSpecSlowSecond(p, i int, off, c, lin, v, n float64) bool {
@@ -70,7 +56,7 @@ func (w *procCheckWorker) slowSecond(p, i int, off, c, lin, v, n float64) float6
 	r0, r1, f := pr.rows(off)
 	l := dev
 	for b, wb := range w.sec[mt.section].w[p][:mt.nb] {
-		l += (r0[b] + f*(r1[b]-r0[b])) * (wb - mt.mean[b])
+		l += (r0[b] + f*(r1[b]-r0[b])) * wb
 	}
 	e0, kappa, rho := pr.secondAt(off)
 	return c + lin + dev + e0 + (kappa-1)*l + rho*l*l
