@@ -37,9 +37,9 @@ func bigProcessInput(b *testing.B) *Input {
 	return in
 }
 
-// BenchmarkAnalyse10kProcess is BenchmarkAnalyse10k with 12 process
-// terms: every quantity of every site, P(in spec) by the offset integral.
-func BenchmarkAnalyse10kProcess(b *testing.B) {
+// evaluatedProcess returns bigProcessInput, its curves (solved into a
+// temporary cache) and its analysis evaluated on them.
+func evaluatedProcess(b *testing.B) (*Input, []*Curve, *Analysis) {
 	in := bigProcessInput(b)
 	set := &Settings{Accuracy: 0.01, CacheDir: b.TempDir()}
 	curves, err := SolveCurves(b.Context(), set, New(in, nil))
@@ -48,6 +48,13 @@ func BenchmarkAnalyse10kProcess(b *testing.B) {
 	}
 	a := New(in, nil)
 	a.Evaluate(curves)
+	return in, curves, a
+}
+
+// BenchmarkAnalyse10kProcess is BenchmarkAnalyse10k with 12 process
+// terms: every quantity of every site, P(in spec) by the offset integral.
+func BenchmarkAnalyse10kProcess(b *testing.B) {
+	in, curves, a := evaluatedProcess(b)
 	if len(a.proc[0].Bind) != 12 {
 		b.Fatalf("%d terms bound, want 12", len(a.proc[0].Bind))
 	}

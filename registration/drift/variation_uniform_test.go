@@ -321,14 +321,7 @@ func TestUniformProcessMonteCarlo(t *testing.T) {
 // drift, exact ("uniform") and with the uniform parts taken as normal
 // ("normal", the path of jobs without them).
 func BenchmarkSiteUniform(b *testing.B) {
-	in := bigProcessInput(b)
-	set := &Settings{Accuracy: 0.01, CacheDir: b.TempDir()}
-	curves, err := SolveCurves(b.Context(), set, New(in, nil))
-	if err != nil {
-		b.Fatal(err)
-	}
-	a := New(in, nil)
-	a.Evaluate(curves)
+	_, _, a := evaluatedProcess(b)
 	ev := a.Evaluator(a.Sites[0].Section)
 	r := &a.Sites[0]
 	op := ev.Rel.Prob(&r.Row, ev.Curve.Section.NominalOffset())
