@@ -76,7 +76,7 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 	plain.Sensitivities = false
 	lin := &Linearity{LimitDB: linearLimit}
 	count := make([]int, len(a.In.Sections))
-	worst := -1 // the check furthest beyond its limit, relative to it
+	worst, worstRatio := -1, 0.0 // the check furthest beyond its limit, relative to it
 	for _, k := range a.Worst(len(a.Sites)) {
 		r := &a.Sites[k]
 		if count[r.Section] == n {
@@ -93,7 +93,6 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 		var row procRow
 		ev.Proc.row(&row, r.Site.Pos)
 		params := c.Curve.Params()
-		dps := make([]float64, len(ev.Proc.Bind))
 		e0, kappa, rho := ev.Proc.secondAt(r.Offset)
 		for _, z := range [2]float64{-LinearSigmas, LinearSigmas} {
 			s := c.Section.Perturbed(params[0], 0) // a copy
@@ -103,7 +102,6 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 				sens := ev.termSens(b, r.Offset)
 				dev := math.Copysign(row.extreme(b, LinearSigmas), z*sens)
 				dp := row.means()[b] + dev
-				dps[b] = dp
 				pred += sens * dp
 				l += sens * dev
 				for _, pk := range bd.Params {
@@ -121,8 +119,9 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 				LinearDB: pred, DirectDB: d, ErrorDB: pred - d, ModelDB: model, ModelErrorDB: model - d})
 			lin.MaxErrorDB = math.Max(lin.MaxErrorDB, math.Abs(pred-d))
 			lin.MaxModelErrorDB = math.Max(lin.MaxModelErrorDB, math.Abs(model-d))
-			if i := len(lin.Checks) - 1; math.Abs(model-d) > limit && (worst < 0 || math.Abs(model-d)/limit > math.Abs(lin.Checks[worst].ModelErrorDB)/lin.Checks[worst].LimitDB) {
-				worst = i
+			// The check furthest beyond its own limit names the warning.
+			if r := math.Abs(model-d) / limit; r > 1 && r > worstRatio {
+				worst, worstRatio = len(lin.Checks)-1, r
 			}
 		}
 	}

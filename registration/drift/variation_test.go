@@ -650,3 +650,74 @@ func TestProcessWarnings(t *testing.T) {
 		t.Errorf("warnings %q, want one naming the term outside", ws)
 	}
 }
+
+// TestCheckLinearityPerSection: with two sections the check covers the
+// worst sites of each, not the worst of the job (here all of the tighter
+// section's: it has the lower P(in spec)), and judges each against its own
+// limit, 0.05 dB or a tenth of its tolerance (0.025 and 0.05 dB here); a
+// warning names the section furthest beyond its limit.
+func TestCheckLinearityPerSection(t *testing.T) {
+	tight := namedPair("lin-tight", section.Spec{Coupling: -3, Tolerance: 0.25})
+	loose := namedPair("lin-loose", section.Spec{Coupling: -3, Tolerance: 1})
+	l := panel.Layout{
+		Panel: panel.Panel{Size: panel.Vec{X: 12 * inch, Y: 18 * inch}, Border: 0.5 * inch},
+		Parts: []panel.Part{{Name: "p", Size: panel.Vec{X: inch, Y: 0.5 * inch}, Couplers: []panel.Coupler{
+			{Name: "T", Section: tight.Name, At: panel.Vec{X: 0.25 * inch, Y: 0.25 * inch}, Angle: 90 * deg},
+			{Name: "L", Section: loose.Name, At: panel.Vec{X: 0.75 * inch, Y: 0.25 * inch}, Angle: 90 * deg}}}},
+		Arrays: []panel.Array{{Part: "p", Count: [2]int{3, 2}, Pitch: panel.Vec{X: 2 * inch, Y: 3 * inch}}},
+	}
+	inst, sites, err := l.Expand()
+	if err != nil {
+		t.Fatal(err)
+	}
+	pm := &process.Model{Size: l.Panel.Size, Terms: []process.Term{
+		{Name: "c2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 0.6*mil), Shape: process.Shape{Kind: process.Dome, Amplitude: 0.3 * mil}},
+		{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: term(0, 0.6*mil)}}}
+	in := &Input{Layout: l, Instances: inst, Sites: sites, Sections: []*section.Section{tight, loose}, Model: &registration.Model{}, Process: pm}
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	const n = 3 // of the 6 sites of each section
+	for _, k := range a.Worst(n) {
+		if a.Sites[k].Section != 0 {
+			t.Fatalf("site %s of the loose section among the %d worst: the case does not test what it should", a.Sites[k].Site.Name, n)
+		}
+	}
+	if err := a.CheckLinearity(t.Context(), testSettings(t), n); err != nil {
+		t.Fatal(err)
+	}
+	lin := a.Summary(10).Linearity
+	t.Logf("%s", lin)
+	count := map[string]int{}
+	ratio := map[string]float64{}
+	for _, c := range lin.Checks {
+		count[c.Section]++
+		want := map[string]float64{tight.Name: 0.025, loose.Name: 0.05}[c.Section]
+		if c.LimitDB != want {
+			t.Errorf("check at %s (%s): limit %g dB, want %g", c.Site, c.Section, c.LimitDB, want)
+		}
+		ratio[c.Section] = math.Max(ratio[c.Section], math.Abs(c.ModelErrorDB)/c.LimitDB)
+	}
+	for _, s := range []string{tight.Name, loose.Name} {
+		if count[s] != 2*n {
+			t.Errorf("section %s: %d checks, want %d (±3σ at its %d worst sites)", s, count[s], 2*n, n)
+		}
+	}
+	if lin.LimitDB != 0.025 {
+		t.Errorf("summary limit %g dB, want the smallest, 0.025", lin.LimitDB)
+	}
+	worst := tight.Name
+	if ratio[loose.Name] > ratio[tight.Name] {
+		worst = loose.Name
+	}
+	switch {
+	case ratio[worst] > 1 && !strings.Contains(lin.Warning, `"`+worst+`"`):
+		t.Errorf("warning %q does not name %s, furthest beyond its limit (%.2f×)", lin.Warning, worst, ratio[worst])
+	case ratio[worst] <= 1 && lin.Warning != "":
+		t.Errorf("warning %q with every check within its limit", lin.Warning)
+	}
+	if !strings.Contains(lin.String(), `"lin-loose" (3 sites)`) {
+		t.Errorf("the table line does not report the loose section: %s", lin)
+	}
+}

@@ -14,6 +14,7 @@ import (
 	"github.com/regdrift/regdrift/panel/unit"
 	"github.com/regdrift/regdrift/registration"
 	"github.com/regdrift/regdrift/registration/drift"
+	"github.com/regdrift/regdrift/registration/process"
 )
 
 const (
@@ -216,4 +217,35 @@ func TestFit(t *testing.T) {
 		t.Fatal(err)
 	}
 	decode(t, "fit", b.Bytes(), 900)
+}
+
+// TestDefaultShow: a map of one section draws the drift; of several, whose
+// drifts do not compare, the window share, or with process terms the
+// probability in spec (the window share sees the offset alone).
+func TestDefaultShow(t *testing.T) {
+	one := testInput(t)
+	two := testInput(t)
+	dc2 := *two.Sections[0]
+	dc2.Name = "dc2"
+	two.Sections = append(two.Sections, &dc2)
+	q := two.Layout.Parts[0]
+	q.Name, q.Couplers = "q", []panel.Coupler{{Name: "C", Section: "dc2", At: q.Couplers[0].At}}
+	two.Layout.Parts = append(two.Layout.Parts, q)
+	two.Layout.Arrays[1].Part = "q"
+	var err error
+	if two.Instances, two.Sites, err = two.Layout.Expand(); err != nil {
+		t.Fatal(err)
+	}
+	proc := *two
+	proc.Process = &process.Model{Size: two.Layout.Panel.Size, Terms: []process.Term{{Name: "L3 width", Layer: "L3", Quantity: process.Width,
+		Panel: registration.Term{Spread: 0.2 * mil, Dist: registration.Normal}}}}
+	for _, tt := range []struct {
+		name string
+		in   *drift.Input
+		want string
+	}{{"one section", one, "drift"}, {"two sections", two, "window"}, {"two sections, process terms", &proc, "p"}} {
+		if got := DefaultShow(drift.New(tt.in, nil)); got != tt.want {
+			t.Errorf("%s: default field %q, want %q", tt.name, got, tt.want)
+		}
+	}
 }
