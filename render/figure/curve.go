@@ -138,9 +138,13 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u unit.Output) err
 	for _, x := range drift.SpecCrossings(c, s.Spec) {
 		top.VLines = append(top.VLines, render.VLine{X: x / u.LengthSI(), Label: fmt.Sprintf("%+.2f %s", x/u.LengthSI(), u.Length()), Color: render.Series(3)})
 	}
+	// An edge-coupled pair has no upper and lower trace, and its offset
+	// is the spacing.
 	names := [2]string{"upper line (" + s.Traces[0].Layer + ")", "lower line (" + s.Traces[1].Layer + ")"}
+	against := fmt.Sprintf("lateral offset of %s against %s", s.Traces[0].Layer, s.Traces[1].Layer)
 	if drift.OffsetKind(s) == "spacing" {
 		names = [2]string{"first line (" + s.Traces[0].Layer + ")", "second line (" + s.Traces[1].Layer + ")"}
+		against = "centre-to-centre spacing of the two " + s.Traces[0].Layer + " traces"
 	}
 	mid := &render.Axes{YLabel: "line impedance [ohm]",
 		Lines: []render.Line{
@@ -151,10 +155,6 @@ func Sweep(w io.Writer, s *section.Section, c *section.Curve, u unit.Output) err
 	}
 	bot := &render.Axes{YLabel: "directivity [dB]",
 		Lines: []render.Line{{Label: "directivity", X: xs, Y: dir, Color: render.Series(4)}}}
-	against := fmt.Sprintf("lateral offset of %s against %s", s.Traces[0].Layer, s.Traces[1].Layer)
-	if drift.OffsetKind(s) == "spacing" {
-		against = "centre-to-centre spacing of the two " + s.Traces[0].Layer + " traces"
-	}
 	p := &render.Plot{
 		Title: fmt.Sprintf("section %s at %.4g GHz, coupled length %.1f %s: coupling versus %s",
 			s.Name, c.Frequency/1e9, c.Length/u.LengthSI(), u.Length(), against),
