@@ -169,6 +169,9 @@ type Proc struct {
 	// term (variation_quad.go); nil for a curve without one, which
 	// evaluates first order (e₀ = 0, κ = 1, ρ = 0).
 	second []float64
+	// means are the parts of the term that follow a site's means
+	// (MeanTerm), added to its procRow by row.
+	means []MeanTerm
 }
 
 // procTabPerSpan is the number of table intervals per interval of the
@@ -201,6 +204,7 @@ func (pr *Proc) tabulate(c *Curve) {
 		}
 	}
 	if so := c.Second; so != nil {
+		pr.means = so.Means
 		pr.second = make([]float64, 3*(n+1))
 		for i := 0; i <= n; i++ {
 			off := lo + float64(i)*pr.tabStep
@@ -213,12 +217,14 @@ func (pr *Proc) tabulate(c *Curve) {
 }
 
 // secondAt returns e₀, κ and ρ at offset off from the table (rows' index
-// and weight); 0, 1, 0 without a second-order term.
-func (pr *Proc) secondAt(off float64) (e0, kappa, rho float64) {
+// and weight) for a site whose own part is ss; 0, 1, 0 without a
+// second-order term.
+func (pr *Proc) secondAt(off float64, ss siteSecond) (e0, kappa, rho float64) {
 	if pr.second == nil {
 		return 0, 1, 0
 	}
-	return pr.secondRow(pr.rowAt(off))
+	i, f := pr.rowAt(off)
+	return pr.secondRow(i, f, ss)
 }
 
 // rows returns the two table rows about off and the weight of the second,
@@ -240,14 +246,15 @@ func (pr *Proc) rowsAt(off float64) (r0, r1 []float64, i int, f float64) {
 }
 
 // secondRow returns e₀, κ and ρ between table rows i and i + 1 at weight
-// f (rowsAt); 0, 1, 0 without a second-order term.
-func (pr *Proc) secondRow(i int, f float64) (e0, kappa, rho float64) {
+// f (rowsAt), for a site whose own part (its MeanTerms) is ss; 0, 1, 0
+// without a second-order term.
+func (pr *Proc) secondRow(i int, f float64, ss siteSecond) (e0, kappa, rho float64) {
 	if pr.second == nil {
 		return 0, 1, 0
 	}
 	j := min(i+1, pr.tabRows-1)
 	r0, r1 := pr.second[3*i:3*i+3], pr.second[3*j:3*j+3]
-	return r0[0] + f*(r1[0]-r0[0]), r0[1] + f*(r1[1]-r0[1]), r0[2] + f*(r1[2]-r0[2])
+	return r0[0] + f*(r1[0]-r0[0]) + ss.e0, r0[1] + f*(r1[1]-r0[1]) + ss.kappa, r0[2] + f*(r1[2]-r0[2]) + ss.rho
 }
 
 // rowAt returns the index of the table row at or below off and the weight
@@ -282,6 +289,8 @@ type procRow struct {
 	mu, va, w    [maxStackTerms]float64
 	muH, vaH, wH []float64
 	boxes        int
+	// second is the site's part of the second-order term (MeanTerm).
+	second siteSecond
 }
 
 // means and vars return the row's means and variances per binding.
@@ -337,6 +346,14 @@ func (pr *Proc) row(r *procRow, p panel.Vec) {
 			r.boxes++
 		}
 	}
+	r.second = siteSecond{}
+	for i := range pr.means {
+		mt := &pr.means[i]
+		e0, kappa, rho := mt.at(mu[mt.Bind])
+		r.second.e0 += e0
+		r.second.kappa += kappa
+		r.second.rho += rho
+	}
 }
 
 // termSens returns binding b's coupling sensitivity at offset off: the sum
@@ -364,7 +381,7 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
-	e0, kappa, rho := e.Proc.secondRow(i, f)
+	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
 	return m + e0, kappa * kappa * v, rho * v
 }
 
@@ -405,7 +422,7 @@ func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
-	e0, kappa, rho := e.Proc.secondRow(i, f)
+	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
 	return m + e0, kappa * kappa * v, rho * v
 }
 
@@ -426,7 +443,7 @@ func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	}
 	if sec := e.Proc.second; sec != nil {
 		j := min(i+1, e.Proc.tabRows-1)
-		m += sec[3*i] + f*(sec[3*j]-sec[3*i])
+		m += sec[3*i] + f*(sec[3*j]-sec[3*i]) + r.second.e0
 	}
 	return m
 }
@@ -907,12 +924,14 @@ func (a *Analysis) splitWorst(w *WorstSite, r *Site) {
 
 // processHeader returns the columns sites.csv adds with process terms: the
 // drift from registration, from the variation terms and the latter's
-// standard deviation, and one drift column per term.
+// standard deviation, the second-order term's part of the variation drift,
+// and one drift column per term (with the second-order part they sum to
+// the variation drift).
 func (a *Analysis) processHeader() []string {
 	if a.In.Process.Empty() {
 		return nil
 	}
-	h := []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]"}
+	h := []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]", "drift_second_order [dB]"}
 	for _, t := range a.In.Process.Terms {
 		h = append(h, "drift "+t.Name+" [dB]")
 	}
@@ -925,7 +944,7 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 		return rec
 	}
 	r := &a.Sites[i]
-	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4))
+	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4), fixed(r.DriftSecondOrder, 4))
 	terms := r.TermDrifts
 	if terms == nil { // a section no term moves
 		terms = make([]float64, len(a.In.Process.Terms))

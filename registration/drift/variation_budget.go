@@ -87,7 +87,7 @@ func (a *Analysis) couplingParts(k int, ev *Evaluator, terms []float64) float64 
 	}
 	// addTerms adds weight w times each term's part of V at x.
 	addTerms := func(w, x float64) {
-		_, kappa, rho := ev.Proc.secondAt(x)
+		_, kappa, rho := ev.Proc.secondAt(x, pr.second)
 		var v1 float64
 		for b := range ev.Proc.Bind {
 			s := ev.termSens(b, x)

@@ -93,7 +93,7 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 		var row procRow
 		ev.Proc.row(&row, r.Site.Pos)
 		params := c.Curve.Params()
-		e0, kappa, rho := ev.Proc.secondAt(r.Offset)
+		e0, kappa, rho := ev.Proc.secondAt(r.Offset, row.second)
 		for _, z := range [2]float64{-LinearSigmas, LinearSigmas} {
 			s := c.Section.Perturbed(params[0], 0) // a copy
 			pred := c.Coupling(r.Offset)
