@@ -34,8 +34,8 @@ type LinearCheck struct {
 	// the extreme (every term at μᵢ + (L/|a|)·σᵢ·uᵢ, variation_quad.go),
 	// where the model takes the same value: ModelDB − AlongDB is the
 	// model's error along the direction it fits, DirectDB − AlongDB the
-	// part of the coupling across it (the terms' mixed curvature, which
-	// the rank-one term leaves out).
+	// part of the coupling across it (the curvature across u, which the
+	// model takes by its mean only, SecondOrder.Across).
 	AlongDB float64 `json:"along_db"`
 }
 
@@ -159,7 +159,7 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 	}
 	if worst >= 0 {
 		w := lin.Checks[worst]
-		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) of section %q errs by up to %.3f dB at the combined ±%g sigma extremes of its worst sites (above its %.3f dB), %.3f dB of it along the steepest direction and %.3f dB across it (the terms' mixed curvature, which the model leaves out): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
+		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) of section %q errs by up to %.3f dB at the combined ±%g sigma extremes of its worst sites (above its %.3f dB), %.3f dB of it along the steepest direction and %.3f dB across it (the curvature across that direction, which the model takes by its mean only): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
 			w.Section, math.Abs(w.ModelErrorDB), float64(LinearSigmas), w.LimitDB, math.Abs(w.ModelDB-w.AlongDB), math.Abs(w.DirectDB-w.AlongDB))
 	}
 	a.linearity = lin
