@@ -516,7 +516,8 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	r.Drift = m - c.Nominal
 	r.DriftRegistration = creg - c.Nominal
 	r.DriftProcess = m - creg
-	r.ProcessSD = math.Sqrt(v + 2*q*q)
+	_, sq := e.squareVar(r.Offset, pr) // 2 unless a panel part is uniform
+	r.ProcessSD = math.Sqrt(v + sq*q*q)
 	r.TermDrifts = make([]float64, len(e.Proc.Model.Terms))
 	var sum float64
 	for b, bd := range e.Proc.Bind {

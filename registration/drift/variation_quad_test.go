@@ -480,3 +480,59 @@ func TestSecondOrderDraws(t *testing.T) {
 		})
 	}
 }
+
+// TestSecondOrderMomentsUniform: with the term's panel part uniform
+// (half-width 1.4 mil, a small site part beside it) the coupling's
+// variance is v + Var(X²)·q², Var(X²) = 2 + γ₂ for the standardised
+// deviation X (squareVar), not the normal's 2. Var(X²) is checked against
+// a Monte Carlo of X drawn as its parts are distributed, within 4 standard
+// errors (of a sample variance, √((μ₄ − σ⁴)/N) for X²), and the normal's
+// 2 is not within them, so the case tests the kurtosis; ProcessSD states
+// √(v + Var(X²)·q²).
+func TestSecondOrderMomentsUniform(t *testing.T) {
+	in := curvedInput(t, "momentsuni", 0.15)
+	pt := &in.Process.Terms[0]
+	pt.Panel = registration.Term{Spread: 1.4 * mil, Dist: registration.Uniform}
+	pt.SiteSigma = 0.1 * mil
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev := a.Evaluator(0)
+	r := &a.Sites[0]
+	var row procRow
+	ev.Proc.row(&row, r.Site.Pos)
+	_, v, q := ev.at(r.Offset, &row)
+	_, sq := ev.squareVar(r.Offset, &row)
+	// X = L/√v₁: the uniform part and the site's normal, in units of
+	// their total standard deviation (one term: the sensitivity cancels).
+	w, sdSite := pt.Panel.Spread, pt.SiteSigma
+	scale := 1 / math.Sqrt(w*w/3+sdSite*sdSite)
+	rng := rand.New(rand.NewPCG(7, 8))
+	const n = 400000
+	xs := make([]float64, n)
+	var mean float64
+	for i := range xs {
+		x := (w*(2*rng.Float64()-1) + sdSite*rng.NormFloat64()) * scale
+		xs[i] = x * x
+		mean += xs[i] / n
+	}
+	var s2, s4 float64
+	for _, x2 := range xs {
+		d := x2 - mean
+		s2 += d * d
+		s4 += d * d * d * d
+	}
+	va := s2 / n
+	se := math.Sqrt((s4/n - va*va) / n)
+	t.Logf("Var(X²) %.5f, Monte Carlo %.5f ± %.5f (E X² %.5f)", sq, va, se, mean)
+	if math.Abs(va-sq) > 4*se {
+		t.Errorf("Var(X²) %.5f, Monte Carlo %.5f ± %.5f", sq, va, se)
+	}
+	if math.Abs(va-2) <= 4*se {
+		t.Errorf("the normal's Var(X²) = 2 is within 4 standard errors too: the case does not test the kurtosis")
+	}
+	if got, want := r.ProcessSD, math.Sqrt(v+sq*q*q); math.Abs(got-want) > assembly {
+		t.Errorf("ProcessSD %.6f, want √(v + Var(X²)·q²) = %.6f", got, want)
+	}
+}
