@@ -154,16 +154,8 @@ func TestSecondOrderMonteCarlo(t *testing.T) {
 // the sample mean and 4 of the sample variance (whose standard error is
 // about √((μ₄ − σ⁴)/N)).
 func TestSecondOrderMoments(t *testing.T) {
-	in := curvedInput(t, "moments", 0.15)
-	a, err := Analyse(t.Context(), in, testSettings(t))
-	if err != nil {
-		t.Fatal(err)
-	}
-	ev := a.Evaluator(0)
-	r := &a.Sites[0]
-	var row procRow
-	ev.Proc.row(&row, r.Site.Pos)
-	m, v, q := ev.at(r.Offset, &row)
+	ev, r, row := firstSite(t, curvedInput(t, "moments", 0.15))
+	m, v, q := ev.at(r.Offset, row)
 	rng := rand.New(rand.NewPCG(5, 6))
 	const n = 400000
 	var s1, s2, s4 float64
@@ -195,6 +187,21 @@ func TestSecondOrderMoments(t *testing.T) {
 	if math.Abs(q) < 4*seMean {
 		t.Errorf("q = %.2g dB is too small for the case to test the mean", q)
 	}
+}
+
+// firstSite analyses in and returns the evaluator, the evaluated first
+// site and its process row.
+func firstSite(t *testing.T, in *Input) (Evaluator, *Site, *procRow) {
+	t.Helper()
+	a, err := Analyse(t.Context(), in, testSettings(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev := a.Evaluator(0)
+	r := &a.Sites[0]
+	var row procRow
+	ev.Proc.row(&row, r.Site.Pos)
+	return ev, r, &row
 }
 
 // TestNoProcessNoSecondOrder: without process terms no curve carries a
@@ -496,16 +503,9 @@ func TestSecondOrderMomentsUniform(t *testing.T) {
 	pt := &in.Process.Terms[0]
 	pt.Panel = registration.Term{Spread: 1.4 * mil, Dist: registration.Uniform}
 	pt.SiteSigma = 0.1 * mil
-	a, err := Analyse(t.Context(), in, testSettings(t))
-	if err != nil {
-		t.Fatal(err)
-	}
-	ev := a.Evaluator(0)
-	r := &a.Sites[0]
-	var row procRow
-	ev.Proc.row(&row, r.Site.Pos)
-	_, v, q := ev.at(r.Offset, &row)
-	_, sq := ev.squareVar(r.Offset, &row)
+	ev, r, row := firstSite(t, in)
+	_, v, q := ev.at(r.Offset, row)
+	_, sq := ev.squareVar(r.Offset, row)
 	// X = L/√v₁: the uniform part and the site's normal, in units of
 	// their total standard deviation (one term: the sensitivity cancels).
 	w, sdSite := pt.Panel.Spread, pt.SiteSigma
