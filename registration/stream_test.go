@@ -38,7 +38,7 @@ func TestStreamNormal(t *testing.T) {
 	for _, c := range []struct {
 		name  string
 		batch int // 0: Norm
-	}{{"Norm", 0}, {"Norms16", 2 * MCGroup}, {"Norms7", 7}} {
+	}{{"Norm", 0}, {"NormsGroup", 2 * MCGroup}, {"Norms7", 7}} {
 		t.Run(c.name, func(t *testing.T) {
 			var r Stream
 			r.Seed(1, 0)
