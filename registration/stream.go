@@ -106,12 +106,14 @@ func (r *Stream) Norms(dst []float64) {
 	}
 }
 
-// normsFast is Norms' loop: it fills dst two numbers a word as long as
+// normsFastGo is Norms' loop: it fills dst two numbers a word as long as
 // zigFast32 takes both halves, with the generator's state in registers
 // and no call (a call inside would make the compiler keep the loop's
 // values on the stack), and returns the part of dst left and the word
-// that stopped it, if any.
-func (r *Stream) normsFast(dst []float64) ([]float64, uint64) {
+// that stopped it, if any. It is normsFast where there is no assembly
+// of it (stream_amd64.s), and the reference the assembly is tested
+// against (TestNormsFast).
+func (r *Stream) normsFastGo(dst []float64) ([]float64, uint64) {
 	s0, s1, s2, s3 := r.s0, r.s1, r.s2, r.s3
 	for len(dst) >= 2 {
 		var u uint64
