@@ -199,42 +199,52 @@ func (w *procCheckWorker) InSpec(i int, off, nrm []float64) uint32 {
 	// The panels in reverse, so that each one's bit enters the mask by a
 	// shift of it (no shift by a variable count). inSpecRun stops at a
 	// row whose flat part the panel has not filled yet (about once per
-	// row and group); it is filled here and the run goes on.
+	// row and panel); it is filled here and the run goes on. It stops
+	// too at a row that is not inner (mcTab.inner: it may hold offsets
+	// outside the domain, and is never filled) and at an offset outside
+	// the table, which are decided here one panel at a time.
 	p, in := len(off)-1, uint32(0)
 	sec := &w.sec[mt.section]
 	for {
 		if p, in = w.inSpecRun(ps, off, nrm, p, in); p < 0 {
 			return in
 		}
-		j := int((off[p] - mt.lo) * mt.inv)
-		if mt.fill(sec, j, p); !sec.flat[j][p].filled() {
-			return w.inSpecAt(i, off, nrm) // deviations out of all range
+		if j := uint(int((off[p] - mt.lo) * mt.inv)); mt.inner(j) {
+			if mt.fill(sec, int(j), p); !sec.flat[j][p].filled() {
+				return w.inSpecAt(i, off, nrm) // deviations out of all range
+			}
+			continue
+		}
+		in <<= 1
+		if w.inSpecOne(i, p, off[p], nrm[p]) {
+			in |= 1
+		}
+		if p--; p < 0 {
+			return in
 		}
 	}
 }
 
 // inSpecRun is InSpec's loop over the panels p, p − 1, … 0 with the mask
 // in of those after p: it returns the mask and −1, or the panel whose
-// interval is not filled and the mask so far. Everything the loop reads
-// of mt and w is held in locals, and it calls nothing, so that they stay
-// in registers.
+// row is not filled (or outside the table) and the mask so far. A filled
+// row is an inner one, whose offsets all lie in the domain, so that the
+// loop needs no test of the domain. Everything the loop reads of mt and
+// w is held in locals, and it calls nothing, so that they stay in
+// registers.
 func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in uint32) (int, uint32) {
 	mt := ps.tab
-	dom, lo, inv, win := mt.domain, mt.lo, mt.inv, mt.window
+	lo, inv, win := mt.lo, mt.inv, mt.window
 	rows, ph := mt.rows, &ps.phi
 	flat := w.sec[mt.section].flat[:len(rows)]
 	off = off[:min(len(off), registration.MCGroup)] // slot p indexes a group's arrays unchecked
 	nrm = nrm[:len(off)]
-	for ; p >= 0 && p < len(off); p-- {
-		o := off[p]
-		if !dom.Contains(o) {
-			in <<= 1
-			continue
+	for ; uint(p) < uint(len(off)); p-- { // p = −1 ends it too
+		x := (off[p] - lo) * inv
+		j := uint(int(x)) // unsigned: below the table, or NaN, is out of range too
+		if j >= uint(len(rows)) {
+			return p, in
 		}
-		// x in [0, mt.last] ⊆ [0, mt.n]: the table covers the domain,
-		// and x = n, the table's end, reads the padding row n at f = 0.
-		x := (o - lo) * inv
-		j := uint(int(x)) // unsigned: one bounds check for flat and rows
 		kf := &flat[j][p]
 		if !kf.filled() {
 			return p, in
@@ -252,28 +262,32 @@ func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in ui
 
 // inSpecAt is InSpec through at, for any number of shape groups.
 func (w *procCheckWorker) inSpecAt(i int, off, nrm []float64) uint32 {
-	ps := &w.pc.sites[i]
-	mt := ps.tab
 	nrm = nrm[:len(off)]
 	var in uint32
 	for p, o := range off {
-		if !mt.domain.Contains(o) {
-			continue
-		}
-		var ok bool
-		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
-			c, shape, flat, v := w.at(p, ps, x)
-			j := min(int(x), mt.n-1)
-			l := mt.rows[j].q.deviation(x-float64(j), flat+math.Sqrt(v)*nrm[p])
-			ok = mt.window.centered(c+shape+l) == 1
-		} else {
-			ok = w.inSpecSlow(p, i, o, nrm[p])
-		}
-		if ok {
+		if w.inSpecOne(i, p, o, nrm[p]) {
 			in |= 1 << p
 		}
 	}
 	return in
+}
+
+// inSpecOne decides site i on the panel of slot p at offset o with normal
+// n, through at (or inSpecSlow outside the table).
+func (w *procCheckWorker) inSpecOne(i, p int, o, n float64) bool {
+	ps := &w.pc.sites[i]
+	mt := ps.tab
+	if !mt.domain.Contains(o) {
+		return false
+	}
+	x := (o - mt.lo) * mt.inv
+	if !(x >= 0 && x <= mt.last) {
+		return w.inSpecSlow(p, i, o, n)
+	}
+	c, shape, flat, v := w.at(p, ps, x)
+	j := min(int(x), mt.n-1)
+	l := mt.rows[j].q.deviation(x-float64(j), flat+math.Sqrt(v)*n)
+	return mt.window.centered(c+shape+l) == 1
 }
 
 // inSpec is the rule for an offset in the domain whose coupling is
@@ -336,9 +350,9 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, shape, flat, v fl
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
 	sec := &w.sec[mt.section]
-	kf := &sec.flat[j][p]
+	kf := sec.flat[j][p]
 	if !kf.filled() {
-		mt.fill(sec, j, p)
+		kf = mt.fill(sec, j, p)
 	}
 	f := x - float64(j)
 	rw := &mt.rows[j]
@@ -381,20 +395,26 @@ func (mt *mcTab) moreAt(j int, more [][mcChunk]float64, f float64) float64 {
 	return a
 }
 
-// fill sets row j's flat part in sec on slot p's panel, whose bindings
-// deviate by wᵦ from their means: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ, and lists the row
-// as filled.
-func (mt *mcTab) fill(sec *pcSection, j, p int) {
-	nb := mt.nb
-	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
+// fill returns row j's flat part on slot p's panel, whose bindings
+// deviate by wᵦ from their means: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ; for an inner row
+// it sets it in sec and lists the row as filled.
+func (mt *mcTab) fill(sec *pcSection, j, p int) pcFlat {
+	sd := mt.sd[mt.nb*j : mt.nb*(j+1)]
 	var a, g float64
-	for b, x := range sec.w[p][:nb] {
-		a += sd[2*b] * x
-		g += sd[2*b+1] * x
+	for b, x := range sec.w[p][:len(sd)] {
+		a += sd[b][0] * x
+		g += sd[b][1] * x
 	}
-	sec.flat[j][p] = pcFlat{a, g}
-	sec.touched[p] = append(sec.touched[p], int32(j))
+	if mt.inner(uint(j)) {
+		sec.flat[j][p] = pcFlat{a, g}
+		sec.touched[p] = append(sec.touched[p], int32(j))
+	}
+	return pcFlat{a, g}
 }
+
+// inner reports whether every offset whose table position x has ⌊x⌋ = j
+// lies in the domain (mcTab.in0).
+func (mt *mcTab) inner(j uint) bool { return j >= mt.in0 && j <= mt.in1 }
 
 // inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
 // on the panel of slot p at an offset in the domain but outside the
@@ -500,14 +520,19 @@ type mcTab struct {
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
 	rows          []mcRow
-	more          []mcShapes // nx per interval
-	sd            []float64
-	site          bool // some bound term has a per-site part
+	more          []mcShapes   // nx per interval
+	sd            [][2]float64 // per row and binding, sᵦ and dsᵦ
+	site          bool         // some bound term has a per-site part
 	// covers says that every offset of the domain has its x in [0, last]:
 	// x = (off − lo)·inv rounds monotonically in off, so the ends decide.
 	covers bool
-	domain registration.Interval
-	window specWindow
+	// Rows in0 to in1 are the inner ones: with xLo and xHi the domain's
+	// ends' positions, a row j with xLo < j and j + 1 ≤ xHi holds only
+	// offsets of the domain (by the same monotone rounding), and j ≥ 1
+	// (int(x) is 0 for x in (−1, 0) too). None without covers.
+	in0, in1 uint
+	domain   registration.Interval
+	window   specWindow
 	// second says that the rows hold a second-order term (mcRow.q,
 	// fillSecond, variation_quad_mc.go).
 	second bool
@@ -568,22 +593,32 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	if x := (hi - lo) / mt.step; x < mt.last {
 		mt.last = x
 	}
+	mt.in0, mt.in1 = 1, 0
 	if d := mt.domain; !d.Empty() {
-		mt.covers = (d.Lo-mt.lo)*mt.inv >= 0 && (d.Hi-mt.lo)*mt.inv <= mt.last
+		xlo, xhi := (d.Lo-mt.lo)*mt.inv, (d.Hi-mt.lo)*mt.inv
+		mt.covers = xlo >= 0 && xhi <= mt.last
+		if mt.covers {
+			mt.in0, mt.in1 = uint(math.Floor(xlo))+1, uint(math.Floor(xhi))
+			if mt.in1 < mt.in0 {
+				mt.in0, mt.in1 = 1, 0
+			} else {
+				mt.in1--
+			}
+		}
 	}
 	mt.rows = make([]mcRow, mt.n+1)
 	mt.more = make([]mcShapes, mt.n*mt.nx)
-	mt.sd = make([]float64, (mt.n+1)*2*nb)
+	mt.sd = make([][2]float64, (mt.n+1)*nb)
 	at := func(x float64) float64 { return ev.Curve.Curve.Coupling(math.Min(hi, lo+x*mt.step)) }
 	for j := range mt.n + 1 {
 		row := &mt.rows[j]
-		sd := mt.sd[j*2*nb : (j+1)*2*nb]
+		sd := mt.sd[j*nb : (j+1)*nb]
 		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[min(j+1, mt.n)*nb:(min(j+1, mt.n)+1)*nb]
 		k := &row.k
 		var va, vb, vc float64 // A, B, C
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
-			sd[2*b], sd[2*b+1] = s, ds
+			sd[b] = [2]float64{s, ds}
 			switch q := mt.group[b]; {
 			case q >= mcChunk && j == mt.n:
 				// The padding row is the hot loop's alone, and more is not.

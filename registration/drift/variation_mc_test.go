@@ -119,10 +119,14 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 			}
 			// The hot path and the general one alike on the same draws,
 			// for offsets about the table's middle (where the window is
-			// met and missed).
+			// met and missed), some beyond the table, and on the domain's
+			// ends and the offsets just outside them (the rows there are
+			// not inner ones, mcTab.inner).
 			for p := range offs {
 				offs[p] = mt.lo + (0.5+0.3*rng.NormFloat64())*mt.last*mt.step
 			}
+			d := mt.domain
+			copy(offs, []float64{d.Lo, d.Hi, math.Nextafter(d.Lo, math.Inf(-1)), math.Nextafter(d.Hi, math.Inf(1))})
 			r.Seed(3, uint64(k))
 			r.Norms(nrm)
 			if hot, gen := w.InSpec(k, offs, nrm), w.inSpecAt(k, offs, nrm); hot != gen {
