@@ -2,6 +2,20 @@
 
 #include "textflag.h"
 
+// ZIGHALF is zigFast32 on the half-word h in R13 (destroyed), into x:
+// layer i = h & 255, position j = int32(h) >> 8, x = j·w, taken when
+// uint32(j + k) < k2; else it jumps to stop.
+#define ZIGHALF(x) \
+	MOVBQZX  R13, AX; \
+	SHLQ     $4, AX; \
+	SARL     $8, R13; \
+	XORPS    x, x; \
+	CVTSL2SD R13, x; \
+	MULSD    8(R12)(AX*1), x; \
+	ADDL     0(R12)(AX*1), R13; \
+	CMPL     R13, 4(R12)(AX*1); \
+	JAE      stop
+
 // func normsFastAsm(r *Stream, dst []float64) (n int, u uint64)
 //
 // normsFastGo (stream.go) step by step: per pair of dst, one step of
@@ -10,7 +24,7 @@
 // float64}; it stops at the first half that zigFast32 does not take.
 //
 // Registers: R8-R11 the state s0-s3, SI dst, CX len(dst), BX n, R12
-// &zigTab32, DX the word, AX, DI, R13 and X0, X1 scratch.
+// &zigTab32, DX the word, AX, R13 and X0, X1 scratch, DI r at the ends.
 TEXT ·normsFastAsm(SB), NOSPLIT, $0-48
 	MOVQ r+0(FP), DI
 	MOVQ dst_base+8(FP), SI
@@ -42,31 +56,12 @@ loop:
 	XORQ AX, R10
 	ROLQ $45, R11
 
-	// Low half h: layer i = h & 255, position j = int32(h) >> 8;
-	// x = j·w, taken when uint32(j + k) < k2.
-	MOVBQZX DL, AX
-	SHLQ    $4, AX
-	MOVL    DX, R13
-	SARL    $8, R13
-	XORPS   X0, X0
-	CVTSL2SD R13, X0
-	MULSD   8(R12)(AX*1), X0
-	ADDL    0(R12)(AX*1), R13
-	CMPL    R13, 4(R12)(AX*1)
-	JAE     stop
-
-	// High half.
-	MOVQ    DX, DI
-	SHRQ    $32, DI
-	MOVBQZX DI, AX
-	SHLQ    $4, AX
-	SARL    $8, DI
-	XORPS   X1, X1
-	CVTSL2SD DI, X1
-	MULSD   8(R12)(AX*1), X1
-	ADDL    0(R12)(AX*1), DI
-	CMPL    DI, 4(R12)(AX*1)
-	JAE     stop
+	// zigFast32 on the low half, then on the high one.
+	MOVL DX, R13
+	ZIGHALF(X0)
+	MOVQ DX, R13
+	SHRQ $32, R13
+	ZIGHALF(X1)
 
 	MOVSD X0, 0(SI)(BX*8)
 	MOVSD X1, 8(SI)(BX*8)
