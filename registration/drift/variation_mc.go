@@ -92,9 +92,11 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 	for i, mt := range pc.tabs {
 		if mt != nil {
 			sec := &w.sec[i]
+			wb := make([]float64, registration.MCGroup*mt.nb)
+			tb := make([]int32, registration.MCGroup*len(mt.rows))
 			for p := range registration.MCGroup {
-				sec.w[p] = make([]float64, mt.nb)
-				sec.touched[p] = make([]int32, 0, len(mt.rows))
+				sec.w[p], wb = wb[:mt.nb:mt.nb], wb[mt.nb:]
+				sec.touched[p], tb = tb[:0:len(mt.rows)], tb[len(mt.rows):]
 			}
 			sec.flat = make([][registration.MCGroup]pcFlat, len(mt.rows))
 			nan := math.NaN()
