@@ -106,12 +106,14 @@ func (r *Stream) Norms(dst []float64) {
 	}
 }
 
-// normsFast is Norms' loop: it fills dst two numbers a word as long as
+// normsFastGo is Norms' loop: it fills dst two numbers a word as long as
 // zigFast32 takes both halves, with the generator's state in registers
 // and no call (a call inside would make the compiler keep the loop's
 // values on the stack), and returns the part of dst left and the word
-// that stopped it, if any.
-func (r *Stream) normsFast(dst []float64) ([]float64, uint64) {
+// that stopped it, if any. It is normsFast where there is no assembly
+// of it (stream_amd64.s), and the reference the assembly is tested
+// against (TestNormsFast).
+func (r *Stream) normsFastGo(dst []float64) ([]float64, uint64) {
 	s0, s1, s2, s3 := r.s0, r.s1, r.s2, r.s3
 	for len(dst) >= 2 {
 		var u uint64
@@ -140,10 +142,9 @@ func (r *Stream) normsFast(dst []float64) ([]float64, uint64) {
 // at the widest), far below anything a Monte Carlo of 10⁶ trials
 // resolves.
 func zigFast32(h uint32) (x float64, ok bool) {
-	i := h & (zigLayers - 1)
-	j := int64(int32(h) >> 8)
-	k := zigK32[i]
-	return float64(j) * zigW32[i], uint64(j+k) < uint64(2*k)
+	e := &zigTab32[uint8(h)] // the low 8 bits: no bounds check
+	j := int32(h) >> 8
+	return float64(j) * e.w, uint32(j+e.k) < e.k2 // |j| < k as zigFast
 }
 
 // normTail32 is normTail for a half-word h that zigFast32 did not take:
@@ -152,7 +153,7 @@ func zigFast32(h uint32) (x float64, ok bool) {
 // and any exact normal draw may stand for that).
 func (r *Stream) normTail32(h uint32) float64 {
 	i, j := h&(zigLayers-1), int64(int32(h)>>8)
-	x := float64(j) * zigW32[i]
+	x := float64(j) * zigTab32[i].w
 	if i == 0 {
 		return r.baseTail(j > 0)
 	}
@@ -234,11 +235,18 @@ var (
 	zigK [zigLayers]int64
 	zigW [zigLayers]float64
 	zigF [zigLayers]float64
-	// zigK32 and zigW32 are zigK and zigW for zigFast32's positions j in
-	// [−2²³, 2²³): zigK32[i] = 2²³·xᵢ₋₁/xᵢ, zigW32[i] = xᵢ/2²³.
-	zigK32 [zigLayers]int64
-	zigW32 [zigLayers]float64
+	// zigTab32 holds zigK and zigW for zigFast32's positions j in
+	// [−2²³, 2²³), side by side so that one index reads both.
+	zigTab32 [zigLayers]zigLayer32
 )
+
+// zigLayer32 is one layer for zigFast32: k = 2²³·xᵢ₋₁/xᵢ, k2 = 2k (both
+// below 2²⁴, so that j + k and the test are 32-bit) and w = xᵢ/2²³.
+type zigLayer32 struct {
+	k  int32
+	k2 uint32
+	w  float64
+}
 
 func init() {
 	f := func(x float64) float64 { return math.Exp(-0.5 * x * x) }
@@ -260,7 +268,7 @@ func init() {
 	for i := range zigLayers {
 		// zigK[i] is ⌊2⁵²·ratio⌋, so the shift is ⌊2²³·ratio⌋; the
 		// product by a power of two is exact.
-		zigK32[i] = zigK[i] >> (52 - 23)
-		zigW32[i] = zigW[i] * (zigScale >> 23)
+		k := zigK[i] >> (52 - 23)
+		zigTab32[i] = zigLayer32{k: int32(k), k2: uint32(2 * k), w: zigW[i] * (zigScale >> 23)}
 	}
 }

@@ -475,8 +475,14 @@ const MCBlock = 256
 // deciding each on all of them, so that the sites' constants (about 170
 // bytes a site with process terms: ten thousand sites are more than a
 // core's cache) stream from memory once per group instead of once per
-// panel. It divides MCBlock; at most 32 (a uint32 mask of the panels).
-const MCGroup = 8
+// panel, and what a site costs apart from its panels (reading it, its
+// Norms and InSpec calls, the tallies) is shared by all of them. It
+// divides MCBlock and is at most 32 (a uint32 mask of the panels); it is
+// 32 because with 8 that share was a tenth of a site evaluation with
+// process terms (callgrind, BenchmarkMonteCarloProcess in
+// registration/drift: 221 instructions per site evaluation with 8, 202
+// with 16, 194 with 32).
+const MCGroup = 32
 
 // MCResult holds the counts of a Monte Carlo yield run. Counts are integers,
 // so merging the workers' tallies is exact and order-independent.

@@ -98,10 +98,20 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 	w := &procCheckWorker{pc: pc, dev: make([]float64, len(pc.a.In.Process.Terms)), sec: make([]pcSection, len(pc.terms))}
 	for i, mt := range pc.tabs {
 		if mt != nil {
+			sec := &w.sec[i]
+			wb := make([]float64, registration.MCGroup*mt.nb)
+			tb := make([]int32, registration.MCGroup*len(mt.rows))
 			for p := range registration.MCGroup {
-				w.sec[i].w[p] = make([]float64, mt.nb)
+				sec.w[p], wb = wb[:mt.nb:mt.nb], wb[mt.nb:]
+				sec.touched[p], tb = tb[:0:len(mt.rows)], tb[len(mt.rows):]
 			}
-			w.sec[i].flat = make([][registration.MCGroup]pcFlat, mt.n)
+			sec.flat = make([][registration.MCGroup]pcFlat, len(mt.rows))
+			nan := math.NaN()
+			for j := range sec.flat {
+				for p := range sec.flat[j] {
+					sec.flat[j][p].a = nan
+				}
+			}
 		}
 	}
 	return w
@@ -110,32 +120,36 @@ func (pc *procCheck) NewWorker() registration.SiteCheckWorker {
 // procCheckWorker holds one goroutine's panel draws, one slot per panel
 // of a group (registration.MCGroup).
 type procCheckWorker struct {
-	pc     *procCheck
-	dev    []float64   // per process term, the deviation from its mean being drawn
-	sec    []pcSection // per section
-	serial int64       // panels drawn so far
-	// panel holds per slot the serial number of its panel (from 1).
-	panel [registration.MCGroup]int64
+	pc  *procCheck
+	dev []float64   // per process term, the deviation from its mean being drawn
+	sec []pcSection // per section
 }
 
 // pcSection is one section's panel parts: per slot of the group and
 // binding the panel's deviation dᵦ from the binding's mean, and per table
-// interval and slot (flat[j][p]) the flat part of the coupling
-// it adds (pcFlat), filled when a site first needs the interval on the
-// panel, so that a panel costs what its sites read and not the whole
-// table.
+// row and slot (flat[j][p]) the flat part of the coupling it adds
+// (pcFlat), filled when a site first needs the row on the panel, so that
+// a panel costs what its sites read and not the whole table (half of the
+// rows, in BenchmarkMonteCarloProcess); touched[p] lists the rows filled
+// for slot p's panel, for newPanel to mark not filled again.
 type pcSection struct {
-	w    [registration.MCGroup][]float64
-	flat [][registration.MCGroup]pcFlat
+	w       [registration.MCGroup][]float64
+	flat    [][registration.MCGroup]pcFlat
+	touched [registration.MCGroup][]int32
 }
 
 // pcFlat is the flat part of one table interval on one panel: Σ sᵦ·dᵦ and
-// Σ dsᵦ·dᵦ over the bindings (the means' part is in the row's cubic, mcRow), valid when panel is the slot's serial (side
-// by side, so that one cache line holds the test and the values).
-type pcFlat struct {
-	a, g  float64
-	panel int64
-}
+// Σ dsᵦ·dᵦ over the bindings (the means' part is in the row's cubic,
+// mcRow). An a of NaN marks it not filled for the slot's panel yet
+// (newPanel): the test is on the value the loop reads anyway, and
+// needs no panel number beside it.
+type pcFlat struct{ a, g float64 }
+
+// filled reports whether kf holds its panel's values: a ≤ MaxFloat64, one
+// comparison that is false for NaN (and for +Inf, which only deviations
+// out of all range could give, and which InSpec then hands to inSpecAt
+// rather than fill the row again).
+func (kf *pcFlat) filled() bool { return kf.a <= math.MaxFloat64 }
 
 // Panel draws every term's panel part, its deviation from the mean, into
 // slot p.
@@ -154,16 +168,21 @@ func (w *procCheckWorker) Panel(p int, r *registration.Stream) {
 	w.newPanel(p)
 }
 
-// newPanel takes the deviations in w.dev as slot p's next panel.
+// newPanel takes the deviations in w.dev as slot p's next panel and
+// marks the slot's filled flat parts not filled (pcFlat).
 func (w *procCheckWorker) newPanel(p int) {
-	w.serial++
-	w.panel[p] = w.serial
+	nan := math.NaN()
 	for i, ts := range w.pc.terms {
 		if mt := w.pc.tabs[i]; mt != nil {
-			wp := w.sec[i].w[p]
+			sec := &w.sec[i]
+			wp := sec.w[p]
 			for b, t := range ts {
 				wp[b] = w.dev[t]
 			}
+			for _, j := range sec.touched[p] {
+				sec.flat[j][p].a = nan
+			}
+			sec.touched[p] = sec.touched[p][:0]
 		}
 	}
 }
@@ -187,88 +206,100 @@ func (w *procCheckWorker) InSpec(i int, off, nrm []float64) uint32 {
 		return w.inSpecAt(i, off, nrm)
 	}
 	// The panels in reverse, so that each one's bit enters the mask by a
-	// shift of it (no shift by a variable count). inSpecRun stops at an
-	// interval whose flat part the panel has not filled yet (once per
-	// interval and panel); it is filled here and the run goes on.
+	// shift of it (no shift by a variable count). inSpecRun stops at a
+	// row whose flat part the panel has not filled yet (about once per
+	// row and panel); it is filled here and the run goes on. It stops
+	// too at a row that is not inner (mcTab.inner: it may hold offsets
+	// outside the domain, and is never filled) and at an offset outside
+	// the table, which are decided here one panel at a time.
 	p, in := len(off)-1, uint32(0)
+	sec := &w.sec[mt.section]
 	for {
 		if p, in = w.inSpecRun(ps, off, nrm, p, in); p < 0 {
 			return in
 		}
-		j := min(int((off[p]-mt.lo)*mt.inv), mt.n-1)
-		mt.fill(&w.sec[mt.section].flat[j][p], w.sec[mt.section].w[p], j, w.panel[p])
+		if j := uint(int((off[p] - mt.lo) * mt.inv)); mt.inner(j) {
+			if mt.fill(sec, int(j), p); !sec.flat[j][p].filled() {
+				return w.inSpecAt(i, off, nrm) // deviations out of all range
+			}
+			continue
+		}
+		in <<= 1
+		if w.inSpecOne(i, p, off[p], nrm[p]) {
+			in |= 1
+		}
+		if p--; p < 0 {
+			return in
+		}
 	}
 }
 
 // inSpecRun is InSpec's loop over the panels p, p − 1, … 0 with the mask
 // in of those after p: it returns the mask and −1, or the panel whose
-// interval is not filled and the mask so far. Everything the loop reads
-// of mt and w is held in locals, and it calls nothing, so that they stay
-// in registers.
+// row is not filled (or outside the table) and the mask so far. A filled
+// row is an inner one, whose offsets all lie in the domain, so that the
+// loop needs no test of the domain. Everything the loop reads of mt and
+// w is held in locals, and it calls nothing, so that they stay in
+// registers.
 func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in uint32) (int, uint32) {
 	mt := ps.tab
-	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
-	second, win := mt.second, mt.window
-	// The site's own part of the second-order term: e₀ shifts its window,
-	// κ and ρ add to the row's.
+	lo, inv, win := mt.lo, mt.inv, mt.window
+	rows, ph := mt.rows, &ps.phi
+	// The site's own part of the second-order term (MeanTerm): its e₀
+	// adds to the coupling, its κ and ρ to the row's.
 	ss := ps.second
-	win.spec -= ss.e0
-	rows, ph := mt.rows[:top+1], &ps.phi
 	flat := w.sec[mt.section].flat[:len(rows)]
 	off = off[:min(len(off), registration.MCGroup)] // slot p indexes a group's arrays unchecked
-	nrm, panel := nrm[:len(off)], w.panel[:len(off)]
-	for ; p >= 0 && p < len(off); p-- {
-		o := off[p]
-		if !dom.Contains(o) {
-			in <<= 1
-			continue
+	nrm = nrm[:len(off)]
+	for ; uint(p) < uint(len(off)); p-- { // p = −1 ends it too
+		x := (off[p] - lo) * inv
+		j := uint(int(x)) // unsigned: below the table, or NaN, is out of range too
+		if j >= uint(len(rows)) {
+			return p, in
 		}
-		x := (o - lo) * inv               // in [0, mt.last]: the table covers the domain
-		j := min(uint(int(x)), uint(top)) // unsigned: one bounds check for flat and rows
 		kf := &flat[j][p]
-		if kf.panel != panel[p] {
+		if !kf.filled() {
 			return p, in
 		}
 		rw, f := &rows[j], x-float64(int(j))
 		c, v := rw.curve(f)
 		// L, the draw's first-order deviation from the site's mean: the
-		// panel deviations' flat part plus the per-site parts'.
-		l := kf.at(f) + siteDev(v, nrm[p])
-		if second {
-			l = rw.q.deviation(f, l, ss) // variation_quad_mc.go
-		}
-		in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
+		// panel deviations' flat part plus the per-site parts', then
+		// with the second-order term (the identity without one).
+		l := rw.q.deviation(f, kf.at(f)+math.Sqrt(v)*nrm[p], ss) // variation_quad_mc.go
+		in = in<<1 | win.centered(c+rw.sh.at(ph, f)+l+ss.e0)     // c less spec
 	}
 	return -1, in
 }
 
 // inSpecAt is InSpec through at, for any number of shape groups.
 func (w *procCheckWorker) inSpecAt(i int, off, nrm []float64) uint32 {
-	ps := &w.pc.sites[i]
-	mt := ps.tab
 	nrm = nrm[:len(off)]
 	var in uint32
 	for p, o := range off {
-		if !mt.domain.Contains(o) {
-			continue
-		}
-		var ok bool
-		if x := (o - mt.lo) * mt.inv; x >= 0 && x <= mt.last {
-			c, shape, flat, v := w.at(p, ps, x)
-			l := flat + siteDev(v, nrm[p])
-			if mt.second {
-				j := min(int(x), mt.n-1)
-				l = mt.rows[j].q.deviation(x-float64(j), l, ps.second) + ps.second.e0
-			}
-			ok = mt.window.bit(c+shape+l) == 1
-		} else {
-			ok = w.inSpecSlow(p, i, o, nrm[p])
-		}
-		if ok {
+		if w.inSpecOne(i, p, o, nrm[p]) {
 			in |= 1 << p
 		}
 	}
 	return in
+}
+
+// inSpecOne decides site i on the panel of slot p at offset o with normal
+// n, through at (or inSpecSlow outside the table).
+func (w *procCheckWorker) inSpecOne(i, p int, o, n float64) bool {
+	ps := &w.pc.sites[i]
+	mt := ps.tab
+	if !mt.domain.Contains(o) {
+		return false
+	}
+	x := (o - mt.lo) * mt.inv
+	if !(x >= 0 && x <= mt.last) {
+		return w.inSpecSlow(p, i, o, n)
+	}
+	c, shape, flat, v := w.at(p, ps, x)
+	j := min(int(x), mt.n-1)
+	l := mt.rows[j].q.deviation(x-float64(j), flat+math.Sqrt(v)*n, ps.second)
+	return mt.window.centered(c+shape+l+ps.second.e0) == 1
 }
 
 // inSpec is the rule for an offset in the domain whose coupling is
@@ -300,14 +331,22 @@ func siteDev(v, n float64) float64 {
 }
 
 // specWindow is a section's spec window, |m − spec| ≤ tol, the one test
-// of "in spec" in Monte Carlo.
-type specWindow struct{ spec, tol float64 }
+// of "in spec" in Monte Carlo; tol2 is tol².
+type specWindow struct{ spec, tol, tol2 float64 }
+
+func newSpecWindow(spec, tol float64) specWindow { return specWindow{spec, tol, tol * tol} }
 
 // bit returns 1 when coupling m is inside the window, 0 otherwise: a
 // value, not a branch, for the mask of InSpec, since a site's draws fall
 // out of spec at random.
-func (sw specWindow) bit(m float64) uint32 {
-	if math.Abs(m-sw.spec) <= sw.tol {
+func (sw specWindow) bit(m float64) uint32 { return sw.centered(m - sw.spec) }
+
+// centered is bit for the coupling less spec, d = m − spec: d² ≤ tol²,
+// which is |d| ≤ tol but for the rounding of the squares (they are
+// monotone in |d|, so the two differ only within an ulp of the edge), in
+// one product where |d| takes three moves through an integer register.
+func (sw specWindow) centered(d float64) uint32 {
+	if d*d <= sw.tol2 {
 		return 1
 	}
 	return 0
@@ -315,16 +354,17 @@ func (sw specWindow) bit(m float64) uint32 {
 
 // at returns, at table position x (0 ≤ x ≤ mt.last) for site ps on the
 // panel of slot p, the row's cubic c (mcRow: the curve c(δ), the means'
-// part Σ sᵦ(δ)·Mᵦ and, with a second-order term, e₀(δ)), the shape part
+// part Σ sᵦ(δ)·Mᵦ and, with a second-order term, e₀(δ), less the spec's
+// coupling, for specWindow.centered), the shape part
 // Σ sᵦ(δ)·Aᵦ·φᵦ(site) (summed by group), the flat part of the panel's
 // deviations Σ sᵦ(δ)·dᵦ and the per-site variance Σ σᵦ²·sᵦ(δ)².
 func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, shape, flat, v float64) {
 	mt := ps.tab
 	j := min(int(x), mt.n-1)
 	sec := &w.sec[mt.section]
-	kf := &sec.flat[j][p]
-	if kf.panel != w.panel[p] {
-		mt.fill(kf, sec.w[p], j, w.panel[p])
+	kf := sec.flat[j][p]
+	if !kf.filled() {
+		kf = mt.fill(sec, j, p)
 	}
 	f := x - float64(j)
 	rw := &mt.rows[j]
@@ -339,12 +379,13 @@ func (w *procCheckWorker) at(p int, ps *pcSite, x float64) (c, shape, flat, v fl
 // The sums at position f (0 to 1) in the interval of row r (mcTab), in
 // parts small enough to be inlined into the loop over the panels: curve
 // returns the cubic c₀ + c₁f + c₂f² + c₃f³ and the per-site variance
-// A + 2Bf + Cf²; the rest of the linear process part is the flat part of
+// C·(f + h)² + r (mcRow); the rest of the linear process part is the flat part of
 // the panel's deviations, kf.at(f) = kf.a + f·kf.g, plus the shape part,
 // Σ (Gq + f·dGq)·φq over the groups in chunks of mcChunk (mcShapes.at).
 func (r *mcRow) curve(f float64) (c, v float64) {
 	k := &r.k
-	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4] + f*(k[5]+f*k[6])
+	t := f + k[5]
+	return k[0] + f*(k[1]+f*(k[2]+f*k[3])), k[4]*t*t + k[6]
 }
 
 func (kf *pcFlat) at(f float64) float64 { return kf.a + f*kf.g }
@@ -366,18 +407,26 @@ func (mt *mcTab) moreAt(j int, more [][mcChunk]float64, f float64) float64 {
 	return a
 }
 
-// fill sets kf, interval j's flat part on the panel serial whose bindings
-// deviate by wb from their means: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ.
-func (mt *mcTab) fill(kf *pcFlat, wb []float64, j int, serial int64) {
-	nb := mt.nb
-	sd := mt.sd[2*nb*j : 2*nb*(j+1)]
+// fill returns row j's flat part on slot p's panel, whose bindings
+// deviate by wᵦ from their means: Σ sᵦ·wᵦ and Σ dsᵦ·wᵦ; for an inner row
+// it sets it in sec and lists the row as filled.
+func (mt *mcTab) fill(sec *pcSection, j, p int) pcFlat {
+	sd := mt.sd[mt.nb*j : mt.nb*(j+1)]
 	var a, g float64
-	for b, x := range wb[:nb] {
-		a += sd[2*b] * x
-		g += sd[2*b+1] * x
+	for b, x := range sec.w[p][:len(sd)] {
+		a += sd[b][0] * x
+		g += sd[b][1] * x
 	}
-	kf.a, kf.g, kf.panel = a, g, serial
+	if mt.inner(uint(j)) {
+		sec.flat[j][p] = pcFlat{a, g}
+		sec.touched[p] = append(sec.touched[p], int32(j))
+	}
+	return pcFlat{a, g}
 }
+
+// inner reports whether every offset whose table position x has ⌊x⌋ = j
+// lies in the domain (mcTab.in0).
+func (mt *mcTab) inner(j uint) bool { return j >= mt.in0 && j <= mt.in1 }
 
 // inSpecSlow is InSpec from the curve and Proc.rows directly, for site i
 // on the panel of slot p at an offset in the domain but outside the
@@ -418,9 +467,9 @@ func (w *procCheckWorker) slowAt(p, i int, off float64) (c, lin, v float64) {
 // mcChunk padded with zeros.
 const mcChunk = 4
 
-// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, A, 2B, C
+// mcRow is one interval of an mcTab (see there): k holds c₀…c₃, C, h, r
 // and one unused value, sh the first mcChunk groups' Gq and dGq, and q
-// the second-order term's values (mcSecond; zero without one), padded so
+// the second-order term's values (mcSecond; the identity without one), padded so
 // that one interval's values lie together in three cache lines.
 type mcRow struct {
 	k  [8]float64
@@ -443,7 +492,8 @@ type mcShapes [2 * mcChunk]float64
 // interval j, starting at offset lo + j·step, with f the position in the
 // interval (0 to 1), a row holds
 //
-//   - c₀…c₃, the coupling at the panel means c₀ + c₁f + c₂f² + c₃f³: the
+//   - c₀…c₃, the coupling at the panel means less the spec's coupling
+//     (specWindow.centered), c₀ + c₁f + c₂f² + c₃f³: the
 //     curve's monotone cubic (section.Curve.Coupling) is one cubic between
 //     its solved offsets, and an interval of the table lies inside one of
 //     them when the solved offsets are evenly spaced (every interval of
@@ -451,8 +501,13 @@ type mcShapes [2 * mcChunk]float64
 //     reproduces it up to rounding (TestMCTab measures it); to it are
 //     added the means' part Σ sᵦ(f)·Mᵦ and, with a second-order term, e₀
 //     (linear in f, fillSecond), so that the loop adds only deviations;
-//   - A, B, C, the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf²
-//     expanded exactly (σᵦ is the term's, the same at every site);
+//   - the per-site variance Σ σᵦ²·sᵦ(f)² = A + 2Bf + Cf² (σᵦ is the
+//     term's, the same at every site) as C·(f + h)² + r, h = B/C and
+//     r = A − B²/C (h = 0 and r = A when C = 0): r ≥ 0 by the
+//     Cauchy–Schwarz inequality, and held at 0 or above against
+//     rounding, so that the loop takes the square root of a sum of
+//     non-negative terms with no test (A + 2Bf + Cf² may round below 0
+//     where a lone sensitivity crosses 0);
 //   - per group q, Gq: Σ over its bindings of Aᵦ·sᵦ, and dGq: Σ Aᵦ·dsᵦ,
 //     with sᵦ(f) = sᵦ + f·dsᵦ Proc.rows' linear interpolation of the
 //     binding's sensitivity (mcRow; the groups beyond the first mcChunk
@@ -461,6 +516,10 @@ type mcShapes [2 * mcChunk]float64
 // sd holds per interval sᵦ and dsᵦ of every binding, from which a worker
 // fills the flat part Σ sᵦ(f)·dᵦ of each panel's deviations (pcSection,
 // pcFlat).
+//
+// rows and sd hold one row more than the table's n intervals, row n at
+// the table's end with every slope 0, so that x = n, the end, reads row n
+// at f = 0 and the loop's index needs no clamp.
 type mcTab struct {
 	ev            *Evaluator
 	section       int
@@ -473,14 +532,19 @@ type mcTab struct {
 	lo, step, inv float64 // inv is 1/step: a product in the loop, not a quotient
 	last          float64 // the largest x = (off − lo)/step in the table
 	rows          []mcRow
-	more          []mcShapes // nx per interval
-	sd            []float64
-	site          bool // some bound term has a per-site part
+	more          []mcShapes   // nx per interval
+	sd            [][2]float64 // per row and binding, sᵦ and dsᵦ
+	site          bool         // some bound term has a per-site part
 	// covers says that every offset of the domain has its x in [0, last]:
 	// x = (off − lo)·inv rounds monotonically in off, so the ends decide.
 	covers bool
-	domain registration.Interval
-	window specWindow
+	// Rows in0 to in1 are the inner ones: with xLo and xHi the domain's
+	// ends' positions, a row j with xLo < j and j + 1 ≤ xHi holds only
+	// offsets of the domain (by the same monotone rounding), and j ≥ 1
+	// (int(x) is 0 for x in (−1, 0) too). None without covers.
+	in0, in1 uint
+	domain   registration.Interval
+	window   specWindow
 	// second says that the rows hold a second-order term (mcRow.q,
 	// fillSecond, variation_quad_mc.go).
 	second bool
@@ -507,7 +571,7 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	nb := len(pr.Bind)
 	mt := &mcTab{ev: ev, section: i, sv: make([]float64, nb), mean: make([]float64, nb), amp: make([]float64, nb), group: make([]int, nb),
 		nb: nb, n: pr.tabRows - 1, lo: pr.tabLo, step: pr.tabStep, inv: 1 / pr.tabStep,
-		domain: pr.Domain, window: specWindow{ev.Curve.Section.Spec.Coupling, ev.Curve.Section.Spec.Tolerance}}
+		domain: pr.Domain, window: newSpecWindow(ev.Curve.Section.Spec.Coupling, ev.Curve.Section.Spec.Tolerance)}
 	for b, bd := range pr.Bind {
 		t := &pr.Model.Terms[bd.Term]
 		mt.sv[b] = t.SiteSigma * t.SiteSigma
@@ -541,22 +605,35 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 	if x := (hi - lo) / mt.step; x < mt.last {
 		mt.last = x
 	}
+	mt.in0, mt.in1 = 1, 0
 	if d := mt.domain; !d.Empty() {
-		mt.covers = (d.Lo-mt.lo)*mt.inv >= 0 && (d.Hi-mt.lo)*mt.inv <= mt.last
+		xlo, xhi := (d.Lo-mt.lo)*mt.inv, (d.Hi-mt.lo)*mt.inv
+		mt.covers = xlo >= 0 && xhi <= mt.last
+		if mt.covers {
+			mt.in0, mt.in1 = uint(math.Floor(xlo))+1, uint(math.Floor(xhi))
+			if mt.in1 < mt.in0 {
+				mt.in0, mt.in1 = 1, 0
+			} else {
+				mt.in1--
+			}
+		}
 	}
-	mt.rows = make([]mcRow, mt.n)
+	mt.rows = make([]mcRow, mt.n+1)
 	mt.more = make([]mcShapes, mt.n*mt.nx)
-	mt.sd = make([]float64, mt.n*2*nb)
+	mt.sd = make([][2]float64, (mt.n+1)*nb)
 	at := func(x float64) float64 { return ev.Curve.Curve.Coupling(math.Min(hi, lo+x*mt.step)) }
-	for j := range mt.n {
+	for j := range mt.n + 1 {
 		row := &mt.rows[j]
-		sd := mt.sd[j*2*nb : (j+1)*2*nb]
-		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[(j+1)*nb:(j+2)*nb]
+		sd := mt.sd[j*nb : (j+1)*nb]
+		r0, r1 := pr.tab[j*nb:(j+1)*nb], pr.tab[min(j+1, mt.n)*nb:(min(j+1, mt.n)+1)*nb]
 		k := &row.k
+		var va, vb, vc float64 // A, B, C
 		for b := range nb {
 			s, ds := r0[b], r1[b]-r0[b]
-			sd[2*b], sd[2*b+1] = s, ds
+			sd[b] = [2]float64{s, ds}
 			switch q := mt.group[b]; {
+			case q >= mcChunk && j == mt.n:
+				// The padding row is the hot loop's alone, and more is not.
 			case q >= mcChunk:
 				m := &mt.more[j*mt.nx+q/mcChunk-1]
 				m[q%mcChunk] += mt.amp[b] * s
@@ -567,16 +644,24 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 			}
 			k[0] += mt.mean[b] * s // the means' part; the cubic's below
 			k[1] += mt.mean[b] * ds
-			k[4] += mt.sv[b] * s * s
-			k[5] += mt.sv[b] * s * ds
-			k[6] += mt.sv[b] * ds * ds
+			va += mt.sv[b] * s * s
+			vb += mt.sv[b] * s * ds
+			vc += mt.sv[b] * ds * ds
 		}
-		k[5] *= 2 // 2B, exact: curve reads it without the product
+		k[4], k[6] = vc, va
+		if vc > 0 {
+			k[5] = vb / vc
+			k[6] = max(0, va-vb*k[5])
+		}
 		// The cubic through the curve at f = 0, 1/3, 2/3, 1 by Newton's
 		// forward differences in u = 3f (Abramowitz & Stegun, Handbook of
-		// Mathematical Functions, 25.2.4), expanded into powers of f.
+		// Mathematical Functions, 25.2.4), expanded into powers of f; the
+		// padding row is the constant at the end.
 		x := float64(j)
 		y0, y1, y2, y3 := at(x), at(x+1.0/3), at(x+2.0/3), at(x+1)
+		if j == mt.n {
+			y1, y2, y3 = y0, y0, y0
+		}
 		d1, d2, d3 := y1-y0, y2-2*y1+y0, y3-3*y2+3*y1-y0
 		k[0] += y0
 		k[1] += 3 * (d1 - d2/2 + d3/3)
@@ -584,5 +669,8 @@ func newMCTab(ev *Evaluator, i int) *mcTab {
 		k[3] = 27 * (d3 / 6)
 	}
 	mt.fillSecond() // variation_quad_mc.go
+	for j := range mt.rows {
+		mt.rows[j].k[0] -= mt.window.spec // for specWindow.centered
+	}
 	return mt
 }

@@ -87,7 +87,11 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 		for t := range w.dev {
 			w.dev[t] = 0.2 * mil * rng.NormFloat64()
 		}
-		w.newPanel(0)
+		// One panel in every slot, for the hot path and the general one
+		// below.
+		for p := range registration.MCGroup {
+			w.newPanel(p)
+		}
 		for k := range pc.sites {
 			ps := &pc.sites[k]
 			if ps.tab == nil {
@@ -98,7 +102,7 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 			x := rng.Float64() * mt.last
 			off := mt.lo + x*mt.step
 			c, shape, flat, v := w.at(0, ps, x)
-			m := c + shape + flat
+			m := c + mt.window.spec + shape + flat // c less spec
 			ev.Proc.row(&row, a.Sites[k].Site.Pos)
 			// The row's cubic holds the section's e₀ too, with a
 			// second-order term (0 without); the site's own part is
@@ -114,13 +118,16 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 			if sc, sl, sv := w.slowAt(0, k, off); math.Abs(sc+sl+e0-wm) > meanBound || math.Abs(sv-wv) > varBound*wv {
 				t.Fatalf("site %d at %g mil: slow path %g, %g against %g, %g", k, off/mil, sc+sl, sv, wm, wv)
 			}
-			// One panel in every slot: the hot path and the general one
-			// alike on the same draws, for offsets about the table's
-			// middle (where the window is met and missed).
+			// The hot path and the general one alike on the same draws,
+			// for offsets about the table's middle (where the window is
+			// met and missed), some beyond the table, and on the domain's
+			// ends and the offsets just outside them (the rows there are
+			// not inner ones, mcTab.inner).
 			for p := range offs {
-				w.panel[p] = w.panel[0]
 				offs[p] = mt.lo + (0.5+0.3*rng.NormFloat64())*mt.last*mt.step
 			}
+			d := mt.domain
+			copy(offs, []float64{d.Lo, d.Hi, math.Nextafter(d.Lo, math.Inf(-1)), math.Nextafter(d.Hi, math.Inf(1))})
 			r.Seed(3, uint64(k))
 			r.Norms(nrm)
 			if hot, gen := w.InSpec(k, offs, nrm), w.inSpecAt(k, offs, nrm); hot != gen {

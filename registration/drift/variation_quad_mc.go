@@ -15,17 +15,23 @@ const secondStride = 4
 // cache lines it reads the rest from.
 type mcSecond [secondStride]float64
 
-// fillSecond fills mt.second from the evaluator's table (same intervals)
-// and adds e₀ to the rows' cubics.
+// fillSecond fills the rows' second-order values from the evaluator's
+// table (same intervals; the padding row n with slopes 0) and adds e₀
+// to their cubics; without a second-order term it sets κ = 1 and ρ = 0,
+// for which deviation returns l exactly, so that the loop needs no test.
 func (mt *mcTab) fillSecond() {
 	pr := mt.ev.Proc
-	if pr.second == nil || mt.rows == nil {
+	if pr.second == nil {
+		for j := range mt.rows {
+			mt.rows[j].q = mcSecond{1, 0, 0, 0}
+		}
 		return
 	}
-	mt.second = true
-	for j := range mt.n {
+	mt.second = mt.rows != nil
+	for j := range mt.rows {
 		row := &mt.rows[j]
-		r0, r1 := pr.second[3*j:3*j+3], pr.second[3*(j+1):3*(j+1)+3]
+		j1 := min(j+1, mt.n)
+		r0, r1 := pr.second[3*j:3*j+3], pr.second[3*j1:3*j1+3]
 		row.k[0] += r0[0]
 		row.k[1] += r1[0] - r0[0]
 		row.q = mcSecond{r0[1], r1[1] - r0[1], r0[2], r1[2] - r0[2]}
