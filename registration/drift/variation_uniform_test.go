@@ -219,6 +219,66 @@ func TestBoxNormalFold(t *testing.T) {
 	}
 }
 
+// narrowPolyErr is the measured largest difference between
+// boxNormal.narrowBelow (the series in monomials, one Horner sweep) and
+// the Hermite recurrence of boxNormal.corner it replaces, over
+// TestBoxNormalNarrowPoly's cases: 5.6e-17 in the CDF and 2.2e-16 in the
+// density, rounding of sums of order 1. The bound is ten times the larger:
+// another platform's exp and erfc, and the order of the additions, move
+// the last bit or two, while a wrong coefficient of a Hermite polynomial
+// or a term left out errs by far more (for one box of 0.3σ the term of
+// He₃ alone, e₂ = 0.3⁴/5! = 6.8e-5, times 3z at z = 1, is 2e-4).
+const (
+	narrowPolyErr     = 2.2e-16
+	narrowPolyAllowed = 10 * narrowPolyErr
+)
+
+// TestBoxNormalNarrowPoly checks the CDF and density of a normal part
+// plus narrow boxes taken in the monomial basis (narrowPoly) against the
+// Hermite recurrence (corner at the one corner of no wide box), over
+// one to four boxes from 0.001σ to the series' bound Σ(aⱼ/σ)² = boxNarrow,
+// at x from −boxFar to 0 (below's domain); and that the coefficients are
+// those of the Hermite polynomials (Abramowitz & Stegun 22.3.11: He₃ =
+// z³ − 3z, He₅ = z⁵ − 10z³ + 15z, He₇ = z⁷ − 21z⁵ + 105z³ − 105z).
+func TestBoxNormalNarrowPoly(t *testing.T) {
+	for m, want := range map[int][]float64{2: {-3, 1}, 3: {15, -10, 1}, 4: {-105, 105, -21, 1}} {
+		for k, w := range want {
+			if hermOdd[m][k] != w {
+				t.Errorf("He_%d: coefficient of z^%d %g, want %g", 2*m-1, 2*k+1, hermOdd[m][k], w)
+			}
+		}
+	}
+	cases := [][]float64{{0.001}, {0.05}, {0.3}, {0.49}, {0.05, 0.05}, {0.2, 0.3}, {0.35, 0.35},
+		{0.01, 0.02, 0.05}, {0.2, 0.2, 0.2}, {0.1, 0.15, 0.2, 0.25}, {0.25, 0.25, 0.25, 0.25}}
+	var worstP, worstD float64
+	var at string
+	for _, a := range cases {
+		v := 1.0
+		for _, w := range a {
+			v += w * w / 3
+		}
+		var d boxNormal
+		d.set(1, append([]float64(nil), a...), v)
+		if d.n != 0 || d.m == 0 {
+			t.Fatalf("a = %v σ: %d wide boxes, %d series terms; want the series alone", a, d.n, d.m)
+		}
+		for i := 0; i <= 172; i++ {
+			x := -boxFar + 0.05*float64(i)
+			p, dens := d.below(x)
+			f, g := d.corner(x) // one corner, d.inv = 1
+			f, g = math.Min(1, math.Max(0, f)), math.Max(0, g)
+			if e := math.Abs(p - f); e > worstP {
+				worstP, at = e, fmt.Sprintf("a = %v σ at x = %.3g", a, x)
+			}
+			worstD = math.Max(worstD, math.Abs(dens-g))
+			if math.Abs(p-f) > narrowPolyAllowed || math.Abs(dens-g) > narrowPolyAllowed {
+				t.Errorf("a = %v σ at x = %.3g: CDF %.17g, recurrence %.17g; density %.17g, recurrence %.17g", a, x, p, f, dens, g)
+			}
+		}
+	}
+	t.Logf("worst difference from the recurrence: CDF %.2g (%s), density %.2g", worstP, at, worstD)
+}
+
 // TestBoxNormalQuantile: the 3σ point of a uniform alone is (2Φ(3) − 1)
 // of its half-width, of a normal part alone 3σ; for a mixture the CDF
 // there is Φ(3) (Abramowitz & Stegun 26.2.29).
@@ -488,4 +548,102 @@ func TestUniformQuadrature(t *testing.T) {
 	if math.Abs(got-want) > 1e-9 {
 		t.Errorf("P = %.12f, midpoint rule %.12f", got, want)
 	}
+}
+
+// TestMayBeWide: wherever boxNormal.set splits off a wide box (corners)
+// at some offset of a site, Proc.mayBeWide says a box may be wide there,
+// so boxCuts never skips a scan that would find a kink; and it tells the
+// cases apart: a box narrow against a normal term everywhere, wide
+// everywhere, and one whose split changes across the offsets (a uniform
+// width on L3 beside a normal thickness of the core C2, scaled so that
+// within the offsets the box crosses the series' bound boxNarrow).
+func TestMayBeWide(t *testing.T) {
+	const w = 0.4 * mil
+	s := namedPair("maywide", section.Spec{Coupling: -3, Tolerance: 1})
+	box := registration.Term{Spread: w, Dist: registration.Uniform}
+	at := []panel.Vec{{}, {X: 3 * inch, Y: -2 * inch}}
+	model := func(sd4 float64) *process.Model {
+		return &process.Model{Size: panel.Vec{X: 18 * inch, Y: 24 * inch}, Terms: []process.Term{
+			{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: box, Shape: process.Shape{Kind: process.Tilt, Amplitude: 0.1 * mil}},
+			{Name: "t2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, sd4)}}}
+	}
+	ev := procEvaluator(t, s, &registration.Model{}, model(w), at)
+	// The box's a² = boxNarrow·vₙ where |s₃|·w = ½·|s₂|·sd4: sd4 = edge
+	// puts that at the geometric middle of the ratio's range.
+	lo, hi := ev.Curve.Curve.Range()
+	rmin, rmax := math.Inf(1), 0.0
+	for i := 0; i <= 400; i++ {
+		off := lo + (hi-lo)*float64(i)/400
+		r := math.Abs(ev.termSens(0, off)) / math.Abs(ev.termSens(1, off))
+		rmin, rmax = math.Min(rmin, r), math.Max(rmax, r)
+	}
+	if !(rmax > 1.05*rmin) {
+		t.Fatalf("the sensitivities' ratio spans %g to %g: the split does not change across the offsets", rmin, rmax)
+	}
+	edge := 2 * w * math.Sqrt(rmin*rmax)
+	for _, tt := range []struct {
+		name      string
+		sd4       float64
+		narrow    bool // some offset with every box narrow
+		wide      bool // some offset with a wide box
+		skipsSome bool // mayBeWide false somewhere
+	}{
+		{"narrow", 20 * edge, true, false, true},
+		{"wide", edge / 20, false, true, false},
+		{"mixed", edge, true, true, true},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			ev := procEvaluator(t, s, &registration.Model{}, model(tt.sd4), at)
+			lo, hi := ev.Curve.Curve.Range()
+			var narrow, wide, skips bool
+			for _, p := range at {
+				var row procRow
+				ev.Proc.row(&row, p)
+				for i := 0; i <= 4000; i++ {
+					off := lo + (hi-lo)*float64(i)/4000
+					var d boxNormal
+					ev.atBoxes(off, &row, &d)
+					may := ev.Proc.mayBeWide(off, off)
+					if d.n > 0 && !may {
+						t.Fatalf("at %.4f mil: %d wide boxes, but mayBeWide is false", off/mil, d.n)
+					}
+					narrow, wide, skips = narrow || d.n == 0, wide || d.n > 0, skips || !may
+				}
+			}
+			if narrow != tt.narrow || wide != tt.wide || skips != tt.skipsSome {
+				t.Errorf("narrow somewhere %v, wide somewhere %v, skipped somewhere %v; want %v, %v, %v", narrow, wide, skips, tt.narrow, tt.wide, tt.skipsSome)
+			}
+		})
+	}
+}
+
+// BenchmarkBoxNormal times the per-offset parts of the closed form with
+// two narrow uniform parts, as at the sites of BenchmarkSiteUniform (the
+// series of about ten terms): set, and one CDF read from it.
+func BenchmarkBoxNormal(b *testing.B) {
+	a := [2]float64{0.3, 0.28}
+	v := 1 + (a[0]*a[0]+a[1]*a[1])/3
+	b.Run("set", func(b *testing.B) {
+		b.ReportAllocs()
+		var d boxNormal
+		for b.Loop() {
+			w := a
+			d.set(1, w[:], v)
+		}
+		if d.n != 0 || d.m < 8 {
+			b.Fatalf("%d wide boxes, %d series terms: not the case timed", d.n, d.m)
+		}
+	})
+	b.Run("cdf", func(b *testing.B) {
+		b.ReportAllocs()
+		var d boxNormal
+		w := a
+		d.set(1, w[:], v)
+		x, sink := -1.3, 0.0
+		for b.Loop() {
+			sink += d.cdf(x)
+			x += 1e-9
+		}
+		_ = sink
+	})
 }
