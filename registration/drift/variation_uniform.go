@@ -220,6 +220,10 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 			d.m++
 		}
 	}
+	if d.n == 0 && d.m > 0 && narrow-i <= 2 {
+		d.pairSeries(a[i:narrow], sc)
+		return
+	}
 	for k, w := range a[i:narrow] {
 		// Multiply by the box's sinh(w·u)/(w·u) = Σ w²ᵐ·u²ᵐ/(2m + 1)!.
 		w2 := w * sc * w * sc
@@ -248,11 +252,73 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 			d.c[m] = cm
 		}
 	}
-	d.narrowPoly()
+	if d.n == 0 && d.m > 0 {
+		var e [boxSeries + 1]float64
+		s2, p := 1/(d.sd*d.sd), 1.0
+		for m := 1; m <= d.m; m++ {
+			p *= s2
+			e[m] = d.c[m] * p
+		}
+		d.narrowPoly(&e)
+	}
 }
 
-// narrowPoly fills d.q when every box is narrow (d.n = 0, d.m > 0). The
-// corner sum is then the series alone, at one corner y = x:
+// pairSeries fills the series of one or two narrow boxes (half-widths w,
+// scaled by sc) and no wide one in closed form. In units of the normal
+// part, bⱼ = aⱼ/σ, the product-to-sum identity
+// sinh x·sinh y = [cosh(x + y) − cosh(x − y)]/2 (Abramowitz & Stegun
+// 4.5.25, cosh(x ± y) = cosh x·cosh y ± sinh x·sinh y) gives
+//
+//	S(b₁u)·S(b₂u) = [cosh(Au) − cosh(Bu)]/(2b₁b₂u²),  A = b₁ + b₂, B = b₁ − b₂,
+//
+// whose coefficient of u²ᵐ (cosh's series, 4.5.63) is
+// (A^{2m+2} − B^{2m+2})/(2b₁b₂·(2m + 2)!) = 2·Uₘ/(2m + 2)!, with
+// A² − B² = 4b₁b₂ taken out of the difference of powers:
+// Uₘ = Σ_{i ≤ m} A^{2i}·B^{2(m−i)} = A²·U_{m−1} + B^{2m}, U₀ = 1. Every
+// term is positive, so eₘ carries the rounding of its m steps (no
+// cancellation, whatever b₂/b₁), at a step per term instead of the
+// product of two series; one box is b₂ = 0 (Uₘ = (m + 1)·A^{2m}, the
+// coefficient A^{2m}/(2m + 1)! of S(Au)). Measured against the product
+// in TestPairSeries. It fills d.q alone: with no wide box nothing reads
+// d.c.
+func (d *boxNormal) pairSeries(w []float64, sc float64) {
+	r := sc / d.sd
+	b1, b2 := w[0]*r, 0.0
+	if len(w) == 2 {
+		b2 = w[1] * r
+	}
+	var e [boxSeries + 1]float64
+	pairCoeffs(b1, b2, d.m, &e)
+	d.narrowPoly(&e)
+}
+
+// pairCoeffs fills e[:m+1] with the coefficients of S(b₁u)·S(b₂u) in u²ᵐ
+// (pairSeries).
+func pairCoeffs(b1, b2 float64, m int, e *[boxSeries + 1]float64) {
+	A2, B2 := (b1+b2)*(b1+b2), (b1-b2)*(b1-b2)
+	e[0] = 1
+	u, bp := 1.0, 1.0
+	for k := 1; k <= m; k++ {
+		bp *= B2
+		u = A2*u + bp
+		e[k] = 2 * u * invFact2[k]
+	}
+}
+
+// invFact2[m] is 1/(2m + 2)!.
+var invFact2 = func() (r [boxSeries + 1]float64) {
+	f := 2.0
+	r[0] = 1 / f
+	for m := 1; m <= boxSeries; m++ {
+		f *= float64((2*m + 1) * (2*m + 2))
+		r[m] = 1 / f
+	}
+	return r
+}()
+
+// narrowPoly fills d.q from the series' coefficients eₘ = cₘ/σ²ᵐ when
+// every box is narrow (d.n = 0, d.m > 0). The corner sum is then the
+// series alone, at one corner y = x:
 //
 //	F(x) = Φ(z) − φ(z)·Σₘ eₘ·He_{2m−1}(z),  eₘ = cₘ/σ²ᵐ, z = x/σ,
 //
@@ -266,21 +332,18 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 // and the eₘ fall as (H²/6)ᵐ/m!, so the terms that cancel much are the
 // ones of size 1e-14 and below; measured against the recurrence in
 // TestBoxNormalNarrowPoly.
-func (d *boxNormal) narrowPoly() {
-	if d.n != 0 || d.m == 0 {
-		return
-	}
-	clear(d.q[:d.m])
-	s2 := 1 / (d.sd * d.sd)
-	e := 1.0
+func (d *boxNormal) narrowPoly(e *[boxSeries + 1]float64) {
+	// By the term m, the m sums it adds to independent of each other (in
+	// a local array: through d each step reloaded d).
+	var q [boxSeries]float64
 	for m := 1; m <= d.m; m++ {
-		e *= s2
-		em := d.c[m] * e
-		h := &hermOdd[m]
-		for k := range m {
-			d.q[k] += em * h[k]
+		em := e[m]
+		qs := q[:m]
+		for k, h := range hermOdd[m][:m] {
+			qs[k] += em * h
 		}
 	}
+	d.q = q
 }
 
 // hermOdd[m][k] is the coefficient of z^{2k+1} in He_{2m−1}(z):

@@ -262,10 +262,19 @@ func TestBoxNormalNarrowPoly(t *testing.T) {
 		if d.n != 0 || d.m == 0 {
 			t.Fatalf("a = %v σ: %d wide boxes, %d series terms; want the series alone", a, d.n, d.m)
 		}
+		// The recurrence reads the series' coefficients in the units of
+		// √v, which the closed form of one or two boxes leaves unset.
+		ref := d
+		sc := 1 / math.Sqrt(v)
+		var scaled []float64
+		for _, w := range a {
+			scaled = append(scaled, w*sc)
+		}
+		copy(ref.c[:], seriesProduct(scaled, d.m))
 		for i := 0; i <= 172; i++ {
 			x := -boxFar + 0.05*float64(i)
 			p, dens := d.below(x)
-			f, g := d.corner(x) // one corner, d.inv = 1
+			f, g := ref.corner(x) // one corner, d.inv = 1
 			f, g = math.Min(1, math.Max(0, f)), math.Max(0, g)
 			if e := math.Abs(p - f); e > worstP {
 				worstP, at = e, fmt.Sprintf("a = %v σ at x = %.3g", a, x)
@@ -277,6 +286,60 @@ func TestBoxNormalNarrowPoly(t *testing.T) {
 		}
 	}
 	t.Logf("worst difference from the recurrence: CDF %.2g (%s), density %.2g", worstP, at, worstD)
+}
+
+// pairSeriesErr is the largest relative difference measured between the
+// closed form of pairSeries and the product of the two boxes' sinh series
+// over TestPairSeries's cases: 2.9e-15 (at the tenth term and beyond),
+// the rounding of a dozen positive steps and of the product multiplied
+// out here from math.Pow and factorials. The bound is ten times that, for other orders of
+// the rounding; a wrong factorial or power errs by a factor of order one.
+const (
+	pairSeriesErr     = 2.9e-15
+	pairSeriesAllowed = 10 * pairSeriesErr
+)
+
+// TestPairSeries checks the coefficients of one or two narrow boxes in
+// closed form (pairSeries) against the product of their series
+// sinh(x)/x = Σ x²ᵐ/(2m + 1)! (Abramowitz & Stegun 4.5.62) multiplied
+// out here, relative to each coefficient: equal boxes, unequal ones, one
+// far narrower than the other (where A^{2m+2} − B^{2m+2} would cancel)
+// and one box alone.
+func TestPairSeries(t *testing.T) {
+	var worst float64
+	for _, b := range [][2]float64{{0.3, 0.28}, {0.35, 0.35}, {0.2, 0.1}, {0.3, 0.001}, {0.01, 0.02}, {0.49, 0}, {0.05, 0}} {
+		var e [boxSeries + 1]float64
+		pairCoeffs(b[0], b[1], boxSeries, &e)
+		want := seriesProduct(b[:], boxSeries)
+		for m := 0; m <= boxSeries; m++ {
+			if want[m] == 0 {
+				continue
+			}
+			d := math.Abs(e[m]-want[m]) / want[m]
+			worst = math.Max(worst, d)
+			if d > pairSeriesAllowed {
+				t.Errorf("b = %v σ: e[%d] = %.17g, the product of the series %.17g", b, m, e[m], want[m])
+			}
+		}
+	}
+	t.Logf("worst relative difference %.2g", worst)
+}
+
+// seriesProduct returns the coefficients of u⁰ … u²ᵐ of Πⱼ sinh(aⱼu)/(aⱼu)
+// (Abramowitz & Stegun 4.5.62), multiplied out term by term.
+func seriesProduct(a []float64, m int) []float64 {
+	c := make([]float64, m+1)
+	c[0] = 1
+	for _, w := range a {
+		next := make([]float64, m+1)
+		for i := range c {
+			for j := 0; i+j <= m; j++ {
+				next[i+j] += c[i] * math.Pow(w, float64(2*j)) / factorial(2*j+1)
+			}
+		}
+		c = next
+	}
+	return c
 }
 
 // TestBoxNormalQuantile: the 3σ point of a uniform alone is (2Φ(3) − 1)
