@@ -72,11 +72,18 @@ import (
 // narrowest boxes go into the series while H² ≤ boxNarrow = 0.25, where
 // 14 terms reach 2.6e-17; the series stops at the first term whose bound
 // is below boxSeriesTol. Every corner then costs one Φ and one φ
-// whatever the narrow boxes. Measured against the Gil-Pelaez inversion
-// of the characteristic function over k = 1, 2, 3 and half-widths
-// 0.1σ to 10σ, and narrower boxes down to 0.001σ on both sides of
-// boxNarrow: 9.4e-16; against the Irwin–Hall CDF for up to six equal
-// boxes: 8.9e-16 (TestBoxNormalCDF, TestBoxNormalIrwinHall).
+// whatever the narrow boxes. With no wide box (the common case of narrow
+// panel parts beside a wider normal part) the sum is the series alone at
+// one corner, Φ(z) − φ(z)·Σ eₘ·He_{2m−1}(z): set converts it to powers of
+// z once (narrowPoly), so that each CDF is one Horner sweep, and one or
+// two boxes take their coefficients in closed form (pairSeries), their
+// bound on the coefficients themselves. Measured against the Gil-Pelaez
+// inversion of the characteristic function over k = 1, 2, 3 and
+// half-widths 0.1σ to 10σ, and narrower boxes down to 0.001σ on both
+// sides of boxNarrow: 4.1e-15 (a box of 0.001σ, whose series stops after
+// one term: the second, below boxSeriesTol, left out; 9.4e-16 elsewhere);
+// against the Irwin–Hall CDF for up to six equal boxes: 8.9e-16
+// (TestBoxNormalCDF, TestBoxNormalIrwinHall).
 //
 // More boxes. 2^k corners cost 2^k evaluations of Φ and of φ; beyond
 // maxBoxes wide boxes the narrowest of them are folded into the normal
@@ -90,20 +97,18 @@ import (
 // Cost (BenchmarkSiteUniform, one site of 12 process terms, two with
 // narrow uniform parts: P(in spec) and the worst drift; the least
 // cpu-µs/op of four runs at -cpu 1, alternating with the code before, on
-// a machine at load 4–5): 29 µs against 13 µs with the parts taken as
-// normal (54 µs before: the quantile of the worst drift started from
-// Cornish–Fisher and stopping after a small Newton step, one CDF per
-// offset instead of two or three; the Hermite orders and the series'
-// products held in registers; boxCuts splitting the boxes without the
-// series). Per site P(in spec) takes 43 windows of two CDFs each, every
-// one an erfc, an exp and the series' recurrence (about 85 ns), and a set
-// (about 75 ns); the normal path takes the erfc alone. In
-// BenchmarkMap10kVariation (cmd/regdrift, 10,000 sites, -benchtime 4x,
-// three runs each alternating, load 4–5) /uniform took 1.40 to 1.53
-// times /normal (1.56 to 1.58 s against 1.03 to 1.11 s; one outlier at
-// 2.1) against 1.58 to 1.93 before (1.88 to 2.03 s). Left: the
-// per-offset work (set) is the same for every site of a section at one
-// offset, but the sites' integration nodes differ, so it is not shared.
+// a machine at load 4–7): 16.7 µs against 9.2 µs with the parts taken as
+// normal (21.7 µs before: the series in powers of z, one Horner sweep
+// per CDF instead of the Hermite recurrence, about 70 ns a CDF against
+// 150; the pair's closed form; boxCuts's scan skipped where no box can
+// be wide, Proc.tabulateWide). Per site P(in spec) takes some 60 windows
+// of two CDFs each, every one an erfc, an exp and the sweep, and a set
+// (about 150 ns with the conversion; BenchmarkBoxNormal); the normal
+// path takes the erfc alone. The split of the boxes and X's distribution
+// depend on the offset alone, not on the site (only the means differ
+// between sites), which tabulateWide uses; set itself is not shared,
+// since the sites' integration nodes differ and interpolating its
+// coefficients between table rows would be an approximation.
 
 // maxBoxes is the number of wide uniform parts boxNormal holds exactly
 // by its corners.
@@ -215,14 +220,14 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 		return
 	}
 	if h2 > 0 {
+		if d.n == 0 && narrow-i <= 2 {
+			d.pairSeries(a[i:narrow], sc)
+			return
+		}
 		h2 *= d.sd0 * d.sd0 / vn
 		for b := h2; d.m < boxSeries && seriesBound[d.m+1]*b >= boxSeriesTol; b *= h2 {
 			d.m++
 		}
-	}
-	if d.n == 0 && d.m > 0 && narrow-i <= 2 {
-		d.pairSeries(a[i:narrow], sc)
-		return
 	}
 	for k, w := range a[i:narrow] {
 		// Multiply by the box's sinh(w·u)/(w·u) = Σ w²ᵐ·u²ᵐ/(2m + 1)!.
@@ -288,21 +293,43 @@ func (d *boxNormal) pairSeries(w []float64, sc float64) {
 		b2 = w[1] * r
 	}
 	var e [boxSeries + 1]float64
-	pairCoeffs(b1, b2, d.m, &e)
+	d.m = pairCoeffs(b1, b2, &e)
 	d.narrowPoly(&e)
 }
 
-// pairCoeffs fills e[:m+1] with the coefficients of S(b₁u)·S(b₂u) in u²ᵐ
-// (pairSeries).
-func pairCoeffs(b1, b2 float64, m int, e *[boxSeries + 1]float64) {
+// cramerBound[m] is 0.43·√((2m−1)!), the bound of |He_{2m−1}(z)|·φ(z)
+// by Cramér's inequality (see boxNormal.set).
+var cramerBound = func() (r [boxSeries + 1]float64) {
+	f := 1.0 // (2m − 1)!
+	for m := 1; m <= boxSeries; m++ {
+		if m > 1 {
+			f *= float64((2*m - 2) * (2*m - 1))
+		}
+		r[m] = 0.43 * math.Sqrt(f)
+	}
+	return r
+}()
+
+// pairCoeffs fills e with the coefficients of S(b₁u)·S(b₂u) in u²ᵐ
+// (pairSeries) and returns the terms to keep beyond the first: up to the
+// first whose bound 0.43·√((2m−1)!)·eₘ (Cramér's inequality, as set's
+// rule) is below boxSeriesTol, at most boxSeries. The bound is taken on
+// the coefficient itself rather than on set's majorant (H²/6)ᵐ/m!, which
+// for two boxes of 0.3σ is 2e5 times e₁₀: the series stops two terms
+// sooner, and what it leaves out is still below boxSeriesTol.
+func pairCoeffs(b1, b2 float64, e *[boxSeries + 1]float64) int {
 	A2, B2 := (b1+b2)*(b1+b2), (b1-b2)*(b1-b2)
 	e[0] = 1
 	u, bp := 1.0, 1.0
-	for k := 1; k <= m; k++ {
+	for k := 1; k <= boxSeries; k++ {
 		bp *= B2
 		u = A2*u + bp
 		e[k] = 2 * u * invFact2[k]
+		if cramerBound[k]*e[k] < boxSeriesTol {
+			return k - 1
+		}
 	}
+	return boxSeries
 }
 
 // invFact2[m] is 1/(2m + 2)!.
@@ -441,9 +468,13 @@ func (d *boxNormal) below(x float64) (p, dens float64) {
 		p += sign * f
 		dens += sign * g
 	}
-	// Clamped by comparisons: math.Min and math.Max are calls, for the
-	// NaN and signed zeros that do not arise here.
-	p, dens = p*d.inv, dens*d.inv
+	return clampCDF(p*d.inv, dens*d.inv)
+}
+
+// clampCDF returns p within [0, 1] and dens at least 0, by comparisons:
+// math.Min and math.Max are calls, for the NaN and signed zeros that do
+// not arise here.
+func clampCDF(p, dens float64) (float64, float64) {
 	if p < 0 {
 		p = 0
 	} else if p > 1 {
@@ -470,17 +501,7 @@ func (d *boxNormal) narrowBelow(z float64) (p, dens float64) {
 		dq = dq*u + q
 		q = q*u + d.q[k]
 	}
-	p = P - ph*z*q
-	dens = ph / d.sd * (1 + (u-1)*q - 2*u*dq)
-	if p < 0 {
-		p = 0
-	} else if p > 1 {
-		p = 1
-	}
-	if dens < 0 {
-		dens = 0
-	}
-	return p, dens
+	return clampCDF(P-ph*z*q, ph/d.sd*(1+(u-1)*q-2*u*dq))
 }
 
 // corner returns Σₘ cₘ·G_{n−2m}(y) and Σₘ cₘ·G_{n−2m−1}(y), n the wide
