@@ -98,18 +98,15 @@ import (
 // Cost (BenchmarkSiteUniform, one site of 12 process terms, two with
 // narrow uniform parts: P(in spec) and the worst drift; the least
 // cpu-µs/op of four runs at -cpu 1, alternating with the code before, on
-// a machine at load 4–7): 16.7 µs against 9.2 µs with the parts taken as
-// normal (21.7 µs before: the series in powers of z, one Horner sweep
-// per CDF instead of the Hermite recurrence, about 70 ns a CDF against
-// 150; the pair's closed form; boxCuts's scan skipped where no box can
-// be wide, Proc.tabulateWide). Per site P(in spec) takes some 60 windows
-// of two CDFs each, every one an erfc, an exp and the sweep, and a set
-// (about 150 ns with the conversion; BenchmarkBoxNormal); the normal
-// path takes the erfc alone. The split of the boxes and X's distribution
-// depend on the offset alone, not on the site (only the means differ
-// between sites), which tabulateWide uses; set itself is not shared,
-// since the sites' integration nodes differ and interpolating its
-// coefficients between table rows would be an approximation.
+// a machine at load 2–7): 15.5 µs against 10.0 µs with the parts taken
+// as normal (24.3 µs before, against 9.5: the series in powers of z, one
+// Horner sweep per CDF instead of the Hermite recurrence, about 70 ns a
+// CDF against 150; the pair's closed form; boxCuts's scan skipped where
+// no box can be wide, Proc.tabulateWide; X's distribution read from the
+// section's table, boxTab, in 27 ns instead of a set of 160 ns,
+// BenchmarkBoxTab and BenchmarkBoxNormal). Per site P(in spec) takes some
+// 60 windows of two CDFs each, every one an erfc, an exp and the sweep;
+// the normal path takes the erfc alone.
 
 // maxBoxes is the number of wide uniform parts boxNormal holds exactly
 // by its corners.
@@ -698,7 +695,8 @@ func boxTabPays(sites, rows int) bool {
 	return 80*sites > 2*(boxTabDeg+1)*max(1, rows-1)
 }
 
-// boxTabDeg is the degree of boxTab's polynomials in f.
+// boxTabDeg is the degree of boxTab's polynomials in f (boxTab.fill's
+// Horner sweep is written out for it).
 const boxTabDeg = 3
 
 // boxTabFields is the number of fields before the series: σ, Σ aⱼ, Σ aⱼ⁴.
@@ -886,21 +884,15 @@ func (t *boxTab) has(i int) bool { return t != nil && t.m[i] >= 0 }
 // fill sets d to X's distribution at weight f of interval i (has(i)).
 func (t *boxTab) fill(i int, f float64, d *boxNormal) {
 	const np = boxTabDeg + 1
-	c := t.coef[i*t.stride : (i+1)*t.stride]
-	x := 2*f - 1
-	ev := func(p []float64) float64 {
-		p = p[:np]
-		y := p[np-1]
-		for k := np - 2; k >= 0; k-- {
-			y = y*x + p[k]
-		}
-		return y
-	}
 	m := int(t.m[i])
-	d.n, d.inv, d.m, d.c[0] = 0, 1, m, 1
-	d.sd = ev(c[0:])
-	d.sd0, d.sumA, d.sumA4 = d.sd, ev(c[np:]), ev(c[2*np:])
-	for k := range m {
-		d.q[k] = ev(c[(boxTabFields+k)*np:])
+	c := t.coef[i*t.stride : i*t.stride+(boxTabFields+m)*np]
+	x := 2*f - 1
+	var y [boxTabFields + boxSeries]float64
+	for k := range boxTabFields + m {
+		p := c[k*np : k*np+np]
+		y[k] = ((p[3]*x+p[2])*x+p[1])*x + p[0] // boxTabDeg = 3
 	}
+	d.n, d.inv, d.m, d.c[0] = 0, 1, m, 1
+	d.sd, d.sd0, d.sumA, d.sumA4 = y[0], y[0], y[1], y[2]
+	copy(d.q[:m], y[boxTabFields:])
 }

@@ -802,3 +802,22 @@ func TestBoxTab(t *testing.T) {
 	}
 	t.Logf("worst difference from set: CDF %.2g, density %.2g, 3σ point %.2g, reach %.2g", worstP, worstD, worstZ, worstR)
 }
+
+// BenchmarkBoxTab times reading X's distribution from the section's table
+// (boxTab.fill) at the sites of BenchmarkSiteUniform, against set
+// (BenchmarkBoxNormal/set).
+func BenchmarkBoxTab(b *testing.B) {
+	_, _, a := evaluatedProcess(b)
+	pr := a.Evaluator(a.Sites[0].Section).Proc
+	i, _ := pr.rowAt(a.Sites[0].Offset)
+	if !pr.boxTab.has(i) {
+		b.Fatal("the site's interval is not tabulated")
+	}
+	b.ReportAllocs()
+	var d boxNormal
+	f := 0.3
+	for b.Loop() {
+		pr.boxTab.fill(i, f, &d)
+		f = 1 - f
+	}
+}
