@@ -69,3 +69,39 @@ func TestBuildErrors(t *testing.T) {
 		t.Errorf("perturbed copper: %v", err)
 	}
 }
+
+// TestPerturbedPastFoil: a copper change is the foil's (the finished
+// thickness is what the field sees); one that thins the layer by more than
+// its foil, as a term on a plating step can at a large excursion, leaves no
+// foil and the plating steps in proportion, the finished thickness still
+// their sum, so that the perturbed section validates.
+func TestPerturbedPastFoil(t *testing.T) {
+	s := edgeMicro(10*testMil, 18*testMil, 6*testMil, 1.4*testMil, 3.48)
+	l := &s.Stackup.Layers[0]
+	l.Foil = CopperWeightThickness(0.5) // 0.67 mil
+	l.Plating = []float64{0.6 * testMil, 1.0 * testMil}
+	l.Thickness = FinishedThickness(l.Foil, l.Plating)
+	p := Param{Kind: ParamCopper, Layer: 0}
+	for _, dv := range []float64{0.3 * testMil, -0.3 * testMil, -0.9 * testMil} {
+		ps := s.Perturbed(p, dv)
+		pl := ps.Stackup.Layers[0]
+		if err := ps.Validate(); err != nil {
+			t.Errorf("copper %+.1f mil: %v", dv/testMil, err)
+		}
+		if got, want := pl.Thickness, l.Thickness+dv; math.Abs(got-want) > 1e-12*want {
+			t.Errorf("copper %+.1f mil: finished %.6g mil, want %.6g", dv/testMil, got/testMil, want/testMil)
+		}
+		wantFoil := math.Max(0, l.Foil+dv)
+		if math.Abs(pl.Foil-wantFoil) > 1e-12*l.Thickness {
+			t.Errorf("copper %+.1f mil: foil %.6g mil, want %.6g", dv/testMil, pl.Foil/testMil, wantFoil/testMil)
+		}
+		if wantFoil == 0 {
+			if r := pl.Plating[1] / pl.Plating[0]; math.Abs(r-1.0/0.6) > 1e-12 {
+				t.Errorf("copper %+.1f mil: plating steps %v, not in the proportion 0.6 : 1.0", dv/testMil, pl.Plating)
+			}
+		}
+	}
+	if s.Stackup.Layers[0].Foil != CopperWeightThickness(0.5) || s.Stackup.Layers[0].Plating[0] != 0.6*testMil {
+		t.Error("Perturbed changed the section it copied")
+	}
+}

@@ -130,7 +130,8 @@ func (s *Section) domainLayers() []bool {
 
 // Perturbed returns a copy of s with parameter p moved by dv (m, or units of
 // εr). A copper layer built from foil and plating keeps the sum: the foil
-// takes the change. The copy shares nothing with s; it is not validated.
+// takes the change, the plating steps in proportion what the foil cannot.
+// The copy shares nothing with s; it is not validated.
 func (s *Section) Perturbed(p Param, dv float64) *Section {
 	c := *s
 	c.Stackup.Layers = make([]Layer, len(s.Stackup.Layers))
@@ -153,6 +154,20 @@ func (s *Section) Perturbed(p Param, dv float64) *Section {
 		l.Thickness += dv
 		if l.Foil != 0 || len(l.Plating) > 0 {
 			l.Foil += dv
+			if l.Foil < 0 {
+				// Thinner than the plating alone: no foil, and the plating
+				// steps in proportion to the finished thickness (only it
+				// enters the field; a term on one plating step can reach
+				// past the foil under it).
+				var sum float64
+				for _, pt := range l.Plating {
+					sum += pt
+				}
+				for k := range l.Plating {
+					l.Plating[k] *= l.Thickness / sum
+				}
+				l.Foil = 0
+			}
 		}
 	case ParamWidth, ParamEtch:
 		name := s.Stackup.Layers[p.Layer].Name

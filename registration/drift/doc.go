@@ -34,7 +34,8 @@
 // (Input.Process, package registration/process) the same evaluator adds
 // Σ sᵢ(δ)·Δpᵢ to the curve, first order in the terms and exact in the
 // offset, with a second-order term along the direction of steepest change
-// fitted by direct solves (variation_quad.go), and P(in spec) integrates
+// fitted by direct solves, following each site's own means
+// (variation_quad.go), and P(in spec) integrates
 // the offset (variation.go); without them every number is the
 // registration-only one.
 //

@@ -585,9 +585,11 @@ func Notes(ctx context.Context, in *Input, curves []*Curve, secs []TolSection, s
 // per cent of 1 after the first.
 const allocRefits = 3
 
-// allocateRefit is Allocate with the second-order process term refitted by
-// direct solves for the input scaled by the allocated k, then allocated
-// again from there, until k moves by less than the root's tolerance. The
+// allocateRefit is Allocate with the curves solved again for the input
+// scaled by the allocated k (solveFor, so that the solved offsets hold the
+// scaled job's domain) and their second-order process term refitted by
+// direct solves for it, then allocated again from there, until k moves by
+// less than the root's tolerance. The
 // term's scaling (SecondOrder.Scaled) takes the coupling as quadratic in
 // the parameters about the nominal section; where it is not (the
 // edge-coupled microstrip of the topology samples: a fresh analysis of the
@@ -603,17 +605,27 @@ func allocateRefit(ctx context.Context, in *Input, curves []*Curve, set *Setting
 	for _, c := range curves {
 		has = has || (c != nil && c.Second != nil)
 	}
+	set = withSensitivities(set, in)
+	base := Reach(New(in, nil))
 	for n := 0; has && n < allocRefits; n++ {
 		k0 := al.K
+		// The scaled job's curves by the one rule of how far to solve
+		// (solveFor: its sites' offsets and the process domain, wider
+		// when k > 1), never from a shorter start than the job's own.
+		sa := New(scaledInput(in, k0), nil)
+		reach := Reach(sa)
 		refit := make([]*Curve, len(curves))
 		for i, c := range curves {
-			if c != nil {
-				cc := *c
-				cc.Second = nil
-				refit[i] = &cc
+			if c == nil {
+				continue
 			}
+			rc, err := solveFor(ctx, set, in.Sections[i], i, math.Max(reach[i], base[i]), []*Analysis{sa})
+			if err != nil {
+				return nil, err
+			}
+			refit[i] = rc
 		}
-		if err := FitSecondOrder(ctx, set, refit, New(scaledInput(in, k0), nil)); err != nil {
+		if err := FitSecondOrder(ctx, set, refit, sa); err != nil {
 			return nil, err
 		}
 		next := allocate(in, refit, target, k0)

@@ -176,6 +176,9 @@ type Proc struct {
 	// boxTab holds X's distribution per table interval where set can be
 	// shared between the sites (tabulateBoxes); nil where it cannot.
 	boxTab *boxTab
+	// means are the parts of the term that follow a site's means
+	// (MeanTerm), added to its procRow by row.
+	means []MeanTerm
 }
 
 // procTabPerSpan is the number of table intervals per interval of the
@@ -208,6 +211,7 @@ func (pr *Proc) tabulate(c *Curve) {
 		}
 	}
 	if so := c.Second; so != nil {
+		pr.means = so.Means
 		pr.second = make([]float64, 3*(n+1))
 		for i := 0; i <= n; i++ {
 			off := lo + float64(i)*pr.tabStep
@@ -293,12 +297,14 @@ func (pr *Proc) mayBeWide(a, b float64) bool {
 }
 
 // secondAt returns e₀, κ and ρ at offset off from the table (rows' index
-// and weight); 0, 1, 0 without a second-order term.
-func (pr *Proc) secondAt(off float64) (e0, kappa, rho float64) {
+// and weight) for a site whose own part is ss; 0, 1, 0 without a
+// second-order term.
+func (pr *Proc) secondAt(off float64, ss siteSecond) (e0, kappa, rho float64) {
 	if pr.second == nil {
 		return 0, 1, 0
 	}
-	return pr.secondRow(pr.rowAt(off))
+	i, f := pr.rowAt(off)
+	return pr.secondRow(i, f, ss)
 }
 
 // rows returns the two table rows about off and the weight of the second,
@@ -320,14 +326,15 @@ func (pr *Proc) rowsAt(off float64) (r0, r1 []float64, i int, f float64) {
 }
 
 // secondRow returns e₀, κ and ρ between table rows i and i + 1 at weight
-// f (rowsAt); 0, 1, 0 without a second-order term.
-func (pr *Proc) secondRow(i int, f float64) (e0, kappa, rho float64) {
+// f (rowsAt), for a site whose own part (its MeanTerms) is ss; 0, 1, 0
+// without a second-order term.
+func (pr *Proc) secondRow(i int, f float64, ss siteSecond) (e0, kappa, rho float64) {
 	if pr.second == nil {
 		return 0, 1, 0
 	}
 	j := min(i+1, pr.tabRows-1)
 	r0, r1 := pr.second[3*i:3*i+3], pr.second[3*j:3*j+3]
-	return r0[0] + f*(r1[0]-r0[0]), r0[1] + f*(r1[1]-r0[1]), r0[2] + f*(r1[2]-r0[2])
+	return r0[0] + f*(r1[0]-r0[0]) + ss.e0, r0[1] + f*(r1[1]-r0[1]) + ss.kappa, r0[2] + f*(r1[2]-r0[2]) + ss.rho
 }
 
 // rowAt returns the index of the table row at or below off and the weight
@@ -362,6 +369,8 @@ type procRow struct {
 	mu, va, w    [maxStackTerms]float64
 	muH, vaH, wH []float64
 	boxes        int
+	// second is the site's part of the second-order term (MeanTerm).
+	second siteSecond
 }
 
 // means and vars return the row's means and variances per binding.
@@ -417,6 +426,14 @@ func (pr *Proc) row(r *procRow, p panel.Vec) {
 			r.boxes++
 		}
 	}
+	r.second = siteSecond{}
+	for i := range pr.means {
+		mt := &pr.means[i]
+		e0, kappa, rho := mt.at(mu[mt.Bind])
+		r.second.e0 += e0
+		r.second.kappa += kappa
+		r.second.rho += rho
+	}
 }
 
 // termSens returns binding b's coupling sensitivity at offset off: the sum
@@ -437,7 +454,7 @@ func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
-	e0, kappa, rho := e.Proc.secondRow(i, f)
+	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
 	return m + e0, kappa * kappa * v, rho * v
 }
 
@@ -478,7 +495,7 @@ func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
-	e0, kappa, rho := e.Proc.secondRow(i, f)
+	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
 	return m + e0, kappa * kappa * v, rho * v
 }
 
@@ -526,7 +543,7 @@ func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	}
 	if sec := e.Proc.second; sec != nil {
 		j := min(i+1, e.Proc.tabRows-1)
-		m += sec[3*i] + f*(sec[3*j]-sec[3*i])
+		m += sec[3*i] + f*(sec[3*j]-sec[3*i]) + r.second.e0
 	}
 	return m
 }
@@ -599,7 +616,8 @@ func (e *Evaluator) evalProc(r *Eval, pr *procRow) {
 	r.Drift = m - c.Nominal
 	r.DriftRegistration = creg - c.Nominal
 	r.DriftProcess = m - creg
-	r.ProcessSD = math.Sqrt(v + 2*q*q)
+	_, sq := e.squareVar(r.Offset, pr) // 2 unless a panel part is uniform
+	r.ProcessSD = math.Sqrt(v + sq*q*q)
 	r.TermDrifts = make([]float64, len(e.Proc.Model.Terms))
 	var sum float64
 	for b, bd := range e.Proc.Bind {
@@ -1011,12 +1029,14 @@ func (a *Analysis) splitWorst(w *WorstSite, r *Site) {
 
 // processHeader returns the columns sites.csv adds with process terms: the
 // drift from registration, from the variation terms and the latter's
-// standard deviation, and one drift column per term.
+// standard deviation, the second-order term's part of the variation drift,
+// and one drift column per term (with the second-order part they sum to
+// the variation drift).
 func (a *Analysis) processHeader() []string {
 	if a.In.Process.Empty() {
 		return nil
 	}
-	h := []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]"}
+	h := []string{"drift_registration [dB]", "drift_variation [dB]", "sd_variation [dB]", "drift_second_order [dB]"}
 	for _, t := range a.In.Process.Terms {
 		h = append(h, "drift "+t.Name+" [dB]")
 	}
@@ -1029,7 +1049,7 @@ func (a *Analysis) processColumns(rec []string, i int) []string {
 		return rec
 	}
 	r := &a.Sites[i]
-	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4))
+	rec = append(rec, fixed(r.DriftRegistration, 4), fixed(r.DriftProcess, 4), fixed(r.ProcessSD, 4), fixed(r.DriftSecondOrder, 4))
 	terms := r.TermDrifts
 	if terms == nil { // a section no term moves
 		terms = make([]float64, len(a.In.Process.Terms))

@@ -67,6 +67,33 @@ type CouplingBudget struct {
 	Panel     []CouplingShare `json:"panel_terms"`
 }
 
+// squareVar returns, at offset off for process row r, the variance v₁ of
+// the first-order deviation L and Var(X²) for X = L/√v₁ (unit variance):
+// the second-order term q·X² adds q²·Var(X²) to the coupling's variance
+// (X symmetric, so Cov(X, X²) = 0). Var(X²) = 2 + γ₂, γ₂ X's excess
+// kurtosis: 0 for a normal X; a uniform panel part of half-width w (its
+// coupling half-width |s|·w) has fourth cumulant −2(|s|w)⁴/15 (excess
+// kurtosis −6/5: Johnson, Kotz & Balakrishnan, Continuous Univariate
+// Distributions, vol. 2, 2nd ed., ch. 26), and cumulants of independent
+// parts add, so γ₂ = −(2/15)·Σ(|s|w)⁴/v₁².
+func (e *Evaluator) squareVar(off float64, r *procRow) (v1, sq float64) {
+	var k4 float64
+	ws := r.halfWidths()
+	for b, va := range r.vars() {
+		s := e.termSens(b, off)
+		v1 += s * s * va
+		if w := ws[b]; w > 0 {
+			sw := s * w
+			k4 += sw * sw * sw * sw
+		}
+	}
+	sq = 2
+	if v1 > 0 {
+		sq -= 2.0 / 15 * k4 / (v1 * v1)
+	}
+	return v1, sq
+}
+
 // couplingParts returns site k's coupling variance from registration (dB²)
 // and from each process term (indexed as process.Model.Terms).
 func (a *Analysis) couplingParts(k int, ev *Evaluator, terms []float64) float64 {
@@ -87,13 +114,9 @@ func (a *Analysis) couplingParts(k int, ev *Evaluator, terms []float64) float64 
 	}
 	// addTerms adds weight w times each term's part of V at x.
 	addTerms := func(w, x float64) {
-		_, kappa, rho := ev.Proc.secondAt(x)
-		var v1 float64
-		for b := range ev.Proc.Bind {
-			s := ev.termSens(b, x)
-			v1 += s * s * pr.vars()[b]
-		}
-		f := kappa*kappa + 2*rho*rho*v1
+		_, kappa, rho := ev.Proc.secondAt(x, pr.second)
+		v1, sq := ev.squareVar(x, &pr)
+		f := kappa*kappa + sq*rho*rho*v1
 		for b, bd := range ev.Proc.Bind {
 			s := ev.termSens(b, x)
 			terms[bd.Term] += w * s * s * pr.vars()[b] * f

@@ -29,6 +29,14 @@ type LinearCheck struct {
 	// it minus DirectDB.
 	ModelDB      float64 `json:"model_db"`
 	ModelErrorDB float64 `json:"model_error_db"`
+	// AlongDB is a direct solve on the direction of steepest change
+	// through the site's means at the same first-order deviation L as
+	// the extreme (every term at μᵢ + (L/|a|)·σᵢ·uᵢ, variation_quad.go),
+	// where the model takes the same value: ModelDB − AlongDB is the
+	// model's error along the direction it fits, DirectDB − AlongDB the
+	// part of the coupling across it (the curvature across u, which the
+	// model takes by its mean only, SecondOrder.Across).
+	AlongDB float64 `json:"along_db"`
 }
 
 // Linearity is how good the first-order process model is at the worst
@@ -36,9 +44,11 @@ type LinearCheck struct {
 type Linearity struct {
 	Checks []LinearCheck `json:"checks"`
 	// MaxErrorDB is the first-order model's largest error, MaxModelErrorDB
-	// that of the model used.
+	// that of the model used, MaxAlongErrorDB the latter's along the
+	// direction of steepest change (LinearCheck.AlongDB).
 	MaxErrorDB      float64 `json:"max_error_db"`
 	MaxModelErrorDB float64 `json:"max_model_error_db"`
+	MaxAlongErrorDB float64 `json:"max_along_error_db"`
 	// LimitDB is the smallest of the checks' limits: the model used errs
 	// beyond a check's own limit (its section's) is what the report warns
 	// about.
@@ -92,33 +102,55 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 		lin.LimitDB = math.Min(lin.LimitDB, limit)
 		var row procRow
 		ev.Proc.row(&row, r.Site.Pos)
-		params := c.Curve.Params()
-		e0, kappa, rho := ev.Proc.secondAt(r.Offset)
+		e0, kappa, rho := ev.Proc.secondAt(r.Offset, row.second)
+		// a, the first-order deviation's standard deviations per binding
+		// (|a| its norm): the direction of steepest change at the site.
+		nb := len(ev.Proc.Bind)
+		a, sd := make([]float64, nb), make([]float64, nb)
+		var na float64
+		for b := range a {
+			sd[b] = math.Sqrt(row.vars()[b])
+			a[b] = ev.termSens(b, r.Offset) * sd[b]
+			na += a[b] * a[b]
+		}
+		na = math.Sqrt(na)
+		solve := func(dp []float64, what string) (float64, error) {
+			v, err := directAt(ctx, c, ev.Proc.Bind, dp, r.Offset, &plain)
+			if err != nil {
+				return 0, fmt.Errorf("linearity check at site %q, %s: %w", r.Site.Name, what, err)
+			}
+			return v, nil
+		}
 		for _, z := range [2]float64{-LinearSigmas, LinearSigmas} {
-			s := c.Section.Perturbed(params[0], 0) // a copy
 			pred := c.Coupling(r.Offset)
 			var l float64 // the first-order deviation from the site's means
-			for b, bd := range ev.Proc.Bind {
+			dp := make([]float64, nb)
+			for b := range dp {
 				sens := ev.termSens(b, r.Offset)
 				dev := math.Copysign(row.extreme(b, LinearSigmas), z*sens)
-				dp := row.means()[b] + dev
-				pred += sens * dp
+				dp[b] = row.means()[b] + dev
+				pred += sens * dp[b]
 				l += sens * dev
-				for _, pk := range bd.Params {
-					s = s.Perturbed(params[pk], dp)
+			}
+			d, err := solve(dp, fmt.Sprintf("process terms at %+g sigma", z))
+			if err != nil {
+				return err
+			}
+			along := d
+			if na > 0 {
+				for b := range dp {
+					dp[b] = row.means()[b] + l/na*sd[b]*a[b]/na
+				}
+				if along, err = solve(dp, fmt.Sprintf("the steepest direction at %+g sigma", z)); err != nil {
+					return err
 				}
 			}
-			s.Length = c.Curve.Length // the sensitivities hold the coupled length fixed
-			sc, _, err := SolveAt(ctx, s, []float64{r.Offset, r.Offset + SpanStep}, &plain)
-			if err != nil {
-				return fmt.Errorf("linearity check at site %q, process terms at %+g sigma: %w", r.Site.Name, z, err)
-			}
-			d := sc.Coupling(r.Offset)
 			model := pred + e0 + (kappa-1)*l + rho*l*l
 			lin.Checks = append(lin.Checks, LinearCheck{Site: r.Site.Name, Section: c.Section.Name, LimitDB: limit, OffsetM: r.Offset, Sigmas: z,
-				LinearDB: pred, DirectDB: d, ErrorDB: pred - d, ModelDB: model, ModelErrorDB: model - d})
+				LinearDB: pred, DirectDB: d, ErrorDB: pred - d, ModelDB: model, ModelErrorDB: model - d, AlongDB: along})
 			lin.MaxErrorDB = math.Max(lin.MaxErrorDB, math.Abs(pred-d))
 			lin.MaxModelErrorDB = math.Max(lin.MaxModelErrorDB, math.Abs(model-d))
+			lin.MaxAlongErrorDB = math.Max(lin.MaxAlongErrorDB, math.Abs(model-along))
 			// The check furthest beyond its own limit names the warning.
 			if r := math.Abs(model-d) / limit; r > 1 && r > worstRatio {
 				worst, worstRatio = len(lin.Checks)-1, r
@@ -127,8 +159,8 @@ func (a *Analysis) CheckLinearity(ctx context.Context, set *Settings, n int) err
 	}
 	if worst >= 0 {
 		w := lin.Checks[worst]
-		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) of section %q errs by up to %.3f dB at the combined ±%g sigma extremes of its worst sites (above its %.3f dB): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
-			w.Section, math.Abs(w.ModelErrorDB), float64(LinearSigmas), w.LimitDB)
+		lin.Warning = fmt.Sprintf("the process model (first order with the second-order term along the steepest direction) of section %q errs by up to %.3f dB at the combined ±%g sigma extremes of its worst sites (above its %.3f dB), %.3f dB of it along the steepest direction and %.3f dB across it (the curvature across that direction, which the model takes by its mean only): the process terms are large enough that coupling, drift and yield near those extremes are approximate",
+			w.Section, math.Abs(w.ModelErrorDB), float64(LinearSigmas), w.LimitDB, math.Abs(w.ModelDB-w.AlongDB), math.Abs(w.DirectDB-w.AlongDB))
 	}
 	a.linearity = lin
 	return nil
@@ -141,9 +173,9 @@ func (l *Linearity) String() string {
 		return ""
 	}
 	type sec struct {
-		name                  string
-		sites                 int
-		model, first, limitDB float64
+		name                         string
+		sites                        int
+		model, along, first, limitDB float64
 	}
 	var secs []*sec
 	for _, c := range l.Checks {
@@ -155,6 +187,7 @@ func (l *Linearity) String() string {
 		s := secs[i]
 		s.sites++
 		s.model = math.Max(s.model, math.Abs(c.ModelErrorDB))
+		s.along = math.Max(s.along, math.Abs(c.ModelDB-c.AlongDB))
 		s.first = math.Max(s.first, math.Abs(c.ErrorDB))
 	}
 	var b strings.Builder
@@ -163,7 +196,7 @@ func (l *Linearity) String() string {
 		if i > 0 {
 			b.WriteString(";")
 		}
-		fmt.Fprintf(&b, " %q (%d sites) largest error %.4f dB with the second-order term (limit %.3f dB), %.4f dB first order", s.name, s.sites/2, s.model, s.limitDB, s.first)
+		fmt.Fprintf(&b, " %q (%d sites) largest error %.4f dB with the second-order term (limit %.3f dB; %.4f dB along the steepest direction), %.4f dB first order", s.name, s.sites/2, s.model, s.limitDB, s.along, s.first)
 	}
 	return b.String()
 }

@@ -25,11 +25,13 @@ type procCheck struct {
 // pcSite is the hot-loop form of a site with process terms: its
 // section's table and the value at the site of each of the section's
 // shape groups (mcTab), the first mcChunk in phi and the others, if any,
-// in more, in chunks of mcChunk padded with zeros.
+// in more, in chunks of mcChunk padded with zeros; second is the site's
+// own part of the second-order term (MeanTerm).
 type pcSite struct {
-	tab  *mcTab // nil when the site's section has no process terms
-	phi  [mcChunk]float64
-	more [][mcChunk]float64
+	tab    *mcTab // nil when the site's section has no process terms
+	phi    [mcChunk]float64
+	more   [][mcChunk]float64
+	second siteSecond
 }
 
 var _ registration.SiteChecker = (*procCheck)(nil)
@@ -62,6 +64,7 @@ func newProcCheck(a *Analysis) *procCheck {
 	}
 	more := make([][mcChunk]float64, n)
 	size := a.In.Process.Size
+	var row procRow
 	for k := range a.Sites {
 		r := &a.Sites[k]
 		mt := pc.tabs[r.Section]
@@ -69,6 +72,10 @@ func newProcCheck(a *Analysis) *procCheck {
 			continue
 		}
 		ps := pcSite{tab: mt}
+		if pc.ev[r.Section].Proc.second != nil {
+			pc.ev[r.Section].Proc.row(&row, r.Site.Pos)
+			ps.second = row.second
+		}
 		if mt.nx > 0 {
 			ps.more, more = more[:mt.nx:mt.nx], more[mt.nx:]
 		}
@@ -202,6 +209,10 @@ func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in ui
 	mt := ps.tab
 	dom, lo, inv, top := mt.domain, mt.lo, mt.inv, mt.n-1
 	second, win := mt.second, mt.window
+	// The site's own part of the second-order term: e₀ shifts its window,
+	// κ and ρ add to the row's.
+	ss := ps.second
+	win.spec -= ss.e0
 	rows, ph := mt.rows[:top+1], &ps.phi
 	flat := w.sec[mt.section].flat[:len(rows)]
 	off = off[:min(len(off), registration.MCGroup)] // slot p indexes a group's arrays unchecked
@@ -224,7 +235,7 @@ func (w *procCheckWorker) inSpecRun(ps *pcSite, off, nrm []float64, p int, in ui
 		// panel deviations' flat part plus the per-site parts'.
 		l := kf.at(f) + siteDev(v, nrm[p])
 		if second {
-			l = rw.q.deviation(f, l) // variation_quad_mc.go
+			l = rw.q.deviation(f, l, ss) // variation_quad_mc.go
 		}
 		in = in<<1 | win.bit(c+rw.sh.at(ph, f)+l)
 	}
@@ -247,7 +258,7 @@ func (w *procCheckWorker) inSpecAt(i int, off, nrm []float64) uint32 {
 			l := flat + siteDev(v, nrm[p])
 			if mt.second {
 				j := min(int(x), mt.n-1)
-				l = mt.rows[j].q.deviation(x-float64(j), l)
+				l = mt.rows[j].q.deviation(x-float64(j), l, ps.second) + ps.second.e0
 			}
 			ok = mt.window.bit(c+shape+l) == 1
 		} else {

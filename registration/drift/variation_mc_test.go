@@ -100,9 +100,10 @@ func testMCTab(t *testing.T, terms []process.Term, nb, groups int) {
 			c, shape, flat, v := w.at(0, ps, x)
 			m := c + shape + flat
 			ev.Proc.row(&row, a.Sites[k].Site.Pos)
-			// The row's cubic holds e₀ too, with a second-order term (0
-			// without).
-			e0, _, _ := ev.Proc.secondAt(off)
+			// The row's cubic holds the section's e₀ too, with a
+			// second-order term (0 without); the site's own part is
+			// InSpec's.
+			e0, _, _ := ev.Proc.secondAt(off, siteSecond{})
 			wm, wv := ev.Curve.Coupling(off)+e0, 0.0
 			for b, mu := range row.means() {
 				sb := ev.termSens(b, off)

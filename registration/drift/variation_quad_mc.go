@@ -34,11 +34,12 @@ func (mt *mcTab) fillSecond() {
 
 // deviation returns, at position f in the interval, the coupling's
 // deviation κ·L + ρ·L² from the row's cubic and shape part for a draw
-// whose first-order deviation is l: with the first-order draw and e₀ the
-// closed form's e₀ + L + (κ − 1)·L + ρ·L², written so that InSpec's loop
-// reads three products (small enough to be inlined into it).
-func (q *mcSecond) deviation(f, l float64) float64 {
-	return l * (q[0] + f*q[1] + (q[2]+f*q[3])*l)
+// whose first-order deviation is l, at a site whose own part is ss (its
+// κ and ρ added; its e₀ is the caller's): with the first-order draw and
+// e₀ the closed form's e₀ + L + (κ − 1)·L + ρ·L², written so that
+// InSpec's loop reads three products (small enough to be inlined into it).
+func (q *mcSecond) deviation(f, l float64, ss siteSecond) float64 {
+	return l * (q[0] + ss.kappa + f*q[1] + (q[2]+ss.rho+f*q[3])*l)
 }
 
 // inSpecSlowSecond is InSpec with the second-order term for site i on the panel of slot p at
@@ -58,6 +59,6 @@ func (w *procCheckWorker) slowSecond(p, i int, off, c, lin, v, n float64) float6
 	for b, wb := range w.sec[mt.section].w[p][:mt.nb] {
 		l += (r0[b] + f*(r1[b]-r0[b])) * wb
 	}
-	e0, kappa, rho := pr.secondAt(off)
+	e0, kappa, rho := pr.secondAt(off, w.pc.sites[i].second)
 	return c + lin + dev + e0 + (kappa-1)*l + rho*l*l
 }
