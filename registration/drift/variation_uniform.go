@@ -665,6 +665,79 @@ func (d *boxNormal) reach(k float64) float64 {
 	return k*d.sd0 + d.sumA
 }
 
+// tabulateWide fills pr.wideCum. The split of the uniform parts into
+// narrow and wide ones (boxNormal.set) depends on the offset alone, not
+// on the site: the sensitivities sᵢ(δ), the terms' variances σᵢ² and
+// half-widths wᵢ are the same at every site of the section, only the
+// means differ. Every box is narrow where the boxes' Σ aⱼ² ≤ boxNarrow·vₙ
+// (aⱼ = |sⱼ|·wⱼ, vₙ the normal part's variance; all prefixes of set's
+// sorted sum then pass too), that is where
+//
+//	g(δ) = Σᵢ sᵢ(δ)²·kᵢ ≤ 0,  kᵢ = wᵢ² − boxNarrow·(σᵢ² − wᵢ²/3) for a
+//	uniform part, −boxNarrow·σᵢ² otherwise;
+//
+// between two table rows sᵢ is linear in the weight f (Proc.rows), so g
+// is a quadratic in f whose largest value over [0, 1] is exact. An
+// interval counts as wide unless that value is below zero by a margin of
+// 1e-9 of its terms' size, far beyond the rounding by which set's own
+// sums could differ. boxCuts reads it to skip its scan where no box can
+// be wide (it would find none).
+func (pr *Proc) tabulateWide() {
+	var row procRow
+	pr.row(&row, panel.Vec{}) // the variances and half-widths: the same at every site
+	if row.boxes == 0 {
+		pr.wideCum = nil
+		return
+	}
+	va, ws := row.vars(), row.halfWidths()
+	k := make([]float64, len(va))
+	for b := range k {
+		k[b] = -boxNarrow * va[b]
+		if w := ws[b]; w > 0 {
+			k[b] = w*w - boxNarrow*(va[b]-w*w/3)
+		}
+	}
+	nb := len(pr.Bind)
+	n := max(1, pr.tabRows-1)
+	pr.wideCum = make([]int32, n+1)
+	for i := range n {
+		r0 := pr.tab[i*nb : i*nb+nb]
+		r1 := r0
+		if i+1 < pr.tabRows {
+			r1 = pr.tab[(i+1)*nb : (i+1)*nb+nb]
+		}
+		var g0, g1, g2, size float64 // g(f) = g0 + 2·g1·f + g2·f²
+		for b, kb := range k {
+			s0, ds := r0[b], r1[b]-r0[b]
+			g0 += kb * s0 * s0
+			g1 += kb * s0 * ds
+			g2 += kb * ds * ds
+			size += math.Abs(kb) * (math.Abs(s0) + math.Abs(ds)) * (math.Abs(s0) + math.Abs(ds))
+		}
+		top := math.Max(g0, g0+2*g1+g2)
+		if f := -g1 / g2; g2 < 0 && f > 0 && f < 1 {
+			top = math.Max(top, g0+g1*f)
+		}
+		wide := int32(0)
+		if !(top < -1e-9*size) {
+			wide = 1
+		}
+		pr.wideCum[i+1] = pr.wideCum[i] + wide
+	}
+}
+
+// mayBeWide reports whether a uniform part may be wide at some offset in
+// [a, b] (tabulateWide).
+func (pr *Proc) mayBeWide(a, b float64) bool {
+	if pr.wideCum == nil {
+		return false
+	}
+	i0, _ := pr.rowAt(a)
+	i1, _ := pr.rowAt(b)
+	i1 = min(i1+1, len(pr.wideCum)-1)
+	return pr.wideCum[i1] > pr.wideCum[i0]
+}
+
 // Sharing set between the sites of a section.
 //
 // X's distribution depends on the offset alone (tabulateWide): between
