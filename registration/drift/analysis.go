@@ -4,7 +4,10 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"runtime"
 	"sort"
+	"sync"
+	"sync/atomic"
 
 	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/panel/section"
@@ -225,12 +228,44 @@ func (a *Analysis) Evaluate(curves []*Curve) {
 			ev[i] = a.Evaluator(i)
 		}
 	}
-	for k := range a.Sites {
-		r := &a.Sites[k]
-		a.Yield.Sites[k].Allowed = curves[r.Section].Allowed
-		r.Eval = ev[r.Section].EvalSite(a.Yield.Rows[k], r.Site.Pos)
+	// The sites are independent (each writes only its own entries), so
+	// they are shared among GOMAXPROCS workers by blocks of evalBlock:
+	// the results do not depend on the split.
+	eval := func(lo, hi int) {
+		for k := lo; k < hi; k++ {
+			r := &a.Sites[k]
+			a.Yield.Sites[k].Allowed = curves[r.Section].Allowed
+			r.Eval = ev[r.Section].EvalSite(a.Yield.Rows[k], r.Site.Pos)
+		}
 	}
+	n := len(a.Sites)
+	workers := min(runtime.GOMAXPROCS(0), (n+evalBlock-1)/evalBlock)
+	if workers <= 1 {
+		eval(0, n)
+		return
+	}
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for {
+				lo := int(next.Add(evalBlock)) - evalBlock
+				if lo >= n {
+					return
+				}
+				eval(lo, min(lo+evalBlock, n))
+			}
+		}()
+	}
+	wg.Wait()
 }
+
+// evalBlock is the number of sites a worker of Evaluate takes at a time:
+// with process terms a few milliseconds of work, so that the workers
+// finish together, and a job of fewer sites is evaluated on one.
+const evalBlock = 256
 
 // Analyse prepares in under its own model, solves the curves its sites need
 // and evaluates every site.

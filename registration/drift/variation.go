@@ -169,6 +169,13 @@ type Proc struct {
 	// term (variation_quad.go); nil for a curve without one, which
 	// evaluates first order (e₀ = 0, κ = 1, ρ = 0).
 	second []float64
+	// wideCum[i] counts the table intervals below i where a uniform part
+	// may be wide (boxNormal's corners) at some offset (tabulateWide);
+	// nil without uniform parts.
+	wideCum []int32
+	// boxTab holds X's distribution per table interval where set can be
+	// shared between the sites (tabulateBoxes); nil where it cannot.
+	boxTab *boxTab
 	// means are the parts of the term that follow a site's means
 	// (MeanTerm), added to its procRow by row.
 	means []MeanTerm
@@ -369,20 +376,27 @@ func (e *Evaluator) termSens(b int, off float64) float64 {
 // on δ the coupling is m + √v·t + q·t², t standard normal
 // (variation_quad.go), of mean m + q and variance v + 2q².
 func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
-	m = e.Curve.Coupling(off)
 	r0, r1, i, f := e.Proc.rowsAt(off)
-	mus, va := r.means(), r.vars()
-	r0, r1, va = r0[:len(mus)], r1[:len(mus)], va[:len(mus)]
-	for b, mu := range mus {
-		s := r0[b] + f*(r1[b]-r0[b])
-		m += s * mu
-		v += s * s * va[b]
-	}
+	m, v = linearPart(e.Curve.Coupling(off), r0, r1, f, r)
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
 	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
 	return m + e0, kappa * kappa * v, rho * v
+}
+
+// linearPart returns m plus the row's Σ sᵢμᵢ and its variance Σ sᵢ²σᵢ²,
+// the sensitivities at weight f between table rows r0 and r1.
+func linearPart(m float64, r0, r1 []float64, f float64, r *procRow) (float64, float64) {
+	mus, va := r.means(), r.vars()
+	r0, r1, va = r0[:len(mus)], r1[:len(mus)], va[:len(mus)]
+	var v float64
+	for b, mu := range mus {
+		s := r0[b] + f*(r1[b]-r0[b])
+		m += s * mu
+		v += s * s * va[b]
+	}
+	return m, v
 }
 
 // atBoxes is at for a row with uniform parts (r.boxes > 0): it fills d
@@ -398,11 +412,28 @@ func (e *Evaluator) atBoxes(off float64, r *procRow, d *boxNormal) (m, v, q floa
 func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool) (m, v, q float64) {
 	m = e.Curve.Coupling(off)
 	r0, r1, i, f := e.Proc.rowsAt(off)
+	if series && e.Proc.boxTab.has(i) {
+		// The distribution from the section's table (tabulateBoxes).
+		m, v = linearPart(m, r0, r1, f, r)
+		e.Proc.boxTab.fill(i, f, d)
+	} else {
+		m, v = setBoxes(m, r0, r1, f, r, d, series)
+	}
+	if e.Proc.second == nil {
+		return m, v, 0
+	}
+	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
+	return m + e0, kappa * kappa * v, rho * v
+}
+
+// setBoxes returns m plus the row's Σ sᵢμᵢ and its variance Σ sᵢ²σᵢ² at
+// weight f between table rows r0 and r1, and sets d by boxNormal.setOf.
+func setBoxes(m float64, r0, r1 []float64, f float64, r *procRow, d *boxNormal, series bool) (float64, float64) {
 	mus, va, ws := r.means(), r.vars(), r.halfWidths()
 	r0, r1, va, ws = r0[:len(mus)], r1[:len(mus)], va[:len(mus)], ws[:len(mus)]
 	var buf [maxStackTerms]float64
 	a := buf[:0]
-	var vn float64
+	var v, vn float64
 	for b, mu := range mus {
 		s := r0[b] + f*(r1[b]-r0[b])
 		m += s * mu
@@ -419,11 +450,7 @@ func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool
 	} else {
 		*d = boxNormal{sd: 1, sd0: 1}
 	}
-	if e.Proc.second == nil {
-		return m, v, 0
-	}
-	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
-	return m + e0, kappa * kappa * v, rho * v
+	return m, v
 }
 
 // meanCoupling returns the conditional mean m(δ) + q(δ) of the coupling.
@@ -641,7 +668,7 @@ func (e *Evaluator) pInSpecProc(op registration.SiteProb, pr *procRow) float64 {
 		}
 		x0, g0l, g0h = x1, g1l, g1h
 	}
-	if pr.boxes > 0 {
+	if pr.boxes > 0 && e.Proc.mayBeWide(a, b) {
 		e.boxCuts(a, b, pr, lo, hi, add)
 	}
 	// Pieces of at most procPiece standard deviations of the offset's
@@ -772,6 +799,10 @@ func bindProc(m *process.Model, c *Curve, positions []panel.Vec) *Proc {
 	}
 	pr := &Proc{Model: m, Bind: bind, Domain: c.Allowed}
 	pr.tabulate(c)
+	pr.tabulateWide()
+	if boxTabPays(len(positions), pr.tabRows) {
+		pr.tabulateBoxes()
+	}
 	sp := c.Section.Spec
 	nom := c.Section.NominalOffset()
 	lo, hi := c.Curve.Range()

@@ -4,6 +4,7 @@ import (
 	"math"
 	"slices"
 
+	"github.com/regdrift/regdrift/panel"
 	"github.com/regdrift/regdrift/registration"
 )
 
@@ -72,11 +73,18 @@ import (
 // narrowest boxes go into the series while H² ≤ boxNarrow = 0.25, where
 // 14 terms reach 2.6e-17; the series stops at the first term whose bound
 // is below boxSeriesTol. Every corner then costs one Φ and one φ
-// whatever the narrow boxes. Measured against the Gil-Pelaez inversion
-// of the characteristic function over k = 1, 2, 3 and half-widths
-// 0.1σ to 10σ, and narrower boxes down to 0.001σ on both sides of
-// boxNarrow: 9.4e-16; against the Irwin–Hall CDF for up to six equal
-// boxes: 8.9e-16 (TestBoxNormalCDF, TestBoxNormalIrwinHall).
+// whatever the narrow boxes. With no wide box (the common case of narrow
+// panel parts beside a wider normal part) the sum is the series alone at
+// one corner, Φ(z) − φ(z)·Σ eₘ·He_{2m−1}(z): set converts it to powers of
+// z once (narrowPoly), so that each CDF is one Horner sweep, and one or
+// two boxes take their coefficients in closed form (pairSeries), their
+// bound on the coefficients themselves. Measured against the Gil-Pelaez
+// inversion of the characteristic function over k = 1, 2, 3 and
+// half-widths 0.1σ to 10σ, and narrower boxes down to 0.001σ on both
+// sides of boxNarrow: 4.1e-15 (a box of 0.001σ, whose series stops after
+// one term: the second, below boxSeriesTol, left out; 9.4e-16 elsewhere);
+// against the Irwin–Hall CDF for up to six equal boxes: 8.9e-16
+// (TestBoxNormalCDF, TestBoxNormalIrwinHall).
 //
 // More boxes. 2^k corners cost 2^k evaluations of Φ and of φ; beyond
 // maxBoxes wide boxes the narrowest of them are folded into the normal
@@ -90,20 +98,15 @@ import (
 // Cost (BenchmarkSiteUniform, one site of 12 process terms, two with
 // narrow uniform parts: P(in spec) and the worst drift; the least
 // cpu-µs/op of four runs at -cpu 1, alternating with the code before, on
-// a machine at load 4–5): 29 µs against 13 µs with the parts taken as
-// normal (54 µs before: the quantile of the worst drift started from
-// Cornish–Fisher and stopping after a small Newton step, one CDF per
-// offset instead of two or three; the Hermite orders and the series'
-// products held in registers; boxCuts splitting the boxes without the
-// series). Per site P(in spec) takes 43 windows of two CDFs each, every
-// one an erfc, an exp and the series' recurrence (about 85 ns), and a set
-// (about 75 ns); the normal path takes the erfc alone. In
-// BenchmarkMap10kVariation (cmd/regdrift, 10,000 sites, -benchtime 4x,
-// three runs each alternating, load 4–5) /uniform took 1.40 to 1.53
-// times /normal (1.56 to 1.58 s against 1.03 to 1.11 s; one outlier at
-// 2.1) against 1.58 to 1.93 before (1.88 to 2.03 s). Left: the
-// per-offset work (set) is the same for every site of a section at one
-// offset, but the sites' integration nodes differ, so it is not shared.
+// a machine at load 2–7): 15.5 µs against 10.0 µs with the parts taken
+// as normal (24.3 µs before, against 9.5: the series in powers of z, one
+// Horner sweep per CDF instead of the Hermite recurrence, about 70 ns a
+// CDF against 150; the pair's closed form; boxCuts's scan skipped where
+// no box can be wide, Proc.tabulateWide; X's distribution read from the
+// section's table, boxTab, in 27 ns instead of a set of 160 ns,
+// BenchmarkBoxTab and BenchmarkBoxNormal). Per site P(in spec) takes some
+// 60 windows of two CDFs each, every one an erfc, an exp and the sweep;
+// the normal path takes the erfc alone.
 
 // maxBoxes is the number of wide uniform parts boxNormal holds exactly
 // by its corners.
@@ -141,6 +144,10 @@ type boxNormal struct {
 	inv float64 // 1/Πⱼ 2aⱼ over the wide boxes
 	m   int
 	c   [boxSeries + 1]float64
+	// q holds, when every box is narrow (n = 0, m > 0), the series in the
+	// monomial basis (narrowPoly): Σₘ cₘ·G_{−2m}(y) = Φ(z) − φ(z)·z·Q(z²),
+	// Q(u) = Σₖ q[k]·uᵏ, k < m.
+	q [boxSeries]float64
 	// sd0 and sumA are the normal part before any folding and the sum of
 	// every half-width: the reach of the deviation (reach); sumA4 is the
 	// sum of every half-width's fourth power (cornishFisher).
@@ -211,6 +218,10 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 		return
 	}
 	if h2 > 0 {
+		if d.n == 0 && narrow-i <= 2 {
+			d.pairSeries(a[i:narrow], sc)
+			return
+		}
 		h2 *= d.sd0 * d.sd0 / vn
 		for b := h2; d.m < boxSeries && seriesBound[d.m+1]*b >= boxSeriesTol; b *= h2 {
 			d.m++
@@ -244,7 +255,151 @@ func (d *boxNormal) setOf(vn float64, a []float64, v float64, series bool) {
 			d.c[m] = cm
 		}
 	}
+	if d.n == 0 && d.m > 0 {
+		var e [boxSeries + 1]float64
+		s2, p := 1/(d.sd*d.sd), 1.0
+		for m := 1; m <= d.m; m++ {
+			p *= s2
+			e[m] = d.c[m] * p
+		}
+		d.narrowPoly(&e)
+	}
 }
+
+// pairSeries fills the series of one or two narrow boxes (half-widths w,
+// scaled by sc) and no wide one in closed form. In units of the normal
+// part, bⱼ = aⱼ/σ, the product-to-sum identity
+// sinh x·sinh y = [cosh(x + y) − cosh(x − y)]/2 (Abramowitz & Stegun
+// 4.5.25, cosh(x ± y) = cosh x·cosh y ± sinh x·sinh y) gives
+//
+//	S(b₁u)·S(b₂u) = [cosh(Au) − cosh(Bu)]/(2b₁b₂u²),  A = b₁ + b₂, B = b₁ − b₂,
+//
+// whose coefficient of u²ᵐ (cosh's series, 4.5.63) is
+// (A^{2m+2} − B^{2m+2})/(2b₁b₂·(2m + 2)!) = 2·Uₘ/(2m + 2)!, with
+// A² − B² = 4b₁b₂ taken out of the difference of powers:
+// Uₘ = Σ_{i ≤ m} A^{2i}·B^{2(m−i)} = A²·U_{m−1} + B^{2m}, U₀ = 1. Every
+// term is positive, so eₘ carries the rounding of its m steps (no
+// cancellation, whatever b₂/b₁), at a step per term instead of the
+// product of two series; one box is b₂ = 0 (Uₘ = (m + 1)·A^{2m}, the
+// coefficient A^{2m}/(2m + 1)! of S(Au)). Measured against the product
+// in TestPairSeries. It fills d.q alone: with no wide box nothing reads
+// d.c.
+func (d *boxNormal) pairSeries(w []float64, sc float64) {
+	r := sc / d.sd
+	b1, b2 := w[0]*r, 0.0
+	if len(w) == 2 {
+		b2 = w[1] * r
+	}
+	var e [boxSeries + 1]float64
+	d.m = pairCoeffs(b1, b2, &e)
+	d.narrowPoly(&e)
+}
+
+// cramerBound[m] is 0.43·√((2m−1)!), the bound of |He_{2m−1}(z)|·φ(z)
+// by Cramér's inequality (see boxNormal.set).
+var cramerBound = func() (r [boxSeries + 1]float64) {
+	f := 1.0 // (2m − 1)!
+	for m := 1; m <= boxSeries; m++ {
+		if m > 1 {
+			f *= float64((2*m - 2) * (2*m - 1))
+		}
+		r[m] = 0.43 * math.Sqrt(f)
+	}
+	return r
+}()
+
+// pairCoeffs fills e with the coefficients of S(b₁u)·S(b₂u) in u²ᵐ
+// (pairSeries) and returns the terms to keep beyond the first: up to the
+// first whose bound 0.43·√((2m−1)!)·eₘ (Cramér's inequality, as set's
+// rule) is below boxSeriesTol, at most boxSeries. The bound is taken on
+// the coefficient itself rather than on set's majorant (H²/6)ᵐ/m!, which
+// for two boxes of 0.3σ is 2e5 times e₁₀: the series stops two terms
+// sooner, and what it leaves out is still below boxSeriesTol.
+func pairCoeffs(b1, b2 float64, e *[boxSeries + 1]float64) int {
+	return pairCoeffsTo(b1, b2, boxSeries, true, e)
+}
+
+// pairCoeffsTo is pairCoeffs up to m terms; without stop, exactly m.
+func pairCoeffsTo(b1, b2 float64, m int, stop bool, e *[boxSeries + 1]float64) int {
+	A2, B2 := (b1+b2)*(b1+b2), (b1-b2)*(b1-b2)
+	e[0] = 1
+	u, bp := 1.0, 1.0
+	for k := 1; k <= m; k++ {
+		bp *= B2
+		u = A2*u + bp
+		e[k] = 2 * u * invFact2[k]
+		if stop && cramerBound[k]*e[k] < boxSeriesTol {
+			return k - 1
+		}
+	}
+	return m
+}
+
+// invFact2[m] is 1/(2m + 2)!.
+var invFact2 = func() (r [boxSeries + 1]float64) {
+	f := 2.0
+	r[0] = 1 / f
+	for m := 1; m <= boxSeries; m++ {
+		f *= float64((2*m + 1) * (2*m + 2))
+		r[m] = 1 / f
+	}
+	return r
+}()
+
+// narrowPoly fills d.q from the series' coefficients eₘ = cₘ/σ²ᵐ when
+// every box is narrow (d.n = 0, d.m > 0). The corner sum is then the
+// series alone, at one corner y = x:
+//
+//	F(x) = Φ(z) − φ(z)·Σₘ eₘ·He_{2m−1}(z),  eₘ = cₘ/σ²ᵐ, z = x/σ,
+//
+// (G_{−2m} of the notes above), and Σₘ eₘ·He_{2m−1}(z) = z·Q(z²) with
+// qₖ = Σ_{m>k} eₘ·[z^{2k+1}]He_{2m−1}, the coefficients of the Hermite
+// polynomials in powers of z (Abramowitz & Stegun 22.3.11; hermOdd): one
+// Horner sweep of m − 1 steps in z² per CDF instead of the 2m-step
+// Hermite recurrence, the conversion paid once per set for the two or
+// more CDFs read from it. Rounding: the monomial terms of eₘ·He_{2m−1}
+// cancel by at most the ratio of Σ|coefficients|·|z|ᵖ to |He_{2m−1}(z)|,
+// and the eₘ fall as (H²/6)ᵐ/m!, so the terms that cancel much are the
+// ones of size 1e-14 and below; measured against the recurrence in
+// TestBoxNormalNarrowPoly.
+func (d *boxNormal) narrowPoly(e *[boxSeries + 1]float64) {
+	// By the term m, the m sums it adds to independent of each other (in
+	// a local array: through d each step reloaded d).
+	var q [boxSeries]float64
+	for m := 1; m <= d.m; m++ {
+		em := e[m]
+		qs := q[:m]
+		for k, h := range hermOdd[m][:m] {
+			qs[k] += em * h
+		}
+	}
+	d.q = q
+}
+
+// hermOdd[m][k] is the coefficient of z^{2k+1} in He_{2m−1}(z):
+// (−1)ⁱ·n!/(i!·(n − 2i)!·2ⁱ), n = 2m − 1, i = m − 1 − k (Abramowitz &
+// Stegun 22.3.11).
+var hermOdd = func() (h [boxSeries + 1][boxSeries]float64) {
+	for m := 1; m <= boxSeries; m++ {
+		n := 2*m - 1
+		for k := range m {
+			i := m - 1 - k
+			p := 2*k + 1
+			c := 1.0 // n!/(i!·p!·2ⁱ), built as a product of ratios
+			for j := p + 1; j <= n; j++ {
+				c *= float64(j)
+			}
+			for j := 1; j <= i; j++ {
+				c /= float64(2 * j)
+			}
+			if i%2 == 1 {
+				c = -c
+			}
+			h[m][k] = c
+		}
+	}
+	return h
+}()
 
 // seriesBound[m] is 0.43·√((2m−1)!)/(6ᵐ·m!), the bound of the series'
 // term m per H²ᵐ (see boxNormal.set).
@@ -295,9 +450,12 @@ func (d *boxNormal) cdf(x float64) float64 {
 // below returns P(X ≤ x) and the density there by the corner sum, for
 // x ≤ 0.
 func (d *boxNormal) below(x float64) (p, dens float64) {
-	if d.n == 0 && d.m == 0 {
+	if d.n == 0 {
 		z := x / d.sd
-		return normCDF(z), math.Exp(-z*z/2) / (math.Sqrt(2*math.Pi) * d.sd)
+		if d.m == 0 {
+			return normCDF(z), math.Exp(-z*z/2) / (math.Sqrt(2*math.Pi) * d.sd)
+		}
+		return d.narrowBelow(z)
 	}
 	for c := range 1 << d.n {
 		y, sign := x, 1.0
@@ -313,9 +471,13 @@ func (d *boxNormal) below(x float64) (p, dens float64) {
 		p += sign * f
 		dens += sign * g
 	}
-	// Clamped by comparisons: math.Min and math.Max are calls, for the
-	// NaN and signed zeros that do not arise here.
-	p, dens = p*d.inv, dens*d.inv
+	return clampCDF(p*d.inv, dens*d.inv)
+}
+
+// clampCDF returns p within [0, 1] and dens at least 0, by comparisons:
+// math.Min and math.Max are calls, for the NaN and signed zeros that do
+// not arise here.
+func clampCDF(p, dens float64) (float64, float64) {
 	if p < 0 {
 		p = 0
 	} else if p > 1 {
@@ -325,6 +487,24 @@ func (d *boxNormal) below(x float64) (p, dens float64) {
 		dens = 0
 	}
 	return p, dens
+}
+
+// narrowBelow is below when every box is narrow (narrowPoly), at
+// z = x/σ: F = Φ(z) − φ(z)·z·Q(z²) and its derivative in x,
+// (φ(z)/σ)·[1 + (z² − 1)·Q(z²) − 2z²·Q′(z²)] (φ′(z) = −z·φ(z)), Q and Q′
+// by one Horner sweep.
+func (d *boxNormal) narrowBelow(z float64) (p, dens float64) {
+	if z < -boxUnder {
+		return 0, 0
+	}
+	P, ph := registration.NormalCDF(z), math.Exp(-z*z/2)/math.Sqrt(2*math.Pi)
+	u := z * z
+	var q, dq float64
+	for k := d.m - 1; k >= 0; k-- {
+		dq = dq*u + q
+		q = q*u + d.q[k]
+	}
+	return clampCDF(P-ph*z*q, ph/d.sd*(1+(u-1)*q-2*u*dq))
 }
 
 // corner returns Σₘ cₘ·G_{n−2m}(y) and Σₘ cₘ·G_{n−2m−1}(y), n the wide
@@ -483,4 +663,309 @@ func (d *boxNormal) reach(k float64) float64 {
 		return k
 	}
 	return k*d.sd0 + d.sumA
+}
+
+// tabulateWide fills pr.wideCum. The split of the uniform parts into
+// narrow and wide ones (boxNormal.set) depends on the offset alone, not
+// on the site: the sensitivities sᵢ(δ), the terms' variances σᵢ² and
+// half-widths wᵢ are the same at every site of the section, only the
+// means differ. Every box is narrow where the boxes' Σ aⱼ² ≤ boxNarrow·vₙ
+// (aⱼ = |sⱼ|·wⱼ, vₙ the normal part's variance; all prefixes of set's
+// sorted sum then pass too), that is where
+//
+//	g(δ) = Σᵢ sᵢ(δ)²·kᵢ ≤ 0,  kᵢ = wᵢ² − boxNarrow·(σᵢ² − wᵢ²/3) for a
+//	uniform part, −boxNarrow·σᵢ² otherwise;
+//
+// between two table rows sᵢ is linear in the weight f (Proc.rows), so g
+// is a quadratic in f whose largest value over [0, 1] is exact. An
+// interval counts as wide unless that value is below zero by a margin of
+// 1e-9 of its terms' size, far beyond the rounding by which set's own
+// sums could differ. boxCuts reads it to skip its scan where no box can
+// be wide (it would find none).
+func (pr *Proc) tabulateWide() {
+	var row procRow
+	pr.row(&row, panel.Vec{}) // the variances and half-widths: the same at every site
+	if row.boxes == 0 {
+		pr.wideCum = nil
+		return
+	}
+	va, ws := row.vars(), row.halfWidths()
+	k := make([]float64, len(va))
+	for b := range k {
+		k[b] = -boxNarrow * va[b]
+		if w := ws[b]; w > 0 {
+			k[b] = w*w - boxNarrow*(va[b]-w*w/3)
+		}
+	}
+	nb := len(pr.Bind)
+	n := max(1, pr.tabRows-1)
+	pr.wideCum = make([]int32, n+1)
+	for i := range n {
+		r0 := pr.tab[i*nb : i*nb+nb]
+		r1 := r0
+		if i+1 < pr.tabRows {
+			r1 = pr.tab[(i+1)*nb : (i+1)*nb+nb]
+		}
+		var g0, g1, g2, size float64 // g(f) = g0 + 2·g1·f + g2·f²
+		for b, kb := range k {
+			s0, ds := r0[b], r1[b]-r0[b]
+			g0 += kb * s0 * s0
+			g1 += kb * s0 * ds
+			g2 += kb * ds * ds
+			size += math.Abs(kb) * (math.Abs(s0) + math.Abs(ds)) * (math.Abs(s0) + math.Abs(ds))
+		}
+		top := math.Max(g0, g0+2*g1+g2)
+		if f := -g1 / g2; g2 < 0 && f > 0 && f < 1 {
+			top = math.Max(top, g0+g1*f)
+		}
+		wide := int32(0)
+		if !(top < -1e-9*size) {
+			wide = 1
+		}
+		pr.wideCum[i+1] = pr.wideCum[i] + wide
+	}
+}
+
+// mayBeWide reports whether a uniform part may be wide at some offset in
+// [a, b] (tabulateWide).
+func (pr *Proc) mayBeWide(a, b float64) bool {
+	if pr.wideCum == nil {
+		return false
+	}
+	i0, _ := pr.rowAt(a)
+	i1, _ := pr.rowAt(b)
+	i1 = min(i1+1, len(pr.wideCum)-1)
+	return pr.wideCum[i1] > pr.wideCum[i0]
+}
+
+// Sharing set between the sites of a section.
+//
+// X's distribution depends on the offset alone (tabulateWide): between
+// two table rows on the row weight f ∈ [0, 1], through the sensitivities
+// sᵢ(f), linear in f. Where the uniform parts are one or two, narrow, and
+// of one sign of sᵢ over the interval, everything set returns there (the
+// normal part σ, the reach Σ aⱼ, Σ aⱼ⁴ and the series in powers of z,
+// qₖ) is an analytic function of f, and boxTab holds each as the
+// polynomial of degree boxTabDeg through its values at the Chebyshev
+// points of [0, 1] (built when the section's sites are many enough to
+// pay for it, boxTabPays): a site then reads its distribution at a node by a
+// few Horner sweeps in f instead of set. The series is kept to one term
+// more than set takes at any of the points (its smooth part: a term that
+// set would leave out, below boxSeriesTol, is kept). Interpolation at
+// Chebyshev points errs by at most max|g⁽ⁿ⁾|/(2^{2n−1}·n!) over [0, 1],
+// n = boxTabDeg + 1 (R. L. Burden, J. D. Faires, Numerical Analysis,
+// the interpolation error theorem, with the Chebyshev points' bound on
+// Π(f − fⱼ)); over one table interval the sensitivities move by a
+// percent or less, so at degree 3 the error is at rounding (degree 1
+// errs by 5e-10 in the reach, degree 2 by 1.6e-14), and what differs
+// from set is the terms below boxSeriesTol that set leaves out: 4.9e-15
+// in the CDF, measured in TestBoxTab.
+
+// boxTabPays reports whether the table pays for the sites: it costs
+// two sets per point and interval, a site some 80 (60 windows of
+// P(in spec), 17 offsets of the worst drift).
+func boxTabPays(sites, rows int) bool {
+	return 80*sites > 2*(boxTabDeg+1)*max(1, rows-1)
+}
+
+// boxTabDeg is the degree of boxTab's polynomials in f (boxTab.fill's
+// Horner sweep is written out for it).
+const boxTabDeg = 3
+
+// boxTabFields is the number of fields before the series: σ, Σ aⱼ, Σ aⱼ⁴.
+const boxTabFields = 3
+
+// boxTab is set's result tabulated per table interval (see above).
+type boxTab struct {
+	m      []int8 // per interval: the series' terms, −1 where not tabulated
+	stride int    // floats per interval
+	coef   []float64
+}
+
+// boxTabPoints are the Chebyshev points of [−1, 1] (t = 2f − 1), and
+// boxTabInv the inverse of their Vandermonde matrix: the coefficients of
+// the interpolating polynomial in powers of t are boxTabInv times the
+// values.
+var boxTabPoints, boxTabInv = func() (p [boxTabDeg + 1]float64, inv [boxTabDeg + 1][boxTabDeg + 1]float64) {
+	const n = boxTabDeg + 1
+	for j := range n {
+		p[j] = -math.Cos(math.Pi * (float64(j) + 0.5) / n)
+	}
+	// Gauss–Jordan on [V | I], V[j][k] = p[j]ᵏ, with partial pivoting
+	// (in t = 2f − 1 ∈ [−1, 1], where the powers are well conditioned).
+	var a [n][2 * n]float64
+	for j := range n {
+		x := 1.0
+		for k := range n {
+			a[j][k] = x
+			x *= p[j]
+		}
+		a[j][n+j] = 1
+	}
+	for c := range n {
+		piv := c
+		for r := c + 1; r < n; r++ {
+			if math.Abs(a[r][c]) > math.Abs(a[piv][c]) {
+				piv = r
+			}
+		}
+		a[c], a[piv] = a[piv], a[c]
+		for k := range 2 * n {
+			if k != c {
+				a[c][k] /= a[c][c]
+			}
+		}
+		a[c][c] = 1
+		for r := range n {
+			if r != c && a[r][c] != 0 {
+				f := a[r][c]
+				for k := range 2 * n {
+					a[r][k] -= f * a[c][k]
+				}
+			}
+		}
+	}
+	for j := range n {
+		for k := range n {
+			inv[j][k] = a[j][n+k]
+		}
+	}
+	return p, inv
+}()
+
+// tabulateBoxes fills pr.boxTab when the section has one or two
+// uniform parts; nil otherwise, or where no interval qualifies.
+func (pr *Proc) tabulateBoxes() {
+	pr.boxTab = nil
+	var row procRow
+	pr.row(&row, panel.Vec{})
+	if row.boxes == 0 || row.boxes > 2 {
+		return
+	}
+	va, ws := row.vars(), row.halfWidths()
+	nb := len(pr.Bind)
+	n := max(1, pr.tabRows-1)
+	const np = boxTabDeg + 1
+	type node struct {
+		d  boxNormal
+		b  [2]float64
+		nb int
+	}
+	var nodes [np]node
+	// First pass: the intervals that qualify and the most terms.
+	ms := make([]int8, n)
+	most := 0
+	at := func(i int, f float64, nd *node) bool {
+		r0 := pr.tab[i*nb : i*nb+nb]
+		r1 := r0
+		if i+1 < pr.tabRows {
+			r1 = pr.tab[(i+1)*nb : (i+1)*nb+nb]
+		}
+		var a [2]float64
+		var v, vn float64
+		k := 0
+		for b := range nb {
+			s := r0[b] + f*(r1[b]-r0[b])
+			v += s * s * va[b]
+			if w := ws[b]; w > 0 {
+				if r0[b]*r1[b] <= 0 { // a sign change, or a box that vanishes
+					return false
+				}
+				vn += s * s * (va[b] - w*w/3)
+				a[k] = math.Abs(s) * w
+				k++
+			} else {
+				vn += s * s * va[b]
+			}
+		}
+		if !(v > 0) {
+			return false
+		}
+		aa := a
+		nd.d.set(vn, aa[:k], v)
+		if nd.d.n != 0 || nd.d.m == 0 {
+			return false
+		}
+		sc := 1 / math.Sqrt(v)
+		r := sc / nd.d.sd
+		nd.nb = k
+		nd.b = [2]float64{}
+		for j := range k {
+			nd.b[j] = aa[j] * r
+		}
+		return true
+	}
+	for i := range n {
+		ms[i] = -1
+		ok := true
+		m := 0
+		for j := range np {
+			if !at(i, (1+boxTabPoints[j])/2, &nodes[j]) {
+				ok = false
+				break
+			}
+			m = max(m, nodes[j].d.m)
+		}
+		if ok {
+			// One term more than set takes at any point: between the
+			// points set may keep one more.
+			m = min(m+1, boxSeries)
+			ms[i] = int8(m)
+			most = max(most, m)
+		}
+	}
+	if most == 0 {
+		return
+	}
+	t := &boxTab{m: ms, stride: (boxTabFields + most) * np}
+	t.coef = make([]float64, n*t.stride)
+	for i := range n {
+		m := int(ms[i])
+		if m < 0 {
+			continue
+		}
+		var vals [boxTabFields + boxSeries][np]float64
+		for j := range np {
+			nd := &nodes[j]
+			at(i, (1+boxTabPoints[j])/2, nd)
+			var e [boxSeries + 1]float64
+			pairCoeffsTo(nd.b[0], nd.b[1], m, false, &e)
+			nd.d.m = m
+			nd.d.narrowPoly(&e)
+			vals[0][j], vals[1][j], vals[2][j] = nd.d.sd, nd.d.sumA, nd.d.sumA4
+			for k := range m {
+				vals[boxTabFields+k][j] = nd.d.q[k]
+			}
+		}
+		c := t.coef[i*t.stride : (i+1)*t.stride]
+		for fld := range boxTabFields + m {
+			for p := range np {
+				var s float64
+				for j := range np {
+					s += boxTabInv[p][j] * vals[fld][j]
+				}
+				c[fld*np+p] = s
+			}
+		}
+	}
+	pr.boxTab = t
+}
+
+// has reports whether interval i is tabulated.
+func (t *boxTab) has(i int) bool { return t != nil && t.m[i] >= 0 }
+
+// fill sets d to X's distribution at weight f of interval i (has(i)).
+func (t *boxTab) fill(i int, f float64, d *boxNormal) {
+	const np = boxTabDeg + 1
+	m := int(t.m[i])
+	c := t.coef[i*t.stride : i*t.stride+(boxTabFields+m)*np]
+	x := 2*f - 1
+	var y [boxTabFields + boxSeries]float64
+	for k := range boxTabFields + m {
+		p := c[k*np : k*np+np]
+		y[k] = ((p[3]*x+p[2])*x+p[1])*x + p[0] // boxTabDeg = 3
+	}
+	d.n, d.inv, d.m, d.c[0] = 0, 1, m, 1
+	d.sd, d.sd0, d.sumA, d.sumA4 = y[0], y[0], y[1], y[2]
+	copy(d.q[:m], y[boxTabFields:])
 }

@@ -219,6 +219,129 @@ func TestBoxNormalFold(t *testing.T) {
 	}
 }
 
+// narrowPolyErr is the measured largest difference between
+// boxNormal.narrowBelow (the series in monomials, one Horner sweep) and
+// the Hermite recurrence of boxNormal.corner it replaces, over
+// TestBoxNormalNarrowPoly's cases: 5.6e-17 in the CDF and 2.2e-16 in the
+// density, rounding of sums of order 1. The bound is ten times the larger:
+// another platform's exp and erfc, and the order of the additions, move
+// the last bit or two, while a wrong coefficient of a Hermite polynomial
+// or a term left out errs by far more (for one box of 0.3σ the term of
+// He₃ alone, e₂ = 0.3⁴/5! = 6.8e-5, times 3z at z = 1, is 2e-4).
+const (
+	narrowPolyErr     = 2.2e-16
+	narrowPolyAllowed = 10 * narrowPolyErr
+)
+
+// TestBoxNormalNarrowPoly checks the CDF and density of a normal part
+// plus narrow boxes taken in the monomial basis (narrowPoly) against the
+// Hermite recurrence (corner at the one corner of no wide box), over
+// one to four boxes from 0.001σ to the series' bound Σ(aⱼ/σ)² = boxNarrow,
+// at x from −boxFar to 0 (below's domain); and that the coefficients are
+// those of the Hermite polynomials (Abramowitz & Stegun 22.3.11: He₃ =
+// z³ − 3z, He₅ = z⁵ − 10z³ + 15z, He₇ = z⁷ − 21z⁵ + 105z³ − 105z).
+func TestBoxNormalNarrowPoly(t *testing.T) {
+	for m, want := range map[int][]float64{2: {-3, 1}, 3: {15, -10, 1}, 4: {-105, 105, -21, 1}} {
+		for k, w := range want {
+			if hermOdd[m][k] != w {
+				t.Errorf("He_%d: coefficient of z^%d %g, want %g", 2*m-1, 2*k+1, hermOdd[m][k], w)
+			}
+		}
+	}
+	cases := [][]float64{{0.001}, {0.05}, {0.3}, {0.49}, {0.05, 0.05}, {0.2, 0.3}, {0.35, 0.35},
+		{0.01, 0.02, 0.05}, {0.2, 0.2, 0.2}, {0.1, 0.15, 0.2, 0.25}, {0.25, 0.25, 0.25, 0.25}}
+	var worstP, worstD float64
+	var at string
+	for _, a := range cases {
+		v := 1.0
+		for _, w := range a {
+			v += w * w / 3
+		}
+		var d boxNormal
+		d.set(1, append([]float64(nil), a...), v)
+		if d.n != 0 || d.m == 0 {
+			t.Fatalf("a = %v σ: %d wide boxes, %d series terms; want the series alone", a, d.n, d.m)
+		}
+		// The recurrence reads the series' coefficients in the units of
+		// √v, which the closed form of one or two boxes leaves unset.
+		ref := d
+		sc := 1 / math.Sqrt(v)
+		var scaled []float64
+		for _, w := range a {
+			scaled = append(scaled, w*sc)
+		}
+		copy(ref.c[:], seriesProduct(scaled, d.m))
+		for i := 0; i <= 172; i++ {
+			x := -boxFar + 0.05*float64(i)
+			p, dens := d.below(x)
+			f, g := ref.corner(x) // one corner, d.inv = 1
+			f, g = math.Min(1, math.Max(0, f)), math.Max(0, g)
+			if e := math.Abs(p - f); e > worstP {
+				worstP, at = e, fmt.Sprintf("a = %v σ at x = %.3g", a, x)
+			}
+			worstD = math.Max(worstD, math.Abs(dens-g))
+			if math.Abs(p-f) > narrowPolyAllowed || math.Abs(dens-g) > narrowPolyAllowed {
+				t.Errorf("a = %v σ at x = %.3g: CDF %.17g, recurrence %.17g; density %.17g, recurrence %.17g", a, x, p, f, dens, g)
+			}
+		}
+	}
+	t.Logf("worst difference from the recurrence: CDF %.2g (%s), density %.2g", worstP, at, worstD)
+}
+
+// pairSeriesErr is the largest relative difference measured between the
+// closed form of pairSeries and the product of the two boxes' sinh series
+// over TestPairSeries's cases: 1.6e-15 (at the ninth term and beyond),
+// the rounding of a dozen positive steps and of the product multiplied
+// out here from math.Pow and factorials. The bound is ten times that, for other orders of
+// the rounding; a wrong factorial or power errs by a factor of order one.
+const (
+	pairSeriesErr     = 1.6e-15
+	pairSeriesAllowed = 10 * pairSeriesErr
+)
+
+// TestPairSeries checks the coefficients of one or two narrow boxes in
+// closed form (pairSeries) against the product of their series
+// sinh(x)/x = Σ x²ᵐ/(2m + 1)! (Abramowitz & Stegun 4.5.62) multiplied
+// out here, relative to each coefficient: equal boxes, unequal ones, one
+// far narrower than the other (where A^{2m+2} − B^{2m+2} would cancel)
+// and one box alone.
+func TestPairSeries(t *testing.T) {
+	var worst float64
+	for _, b := range [][2]float64{{0.3, 0.28}, {0.35, 0.35}, {0.2, 0.1}, {0.3, 0.001}, {0.01, 0.02}, {0.49, 0}, {0.05, 0}} {
+		var e [boxSeries + 1]float64
+		n := pairCoeffs(b[0], b[1], &e)
+		want := seriesProduct(b[:], boxSeries)
+		for m := 0; m <= min(n+1, boxSeries); m++ { // and the first term left out
+			if want[m] == 0 {
+				continue
+			}
+			d := math.Abs(e[m]-want[m]) / want[m]
+			worst = math.Max(worst, d)
+			if d > pairSeriesAllowed {
+				t.Errorf("b = %v σ: e[%d] = %.17g, the product of the series %.17g", b, m, e[m], want[m])
+			}
+		}
+	}
+	t.Logf("worst relative difference %.2g", worst)
+}
+
+// seriesProduct returns the coefficients of u⁰ … u²ᵐ of Πⱼ sinh(aⱼu)/(aⱼu)
+// (Abramowitz & Stegun 4.5.62), multiplied out term by term.
+func seriesProduct(a []float64, m int) []float64 {
+	c := make([]float64, m+1)
+	c[0] = 1
+	for _, w := range a {
+		next := make([]float64, m+1)
+		for i := range c {
+			for j := 0; i+j <= m; j++ {
+				next[i+j] += c[i] * math.Pow(w, float64(2*j)) / factorial(2*j+1)
+			}
+		}
+		c = next
+	}
+	return c
+}
+
 // TestBoxNormalQuantile: the 3σ point of a uniform alone is (2Φ(3) − 1)
 // of its half-width, of a normal part alone 3σ; for a mixture the CDF
 // there is Φ(3) (Abramowitz & Stegun 26.2.29).
@@ -487,5 +610,214 @@ func TestUniformQuadrature(t *testing.T) {
 	t.Logf("P %.12f, midpoint rule %.12f", got, want)
 	if math.Abs(got-want) > 1e-9 {
 		t.Errorf("P = %.12f, midpoint rule %.12f", got, want)
+	}
+}
+
+// TestMayBeWide: wherever boxNormal.set splits off a wide box (corners)
+// at some offset of a site, Proc.mayBeWide says a box may be wide there,
+// so boxCuts never skips a scan that would find a kink; and it tells the
+// cases apart: a box narrow against a normal term everywhere, wide
+// everywhere, and one whose split changes across the offsets (a uniform
+// width on L3 beside a normal thickness of the core C2, scaled so that
+// within the offsets the box crosses the series' bound boxNarrow).
+func TestMayBeWide(t *testing.T) {
+	const w = 0.4 * mil
+	s := namedPair("maywide", section.Spec{Coupling: -3, Tolerance: 1})
+	box := registration.Term{Spread: w, Dist: registration.Uniform}
+	at := []panel.Vec{{}, {X: 3 * inch, Y: -2 * inch}}
+	model := func(sd4 float64) *process.Model {
+		return &process.Model{Size: panel.Vec{X: 18 * inch, Y: 24 * inch}, Terms: []process.Term{
+			{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: box, Shape: process.Shape{Kind: process.Tilt, Amplitude: 0.1 * mil}},
+			{Name: "t2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, sd4)}}}
+	}
+	ev := procEvaluator(t, s, &registration.Model{}, model(w), at)
+	// The box's a² = boxNarrow·vₙ where |s₃|·w = ½·|s₂|·sd4: sd4 = edge
+	// puts that at the geometric middle of the ratio's range.
+	lo, hi := ev.Curve.Curve.Range()
+	rmin, rmax := math.Inf(1), 0.0
+	for i := 0; i <= 400; i++ {
+		off := lo + (hi-lo)*float64(i)/400
+		r := math.Abs(ev.termSens(0, off)) / math.Abs(ev.termSens(1, off))
+		rmin, rmax = math.Min(rmin, r), math.Max(rmax, r)
+	}
+	if !(rmax > 1.05*rmin) {
+		t.Fatalf("the sensitivities' ratio spans %g to %g: the split does not change across the offsets", rmin, rmax)
+	}
+	edge := 2 * w * math.Sqrt(rmin*rmax)
+	for _, tt := range []struct {
+		name      string
+		sd4       float64
+		narrow    bool // some offset with every box narrow
+		wide      bool // some offset with a wide box
+		skipsSome bool // mayBeWide false somewhere
+	}{
+		{"narrow", 20 * edge, true, false, true},
+		{"wide", edge / 20, false, true, false},
+		{"mixed", edge, true, true, true},
+	} {
+		t.Run(tt.name, func(t *testing.T) {
+			ev := procEvaluator(t, s, &registration.Model{}, model(tt.sd4), at)
+			lo, hi := ev.Curve.Curve.Range()
+			var narrow, wide, skips bool
+			for _, p := range at {
+				var row procRow
+				ev.Proc.row(&row, p)
+				for i := 0; i <= 4000; i++ {
+					off := lo + (hi-lo)*float64(i)/4000
+					var d boxNormal
+					ev.atBoxes(off, &row, &d)
+					may := ev.Proc.mayBeWide(off, off)
+					if d.n > 0 && !may {
+						t.Fatalf("at %.4f mil: %d wide boxes, but mayBeWide is false", off/mil, d.n)
+					}
+					narrow, wide, skips = narrow || d.n == 0, wide || d.n > 0, skips || !may
+				}
+			}
+			if narrow != tt.narrow || wide != tt.wide || skips != tt.skipsSome {
+				t.Errorf("narrow somewhere %v, wide somewhere %v, skipped somewhere %v; want %v, %v, %v", narrow, wide, skips, tt.narrow, tt.wide, tt.skipsSome)
+			}
+		})
+	}
+}
+
+// BenchmarkBoxNormal times the per-offset parts of the closed form with
+// two narrow uniform parts, as at the sites of BenchmarkSiteUniform (the
+// series of about ten terms): set, and one CDF read from it.
+func BenchmarkBoxNormal(b *testing.B) {
+	a := [2]float64{0.3, 0.28}
+	v := 1 + (a[0]*a[0]+a[1]*a[1])/3
+	b.Run("set", func(b *testing.B) {
+		b.ReportAllocs()
+		var d boxNormal
+		for b.Loop() {
+			w := a
+			d.set(1, w[:], v)
+		}
+		if d.n != 0 || d.m < 8 {
+			b.Fatalf("%d wide boxes, %d series terms: not the case timed", d.n, d.m)
+		}
+	})
+	b.Run("cdf", func(b *testing.B) {
+		b.ReportAllocs()
+		var d boxNormal
+		w := a
+		d.set(1, w[:], v)
+		x, sink := -1.3, 0.0
+		for b.Loop() {
+			sink += d.cdf(x)
+			x += 1e-9
+		}
+		_ = sink
+	})
+}
+
+// The largest differences measured between X's distribution read from
+// the section's table (boxTab, polynomials of degree boxTabDeg = 3 in the
+// row weight) and set's, over TestBoxTab's offsets: 4.9e-15 in the CDF and
+// 1.3e-14 in the density (the series terms below boxSeriesTol that set
+// leaves out and the table keeps, and rounding: the same with degree 5),
+// 3.9e-14 in the 3σ point (Newton's stopping rule, boxQuantileStep,
+// leaves it to ~2e-14) and 5.3e-15 in the reach. The bounds are four
+// times those: room for other platforms' exp and erfc while at the exact
+// path's own truncation (boxSeriesTol); a table of degree 1 errs by 5e-10
+// in the reach and 2.4e-13 in the 3σ point, and fails them.
+const (
+	boxTabCDF, boxTabDensity, boxTabZ, boxTabReach = 4.9e-15, 1.3e-14, 3.9e-14, 5.3e-15
+	boxTabMargin                                   = 4
+)
+
+// TestBoxTab checks X's distribution read from the section's table
+// against boxNormal.set at offsets between the table's points (eleven
+// per interval, none a Chebyshev point) over every tabulated interval of
+// two sections: the L3 width uniform beside a wide normal core thickness
+// (one box), and the L3 and L4 widths uniform (two); and that a box that
+// may be wide leaves no interval tabulated.
+func TestBoxTab(t *testing.T) {
+	const w = 0.4 * mil
+	s := namedPair("boxtab", section.Spec{Coupling: -3, Tolerance: 1})
+	box := registration.Term{Spread: w, Dist: registration.Uniform}
+	size := panel.Vec{X: 18 * inch, Y: 24 * inch}
+	t2 := process.Term{Name: "t2", Layer: "C2", Quantity: process.Thickness, Panel: term(0, 4*mil)}
+	w3 := process.Term{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: box, SiteSigma: 0.3 * mil}
+	w4 := process.Term{Name: "w4", Layer: "L4", Quantity: process.Width, Panel: box, SiteSigma: 0.3 * mil}
+	var worstP, worstD, worstZ, worstR float64
+	for _, tt := range []struct {
+		name  string
+		terms []process.Term
+		tab   bool
+	}{
+		{"one box", []process.Term{w3, t2}, true},
+		{"two boxes", []process.Term{w3, w4, t2}, true},
+		{"wide", []process.Term{{Name: "w3", Layer: "L3", Quantity: process.Width, Panel: box}}, false},
+	} {
+		ev := procEvaluator(t, s, &registration.Model{}, &process.Model{Size: size, Terms: tt.terms}, []panel.Vec{{}})
+		pr := ev.Proc
+		if pr.boxTab != nil {
+			t.Fatalf("%s: a table for one site", tt.name)
+		}
+		pr.tabulateBoxes() // as for many sites (boxTabPays)
+		if (pr.boxTab != nil) != tt.tab {
+			t.Fatalf("%s: tabulated %v, want %v", tt.name, pr.boxTab != nil, tt.tab)
+		}
+		if pr.boxTab == nil {
+			continue
+		}
+		var row procRow
+		pr.row(&row, panel.Vec{})
+		n := 0
+		for i := range pr.tabRows - 1 {
+			if !pr.boxTab.has(i) {
+				continue
+			}
+			n++
+			for k := range 11 {
+				f := (float64(k) + 0.5) / 11
+				var got, want boxNormal
+				pr.boxTab.fill(i, f, &got)
+				r0, r1 := pr.tab[i*len(pr.Bind):(i+1)*len(pr.Bind)], pr.tab[(i+1)*len(pr.Bind):(i+2)*len(pr.Bind)]
+				setBoxes(0, r0, r1, f, &row, &want, true)
+				if got.m < want.m {
+					t.Fatalf("%s, interval %d at %g: %d series terms, set %d", tt.name, i, f, got.m, want.m)
+				}
+				for j := 0; j <= 86; j++ {
+					x := -boxFar + 0.1*float64(j)
+					p, d := got.below(x)
+					pw, dw := want.below(x)
+					worstP, worstD = math.Max(worstP, math.Abs(p-pw)), math.Max(worstD, math.Abs(d-dw))
+					if math.Abs(p-pw) > boxTabMargin*boxTabCDF || math.Abs(d-dw) > boxTabMargin*boxTabDensity {
+						t.Errorf("%s, interval %d at %g, x = %g: CDF %.17g, set %.17g; density %.17g, set %.17g", tt.name, i, f, x, p, pw, d, dw)
+					}
+				}
+				z, zw := got.quantileSigmas(3, 3), want.quantileSigmas(3, 3)
+				worstZ = math.Max(worstZ, math.Abs(z-zw))
+				worstR = math.Max(worstR, math.Abs(got.reach(6)-want.reach(6)))
+				if math.Abs(z-zw) > boxTabMargin*boxTabZ || math.Abs(got.reach(6)-want.reach(6)) > boxTabMargin*boxTabReach || math.Abs(got.cornishFisher(3)-want.cornishFisher(3)) > boxTabMargin*boxTabReach {
+					t.Errorf("%s, interval %d at %g: 3σ point %.17g, set %.17g; reach %.17g, set %.17g", tt.name, i, f, z, zw, got.reach(6), want.reach(6))
+				}
+			}
+		}
+		if n == 0 {
+			t.Fatalf("%s: no interval tabulated", tt.name)
+		}
+	}
+	t.Logf("worst difference from set: CDF %.2g, density %.2g, 3σ point %.2g, reach %.2g", worstP, worstD, worstZ, worstR)
+}
+
+// BenchmarkBoxTab times reading X's distribution from the section's table
+// (boxTab.fill) at the sites of BenchmarkSiteUniform, against set
+// (BenchmarkBoxNormal/set).
+func BenchmarkBoxTab(b *testing.B) {
+	_, _, a := evaluatedProcess(b)
+	pr := a.Evaluator(a.Sites[0].Section).Proc
+	i, _ := pr.rowAt(a.Sites[0].Offset)
+	if !pr.boxTab.has(i) {
+		b.Fatal("the site's interval is not tabulated")
+	}
+	b.ReportAllocs()
+	var d boxNormal
+	f := 0.3
+	for b.Loop() {
+		pr.boxTab.fill(i, f, &d)
+		f = 1 - f
 	}
 }
