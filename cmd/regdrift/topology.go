@@ -41,8 +41,10 @@ type topologyRow struct {
 	topShare float64
 	// linear is the largest error of the process model used (with its
 	// second-order term) against direct solves at ±3σ of every term, at
-	// the worst sites, and firstOrder the first-order model's, dB.
+	// the worst sites, and firstOrder the first-order model's, dB;
+	// warning is the check's warning, if any (drift.Linearity).
 	linear, firstOrder float64
+	warning            string
 }
 
 // demoTopology runs the topology comparison: map and yield of each build
@@ -85,6 +87,7 @@ func demoTopology(ctx context.Context, std stdio, dir, out string, set *drift.Se
 		}
 		if msum.Linearity != nil {
 			r.linear, r.firstOrder = msum.Linearity.MaxModelErrorDB, msum.Linearity.MaxErrorDB
+			r.warning = msum.Linearity.Warning
 		}
 		if cb := y.CouplingBudget; cb != nil && len(cb.Panel) > 0 {
 			r.top, r.topShare = cb.Panel[0].Name, cb.Panel[0].Share
@@ -108,6 +111,11 @@ func printTopology(w io.Writer, rows []topologyRow, trials int) {
 			100*r.siteMC, 100*r.siteClosed, r.goodMean, r.parts, r.goodP05, reg, vari, sd, r.top, 100*r.topShare, r.linear, r.firstOrder)
 	}
 	tw.Flush()
+	for _, r := range rows {
+		if r.warning != "" {
+			fmt.Fprintf(w, "  %s: %s\n", r.build, r.warning)
+		}
+	}
 	best := slices.MaxFunc(rows, func(a, b topologyRow) int { return cmp.Compare(a.goodMean, b.goodMean) })
 	fmt.Fprintf(w, "  most parts in spec: %s (%d panels each, the same seed)\n", best.build, trials)
 }
