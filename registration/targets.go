@@ -110,7 +110,7 @@ type TargetGroup struct {
 	mu           sync.Mutex
 	refs         int         // Loads not yet released, of a spilled group
 	cols         *targetCols // the loaded columns: &buf for a group never spilled
-	nameBytes    int         // the bytes of its targets' names, read so far
+	nameBytes    int64       // the bytes of its targets' names, read so far
 }
 
 // targetCols is the columns of a run of a group's targets.
@@ -575,7 +575,7 @@ func ReadTargetSet(r io.Reader, file string) (*TargetSet, error) {
 				break
 			}
 		}
-		if g.nameBytes += len(names[2]); g.nameBytes > math.MaxUint32 {
+		if g.nameBytes += int64(len(names[2])); g.nameBytes > math.MaxUint32 {
 			failed = &CSVError{File: file, Row: line, Column: "target", Err: errors.New("more than 4 GB of target names")}
 			break
 		}
