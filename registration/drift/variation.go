@@ -378,6 +378,13 @@ func (e *Evaluator) termSens(b int, off float64) float64 {
 func (e *Evaluator) at(off float64, r *procRow) (m, v, q float64) {
 	r0, r1, i, f := e.Proc.rowsAt(off)
 	m, v = linearPart(e.Curve.Coupling(off), r0, r1, f, r)
+	return e.withSecond(m, v, i, f, r)
+}
+
+// withSecond returns the first-order m and v between table rows i and
+// i + 1 at weight f with the second-order term of the site of row r:
+// m + e₀, κ²·v and q = ρ·v (m, v and 0 without a term).
+func (e *Evaluator) withSecond(m, v float64, i int, f float64, r *procRow) (float64, float64, float64) {
 	if e.Proc.second == nil {
 		return m, v, 0
 	}
@@ -419,11 +426,7 @@ func (e *Evaluator) atBoxesOf(off float64, r *procRow, d *boxNormal, series bool
 	} else {
 		m, v = setBoxes(m, r0, r1, f, r, d, series)
 	}
-	if e.Proc.second == nil {
-		return m, v, 0
-	}
-	e0, kappa, rho := e.Proc.secondRow(i, f, r.second)
-	return m + e0, kappa * kappa * v, rho * v
+	return e.withSecond(m, v, i, f, r)
 }
 
 // setBoxes returns m plus the row's Σ sᵢμᵢ and its variance Σ sᵢ²σᵢ² at
@@ -474,10 +477,6 @@ func (e *Evaluator) mean(off float64, r *procRow) float64 {
 	}
 	return m
 }
-
-// window returns P(lo ≤ coupling ≤ hi) for a normal coupling of mean m and
-// variance v.
-func window(m, v, lo, hi float64) float64 { return windowOf(nil, m, v, lo, hi) }
 
 // windowOf returns P(lo ≤ m + √v·X ≤ hi) for X distributed as d (nil:
 // standard normal).

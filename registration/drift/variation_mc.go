@@ -545,9 +545,6 @@ type mcTab struct {
 	in0, in1 uint
 	domain   registration.Interval
 	window   specWindow
-	// second says that the rows hold a second-order term (mcRow.q,
-	// fillSecond, variation_quad_mc.go).
-	second bool
 }
 
 // unitShape returns the shape of amplitude 1 whose multiple s is, and the

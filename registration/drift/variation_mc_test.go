@@ -162,7 +162,7 @@ func TestMCSecondHotSlow(t *testing.T) {
 		t.Fatal(err)
 	}
 	pc := newProcCheck(a)
-	if pc == nil || !pc.tabs[0].second || !pc.tabs[0].covers || !pc.tabs[0].site {
+	if pc == nil || pc.tabs[0].ev.Proc.second == nil || !pc.tabs[0].covers || !pc.tabs[0].site {
 		t.Fatal("no second-order term on the table's hot path with per-site parts")
 	}
 	mt := pc.tabs[0]

@@ -604,7 +604,7 @@ func perturbedSection(c *Curve, bind []process.Binding, dp []float64) *section.S
 // (s ≥ 0): the probabilities of the t between the roots of the two
 // quadratics, by the roots' stable form (Press et al., Numerical Recipes,
 // 3rd ed., §5.6: Q = −(s + √D)/2, roots Q/q and c/Q), which keeps the root
-// near (L − m)/s exact as q → 0, where the function becomes window.
+// near (L − m)/s exact as q → 0, where the function becomes windowOf.
 func windowQuad(m, s, q, lo, hi float64) float64 { return windowQuadOf(nil, m, s, q, lo, hi) }
 
 // windowQuadOf is windowQuad for t distributed as d, symmetric about 0
@@ -616,7 +616,7 @@ func windowQuadOf(d *boxNormal, m, s, q, lo, hi float64) float64 {
 	}
 	// The common case: both far roots (Q/q, beyond far when the
 	// curvature is small against the slope) leave the CDF there 0 or 1,
-	// and P(coupling ≤ L) = F(near root): window's own form.
+	// and P(coupling ≤ L) = F(near root): windowOf's own form.
 	far := d.far()
 	dh, dl := s*s-4*q*(m-hi), s*s-4*q*(m-lo)
 	if dh >= 0 && dl >= 0 {
@@ -669,11 +669,9 @@ func quadBelow(d *boxNormal, m, s, q, l float64) float64 {
 	return d.cdf(r1) + d.cdf(-r2) // below l outside them
 }
 
-// normBetween returns Φ(b) − Φ(a), a ≤ b, from the tail nearer both (no
+// between returns P(a ≤ t ≤ b), a ≤ b, for t distributed as d, symmetric
+// about 0 (nil: standard normal), from the tail nearer both (no
 // cancellation when both lie in one tail).
-func normBetween(a, b float64) float64 { return between(nil, a, b) }
-
-// between is normBetween for t distributed as d, symmetric about 0.
 func between(d *boxNormal, a, b float64) float64 {
 	if a > 0 {
 		return d.cdf(-a) - d.cdf(-b)

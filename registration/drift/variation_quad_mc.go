@@ -5,7 +5,7 @@ package drift
 // deviations' part Σ sᵦ·dᵦ plus the per-site normal, and the coupling is
 // the first-order draw plus e₀ + (κ − 1)·L + ρ·L², the closed form's model.
 
-// secondStride is the number of values per interval of mcTab.second: κ
+// secondStride is the number of values per interval of mcRow.q: κ
 // and ρ at the interval's start and their steps over it (e₀ and the
 // panel means' part are in the row's cubic, mcRow).
 const secondStride = 4
@@ -27,7 +27,6 @@ func (mt *mcTab) fillSecond() {
 		}
 		return
 	}
-	mt.second = mt.rows != nil
 	for j := range mt.rows {
 		row := &mt.rows[j]
 		j1 := min(j+1, mt.n)
